@@ -1,0 +1,41 @@
+# wkbfit: set-up, build, demo and tests.  `make demo` and `make test` do everything on a fresh machine.
+PYTHON ?= python3
+PIP = $(PYTHON) -m pip
+# Build steps take this lock so that parallel builds in one work tree do not collide.
+LOCK = flock /tmp/wkbfit-build.lock
+
+.PHONY: demo test setup system-deps python-deps build benchmark clean
+
+demo: setup
+	$(PYTHON) -m wkbfit demo
+
+test: setup
+	$(PYTHON) -m pytest -q tests
+
+benchmark: setup
+	$(PYTHON) tests/benchmarks/run_all.py
+
+setup: system-deps python-deps build
+
+# GSL headers and libraries (libgsl-dev) and pkg-config, through apt-get when missing.
+system-deps:
+	@if pkg-config --exists gsl 2>/dev/null || gsl-config --version >/dev/null 2>&1; then :; \
+	elif command -v apt-get >/dev/null 2>&1; then \
+	  SUDO=""; [ "$$(id -u)" = 0 ] || SUDO="sudo"; \
+	  echo "wkbfit: installing libgsl-dev and pkg-config with apt-get"; \
+	  $$SUDO env DEBIAN_FRONTEND=noninteractive apt-get update -qq && \
+	  $$SUDO env DEBIAN_FRONTEND=noninteractive apt-get install -y -qq libgsl-dev pkg-config || \
+	  { echo "wkbfit: could not install libgsl-dev with apt-get; install the GSL development package (libgsl-dev) and retry"; exit 1; }; \
+	else echo "wkbfit: the GSL development files are missing and apt-get is not available; install GSL (e.g. 'dnf install gsl-devel' or 'conda install gsl') and retry"; exit 1; fi
+
+python-deps:
+	@$(PYTHON) -c "import numpy, scipy, pytest, mpmath, periodictable, pandas, matplotlib, nbclient, nbformat, ipykernel, setuptools, wheel" 2>/dev/null || \
+	  $(PIP) install -q numpy scipy pytest mpmath "periodictable>=2" pandas matplotlib nbclient nbformat ipykernel setuptools wheel
+
+# Editable install (the package is imported from pkg/), then the extension built in place.
+build:
+	@$(LOCK) $(PIP) install -q --no-build-isolation --no-deps -e .
+	@$(LOCK) $(PYTHON) setup.py -q build_ext --inplace
+
+clean:
+	rm -rf build pkg/wkbfit/_core*.so pkg/*.egg-info

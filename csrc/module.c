@@ -1,0 +1,293 @@
+/* module.c: the CPython/NumPy binding wkbfit._core, the only file that includes Python.h.
+ *
+ * Arrays in, arrays out: each call crosses the binding once with whole arrays. Inputs go
+ * through PyArray_FROM_OTF (never modified), outputs are allocated before the work, and
+ * only pure C runs between Py_BEGIN_ALLOW_THREADS / Py_END_ALLOW_THREADS.
+ * A potential is passed as (model name, parameter array, curve capsule or None).
+ */
+#define PY_SSIZE_T_CLEAN
+#include <Python.h>
+#include <numpy/arrayobject.h>
+
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include <gsl/gsl_version.h>
+
+#include "wkb.h"
+
+static const char *CURVE_CAPSULE = "wkbfit.pointwise_curve";
+
+/* Raises the Python exception for a failed core call: input problems are ValueError. */
+static PyObject *raise_status(const wkb_error *err)
+{
+    PyObject *type = PyExc_ValueError;
+    if (err->status == WKB_ENOMEM)
+        type = PyExc_MemoryError;
+    else if (err->status == WKB_ENOCONV || err->status == WKB_ENUMERIC)
+        type = PyExc_RuntimeError;
+    PyErr_SetString(type, err->message[0] ? err->message : wkb_status_name(err->status));
+    return NULL;
+}
+
+/* A read-only C-contiguous double array from any array-like; NULL with an exception. */
+static PyArrayObject *as_double_array(PyObject *obj, const char *what, int ndim)
+{
+    PyArrayObject *a = (PyArrayObject *)PyArray_FROM_OTF(obj, NPY_DOUBLE, NPY_ARRAY_IN_ARRAY);
+    if (!a)
+        return NULL;
+    if (ndim >= 0 && PyArray_NDIM(a) != ndim) {
+        PyErr_Format(PyExc_ValueError, "%s must be a %d-dimensional array of numbers, got %d dimensions",
+                     what, ndim, PyArray_NDIM(a));
+        Py_DECREF(a);
+        return NULL;
+    }
+    return a;
+}
+
+static PyArrayObject *new_vector(npy_intp n)
+{
+    return (PyArrayObject *)PyArray_SimpleNew(1, &n, NPY_DOUBLE);
+}
+
+/* Fills pot from (model name, params, curve); returns 0 or -1 with an exception set. */
+static int parse_potential(const char *model_name, PyObject *params_obj, PyObject *curve_obj,
+                           wkb_potential *pot)
+{
+    const wkb_model *model = wkb_model_by_name(model_name);
+    const wkb_pointwise *curve = NULL;
+    wkb_error err = {0};
+    PyArrayObject *params = NULL;
+    int rc = -1;
+
+    if (!model) {
+        PyErr_Format(PyExc_ValueError, "unknown potential model '%s'", model_name);
+        return -1;
+    }
+    if (!(params = as_double_array(params_obj, "params", 1)))
+        return -1;
+    if ((size_t)PyArray_SIZE(params) != model->n_params) {
+        PyErr_Format(PyExc_ValueError, "model %s takes %zu parameters, got %zd", model->name,
+                     model->n_params, (Py_ssize_t)PyArray_SIZE(params));
+        goto cleanup;
+    }
+    if (curve_obj && curve_obj != Py_None) {
+        curve = PyCapsule_GetPointer(curve_obj, CURVE_CAPSULE);
+        if (!curve)
+            goto cleanup;
+    }
+    if (wkb_potential_init(pot, model, (const double *)PyArray_DATA(params), curve, &err)) {
+        raise_status(&err);
+        goto cleanup;
+    }
+    rc = 0;
+cleanup:
+    Py_XDECREF(params);
+    return rc;
+}
+
+/* ---------------------------------------------------------------- potentials */
+
+static PyObject *py_models(PyObject *self, PyObject *noargs)
+{
+    PyObject *d = PyDict_New();
+    if (!d)
+        return NULL;
+    for (size_t i = 0; wkb_models[i]; i++) {
+        const wkb_model *m = wkb_models[i];
+        PyObject *names = PyTuple_New((Py_ssize_t)m->n_params);
+        if (!names)
+            goto fail;
+        for (size_t k = 0; k < m->n_params; k++) {
+            PyObject *s = PyUnicode_FromString(m->param_names[k]);
+            if (!s) {
+                Py_DECREF(names);
+                goto fail;
+            }
+            PyTuple_SET_ITEM(names, (Py_ssize_t)k, s);
+        }
+        if (PyDict_SetItemString(d, m->name, names) < 0) {
+            Py_DECREF(names);
+            goto fail;
+        }
+        Py_DECREF(names);
+    }
+    return d;
+fail:
+    Py_DECREF(d);
+    return NULL;
+}
+
+static PyObject *py_potential_values(PyObject *self, PyObject *args, PyObject *kwds)
+{
+    static char *kwlist[] = {"model", "params", "r", "curve", NULL};
+    const char *model_name;
+    PyObject *params_obj, *r_obj, *curve_obj = Py_None;
+    PyArrayObject *r = NULL, *V = NULL, *dV = NULL, *d2V = NULL, *depth = NULL;
+    PyObject *result = NULL;
+    wkb_potential pot;
+
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOO|O", kwlist, &model_name, &params_obj, &r_obj,
+                                     &curve_obj))
+        return NULL;
+    if (parse_potential(model_name, params_obj, curve_obj, &pot) < 0)
+        return NULL;
+    if (!(r = as_double_array(r_obj, "r", 1)))
+        goto cleanup;
+    const npy_intp n = PyArray_SIZE(r);
+    if (!(V = new_vector(n)) || !(dV = new_vector(n)) || !(d2V = new_vector(n)) || !(depth = new_vector(n)))
+        goto cleanup;
+    {
+        const double *rr = PyArray_DATA(r);
+        double *pV = PyArray_DATA(V), *pdV = PyArray_DATA(dV), *pd2V = PyArray_DATA(d2V),
+               *pdepth = PyArray_DATA(depth);
+        Py_BEGIN_ALLOW_THREADS
+        for (npy_intp i = 0; i < n; i++) {
+            wkb_pot_value pv;
+            wkb_potential_eval(&pot, rr[i], &pv);
+            pV[i] = pv.V;
+            pdV[i] = pv.dV;
+            pd2V[i] = pv.d2V;
+            pdepth[i] = pv.depth;
+        }
+        Py_END_ALLOW_THREADS
+    }
+    result = Py_BuildValue("(OOOO)", V, dV, d2V, depth);
+cleanup:
+    Py_XDECREF(r);
+    Py_XDECREF(V);
+    Py_XDECREF(dV);
+    Py_XDECREF(d2V);
+    Py_XDECREF(depth);
+    return result;
+}
+
+static PyObject *py_param_derivatives(PyObject *self, PyObject *args, PyObject *kwds)
+{
+    static char *kwlist[] = {"model", "params", "r", "curve", NULL};
+    const char *model_name;
+    PyObject *params_obj, *r_obj, *curve_obj = Py_None;
+    PyArrayObject *r = NULL, *out = NULL;
+    wkb_potential pot;
+
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOO|O", kwlist, &model_name, &params_obj, &r_obj,
+                                     &curve_obj))
+        return NULL;
+    if (parse_potential(model_name, params_obj, curve_obj, &pot) < 0)
+        return NULL;
+    if (!(r = as_double_array(r_obj, "r", 1)))
+        return NULL;
+    const npy_intp n = PyArray_SIZE(r);
+    const size_t np = pot.model->n_params;
+    npy_intp dims[2] = {n, (npy_intp)np};
+    out = (PyArrayObject *)PyArray_ZEROS(2, dims, NPY_DOUBLE, 0);
+    if (out && np > 0 && pot.model->param_derivs) {
+        const double *rr = PyArray_DATA(r);
+        double *po = PyArray_DATA(out);
+        Py_BEGIN_ALLOW_THREADS
+        for (npy_intp i = 0; i < n; i++)
+            pot.model->param_derivs(&pot, rr[i], po + i * np);
+        Py_END_ALLOW_THREADS
+    }
+    Py_DECREF(r);
+    return (PyObject *)out;
+}
+
+/* ---------------------------------------------------------------- point-wise curves */
+
+static void curve_destructor(PyObject *capsule)
+{
+    wkb_pointwise_free(PyCapsule_GetPointer(capsule, CURVE_CAPSULE));
+}
+
+static PyObject *py_pointwise_build(PyObject *self, PyObject *args, PyObject *kwds)
+{
+    static char *kwlist[] = {"r", "V", "asymptote", "tail_power", NULL};
+    PyObject *r_obj, *V_obj;
+    double asymptote = NAN, tail_power = NAN;
+    PyArrayObject *r = NULL, *V = NULL;
+    PyObject *result = NULL, *capsule = NULL;
+    wkb_pointwise *curve = NULL;
+    wkb_error err = {0};
+    int status;
+
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "OO|dd", kwlist, &r_obj, &V_obj, &asymptote, &tail_power))
+        return NULL;
+    if (!(r = as_double_array(r_obj, "r", 1)) || !(V = as_double_array(V_obj, "V", 1)))
+        goto cleanup;
+    if (PyArray_SIZE(r) != PyArray_SIZE(V)) {
+        PyErr_Format(PyExc_ValueError, "r and V must have the same length, got %zd and %zd",
+                     (Py_ssize_t)PyArray_SIZE(r), (Py_ssize_t)PyArray_SIZE(V));
+        goto cleanup;
+    }
+    Py_BEGIN_ALLOW_THREADS
+    status = wkb_pointwise_alloc(PyArray_DATA(r), PyArray_DATA(V), (size_t)PyArray_SIZE(r), asymptote,
+                                 tail_power, &curve, &err);
+    Py_END_ALLOW_THREADS
+    if (status) {
+        raise_status(&err);
+        goto cleanup;
+    }
+    if (!(capsule = PyCapsule_New(curve, CURVE_CAPSULE, curve_destructor))) {
+        wkb_pointwise_free(curve);
+        goto cleanup;
+    }
+    {
+        double D, n, Cn;
+        wkb_pointwise_tail(curve, &D, &n, &Cn);
+        result = Py_BuildValue("(Oddd)", capsule, D, n, Cn);
+    }
+cleanup:
+    Py_XDECREF(capsule);
+    Py_XDECREF(r);
+    Py_XDECREF(V);
+    return result;
+}
+
+/* ---------------------------------------------------------------- module */
+
+static PyMethodDef core_methods[] = {
+    {"models", py_models, METH_NOARGS, "models() -> {model name: tuple of parameter names}"},
+    {"potential_values", (PyCFunction)(void (*)(void))py_potential_values, METH_VARARGS | METH_KEYWORDS,
+     "potential_values(model, params, r, curve=None) -> (V, dV/dr, d2V/dr2, asymptote - V)"},
+    {"param_derivatives", (PyCFunction)(void (*)(void))py_param_derivatives, METH_VARARGS | METH_KEYWORDS,
+     "param_derivatives(model, params, r, curve=None) -> array (len(r), n_params) of dV/dp"},
+    {"pointwise_build", (PyCFunction)(void (*)(void))py_pointwise_build, METH_VARARGS | METH_KEYWORDS,
+     "pointwise_build(r, V, asymptote=nan, tail_power=nan) -> (curve, asymptote, tail_power, tail_coefficient)"},
+    {NULL, NULL, 0, NULL},
+};
+
+static int import_numpy(void)
+{
+    import_array1(-1);
+    return 0;
+}
+
+static int core_exec(PyObject *m)
+{
+    if (import_numpy() < 0)
+        return -1;
+    wkb_init_library();
+    if (PyModule_AddObject(m, "HBAR2_OVER_2U", PyFloat_FromDouble(WKB_HBAR2_OVER_2U)) < 0)
+        return -1;
+    if (PyModule_AddStringConstant(m, "GSL_VERSION", GSL_VERSION) < 0)
+        return -1;
+    return 0;
+}
+
+static PyModuleDef_Slot core_slots[] = {
+    {Py_mod_exec, core_exec},
+    {0, NULL},
+};
+
+static struct PyModuleDef core_module = {
+    PyModuleDef_HEAD_INIT, "wkbfit._core",
+    "The C core of wkbfit: potentials, WKB levels, exact levels and fits (arrays in, arrays out).", 0,
+    core_methods, core_slots, NULL, NULL, NULL,
+};
+
+PyMODINIT_FUNC PyInit__core(void)
+{
+    return PyModuleDef_Init(&core_module);
+}

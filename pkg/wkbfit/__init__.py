@@ -1,0 +1,10 @@
+"""wkbfit: WKB and exact levels of diatomic potentials, and potential fits to measured levels.
+
+Units: energies in cm-1, distances in angstrom, masses in u.
+"""
+from ._core import HBAR2_OVER_2U, GSL_VERSION
+from .masses import reduced_mass, isotope_mass, parse_isotopologue
+from .potentials import Potential, Morse, LennardJones, PoschlTeller, PointwisePotential
+from .levels import LevelTable, levels
+
+__version__ = "0.1.0"

@@ -1,0 +1,187 @@
+"""The forward calculation: vibrational(-rotational) levels of a potential.
+
+`levels(potential, mu, v=None, J=0)` returns a `LevelTable`. The loop over levels runs in C:
+each call crosses into the core once per J value with whole arrays.
+"""
+import math
+import warnings
+
+import numpy as np
+
+from . import _core
+from .masses import as_reduced_mass
+from .potentials import Potential
+
+__all__ = ["LevelTable", "levels"]
+
+_COLUMNS = ("v", "J", "energy", "binding_energy", "inner_turning_point", "outer_turning_point",
+            "Bv", "dEdv", "error")
+
+_UNITS = {"v": "", "J": "", "energy": "cm-1", "binding_energy": "cm-1", "inner_turning_point": "A",
+          "outer_turning_point": "A", "Bv": "cm-1", "dEdv": "cm-1", "error": "cm-1"}
+
+_DESCRIPTIONS = {
+    "v": "vibrational quantum number",
+    "J": "rotational quantum number",
+    "energy": "level energy in the potential's zero (term value above the minimum for the analytic models)",
+    "binding_energy": "asymptote minus energy",
+    "inner_turning_point": "inner classical turning point",
+    "outer_turning_point": "outer classical turning point",
+    "Bv": "rotational constant: average of hbar^2/(2 mu r^2) over the level",
+    "dEdv": "local level spacing dE/dv (classical vibrational quantum)",
+    "error": "estimated numerical error of the energy (not the semiclassical error)",
+}
+
+
+class LevelTable:
+    """Levels of one potential and reduced mass, as NumPy arrays of equal length.
+
+    Columns: v, J, energy, binding_energy, inner_turning_point, outer_turning_point,
+    Bv, dEdv, error (see `describe()`); `vD` maps each J to the non-integer quantum
+    number at the dissociation limit (None where it is not defined).
+    """
+
+    def __init__(self, columns, *, mu, method, potential, vD=None, notes=()):
+        n = len(columns["v"])
+        for name in _COLUMNS:
+            col = np.asarray(columns.get(name, np.full(n, np.nan)), dtype=float if name not in ("v", "J") else int)
+            if len(col) != n:
+                raise ValueError("column %s has %d rows, expected %d" % (name, len(col), n))
+            col.setflags(write=False)
+            setattr(self, name, col)
+        self.mu = float(mu)
+        self.method = method
+        self.potential = potential
+        self.vD_by_J = dict(vD or {})
+        self.notes = list(notes)
+
+    @property
+    def vD(self):
+        """Quantum number at dissociation: a float for a single-J table, else a dict by J."""
+        if len(self.vD_by_J) == 1:
+            return next(iter(self.vD_by_J.values()))
+        return dict(self.vD_by_J)
+
+    @property
+    def columns(self):
+        return _COLUMNS
+
+    @staticmethod
+    def describe():
+        """Column name -> (unit, meaning)."""
+        return {c: (_UNITS[c], _DESCRIPTIONS[c]) for c in _COLUMNS}
+
+    def __len__(self):
+        return len(self.v)
+
+    def __getitem__(self, name):
+        if name not in _COLUMNS:
+            raise KeyError("no column %r; columns are %s" % (name, ", ".join(_COLUMNS)))
+        return getattr(self, name)
+
+    def level(self, v, J=0):
+        """Row index of level (v, J); ValueError if absent."""
+        idx = np.nonzero((self.v == v) & (self.J == J))[0]
+        if len(idx) == 0:
+            raise ValueError("level v=%d, J=%d is not in this table (%d levels)" % (v, J, len(self)))
+        return int(idx[0])
+
+    def to_dict(self):
+        return {c: getattr(self, c).tolist() for c in _COLUMNS}
+
+    def to_dataframe(self):
+        import pandas as pd
+        return pd.DataFrame({c: getattr(self, c) for c in _COLUMNS})
+
+    def to_text(self, columns=("v", "J", "energy", "binding_energy", "dEdv", "Bv",
+                               "inner_turning_point", "outer_turning_point")):
+        """A plain-text table, one level per line."""
+        head = "  ".join("%14s" % ("%s%s" % (c, " [%s]" % _UNITS[c] if _UNITS[c] else "")) for c in columns)
+        lines = ["%s levels of %r, mu = %.10g u" % (self.method.upper(), self.potential, self.mu), head]
+        for i in range(len(self)):
+            cells = []
+            for c in columns:
+                x = getattr(self, c)[i]
+                cells.append("%14d" % x if c in ("v", "J") else "%14.6f" % x if abs(x) < 1e7 else "%14.6e" % x)
+            lines.append("  ".join(cells))
+        for J, vD in sorted(self.vD_by_J.items()):
+            lines.append("J=%d: quantum number at dissociation vD = %s" % (
+                J, "%.6f" % vD if vD is not None else "not defined (no bound levels)"))
+        lines.extend(self.notes)
+        return "\n".join(lines)
+
+    def __str__(self):
+        return self.to_text()
+
+    def __repr__(self):
+        return "<LevelTable %s: %d levels, mu=%.8g u>" % (self.method, len(self), self.mu)
+
+    def _repr_html_(self):
+        cols = ("v", "J", "energy", "binding_energy", "dEdv", "Bv", "inner_turning_point", "outer_turning_point")
+        rows = "".join("<tr>%s</tr>" % "".join(
+            "<td>%s</td>" % (int(getattr(self, c)[i]) if c in ("v", "J") else "%.6f" % getattr(self, c)[i])
+            for c in cols) for i in range(len(self)))
+        head = "".join("<th>%s%s</th>" % (c, " [%s]" % _UNITS[c] if _UNITS[c] else "") for c in cols)
+        return "<table><caption>%s levels, mu = %.8g u</caption><tr>%s</tr>%s</table>" % (
+            self.method.upper(), self.mu, head, rows)
+
+
+def _as_int_list(x, name):
+    arr = np.atleast_1d(np.asarray(x))
+    if arr.ndim != 1 or not all(float(e) == int(e) for e in arr.tolist() if np.isfinite(e)) or not np.all(np.isfinite(arr.astype(float))):
+        raise ValueError("%s must be a non-negative integer or a list of them; got %r" % (name, x))
+    out = [int(e) for e in arr.tolist()]
+    bad = [e for e in out if e < 0]
+    if bad:
+        raise ValueError("%s=%d is invalid: quantum numbers are >= 0" % (name, bad[0]))
+    return out
+
+
+def levels(potential, mu, v=None, J=0, method="wkb", *, langer=False, maslov=(1, 1)):
+    """Levels of `potential` for reduced mass `mu`.
+
+    potential: a Potential object.
+    mu: reduced mass in u, or a pair of isotope labels/masses such as ("7Li", "133Cs").
+    v: None for every bound level, or an integer / list of integers.
+    J: rotational quantum number(s); the centrifugal term is J(J+1) hbar^2/(2 mu r^2)
+       (or (J+1/2)^2 with langer=True, first-order WKB only).
+    method: "wkb" (first-order semiclassical quantization; see `maslov`) or "exact"
+       (the radial Schroedinger equation solved numerically).
+    maslov: Maslov indices (inner, outer): 1 for a smooth turning point, 2 for a hard wall.
+    """
+    if not isinstance(potential, Potential):
+        raise ValueError("potential must be a wkbfit potential object (Morse, LennardJones, ...), got %r"
+                         % (potential,))
+    mu = as_reduced_mass(mu)
+    Js = _as_int_list(J, "J")
+    vs = None if v is None else _as_int_list(v, "v")
+    if method == "wkb":
+        return _wkb_levels(potential, mu, vs, Js, langer, maslov)
+    if method == "exact":
+        from .exact import exact_levels
+        if langer:
+            raise ValueError("langer=True applies to WKB only; the exact solver uses J(J+1)")
+        return exact_levels(potential, mu, vs, Js)
+    raise ValueError("method=%r is not known; use 'wkb' or 'exact'" % (method,))
+
+
+def _wkb_levels(potential, mu, vs, Js, langer, maslov):
+    try:
+        m_in, m_out = (int(m) for m in maslov)
+    except (TypeError, ValueError):
+        raise ValueError("maslov must be a pair (inner, outer) of 1 (smooth) or 2 (hard wall); got %r"
+                         % (maslov,)) from None
+    if m_in not in (1, 2) or m_out not in (1, 2):
+        raise ValueError("maslov=%r is invalid: each index is 1 (smooth turning point) or 2 (hard wall)"
+                         % (maslov,))
+    model, params, curve = potential._core_args()
+    parts, vD = [], {}
+    v_arr = None if vs is None else np.asarray(vs, dtype=np.intc)
+    for J in Js:
+        rot = (J + 0.5) ** 2 if langer else float(J * (J + 1))
+        res = _core.wkb_levels(model, params, curve, mu, rot, v_arr, m_in, m_out)
+        res["J"] = np.full(len(res["v"]), J)
+        vD[J] = None if math.isnan(res["vD"]) else res["vD"]
+        parts.append(res)
+    cols = {c: np.concatenate([p[c] for p in parts]) for c in _COLUMNS}
+    return LevelTable(cols, mu=mu, method="wkb", potential=potential, vD=vD)

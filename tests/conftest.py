@@ -1,0 +1,5 @@
+"""Test configuration: import wkbfit from this work tree (pkg/), whatever else is installed."""
+import os
+import sys
+
+sys.path.insert(0, os.path.join(os.path.dirname(os.path.dirname(os.path.abspath(__file__))), "pkg"))
