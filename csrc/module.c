@@ -245,6 +245,273 @@ cleanup:
     return result;
 }
 
+/* ---------------------------------------------------------------- Airy functions */
+
+/* A new double array with the shape of like; NULL with an exception. */
+static PyArrayObject *new_like(PyArrayObject *like)
+{
+    return (PyArrayObject *)PyArray_SimpleNew(PyArray_NDIM(like), PyArray_DIMS(like), NPY_DOUBLE);
+}
+
+static PyObject *py_airy(PyObject *self, PyObject *args, PyObject *kwds)
+{
+    static char *kwlist[] = {"z", "errors", NULL};
+    PyObject *z_obj, *result = NULL;
+    int with_errors = 0, status = WKB_SUCCESS;
+    PyArrayObject *z = NULL, *out[8] = {NULL};
+    wkb_error err = {0};
+
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "O|p", kwlist, &z_obj, &with_errors))
+        return NULL;
+    if (!(z = as_double_array(z_obj, "z", -1)))
+        return NULL;
+    for (int k = 0; k < 8; k++)
+        if (!(out[k] = new_like(z)))
+            goto cleanup;
+    {
+        const npy_intp n = PyArray_SIZE(z);
+        const double *zz = PyArray_DATA(z);
+        double *p[8];
+        for (int k = 0; k < 8; k++)
+            p[k] = PyArray_DATA(out[k]);
+        Py_BEGIN_ALLOW_THREADS
+        for (npy_intp i = 0; i < n && status == WKB_SUCCESS; i++) {
+            wkb_airy_values a;
+            status = wkb_airy(zz[i], &a, &err);
+            p[0][i] = a.Ai, p[1][i] = a.dAi, p[2][i] = a.Bi, p[3][i] = a.dBi;
+            p[4][i] = a.Ai_err, p[5][i] = a.dAi_err, p[6][i] = a.Bi_err, p[7][i] = a.dBi_err;
+        }
+        Py_END_ALLOW_THREADS
+    }
+    if (status) {
+        raise_status(&err);
+        goto cleanup;
+    }
+    if (with_errors)
+        result = Py_BuildValue("((OOOO)(OOOO))", out[0], out[1], out[2], out[3], out[4], out[5], out[6], out[7]);
+    else
+        result = Py_BuildValue("(OOOO)", out[0], out[1], out[2], out[3]);
+cleanup:
+    Py_XDECREF(z);
+    for (int k = 0; k < 8; k++)
+        Py_XDECREF(out[k]);
+    return result;
+}
+
+static PyObject *py_airy_asymptotic(PyObject *self, PyObject *args, PyObject *kwds)
+{
+    static char *kwlist[] = {"z", "terms", NULL};
+    PyObject *z_obj;
+    int terms, status = WKB_SUCCESS;
+    PyArrayObject *z = NULL, *ai = NULL;
+    wkb_error err = {0};
+
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "Oi", kwlist, &z_obj, &terms))
+        return NULL;
+    if (!(z = as_double_array(z_obj, "z", -1)))
+        return NULL;
+    if (!(ai = new_like(z)))
+        goto cleanup;
+    {
+        const npy_intp n = PyArray_SIZE(z);
+        const double *zz = PyArray_DATA(z);
+        double *pa = PyArray_DATA(ai);
+        Py_BEGIN_ALLOW_THREADS
+        for (npy_intp i = 0; i < n && status == WKB_SUCCESS; i++)
+            status = wkb_airy_asymptotic(zz[i], terms, &pa[i], &err);
+        Py_END_ALLOW_THREADS
+    }
+    if (status) {
+        raise_status(&err);
+        Py_CLEAR(ai);
+    }
+cleanup:
+    Py_XDECREF(z);
+    return (PyObject *)ai;
+}
+
+/* ---------------------------------------------------------------- WKB levels */
+
+static PyObject *py_wkb_levels(PyObject *self, PyObject *args, PyObject *kwds)
+{
+    static char *kwlist[] = {"model", "params", "curve", "mu", "rot", "v", "maslov_in", "maslov_out",
+                             "want_dVdp", NULL};
+    const char *model_name;
+    PyObject *params_obj, *curve_obj, *v_obj = Py_None;
+    double mu, rot;
+    int maslov_in = 1, maslov_out = 1, want_dVdp = 0;
+    PyArrayObject *v_arr = NULL, *dVdp = NULL;
+    PyArrayObject *cols[8] = {NULL};
+    static const char *names[8] = {"v", "energy", "binding_energy", "inner_turning_point",
+                                   "outer_turning_point", "Bv", "dEdv", "error"};
+    PyObject *result = NULL;
+    wkb_potential pot;
+    wkb_well *w = NULL;
+    wkb_level *lv = NULL;
+    wkb_error err = {0};
+    size_t count = 0, n = 0;
+    double vD = NAN;
+    int status = WKB_SUCCESS;
+
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOdd|Oiip", kwlist, &model_name, &params_obj, &curve_obj,
+                                     &mu, &rot, &v_obj, &maslov_in, &maslov_out, &want_dVdp))
+        return NULL;
+    if (parse_potential(model_name, params_obj, curve_obj, &pot) < 0)
+        return NULL;
+    if (v_obj != Py_None) {
+        v_arr = (PyArrayObject *)PyArray_FROM_OTF(v_obj, NPY_INT, NPY_ARRAY_IN_ARRAY);
+        if (!v_arr)
+            goto cleanup;
+        if (PyArray_NDIM(v_arr) != 1) {
+            PyErr_SetString(PyExc_ValueError, "v must be a 1-dimensional array of integers");
+            goto cleanup;
+        }
+    }
+    if (!(w = wkb_well_alloc(NULL))) {
+        PyErr_NoMemory();
+        goto cleanup;
+    }
+    Py_BEGIN_ALLOW_THREADS
+    status = wkb_well_set(w, &pot, mu, rot, maslov_in, maslov_out, &err);
+    if (!status)
+        status = wkb_level_count(w, &count, &vD, &err);
+    Py_END_ALLOW_THREADS
+    if (status) {
+        raise_status(&err);
+        goto cleanup;
+    }
+    n = v_arr ? (size_t)PyArray_SIZE(v_arr) : count;
+    if (n && !(lv = calloc(n, sizeof *lv))) {
+        PyErr_NoMemory();
+        goto cleanup;
+    }
+    const size_t np = pot.model->n_params;
+    if (want_dVdp) {
+        npy_intp dims[2] = {(npy_intp)n, (npy_intp)np};
+        if (!(dVdp = (PyArrayObject *)PyArray_ZEROS(2, dims, NPY_DOUBLE, 0)))
+            goto cleanup;
+    }
+    {
+        const int *vv = v_arr ? (const int *)PyArray_DATA(v_arr) : NULL;
+        double *pd = dVdp ? (double *)PyArray_DATA(dVdp) : NULL;
+        Py_BEGIN_ALLOW_THREADS
+        if (!vv && !pd) {
+            status = wkb_all_levels(w, lv, n, &count, &vD, &err);
+        } else {
+            for (size_t i = 0; i < n && !status; i++)
+                status = wkb_level_at(w, vv ? vv[i] : (int)i, &lv[i], pd ? pd + i * np : NULL, &err);
+        }
+        Py_END_ALLOW_THREADS
+    }
+    if (status) {
+        raise_status(&err);
+        goto cleanup;
+    }
+    for (int c = 0; c < 8; c++) {
+        if (!(cols[c] = new_vector((npy_intp)n)))
+            goto cleanup;
+        double *p = PyArray_DATA(cols[c]);
+        for (size_t i = 0; i < n; i++) {
+            const wkb_level *L = &lv[i];
+            const double vals[8] = {L->v, L->energy, L->binding, L->r_inner, L->r_outer, L->Bv, L->dEdv, L->error};
+            p[i] = vals[c];
+        }
+    }
+    if (!(result = PyDict_New()))
+        goto cleanup;
+    for (int c = 0; c < 8; c++)
+        if (PyDict_SetItemString(result, names[c], (PyObject *)cols[c]) < 0)
+            goto fail;
+    {
+        PyObject *x = PyFloat_FromDouble(vD);
+        if (!x || PyDict_SetItemString(result, "vD", x) < 0) {
+            Py_XDECREF(x);
+            goto fail;
+        }
+        Py_DECREF(x);
+        x = PyLong_FromSize_t(count);
+        if (!x || PyDict_SetItemString(result, "count", x) < 0) {
+            Py_XDECREF(x);
+            goto fail;
+        }
+        Py_DECREF(x);
+    }
+    if (dVdp && PyDict_SetItemString(result, "dE_dp", (PyObject *)dVdp) < 0)
+        goto fail;
+    goto cleanup;
+fail:
+    Py_CLEAR(result);
+cleanup:
+    for (int c = 0; c < 8; c++)
+        Py_XDECREF(cols[c]);
+    Py_XDECREF(dVdp);
+    Py_XDECREF(v_arr);
+    free(lv);
+    wkb_well_free(w);
+    return result;
+}
+
+static PyObject *py_wkb_orbits(PyObject *self, PyObject *args, PyObject *kwds)
+{
+    static char *kwlist[] = {"model", "params", "curve", "mu", "rot", "binding", NULL};
+    const char *model_name;
+    PyObject *params_obj, *curve_obj, *b_obj;
+    double mu, rot;
+    PyArrayObject *b = NULL;
+    PyArrayObject *cols[5] = {NULL};
+    PyObject *result = NULL;
+    wkb_potential pot;
+    wkb_well *w = NULL;
+    wkb_error err = {0};
+    int status = WKB_SUCCESS;
+
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOddO", kwlist, &model_name, &params_obj, &curve_obj, &mu,
+                                     &rot, &b_obj))
+        return NULL;
+    if (parse_potential(model_name, params_obj, curve_obj, &pot) < 0)
+        return NULL;
+    if (!(b = as_double_array(b_obj, "binding", 1)))
+        return NULL;
+    const npy_intp n = PyArray_SIZE(b);
+    for (int c = 0; c < 5; c++)
+        if (!(cols[c] = new_vector(n)))
+            goto cleanup;
+    if (!(w = wkb_well_alloc(NULL))) {
+        PyErr_NoMemory();
+        goto cleanup;
+    }
+    {
+        const double *pb = PyArray_DATA(b);
+        double *out[5];
+        for (int c = 0; c < 5; c++)
+            out[c] = PyArray_DATA(cols[c]);
+        Py_BEGIN_ALLOW_THREADS
+        status = wkb_well_set(w, &pot, mu, rot, 1, 1, &err);
+        for (npy_intp i = 0; i < n && !status; i++) {
+            wkb_orbit o;
+            status = wkb_orbit_at(w, pb[i], &o, NULL, &err);
+            out[0][i] = o.action;
+            out[1][i] = o.half_period;
+            out[2][i] = o.r_inner;
+            out[3][i] = o.r_outer;
+            out[4][i] = o.Bv;
+        }
+        Py_END_ALLOW_THREADS
+    }
+    if (status) {
+        raise_status(&err);
+        goto cleanup;
+    }
+    result = Py_BuildValue("{sOsOsOsOsO}", "action", cols[0], "half_period", cols[1], "inner_turning_point",
+                           cols[2], "outer_turning_point", cols[3], "Bv", cols[4]);
+cleanup:
+    for (int c = 0; c < 5; c++)
+        Py_XDECREF(cols[c]);
+    Py_XDECREF(b);
+    wkb_well_free(w);
+    return result;
+}
+
 /* ---------------------------------------------------------------- module */
 
 static PyMethodDef core_methods[] = {
@@ -255,6 +522,18 @@ static PyMethodDef core_methods[] = {
      "param_derivatives(model, params, r, curve=None) -> array (len(r), n_params) of dV/dp"},
     {"pointwise_build", (PyCFunction)(void (*)(void))py_pointwise_build, METH_VARARGS | METH_KEYWORDS,
      "pointwise_build(r, V, asymptote=nan, tail_power=nan) -> (curve, asymptote, tail_power, tail_coefficient)"},
+    {"airy", (PyCFunction)(void (*)(void))py_airy, METH_VARARGS | METH_KEYWORDS,
+     "airy(z, errors=False) -> (Ai, Ai', Bi, Bi') from GSL, arrays shaped like z; with errors=True\n"
+     "((Ai, Ai', Bi, Bi'), (their absolute error estimates)). Valid for -1e6 <= z <= 104."},
+    {"airy_asymptotic", (PyCFunction)(void (*)(void))py_airy_asymptotic, METH_VARARGS | METH_KEYWORDS,
+     "airy_asymptotic(z, terms) -> Ai(z) from the large-|z| expansions (A&S 10.4.59 for z > 0,\n"
+     "10.4.60 for z < 0) truncated after terms = 1..50 coefficients c_0..c_(terms-1)."},
+    {"wkb_levels", (PyCFunction)(void (*)(void))py_wkb_levels, METH_VARARGS | METH_KEYWORDS,
+     "wkb_levels(model, params, curve, mu, rot, v=None, maslov_in=1, maslov_out=1, want_dVdp=False) -> dict "
+     "of level arrays (v, energy, binding_energy, turning points, Bv, dEdv, error), vD, count, [dE_dp]"},
+    {"wkb_orbits", (PyCFunction)(void (*)(void))py_wkb_orbits, METH_VARARGS | METH_KEYWORDS,
+     "wkb_orbits(model, params, curve, mu, rot, binding) -> dict of arrays: action (integral k dr), "
+     "half_period (d action/dE, 1/cm-1), inner/outer turning points, Bv; at binding energies asymptote - E"},
     {NULL, NULL, 0, NULL},
 };
 

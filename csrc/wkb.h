@@ -110,7 +110,38 @@ void wkb_pointwise_free(wkb_pointwise *curve);
 void wkb_pointwise_tail(const wkb_pointwise *curve, double *asymptote, double *power,
                         double *coefficient);
 
-/* ---------------------------------------------------------------- wkb.c */
+/* ----------------------------------------------------------------- airy.c */
+/* Domain of wkb_airy: Bi overflows double precision just above z = 104.3, and below
+   z = -1e6 the phase (2/3)|z|^(3/2) of the oscillations is no longer resolved. */
+#define WKB_AIRY_Z_MIN (-1.0e6)
+#define WKB_AIRY_Z_MAX 104.0
+#define WKB_AIRY_MAX_TERMS 50
+
+/* Ai, Ai', Bi, Bi' at one z with GSL's absolute error estimates (*_err). */
+typedef struct {
+    double Ai, dAi, Bi, dBi;
+    double Ai_err, dAi_err, Bi_err, dBi_err;
+} wkb_airy_values;
+
+/* The Airy functions and their derivatives at z (dimensionless), from GSL
+   (gsl_sf_airy_Ai_e, _Ai_deriv_e, _Bi_e, _Bi_deriv_e with GSL_PREC_DOUBLE).
+   An underflow of Ai or Ai' at large z is a valid result (0 or subnormal).
+   Status: WKB_EINVAL if z is NaN or outside [WKB_AIRY_Z_MIN, WKB_AIRY_Z_MAX];
+   WKB_ENUMERIC if GSL reports any other error. */
+int wkb_airy(double z, wkb_airy_values *out, wkb_error *err);
+
+/* Ai(z) from its large-|z| asymptotic expansion truncated after 'terms' coefficients
+   c_0..c_(terms-1), c_k = Gamma(3k+1/2)/(54^k k! Gamma(k+1/2)), zeta = (2/3)|z|^(3/2):
+     z > 0: Ai(z) ~ (1/2) pi^(-1/2) z^(-1/4) e^(-zeta) sum_k (-1)^k c_k zeta^(-k)
+            (Abramowitz & Stegun 10.4.59, DLMF 9.7.5);
+     z < 0: Ai(z) ~ pi^(-1/2) |z|^(-1/4) [sin(zeta + pi/4) sum_k (-1)^k c_2k zeta^(-2k)
+                                        - cos(zeta + pi/4) sum_k (-1)^k c_(2k+1) zeta^(-2k-1)]
+            (A&S 10.4.60, DLMF 9.7.9), the source of the pi/4 turning-point phase.
+   Status: WKB_EINVAL if z is NaN, 0 or below WKB_AIRY_Z_MIN, if terms is outside
+   1..WKB_AIRY_MAX_TERMS, or if the truncated series overflows (too many terms for a small |z|). */
+int wkb_airy_asymptotic(double z, int terms, double *ai, wkb_error *err);
+
+/* ---------------------------------------------------------------- orbit.c */
 /* Tunables of the semiclassical calculation (GSL-style defaults function). */
 typedef struct {
     size_t nodes;          /* Gauss-Legendre nodes per quadrature piece */
@@ -162,10 +193,17 @@ double wkb_well_top(const wkb_well *w);
 int wkb_orbit_at(wkb_well *w, double binding, wkb_orbit *orbit, double *avg_dVdp,
                  wkb_error *err);
 
-/* Non-integer quantum number at the asymptote: action(asymptote)/pi - maslov/4. */
+/* ---------------------------------------------------------------- quantize.c */
+/* Non-integer quantum number at the asymptote: action(asymptote)/pi - maslov/4.
+   NaN (with success) when the well minimum lies above the asymptote. Cached per wkb_well_set. */
 int wkb_v_dissociation(wkb_well *w, double *vD, wkb_error *err);
+/* Number of bound levels (those with v < vD) and vD; either pointer may be NULL. */
+int wkb_level_count(wkb_well *w, size_t *count, double *vD, wkb_error *err);
 
-/* Level with quantum number v (0, 1, ...). avg_dVdp as above, may be NULL. */
+/* Level with quantum number v (0, 1, ...). avg_dVdp as above, may be NULL: it then holds
+   dE_v/dp_k, since for first-order WKB dE/dp = <dV/dp> over the orbit. Levels already solved
+   since the last wkb_well_set seed the first guess, so asking in ascending v is fastest.
+   Status: WKB_ENOLEVEL when v is not bound (the message names the last bound level). */
 int wkb_level_at(wkb_well *w, int v, wkb_level *level, double *avg_dVdp, wkb_error *err);
 
 /* Every bound level, v = 0 .. count-1, into levels[capacity]; *count is the number

@@ -1,0 +1,471 @@
+/* orbit.c: one classical orbit in the well of V_J(r) = V(r) + eps*rot/r^2.
+ *
+ * The well analysis (minimum, extrema, detection of extra wells and barriers), the
+ * turning points, and the phase integrals over one orbit: the action
+ * I(E) = integral k dr with k = sqrt((E - V_J)/eps), the half period dI/dE, and orbit
+ * averages <f> = integral f/k dr / integral 1/k dr (Bv, dV/dp).
+ *
+ * Quadrature: the orbit is cut at the minimum r_b. On [r1, r_b] the map r = r1 + (r_b - r1) s^2
+ * removes the square-root end point; on [r_b, r2] the variable y = ln r is used, with
+ * y = y2 - L s^2 on the last piece next to r2 and plain pieces between, so that orbits whose
+ * outer turning point lies hundreds of r_e out (near dissociation under an inverse-power
+ * tail) are integrated as accurately as compact ones. At threshold (E = asymptote, J = 0)
+ * the last piece maps [r_T, infinity) by t = (r_T/r)^q with q = (n-2)/2 for a -C_n/r^n tail,
+ * which makes the integrand regular at t = 0. Every piece uses Gauss-Legendre nodes.
+ * Energies near the asymptote are handled as binding energies b = D - E and the kinetic
+ * term as depth(r) - b, so nothing cancels there.
+ */
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include <gsl/gsl_errno.h>
+#include <gsl/gsl_integration.h>
+#include <gsl/gsl_math.h>
+
+#include "wkb.h"
+#include "well.h"
+
+#define END_PIECE_LOG_LENGTH 1.0   /* length in ln r of the piece next to the outer turning point */
+#define MIDDLE_PIECE_LOG_LENGTH 1.5
+#define THRESHOLD_TAIL_LOG_START 3.0 /* the tail piece starts at r_b e^3 */
+
+wkb_settings wkb_default_settings(void)
+{
+    wkb_settings s;
+    s.nodes = 40;
+    s.energy_tol = 1e-11;
+    s.max_newton = 60;
+    s.scan_points = 400;
+    return s;
+}
+
+wkb_well *wkb_well_alloc(const wkb_settings *settings)
+{
+    wkb_well *w = calloc(1, sizeof *w);
+    gsl_integration_glfixed_table *table = NULL;
+    if (!w)
+        return NULL;
+    w->set = settings ? *settings : wkb_default_settings();
+    if (w->set.nodes < 4 || w->set.nodes > 2000 || w->set.scan_points < 16 || w->set.max_newton < 1)
+        goto fail;
+    w->scan_r = malloc(w->set.scan_points * sizeof(double));
+    w->scan_V = malloc(w->set.scan_points * sizeof(double));
+    w->gl_x = malloc(w->set.nodes * sizeof(double));
+    w->gl_w = malloc(w->set.nodes * sizeof(double));
+    table = gsl_integration_glfixed_table_alloc(w->set.nodes);
+    if (!w->scan_r || !w->scan_V || !w->gl_x || !w->gl_w || !table)
+        goto fail;
+    for (size_t i = 0; i < w->set.nodes; i++)
+        if (gsl_integration_glfixed_point(0.0, 1.0, i, &w->gl_x[i], &w->gl_w[i], table) != GSL_SUCCESS)
+            goto fail;
+    gsl_integration_glfixed_table_free(table);
+    return w;
+fail:
+    if (table)
+        gsl_integration_glfixed_table_free(table);
+    wkb_well_free(w);
+    return NULL;
+}
+
+void wkb_well_free(wkb_well *w)
+{
+    if (!w)
+        return;
+    free(w->scan_r);
+    free(w->scan_V);
+    free(w->gl_x);
+    free(w->gl_w);
+    free(w->cache_w);
+    free(w->cache_slope);
+    free(w->cache_ok);
+    free(w);
+}
+
+/* V_J and its derivatives; depth becomes D - V_J. */
+static void effective(const wkb_well *w, double r, wkb_pot_value *pv)
+{
+    wkb_potential_eval(&w->pot, r, pv);
+    const double c = w->eps * w->rot / (r * r);
+    pv->V += c;
+    pv->depth -= c;
+    pv->dV -= 2 * c / r;
+    pv->d2V += 6 * c / (r * r);
+}
+
+/* The kinetic term E - V_J(r), in the form without cancellation for this energy. */
+typedef struct {
+    double E, b;
+    int top_form;
+} energy_point;
+
+static double kinetic(const wkb_well *w, const energy_point *e, double r, wkb_pot_value *pv)
+{
+    effective(w, r, pv);
+    return e->top_form ? pv->depth - e->b : e->E - pv->V;
+}
+
+/* Safeguarded Newton (bisection fallback) for a zero of g in [lo, hi], g(lo) g(hi) <= 0.
+   mode 0: g = kinetic term (turning point); mode 1: g = dV_J/dr (minimum). */
+static int solve_in_bracket(const wkb_well *w, const energy_point *e, int mode, double lo, double hi,
+                            double *root)
+{
+    wkb_pot_value pv;
+    double glo = mode ? (effective(w, lo, &pv), pv.dV) : kinetic(w, e, lo, &pv);
+    double ghi = mode ? (effective(w, hi, &pv), pv.dV) : kinetic(w, e, hi, &pv);
+    if (glo == 0) {
+        *root = lo;
+        return WKB_SUCCESS;
+    }
+    if (ghi == 0) {
+        *root = hi;
+        return WKB_SUCCESS;
+    }
+    if ((glo > 0) == (ghi > 0) || !isfinite(glo) || !isfinite(ghi))
+        return WKB_ENUMERIC;
+    const int rising = ghi > 0;
+    double x = 0.5 * (lo + hi);
+    for (int it = 0; it < 200; it++) {
+        double g, dg;
+        if (mode) {
+            effective(w, x, &pv);
+            g = pv.dV;
+            dg = pv.d2V;
+        } else {
+            g = kinetic(w, e, x, &pv);
+            dg = -pv.dV;
+        }
+        if (!isfinite(g))
+            return WKB_ENUMERIC;
+        if (g == 0) {
+            *root = x;
+            return WKB_SUCCESS;
+        }
+        if ((g > 0) == rising)
+            hi = x;
+        else
+            lo = x;
+        double xn = x - g / dg;
+        if (!(xn > lo && xn < hi) || !isfinite(xn))
+            xn = 0.5 * (lo + hi);
+        const double dx = fabs(xn - x);
+        x = xn;
+        if (dx <= 4 * GSL_DBL_EPSILON * fabs(x) || hi - lo <= 4 * GSL_DBL_EPSILON * fabs(x)) {
+            *root = x;
+            return WKB_SUCCESS;
+        }
+    }
+    *root = x;
+    return WKB_SUCCESS; /* bracket has shrunk to rounding level in any case */
+}
+
+int wkb_well_set(wkb_well *w, const wkb_potential *pot, double mu, double rot, int maslov_in,
+                 int maslov_out, wkb_error *err)
+{
+    w->ready = 0;
+    w->vD_status = -1;
+    w->count = 0;
+    if (!(isfinite(mu) && mu > 0))
+        return wkb_fail(err, WKB_EINVAL, "reduced mass mu=%g is invalid: it must be a finite number > 0 (u)", mu);
+    if (!(isfinite(rot) && rot >= 0))
+        return wkb_fail(err, WKB_EINVAL, "rotational factor %g is invalid: J(J+1) must be finite and >= 0", rot);
+    if ((maslov_in != 1 && maslov_in != 2) || (maslov_out != 1 && maslov_out != 2))
+        return wkb_fail(err, WKB_EINVAL,
+                        "Maslov indices (%d, %d) are invalid: each end is 1 (smooth turning point) or 2 (hard wall)",
+                        maslov_in, maslov_out);
+    w->pot = *pot;
+    w->eps = WKB_HBAR2_OVER_2U / mu;
+    w->rot = rot;
+    w->phase = 0.25 * (maslov_in + maslov_out);
+    w->top = wkb_potential_asymptote(pot);
+    w->tail_power = pot->model->tail_power(pot);
+
+    /* scan V_J on a logarithmic grid */
+    const double r_hint = pot->model->r_min(pot);
+    double r_lo = pot->model->r_inner_scan(pot), r_hi = 60 * r_hint;
+    if (!(r_lo > 0 && r_hi > r_lo && isfinite(r_hi)))
+        return wkb_fail(err, WKB_EINVAL, "cannot choose a range of r for this potential (%g .. %g A)", r_lo, r_hi);
+    const size_t n = w->set.scan_points;
+    const double step = log(r_hi / r_lo) / (double)(n - 1);
+    size_t imin = 0;
+    for (size_t i = 0; i < n; i++) {
+        wkb_pot_value pv;
+        w->scan_r[i] = r_lo * exp(step * (double)i);
+        effective(w, w->scan_r[i], &pv);
+        if (!isfinite(pv.V))
+            return wkb_fail(err, WKB_ENUMERIC, "the potential is not finite at r=%g A (V=%g)", w->scan_r[i], pv.V);
+        w->scan_V[i] = pv.V;
+        if (pv.V < w->scan_V[imin])
+            imin = i;
+    }
+    w->n_scan = n;
+    if (imin == 0 || imin == n - 1)
+        return wkb_fail(err, WKB_ENOWELL,
+                        "the potential has no well%s: V%s decreases monotonically towards %s r in %g..%g A",
+                        rot > 0 ? " at this rotation" : "", rot > 0 ? "(r) + centrifugal term" : "(r)",
+                        imin == 0 ? "small" : "large", r_lo, r_hi);
+    w->i_bottom = imin;
+    {
+        double rb;
+        if (solve_in_bracket(w, NULL, 1, w->scan_r[imin - 1], w->scan_r[imin + 1], &rb))
+            rb = w->scan_r[imin];
+        wkb_pot_value pv;
+        effective(w, rb, &pv);
+        w->r_bottom = rb;
+        w->bottom = pv.V;
+    }
+    /* local extrema (for detecting extra wells and barriers) */
+    w->n_ext = 0;
+    for (size_t i = 1; i + 1 < n; i++) {
+        const double a = w->scan_V[i] - w->scan_V[i - 1], b = w->scan_V[i + 1] - w->scan_V[i];
+        if ((a < 0 && b >= 0) || (a > 0 && b <= 0)) {
+            if (w->n_ext == MAX_EXTREMA)
+                return wkb_fail(err, WKB_EINVAL, "the potential oscillates: more than %d extrema in %g..%g A",
+                                MAX_EXTREMA, r_lo, r_hi);
+            w->ext[w->n_ext++] = i;
+        }
+    }
+    w->ready = 1;
+    return WKB_SUCCESS;
+}
+
+double wkb_well_bottom(const wkb_well *w) { return w->bottom; }
+double wkb_well_top(const wkb_well *w) { return w->top; }
+
+/* Counts crossings of V_J = E over the scanned monotone segments and the tail beyond. */
+static size_t count_crossings(const wkb_well *w, double E)
+{
+    size_t count = 0, prev = 0;
+    for (size_t k = 0; k <= w->n_ext; k++) {
+        const size_t idx = k < w->n_ext ? w->ext[k] : w->n_scan - 1;
+        const double a = w->scan_V[prev], b = w->scan_V[idx];
+        if (E > GSL_MIN(a, b) && E < GSL_MAX(a, b))
+            count++;
+        prev = idx;
+    }
+    /* from the end of the scan to the asymptote */
+    {
+        const double a = w->scan_V[w->n_scan - 1], b = w->top;
+        if (E > GSL_MIN(a, b) && E < GSL_MAX(a, b))
+            count++;
+    }
+    return count;
+}
+
+/* Nearest extremum index strictly left / right of the bottom (or the scan end). */
+static size_t branch_end(const wkb_well *w, int right)
+{
+    size_t j = right ? w->n_scan - 1 : 0;
+    for (size_t k = 0; k < w->n_ext; k++) {
+        const size_t idx = w->ext[k];
+        if (right && idx > w->i_bottom && idx < j)
+            j = idx;
+        if (!right && idx < w->i_bottom && idx > j)
+            j = idx;
+    }
+    return j;
+}
+
+static int find_turning_point(const wkb_well *w, const energy_point *e, int right, double *r_tp,
+                              wkb_error *err)
+{
+    wkb_pot_value pv;
+    const size_t j = branch_end(w, right);
+    double lo, hi;
+    if (kinetic(w, e, w->scan_r[j], &pv) <= 0) {
+        /* bisection over the monotone branch between the bottom and scan point j */
+        size_t in = w->i_bottom, out = j; /* kinetic > 0 at 'in' side (bottom), <= 0 at 'out' */
+        while ((in > out ? in - out : out - in) > 1) {
+            const size_t mid = (in + out) / 2;
+            if (kinetic(w, e, w->scan_r[mid], &pv) > 0)
+                in = mid;
+            else
+                out = mid;
+        }
+        double r_in = w->scan_r[in];
+        if (in == w->i_bottom)
+            r_in = w->r_bottom;
+        if ((right && r_in > w->scan_r[out]) || (!right && r_in < w->scan_r[out]))
+            r_in = w->scan_r[in];
+        lo = GSL_MIN(r_in, w->scan_r[out]);
+        hi = GSL_MAX(r_in, w->scan_r[out]);
+    } else if (right && j == w->n_scan - 1) {
+        double r = w->scan_r[j];
+        while (kinetic(w, e, r, &pv) > 0) {
+            r *= 2;
+            if (r > 1e12 * w->r_bottom)
+                return wkb_fail(err, WKB_ENOLEVEL,
+                                "no outer turning point at E=%.12g cm-1 (binding energy %.6g cm-1): "
+                                "the orbit is not bound", e->E, e->b);
+        }
+        lo = r / 2;
+        hi = r;
+    } else if (!right && j == 0) {
+        double r = w->scan_r[0];
+        while (kinetic(w, e, r, &pv) > 0) {
+            r *= 0.5;
+            if (r < 1e-9 * w->r_bottom)
+                return wkb_fail(err, WKB_ENOWELL,
+                                "no inner turning point at E=%.12g cm-1: the potential wall near r=0 is "
+                                "lower than this energy", e->E);
+        }
+        lo = r;
+        hi = 2 * r;
+    } else {
+        return wkb_fail(err, WKB_EMULTIWELL,
+                        "E=%.12g cm-1 lies above the barrier at r=%.6g A (V=%.12g cm-1): more than two "
+                        "turning points (a second well or a barrier in the classically allowed region)",
+                        e->E, w->scan_r[j], w->scan_V[j]);
+    }
+    if (solve_in_bracket(w, e, 0, lo, hi, r_tp))
+        return wkb_fail(err, WKB_ENUMERIC, "turning point search failed at E=%.12g cm-1 in %g..%g A", e->E,
+                        lo, hi);
+    return WKB_SUCCESS;
+}
+
+/* Sums over one quadrature piece. */
+typedef struct {
+    double action, inv_k, inv_k_r2;
+    double dVdp[WKB_MAX_PARAMS];
+    int want_period, want_dVdp;
+} sums;
+
+static void add_node(wkb_well *w, const energy_point *e, double r, double weight, sums *s)
+{
+    wkb_pot_value pv;
+    const double kin = kinetic(w, e, r, &pv);
+    if (!(kin > 0))
+        return; /* a node within rounding of a turning point: the integrands vanish or are integrable there */
+    const double sk = sqrt(kin);
+    s->action += weight * sk;
+    if (s->want_period) {
+        const double f = weight / sk;
+        s->inv_k += f;
+        s->inv_k_r2 += f / (r * r);
+        if (s->want_dVdp) {
+            const size_t np = w->pot.model->n_params;
+            w->pot.model->param_derivs(&w->pot, r, w->dVdp);
+            for (size_t k = 0; k < np; k++)
+                s->dVdp[k] += f * w->dVdp[k];
+        }
+    }
+}
+
+/* [r1, rb] with r = r1 + (rb - r1) s^2 */
+static void piece_inner(wkb_well *w, const energy_point *e, double r1, double rb, sums *s)
+{
+    const double L = rb - r1;
+    for (size_t i = 0; i < w->set.nodes; i++) {
+        const double x = w->gl_x[i];
+        add_node(w, e, r1 + L * x * x, w->gl_w[i] * 2 * L * x, s);
+    }
+}
+
+/* [exp(y2 - L), exp(y2)] with y = y2 - L s^2 (square-root end at s = 0) */
+static void piece_outer_end(wkb_well *w, const energy_point *e, double y2, double L, sums *s)
+{
+    for (size_t i = 0; i < w->set.nodes; i++) {
+        const double x = w->gl_x[i], r = exp(y2 - L * x * x);
+        add_node(w, e, r, w->gl_w[i] * 2 * L * x * r, s);
+    }
+}
+
+/* [exp(ya), exp(yb)], plain in y = ln r */
+static void piece_log(wkb_well *w, const energy_point *e, double ya, double yb, sums *s)
+{
+    const double L = yb - ya;
+    for (size_t i = 0; i < w->set.nodes; i++) {
+        const double r = exp(ya + L * w->gl_x[i]);
+        add_node(w, e, r, w->gl_w[i] * L * r, s);
+    }
+}
+
+/* [rT, infinity) with t = (rT/r)^q */
+static void piece_tail(wkb_well *w, const energy_point *e, double rT, double q, sums *s)
+{
+    for (size_t i = 0; i < w->set.nodes; i++) {
+        const double t = w->gl_x[i], r = rT * pow(t, -1 / q);
+        add_node(w, e, r, w->gl_w[i] * (r / (q * t)), s);
+    }
+}
+
+/* splits [ya, yb] into plain log pieces of at most MIDDLE_PIECE_LOG_LENGTH */
+static void pieces_log(wkb_well *w, const energy_point *e, double ya, double yb, sums *s)
+{
+    if (yb <= ya)
+        return;
+    const size_t m = (size_t)ceil((yb - ya) / MIDDLE_PIECE_LOG_LENGTH);
+    for (size_t k = 0; k < m; k++)
+        piece_log(w, e, ya + (yb - ya) * (double)k / (double)m, ya + (yb - ya) * (double)(k + 1) / (double)m, s);
+}
+
+int wkb_orbit_at(wkb_well *w, double binding, wkb_orbit *orbit, double *avg_dVdp, wkb_error *err)
+{
+    int status;
+    if (!w->ready)
+        return wkb_fail(err, WKB_EINVAL, "the well has not been set up");
+    energy_point e;
+    e.b = binding;
+    e.E = w->top - binding;
+    e.top_form = binding < e.E - w->bottom;
+    if (!(binding >= 0) || !isfinite(binding))
+        return wkb_fail(err, WKB_ENOLEVEL,
+                        "E=%.12g cm-1 is above the dissociation asymptote %.12g cm-1: no bound orbit", e.E, w->top);
+    if (!(e.E > w->bottom))
+        return wkb_fail(err, WKB_ENOWELL, "E=%.12g cm-1 is below the bottom of the well (%.12g cm-1)", e.E,
+                        w->bottom);
+    if (count_crossings(w, e.E) > 2)
+        return wkb_fail(err, WKB_EMULTIWELL,
+                        "at E=%.12g cm-1 the potential has more than two turning points (a second well or a "
+                        "barrier in the classically allowed region); single-well WKB does not apply", e.E);
+
+    const int infinite = binding == 0 && w->rot == 0;
+    double r1, r2 = INFINITY;
+    if ((status = find_turning_point(w, &e, 0, &r1, err)))
+        return status;
+    if (!infinite && (status = find_turning_point(w, &e, 1, &r2, err)))
+        return status;
+
+    const double rb = GSL_MIN(GSL_MAX(w->r_bottom, r1), r2);
+    sums s;
+    memset(&s, 0, sizeof s);
+    s.want_period = !infinite;
+    s.want_dVdp = avg_dVdp != NULL && w->pot.model->param_derivs != NULL;
+    piece_inner(w, &e, r1, rb, &s);
+    const double yb = log(rb);
+    if (infinite) {
+        const double n = w->tail_power;
+        if (n != 0 && !(n > 2))
+            return wkb_fail(err, WKB_EINVAL,
+                            "the tail -C_n/r^n with n=%g <= 2 binds infinitely many levels: no action at the "
+                            "asymptote", n);
+        const double q = n > 2 ? 0.5 * (n - 2) : 1.0;
+        pieces_log(w, &e, yb, yb + THRESHOLD_TAIL_LOG_START, &s);
+        piece_tail(w, &e, exp(yb + THRESHOLD_TAIL_LOG_START), q, &s);
+    } else {
+        const double y2 = log(r2), Y = y2 - yb;
+        if (Y <= END_PIECE_LOG_LENGTH) {
+            if (Y > 0)
+                piece_outer_end(w, &e, y2, Y, &s);
+        } else {
+            pieces_log(w, &e, yb, y2 - END_PIECE_LOG_LENGTH, &s);
+            piece_outer_end(w, &e, y2, END_PIECE_LOG_LENGTH, &s);
+        }
+    }
+    const double se = sqrt(w->eps);
+    orbit->energy = e.E;
+    orbit->binding = binding;
+    orbit->r_inner = r1;
+    orbit->r_outer = r2;
+    orbit->action = s.action / se;
+    orbit->half_period = infinite ? INFINITY : s.inv_k / (2 * se);
+    orbit->Bv = infinite ? 0 : w->eps * s.inv_k_r2 / s.inv_k;
+    if (avg_dVdp) {
+        const size_t np = w->pot.model->n_params;
+        for (size_t k = 0; k < np; k++)
+            avg_dVdp[k] = (s.want_dVdp && !infinite) ? s.dVdp[k] / s.inv_k : NAN;
+    }
+    if (!isfinite(orbit->action) || (!infinite && !(orbit->half_period > 0)))
+        return wkb_fail(err, WKB_ENUMERIC, "the phase integrals are not finite at E=%.12g cm-1", e.E);
+    return WKB_SUCCESS;
+}

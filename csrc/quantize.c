@@ -1,0 +1,217 @@
+/* quantize.c: levels from first-order WKB quantization I(E) = pi (v + (m_in + m_out)/4),
+ * m = 1 at a smooth turning point and 2 at a hard wall (the Maslov indices).
+ *
+ * Each level is found by a safeguarded Newton iteration in w = b^alpha, b = asymptote - E,
+ * alpha = (n-2)/(2n) for a -C_n/r^n tail and 1/2 for an exponential one: near threshold
+ * I(E) ~ I(D) - c b^alpha (the LeRoy-Bernstein form), so the iteration function is nearly
+ * linear in w (exactly linear for Morse). The first guess for level v comes from the levels
+ * already solved in this well (cubic Hermite extrapolation of w against I), so a sweep over
+ * all levels needs about two orbit evaluations per level.
+ */
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include <gsl/gsl_math.h>
+
+#include "wkb.h"
+#include "well.h"
+
+#define MAX_LEVELS 1000000
+
+static double w_exponent(const wkb_well *w)
+{
+    const double n = w->tail_power;
+    return n > 2 ? (n - 2) / (2 * n) : 0.5;
+}
+
+/* Computes vD and the number of bound levels once per well set-up; sizes the level cache. */
+static int prepare(wkb_well *w, wkb_error *err)
+{
+    if (w->vD_status >= 0) {
+        if (w->vD_status && err)
+            *err = w->vD_err;
+        return w->vD_status;
+    }
+    if (!w->ready)
+        return wkb_fail(err, WKB_EINVAL, "the well has not been set up");
+    w->count = 0;
+    w->vD = NAN;
+    w->vD_err.status = 0;
+    w->vD_err.message[0] = 0;
+    if (w->bottom < w->top) {
+        wkb_orbit o;
+        int status = wkb_orbit_at(w, 0.0, &o, NULL, &w->vD_err);
+        if (status) {
+            w->vD_status = status;
+            if (err)
+                *err = w->vD_err;
+            return status;
+        }
+        w->vD = o.action / M_PI - w->phase;
+        if (w->vD > MAX_LEVELS) {
+            w->vD_status = wkb_fail(&w->vD_err, WKB_EINVAL,
+                                    "this well binds %.6g levels, more than the %d supported", w->vD, MAX_LEVELS);
+            if (err)
+                *err = w->vD_err;
+            return w->vD_status;
+        }
+        w->count = w->vD > 0 ? (size_t)ceil(w->vD) : 0;
+    }
+    if (w->count > w->cache_size) {
+        double *cw = realloc(w->cache_w, w->count * sizeof(double));
+        if (cw)
+            w->cache_w = cw;
+        double *cs = realloc(w->cache_slope, w->count * sizeof(double));
+        if (cs)
+            w->cache_slope = cs;
+        char *ok = realloc(w->cache_ok, w->count);
+        if (ok)
+            w->cache_ok = ok;
+        if (!cw || !cs || !ok)
+            return wkb_fail(err, WKB_ENOMEM, "out of memory for %zu levels", w->count);
+        w->cache_size = w->count;
+    }
+    if (w->count)
+        memset(w->cache_ok, 0, w->count);
+    w->vD_status = WKB_SUCCESS;
+    return WKB_SUCCESS;
+}
+
+int wkb_level_count(wkb_well *w, size_t *count, double *vD, wkb_error *err)
+{
+    int status = prepare(w, err);
+    if (status)
+        return status;
+    if (count)
+        *count = w->count;
+    if (vD)
+        *vD = w->vD;
+    return WKB_SUCCESS;
+}
+
+int wkb_v_dissociation(wkb_well *w, double *vD, wkb_error *err)
+{
+    return wkb_level_count(w, NULL, vD, err);
+}
+
+/* First guess for w of level v from solved neighbours, else from the straight line in w
+   between the bottom (I = 0) and the asymptote (I = pi (vD + phase)). */
+static double first_guess(const wkb_well *w, size_t v, double w_bottom)
+{
+    const double h = M_PI;
+    const char *ok = w->cache_ok;
+    if (v >= 2 && ok[v - 1] && ok[v - 2]) {
+        /* cubic Hermite through (I_{v-2}, w, dw/dI) and (I_{v-1}, ...), evaluated one step on */
+        return 5 * w->cache_w[v - 2] + 2 * h * w->cache_slope[v - 2] - 4 * w->cache_w[v - 1] +
+               4 * h * w->cache_slope[v - 1];
+    }
+    if (v >= 1 && ok[v - 1])
+        return w->cache_w[v - 1] + h * w->cache_slope[v - 1];
+    if (v + 1 < w->count && ok[v + 1])
+        return w->cache_w[v + 1] - h * w->cache_slope[v + 1];
+    const double I_top = M_PI * (w->vD + w->phase);
+    return w_bottom * (1 - M_PI * ((double)v + w->phase) / I_top);
+}
+
+static int solve_level(wkb_well *w, size_t v, wkb_level *level, double *avg_dVdp, wkb_error *err)
+{
+    const double alpha = w_exponent(w);
+    const double target = M_PI * ((double)v + w->phase);
+    const double w_bottom = pow(w->top - w->bottom, alpha);
+    const double tol = w->set.energy_tol + 4e-14 * (w->top - w->bottom);
+    double lo = 0, hi = w_bottom; /* F(lo) > 0 (threshold side), F(hi) < 0 (bottom side) */
+    if (v >= 1 && w->cache_ok[v - 1])
+        hi = GSL_MIN(hi, w->cache_w[v - 1]);
+    if (v + 1 < w->count && w->cache_ok[v + 1])
+        lo = GSL_MAX(lo, w->cache_w[v + 1]);
+    double wg = first_guess(w, v, w_bottom);
+    if (!(wg > lo && wg < hi))
+        wg = 0.5 * (lo + hi);
+
+    wkb_orbit o = {0};
+    double b = pow(wg, 1 / alpha), bn = b, dE = INFINITY, slope = NAN;
+    int converged = 0;
+    for (int it = 0; it < w->set.max_newton; it++) {
+        b = pow(wg, 1 / alpha);
+        int status = wkb_orbit_at(w, b, &o, avg_dVdp, err);
+        if (status)
+            return status;
+        const double F = o.action - target;
+        const double dFdw = -o.half_period * pow(b, 1 - alpha) / alpha;
+        slope = 1 / dFdw;
+        if (F > 0)
+            lo = wg;
+        else
+            hi = wg;
+        double wn = wg - F / dFdw;
+        if (!(wn >= lo && wn <= hi)) /* Newton left the bracket: bisect */
+            wn = 0.5 * (lo + hi);
+        bn = pow(wn, 1 / alpha);
+        dE = fabs(bn - b);
+        wg = wn;
+        if (dE <= tol) {
+            converged = 1;
+            break;
+        }
+    }
+    level->v = (double)v;
+    level->binding = bn;
+    level->energy = w->top - bn;
+    level->error = dE;
+    level->r_inner = o.r_inner;
+    level->r_outer = o.r_outer;
+    level->dEdv = M_PI / o.half_period;
+    level->Bv = o.Bv;
+    level->status = converged ? WKB_SUCCESS : WKB_ENOCONV;
+    if (converged) {
+        w->cache_w[v] = wg;
+        w->cache_slope[v] = slope;
+        w->cache_ok[v] = 1;
+    } else {
+        wkb_fail(err, WKB_ENOCONV, "level v=%zu did not converge in %d iterations (last change %.3g cm-1)", v,
+                 w->set.max_newton, dE);
+    }
+    return level->status;
+}
+
+static int check_v(const wkb_well *w, long v, wkb_error *err)
+{
+    if (v < 0)
+        return wkb_fail(err, WKB_EINVAL, "v=%ld is invalid: vibrational quantum numbers are >= 0", v);
+    if ((size_t)v >= w->count) {
+        if (w->count == 0)
+            return wkb_fail(err, WKB_ENOLEVEL,
+                            "v=%ld is not bound: this potential binds no levels for this mass and rotation%s", v,
+                            isnan(w->vD) ? " (the well minimum is above the asymptote)" : "");
+        return wkb_fail(err, WKB_ENOLEVEL,
+                        "v=%ld is above the last bound level (v=%zu) of this potential: it binds %zu levels "
+                        "(vD = %.6f)", v, w->count - 1, w->count, w->vD);
+    }
+    return WKB_SUCCESS;
+}
+
+int wkb_level_at(wkb_well *w, int v, wkb_level *level, double *avg_dVdp, wkb_error *err)
+{
+    int status = prepare(w, err);
+    if (status)
+        return status;
+    if ((status = check_v(w, v, err)))
+        return status;
+    return solve_level(w, (size_t)v, level, avg_dVdp, err);
+}
+
+int wkb_all_levels(wkb_well *w, wkb_level *levels, size_t capacity, size_t *count, double *vD, wkb_error *err)
+{
+    int status = prepare(w, err);
+    if (status)
+        return status;
+    *count = w->count;
+    if (vD)
+        *vD = w->vD;
+    const size_t n = GSL_MIN(capacity, w->count);
+    for (size_t v = 0; v < n; v++)
+        if ((status = solve_level(w, v, &levels[v], NULL, err)))
+            return status;
+    return WKB_SUCCESS;
+}

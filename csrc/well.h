@@ -1,0 +1,31 @@
+/* well.h: the well workspace, private to orbit.c and quantize.c (not part of the public API). */
+#ifndef WKBFIT_WELL_H
+#define WKBFIT_WELL_H
+
+#include "wkb.h"
+
+#define MAX_EXTREMA 64
+
+struct wkb_well {
+    wkb_settings set;
+    wkb_potential pot;
+    int ready;
+    double eps, rot, phase; /* phase = (maslov_in + maslov_out)/4 */
+    double top, bottom, r_bottom;
+    double tail_power;
+    size_t n_scan, i_bottom;
+    double *scan_r, *scan_V;
+    size_t n_ext;
+    size_t ext[MAX_EXTREMA]; /* indices of local extrema of the scan, increasing */
+    double *gl_x, *gl_w;     /* Gauss-Legendre nodes and weights on [0, 1] */
+    double dVdp[WKB_MAX_PARAMS];
+    /* level cache, used by quantize.c */
+    double vD;
+    int vD_status;
+    wkb_error vD_err;
+    size_t count, cache_size;
+    double *cache_w, *cache_slope;
+    char *cache_ok;
+};
+
+#endif
