@@ -32,10 +32,11 @@ python-deps:
 	@$(PYTHON) -c "import numpy, scipy, pytest, mpmath, periodictable, pandas, matplotlib, nbclient, nbformat, ipykernel, setuptools, wheel" 2>/dev/null || \
 	  $(PIP) install -q numpy scipy pytest mpmath "periodictable>=2" pandas matplotlib nbclient nbformat ipykernel setuptools wheel
 
-# Editable install (the package is imported from pkg/), then the extension built in place.
+# The extension built in place, and an editable install of this tree (pkg/) unless it is installed already.
 build:
-	@$(LOCK) $(PIP) install -q --no-build-isolation --no-deps -e .
 	@$(LOCK) $(PYTHON) setup.py -q build_ext --inplace
+	@$(PYTHON) -c "import os, sys, wkbfit; sys.exit(os.path.realpath(wkbfit.__file__) != os.path.realpath('pkg/wkbfit/__init__.py'))" 2>/dev/null || \
+	  $(LOCK) $(PIP) install -q --no-build-isolation --no-deps -e .
 
 clean:
 	rm -rf build pkg/wkbfit/_core*.so pkg/*.egg-info

@@ -512,6 +512,287 @@ cleanup:
     return result;
 }
 
+/* ---------------------------------------------------------------- fits (fit.c) */
+
+/* dict[key] = obj, consuming the reference to obj; -1 with an exception on failure. */
+static int dict_steal(PyObject *dict, const char *key, PyObject *obj)
+{
+    if (!obj)
+        return -1;
+    int rc = PyDict_SetItemString(dict, key, obj);
+    Py_DECREF(obj);
+    return rc;
+}
+
+/* The level arrays of a fit: v (int), rot, mu [, energy, sigma], all of one length n. */
+typedef struct {
+    PyArrayObject *v, *rot, *mu, *energy, *sigma;
+} fit_arrays;
+
+static void fit_arrays_release(fit_arrays *a)
+{
+    Py_XDECREF(a->v);
+    Py_XDECREF(a->rot);
+    Py_XDECREF(a->mu);
+    Py_XDECREF(a->energy);
+    Py_XDECREF(a->sigma);
+}
+
+/* Converts and checks the arrays; fills data. Returns 0 or -1 with an exception. */
+static int parse_fit_arrays(PyObject *v_obj, PyObject *rot_obj, PyObject *mu_obj, PyObject *energy_obj,
+                            PyObject *sigma_obj, int energy_zero, fit_arrays *a, wkb_fit_data *data)
+{
+    memset(data, 0, sizeof *data);
+    a->v = (PyArrayObject *)PyArray_FROM_OTF(v_obj, NPY_INT, NPY_ARRAY_IN_ARRAY | NPY_ARRAY_FORCECAST);
+    if (!a->v)
+        return -1;
+    if (PyArray_NDIM(a->v) != 1) {
+        PyErr_SetString(PyExc_ValueError, "v must be a 1-dimensional array of integers");
+        return -1;
+    }
+    const npy_intp n = PyArray_SIZE(a->v);
+    if (!(a->rot = as_double_array(rot_obj, "rot", 1)) || !(a->mu = as_double_array(mu_obj, "mu", 1)))
+        return -1;
+    if (energy_obj && !(a->energy = as_double_array(energy_obj, "energy", 1)))
+        return -1;
+    if (sigma_obj && !(a->sigma = as_double_array(sigma_obj, "sigma", 1)))
+        return -1;
+    PyArrayObject *all[4] = {a->rot, a->mu, a->energy, a->sigma};
+    static const char *names[4] = {"rot", "mu", "energy", "sigma"};
+    for (int k = 0; k < 4; k++)
+        if (all[k] && PyArray_SIZE(all[k]) != n) {
+            PyErr_Format(PyExc_ValueError, "%s has %zd entries but v has %zd", names[k],
+                         (Py_ssize_t)PyArray_SIZE(all[k]), (Py_ssize_t)n);
+            return -1;
+        }
+    if (n == 0) {
+        PyErr_SetString(PyExc_ValueError, "no levels given");
+        return -1;
+    }
+    data->n = (size_t)n;
+    data->v = PyArray_DATA(a->v);
+    data->rot = PyArray_DATA(a->rot);
+    data->mu = PyArray_DATA(a->mu);
+    data->energy = a->energy ? PyArray_DATA(a->energy) : NULL;
+    data->sigma = a->sigma ? PyArray_DATA(a->sigma) : NULL;
+    data->energy_zero = energy_zero;
+    return 0;
+}
+
+static PyObject *py_fit_evaluate(PyObject *self, PyObject *args, PyObject *kwds)
+{
+    static char *kwlist[] = {"model", "params", "curve", "v", "rot", "mu", "energy_zero", NULL};
+    const char *model_name;
+    PyObject *params_obj, *curve_obj, *v_obj, *rot_obj, *mu_obj, *result = NULL;
+    int energy_zero = WKB_ZERO_MINIMUM, status;
+    fit_arrays a = {0};
+    wkb_fit_data data;
+    wkb_potential pot;
+    wkb_error err = {0};
+    wkb_fit_evaluator *ev = NULL;
+    PyArrayObject *calc = NULL, *jac = NULL;
+    size_t bad_row = 0;
+
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOOOO|i", kwlist, &model_name, &params_obj, &curve_obj, &v_obj,
+                                     &rot_obj, &mu_obj, &energy_zero))
+        return NULL;
+    if (parse_potential(model_name, params_obj, curve_obj, &pot) < 0)
+        return NULL;
+    if (parse_fit_arrays(v_obj, rot_obj, mu_obj, NULL, NULL, energy_zero, &a, &data) < 0)
+        goto cleanup;
+    npy_intp dims[2] = {(npy_intp)data.n, (npy_intp)pot.model->n_params};
+    if (!(calc = new_vector(dims[0])) || !(jac = (PyArrayObject *)PyArray_ZEROS(2, dims, NPY_DOUBLE, 0)))
+        goto cleanup;
+    {
+        wkb_settings levels = wkb_default_settings();
+        double *pc = PyArray_DATA(calc), *pj = PyArray_DATA(jac);
+        Py_BEGIN_ALLOW_THREADS
+        ev = wkb_fit_evaluator_alloc(&data, &levels, NULL, &err);
+        status = ev ? wkb_fit_evaluate(ev, &pot, pc, pj, &bad_row, &err) : (err.status ? err.status : WKB_ENOMEM);
+        Py_END_ALLOW_THREADS
+    }
+    if (status) {
+        if (ev && err.status != WKB_ENOMEM) {
+            char msg[sizeof err.message];
+            snprintf(msg, sizeof msg, "%s", err.message);
+            wkb_fail(&err, err.status, "row %zu: %s", bad_row + 1, msg);
+        }
+        raise_status(&err);
+        goto cleanup;
+    }
+    result = Py_BuildValue("(OO)", calc, jac);
+cleanup:
+    wkb_fit_evaluator_free(ev);
+    fit_arrays_release(&a);
+    Py_XDECREF(calc);
+    Py_XDECREF(jac);
+    return result;
+}
+
+/* [flag, ...] as a list of bools, one per parameter */
+static PyObject *insensitive_list(const int *flags, size_t np)
+{
+    PyObject *list = PyList_New((Py_ssize_t)np);
+    if (!list)
+        return NULL;
+    for (size_t k = 0; k < np; k++)
+        PyList_SET_ITEM(list, (Py_ssize_t)k, PyBool_FromLong(flags[k]));
+    return list;
+}
+
+static PyObject *py_fit_run(PyObject *self, PyObject *args, PyObject *kwds)
+{
+    static char *kwlist[] = {"model", "params", "curve", "v", "rot", "mu", "energy", "sigma", "energy_zero",
+                             "vary", "lower", "upper", "max_iterations", "xtol", "gtol", "decrease_tol", NULL};
+    const char *model_name;
+    PyObject *params_obj, *curve_obj, *v_obj, *rot_obj, *mu_obj, *energy_obj, *sigma_obj, *vary_obj, *lower_obj,
+        *upper_obj, *result = NULL;
+    int energy_zero, status;
+    Py_ssize_t max_iterations = -1;
+    wkb_fit_settings settings = wkb_fit_default_settings();
+    fit_arrays a = {0};
+    wkb_fit_data data;
+    wkb_fit_spec spec;
+    wkb_fit_outcome out;
+    wkb_potential pot;
+    wkb_error err = {0};
+    PyArrayObject *vary = NULL, *lower = NULL, *upper = NULL, *calc = NULL, *jac = NULL, *best = NULL;
+
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOOOOOOiOOO|nddd", kwlist, &model_name, &params_obj, &curve_obj,
+                                     &v_obj, &rot_obj, &mu_obj, &energy_obj, &sigma_obj, &energy_zero, &vary_obj,
+                                     &lower_obj, &upper_obj, &max_iterations, &settings.xtol, &settings.gtol,
+                                     &settings.decrease_tol))
+        return NULL;
+    if (max_iterations >= 0)
+        settings.max_iterations = (size_t)max_iterations;
+    if (parse_potential(model_name, params_obj, curve_obj, &pot) < 0)
+        return NULL;
+    if (parse_fit_arrays(v_obj, rot_obj, mu_obj, energy_obj, sigma_obj, energy_zero, &a, &data) < 0)
+        goto cleanup;
+    const size_t np = pot.model->n_params;
+    if (!(vary = (PyArrayObject *)PyArray_FROM_OTF(vary_obj, NPY_INT, NPY_ARRAY_IN_ARRAY | NPY_ARRAY_FORCECAST)) ||
+        !(lower = as_double_array(lower_obj, "lower", 1)) || !(upper = as_double_array(upper_obj, "upper", 1)))
+        goto cleanup;
+    if ((size_t)PyArray_SIZE(vary) != np || (size_t)PyArray_SIZE(lower) != np || (size_t)PyArray_SIZE(upper) != np) {
+        PyErr_Format(PyExc_ValueError, "vary, lower and upper need %zu entries (one per parameter)", np);
+        goto cleanup;
+    }
+    memset(&spec, 0, sizeof spec);
+    for (size_t k = 0; k < np; k++) {
+        spec.vary[k] = ((const int *)PyArray_DATA(vary))[k] != 0;
+        spec.lower[k] = ((const double *)PyArray_DATA(lower))[k];
+        spec.upper[k] = ((const double *)PyArray_DATA(upper))[k];
+    }
+    npy_intp dims[2] = {(npy_intp)data.n, (npy_intp)np};
+    if (!(calc = new_vector(dims[0])) || !(jac = (PyArrayObject *)PyArray_ZEROS(2, dims, NPY_DOUBLE, 0)) ||
+        !(best = new_vector((npy_intp)np)))
+        goto cleanup;
+    {
+        double *pc = PyArray_DATA(calc), *pj = PyArray_DATA(jac);
+        Py_BEGIN_ALLOW_THREADS
+        status = wkb_fit_run(&pot, &data, &spec, &settings, NULL, &out, pc, pj, &err);
+        Py_END_ALLOW_THREADS
+    }
+    if (status) {
+        /* a failure at the start names its row: the caller maps it to the user's data */
+        if (out.bad_row != (size_t)-1 && status != WKB_ENOMEM) {
+            PyObject *exc = Py_BuildValue("(sn)", err.message, (Py_ssize_t)out.bad_row);
+            if (exc) {
+                PyErr_SetObject(PyExc_ValueError, exc);
+                Py_DECREF(exc);
+            }
+        } else {
+            raise_status(&err);
+        }
+        goto cleanup;
+    }
+    memcpy(PyArray_DATA(best), out.params, np * sizeof(double));
+    if (!(result = PyDict_New()))
+        goto cleanup;
+    if (PyDict_SetItemString(result, "params", (PyObject *)best) < 0 ||
+        PyDict_SetItemString(result, "calc", (PyObject *)calc) < 0 ||
+        PyDict_SetItemString(result, "jacobian", (PyObject *)jac) < 0 ||
+        dict_steal(result, "chi_square", PyFloat_FromDouble(out.chi_square)) < 0 ||
+        dict_steal(result, "predicted_decrease", PyFloat_FromDouble(out.predicted_decrease)) < 0 ||
+        dict_steal(result, "iterations", PyLong_FromSize_t(out.iterations)) < 0 ||
+        dict_steal(result, "n_eval", PyLong_FromSize_t(out.n_eval)) < 0 ||
+        dict_steal(result, "n_infeasible", PyLong_FromSize_t(out.n_infeasible)) < 0 ||
+        dict_steal(result, "stop", PyUnicode_FromString(wkb_fit_stop_name(out.stop))) < 0 ||
+        dict_steal(result, "test", PyLong_FromLong(out.test)) < 0 ||
+        dict_steal(result, "insensitive", insensitive_list(out.insensitive, np)) < 0 ||
+        dict_steal(result, "last_infeasible", PyUnicode_FromString(out.n_infeasible ? out.last_infeasible.message
+                                                                                      : "")) < 0)
+        Py_CLEAR(result);
+cleanup:
+    fit_arrays_release(&a);
+    Py_XDECREF(vary);
+    Py_XDECREF(lower);
+    Py_XDECREF(upper);
+    Py_XDECREF(calc);
+    Py_XDECREF(jac);
+    Py_XDECREF(best);
+    return result;
+}
+
+static PyObject *py_fit_levels(PyObject *self, PyObject *args, PyObject *kwds)
+{
+    static char *kwlist[] = {"model", "params", "curve", "mu", "rot", NULL};
+    const char *model_name;
+    PyObject *params_obj, *curve_obj, *result = NULL;
+    double mu, rot;
+    int status;
+    wkb_potential pot;
+    wkb_error err = {0};
+    size_t count = 0;
+    double vD = NAN;
+    PyArrayObject *energy = NULL, *jac = NULL, *dvD = NULL;
+
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOdd", kwlist, &model_name, &params_obj, &curve_obj, &mu, &rot))
+        return NULL;
+    if (parse_potential(model_name, params_obj, curve_obj, &pot) < 0)
+        return NULL;
+    const size_t np = pot.model->n_params;
+    wkb_settings levels = wkb_default_settings();
+    /* first the number of bound levels, then the levels */
+    Py_BEGIN_ALLOW_THREADS
+    status = wkb_fit_levels(&pot, mu, rot, &levels, 0, NULL, NULL, &count, &vD, NULL, &err);
+    Py_END_ALLOW_THREADS
+    if (status) {
+        raise_status(&err);
+        return NULL;
+    }
+    npy_intp dims[2] = {(npy_intp)count, (npy_intp)np};
+    if (!(energy = new_vector(dims[0])) || !(jac = (PyArrayObject *)PyArray_ZEROS(2, dims, NPY_DOUBLE, 0)) ||
+        !(dvD = new_vector((npy_intp)np)))
+        goto cleanup;
+    {
+        double *pe = PyArray_DATA(energy), *pj = PyArray_DATA(jac), *pd = PyArray_DATA(dvD);
+        size_t count2 = 0;
+        Py_BEGIN_ALLOW_THREADS
+        status = wkb_fit_levels(&pot, mu, rot, &levels, count, pe, pj, &count2, &vD, pd, &err);
+        Py_END_ALLOW_THREADS
+        if (!status && count2 != count)
+            status = wkb_fail(&err, WKB_ENUMERIC, "the number of bound levels changed between two identical calls");
+    }
+    if (status) {
+        raise_status(&err);
+        goto cleanup;
+    }
+    if (!(result = PyDict_New()))
+        goto cleanup;
+    if (PyDict_SetItemString(result, "energy", (PyObject *)energy) < 0 ||
+        PyDict_SetItemString(result, "jacobian", (PyObject *)jac) < 0 ||
+        PyDict_SetItemString(result, "dvD_dp", (PyObject *)dvD) < 0 ||
+        dict_steal(result, "vD", PyFloat_FromDouble(vD)) < 0 ||
+        dict_steal(result, "asymptote", PyFloat_FromDouble(wkb_potential_asymptote(&pot))) < 0)
+        Py_CLEAR(result);
+cleanup:
+    Py_XDECREF(energy);
+    Py_XDECREF(jac);
+    Py_XDECREF(dvD);
+    return result;
+}
+
 /* ---------------------------------------------------------------- module */
 
 static PyMethodDef core_methods[] = {
@@ -534,6 +815,17 @@ static PyMethodDef core_methods[] = {
     {"wkb_orbits", (PyCFunction)(void (*)(void))py_wkb_orbits, METH_VARARGS | METH_KEYWORDS,
      "wkb_orbits(model, params, curve, mu, rot, binding) -> dict of arrays: action (integral k dr), "
      "half_period (d action/dE, 1/cm-1), inner/outer turning points, Bv; at binding energies asymptote - E"},
+    {"fit_evaluate", (PyCFunction)(void (*)(void))py_fit_evaluate, METH_VARARGS | METH_KEYWORDS,
+     "fit_evaluate(model, params, curve, v, rot, mu, energy_zero=0) -> (calc, jacobian[n, n_params]): the\n"
+     "fit's model levels (energy_zero 0 minimum, 1 asymptote, 2 lowest) and d calc/d p"},
+    {"fit_run", (PyCFunction)(void (*)(void))py_fit_run, METH_VARARGS | METH_KEYWORDS,
+     "fit_run(model, params, curve, v, rot, mu, energy, sigma, energy_zero, vary, lower, upper,\n"
+     "max_iterations=-1, xtol, gtol, decrease_tol) -> dict (params, calc, jacobian, chi_square, iterations,\n"
+     "n_eval, n_infeasible, stop, test, predicted_decrease, last_infeasible); a failure at the start raises\n"
+     "ValueError(message, row index)"},
+    {"fit_levels", (PyCFunction)(void (*)(void))py_fit_levels, METH_VARARGS | METH_KEYWORDS,
+     "fit_levels(model, params, curve, mu, rot) -> dict (energy, jacobian[count, n_params], vD, dvD_dp,\n"
+     "asymptote): every bound WKB level with its parameter gradient"},
     {NULL, NULL, 0, NULL},
 };
 

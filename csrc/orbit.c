@@ -28,12 +28,13 @@
 
 #define END_PIECE_LOG_LENGTH 1.0   /* length in ln r of the piece next to the outer turning point */
 #define MIDDLE_PIECE_LOG_LENGTH 1.5
+#define COMPACT_LOG_LENGTH 0.5 /* orbits with r2 < 1.65 r_b use a linear map on the outer side */
 #define THRESHOLD_TAIL_LOG_START 3.0 /* the tail piece starts at r_b e^3 */
 
 wkb_settings wkb_default_settings(void)
 {
     wkb_settings s;
-    s.nodes = 40;
+    s.nodes = 32;
     s.energy_tol = 1e-11;
     s.max_newton = 60;
     s.scan_points = 400;
@@ -86,11 +87,13 @@ void wkb_well_free(wkb_well *w)
 static void effective(const wkb_well *w, double r, wkb_pot_value *pv)
 {
     wkb_potential_eval(&w->pot, r, pv);
-    const double c = w->eps * w->rot / (r * r);
-    pv->V += c;
-    pv->depth -= c;
-    pv->dV -= 2 * c / r;
-    pv->d2V += 6 * c / (r * r);
+    if (w->rot != 0) {
+        const double ir = 1 / r, c = w->eps * w->rot * ir * ir;
+        pv->V += c;
+        pv->depth -= c;
+        pv->dV -= 2 * c * ir;
+        pv->d2V += 6 * c * ir * ir;
+    }
 }
 
 /* The kinetic term E - V_J(r), in the form without cancellation for this energy. */
@@ -163,6 +166,7 @@ int wkb_well_set(wkb_well *w, const wkb_potential *pot, double mu, double rot, i
                  int maslov_out, wkb_error *err)
 {
     w->ready = 0;
+    w->have_last_tp = 0;
     w->vD_status = -1;
     w->count = 0;
     if (!(isfinite(mu) && mu > 0))
@@ -266,12 +270,40 @@ static size_t branch_end(const wkb_well *w, int right)
     return j;
 }
 
+/* Newton from the last orbit's turning point, kept inside the monotone branch (lo, hi);
+   returns 1 on convergence. Consecutive orbits of a level search are close, so this
+   usually takes 2-3 steps instead of a search over the scan. */
+static int warm_turning_point(const wkb_well *w, const energy_point *e, double r, double lo, double hi,
+                              double *r_tp)
+{
+    wkb_pot_value pv;
+    for (int it = 0; it < 8; it++) {
+        const double g = kinetic(w, e, r, &pv);
+        const double rn = r + g / pv.dV;
+        if (!(rn > lo && rn < hi))
+            return 0;
+        const double dr = fabs(rn - r);
+        r = rn;
+        if (dr <= 4 * GSL_DBL_EPSILON * r) {
+            *r_tp = r;
+            return 1;
+        }
+    }
+    return 0;
+}
+
 static int find_turning_point(const wkb_well *w, const energy_point *e, int right, double *r_tp,
                               wkb_error *err)
 {
     wkb_pot_value pv;
     const size_t j = branch_end(w, right);
     double lo, hi;
+    if (w->have_last_tp) {
+        const double branch_lo = right ? w->r_bottom : (j == 0 ? 0.0 : w->scan_r[j]);
+        const double branch_hi = right ? (j == w->n_scan - 1 ? INFINITY : w->scan_r[j]) : w->r_bottom;
+        if (warm_turning_point(w, e, w->last_tp[right], branch_lo, branch_hi, r_tp))
+            return WKB_SUCCESS;
+    }
     if (kinetic(w, e, w->scan_r[j], &pv) <= 0) {
         /* bisection over the monotone branch between the bottom and scan point j */
         size_t in = w->i_bottom, out = j; /* kinetic > 0 at 'in' side (bottom), <= 0 at 'out' */
@@ -339,9 +371,9 @@ static void add_node(wkb_well *w, const energy_point *e, double r, double weight
     const double sk = sqrt(kin);
     s->action += weight * sk;
     if (s->want_period) {
-        const double f = weight / sk;
+        const double f = weight / sk, ir = 1 / r;
         s->inv_k += f;
-        s->inv_k_r2 += f / (r * r);
+        s->inv_k_r2 += f * ir * ir;
         if (s->want_dVdp) {
             const size_t np = w->pot.model->n_params;
             w->pot.model->param_derivs(&w->pot, r, w->dVdp);
@@ -358,6 +390,16 @@ static void piece_inner(wkb_well *w, const energy_point *e, double r1, double rb
     for (size_t i = 0; i < w->set.nodes; i++) {
         const double x = w->gl_x[i];
         add_node(w, e, r1 + L * x * x, w->gl_w[i] * 2 * L * x, s);
+    }
+}
+
+/* [rb, r2] with r = r2 - (r2 - rb) s^2, for compact orbits (saves an exp per node) */
+static void piece_outer_linear(wkb_well *w, const energy_point *e, double rb, double r2, sums *s)
+{
+    const double L = r2 - rb;
+    for (size_t i = 0; i < w->set.nodes; i++) {
+        const double x = w->gl_x[i];
+        add_node(w, e, r2 - L * x * x, w->gl_w[i] * 2 * L * x, s);
     }
 }
 
@@ -426,6 +468,11 @@ int wkb_orbit_at(wkb_well *w, double binding, wkb_orbit *orbit, double *avg_dVdp
     if (!infinite && (status = find_turning_point(w, &e, 1, &r2, err)))
         return status;
 
+    w->last_tp[0] = r1;
+    if (!infinite) {
+        w->last_tp[1] = r2;
+        w->have_last_tp = 1;
+    }
     const double rb = GSL_MIN(GSL_MAX(w->r_bottom, r1), r2);
     sums s;
     memset(&s, 0, sizeof s);
@@ -444,9 +491,11 @@ int wkb_orbit_at(wkb_well *w, double binding, wkb_orbit *orbit, double *avg_dVdp
         piece_tail(w, &e, exp(yb + THRESHOLD_TAIL_LOG_START), q, &s);
     } else {
         const double y2 = log(r2), Y = y2 - yb;
-        if (Y <= END_PIECE_LOG_LENGTH) {
+        if (Y <= COMPACT_LOG_LENGTH) {
             if (Y > 0)
-                piece_outer_end(w, &e, y2, Y, &s);
+                piece_outer_linear(w, &e, rb, r2, &s);
+        } else if (Y <= END_PIECE_LOG_LENGTH) {
+            piece_outer_end(w, &e, y2, Y, &s);
         } else {
             pieces_log(w, &e, yb, y2 - END_PIECE_LOG_LENGTH, &s);
             piece_outer_end(w, &e, y2, END_PIECE_LOG_LENGTH, &s);

@@ -14,11 +14,20 @@
 
 extern const wkb_model wkb_model_pointwise; /* defined in pointwise.c */
 
-/* s^e, exact and fast for the small integer exponents that Lennard-Jones forms use. */
+/* s^e, exact and fast (repeated squaring) for the small integer exponents that Lennard-Jones forms use. */
 static double power(double s, double e)
 {
-    if (e == floor(e) && fabs(e) <= 64)
-        return gsl_pow_int(s, (int)e);
+    if (e == floor(e) && e >= 0 && e <= 64) {
+        unsigned k = (unsigned)e;
+        double result = 1;
+        while (k) {
+            if (k & 1)
+                result *= s;
+            s *= s;
+            k >>= 1;
+        }
+        return result;
+    }
     return pow(s, e);
 }
 
@@ -100,11 +109,12 @@ static int lj_check(const double *p, wkb_error *err)
 static void lj_eval(const wkb_potential *pot, double r, wkb_pot_value *out)
 {
     const double De = pot->p[0], re = pot->p[1], n = pot->p[2], m = pot->p[3];
-    const double s = re / r, sn = power(s, n), sm = power(s, m), c = De / (n - m);
+    const double ir = 1 / r, s = re * ir, sm = power(s, m), sn = n == 2 * m ? sm * sm : power(s, n);
+    const double c = De / (n - m);
     out->V = c * ((n - m) + m * sn - n * sm);
     out->depth = c * (n * sm - m * sn);
-    out->dV = -c * n * m * (sn - sm) / r;
-    out->d2V = c * n * m * ((n + 1) * sn - (m + 1) * sm) / (r * r);
+    out->dV = -c * n * m * (sn - sm) * ir;
+    out->d2V = c * n * m * ((n + 1) * sn - (m + 1) * sm) * ir * ir;
 }
 
 static void lj_param_derivs(const wkb_potential *pot, double r, double *dVdp)

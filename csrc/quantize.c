@@ -120,6 +120,7 @@ static int solve_level(wkb_well *w, size_t v, wkb_level *level, double *avg_dVdp
     const double target = M_PI * ((double)v + w->phase);
     const double w_bottom = pow(w->top - w->bottom, alpha);
     const double tol = w->set.energy_tol + 4e-14 * (w->top - w->bottom);
+    const double floor_error = 1e-14 * (w->top - w->bottom); /* from the action's relative accuracy */
     double lo = 0, hi = w_bottom; /* F(lo) > 0 (threshold side), F(hi) < 0 (bottom side) */
     if (v >= 1 && w->cache_ok[v - 1])
         hi = GSL_MIN(hi, w->cache_w[v - 1]);
@@ -129,8 +130,15 @@ static int solve_level(wkb_well *w, size_t v, wkb_level *level, double *avg_dVdp
     if (!(wg > lo && wg < hi))
         wg = 0.5 * (lo + hi);
 
+    /* F''(w), first from the neighbouring levels, then from the iterates: it predicts the error
+       left after a Newton step, (F''/2F') dw^2, so that a level whose first step already lands
+       within the tolerance needs no further orbit */
+    double curvature = NAN;
+    if (v >= 2 && w->cache_ok[v - 1] && w->cache_ok[v - 2])
+        curvature = (1 / w->cache_slope[v - 1] - 1 / w->cache_slope[v - 2]) / (w->cache_w[v - 1] - w->cache_w[v - 2]);
     wkb_orbit o = {0};
-    double b = pow(wg, 1 / alpha), bn = b, dE = INFINITY, slope = NAN;
+    double b = pow(wg, 1 / alpha), bn = b, dE = INFINITY, slope = NAN, error = INFINITY;
+    double prev_w = NAN, prev_dF = NAN;
     int converged = 0;
     for (int it = 0; it < w->set.max_newton; it++) {
         b = pow(wg, 1 / alpha);
@@ -140,25 +148,40 @@ static int solve_level(wkb_well *w, size_t v, wkb_level *level, double *avg_dVdp
         const double F = o.action - target;
         const double dFdw = -o.half_period * pow(b, 1 - alpha) / alpha;
         slope = 1 / dFdw;
+        if (it > 0 && fabs(wg - prev_w) > 1e-6 * wg)
+            curvature = (dFdw - prev_dF) / (wg - prev_w);
+        prev_w = wg;
+        prev_dF = dFdw;
         if (F > 0)
             lo = wg;
         else
             hi = wg;
         double wn = wg - F / dFdw;
-        if (!(wn >= lo && wn <= hi)) /* Newton left the bracket: bisect */
+        int newton = 1;
+        if (!(wn >= lo && wn <= hi)) { /* Newton left the bracket: bisect */
             wn = 0.5 * (lo + hi);
+            newton = 0;
+        }
         bn = pow(wn, 1 / alpha);
         dE = fabs(bn - b);
+        const double db_dw = pow(wn, 1 / alpha - 1) / alpha;
+        const double predicted = fabs(curvature / (2 * dFdw)) * (wn - wg) * (wn - wg) * db_dw;
         wg = wn;
         if (dE <= tol) {
             converged = 1;
+            error = dE + floor_error;
+            break;
+        }
+        if (newton && 10 * predicted <= tol) {
+            converged = 1;
+            error = 10 * predicted + floor_error;
             break;
         }
     }
     level->v = (double)v;
     level->binding = bn;
     level->energy = w->top - bn;
-    level->error = dE;
+    level->error = converged ? error : dE;
     level->r_inner = o.r_inner;
     level->r_outer = o.r_outer;
     level->dEdv = M_PI / o.half_period;

@@ -19,6 +19,9 @@ struct wkb_well {
     size_t ext[MAX_EXTREMA]; /* indices of local extrema of the scan, increasing */
     double *gl_x, *gl_w;     /* Gauss-Legendre nodes and weights on [0, 1] */
     double dVdp[WKB_MAX_PARAMS];
+    /* turning points of the last orbit: Newton starts there for the next one */
+    double last_tp[2];
+    int have_last_tp;
     /* level cache, used by quantize.c */
     double vD;
     int vD_status;

@@ -98,13 +98,21 @@ static inline double wkb_potential_asymptote(const wkb_potential *pot)
 }
 
 /* ------------------------------------------------------------- pointwise.c */
-/* Builds a point-wise potential from n points (r strictly increasing, all finite):
-   a cubic spline inside, an exponential inner wall A + B exp(-C r) through the three
-   innermost points, and an outer tail D - C_n/r^n; D (asymptote) and n (tail_power)
-   are used when finite and fitted to the outermost points otherwise. Joins are
-   continuous to the second derivative. */
+/* Builds a point-wise potential from n >= 5 points r (angstrom, > 0, strictly
+   increasing) and V (cm-1, any zero), all finite; the inputs are copied, not kept.
+   Inside [r_0, r_{n-1}]: the not-a-knot cubic spline through the points. Outside: an
+   exponential inner wall A + B exp(-C r) through the three innermost points (which must
+   fall with r and curve upwards), and an outer tail D - C_n/r^n with C_n > 0. D
+   (asymptote, cm-1) and n (tail_power, 0 < n <= 64) are used when not NaN; unknowns are
+   fitted exactly to the outermost points (both: last three, one: last two), a fitted n
+   must lie in [1, 20]. Joins are C2: over one interval outside the data range the
+   continued end cubic is blended into the extrapolation with a quintic smoothstep.
+   *out receives the curve (free with wkb_pointwise_free), immutable and safe to share
+   between threads. Status: WKB_SUCCESS; WKB_EINVAL with a message naming the bad
+   point or the failed fit (and what to give instead); WKB_ENOMEM; WKB_ENOCONV. */
 int wkb_pointwise_alloc(const double *r, const double *V, size_t n, double asymptote,
                         double tail_power, wkb_pointwise **out, wkb_error *err);
+/* Frees a curve; accepts NULL. */
 void wkb_pointwise_free(wkb_pointwise *curve);
 /* The fitted or given tail: asymptote D, power n, coefficient C_n (V = D - C_n/r^n). */
 void wkb_pointwise_tail(const wkb_pointwise *curve, double *asymptote, double *power,
@@ -210,5 +218,105 @@ int wkb_level_at(wkb_well *w, int v, wkb_level *level, double *avg_dVdp, wkb_err
    of bound levels (may exceed capacity, then only capacity are filled). */
 int wkb_all_levels(wkb_well *w, wkb_level *levels, size_t capacity, size_t *count,
                    double *vD, wkb_error *err);
+
+/* ---------------------------------------------------------------- fit.c */
+/* Weighted least-squares fits of a potential's parameters to measured levels: GSL's
+   trust-region Levenberg-Marquardt (gsl_multifit_nlinear, trs_lm, More scaling, QR) on
+   f_i = (calc_i - obs_i)/sigma_i with the analytic Jacobian dE_v/dp_k = <dV/dp_k>
+   (Hellmann-Feynman applied to the quantization condition). Bounded parameters are
+   fitted through smooth transforms: logistic for two bounds, lo + exp(u) or hi - exp(u)
+   for one. */
+
+/* What the observed energies are measured from. */
+enum wkb_energy_zero {
+    WKB_ZERO_MINIMUM = 0,   /* calc = E_v (term value in the potential's zero) */
+    WKB_ZERO_ASYMPTOTE = 1, /* calc = asymptote - E_v (binding energy) */
+    WKB_ZERO_LOWEST = 2     /* calc = E_v - E_(v=0,J=0) of the same reduced mass */
+};
+
+/* The levels of a fit: n rows, arrays not owned and never modified. energy and sigma
+   may be NULL for a model evaluation without data. */
+typedef struct {
+    size_t n;
+    const int *v;
+    const double *rot;    /* J(J+1) */
+    const double *mu;     /* reduced mass of the row's isotopologue, u */
+    const double *energy; /* observed energy, cm-1, in the zero energy_zero */
+    const double *sigma;  /* one-sigma uncertainty, cm-1, > 0 */
+    int energy_zero;      /* enum wkb_energy_zero */
+} wkb_fit_data;
+
+/* A source of levels other than first-order WKB (such as the exact solver): prepared once
+   per (potential, mu, J(J+1)), then asked for E_v and dE_v/dp_k in ascending v. */
+typedef struct {
+    void *ctx;
+    int (*set)(void *ctx, const wkb_potential *pot, double mu, double rot, wkb_error *err);
+    int (*level)(void *ctx, int v, double *energy, double *dEdp, wkb_error *err);
+} wkb_level_source;
+
+/* Model evaluation workspace: the data grouped by (mu, J(J+1)) in ascending v, and one
+   WKB well workspace (source NULL) so that nothing is allocated per evaluation. */
+typedef struct wkb_fit_evaluator wkb_fit_evaluator;
+wkb_fit_evaluator *wkb_fit_evaluator_alloc(const wkb_fit_data *data, const wkb_settings *levels,
+                                           const wkb_level_source *source, wkb_error *err);
+void wkb_fit_evaluator_free(wkb_fit_evaluator *ev);
+/* calc[n] (cm-1, in the data's energy zero) and, if jac is not NULL, jac[n][n_params] =
+   d calc_i / d p_k for every model parameter. *bad_row (may be NULL) names the row being
+   computed when a level fails. Status: that of the failing level (WKB_ENOLEVEL when the
+   potential does not bind it), WKB_ENUMERIC for a non-finite result. */
+int wkb_fit_evaluate(wkb_fit_evaluator *ev, const wkb_potential *pot, double *calc, double *jac,
+                     size_t *bad_row, wkb_error *err);
+
+/* Which parameters vary, and their bounds (+-INFINITY for none); indexed like the model's
+   parameters. A varied parameter must start strictly inside its bounds. */
+typedef struct {
+    int vary[WKB_MAX_PARAMS];
+    double lower[WKB_MAX_PARAMS], upper[WKB_MAX_PARAMS];
+} wkb_fit_spec;
+
+typedef struct {
+    size_t max_iterations; /* solver iterations (each one accepted step) */
+    double xtol, gtol;     /* GSL's step and gradient tests (gsl_multifit_nlinear_test) */
+    double decrease_tol;   /* converged only when the Gauss-Newton step promises a chi-square
+                              decrease below decrease_tol * max(1, chi-square) */
+    wkb_settings levels;
+} wkb_fit_settings;
+wkb_fit_settings wkb_fit_default_settings(void);
+
+enum wkb_fit_stop { WKB_FIT_CONVERGED = 0, WKB_FIT_MAX_ITERATIONS = 1, WKB_FIT_NO_PROGRESS = 2 };
+/* "converged", "max_iterations", "no_progress". */
+const char *wkb_fit_stop_name(int stop);
+
+typedef struct {
+    double params[WKB_MAX_PARAMS]; /* the best (last accepted) point, all parameters */
+    double chi_square;             /* sum of squared weighted residuals there */
+    double predicted_decrease;     /* Gauss-Newton chi-square decrease still promised; -1 if singular */
+    size_t iterations, n_eval, n_infeasible; /* solver iterations, model evaluations, rejected
+                                                trial points outside the model's domain */
+    size_t bad_row;                /* row that failed at the start ((size_t)-1 if none) */
+    int stop;                      /* enum wkb_fit_stop */
+    int test;                      /* GSL test that passed: 1 step, 2 gradient; 4 no decrease possible */
+    int insensitive[WKB_MAX_PARAMS]; /* varied parameters held fixed because no level depends on
+                                        them at the start (relative sensitivity below WKB_FIT_INSENSITIVE) */
+    wkb_error last_infeasible;     /* why the last infeasible trial point was rejected */
+} wkb_fit_outcome;
+/* ||d f/d ln p_k|| below this fraction of the largest: the levels do not depend on p_k */
+#define WKB_FIT_INSENSITIVE 1e-9
+
+/* Fits start's parameters to data. calc[n] and jac[n][n_params] (caller-owned) receive the
+   model and its derivatives at the returned point. Returns WKB_SUCCESS whenever a best
+   point exists, converged or not (see out->stop); an error status when the input is
+   invalid or the starting potential cannot compute a level (out->bad_row names it). */
+int wkb_fit_run(const wkb_potential *start, const wkb_fit_data *data, const wkb_fit_spec *spec,
+                const wkb_fit_settings *settings, const wkb_level_source *source,
+                wkb_fit_outcome *out, double *calc, double *jac, wkb_error *err);
+
+/* Every bound WKB level of (pot, mu, J(J+1) = rot) with its parameter gradient, for
+   predictions: energy[capacity], dEdp[capacity][n_params]; *count = number of bound levels
+   (only min(count, capacity) are filled); vD and dvDdp[n_params] (central differences
+   of the action at the asymptote; NaN where a perturbed potential is invalid). */
+int wkb_fit_levels(const wkb_potential *pot, double mu, double rot, const wkb_settings *settings,
+                   size_t capacity, double *energy, double *dEdp, size_t *count, double *vD,
+                   double *dvDdp, wkb_error *err);
 
 #endif

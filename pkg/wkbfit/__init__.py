@@ -3,8 +3,10 @@
 Units: energies in cm-1, distances in angstrom, masses in u.
 """
 from ._core import HBAR2_OVER_2U, GSL_VERSION
-from .masses import reduced_mass, isotope_mass, parse_isotopologue
+from .masses import reduced_mass, isotope_mass, isotope_info, parse_isotopologue, as_reduced_mass
 from .potentials import Potential, Morse, LennardJones, PoschlTeller, PointwisePotential
 from .levels import LevelTable, levels
+from .observed import ObservedLevels, read_levels
+from .fitting import fit, FitResult
 
 __version__ = "0.1.0"

@@ -9,6 +9,9 @@ import numpy as np
 
 from . import _core
 
+#: model name -> parameter names, from the core's model table (read once)
+MODEL_PARAMETERS = _core.models()
+
 __all__ = ["Potential", "Morse", "LennardJones", "PoschlTeller", "PointwisePotential"]
 
 
@@ -54,7 +57,7 @@ class Potential:
     # -- description -------------------------------------------------------------------
     @property
     def param_names(self):
-        return _core.models()[self.model]
+        return MODEL_PARAMETERS[self.model]
 
     @property
     def params(self):
@@ -151,18 +154,29 @@ class PoschlTeller(Potential):
 class PointwisePotential(Potential):
     """A potential known at points (r in angstrom, V in cm-1, in the user's own energy zero).
 
-    A cubic spline joins the points; below the first point an exponential wall
+    Inside the data range a cubic spline with not-a-knot end conditions joins the points
+    (it interpolates every point). Below the first point an exponential wall
     A + B exp(-C r) through the three innermost points continues it, and beyond the last
     point an inverse-power tail D - C_n/r^n. The asymptote D and the power n are used
-    when given and otherwise fitted to the outermost points (see `tail`). The joins are
-    continuous to the second derivative.
+    when given and otherwise fitted exactly to the outermost points (D and n unknown: the
+    last three points; one unknown: the last two; none: the last point); `tail` reports
+    the result. Each join is continuous to the second derivative: over one interval
+    outside the data range (width r[1] - r[0], at most r[0]/2, on the wall side;
+    r[-1] - r[-2] on the tail side) the continued end cubic of the spline is blended into
+    the extrapolation with a quintic smoothstep weight.
+
+    At least 5 points are needed; r must be > 0 and strictly increasing, and the first
+    three points must lie on the repulsive wall (V falling with r and curving upwards). The arrays given are copied.
     """
 
     model = "pointwise"
 
     def __init__(self, r, V, asymptote=None, tail_power=None):
-        r = np.array(r, dtype=float, copy=True)
-        V = np.array(V, dtype=float, copy=True)
+        try:
+            r = np.array(r, dtype=float, copy=True)
+            V = np.array(V, dtype=float, copy=True)
+        except (TypeError, ValueError) as exc:
+            raise ValueError("r (angstrom) and V (cm-1) must be arrays of numbers: %s" % exc) from None
         if r.ndim != 1 or V.ndim != 1 or r.shape != V.shape:
             raise ValueError("r and V must be 1-D arrays of the same length; got shapes %s and %s"
                              % (r.shape, V.shape))

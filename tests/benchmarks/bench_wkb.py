@@ -1,0 +1,122 @@
+"""Benchmark: every bound WKB level of a Morse and a Lennard-Jones potential.
+
+Prints, from one run: microseconds per level for wkbfit, the same levels from a SciPy baseline
+written as a careful user would (scipy.optimize.brentq for the turning points and the energies,
+scipy.integrate.quad for the action) at matched accuracy, their ratio, and the throughput of
+two threads against one (the core releases the GIL).
+
+Targets (issue 2): <= 5 us per level on one core; >= 1000x the SciPy baseline; >= 1.8x with
+two threads on two cores.  Run: python3 tests/benchmarks/bench_wkb.py
+"""
+import math
+import os
+import sys
+import threading
+import time
+
+import numpy as np
+from scipy.integrate import quad
+from scipy.optimize import brentq
+
+sys.path.insert(0, os.path.join(os.path.dirname(__file__), "..", "..", "pkg"))
+import wkbfit  # noqa: E402
+
+
+def scipy_levels(pot, mu, tol=1e-10):
+    """All bound first-order WKB levels with SciPy root finding and adaptive quadrature."""
+    eps = wkbfit.HBAR2_OVER_2U / mu
+    De, re = pot.params["De"], pot.params["re"]
+    if pot.model == "morse":
+        a = pot.params["a"]
+
+        def V(r):
+            return De * (1 - math.exp(-a * (r - re))) ** 2
+    else:
+        def V(r):
+            s6 = (re / r) ** 6
+            return De * (1 + s6 * s6 - 2 * s6)
+
+    def turning_points(E):
+        r1 = brentq(lambda r: V(r) - E, re * 0.05 if pot.model == "morse" else re * 0.5, re, xtol=1e-14, rtol=1e-15)
+        hi = re * 2
+        while V(hi) < E:
+            hi *= 2
+        r2 = brentq(lambda r: V(r) - E, re, hi, xtol=1e-14, rtol=1e-15)
+        return r1, r2
+
+    def action(E):
+        r1, r2 = turning_points(E)
+        val, _ = quad(lambda r: np.sqrt(max(E - V(r), 0.0) / eps), r1, r2, epsabs=0, epsrel=1e-12, limit=200)
+        return val
+
+    def action_top():
+        r1 = turning_points(De * (1 - 1e-12))[0]
+        val, _ = quad(lambda r: np.sqrt(max(De - V(r), 0.0) / eps), r1, np.inf, epsabs=0, epsrel=1e-12, limit=400)
+        return val
+
+    vD = action_top() / np.pi - 0.5
+    out = []
+    lo = 0.0
+    for v in range(int(np.ceil(vD))):
+        target = np.pi * (v + 0.5)
+        E = brentq(lambda E: action(E) - target, lo + 1e-9 * De, De * (1 - 1e-13), xtol=tol, rtol=1e-15)
+        out.append(E)
+        lo = E
+    return np.array(out)
+
+
+def time_call(fn, min_time=0.5):
+    n, t0 = 0, time.perf_counter()
+    while True:
+        fn()
+        n += 1
+        dt = time.perf_counter() - t0
+        if dt >= min_time:
+            return dt / n
+
+
+def main():
+    cases = [
+        ("Morse, H35Cl-like (we=2990.946, wexe=52.8186)",
+         wkbfit.Morse(De=2990.946 ** 2 / (4 * 52.8186), re=1.27455,
+                      a=np.sqrt(52.8186 * 0.979592539 / wkbfit.HBAR2_OVER_2U)), 0.979592539),
+        ("Lennard-Jones (12,6), De=4000 cm-1, re=4 A, mu=20 u", wkbfit.LennardJones(De=4000.0, re=4.0), 20.0),
+    ]
+    print("WKB all-levels benchmark (one process; times per level)")
+    for name, pot, mu in cases:
+        table = wkbfit.levels(pot, mu)
+        n = len(table)
+        t_core = time_call(lambda: wkbfit.levels(pot, mu))
+        t0 = time.perf_counter()
+        ref = scipy_levels(pot, mu)
+        t_scipy = time.perf_counter() - t0
+        diff = np.max(np.abs(ref - table.energy[: len(ref)]))
+        print("\n%s: %d levels" % (name, n))
+        print("  wkbfit.levels     : %9.2f us/level" % (t_core / n * 1e6))
+        print("  SciPy brentq+quad : %9.2f us/level   (max |E_scipy - E_wkbfit| = %.2e cm-1)"
+              % (t_scipy / len(ref) * 1e6, diff))
+        print("  speed-up          : %9.0fx" % ((t_scipy / len(ref)) / (t_core / n)))
+
+    # two threads against one: the same total work
+    pot, mu = cases[1][1], cases[1][2]
+    reps = 200
+
+    def work(k):
+        for _ in range(k):
+            wkbfit.levels(pot, mu)
+
+    t0 = time.perf_counter()
+    work(2 * reps)
+    t_one = time.perf_counter() - t0
+    threads = [threading.Thread(target=work, args=(reps,)) for _ in range(2)]
+    t0 = time.perf_counter()
+    for t in threads:
+        t.start()
+    for t in threads:
+        t.join()
+    t_two = time.perf_counter() - t0
+    print("\nthroughput, two threads / one thread (%d cores): %.2fx" % (os.cpu_count(), t_one / t_two))
+
+
+if __name__ == "__main__":
+    main()
