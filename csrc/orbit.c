@@ -218,6 +218,12 @@ int wkb_well_set(wkb_well *w, const wkb_potential *pot, double mu, double rot, i
         w->r_bottom = rb;
         w->bottom = pv.V;
     }
+    {
+        double inner_top = w->scan_V[0];
+        for (size_t i = 1; i < imin; i++)
+            inner_top = GSL_MAX(inner_top, w->scan_V[i]);
+        w->bound_top = GSL_MIN(w->top, inner_top);
+    }
     /* local extrema (for detecting extra wells and barriers) */
     w->n_ext = 0;
     for (size_t i = 1; i + 1 < n; i++) {

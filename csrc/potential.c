@@ -178,7 +178,8 @@ static void pt_param_derivs(const wkb_potential *pot, double r, double *dVdp)
 static double pt_inner_scan(const wkb_potential *pot)
 {
     const double re = pot->p[1], a = pot->p[2];
-    return GSL_MAX(re - 20 / a, 1e-3 * re);
+    /* tanh^2(12) = 1 - 1.5e-10: still below the asymptote in double precision */
+    return GSL_MAX(re - 12 / a, 1e-3 * re);
 }
 
 const wkb_model wkb_model_poschl_teller = {

@@ -17,7 +17,8 @@
 #include "wkb.h"
 #include "well.h"
 
-#define MAX_LEVELS 1000000
+#define MAX_LEVELS 100000000
+#define CACHE_LIMIT 1000000 /* solved levels remembered for first guesses */
 
 static double w_exponent(const wkb_well *w)
 {
@@ -39,9 +40,9 @@ static int prepare(wkb_well *w, wkb_error *err)
     w->vD = NAN;
     w->vD_err.status = 0;
     w->vD_err.message[0] = 0;
-    if (w->bottom < w->top) {
+    if (w->bottom < w->bound_top) {
         wkb_orbit o;
-        int status = wkb_orbit_at(w, 0.0, &o, NULL, &w->vD_err);
+        int status = wkb_orbit_at(w, w->top - w->bound_top, &o, NULL, &w->vD_err);
         if (status) {
             w->vD_status = status;
             if (err)
@@ -58,22 +59,23 @@ static int prepare(wkb_well *w, wkb_error *err)
         }
         w->count = w->vD > 0 ? (size_t)ceil(w->vD) : 0;
     }
-    if (w->count > w->cache_size) {
-        double *cw = realloc(w->cache_w, w->count * sizeof(double));
+    const size_t want = GSL_MIN(w->count, CACHE_LIMIT);
+    if (want > w->cache_size) {
+        double *cw = realloc(w->cache_w, want * sizeof(double));
         if (cw)
             w->cache_w = cw;
-        double *cs = realloc(w->cache_slope, w->count * sizeof(double));
+        double *cs = realloc(w->cache_slope, want * sizeof(double));
         if (cs)
             w->cache_slope = cs;
-        char *ok = realloc(w->cache_ok, w->count);
+        char *ok = realloc(w->cache_ok, want);
         if (ok)
             w->cache_ok = ok;
         if (!cw || !cs || !ok)
-            return wkb_fail(err, WKB_ENOMEM, "out of memory for %zu levels", w->count);
-        w->cache_size = w->count;
+            return wkb_fail(err, WKB_ENOMEM, "out of memory for %zu levels", want);
+        w->cache_size = want;
     }
-    if (w->count)
-        memset(w->cache_ok, 0, w->count);
+    if (w->cache_size)
+        memset(w->cache_ok, 0, w->cache_size);
     w->vD_status = WKB_SUCCESS;
     return WKB_SUCCESS;
 }
@@ -97,18 +99,22 @@ int wkb_v_dissociation(wkb_well *w, double *vD, wkb_error *err)
 
 /* First guess for w of level v from solved neighbours, else from the straight line in w
    between the bottom (I = 0) and the asymptote (I = pi (vD + phase)). */
+static int cached(const wkb_well *w, size_t v)
+{
+    return v < w->cache_size && w->cache_ok[v];
+}
+
 static double first_guess(const wkb_well *w, size_t v, double w_bottom)
 {
     const double h = M_PI;
-    const char *ok = w->cache_ok;
-    if (v >= 2 && ok[v - 1] && ok[v - 2]) {
+    if (v >= 2 && cached(w, v - 1) && cached(w, v - 2)) {
         /* cubic Hermite through (I_{v-2}, w, dw/dI) and (I_{v-1}, ...), evaluated one step on */
         return 5 * w->cache_w[v - 2] + 2 * h * w->cache_slope[v - 2] - 4 * w->cache_w[v - 1] +
                4 * h * w->cache_slope[v - 1];
     }
-    if (v >= 1 && ok[v - 1])
+    if (v >= 1 && cached(w, v - 1))
         return w->cache_w[v - 1] + h * w->cache_slope[v - 1];
-    if (v + 1 < w->count && ok[v + 1])
+    if (cached(w, v + 1))
         return w->cache_w[v + 1] - h * w->cache_slope[v + 1];
     const double I_top = M_PI * (w->vD + w->phase);
     return w_bottom * (1 - M_PI * ((double)v + w->phase) / I_top);
@@ -121,10 +127,11 @@ static int solve_level(wkb_well *w, size_t v, wkb_level *level, double *avg_dVdp
     const double w_bottom = pow(w->top - w->bottom, alpha);
     const double tol = w->set.energy_tol + 4e-14 * (w->top - w->bottom);
     const double floor_error = 1e-14 * (w->top - w->bottom); /* from the action's relative accuracy */
-    double lo = 0, hi = w_bottom; /* F(lo) > 0 (threshold side), F(hi) < 0 (bottom side) */
-    if (v >= 1 && w->cache_ok[v - 1])
+    /* F(lo) > 0 (threshold side), F(hi) < 0 (bottom side) */
+    double lo = pow(w->top - w->bound_top, alpha), hi = w_bottom;
+    if (v >= 1 && cached(w, v - 1))
         hi = GSL_MIN(hi, w->cache_w[v - 1]);
-    if (v + 1 < w->count && w->cache_ok[v + 1])
+    if (cached(w, v + 1))
         lo = GSL_MAX(lo, w->cache_w[v + 1]);
     double wg = first_guess(w, v, w_bottom);
     if (!(wg > lo && wg < hi))
@@ -134,7 +141,7 @@ static int solve_level(wkb_well *w, size_t v, wkb_level *level, double *avg_dVdp
        left after a Newton step, (F''/2F') dw^2, so that a level whose first step already lands
        within the tolerance needs no further orbit */
     double curvature = NAN;
-    if (v >= 2 && w->cache_ok[v - 1] && w->cache_ok[v - 2])
+    if (v >= 2 && cached(w, v - 1) && cached(w, v - 2))
         curvature = (1 / w->cache_slope[v - 1] - 1 / w->cache_slope[v - 2]) / (w->cache_w[v - 1] - w->cache_w[v - 2]);
     wkb_orbit o = {0};
     double b = pow(wg, 1 / alpha), bn = b, dE = INFINITY, slope = NAN, error = INFINITY;
@@ -187,11 +194,12 @@ static int solve_level(wkb_well *w, size_t v, wkb_level *level, double *avg_dVdp
     level->dEdv = M_PI / o.half_period;
     level->Bv = o.Bv;
     level->status = converged ? WKB_SUCCESS : WKB_ENOCONV;
-    if (converged) {
+    if (converged && v < w->cache_size) {
         w->cache_w[v] = wg;
         w->cache_slope[v] = slope;
         w->cache_ok[v] = 1;
-    } else {
+    }
+    if (!converged) {
         wkb_fail(err, WKB_ENOCONV, "level v=%zu did not converge in %d iterations (last change %.3g cm-1)", v,
                  w->set.max_newton, dE);
     }
@@ -209,7 +217,9 @@ static int check_v(const wkb_well *w, long v, wkb_error *err)
                             isnan(w->vD) ? " (the well minimum is above the asymptote)" : "");
         return wkb_fail(err, WKB_ENOLEVEL,
                         "v=%ld is above the last bound level (v=%zu) of this potential: it binds %zu levels "
-                        "(vD = %.6f)", v, w->count - 1, w->count, w->vD);
+                        "(vD = %.6f)%s", v, w->count - 1, w->count, w->vD,
+                        w->bound_top < w->top ? "; levels are counted up to the top of the inner wall, which "
+                                                "is lower than the asymptote" : "");
     }
     return WKB_SUCCESS;
 }

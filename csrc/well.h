@@ -12,6 +12,9 @@ struct wkb_well {
     int ready;
     double eps, rot, phase; /* phase = (maslov_in + maslov_out)/4 */
     double top, bottom, r_bottom;
+    /* highest energy still confined: the asymptote, or the top of the inner wall where that is lower
+       (a Morse curve with a re < ln 2, a Poeschl-Teller well) */
+    double bound_top;
     double tail_power;
     size_t n_scan, i_bottom;
     double *scan_r, *scan_V;

@@ -202,7 +202,8 @@ int wkb_orbit_at(wkb_well *w, double binding, wkb_orbit *orbit, double *avg_dVdp
                  wkb_error *err);
 
 /* ---------------------------------------------------------------- quantize.c */
-/* Non-integer quantum number at the asymptote: action(asymptote)/pi - maslov/4.
+/* Non-integer quantum number at the asymptote: action(asymptote)/pi - maslov/4 (at the top of
+   the inner wall instead, where that is lower than the asymptote).
    NaN (with success) when the well minimum lies above the asymptote. Cached per wkb_well_set. */
 int wkb_v_dissociation(wkb_well *w, double *vD, wkb_error *err);
 /* Number of bound levels (those with v < vD) and vD; either pointer may be NULL. */
@@ -218,6 +219,74 @@ int wkb_level_at(wkb_well *w, int v, wkb_level *level, double *avg_dVdp, wkb_err
    of bound levels (may exceed capacity, then only capacity are filled). */
 int wkb_all_levels(wkb_well *w, wkb_level *levels, size_t capacity, size_t *count,
                    double *vD, wkb_error *err);
+
+/* ---------------------------------------------------------------- radial.c */
+/* The exact radial Schroedinger equation -eps u'' + [V(r) + eps J(J+1)/r^2] u = E u,
+   eps = WKB_HBAR2_OVER_2U/mu, for the bound levels below the asymptote (true J(J+1), no
+   Langer change; u = 0 at both ends of a grid that reaches far into both forbidden
+   regions, or at r = 0 for a soft wall). Method: Numerov's method on a grid uniform in a
+   mapped variable x(r) (Liouville transformation, exact Schwarzian term), in Johnson's
+   renormalized form [J. Chem. Phys. 67, 4086 (1977)] whose pivots count the levels below E
+   (v by node counting), Newton/Cooley energy corrections [Math. Comp. 15, 363 (1961)]
+   safeguarded by the count, and Richardson (Romberg) extrapolation over the steps 4h, 2h, h.
+   Details and formulas at the top of radial.c. */
+typedef struct {
+    double energy_tol;  /* target accuracy of every level, cm-1 (sets the step; default 1e-7) */
+    double phase_step;  /* > 0: phase per fine-grid step, overriding energy_tol (<= 0.5) */
+    double min_binding; /* the grid reaches far enough to converge a level bound by this
+                           much, cm-1 (default 1e-7); weaker levels carry a larger error */
+    double tail_decay;  /* integral of kappa dr kept in each forbidden region (default 25) */
+    size_t max_points;  /* refuse grids of more points than this */
+    int max_iter;       /* energy iterations per level and grid */
+} wkb_radial_settings;
+wkb_radial_settings wkb_radial_default_settings(void);
+
+/* One exact level. */
+typedef struct {
+    int v;                 /* number of nodes */
+    double energy;         /* E, in the potential's zero, cm-1 */
+    double binding;        /* asymptote - E, with full relative precision, cm-1 */
+    double error;          /* estimate of |E - E_converged| (extrapolation + truncation), cm-1 */
+    double r_inner, r_outer; /* outermost classical turning points of V_J at E, angstrom */
+    double dEdv;           /* classical vibrational quantum 2 pi eps / int dr/k at E, cm-1 */
+    double Bv;             /* <v| eps/r^2 |v>, cm-1 */
+    size_t grid_points;    /* fine-grid points spanned by the level */
+} wkb_radial_level;
+
+/* Workspace: allocate once (settings may be NULL for the defaults; NULL on bad settings or
+   no memory), set for each (potential, mu, J), then ask for any levels; nothing is allocated
+   per level. Free accepts NULL. */
+typedef struct wkb_radial wkb_radial;
+wkb_radial *wkb_radial_alloc(const wkb_radial_settings *settings);
+void wkb_radial_free(wkb_radial *w);
+
+/* Builds the grid for pot, reduced mass mu (u) and rot = J(J+1) >= 0, and counts the bound
+   levels. Grows the grid arrays when this problem needs more points than any before.
+   Status: WKB_EINVAL (bad mu, rot, potential, or grid above max_points), WKB_ENOWELL (V_J
+   has no point below the asymptote), WKB_ENUMERIC (non-finite potential), WKB_ENOMEM. */
+int wkb_radial_set(wkb_radial *w, const wkb_potential *pot, double mu, double rot, wkb_error *err);
+/* Number of bound levels (v = 0 .. count-1) of the last set; 0 before a set. */
+size_t wkb_radial_count(const wkb_radial *w);
+/* Fine-grid points of the last set. */
+size_t wkb_radial_grid_size(const wkb_radial *w);
+
+/* Level v: energy, binding, error, turning points, dE/dv, Bv into *level (may be NULL);
+   avg_dVdp (may be NULL) receives <v| dV/dp_k |v> = dE_v/dp_k for the model's n_params
+   parameters. Results are cached until the next set; asking in ascending v is cheapest.
+   Status: WKB_EINVAL (v < 0, no set), WKB_ENOLEVEL (v above the last bound level),
+   WKB_ENOCONV, WKB_ENUMERIC. */
+int wkb_radial_level_at(wkb_radial *w, int v, wkb_radial_level *level, double *avg_dVdp, wkb_error *err);
+/* Levels v = 0 .. min(count, capacity)-1 into levels[]; *count = number of bound levels. */
+int wkb_radial_all_levels(wkb_radial *w, wkb_radial_level *levels, size_t capacity, size_t *count,
+                          wkb_error *err);
+/* Normalized u(r) of level v (int u^2 dr = 1, u > 0 at the inner wall) on the fine grid:
+   *r and *u point into the workspace (n values, u = 0 at both ends) and stay valid until
+   the next call on w. Status as wkb_radial_level_at. */
+int wkb_radial_wavefunction(wkb_radial *w, int v, const double **r, const double **u, size_t *n,
+                            wkb_error *err);
+/* Adapters with the signatures of wkb_level_source (fit.c): ctx is a wkb_radial*. */
+int wkb_radial_source_set(void *ctx, const wkb_potential *pot, double mu, double rot, wkb_error *err);
+int wkb_radial_source_level(void *ctx, int v, double *energy, double *dEdp, wkb_error *err);
 
 /* ---------------------------------------------------------------- fit.c */
 /* Weighted least-squares fits of a potential's parameters to measured levels: GSL's
@@ -295,7 +364,8 @@ typedef struct {
                                                 trial points outside the model's domain */
     size_t bad_row;                /* row that failed at the start ((size_t)-1 if none) */
     int stop;                      /* enum wkb_fit_stop */
-    int test;                      /* GSL test that passed: 1 step, 2 gradient; 4 no decrease possible */
+    int test;                      /* why converged: 1 small step, 2 small gradient (GSL tests, used when
+                                      J^T J is singular), 3 Newton decrement, 4 no decrease possible */
     int insensitive[WKB_MAX_PARAMS]; /* varied parameters held fixed because no level depends on
                                         them at the start (relative sensitivity below WKB_FIT_INSENSITIVE) */
     wkb_error last_infeasible;     /* why the last infeasible trial point was rejected */
