@@ -280,7 +280,7 @@ def test_rotation_hellmann_feynman_and_langer():
     assert not np.allclose((t1.energy - t0.energy) / 2, t0.Bv, rtol=2e-5)   # the Dv term is resolved
     tl = wkbfit.levels(pot, mu, v=[0, 5, 10], J=0, langer=True)
     # the Langer form adds eps/(4 r^2): the levels move up by Bv/4 - Dv/16 (physics.md section 3)
-    assert np.allclose(tl.energy - t0.energy, t0.Bv / 4 - Dv / 16, rtol=2e-6)
+    assert np.allclose(tl.energy - t0.energy, t0.Bv / 4 - Dv / 16, rtol=5e-6)
 
 
 def test_rotating_lj_levels_meet_quantization_with_scipy():
