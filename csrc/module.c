@@ -335,11 +335,11 @@ cleanup:
 static PyObject *py_wkb_levels(PyObject *self, PyObject *args, PyObject *kwds)
 {
     static char *kwlist[] = {"model", "params", "curve", "mu", "rot", "v", "maslov_in", "maslov_out",
-                             "want_dVdp", NULL};
+                             "want_dVdp", "order", NULL};
     const char *model_name;
     PyObject *params_obj, *curve_obj, *v_obj = Py_None;
     double mu, rot;
-    int maslov_in = 1, maslov_out = 1, want_dVdp = 0;
+    int maslov_in = 1, maslov_out = 1, want_dVdp = 0, order = 1;
     PyArrayObject *v_arr = NULL, *dVdp = NULL;
     PyArrayObject *cols[8] = {NULL};
     static const char *names[8] = {"v", "energy", "binding_energy", "inner_turning_point",
@@ -353,9 +353,14 @@ static PyObject *py_wkb_levels(PyObject *self, PyObject *args, PyObject *kwds)
     double vD = NAN;
     int status = WKB_SUCCESS;
 
-    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOdd|Oiip", kwlist, &model_name, &params_obj, &curve_obj,
-                                     &mu, &rot, &v_obj, &maslov_in, &maslov_out, &want_dVdp))
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOdd|Oiipi", kwlist, &model_name, &params_obj, &curve_obj,
+                                     &mu, &rot, &v_obj, &maslov_in, &maslov_out, &want_dVdp, &order))
         return NULL;
+    if (order != 1 && order != 2) {
+        PyErr_Format(PyExc_ValueError, "order=%d is invalid: use 1 (first-order WKB) or 2 (with the second-order term)",
+                     order);
+        return NULL;
+    }
     if (parse_potential(model_name, params_obj, curve_obj, &pot) < 0)
         return NULL;
     if (v_obj != Py_None) {
@@ -367,9 +372,13 @@ static PyObject *py_wkb_levels(PyObject *self, PyObject *args, PyObject *kwds)
             goto cleanup;
         }
     }
-    if (!(w = wkb_well_alloc(NULL))) {
-        PyErr_NoMemory();
-        goto cleanup;
+    {
+        wkb_settings settings = wkb_default_settings();
+        settings.order = order;
+        if (!(w = wkb_well_alloc(&settings))) {
+            PyErr_NoMemory();
+            goto cleanup;
+        }
     }
     Py_BEGIN_ALLOW_THREADS
     status = wkb_well_set(w, &pot, mu, rot, maslov_in, maslov_out, &err);
@@ -579,12 +588,38 @@ static int parse_fit_arrays(PyObject *v_obj, PyObject *rot_obj, PyObject *mu_obj
     return 0;
 }
 
+/* The level source of a fit method: 0 first-order WKB (source NULL), 1 exact (a radial
+   workspace, returned in *radial for the caller to free). Returns 0 or -1 with an exception. */
+static int fit_source(int method, wkb_radial **radial, wkb_level_source *source, const wkb_level_source **out)
+{
+    *radial = NULL;
+    *out = NULL;
+    if (method == 0)
+        return 0;
+    if (method != 1) {
+        PyErr_Format(PyExc_ValueError, "fit method code %d is invalid (0 wkb, 1 exact)", method);
+        return -1;
+    }
+    if (!(*radial = wkb_radial_alloc(NULL))) {
+        PyErr_NoMemory();
+        return -1;
+    }
+    source->ctx = *radial;
+    source->set = wkb_radial_source_set;
+    source->level = wkb_radial_source_level;
+    *out = source;
+    return 0;
+}
+
 static PyObject *py_fit_evaluate(PyObject *self, PyObject *args, PyObject *kwds)
 {
-    static char *kwlist[] = {"model", "params", "curve", "v", "rot", "mu", "energy_zero", NULL};
+    static char *kwlist[] = {"model", "params", "curve", "v", "rot", "mu", "energy_zero", "method", NULL};
     const char *model_name;
     PyObject *params_obj, *curve_obj, *v_obj, *rot_obj, *mu_obj, *result = NULL;
-    int energy_zero = WKB_ZERO_MINIMUM, status;
+    int energy_zero = WKB_ZERO_MINIMUM, method = 0, status;
+    wkb_radial *radial = NULL;
+    wkb_level_source source_store;
+    const wkb_level_source *source = NULL;
     fit_arrays a = {0};
     wkb_fit_data data;
     wkb_potential pot;
@@ -593,12 +628,13 @@ static PyObject *py_fit_evaluate(PyObject *self, PyObject *args, PyObject *kwds)
     PyArrayObject *calc = NULL, *jac = NULL;
     size_t bad_row = 0;
 
-    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOOOO|i", kwlist, &model_name, &params_obj, &curve_obj, &v_obj,
-                                     &rot_obj, &mu_obj, &energy_zero))
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOOOO|ii", kwlist, &model_name, &params_obj, &curve_obj, &v_obj,
+                                     &rot_obj, &mu_obj, &energy_zero, &method))
         return NULL;
     if (parse_potential(model_name, params_obj, curve_obj, &pot) < 0)
         return NULL;
-    if (parse_fit_arrays(v_obj, rot_obj, mu_obj, NULL, NULL, energy_zero, &a, &data) < 0)
+    if (parse_fit_arrays(v_obj, rot_obj, mu_obj, NULL, NULL, energy_zero, &a, &data) < 0 ||
+        fit_source(method, &radial, &source_store, &source) < 0)
         goto cleanup;
     npy_intp dims[2] = {(npy_intp)data.n, (npy_intp)pot.model->n_params};
     if (!(calc = new_vector(dims[0])) || !(jac = (PyArrayObject *)PyArray_ZEROS(2, dims, NPY_DOUBLE, 0)))
@@ -607,7 +643,7 @@ static PyObject *py_fit_evaluate(PyObject *self, PyObject *args, PyObject *kwds)
         wkb_settings levels = wkb_default_settings();
         double *pc = PyArray_DATA(calc), *pj = PyArray_DATA(jac);
         Py_BEGIN_ALLOW_THREADS
-        ev = wkb_fit_evaluator_alloc(&data, &levels, NULL, &err);
+        ev = wkb_fit_evaluator_alloc(&data, &levels, source, &err);
         status = ev ? wkb_fit_evaluate(ev, &pot, pc, pj, &bad_row, &err) : (err.status ? err.status : WKB_ENOMEM);
         Py_END_ALLOW_THREADS
     }
@@ -623,6 +659,7 @@ static PyObject *py_fit_evaluate(PyObject *self, PyObject *args, PyObject *kwds)
     result = Py_BuildValue("(OO)", calc, jac);
 cleanup:
     wkb_fit_evaluator_free(ev);
+    wkb_radial_free(radial);
     fit_arrays_release(&a);
     Py_XDECREF(calc);
     Py_XDECREF(jac);
@@ -643,12 +680,16 @@ static PyObject *insensitive_list(const int *flags, size_t np)
 static PyObject *py_fit_run(PyObject *self, PyObject *args, PyObject *kwds)
 {
     static char *kwlist[] = {"model", "params", "curve", "v", "rot", "mu", "energy", "sigma", "energy_zero",
-                             "vary", "lower", "upper", "max_iterations", "xtol", "gtol", "decrease_tol", NULL};
+                             "vary", "lower", "upper", "max_iterations", "xtol", "gtol", "decrease_tol", "method",
+                             NULL};
     const char *model_name;
     PyObject *params_obj, *curve_obj, *v_obj, *rot_obj, *mu_obj, *energy_obj, *sigma_obj, *vary_obj, *lower_obj,
         *upper_obj, *result = NULL;
-    int energy_zero, status;
+    int energy_zero, status, method = 0;
     Py_ssize_t max_iterations = -1;
+    wkb_radial *radial = NULL;
+    wkb_level_source source_store;
+    const wkb_level_source *source = NULL;
     wkb_fit_settings settings = wkb_fit_default_settings();
     fit_arrays a = {0};
     wkb_fit_data data;
@@ -658,16 +699,17 @@ static PyObject *py_fit_run(PyObject *self, PyObject *args, PyObject *kwds)
     wkb_error err = {0};
     PyArrayObject *vary = NULL, *lower = NULL, *upper = NULL, *calc = NULL, *jac = NULL, *best = NULL;
 
-    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOOOOOOiOOO|nddd", kwlist, &model_name, &params_obj, &curve_obj,
-                                     &v_obj, &rot_obj, &mu_obj, &energy_obj, &sigma_obj, &energy_zero, &vary_obj,
-                                     &lower_obj, &upper_obj, &max_iterations, &settings.xtol, &settings.gtol,
-                                     &settings.decrease_tol))
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOOOOOOiOOO|ndddi", kwlist, &model_name, &params_obj,
+                                     &curve_obj, &v_obj, &rot_obj, &mu_obj, &energy_obj, &sigma_obj, &energy_zero,
+                                     &vary_obj, &lower_obj, &upper_obj, &max_iterations, &settings.xtol,
+                                     &settings.gtol, &settings.decrease_tol, &method))
         return NULL;
     if (max_iterations >= 0)
         settings.max_iterations = (size_t)max_iterations;
     if (parse_potential(model_name, params_obj, curve_obj, &pot) < 0)
         return NULL;
-    if (parse_fit_arrays(v_obj, rot_obj, mu_obj, energy_obj, sigma_obj, energy_zero, &a, &data) < 0)
+    if (parse_fit_arrays(v_obj, rot_obj, mu_obj, energy_obj, sigma_obj, energy_zero, &a, &data) < 0 ||
+        fit_source(method, &radial, &source_store, &source) < 0)
         goto cleanup;
     const size_t np = pot.model->n_params;
     if (!(vary = (PyArrayObject *)PyArray_FROM_OTF(vary_obj, NPY_INT, NPY_ARRAY_IN_ARRAY | NPY_ARRAY_FORCECAST)) ||
@@ -690,7 +732,7 @@ static PyObject *py_fit_run(PyObject *self, PyObject *args, PyObject *kwds)
     {
         double *pc = PyArray_DATA(calc), *pj = PyArray_DATA(jac);
         Py_BEGIN_ALLOW_THREADS
-        status = wkb_fit_run(&pot, &data, &spec, &settings, NULL, &out, pc, pj, &err);
+        status = wkb_fit_run(&pot, &data, &spec, &settings, source, &out, pc, pj, &err);
         Py_END_ALLOW_THREADS
     }
     if (status) {
@@ -725,6 +767,7 @@ static PyObject *py_fit_run(PyObject *self, PyObject *args, PyObject *kwds)
         Py_CLEAR(result);
 cleanup:
     fit_arrays_release(&a);
+    wkb_radial_free(radial);
     Py_XDECREF(vary);
     Py_XDECREF(lower);
     Py_XDECREF(upper);
@@ -736,31 +779,38 @@ cleanup:
 
 static PyObject *py_fit_levels(PyObject *self, PyObject *args, PyObject *kwds)
 {
-    static char *kwlist[] = {"model", "params", "curve", "mu", "rot", NULL};
+    static char *kwlist[] = {"model", "params", "curve", "mu", "rot", "method", NULL};
     const char *model_name;
     PyObject *params_obj, *curve_obj, *result = NULL;
     double mu, rot;
-    int status;
+    int status, method = 0;
+    wkb_radial *radial = NULL;
+    wkb_level_source source_store;
+    const wkb_level_source *source = NULL;
     wkb_potential pot;
     wkb_error err = {0};
     size_t count = 0;
     double vD = NAN;
     PyArrayObject *energy = NULL, *jac = NULL, *dvD = NULL;
 
-    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOdd", kwlist, &model_name, &params_obj, &curve_obj, &mu, &rot))
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOdd|i", kwlist, &model_name, &params_obj, &curve_obj, &mu, &rot,
+                                     &method))
         return NULL;
     if (parse_potential(model_name, params_obj, curve_obj, &pot) < 0)
         return NULL;
+    if (fit_source(method, &radial, &source_store, &source) < 0)
+        return NULL;
     const size_t np = pot.model->n_params;
     wkb_settings levels = wkb_default_settings();
-    /* first the number of bound levels, then the levels */
+    /* first the number of bound (WKB) levels, then the levels; the exact count may differ */
     Py_BEGIN_ALLOW_THREADS
-    status = wkb_fit_levels(&pot, mu, rot, &levels, 0, NULL, NULL, &count, &vD, NULL, &err);
+    status = wkb_fit_levels(&pot, mu, rot, &levels, NULL, 0, NULL, NULL, &count, &vD, NULL, &err);
     Py_END_ALLOW_THREADS
     if (status) {
         raise_status(&err);
-        return NULL;
+        goto cleanup;
     }
+    count += 2;
     npy_intp dims[2] = {(npy_intp)count, (npy_intp)np};
     if (!(energy = new_vector(dims[0])) || !(jac = (PyArrayObject *)PyArray_ZEROS(2, dims, NPY_DOUBLE, 0)) ||
         !(dvD = new_vector((npy_intp)np)))
@@ -769,14 +819,27 @@ static PyObject *py_fit_levels(PyObject *self, PyObject *args, PyObject *kwds)
         double *pe = PyArray_DATA(energy), *pj = PyArray_DATA(jac), *pd = PyArray_DATA(dvD);
         size_t count2 = 0;
         Py_BEGIN_ALLOW_THREADS
-        status = wkb_fit_levels(&pot, mu, rot, &levels, count, pe, pj, &count2, &vD, pd, &err);
+        status = wkb_fit_levels(&pot, mu, rot, &levels, source, count, pe, pj, &count2, &vD, pd, &err);
         Py_END_ALLOW_THREADS
-        if (!status && count2 != count)
-            status = wkb_fail(&err, WKB_ENUMERIC, "the number of bound levels changed between two identical calls");
+        if (!status && count2 > count)
+            status = wkb_fail(&err, WKB_ENUMERIC, "%zu bound levels found, more than the %zu expected", count2, count);
+        count = count2;
     }
     if (status) {
         raise_status(&err);
         goto cleanup;
+    }
+    {
+        /* keep the rows of the bound levels only */
+        npy_intp newdims[2] = {(npy_intp)count, (npy_intp)np};
+        PyArray_Dims shape1 = {newdims, 1}, shape2 = {newdims, 2};
+        PyObject *none = PyArray_Resize(energy, &shape1, 0, NPY_CORDER);
+        if (!none)
+            goto cleanup;
+        Py_DECREF(none);
+        if (!(none = PyArray_Resize(jac, &shape2, 0, NPY_CORDER)))
+            goto cleanup;
+        Py_DECREF(none);
     }
     if (!(result = PyDict_New()))
         goto cleanup;
@@ -787,9 +850,227 @@ static PyObject *py_fit_levels(PyObject *self, PyObject *args, PyObject *kwds)
         dict_steal(result, "asymptote", PyFloat_FromDouble(wkb_potential_asymptote(&pot))) < 0)
         Py_CLEAR(result);
 cleanup:
+    wkb_radial_free(radial);
     Py_XDECREF(energy);
     Py_XDECREF(jac);
     Py_XDECREF(dvD);
+    return result;
+}
+
+/* ---------------------------------------------------------------- exact levels (radial.c) */
+
+/* Adds a new reference under key to dict d; returns 0 or -1 (the reference is always consumed). */
+static int set_item_steal(PyObject *d, const char *key, PyObject *value)
+{
+    if (!value)
+        return -1;
+    const int rc = PyDict_SetItemString(d, key, value);
+    Py_DECREF(value);
+    return rc;
+}
+
+static PyObject *py_exact_levels(PyObject *self, PyObject *args, PyObject *kwds)
+{
+    static char *kwlist[] = {"model", "params", "curve", "mu", "J", "v", "want_dVdp", "want_wavefunctions",
+                             "energy_tol", "min_binding", "phase_step", NULL};
+    enum { NCOL = 10 };
+    static const char *names[NCOL] = {"v", "J", "energy", "binding_energy", "inner_turning_point",
+                                      "outer_turning_point", "Bv", "dEdv", "error", "grid_points"};
+    const char *model_name;
+    PyObject *params_obj, *curve_obj, *J_obj, *v_obj = Py_None;
+    double mu;
+    int want_dVdp = 0, want_wf = 0;
+    wkb_radial_settings settings = wkb_radial_default_settings();
+    PyArrayObject *J_arr = NULL, *v_arr = NULL, *dVdp = NULL, *counts = NULL;
+    PyArrayObject *cols[NCOL] = {NULL};
+    PyObject *result = NULL, *wavefunctions = NULL;
+    wkb_potential pot;
+    wkb_radial *ws = NULL;
+    wkb_radial_level *lv = NULL;
+    int *lv_J = NULL;
+    wkb_error err = {0};
+    int status = WKB_SUCCESS;
+
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOdO|Oppddd", kwlist, &model_name, &params_obj, &curve_obj,
+                                     &mu, &J_obj, &v_obj, &want_dVdp, &want_wf, &settings.energy_tol,
+                                     &settings.min_binding, &settings.phase_step))
+        return NULL;
+    if (parse_potential(model_name, params_obj, curve_obj, &pot) < 0)
+        return NULL;
+    if (!(J_arr = (PyArrayObject *)PyArray_FROM_OTF(J_obj, NPY_INT, NPY_ARRAY_IN_ARRAY | NPY_ARRAY_FORCECAST)))
+        goto cleanup;
+    if (PyArray_NDIM(J_arr) != 1 || PyArray_SIZE(J_arr) < 1) {
+        PyErr_SetString(PyExc_ValueError, "J must be a non-empty 1-dimensional array of integers");
+        goto cleanup;
+    }
+    if (v_obj != Py_None) {
+        if (!(v_arr = (PyArrayObject *)PyArray_FROM_OTF(v_obj, NPY_INT, NPY_ARRAY_IN_ARRAY | NPY_ARRAY_FORCECAST)))
+            goto cleanup;
+        if (PyArray_NDIM(v_arr) != 1) {
+            PyErr_SetString(PyExc_ValueError, "v must be a 1-dimensional array of integers");
+            goto cleanup;
+        }
+    }
+    if (!(mu > 0) || !isfinite(mu)) {
+        PyErr_Format(PyExc_ValueError, "reduced mass mu=%g u is invalid: it must be a finite number > 0", mu);
+        goto cleanup;
+    }
+    if (!(ws = wkb_radial_alloc(&settings))) {
+        PyErr_Format(PyExc_ValueError,
+                     "invalid exact-solver settings (energy_tol=%g and min_binding=%g must be > 0, "
+                     "0 <= phase_step=%g <= 0.5)", settings.energy_tol, settings.min_binding, settings.phase_step);
+        goto cleanup;
+    }
+    const size_t nJ = (size_t)PyArray_SIZE(J_arr), np = pot.model->n_params;
+    const int *Js = PyArray_DATA(J_arr);
+    const int *vv = v_arr ? (const int *)PyArray_DATA(v_arr) : NULL;
+    const size_t nv = v_arr ? (size_t)PyArray_SIZE(v_arr) : 0;
+    if (!(counts = (PyArrayObject *)PyArray_ZEROS(1, (npy_intp[]){(npy_intp)nJ}, NPY_INTP, 0)))
+        goto cleanup;
+    if (want_wf && !(wavefunctions = PyList_New(0)))
+        goto cleanup;
+    size_t n = 0, cap = 0;
+    for (size_t j = 0; j < nJ; j++) {
+        const int J = Js[j];
+        if (J < 0) {
+            PyErr_Format(PyExc_ValueError, "J=%d is invalid: rotational quantum numbers are >= 0", J);
+            goto cleanup;
+        }
+        size_t count = 0;
+        Py_BEGIN_ALLOW_THREADS
+        status = wkb_radial_set(ws, &pot, mu, (double)J * (J + 1), &err);
+        count = wkb_radial_count(ws);
+        Py_END_ALLOW_THREADS
+        if (status) {
+            raise_status(&err);
+            goto cleanup;
+        }
+        ((npy_intp *)PyArray_DATA(counts))[j] = (npy_intp)count;
+        const size_t want = vv ? nv : count;
+        for (size_t i = 0; vv && i < nv; i++) {
+            if (vv[i] < 0) {
+                PyErr_Format(PyExc_ValueError, "v=%d is invalid: vibrational quantum numbers are >= 0", vv[i]);
+                goto cleanup;
+            }
+            if ((size_t)vv[i] >= count) {
+                if (count == 0)
+                    PyErr_Format(PyExc_ValueError, "v=%d is not bound: this potential binds no level at J=%d "
+                                 "for mu=%g u", vv[i], J, mu);
+                else
+                    PyErr_Format(PyExc_ValueError, "v=%d is above the last bound level (v=%zu) of this potential "
+                                 "at J=%d for mu=%g u", vv[i], count - 1, J, mu);
+                goto cleanup;
+            }
+        }
+        if (n + want > cap) {
+            size_t ncap = 2 * (n + want) + 8;
+            wkb_radial_level *nl = realloc(lv, ncap * sizeof *lv);
+            if (!nl) {
+                PyErr_NoMemory();
+                goto cleanup;
+            }
+            lv = nl;
+            int *nJs = realloc(lv_J, ncap * sizeof *lv_J);
+            if (!nJs) {
+                PyErr_NoMemory();
+                goto cleanup;
+            }
+            lv_J = nJs;
+            if (want_dVdp) {
+                npy_intp dims[2] = {(npy_intp)ncap, (npy_intp)np};
+                PyArrayObject *nd = (PyArrayObject *)PyArray_ZEROS(2, dims, NPY_DOUBLE, 0);
+                if (!nd)
+                    goto cleanup;
+                if (dVdp)
+                    memcpy(PyArray_DATA(nd), PyArray_DATA(dVdp), n * np * sizeof(double));
+                Py_XDECREF(dVdp);
+                dVdp = nd;
+            }
+            cap = ncap;
+        }
+        double *pd = dVdp ? (double *)PyArray_DATA(dVdp) : NULL;
+        if (!want_wf) {
+            Py_BEGIN_ALLOW_THREADS
+            for (size_t i = 0; i < want && !status; i++)
+                status = wkb_radial_level_at(ws, vv ? vv[i] : (int)i, &lv[n + i], pd ? pd + (n + i) * np : NULL,
+                                             &err);
+            Py_END_ALLOW_THREADS
+            if (status) {
+                raise_status(&err);
+                goto cleanup;
+            }
+        } else {
+            for (size_t i = 0; i < want; i++) {
+                const double *r = NULL, *u = NULL;
+                size_t m = 0;
+                const int v = vv ? vv[i] : (int)i;
+                Py_BEGIN_ALLOW_THREADS
+                status = wkb_radial_level_at(ws, v, &lv[n + i], pd ? pd + (n + i) * np : NULL, &err);
+                if (!status)
+                    status = wkb_radial_wavefunction(ws, v, &r, &u, &m, &err);
+                Py_END_ALLOW_THREADS
+                if (status) {
+                    raise_status(&err);
+                    goto cleanup;
+                }
+                PyArrayObject *ra = new_vector((npy_intp)m), *ua = ra ? new_vector((npy_intp)m) : NULL;
+                if (!ua) {
+                    Py_XDECREF(ra);
+                    goto cleanup;
+                }
+                memcpy(PyArray_DATA(ra), r, m * sizeof(double));
+                memcpy(PyArray_DATA(ua), u, m * sizeof(double));
+                PyObject *pair = Py_BuildValue("(NN)", ra, ua);
+                if (!pair || PyList_Append(wavefunctions, pair) < 0) {
+                    Py_XDECREF(pair);
+                    goto cleanup;
+                }
+                Py_DECREF(pair);
+            }
+        }
+        for (size_t i = 0; i < want; i++)
+            lv_J[n + i] = J;
+        n += want;
+    }
+    for (int c = 0; c < NCOL; c++) {
+        if (!(cols[c] = new_vector((npy_intp)n)))
+            goto cleanup;
+        double *p = PyArray_DATA(cols[c]);
+        for (size_t i = 0; i < n; i++) {
+            const wkb_radial_level *L = &lv[i];
+            const double vals[NCOL] = {L->v, lv_J[i], L->energy, L->binding, L->r_inner, L->r_outer,
+                                       L->Bv, L->dEdv, L->error, (double)L->grid_points};
+            p[i] = vals[c];
+        }
+    }
+    if (!(result = PyDict_New()))
+        goto cleanup;
+    for (int c = 0; c < NCOL; c++)
+        if (PyDict_SetItemString(result, names[c], (PyObject *)cols[c]) < 0)
+            goto fail;
+    if (PyDict_SetItemString(result, "count", (PyObject *)counts) < 0)
+        goto fail;
+    if (dVdp) {
+        PyObject *view = PySequence_GetSlice((PyObject *)dVdp, 0, (Py_ssize_t)n);
+        if (set_item_steal(result, "dE_dp", view) < 0)
+            goto fail;
+    }
+    if (wavefunctions && PyDict_SetItemString(result, "wavefunctions", wavefunctions) < 0)
+        goto fail;
+    goto cleanup;
+fail:
+    Py_CLEAR(result);
+cleanup:
+    for (int c = 0; c < NCOL; c++)
+        Py_XDECREF(cols[c]);
+    Py_XDECREF(J_arr);
+    Py_XDECREF(v_arr);
+    Py_XDECREF(dVdp);
+    Py_XDECREF(counts);
+    Py_XDECREF(wavefunctions);
+    free(lv);
+    free(lv_J);
+    wkb_radial_free(ws);
     return result;
 }
 
@@ -816,16 +1097,21 @@ static PyMethodDef core_methods[] = {
      "wkb_orbits(model, params, curve, mu, rot, binding) -> dict of arrays: action (integral k dr), "
      "half_period (d action/dE, 1/cm-1), inner/outer turning points, Bv; at binding energies asymptote - E"},
     {"fit_evaluate", (PyCFunction)(void (*)(void))py_fit_evaluate, METH_VARARGS | METH_KEYWORDS,
-     "fit_evaluate(model, params, curve, v, rot, mu, energy_zero=0) -> (calc, jacobian[n, n_params]): the\n"
-     "fit's model levels (energy_zero 0 minimum, 1 asymptote, 2 lowest) and d calc/d p"},
+     "fit_evaluate(model, params, curve, v, rot, mu, energy_zero=0, method=0) -> (calc, jacobian[n, n_params]):\n"
+     "the fit's model levels (energy_zero 0 minimum, 1 asymptote, 2 lowest; method 0 WKB, 1 exact) and d calc/d p"},
     {"fit_run", (PyCFunction)(void (*)(void))py_fit_run, METH_VARARGS | METH_KEYWORDS,
      "fit_run(model, params, curve, v, rot, mu, energy, sigma, energy_zero, vary, lower, upper,\n"
-     "max_iterations=-1, xtol, gtol, decrease_tol) -> dict (params, calc, jacobian, chi_square, iterations,\n"
+     "max_iterations=-1, xtol, gtol, decrease_tol, method=0) -> dict (params, calc, jacobian, chi_square, iterations,\n"
      "n_eval, n_infeasible, stop, test, predicted_decrease, last_infeasible); a failure at the start raises\n"
      "ValueError(message, row index)"},
+    {"exact_levels", (PyCFunction)(void (*)(void))py_exact_levels, METH_VARARGS | METH_KEYWORDS,
+     "exact_levels(model, params, curve, mu, J, v=None, want_dVdp=False, want_wavefunctions=False,\n"
+     "energy_tol=1e-7, min_binding=1e-7, phase_step=0) -> dict of arrays (v, J, energy, binding_energy,\n"
+     "turning points, Bv, dEdv, error, grid_points), count[len(J)], [dE_dp], [wavefunctions: (r, u)]:\n"
+     "bound levels of the radial Schroedinger equation for each J (every level, or those in v)"},
     {"fit_levels", (PyCFunction)(void (*)(void))py_fit_levels, METH_VARARGS | METH_KEYWORDS,
-     "fit_levels(model, params, curve, mu, rot) -> dict (energy, jacobian[count, n_params], vD, dvD_dp,\n"
-     "asymptote): every bound WKB level with its parameter gradient"},
+     "fit_levels(model, params, curve, mu, rot, method=0) -> dict (energy, jacobian[count, n_params], vD, dvD_dp,\n"
+     "asymptote): every bound level (0 WKB, 1 exact) with its parameter gradient; vD is the WKB one"},
     {NULL, NULL, 0, NULL},
 };
 

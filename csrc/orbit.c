@@ -38,6 +38,7 @@ wkb_settings wkb_default_settings(void)
     s.energy_tol = 1e-11;
     s.max_newton = 60;
     s.scan_points = 400;
+    s.order = 1;
     return s;
 }
 
@@ -48,7 +49,8 @@ wkb_well *wkb_well_alloc(const wkb_settings *settings)
     if (!w)
         return NULL;
     w->set = settings ? *settings : wkb_default_settings();
-    if (w->set.nodes < 4 || w->set.nodes > 2000 || w->set.scan_points < 16 || w->set.max_newton < 1)
+    if (w->set.nodes < 4 || w->set.nodes > 2000 || w->set.scan_points < 16 || w->set.max_newton < 1 ||
+        (w->set.order != 1 && w->set.order != 2))
         goto fail;
     w->scan_r = malloc(w->set.scan_points * sizeof(double));
     w->scan_V = malloc(w->set.scan_points * sizeof(double));
@@ -363,7 +365,7 @@ static int find_turning_point(const wkb_well *w, const energy_point *e, int righ
 
 /* Sums over one quadrature piece. */
 typedef struct {
-    double action, inv_k, inv_k_r2;
+    double action, inv_k, inv_k_r2, curvature;
     double dVdp[WKB_MAX_PARAMS];
     int want_period, want_dVdp;
 } sums;
@@ -380,6 +382,7 @@ static void add_node(wkb_well *w, const energy_point *e, double r, double weight
         const double f = weight / sk, ir = 1 / r;
         s->inv_k += f;
         s->inv_k_r2 += f * ir * ir;
+        s->curvature += f * pv.d2V;
         if (s->want_dVdp) {
             const size_t np = w->pot.model->n_params;
             w->pot.model->param_derivs(&w->pot, r, w->dVdp);
@@ -515,6 +518,7 @@ int wkb_orbit_at(wkb_well *w, double binding, wkb_orbit *orbit, double *avg_dVdp
     orbit->action = s.action / se;
     orbit->half_period = infinite ? INFINITY : s.inv_k / (2 * se);
     orbit->Bv = infinite ? 0 : w->eps * s.inv_k_r2 / s.inv_k;
+    orbit->curvature_integral = infinite ? NAN : s.curvature;
     if (avg_dVdp) {
         const size_t np = w->pot.model->n_params;
         for (size_t k = 0; k < np; k++)

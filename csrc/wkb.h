@@ -156,6 +156,7 @@ typedef struct {
     double energy_tol;     /* absolute tolerance on a level, cm-1 */
     int max_newton;        /* Newton iterations per level */
     size_t scan_points;    /* grid points for the well analysis */
+    int order;             /* 1: first-order WKB; 2: with the second-order (Dunham) term */
 } wkb_settings;
 wkb_settings wkb_default_settings(void);
 
@@ -167,6 +168,7 @@ typedef struct {
     double action;       /* integral k dr, k = sqrt((E - V_J)/eps), dimensionless */
     double half_period;  /* d(action)/dE = integral dr/(2 eps k), 1/cm-1 */
     double Bv;           /* orbit average of eps/r^2, cm-1 */
+    double curvature_integral; /* K(E) = integral V_J''(r) dr / sqrt(E - V_J), for the second-order term */
 } wkb_orbit;
 
 /* One level. */
@@ -381,12 +383,14 @@ int wkb_fit_run(const wkb_potential *start, const wkb_fit_data *data, const wkb_
                 const wkb_fit_settings *settings, const wkb_level_source *source,
                 wkb_fit_outcome *out, double *calc, double *jac, wkb_error *err);
 
-/* Every bound WKB level of (pot, mu, J(J+1) = rot) with its parameter gradient, for
+/* Every bound level of (pot, mu, J(J+1) = rot) with its parameter gradient, for
    predictions: energy[capacity], dEdp[capacity][n_params]; *count = number of bound levels
-   (only min(count, capacity) are filled); vD and dvDdp[n_params] (central differences
-   of the action at the asymptote; NaN where a perturbed potential is invalid). */
+   (only min(count, capacity) are filled). Levels from source (asked in ascending v until
+   WKB_ENOLEVEL), or first-order WKB when source is NULL. vD and dvDdp[n_params] (may be
+   NULL) are always the WKB quantum number at dissociation and its gradient (central
+   differences of the action at the asymptote; NaN where a perturbed potential is invalid). */
 int wkb_fit_levels(const wkb_potential *pot, double mu, double rot, const wkb_settings *settings,
-                   size_t capacity, double *energy, double *dEdp, size_t *count, double *vD,
-                   double *dvDdp, wkb_error *err);
+                   const wkb_level_source *source, size_t capacity, double *energy, double *dEdp,
+                   size_t *count, double *vD, double *dvDdp, wkb_error *err);
 
 #endif

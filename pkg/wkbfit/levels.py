@@ -137,7 +137,7 @@ def _as_int_list(x, name):
     return out
 
 
-def levels(potential, mu, v=None, J=0, method="wkb", *, langer=False, maslov=(1, 1)):
+def levels(potential, mu, v=None, J=0, method="wkb", *, order=1, langer=False, maslov=(1, 1)):
     """Levels of `potential` for reduced mass `mu`.
 
     potential: a Potential object.
@@ -145,8 +145,11 @@ def levels(potential, mu, v=None, J=0, method="wkb", *, langer=False, maslov=(1,
     v: None for every bound level, or an integer / list of integers.
     J: rotational quantum number(s); the centrifugal term is J(J+1) hbar^2/(2 mu r^2)
        (or (J+1/2)^2 with langer=True, first-order WKB only).
-    method: "wkb" (first-order semiclassical quantization; see `maslov`) or "exact"
+    method: "wkb" (semiclassical quantization; see `order` and `maslov`) or "exact"
        (the radial Schroedinger equation solved numerically).
+    order: 1 for first-order WKB, 2 to add the second-order (Dunham) term, which removes most of the
+       first-order error except close to dissociation, where it is not valid. The number of bound
+       levels and vD are always first-order values.
     maslov: Maslov indices (inner, outer): 1 for a smooth turning point, 2 for a hard wall.
     """
     if not isinstance(potential, Potential):
@@ -156,7 +159,10 @@ def levels(potential, mu, v=None, J=0, method="wkb", *, langer=False, maslov=(1,
     Js = _as_int_list(J, "J")
     vs = None if v is None else _as_int_list(v, "v")
     if method == "wkb":
-        return _wkb_levels(potential, mu, vs, Js, langer, maslov)
+        if order not in (1, 2):
+            raise ValueError("order=%r is invalid: use 1 (first-order WKB) or 2 (with the second-order term)"
+                             % (order,))
+        return _wkb_levels(potential, mu, vs, Js, langer, maslov, order)
     if method == "exact":
         from .exact import exact_levels
         if langer:
@@ -165,7 +171,7 @@ def levels(potential, mu, v=None, J=0, method="wkb", *, langer=False, maslov=(1,
     raise ValueError("method=%r is not known; use 'wkb' or 'exact'" % (method,))
 
 
-def _wkb_levels(potential, mu, vs, Js, langer, maslov):
+def _wkb_levels(potential, mu, vs, Js, langer, maslov, order=1):
     try:
         m_in, m_out = (int(m) for m in maslov)
     except (TypeError, ValueError):
@@ -179,9 +185,9 @@ def _wkb_levels(potential, mu, vs, Js, langer, maslov):
     v_arr = None if vs is None else np.asarray(vs, dtype=np.intc)
     for J in Js:
         rot = (J + 0.5) ** 2 if langer else float(J * (J + 1))
-        res = _core.wkb_levels(model, params, curve, mu, rot, v_arr, m_in, m_out)
+        res = _core.wkb_levels(model, params, curve, mu, rot, v_arr, m_in, m_out, order=order)
         res["J"] = np.full(len(res["v"]), J)
         vD[J] = None if math.isnan(res["vD"]) else res["vD"]
         parts.append(res)
     cols = {c: np.concatenate([p[c] for p in parts]) for c in _COLUMNS}
-    return LevelTable(cols, mu=mu, method="wkb", potential=potential, vD=vD)
+    return LevelTable(cols, mu=mu, method="wkb" if order == 1 else "wkb2", potential=potential, vD=vD)
