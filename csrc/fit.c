@@ -21,7 +21,6 @@
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
-#include <stdio.h>
 
 #include <gsl/gsl_blas.h>
 #include <gsl/gsl_errno.h>
@@ -310,6 +309,9 @@ typedef struct {
     size_t n, nv, np;
     size_t var[WKB_MAX_PARAMS];
     double dpdu[WKB_MAX_PARAMS];
+    /* solver variables y: u = u0 + T y, T = V S^-1 from the SVD of the weighted Jacobian at
+       the start, so that the solver starts with orthonormal Jacobian columns */
+    double u0[WKB_MAX_PARAMS], T[WKB_MAX_PARAMS][WKB_MAX_PARAMS];
     /* cache of the last evaluation: x, calc, jac (np per row) */
     double *cache_x, *cache_calc, *cache_jac;
     int cache_valid;
@@ -326,7 +328,10 @@ static void params_from_x(fit_context *c, const gsl_vector *x, double *p)
     memcpy(p, c->start->p, c->np * sizeof *p);
     for (size_t j = 0; j < c->nv; j++) {
         const size_t k = c->var[j];
-        p[k] = to_external(gsl_vector_get(x, j), c->spec->lower[k], c->spec->upper[k], &c->dpdu[j]);
+        double u = c->u0[j];
+        for (size_t l = 0; l < c->nv; l++)
+            u += c->T[j][l] * gsl_vector_get(x, l);
+        p[k] = to_external(u, c->spec->lower[k], c->spec->upper[k], &c->dpdu[j]);
     }
 }
 
@@ -342,7 +347,6 @@ static int evaluate_at(fit_context *c, const gsl_vector *x)
         c->cache_x[j] = gsl_vector_get(x, j);
     c->cache_valid = 0;
     c->n_eval++;
-    if (getenv("WKBFIT_DEBUG")) fprintf(stderr, "eval x0=%.17g\n", gsl_vector_get(x, 0));
     int status = wkb_potential_init(&pot, c->start->model, p, c->start->curve, &err);
     if (!status)
         status = wkb_fit_evaluate(c->ev, &pot, c->cache_calc, c->cache_jac, NULL, &err);
@@ -380,15 +384,21 @@ static int residual_f(const gsl_vector *x, void *params, gsl_vector *f)
 static int residual_df(const gsl_vector *x, void *params, gsl_matrix *J)
 {
     fit_context *c = params;
-    if (getenv("WKBFIT_DEBUG")) fprintf(stderr, "df x0=%.17g match=%d\n", gsl_vector_get(x, 0), cache_matches(c, x));
     if (!cache_matches(c, x) && evaluate_at(c, x))
         return GSL_EDOM; /* GSL asks for J only at accepted (feasible) points */
     double p[WKB_MAX_PARAMS];
     params_from_x(c, x, p); /* refreshes dpdu */
     for (size_t i = 0; i < c->n; i++) {
         const double *row = c->cache_jac + i * c->np;
+        double du[WKB_MAX_PARAMS]; /* d f_i / d u_j */
         for (size_t j = 0; j < c->nv; j++)
-            gsl_matrix_set(J, i, j, row[c->var[j]] * c->dpdu[j] / c->data->sigma[i]);
+            du[j] = row[c->var[j]] * c->dpdu[j] / c->data->sigma[i];
+        for (size_t l = 0; l < c->nv; l++) {
+            double sum = 0;
+            for (size_t j = 0; j < c->nv; j++)
+                sum += du[j] * c->T[j][l];
+            gsl_matrix_set(J, i, l, sum);
+        }
     }
     /* GSL evaluates the Jacobian exactly at each accepted point: remember it */
     memcpy(c->best_calc, c->cache_calc, c->n * sizeof *c->best_calc);
@@ -405,8 +415,9 @@ static double predicted_decrease(const gsl_multifit_nlinear_workspace *w, gsl_ma
     const gsl_matrix *J = gsl_multifit_nlinear_jac(w);
     const gsl_vector *f = gsl_multifit_nlinear_residual(w);
     double dec;
-    gsl_blas_dgemv(CblasTrans, 1.0, J, f, 0.0, g);
-    gsl_blas_dgemm(CblasTrans, CblasNoTrans, 1.0, J, J, 0.0, N);
+    if (gsl_blas_dgemv(CblasTrans, 1.0, J, f, 0.0, g) != GSL_SUCCESS ||
+        gsl_blas_dgemm(CblasTrans, CblasNoTrans, 1.0, J, J, 0.0, N) != GSL_SUCCESS)
+        return -1;
     /* scale to unit diagonal so that parameter units do not matter */
     for (size_t j = 0; j < N->size1; j++) {
         const double djj = gsl_matrix_get(N, j, j);
@@ -421,11 +432,52 @@ static double predicted_decrease(const gsl_multifit_nlinear_workspace *w, gsl_ma
     }
     if (gsl_linalg_cholesky_decomp1(N) != GSL_SUCCESS)
         return -1;
-    gsl_vector_memcpy(t, g);
-    if (gsl_linalg_cholesky_svx(N, t) != GSL_SUCCESS)
+    if (gsl_vector_memcpy(t, g) != GSL_SUCCESS || gsl_linalg_cholesky_svx(N, t) != GSL_SUCCESS ||
+        gsl_blas_ddot(g, t, &dec) != GSL_SUCCESS)
         return -1;
-    gsl_blas_ddot(g, t, &dec);
     return dec;
+}
+
+/* T = V S^-1 from the SVD of the weighted Jacobian d f/d u at the start (in the cache):
+   a fixed linear change of variables that leaves the minimum unchanged but gives the
+   Levenberg-Marquardt damping equal footing in every direction, so that strongly
+   correlated parameters (such as the Lennard-Jones exponents) need no long crawl while
+   the damping decreases. Singular values are floored at 1e-10 of the largest. */
+static int whitening(fit_context *c, wkb_error *err)
+{
+    const size_t nv = c->nv;
+    gsl_matrix *A = gsl_matrix_alloc(c->n, nv), *V = gsl_matrix_alloc(nv, nv);
+    gsl_vector *S = gsl_vector_alloc(nv), *work = gsl_vector_alloc(nv);
+    int status = WKB_SUCCESS;
+    if (!A || !V || !S || !work) {
+        status = wkb_fail(err, WKB_ENOMEM, "out of memory for the fit's change of variables");
+        goto cleanup;
+    }
+    for (size_t j = 0; j < nv; j++) {
+        const size_t k = c->var[j];
+        double dpdu;
+        to_external(c->u0[j], c->spec->lower[k], c->spec->upper[k], &dpdu);
+        for (size_t i = 0; i < c->n; i++)
+            gsl_matrix_set(A, i, j, c->cache_jac[i * c->np + k] * dpdu / c->data->sigma[i]);
+    }
+    if (gsl_linalg_SV_decomp(A, V, S, work) != GSL_SUCCESS) {
+        status = wkb_fail(err, WKB_ENUMERIC, "the singular value decomposition of the starting Jacobian failed");
+        goto cleanup;
+    }
+    const double smax = gsl_vector_get(S, 0);
+    if (!(smax > 0) || !isfinite(smax)) {
+        status = wkb_fail(err, WKB_ENUMERIC, "the starting Jacobian is zero or not finite");
+        goto cleanup;
+    }
+    for (size_t j = 0; j < nv; j++)
+        for (size_t l = 0; l < nv; l++)
+            c->T[j][l] = gsl_matrix_get(V, j, l) / GSL_MAX(gsl_vector_get(S, l), 1e-10 * smax);
+cleanup:
+    gsl_matrix_free(A);
+    gsl_matrix_free(V);
+    gsl_vector_free(S);
+    gsl_vector_free(work);
+    return status;
 }
 
 static int check_spec(const wkb_potential *start, const wkb_fit_spec *spec, size_t n, size_t *var, size_t *nv,
@@ -534,8 +586,11 @@ int wkb_fit_run(const wkb_potential *start, const wkb_fit_data *data, const wkb_
     }
     for (size_t j = 0; j < c.nv; j++) {
         const size_t k = c.var[j];
-        gsl_vector_set(x, j, to_internal(start->p[k], spec->lower[k], spec->upper[k]));
+        c.u0[j] = to_internal(start->p[k], spec->lower[k], spec->upper[k]);
+        gsl_vector_set(x, j, 0.0);
     }
+    if ((status = whitening(&c, err)))
+        goto cleanup;
 
     {
         gsl_multifit_nlinear_parameters fp = gsl_multifit_nlinear_default_parameters();
@@ -576,18 +631,22 @@ int wkb_fit_run(const wkb_potential *start, const wkb_fit_data *data, const wkb_
             status = wkb_fail(err, WKB_ENUMERIC, "the least-squares iteration failed: %s", gsl_strerror(gs));
             goto cleanup;
         }
+        /* converged when the Gauss-Newton step (the Newton decrement) promises no significant
+           decrease of chi-square; GSL's step/gradient tests serve when J^T J is singular */
+        const double fn = gsl_blas_dnrm2(gsl_multifit_nlinear_residual(w));
+        const double dec = predicted_decrease(w, N, g, t);
         int info;
-        if (gsl_multifit_nlinear_test(settings->xtol, settings->gtol, 0.0, &info, w) == GSL_SUCCESS) {
-            /* a small step alone can come from a damped LM step far from the minimum:
-               require the Gauss-Newton model to promise no further decrease of chi-square */
-            const double fn = gsl_blas_dnrm2(gsl_multifit_nlinear_residual(w));
-            const double dec = predicted_decrease(w, N, g, t);
-            if (dec < 0 || dec <= settings->decrease_tol * GSL_MAX(1.0, fn * fn)) {
-                out->stop = WKB_FIT_CONVERGED;
-                out->test = info;
-                iter++;
-                break;
-            }
+        if (dec >= 0 && dec <= settings->decrease_tol * GSL_MAX(1.0, fn * fn)) {
+            out->stop = WKB_FIT_CONVERGED;
+            out->test = 3;
+            iter++;
+            break;
+        }
+        if (dec < 0 && gsl_multifit_nlinear_test(settings->xtol, settings->gtol, 0.0, &info, w) == GSL_SUCCESS) {
+            out->stop = WKB_FIT_CONVERGED;
+            out->test = info;
+            iter++;
+            break;
         }
     }
     out->iterations = iter;
@@ -625,8 +684,8 @@ cleanup:
 /* ------------------------------------------------------------------ predictions */
 
 int wkb_fit_levels(const wkb_potential *pot, double mu, double rot, const wkb_settings *settings,
-                   size_t capacity, double *energy, double *dEdp, size_t *count, double *vD, double *dvDdp,
-                   wkb_error *err)
+                   const wkb_level_source *source, size_t capacity, double *energy, double *dEdp,
+                   size_t *count, double *vD, double *dvDdp, wkb_error *err)
 {
     wkb_well *w = wkb_well_alloc(settings);
     const size_t np = pot->model->n_params;
@@ -635,11 +694,35 @@ int wkb_fit_levels(const wkb_potential *pot, double mu, double rot, const wkb_se
         return wkb_fail(err, WKB_ENOMEM, "cannot allocate a WKB workspace");
     if ((status = wkb_well_set(w, pot, mu, rot, 1, 1, err)) || (status = wkb_level_count(w, count, vD, err)))
         goto cleanup;
-    for (size_t v = 0; v < GSL_MIN(*count, capacity); v++) {
-        wkb_level level;
-        if ((status = wkb_level_at(w, (int)v, &level, dEdp + v * np, err)))
+    if (source) {
+        /* levels of the other source, counted by asking until one is not bound */
+        if ((status = source->set(source->ctx, pot, mu, rot, err)))
             goto cleanup;
-        energy[v] = level.energy;
+        size_t v = 0;
+        for (;; v++) {
+            double E, grad[WKB_MAX_PARAMS];
+            wkb_error e2 = {0};
+            status = source->level(source->ctx, (int)v, &E, grad, &e2);
+            if (status == WKB_ENOLEVEL)
+                break;
+            if (status) {
+                if (err)
+                    *err = e2;
+                goto cleanup;
+            }
+            if (v < capacity) {
+                energy[v] = E;
+                memcpy(dEdp + v * np, grad, np * sizeof *grad);
+            }
+        }
+        *count = v;
+    } else {
+        for (size_t v = 0; v < GSL_MIN(*count, capacity); v++) {
+            wkb_level level;
+            if ((status = wkb_level_at(w, (int)v, &level, dEdp + v * np, err)))
+                goto cleanup;
+            energy[v] = level.energy;
+        }
     }
     /* dvD/dp by central differences of the action at the asymptote */
     for (size_t k = 0; k < np && dvDdp; k++) {

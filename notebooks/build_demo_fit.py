@@ -1,0 +1,131 @@
+"""Write notebooks/demo_fit.ipynb (without outputs) from the cells below: `python3 notebooks/build_demo_fit.py`.
+
+Edit the notebook here and rebuild it, so that its source stays reviewable as plain Python.
+"""
+import os
+
+import nbformat
+from nbformat.v4 import new_code_cell, new_markdown_cell, new_notebook
+
+CELLS = [
+    ("md", """\
+# Fitting a potential to measured levels with wkbfit
+
+**INVENTED DATA.** The levels used here belong to an *invented* electronic state of LiCs, "measured" by an
+*invented* laboratory. The isotope labels (7Li133Cs, 6Li133Cs) are real only so that the reduced masses come from
+real atomic masses; every energy is made up (WKB levels of an invented Lennard-Jones potential plus seeded noise,
+see `wkbfit/demo.py`). They are **not** measurements of LiCs.
+
+The job: term values with their uncertainties in, a potential that reproduces them within those uncertainties out,
+with parameter uncertainties and predictions of the levels nobody measured, above all near dissociation.
+Units: cm-1, angstrom, u."""),
+    ("code", """\
+%matplotlib inline
+import numpy as np
+import matplotlib.pyplot as plt
+
+import wkbfit
+from wkbfit import demo"""),
+    ("md", """\
+## The data
+
+Columns `isotopologue, v, J, energy, uncertainty`; the energies are term values above the potential minimum,
+which we state (`energy_zero="minimum"`) rather than leave to be guessed."""),
+    ("code", """\
+observed = wkbfit.read_levels(demo.demo_data_path(), energy_zero="minimum")
+print("\\n".join(observed.comments))
+print(observed)
+print("reduced masses (u):", observed.masses_by_isotopologue())"""),
+    ("code", """\
+observed.to_dataframe().head(10)"""),
+    ("md", """\
+## The fit
+
+A Lennard-Jones (n, 6) potential: the well depth `De`, the equilibrium distance `re` and the repulsive exponent `n`
+vary; the attractive exponent stays at `m = 6`, the dispersion tail. Both isotopologues share one potential, each
+with its own reduced mass; the J > 0 levels include the centrifugal term."""),
+    ("code", """\
+start = wkbfit.LennardJones(De=4000.0, re=4.0, n=12, m=6)
+result = wkbfit.fit(start, observed, vary=["De", "re", "n"])
+print(result.report())"""),
+    ("code", """\
+result  # the HTML view"""),
+    ("md", """\
+## Predictions near dissociation
+
+Every bound level of the fitted potential with its propagated one-sigma uncertainty, the spacings
+dG(v+1/2), D0 and the quantum number at dissociation vD. The last ten levels of each isotopologue:"""),
+    ("code", """\
+predictions = {label: result.predict(isotopologue=label) for label in observed.isotopologues}
+for label, prediction in predictions.items():
+    print(prediction.to_text(last=10))
+    print()"""),
+    ("md", """\
+Because the data are invented we know the potential they came from, and can ask whether the quoted
+uncertainties are honest: the differences between the true and the predicted levels, in units of the
+predicted one-sigma uncertainty, should be of order one."""),
+    ("code", """\
+true_potential = demo.demo_true_potential()
+for label, prediction in predictions.items():
+    true_levels = wkbfit.levels(true_potential, result.masses[label])
+    n = min(len(true_levels), prediction.n_bound)
+    pulls = (true_levels.energy[:n] - prediction.energy[:n]) / prediction.energy_uncertainty[:n]
+    print("%s: %d true bound levels, %d predicted; largest |true - predicted|/sigma = %.2f"
+          % (label, len(true_levels), prediction.n_bound, np.max(np.abs(pulls))))"""),
+    ("md", """\
+## The potential with its levels, and the normalised residuals"""),
+    ("code", """\
+fig, (ax_pot, ax_res) = plt.subplots(1, 2, figsize=(13, 5))
+
+label = observed.isotopologues[0]
+mu = result.masses[label]
+fitted = result.potential
+table = wkbfit.levels(fitted, mu)
+r = np.linspace(0.86 * fitted.re, 4.0 * fitted.re, 800)
+ax_pot.plot(r, fitted(r), color="black", lw=1.5, label="fitted potential")
+ax_pot.axhline(fitted.asymptote, color="grey", ls=":", lw=1, label="asymptote")
+measured = set(observed.v[(observed.isotopologue == label) & (observed.J == 0)].tolist())
+for v, E, r_in, r_out in zip(table.v, table.energy, table.inner_turning_point, table.outer_turning_point):
+    seen = int(v) in measured
+    ax_pot.plot([r_in, r_out], [E, E], color="tab:blue" if seen else "tab:orange", lw=1.0 if seen else 0.7)
+ax_pot.plot([], [], color="tab:blue", label="levels measured (J=0)")
+ax_pot.plot([], [], color="tab:orange", label="levels predicted")
+ax_pot.set_xlim(r[0], r[-1])
+ax_pot.set_ylim(-0.03 * fitted.asymptote, 1.08 * fitted.asymptote)
+ax_pot.set_xlabel("r [angstrom]")
+ax_pot.set_ylabel("V(r), E [cm-1]")
+ax_pot.set_title("%s (INVENTED state): fitted potential and its J=0 levels" % label)
+ax_pot.legend(loc="lower right", fontsize=8)
+
+for k, lab in enumerate(observed.isotopologues):
+    rows = observed.rows_of(lab)
+    ax_res.scatter(result.calculated[rows], result.normalized_residuals[rows], s=18 + 1.5 * observed.J[rows],
+                   marker="os"[k % 2], label="%s (marker size grows with J)" % lab, alpha=0.8)
+for level, style in ((0, "-"), (1, ":"), (-1, ":"), (3, "--"), (-3, "--")):
+    ax_res.axhline(level, color="grey", ls=style, lw=0.8)
+ax_res.set_xlabel("calculated energy [cm-1]")
+ax_res.set_ylabel("(observed - calculated) / uncertainty")
+ax_res.set_title("normalised residuals; standard error %.3f" % result.standard_error)
+ax_res.legend(fontsize=8)
+fig.tight_layout()
+plt.show()"""),
+    ("md", """\
+The same fit runs from the command line: `python3 -m wkbfit demo` (or `make demo`), and for your own data
+`wkbfit fit levels.csv lennard-jones De=... re=... --vary n -o result.json`.
+
+*Reminder: the data above are invented; no number in this notebook describes the real LiCs molecule.*"""),
+]
+
+
+def build():
+    nb = new_notebook(cells=[new_markdown_cell(src) if kind == "md" else new_code_cell(src) for kind, src in CELLS])
+    nb.metadata["kernelspec"] = {"name": "python3", "display_name": "Python 3", "language": "python"}
+    nb.metadata["language_info"] = {"name": "python"}
+    nbformat.validate(nb)
+    path = os.path.join(os.path.dirname(os.path.abspath(__file__)), "demo_fit.ipynb")
+    nbformat.write(nb, path)
+    return path
+
+
+if __name__ == "__main__":
+    print("wrote %s" % build())

@@ -1,0 +1,427 @@
+"""The wkbfit command line.
+
+    wkbfit levels MODEL NAME=VALUE ... (--mu MU | --isotopologue LABEL) [-J J] [-v V] [--method wkb|exact]
+    wkbfit check DATAFILE [--energy-zero ZERO]
+    wkbfit fit DATAFILE MODEL NAME=VALUE ... [--mu MU | --mass LABEL=MU ...] [--fix NAME] [--vary NAME] [-o JSON]
+    wkbfit demo
+
+User errors (bad numbers, unreadable files, unknown names) print one line to stderr and exit with status 2
+(set WKBFIT_DEBUG=1 to see the traceback instead).
+"""
+import argparse
+import importlib.util
+import inspect
+import math
+import os
+import re
+import sys
+import warnings
+
+import numpy as np
+
+from . import potentials as _potentials
+
+__all__ = ["main", "MODELS"]
+
+EXIT_USAGE = 2
+
+
+class UserError(Exception):
+    """A mistake in the command line or the data: reported in one line, exit status 2."""
+
+
+class _Parser(argparse.ArgumentParser):
+    def error(self, message):
+        command = self.prog.split(" ", 1)[1] + ": " if " " in self.prog else ""
+        raise UserError("%s%s (see '%s --help')" % (command, message, self.prog))
+
+
+# -- potential models ---------------------------------------------------------------------
+def _model_names():
+    """Command-line name -> Potential subclass, for every model with adjustable parameters."""
+    out = {}
+    for cls in vars(_potentials).values():
+        if (isinstance(cls, type) and issubclass(cls, _potentials.Potential) and cls.model
+                and cls is not _potentials.PointwisePotential):
+            name = re.sub(r"(?<=[a-z])(?=[A-Z])", "-", cls.__name__).lower()
+            out[name] = cls
+    return dict(sorted(out.items()))
+
+
+MODELS = _model_names()
+
+
+def _find_model(name):
+    key = name.strip().lower().replace("_", "-")
+    for cli_name, cls in MODELS.items():
+        if key in (cli_name, cli_name.replace("-", ""), cls.model.replace("_", "-")):
+            return cls
+    raise UserError("unknown potential model %r; models: %s" % (name, ", ".join(MODELS)))
+
+
+def _model_signature(cls):
+    """[(parameter name, default or None)] of a model's constructor."""
+    params = list(inspect.signature(cls.__init__).parameters.values())[1:]
+    return [(p.name, None if p.default is inspect.Parameter.empty else p.default) for p in params
+            if p.kind in (p.POSITIONAL_OR_KEYWORD, p.KEYWORD_ONLY)]
+
+
+def _number(text, what):
+    try:
+        x = float(text)
+    except ValueError:
+        raise UserError("%s=%r is not a number" % (what, text)) from None
+    if not math.isfinite(x):
+        raise UserError("%s=%r is not a finite number" % (what, text))
+    return x
+
+
+def _build_potential(model, assignments):
+    cls = _find_model(model)
+    signature = _model_signature(cls)
+    names = [n for n, _ in signature]
+    values = {}
+    for item in assignments:
+        if "=" not in item:
+            raise UserError("parameter %r must be written NAME=VALUE (parameters of %s: %s)"
+                            % (item, cls.__name__, ", ".join(names)))
+        name, text = (s.strip() for s in item.split("=", 1))
+        if name not in names:
+            raise UserError("%s has no parameter %r; its parameters are %s" % (cls.__name__, name, ", ".join(names)))
+        if name in values:
+            raise UserError("parameter %s is given twice" % name)
+        parts = text.split(",")
+        values[name] = (_number(parts[0], name) if len(parts) == 1
+                        else [_number(p, name) for p in parts])
+    missing = [n for n, default in signature if default is None and n not in values]
+    if missing:
+        raise UserError("%s needs %s; write them as NAME=VALUE, for example %s" % (
+            cls.__name__, ", ".join(missing), " ".join("%s=..." % n for n in missing)))
+    return cls(**values)
+
+
+def _positive_int(text):
+    if not re.fullmatch(r"\s*\d+\s*", text) or int(text) < 1:
+        raise argparse.ArgumentTypeError("%r is not a whole number >= 1" % text)
+    return int(text)
+
+
+def _int_list(text, what):
+    """'3', '0,2,5' or '0-10' (inclusive) -> list of ints >= 0."""
+    out = []
+    for part in text.split(","):
+        part = part.strip()
+        m = re.fullmatch(r"(\d+)\s*-\s*(\d+)", part)
+        if m:
+            lo, hi = int(m.group(1)), int(m.group(2))
+            if hi < lo:
+                raise UserError("%s range %r is empty" % (what, part))
+            out.extend(range(lo, hi + 1))
+        elif re.fullmatch(r"\d+", part):
+            out.append(int(part))
+        else:
+            raise UserError("%s=%r: write a non-negative integer, a list such as 0,2,5 or a range such as 0-10"
+                            % (what, text))
+    return out
+
+
+def _mass_map(items):
+    """['LABEL=MU', ...] -> {label: reduced mass in u}."""
+    out = {}
+    for item in items or ():
+        if "=" not in item:
+            raise UserError("--mass %r must be written LABEL=MU (an isotopologue label and its reduced mass in u)"
+                            % item)
+        label, text = (s.strip() for s in item.split("=", 1))
+        out[label] = _number(text, "--mass %s" % label)
+    return out
+
+
+# -- subcommands --------------------------------------------------------------------------
+def _cmd_levels(args, out):
+    from .levels import levels
+    if args.method == "exact" and importlib.util.find_spec("wkbfit.exact") is None:
+        raise UserError("--method exact needs the exact radial solver, which this build of wkbfit does not have")
+    pot = _build_potential(args.model, args.params)
+    if args.mu is not None and args.isotopologue is not None:
+        raise UserError("give either --mu or --isotopologue, not both")
+    if args.mu is None and args.isotopologue is None:
+        raise UserError("give the reduced mass: --mu MU (in u) or --isotopologue LABEL (such as 7Li133Cs)")
+    mu = args.mu if args.mu is not None else args.isotopologue
+    Js = _int_list(args.J, "-J")
+    vs = None if args.v is None else _int_list(args.v, "-v")
+    table = levels(pot, mu, v=vs, J=Js if len(Js) > 1 else Js[0], method=args.method, langer=args.langer)
+    if args.csv:
+        cols = table.columns
+        print(",".join(cols), file=out)
+        for i in range(len(table)):
+            print(",".join(repr(getattr(table, c)[i].item()) for c in cols), file=out)
+    else:
+        if args.isotopologue is not None:
+            print("isotopologue %s" % args.isotopologue, file=out)
+        print(table.to_text(), file=out)
+    return 0
+
+
+def _cmd_check(args, out):
+    from .observed import read_levels
+    obs = read_levels(args.datafile, energy_zero=args.energy_zero)
+    for line in obs.comments:
+        print("# " + line, file=out)
+    print(repr(obs), file=out)
+    masses = obs.masses_by_isotopologue(_mu_argument(args, obs))
+    for label in obs.isotopologues:
+        rows = obs.rows_of(label)
+        print("  %-12s %3d levels, v = %d..%d, J = %s, sigma = %.3g..%.3g cm-1, reduced mass %.10g u" % (
+            label or "unnamed", len(rows), obs.v[rows].min(), obs.v[rows].max(),
+            ",".join(str(j) for j in sorted(set(obs.J[rows].tolist()))),
+            obs.uncertainty[rows].min(), obs.uncertainty[rows].max(), masses[label]), file=out)
+    return 0
+
+
+def _mu_argument(args, obs):
+    masses = _mass_map(args.mass)
+    if args.mu is not None and masses:
+        raise UserError("give either --mu (one isotopologue) or --mass LABEL=MU, not both")
+    if args.mu is not None:
+        return args.mu
+    if masses:
+        return masses
+    return None
+
+
+def _fit_kwargs(args, pot):
+    names = list(pot.param_names)
+    for name in (args.fix or []) + (args.vary or []):
+        if name not in names:
+            raise UserError("%s has no parameter %r; its parameters are %s" % (type(pot).__name__, name,
+                                                                                  ", ".join(names)))
+    both = set(args.fix or []) & set(args.vary or [])
+    if both:
+        raise UserError("parameter %s is both fixed and varied" % ", ".join(sorted(both)))
+    kwargs = {"method": args.method}
+    if args.fix or args.vary:
+        vary = {n: (n not in getattr(pot, "fixed_by_default", ())) for n in names}
+        vary.update({n: False for n in args.fix or []})
+        vary.update({n: True for n in args.vary or []})
+        kwargs["vary"] = vary
+    if args.scale_uncertainties is not None:
+        kwargs["scale_uncertainties"] = args.scale_uncertainties
+    return kwargs
+
+
+def _cmd_fit(args, out):
+    from .fitting import fit
+    from .observed import read_levels
+    obs = read_levels(args.datafile, energy_zero=args.energy_zero)
+    pot = _build_potential(args.model, args.params)
+    mu = _mu_argument(args, obs)
+    result = fit(pot, obs, mu, **_fit_kwargs(args, pot))
+    print(result.report(), file=out)
+    for label in obs.isotopologues:
+        print("", file=out)
+        pred = result.predict(isotopologue=label) if label is not None else result.predict()
+        print(_format_prediction(pred, "isotopologue %s" % label if label else "the fitted reduced mass",
+                                 args.near), file=out)
+    for target in args.predict or []:
+        print("", file=out)
+        print(_prediction_text(result, target, args.near), file=out)
+    path = args.output or _default_json_path(args.datafile)
+    result.save_json(path)
+    print("\nfit result written to %s" % path, file=out)
+    return 0 if _fit_ok(result) else 1
+
+
+def _default_json_path(datafile):
+    stem = os.path.splitext(os.path.basename(os.fspath(datafile)))[0]
+    return stem + "-fit.json"
+
+
+def _fit_ok(result):
+    return bool(result.success)
+
+
+def _prediction_text(result, target, near):
+    """Predicted levels near dissociation for an isotopologue label or a reduced mass in u."""
+    try:
+        mu = float(target)
+    except ValueError:
+        return _format_prediction(result.predict(isotopologue=target), "isotopologue %s" % target, near)
+    return _format_prediction(result.predict(mu=mu), "reduced mass %.10g u" % mu, near)
+
+
+def _format_prediction(pred, title, near):
+    return "Predicted levels near dissociation, %s\n%s" % (title, pred.to_text(last=near))
+
+
+def _cmd_demo(args, out):
+    from . import demo
+    from .fitting import fit
+    from .levels import levels
+    from .observed import read_levels
+    obs = read_levels(demo.demo_data_path(), energy_zero="minimum")
+    print("=" * 100, file=out)
+    print(demo.DEMO_BANNER, file=out)
+    print("=" * 100, file=out)
+    for line in obs.comments:
+        print("# " + line, file=out)
+    print("", file=out)
+    print("%r" % obs, file=out)
+    start = demo.demo_start_potential()
+    vary = {n: n in demo.DEMO_VARY for n in start.param_names}
+    print("\nFitting %s with %s varied, starting from %r (method %s)\n" % (
+        type(start).__name__, ", ".join(demo.DEMO_VARY), start, args.method), file=out)
+    result = fit(start, obs, None, method=args.method, vary=vary)
+    print(result.report(), file=out)
+    true = demo.demo_true_potential()
+    for label in obs.isotopologues:
+        pred = result.predict(isotopologue=label)
+        print("", file=out)
+        print(_format_prediction(pred, "isotopologue %s (INVENTED state)" % label, args.near), file=out)
+        # the invented scenario knows its truth: compare the predictions with it
+        true_energy = levels(true, result.masses[label]).energy
+        n = min(len(true_energy), pred.n_bound)
+        shown = slice(max(0, n - args.near), n)
+        pulls = (true_energy[shown] - pred.energy[shown]) / pred.energy_uncertainty[shown]
+        print("Against the generating potential (known only because the data are invented): %d bound levels "
+              "(predicted %d), largest |true - predicted|/sigma over the levels shown %.2f" % (
+                  len(true_energy), pred.n_bound, float(np.max(np.abs(pulls)))), file=out)
+    print("", file=out)
+    print("The generating ('true') potential of this invented data set was %r." % true, file=out)
+    print(demo.DEMO_BANNER, file=out)
+    if args.output:
+        result.save_json(args.output)
+        print("fit result written to %s" % args.output, file=out)
+    return 0 if _fit_ok(result) else 1
+
+
+# -- parser -------------------------------------------------------------------------------
+def _parser():
+    models_help = ", ".join("%s (%s)" % (name, ", ".join(
+        "%s%s" % (n, "" if d is None else "=%g" % d) for n, d in _model_signature(cls)))
+        for name, cls in MODELS.items())
+    parser = _Parser(prog="wkbfit", description=(
+        "WKB and exact levels of diatomic potentials, and weighted fits of potentials to measured levels. "
+        "Units: energies cm-1, distances angstrom, masses u."),
+        epilog="Run 'wkbfit COMMAND --help' for the options of a command. Exit status: 0 done, 1 a fit did not "
+               "converge (its best point is still reported), 2 a mistake in the command or the data (one line on "
+               "stderr; WKBFIT_DEBUG=1 shows the traceback).")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+
+    p = sub.add_parser("levels", help="list the levels of a potential",
+                       description="List the bound levels of a potential model as a text table. "
+                                   "Models and parameters: " + models_help + ".")
+    p.add_argument("model", help="potential model: " + ", ".join(MODELS))
+    p.add_argument("params", nargs="*", metavar="NAME=VALUE",
+                   help="model parameters, e.g. De=4000 re=4.0 a=1.2 (De in cm-1, re in angstrom)")
+    p.add_argument("--mu", type=lambda s: _number(s, "--mu"), help="reduced mass in u")
+    p.add_argument("--isotopologue", "-i", metavar="LABEL",
+                   help="isotopologue label such as 7Li133Cs (masses from the mass table)")
+    p.add_argument("-J", default="0", help="rotational quantum number(s): 0, a list 0,5,10 or a range 0-5 "
+                                           "(default 0)")
+    p.add_argument("-v", default=None, help="vibrational level(s) to list (default: every bound level)")
+    p.add_argument("--method", choices=("wkb", "exact"), default="wkb",
+                   help="wkb (first-order semiclassical, default) or exact (radial Schroedinger equation)")
+    p.add_argument("--langer", action="store_true", help="use (J+1/2)^2 for the centrifugal term (WKB only)")
+    p.add_argument("--csv", action="store_true", help="print comma-separated values instead of a table")
+    p.set_defaults(run=_cmd_levels)
+
+    def data_options(p):
+        p.add_argument("datafile", help="CSV file with columns v, energy, uncertainty (cm-1, 1 sigma), "
+                                        "optional J and isotopologue; lines starting with # are comments")
+        p.add_argument("--energy-zero", choices=("minimum", "lowest", "asymptote"), default="minimum",
+                       help="what the energies are measured from: minimum (term values above the potential "
+                            "minimum, default), lowest (the lowest level of each isotopologue) or asymptote "
+                            "(binding energies, positive)")
+        p.add_argument("--mu", type=lambda s: _number(s, "--mu"),
+                       help="reduced mass in u (data of one isotopologue)")
+        p.add_argument("--mass", action="append", metavar="LABEL=MU",
+                       help="reduced mass in u for one isotopologue label (repeat for several); labels without "
+                            "one take their masses from the mass table")
+
+    p = sub.add_parser("check", help="read and validate a levels file",
+                       description="Read a levels file, report what it holds and the reduced masses, "
+                                   "or say which row and column is wrong.")
+    data_options(p)
+    p.set_defaults(run=_cmd_check)
+
+    p = sub.add_parser("fit", help="fit a potential to a levels file",
+                       description="Fit a potential model to measured levels by weighted least squares, print the "
+                                   "report and the predicted levels near dissociation, and write the full result "
+                                   "as JSON. Models and parameters: "
+                                   + models_help + ".")
+    data_options(p)
+    p.add_argument("model", help="potential model: " + ", ".join(MODELS))
+    p.add_argument("params", nargs="*", metavar="NAME=VALUE", help="starting values of the model parameters")
+    p.add_argument("--fix", action="append", metavar="NAME", help="keep this parameter at its starting value")
+    p.add_argument("--vary", action="append", metavar="NAME",
+                   help="vary this parameter (for one fixed by default, such as the Lennard-Jones n and m)")
+    p.add_argument("--method", choices=("wkb", "exact"), default="wkb", help="level calculation (default wkb)")
+    scale = p.add_mutually_exclusive_group()
+    scale.add_argument("--scale-uncertainties", dest="scale_uncertainties", action="store_const", const=True,
+                       default=None, help="scale parameter uncertainties by the dimensionless standard error")
+    scale.add_argument("--no-scale-uncertainties", dest="scale_uncertainties", action="store_const", const=False,
+                       help="take the data uncertainties as they are")
+    p.add_argument("--predict", action="append", metavar="LABEL_OR_MU",
+                   help="besides the isotopologues of the data, print the predicted levels for this isotopologue "
+                        "label or reduced mass in u (repeat for several)")
+    p.add_argument("--near", type=_positive_int, default=10, metavar="N",
+                   help="number of levels nearest dissociation to print for each isotopologue (default 10)")
+    p.add_argument("-o", "--output", metavar="JSON",
+                   help="where to write the fit result (default: DATAFILE name with -fit.json, in the current "
+                        "directory)")
+    p.set_defaults(run=_cmd_fit)
+
+    p = sub.add_parser("demo", help="fit the shipped INVENTED demo data",
+                       description="The main job on shipped demo data: read the INVENTED levels of an invented "
+                                   "state of LiCs (two isotopologues), fit a Lennard-Jones potential, print the "
+                                   "report and the predicted levels near dissociation. The data are made up, "
+                                   "not measurements.")
+    p.add_argument("--method", choices=("wkb", "exact"), default="wkb", help="level calculation (default wkb)")
+    p.add_argument("--near", type=_positive_int, default=10, metavar="N",
+                   help="number of levels nearest dissociation to print (default 10)")
+    p.add_argument("-o", "--output", metavar="JSON", help="also write the fit result as JSON")
+    p.set_defaults(run=_cmd_demo)
+    return parser
+
+
+def _show_warning(message, category, filename, lineno, file=None, line=None):
+    print("wkbfit: warning: %s" % " ".join(str(message).split()), file=sys.stderr)
+
+
+def main(argv=None, out=None):
+    """Run the command line; returns the exit status (0 ok, 1 fit not converged, 2 user error)."""
+    out = out or sys.stdout
+    parser = _parser()
+    try:
+        try:
+            args = parser.parse_args(argv)
+        except SystemExit as done:  # --help
+            return done.code if isinstance(done.code, int) else 0
+        if args.command is None:
+            parser.print_help(out)
+            return EXIT_USAGE
+        with warnings.catch_warnings():
+            warnings.simplefilter("always")
+            warnings.showwarning = _show_warning
+            return args.run(args, out)
+    except UserError as err:
+        print("wkbfit: error: %s" % err, file=sys.stderr)
+        return EXIT_USAGE
+    except BrokenPipeError:
+        # output piped into a reader that stopped early (e.g. `| head`): not an error of ours
+        try:
+            sys.stdout = open(os.devnull, "w")
+        except OSError:
+            pass
+        return 0
+    except (ValueError, OSError) as err:
+        if os.environ.get("WKBFIT_DEBUG"):
+            raise
+        message = " ".join(str(err).split())
+        print("wkbfit: error: %s" % message, file=sys.stderr)
+        return EXIT_USAGE
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,217 @@
+"""Exact bound levels of the radial Schroedinger equation, and their comparison with WKB.
+
+The equation -eps u'' + [V(r) + eps J(J+1)/r^2] u = E u (eps = hbar^2/(2 mu), true J(J+1))
+is solved in C (csrc/radial.c): Numerov's method on a mapped grid in Johnson's renormalized
+form, v from node counting, Newton/Cooley energy corrections and Richardson extrapolation
+over three steps. Every call crosses into the core once with all J values.
+
+`exact_levels` is what `wkbfit.levels(..., method="exact")` returns; `exact_wavefunction`
+gives u(r); `compare_wkb_exact` tabulates WKB minus exact level by level.
+"""
+import math
+import warnings
+
+import numpy as np
+
+from . import _core
+from .levels import LevelTable, levels as _levels
+from .masses import as_reduced_mass
+from .potentials import Potential
+
+__all__ = ["exact_levels", "exact_wavefunction", "compare_wkb_exact", "WKBComparison"]
+
+#: default target accuracy of every level, cm-1 (the reported error column is honest)
+DEFAULT_TOLERANCE = 1e-7
+#: default smallest binding energy (cm-1) the grid is built to converge
+DEFAULT_MIN_BINDING = 1e-7
+
+
+def _check_potential(potential):
+    if not isinstance(potential, Potential):
+        raise ValueError("potential must be a wkbfit potential object (Morse, LennardJones, ...), got %r"
+                         % (potential,))
+
+
+def _positive(name, value):
+    try:
+        x = float(value)
+    except (TypeError, ValueError):
+        raise ValueError("%s=%r is not a number; give a value > 0 in cm-1" % (name, value)) from None
+    if not (math.isfinite(x) and x > 0):
+        raise ValueError("%s=%r is invalid: give a finite value > 0 in cm-1" % (name, value))
+    return x
+
+
+def _ints(x, name):
+    arr = np.atleast_1d(np.asarray(x))
+    if arr.ndim != 1 or arr.size == 0:
+        raise ValueError("%s must be a non-negative integer or a non-empty list of them; got %r" % (name, x))
+    out = []
+    for e in arr.tolist():
+        if isinstance(e, bool) or not isinstance(e, (int, float)) or not math.isfinite(e) or e != int(e):
+            raise ValueError("%s=%r is invalid: give non-negative integers" % (name, e))
+        if e < 0:
+            raise ValueError("%s=%d is invalid: quantum numbers are >= 0" % (name, int(e)))
+        if e > 100000:
+            raise ValueError("%s=%d is out of range: give a value below 100000" % (name, int(e)))
+        out.append(int(e))
+    return out
+
+
+def _core_call(potential, mu, vs, Js, tolerance, min_binding, **flags):
+    model, params, curve = potential._core_args()
+    return _core.exact_levels(model, params, curve, float(mu), np.asarray(Js, dtype=np.intc),
+                              None if vs is None else np.asarray(vs, dtype=np.intc),
+                              energy_tol=tolerance, min_binding=min_binding, **flags)
+
+
+def exact_levels(potential, mu, vs=None, Js=(0,), *, tolerance=DEFAULT_TOLERANCE,
+                 min_binding=DEFAULT_MIN_BINDING):
+    """Exact levels as a `LevelTable` (method "exact").
+
+    potential: a Potential; mu: reduced mass in u (or isotope labels, see `as_reduced_mass`);
+    vs: None for every bound level, or a list of v; Js: list of J.
+    tolerance: target accuracy of every level in cm-1; the `error` column holds the
+    estimated numerical error of each energy (Richardson extrapolation + truncation).
+    min_binding: levels bound by less than this (cm-1) may be missed or carry a larger error.
+    Raises ValueError for bad input, a v above the last bound level, or no well.
+    """
+    _check_potential(potential)
+    mu = as_reduced_mass(mu)
+    Js = _ints(Js, "J")
+    vs = None if vs is None else _ints(vs, "v")
+    tolerance = _positive("tolerance", tolerance)
+    min_binding = _positive("min_binding", min_binding)
+    res = _core_call(potential, mu, vs, Js, tolerance, min_binding)
+    cols = {c: res[c] for c in ("v", "J", "energy", "binding_energy", "inner_turning_point",
+                                "outer_turning_point", "Bv", "dEdv", "error")}
+    counts = {J: int(c) for J, c in zip(Js, res["count"].tolist())}
+    notes = ["exact radial solution; error = estimated numerical error of the energy; dEdv = classical "
+             "vibrational quantum at the level energy",
+             "bound levels: " + ", ".join("J=%d: %d" % (J, c) for J, c in counts.items())]
+    table = LevelTable(cols, mu=mu, method="exact", potential=potential, vD={}, notes=notes)
+    table.bound_counts = counts
+    worst = np.nanmax(table.error) if len(table) else 0.0
+    if worst > 10 * tolerance:
+        i = int(np.nanargmax(table.error))
+        warnings.warn("exact level v=%d, J=%d has an estimated error of %.2g cm-1 (tolerance %.2g): it is "
+                      "bound by only %.3g cm-1; lower min_binding to converge it"
+                      % (table.v[i], table.J[i], worst, tolerance, table.binding_energy[i]), RuntimeWarning,
+                      stacklevel=2)
+    return table
+
+
+def exact_wavefunction(potential, mu, v, J=0, *, tolerance=DEFAULT_TOLERANCE, min_binding=DEFAULT_MIN_BINDING):
+    """(r, u): the normalized radial wavefunction of level (v, J) on the solver's grid.
+
+    r in angstrom (non-uniform grid), u in angstrom^-1/2 with integral u^2 dr = 1, u > 0 near
+    the inner wall and u = 0 at both ends of the grid.
+    """
+    _check_potential(potential)
+    mu = as_reduced_mass(mu)
+    if np.ndim(v) != 0 or np.ndim(J) != 0:
+        raise ValueError("v and J must be single non-negative integers for a wavefunction; got v=%r, J=%r"
+                         % (v, J))
+    v = _ints(v, "v")[0]
+    J = _ints(J, "J")[0]
+    res = _core_call(potential, mu, [v], [J], _positive("tolerance", tolerance),
+                     _positive("min_binding", min_binding), want_wavefunctions=True)
+    return res["wavefunctions"][0]
+
+
+class WKBComparison:
+    """WKB and exact energies level by level, for one potential, mass and J.
+
+    Attributes (NumPy arrays, one row per level bound in both): v, J, wkb_energy,
+    exact_energy, difference (= WKB - exact, cm-1), exact_error (numerical error of the exact
+    energy), binding_energy (exact). `only_wkb` / `only_exact` list levels one method binds and
+    the other does not.
+    """
+
+    def __init__(self, wkb, exact, potential, mu):
+        self.potential = potential
+        self.mu = mu
+        key_w = {(int(v), int(J)): i for i, (v, J) in enumerate(zip(wkb.v, wkb.J))}
+        key_e = {(int(v), int(J)): i for i, (v, J) in enumerate(zip(exact.v, exact.J))}
+        common = sorted(set(key_w) & set(key_e), key=lambda k: (k[1], k[0]))
+        iw = np.array([key_w[k] for k in common], dtype=int)
+        ie = np.array([key_e[k] for k in common], dtype=int)
+        self.v = np.array([k[0] for k in common], dtype=int)
+        self.J = np.array([k[1] for k in common], dtype=int)
+        self.wkb_energy = wkb.energy[iw] if len(iw) else np.empty(0)
+        self.exact_energy = exact.energy[ie] if len(ie) else np.empty(0)
+        self.difference = self.wkb_energy - self.exact_energy
+        self.exact_error = exact.error[ie] if len(ie) else np.empty(0)
+        self.binding_energy = exact.binding_energy[ie] if len(ie) else np.empty(0)
+        self.only_wkb = sorted(set(key_w) - set(key_e))
+        self.only_exact = sorted(set(key_e) - set(key_w))
+        for a in (self.v, self.J, self.wkb_energy, self.exact_energy, self.difference, self.exact_error,
+                  self.binding_energy):
+            a.setflags(write=False)
+
+    def __len__(self):
+        return len(self.v)
+
+    def largest_difference(self):
+        """(v, J, WKB - exact) of the level where |WKB - exact| is largest."""
+        if not len(self):
+            raise ValueError("no level is bound in both the WKB and the exact calculation")
+        i = int(np.argmax(np.abs(self.difference)))
+        return int(self.v[i]), int(self.J[i]), float(self.difference[i])
+
+    def good_enough(self, uncertainty):
+        """Boolean array: |WKB - exact| <= uncertainty (cm-1, scalar or one value per row)."""
+        u = np.broadcast_to(np.asarray(uncertainty, dtype=float), self.difference.shape)
+        if not np.all(np.isfinite(u)) or np.any(u <= 0):
+            raise ValueError("uncertainty must be finite and > 0 (cm-1); got %r" % (uncertainty,))
+        return np.abs(self.difference) <= u
+
+    def to_dataframe(self):
+        import pandas as pd
+        return pd.DataFrame({"v": self.v, "J": self.J, "wkb_energy": self.wkb_energy,
+                             "exact_energy": self.exact_energy, "difference": self.difference,
+                             "exact_error": self.exact_error, "binding_energy": self.binding_energy})
+
+    def to_text(self, uncertainty=None):
+        """A plain-text table; with `uncertainty` (cm-1) a last column says whether WKB is within it."""
+        head = "%4s %4s %18s %18s %13s %10s %14s" % ("v", "J", "WKB [cm-1]", "exact [cm-1]",
+                                                   "WKB-exact", "exact err", "binding [cm-1]")
+        if uncertainty is not None:
+            ok = self.good_enough(uncertainty)
+            head += "  within %.3g" % float(np.max(uncertainty))
+        lines = ["WKB versus exact levels of %r, mu = %.10g u" % (self.potential, self.mu), head]
+        for i in range(len(self)):
+            line = "%4d %4d %18.8f %18.8f %13.3e %10.1e %14.6g" % (
+                self.v[i], self.J[i], self.wkb_energy[i], self.exact_energy[i], self.difference[i],
+                self.exact_error[i], self.binding_energy[i])
+            if uncertainty is not None:
+                line += "  %s" % ("yes" if ok[i] else "NO")
+            lines.append(line)
+        if len(self):
+            v, J, d = self.largest_difference()
+            lines.append("largest |WKB - exact| = %.3e cm-1 at v=%d, J=%d" % (abs(d), v, J))
+        if self.only_exact:
+            lines.append("bound only in the exact calculation: " +
+                         ", ".join("v=%d J=%d" % k for k in self.only_exact))
+        if self.only_wkb:
+            lines.append("bound only in WKB: " + ", ".join("v=%d J=%d" % k for k in self.only_wkb))
+        return "\n".join(lines)
+
+    def __str__(self):
+        return self.to_text()
+
+    def __repr__(self):
+        return "<WKBComparison: %d levels, mu=%.8g u>" % (len(self), self.mu)
+
+
+def compare_wkb_exact(potential, mu, J=0, v=None, *, tolerance=DEFAULT_TOLERANCE):
+    """WKB minus exact energy for every level bound in both (or the levels v), at each J.
+
+    Returns a `WKBComparison`; `str()` of it is a plain-text table, and
+    `to_text(uncertainty=0.01)` marks the levels where WKB is within that uncertainty.
+    """
+    _check_potential(potential)
+    mu = as_reduced_mass(mu)
+    wkb = _levels(potential, mu, v=v, J=J, method="wkb")
+    exact = exact_levels(potential, mu, None if v is None else _ints(v, "v"), _ints(J, "J"), tolerance=tolerance)
+    return WKBComparison(wkb, exact, potential, mu)
