@@ -42,6 +42,25 @@ wkb_settings wkb_default_settings(void)
     return s;
 }
 
+/* In s with r - r_turn ~ s^2, every orbit integrand is an even function of s, so the n-point rule on
+   [-1, 1] needs only its n/2 positive nodes: twice the accuracy per evaluation of a rule on [0, 1]. */
+static int even_half_rule(size_t n, double *x, double *wt)
+{
+    gsl_integration_glfixed_table *table = gsl_integration_glfixed_table_alloc(n);
+    int status = table ? GSL_SUCCESS : GSL_ENOMEM;
+    for (size_t i = 0, k = 0; i < n && !status; i++) {
+        double xi, wi;
+        status = gsl_integration_glfixed_point(-1.0, 1.0, i, &xi, &wi, table);
+        if (!status && xi > 0 && k < n / 2) {
+            x[k] = xi;
+            wt[k++] = wi;
+        }
+    }
+    if (table)
+        gsl_integration_glfixed_table_free(table);
+    return status;
+}
+
 wkb_well *wkb_well_alloc(const wkb_settings *settings)
 {
     wkb_well *w = calloc(1, sizeof *w);
@@ -49,20 +68,28 @@ wkb_well *wkb_well_alloc(const wkb_settings *settings)
     if (!w)
         return NULL;
     w->set = settings ? *settings : wkb_default_settings();
-    if (w->set.nodes < 4 || w->set.nodes > 2000 || w->set.scan_points < 16 || w->set.max_newton < 1 ||
+    if (w->set.nodes < 4 || w->set.nodes > 2000 || w->set.nodes % 2 || w->set.scan_points < 16 || w->set.max_newton < 1 ||
         (w->set.order != 1 && w->set.order != 2))
         goto fail;
     w->scan_r = malloc(w->set.scan_points * sizeof(double));
     w->scan_V = malloc(w->set.scan_points * sizeof(double));
     w->gl_x = malloc(w->set.nodes * sizeof(double));
     w->gl_w = malloc(w->set.nodes * sizeof(double));
+    w->even_x = malloc(w->set.nodes / 2 * sizeof(double));
+    w->even_w = malloc(w->set.nodes / 2 * sizeof(double));
+    w->even2_x = malloc(w->set.nodes * sizeof(double));
+    w->even2_w = malloc(w->set.nodes * sizeof(double));
     table = gsl_integration_glfixed_table_alloc(w->set.nodes);
-    if (!w->scan_r || !w->scan_V || !w->gl_x || !w->gl_w || !table)
+    if (!w->scan_r || !w->scan_V || !w->gl_x || !w->gl_w || !w->even_x || !w->even_w || !w->even2_x ||
+        !w->even2_w || !table)
         goto fail;
     for (size_t i = 0; i < w->set.nodes; i++)
         if (gsl_integration_glfixed_point(0.0, 1.0, i, &w->gl_x[i], &w->gl_w[i], table) != GSL_SUCCESS)
             goto fail;
     gsl_integration_glfixed_table_free(table);
+    table = NULL;
+    if (even_half_rule(w->set.nodes, w->even_x, w->even_w) || even_half_rule(2 * w->set.nodes, w->even2_x, w->even2_w))
+        goto fail;
     return w;
 fail:
     if (table)
@@ -79,6 +106,10 @@ void wkb_well_free(wkb_well *w)
     free(w->scan_V);
     free(w->gl_x);
     free(w->gl_w);
+    free(w->even_x);
+    free(w->even_w);
+    free(w->even2_x);
+    free(w->even2_w);
     free(w->cache_w);
     free(w->cache_slope);
     free(w->cache_ok);
@@ -396,9 +427,9 @@ static void add_node(wkb_well *w, const energy_point *e, double r, double weight
 static void piece_inner(wkb_well *w, const energy_point *e, double r1, double rb, sums *s)
 {
     const double L = rb - r1;
-    for (size_t i = 0; i < w->set.nodes; i++) {
-        const double x = w->gl_x[i];
-        add_node(w, e, r1 + L * x * x, w->gl_w[i] * 2 * L * x, s);
+    for (size_t i = 0; i < w->set.nodes / 2; i++) {
+        const double x = w->even_x[i];
+        add_node(w, e, r1 + L * x * x, w->even_w[i] * 2 * L * x, s);
     }
 }
 
@@ -406,9 +437,9 @@ static void piece_inner(wkb_well *w, const energy_point *e, double r1, double rb
 static void piece_outer_linear(wkb_well *w, const energy_point *e, double rb, double r2, sums *s)
 {
     const double L = r2 - rb;
-    for (size_t i = 0; i < w->set.nodes; i++) {
-        const double x = w->gl_x[i];
-        add_node(w, e, r2 - L * x * x, w->gl_w[i] * 2 * L * x, s);
+    for (size_t i = 0; i < w->set.nodes / 2; i++) {
+        const double x = w->even_x[i];
+        add_node(w, e, r2 - L * x * x, w->even_w[i] * 2 * L * x, s);
     }
 }
 
@@ -416,8 +447,8 @@ static void piece_outer_linear(wkb_well *w, const energy_point *e, double rb, do
 static void piece_outer_end(wkb_well *w, const energy_point *e, double y2, double L, sums *s)
 {
     for (size_t i = 0; i < w->set.nodes; i++) {
-        const double x = w->gl_x[i], r = exp(y2 - L * x * x);
-        add_node(w, e, r, w->gl_w[i] * 2 * L * x * r, s);
+        const double x = w->even2_x[i], r = exp(y2 - L * x * x);
+        add_node(w, e, r, w->even2_w[i] * 2 * L * x * r, s);
     }
 }
 

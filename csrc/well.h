@@ -21,6 +21,8 @@ struct wkb_well {
     size_t n_ext;
     size_t ext[MAX_EXTREMA]; /* indices of local extrema of the scan, increasing */
     double *gl_x, *gl_w;     /* Gauss-Legendre nodes and weights on [0, 1] */
+    /* positive halves of the n-point and 2n-point rules on [-1, 1]: they integrate even functions on [0, 1] */
+    double *even_x, *even_w, *even2_x, *even2_w;
     double dVdp[WKB_MAX_PARAMS];
     /* turning points of the last orbit: Newton starts there for the next one */
     double last_tp[2];

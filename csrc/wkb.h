@@ -152,7 +152,8 @@ int wkb_airy_asymptotic(double z, int terms, double *ai, wkb_error *err);
 /* ---------------------------------------------------------------- orbit.c */
 /* Tunables of the semiclassical calculation (GSL-style defaults function). */
 typedef struct {
-    size_t nodes;          /* Gauss-Legendre nodes per quadrature piece */
+    size_t nodes;          /* Gauss-Legendre rule per quadrature piece (even; 32 and 64 are tabulated by GSL);
+                              pieces that end at a turning point use its symmetric half, nodes/2 points */
     double energy_tol;     /* absolute tolerance on a level, cm-1 */
     int max_newton;        /* Newton iterations per level */
     size_t scan_points;    /* grid points for the well analysis */
@@ -294,9 +295,11 @@ int wkb_radial_source_level(void *ctx, int v, double *energy, double *dEdp, wkb_
 /* Weighted least-squares fits of a potential's parameters to measured levels: GSL's
    trust-region Levenberg-Marquardt (gsl_multifit_nlinear, trs_lm, More scaling, QR) on
    f_i = (calc_i - obs_i)/sigma_i with the analytic Jacobian dE_v/dp_k = <dV/dp_k>
-   (Hellmann-Feynman applied to the quantization condition). Bounded parameters are
-   fitted through smooth transforms: logistic for two bounds, lo + exp(u) or hi - exp(u)
-   for one. */
+   (Hellmann-Feynman applied to the quantization condition), or <v|dV/dp_k|v> for exact
+   levels. Bounded parameters are fitted through smooth transforms: logistic for two
+   bounds, lo + exp(u) or hi - exp(u) for one. The solver works in variables whitened by
+   the SVD of the starting Jacobian (a fixed linear change of variables), and stops when
+   the Gauss-Newton step promises no significant decrease of chi-square. */
 
 /* What the observed energies are measured from. */
 enum wkb_energy_zero {
@@ -376,9 +379,12 @@ typedef struct {
 #define WKB_FIT_INSENSITIVE 1e-9
 
 /* Fits start's parameters to data. calc[n] and jac[n][n_params] (caller-owned) receive the
-   model and its derivatives at the returned point. Returns WKB_SUCCESS whenever a best
-   point exists, converged or not (see out->stop); an error status when the input is
-   invalid or the starting potential cannot compute a level (out->bad_row names it). */
+   model and its derivatives at the returned point; source NULL for first-order WKB levels.
+   Returns WKB_SUCCESS whenever a best point exists, converged or not (see out->stop).
+   Status: WKB_EINVAL (no data, bad v/mu/sigma, bounds, fewer levels than varied
+   parameters, no varied parameter the levels depend on); the status of a level the
+   starting potential cannot compute (WKB_ENOLEVEL, WKB_ENOWELL, ...; out->bad_row names
+   the row); WKB_ENUMERIC (GSL failure); WKB_ENOMEM. */
 int wkb_fit_run(const wkb_potential *start, const wkb_fit_data *data, const wkb_fit_spec *spec,
                 const wkb_fit_settings *settings, const wkb_level_source *source,
                 wkb_fit_outcome *out, double *calc, double *jac, wkb_error *err);
