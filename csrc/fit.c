@@ -14,6 +14,17 @@
  * is no longer bound, the well disappears) get huge residuals, so the trust region rejects
  * them and shrinks; the user's starting point must be valid.
  *
+ * The solver does not see u itself but y with u = u0 + V S^-1 y, from the SVD J0 = U S V^T of
+ * the weighted Jacobian at the start: the columns start orthonormal, so the Levenberg-
+ * Marquardt damping (GSL starts it at 1e-3 of the largest diagonal of J^T J and lowers it by
+ * at most 3x per step) no longer crawls along strongly correlated directions such as the
+ * two Lennard-Jones exponents. A linear change of variables moves no minimum.
+ *
+ * Convergence: the Gauss-Newton model promises a chi-square decrease g^T (J^T J)^-1 g
+ * (g = J^T f) below decrease_tol * max(1, chi2), i.e. the remaining parameter change is a
+ * tiny fraction of a standard deviation. GSL's step and gradient tests are used only when
+ * J^T J is singular.
+ *
  * The data are visited grouped by (reduced mass, J(J+1)), in ascending v, so that each well
  * workspace is set once per evaluation and each level starts from its neighbour. Everything
  * is allocated once per fit; nothing is allocated per level or per iteration.

@@ -7,8 +7,6 @@ finite differences, against scipy.optimize.least_squares, and against published 
 """
 import json
 import math
-import os
-import warnings
 
 import numpy as np
 import pytest

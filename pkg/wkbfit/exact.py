@@ -94,10 +94,11 @@ def exact_levels(potential, mu, vs=None, Js=(0,), *, tolerance=DEFAULT_TOLERANCE
     worst = np.nanmax(table.error) if len(table) else 0.0
     if worst > 10 * tolerance:
         i = int(np.nanargmax(table.error))
-        warnings.warn("exact level v=%d, J=%d has an estimated error of %.2g cm-1 (tolerance %.2g): it is "
-                      "bound by only %.3g cm-1; lower min_binding to converge it"
-                      % (table.v[i], table.J[i], worst, tolerance, table.binding_energy[i]), RuntimeWarning,
-                      stacklevel=2)
+        warnings.warn("exact level v=%d, J=%d (bound by %.3g cm-1) has an estimated error of %.2g cm-1, above "
+                      "the tolerance %.2g: the accuracy is limited by round-off in the recurrence (about "
+                      "1e-16 De/h^2 for a well of depth De), or, for a level bound by less than min_binding, "
+                      "by the extent of the grid" % (table.v[i], table.J[i], table.binding_energy[i], worst,
+                                                      tolerance), RuntimeWarning, stacklevel=2)
     return table
 
 

@@ -20,7 +20,7 @@ import numpy as np
 from . import _core
 from . import potentials as _potentials
 from .masses import as_reduced_mass, parse_isotopologue, reduced_mass
-from .observed import ObservedLevels, read_levels
+from .observed import read_levels
 from .potentials import Potential
 
 __all__ = ["fit", "FitResult", "Parameter", "Prediction", "FitWarning"]
@@ -493,7 +493,7 @@ class FitResult:
         idx = [names.index(self.var_names[j]) for j in det]
         return idx, self.covariance[np.ix_(det, det)]
 
-    def _propagate(self, grads, undetermined_grads):
+    def _propagate(self, grads):
         """One-sigma uncertainties of quantities with parameter gradients grads (rows)."""
         idx, cov = self._gradient_covariance()
         g = grads[:, idx]
@@ -557,19 +557,19 @@ class FitResult:
         else:
             notes.append("levels are exact levels of the fitted potential (radial Schroedinger equation); vD and "
                          "its uncertainty are semiclassical (first-order WKB)")
-        e_unc = self._propagate(G, None)
-        b_unc = self._propagate(dA[None, :] - G, None)
+        e_unc = self._propagate(G)
+        b_unc = self._propagate(dA[None, :] - G)
         if len(E) > 1:
             spacing = np.diff(E)
-            s_unc = self._propagate(np.diff(G, axis=0), None)
+            s_unc = self._propagate(np.diff(G, axis=0))
         else:
             spacing, s_unc = np.zeros(0), np.zeros(0)
         D0 = asym - E00
-        D0_unc = float(self._propagate((dA - G00)[None, :], None)[0]) if np.isfinite(D0) else math.nan
+        D0_unc = float(self._propagate((dA - G00)[None, :])[0]) if np.isfinite(D0) else math.nan
         vD = res["vD"]
         dvD = res["dvD_dp"]
         if np.all(np.isfinite(dvD[self._gradient_covariance()[0]])):
-            vD_unc = float(self._propagate(dvD[None, :], None)[0])
+            vD_unc = float(self._propagate(dvD[None, :])[0])
         else:
             vD_unc = math.nan
             notes.append("the uncertainty of vD could not be computed (a perturbed potential is invalid)")
