@@ -37,7 +37,7 @@ wkb_settings wkb_default_settings(void)
     s.nodes = 32;
     s.energy_tol = 1e-11;
     s.max_newton = 60;
-    s.scan_points = 400;
+    s.scan_points = 160;
     s.order = 1;
     return s;
 }

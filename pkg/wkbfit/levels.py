@@ -44,7 +44,8 @@ class LevelTable:
     def __init__(self, columns, *, mu, method, potential, vD=None, notes=()):
         n = len(columns["v"])
         for name in _COLUMNS:
-            col = np.asarray(columns.get(name, np.full(n, np.nan)), dtype=float if name not in ("v", "J") else int)
+            col = columns.get(name)
+            col = np.asarray(np.full(n, np.nan) if col is None else col, dtype=int if name in ("v", "J") else float)
             if len(col) != n:
                 raise ValueError("column %s has %d rows, expected %d" % (name, len(col), n))
             col.setflags(write=False)
@@ -127,10 +128,16 @@ class LevelTable:
 
 
 def _as_int_list(x, name):
-    arr = np.atleast_1d(np.asarray(x))
-    if arr.ndim != 1 or not all(float(e) == int(e) for e in arr.tolist() if np.isfinite(e)) or not np.all(np.isfinite(arr.astype(float))):
-        raise ValueError("%s must be a non-negative integer or a list of them; got %r" % (name, x))
-    out = [int(e) for e in arr.tolist()]
+    if isinstance(x, (int, np.integer)) and not isinstance(x, bool):
+        out = [int(x)]
+    else:
+        try:
+            arr = np.atleast_1d(np.asarray(x, dtype=float))
+        except (TypeError, ValueError):
+            arr = None
+        if arr is None or arr.ndim != 1 or not np.all(np.isfinite(arr)) or np.any(arr != np.round(arr)):
+            raise ValueError("%s must be a non-negative integer or a list of them; got %r" % (name, x))
+        out = [int(e) for e in arr.tolist()]
     bad = [e for e in out if e < 0]
     if bad:
         raise ValueError("%s=%d is invalid: quantum numbers are >= 0" % (name, bad[0]))
@@ -189,5 +196,5 @@ def _wkb_levels(potential, mu, vs, Js, langer, maslov, order=1):
         res["J"] = np.full(len(res["v"]), J)
         vD[J] = None if math.isnan(res["vD"]) else res["vD"]
         parts.append(res)
-    cols = {c: np.concatenate([p[c] for p in parts]) for c in _COLUMNS}
+    cols = parts[0] if len(parts) == 1 else {c: np.concatenate([p[c] for p in parts]) for c in _COLUMNS}
     return LevelTable(cols, mu=mu, method="wkb" if order == 1 else "wkb2", potential=potential, vD=vD)
