@@ -44,6 +44,7 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include <gsl/gsl_errno.h>
 #include <gsl/gsl_integration.h>
 
 #include "wkb.h"
@@ -96,6 +97,9 @@ struct wkb_radial {
     double r_bottom, omega; /* position of the minimum, harmonic quantum there */
     size_t n_bound;    /* levels below the asymptote on the fine grid */
     size_t n_bound_coarse;
+
+    /* scratch for the well scan, allocated with the workspace */
+    double *scan_r, *scan_k;
 
     /* per-level cache for this (potential, mu, J) */
     size_t cache_cap, dvdp_cap;
@@ -157,8 +161,10 @@ wkb_radial *wkb_radial_alloc(const wkb_radial_settings *settings)
         return NULL;
     }
     w->gl = gsl_integration_glfixed_table_alloc(RADIAL_GL_NODES);
-    if (!w->gl) {
-        free(w);
+    w->scan_r = malloc(RADIAL_SCAN_MAX * sizeof(double));
+    w->scan_k = malloc(RADIAL_SCAN_MAX * sizeof(double));
+    if (!w->gl || !w->scan_r || !w->scan_k) {
+        wkb_radial_free(w);
         return NULL;
     }
     w->wf_v = -1;
@@ -185,6 +191,8 @@ void wkb_radial_free(wkb_radial *w)
     free(w->cache);
     free(w->cache_dvdp);
     free(w->cache_has_dvdp);
+    free(w->scan_r);
+    free(w->scan_k);
     if (w->gl)
         gsl_integration_glfixed_table_free(w->gl);
     free(w);
@@ -350,7 +358,7 @@ static double choose_step(const wkb_radial *w)
 static int build_grid(wkb_radial *w, wkb_error *err)
 {
     const wkb_model *model = w->pot.model;
-    double *rs_scan = NULL, *kk = NULL;
+    double *rs_scan = w->scan_r, *kk = w->scan_k;
     int status = WKB_SUCCESS;
 
     double r_lo = model->r_inner_scan(&w->pot);
@@ -358,12 +366,6 @@ static int build_grid(wkb_radial *w, wkb_error *err)
     if (!(r_lo > 0) || !isfinite(r_lo) || !(r_hint > r_lo) || !isfinite(r_hint))
         return wkb_fail(err, WKB_EINVAL, "the potential gives no usable scan range (r_inner_scan=%g, r_min=%g A)",
                         r_lo, r_hint);
-    rs_scan = malloc(RADIAL_SCAN_MAX * sizeof(double));
-    kk = malloc(RADIAL_SCAN_MAX * sizeof(double));
-    if (!rs_scan || !kk) {
-        status = wkb_fail(err, WKB_ENOMEM, "out of memory for the well scan");
-        goto cleanup;
-    }
 
     /* Geometric scan from the inner wall outward until the threshold tail is left behind. */
     const double b_floor = w->set.min_binding;
@@ -532,8 +534,6 @@ static int build_grid(wkb_radial *w, wkb_error *err)
         }
     }
 cleanup:
-    free(rs_scan);
-    free(kk);
     return status;
 }
 
@@ -934,7 +934,8 @@ static double classical_spacing(const wkb_radial *w, double b, double r1, double
     double sum = 0;
     for (size_t k = 0; k < RADIAL_GL_NODES; k++) {
         double t, wk;
-        gsl_integration_glfixed_point(-M_PI / 2, M_PI / 2, k, &t, &wk, w->gl);
+        if (gsl_integration_glfixed_point(-M_PI / 2, M_PI / 2, k, &t, &wk, w->gl) != GSL_SUCCESS)
+            return NAN;
         const double r = c + d * sin(t);
         const double kin = depth_j(w, r) - b;
         if (kin > 0)

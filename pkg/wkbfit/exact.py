@@ -180,9 +180,10 @@ class WKBComparison:
         if uncertainty is not None:
             ok = self.good_enough(uncertainty)
             head += "  within %.3g" % float(np.max(uncertainty))
-        lines = ["WKB versus exact levels of %r, mu = %.10g u" % (self.potential, self.mu), head]
+        lines = ["WKB (order %s) versus exact levels of %r, mu = %.10g u"
+                 % (getattr(self, "order", 1), self.potential, self.mu), head]
         for i in range(len(self)):
-            line = "%4d %4d %18.8f %18.8f %13.3e %10.1e %14.6g" % (
+            line = "%4d %4d %18.8f %18.8f %13.3e %10.1e %14.8g" % (
                 self.v[i], self.J[i], self.wkb_energy[i], self.exact_energy[i], self.difference[i],
                 self.exact_error[i], self.binding_energy[i])
             if uncertainty is not None:
@@ -205,14 +206,17 @@ class WKBComparison:
         return "<WKBComparison: %d levels, mu=%.8g u>" % (len(self), self.mu)
 
 
-def compare_wkb_exact(potential, mu, J=0, v=None, *, tolerance=DEFAULT_TOLERANCE):
+def compare_wkb_exact(potential, mu, J=0, v=None, *, order=1, tolerance=DEFAULT_TOLERANCE):
     """WKB minus exact energy for every level bound in both (or the levels v), at each J.
 
+    order: 1 for first-order WKB, 2 with the second-order (Dunham) term (see `levels`).
     Returns a `WKBComparison`; `str()` of it is a plain-text table, and
     `to_text(uncertainty=0.01)` marks the levels where WKB is within that uncertainty.
     """
     _check_potential(potential)
     mu = as_reduced_mass(mu)
-    wkb = _levels(potential, mu, v=v, J=J, method="wkb")
+    wkb = _levels(potential, mu, v=v, J=J, method="wkb", order=order)
     exact = exact_levels(potential, mu, None if v is None else _ints(v, "v"), _ints(J, "J"), tolerance=tolerance)
-    return WKBComparison(wkb, exact, potential, mu)
+    comparison = WKBComparison(wkb, exact, potential, mu)
+    comparison.order = order
+    return comparison
