@@ -51,6 +51,16 @@ static PyArrayObject *new_vector(npy_intp n)
     return (PyArrayObject *)PyArray_SimpleNew(1, &n, NPY_DOUBLE);
 }
 
+/* dict[key] = obj, consuming the reference to obj; -1 with an exception on failure. */
+static int dict_steal(PyObject *dict, const char *key, PyObject *obj)
+{
+    if (!obj)
+        return -1;
+    int rc = PyDict_SetItemString(dict, key, obj);
+    Py_DECREF(obj);
+    return rc;
+}
+
 /* Fills pot from (model name, params, curve); returns 0 or -1 with an exception set. */
 static int parse_potential(const char *model_name, PyObject *params_obj, PyObject *curve_obj,
                            wkb_potential *pot)
@@ -431,20 +441,9 @@ static PyObject *py_wkb_levels(PyObject *self, PyObject *args, PyObject *kwds)
     for (int c = 0; c < 8; c++)
         if (PyDict_SetItemString(result, names[c], (PyObject *)cols[c]) < 0)
             goto fail;
-    {
-        PyObject *x = PyFloat_FromDouble(vD);
-        if (!x || PyDict_SetItemString(result, "vD", x) < 0) {
-            Py_XDECREF(x);
-            goto fail;
-        }
-        Py_DECREF(x);
-        x = PyLong_FromSize_t(count);
-        if (!x || PyDict_SetItemString(result, "count", x) < 0) {
-            Py_XDECREF(x);
-            goto fail;
-        }
-        Py_DECREF(x);
-    }
+    if (dict_steal(result, "vD", PyFloat_FromDouble(vD)) < 0 ||
+        dict_steal(result, "count", PyLong_FromSize_t(count)) < 0)
+        goto fail;
     if (dVdp && PyDict_SetItemString(result, "dE_dp", (PyObject *)dVdp) < 0)
         goto fail;
     goto cleanup;
@@ -522,16 +521,6 @@ cleanup:
 }
 
 /* ---------------------------------------------------------------- fits (fit.c) */
-
-/* dict[key] = obj, consuming the reference to obj; -1 with an exception on failure. */
-static int dict_steal(PyObject *dict, const char *key, PyObject *obj)
-{
-    if (!obj)
-        return -1;
-    int rc = PyDict_SetItemString(dict, key, obj);
-    Py_DECREF(obj);
-    return rc;
-}
 
 /* The level arrays of a fit: v (int), rot, mu [, energy, sigma], all of one length n. */
 typedef struct {
@@ -859,15 +848,6 @@ cleanup:
 
 /* ---------------------------------------------------------------- exact levels (radial.c) */
 
-/* Adds a new reference under key to dict d; returns 0 or -1 (the reference is always consumed). */
-static int set_item_steal(PyObject *d, const char *key, PyObject *value)
-{
-    if (!value)
-        return -1;
-    const int rc = PyDict_SetItemString(d, key, value);
-    Py_DECREF(value);
-    return rc;
-}
 
 static PyObject *py_exact_levels(PyObject *self, PyObject *args, PyObject *kwds)
 {
@@ -1052,7 +1032,7 @@ static PyObject *py_exact_levels(PyObject *self, PyObject *args, PyObject *kwds)
         goto fail;
     if (dVdp) {
         PyObject *view = PySequence_GetSlice((PyObject *)dVdp, 0, (Py_ssize_t)n);
-        if (set_item_steal(result, "dE_dp", view) < 0)
+        if (dict_steal(result, "dE_dp", view) < 0)
             goto fail;
     }
     if (wavefunctions && PyDict_SetItemString(result, "wavefunctions", wavefunctions) < 0)

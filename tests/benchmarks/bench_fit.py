@@ -28,6 +28,7 @@ from scipy.optimize import brentq, least_squares, minimize_scalar
 
 sys.path.insert(0, os.path.join(os.path.dirname(__file__), "..", "..", "pkg"))
 import wkbfit  # noqa: E402
+from timing import time_call  # noqa: E402  (tests/benchmarks/timing.py)
 
 
 # ------------------------------------------------------------------ the SciPy baseline
@@ -107,16 +108,6 @@ def synthetic(true, mu, vs, Js, sigma, seed):
     rng = np.random.default_rng(seed)
     return wkbfit.read_levels({"v": vs, "J": Js, "energy": exact + rng.normal(0, sigma, len(vs)),
                                "uncertainty": np.full(len(vs), sigma)})
-
-
-def time_call(fn, min_time=1.0):
-    n, t0 = 0, time.perf_counter()
-    while True:
-        fn()
-        n += 1
-        dt = time.perf_counter() - t0
-        if dt >= min_time:
-            return dt / n
 
 
 def main():

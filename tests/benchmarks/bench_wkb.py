@@ -20,6 +20,7 @@ from scipy.optimize import brentq
 
 sys.path.insert(0, os.path.join(os.path.dirname(__file__), "..", "..", "pkg"))
 import wkbfit  # noqa: E402
+from timing import time_call  # noqa: E402  (tests/benchmarks/timing.py)
 
 
 def scipy_levels(pot, mu, tol=1e-10):
@@ -63,16 +64,6 @@ def scipy_levels(pot, mu, tol=1e-10):
         out.append(E)
         lo = E
     return np.array(out)
-
-
-def time_call(fn, min_time=0.5):
-    n, t0 = 0, time.perf_counter()
-    while True:
-        fn()
-        n += 1
-        dt = time.perf_counter() - t0
-        if dt >= min_time:
-            return dt / n
 
 
 def main():

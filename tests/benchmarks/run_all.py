@@ -5,6 +5,7 @@ import runpy
 import sys
 
 here = os.path.dirname(os.path.abspath(__file__))
+sys.path.insert(0, here)  # the benchmarks share timing.py
 for path in sorted(glob.glob(os.path.join(here, "bench_*.py"))):
     print("=" * 78)
     print(os.path.basename(path))
