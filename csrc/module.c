@@ -342,15 +342,18 @@ cleanup:
 
 /* ---------------------------------------------------------------- WKB levels */
 
+/* Levels for one or several rotational factors rot (J(J+1) or (J+1/2)^2) in one crossing:
+   all bound levels of each (v=None) or the listed v for each. Columns are concatenated in rot order;
+   rot_index says which rot a row belongs to. */
 static PyObject *py_wkb_levels(PyObject *self, PyObject *args, PyObject *kwds)
 {
     static char *kwlist[] = {"model", "params", "curve", "mu", "rot", "v", "maslov_in", "maslov_out",
                              "want_dVdp", "order", NULL};
     const char *model_name;
-    PyObject *params_obj, *curve_obj, *v_obj = Py_None;
-    double mu, rot;
+    PyObject *params_obj, *curve_obj, *rot_obj, *v_obj = Py_None;
+    double mu;
     int maslov_in = 1, maslov_out = 1, want_dVdp = 0, order = 1;
-    PyArrayObject *v_arr = NULL, *dVdp = NULL;
+    PyArrayObject *rot_arr = NULL, *v_arr = NULL, *dVdp = NULL, *vD_arr = NULL, *count_arr = NULL, *index = NULL;
     PyArrayObject *cols[8] = {NULL};
     static const char *names[8] = {"v", "energy", "binding_energy", "inner_turning_point",
                                    "outer_turning_point", "Bv", "dEdv", "error"};
@@ -359,12 +362,11 @@ static PyObject *py_wkb_levels(PyObject *self, PyObject *args, PyObject *kwds)
     wkb_well *w = NULL;
     wkb_level *lv = NULL;
     wkb_error err = {0};
-    size_t count = 0, n = 0;
-    double vD = NAN;
+    size_t n = 0;
     int status = WKB_SUCCESS;
 
-    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOdd|Oiipi", kwlist, &model_name, &params_obj, &curve_obj,
-                                     &mu, &rot, &v_obj, &maslov_in, &maslov_out, &want_dVdp, &order))
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOdO|Oiipi", kwlist, &model_name, &params_obj, &curve_obj,
+                                     &mu, &rot_obj, &v_obj, &maslov_in, &maslov_out, &want_dVdp, &order))
         return NULL;
     if (order != 1 && order != 2) {
         PyErr_Format(PyExc_ValueError, "order=%d is invalid: use 1 (first-order WKB) or 2 (with the second-order term)",
@@ -373,6 +375,13 @@ static PyObject *py_wkb_levels(PyObject *self, PyObject *args, PyObject *kwds)
     }
     if (parse_potential(model_name, params_obj, curve_obj, &pot) < 0)
         return NULL;
+    const int scalar_rot = PyFloat_Check(rot_obj) || PyLong_Check(rot_obj);
+    if (!(rot_arr = (PyArrayObject *)PyArray_FROM_OTF(rot_obj, NPY_DOUBLE, NPY_ARRAY_IN_ARRAY)))
+        goto cleanup;
+    if (PyArray_NDIM(rot_arr) > 1) {
+        PyErr_SetString(PyExc_ValueError, "rot must be a number or a 1-dimensional array");
+        goto cleanup;
+    }
     if (v_obj != Py_None) {
         v_arr = (PyArrayObject *)PyArray_FROM_OTF(v_obj, NPY_INT, NPY_ARRAY_IN_ARRAY);
         if (!v_arr)
@@ -382,6 +391,10 @@ static PyObject *py_wkb_levels(PyObject *self, PyObject *args, PyObject *kwds)
             goto cleanup;
         }
     }
+    const npy_intp n_rot = PyArray_SIZE(rot_arr);
+    if (!(vD_arr = new_vector(n_rot)) ||
+        !(count_arr = (PyArrayObject *)PyArray_SimpleNew(1, (npy_intp[]){n_rot}, NPY_INTP)))
+        goto cleanup;
     {
         wkb_settings settings = wkb_default_settings();
         settings.order = order;
@@ -390,16 +403,24 @@ static PyObject *py_wkb_levels(PyObject *self, PyObject *args, PyObject *kwds)
             goto cleanup;
         }
     }
+    const double *rot = PyArray_DATA(rot_arr);
+    double *vD = PyArray_DATA(vD_arr);
+    npy_intp *count = PyArray_DATA(count_arr);
+    /* first pass: the number of levels of each well */
     Py_BEGIN_ALLOW_THREADS
-    status = wkb_well_set(w, &pot, mu, rot, maslov_in, maslov_out, &err);
-    if (!status)
-        status = wkb_level_count(w, &count, &vD, &err);
+    for (npy_intp k = 0; k < n_rot && !status; k++) {
+        size_t c = 0;
+        status = wkb_well_set(w, &pot, mu, rot[k], maslov_in, maslov_out, &err);
+        if (!status)
+            status = wkb_level_count(w, &c, &vD[k], &err);
+        count[k] = (npy_intp)c;
+        n += v_arr ? (size_t)PyArray_SIZE(v_arr) : c;
+    }
     Py_END_ALLOW_THREADS
     if (status) {
         raise_status(&err);
         goto cleanup;
     }
-    n = v_arr ? (size_t)PyArray_SIZE(v_arr) : count;
     if (n && !(lv = calloc(n, sizeof *lv))) {
         PyErr_NoMemory();
         goto cleanup;
@@ -410,15 +431,31 @@ static PyObject *py_wkb_levels(PyObject *self, PyObject *args, PyObject *kwds)
         if (!(dVdp = (PyArrayObject *)PyArray_ZEROS(2, dims, NPY_DOUBLE, 0)))
             goto cleanup;
     }
+    if (!(index = (PyArrayObject *)PyArray_SimpleNew(1, (npy_intp[]){(npy_intp)n}, NPY_INTP)))
+        goto cleanup;
+    /* second pass: the levels */
     {
         const int *vv = v_arr ? (const int *)PyArray_DATA(v_arr) : NULL;
         double *pd = dVdp ? (double *)PyArray_DATA(dVdp) : NULL;
+        npy_intp *pi = PyArray_DATA(index);
         Py_BEGIN_ALLOW_THREADS
-        if (!vv && !pd) {
-            status = wkb_all_levels(w, lv, n, &count, &vD, &err);
-        } else {
-            for (size_t i = 0; i < n && !status; i++)
-                status = wkb_level_at(w, vv ? vv[i] : (int)i, &lv[i], pd ? pd + i * np : NULL, &err);
+        size_t row = 0;
+        for (npy_intp k = 0; k < n_rot && !status; k++) {
+            const size_t m = vv ? (size_t)PyArray_SIZE(v_arr) : (size_t)count[k];
+            size_t c;
+            status = wkb_well_set(w, &pot, mu, rot[k], maslov_in, maslov_out, &err);
+            if (status)
+                break;
+            if (!vv && !pd) {
+                status = wkb_all_levels(w, lv + row, m, &c, NULL, &err);
+            } else {
+                for (size_t i = 0; i < m && !status; i++)
+                    status = wkb_level_at(w, vv ? vv[i] : (int)i, &lv[row + i], pd ? pd + (row + i) * np : NULL,
+                                          &err);
+            }
+            for (size_t i = 0; i < m; i++)
+                pi[row + i] = k;
+            row += m;
         }
         Py_END_ALLOW_THREADS
     }
@@ -441,9 +478,16 @@ static PyObject *py_wkb_levels(PyObject *self, PyObject *args, PyObject *kwds)
     for (int c = 0; c < 8; c++)
         if (PyDict_SetItemString(result, names[c], (PyObject *)cols[c]) < 0)
             goto fail;
-    if (dict_steal(result, "vD", PyFloat_FromDouble(vD)) < 0 ||
-        dict_steal(result, "count", PyLong_FromSize_t(count)) < 0)
+    if (PyDict_SetItemString(result, "rot_index", (PyObject *)index) < 0)
         goto fail;
+    if (scalar_rot) {
+        if (dict_steal(result, "vD", PyFloat_FromDouble(vD[0])) < 0 ||
+            dict_steal(result, "count", PyLong_FromSsize_t(count[0])) < 0)
+            goto fail;
+    } else if (PyDict_SetItemString(result, "vD", (PyObject *)vD_arr) < 0 ||
+               PyDict_SetItemString(result, "count", (PyObject *)count_arr) < 0) {
+        goto fail;
+    }
     if (dVdp && PyDict_SetItemString(result, "dE_dp", (PyObject *)dVdp) < 0)
         goto fail;
     goto cleanup;
@@ -454,6 +498,10 @@ cleanup:
         Py_XDECREF(cols[c]);
     Py_XDECREF(dVdp);
     Py_XDECREF(v_arr);
+    Py_XDECREF(rot_arr);
+    Py_XDECREF(vD_arr);
+    Py_XDECREF(count_arr);
+    Py_XDECREF(index);
     free(lv);
     wkb_well_free(w);
     return result;
@@ -1071,8 +1119,9 @@ static PyMethodDef core_methods[] = {
      "airy_asymptotic(z, terms) -> Ai(z) from the large-|z| expansions (A&S 10.4.59 for z > 0,\n"
      "10.4.60 for z < 0) truncated after terms = 1..50 coefficients c_0..c_(terms-1)."},
     {"wkb_levels", (PyCFunction)(void (*)(void))py_wkb_levels, METH_VARARGS | METH_KEYWORDS,
-     "wkb_levels(model, params, curve, mu, rot, v=None, maslov_in=1, maslov_out=1, want_dVdp=False) -> dict "
-     "of level arrays (v, energy, binding_energy, turning points, Bv, dEdv, error), vD, count, [dE_dp]"},
+     "wkb_levels(model, params, curve, mu, rot, v=None, maslov_in=1, maslov_out=1, want_dVdp=False, order=1) "
+     "-> dict of level arrays (v, energy, binding_energy, turning points, Bv, dEdv, error, rot_index), vD and "
+     "count (per rot when rot is an array), [dE_dp]"},
     {"wkb_orbits", (PyCFunction)(void (*)(void))py_wkb_orbits, METH_VARARGS | METH_KEYWORDS,
      "wkb_orbits(model, params, curve, mu, rot, binding) -> dict of arrays: action (integral k dr), "
      "half_period (d action/dE, 1/cm-1), inner/outer turning points, Bv; at binding energies asymptote - E"},

@@ -443,6 +443,28 @@ static void piece_outer_linear(wkb_well *w, const energy_point *e, double rb, do
     }
 }
 
+/* the same over a longer stretch, with the finer rule */
+static void piece_outer_linear_long(wkb_well *w, const energy_point *e, double ra, double r2, sums *s)
+{
+    const double L = r2 - ra;
+    for (size_t i = 0; i < w->set.nodes; i++) {
+        const double x = w->even2_x[i];
+        add_node(w, e, r2 - L * x * x, w->even2_w[i] * 2 * L * x, s);
+    }
+}
+
+/* [ra, rb], plain in r, split into pieces no longer than max_length */
+static void pieces_linear(wkb_well *w, const energy_point *e, double ra, double rb, double max_length, sums *s)
+{
+    if (rb <= ra)
+        return;
+    const size_t m = (size_t)ceil((rb - ra) / max_length);
+    const double h = (rb - ra) / (double)m;
+    for (size_t k = 0; k < m; k++)
+        for (size_t i = 0; i < w->set.nodes; i++)
+            add_node(w, e, ra + h * ((double)k + w->gl_x[i]), w->gl_w[i] * h, s);
+}
+
 /* [exp(y2 - L), exp(y2)] with y = y2 - L s^2 (square-root end at s = 0) */
 static void piece_outer_end(wkb_well *w, const energy_point *e, double y2, double L, sums *s)
 {
@@ -529,6 +551,14 @@ int wkb_orbit_at(wkb_well *w, double binding, wkb_orbit *orbit, double *avg_dVdp
         const double q = n > 2 ? 0.5 * (n - 2) : 1.0;
         pieces_log(w, &e, yb, yb + THRESHOLD_TAIL_LOG_START, &s);
         piece_tail(w, &e, exp(yb + THRESHOLD_TAIL_LOG_START), q, &s);
+    } else if (w->tail_power == 0) {
+        /* an exponential tail is smooth on the scale of r itself: linear pieces in r save an exp per node */
+        if (r2 - rb <= rb) {
+            piece_outer_linear(w, &e, rb, r2, &s);
+        } else {
+            pieces_linear(w, &e, rb, r2 - rb, 1.5 * rb, &s);
+            piece_outer_linear_long(w, &e, r2 - rb, r2, &s);
+        }
     } else {
         const double y2 = log(r2), Y = y2 - yb;
         if (Y <= COMPACT_LOG_LENGTH) {

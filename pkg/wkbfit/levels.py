@@ -188,13 +188,11 @@ def _wkb_levels(potential, mu, vs, Js, langer, maslov, order=1):
         raise ValueError("maslov=%r is invalid: each index is 1 (smooth turning point) or 2 (hard wall)"
                          % (maslov,))
     model, params, curve = potential._core_args()
-    parts, vD = [], {}
     v_arr = None if vs is None else np.asarray(vs, dtype=np.intc)
-    for J in Js:
-        rot = (J + 0.5) ** 2 if langer else float(J * (J + 1))
-        res = _core.wkb_levels(model, params, curve, mu, rot, v_arr, m_in, m_out, order=order)
-        res["J"] = np.full(len(res["v"]), J)
-        vD[J] = None if math.isnan(res["vD"]) else res["vD"]
-        parts.append(res)
-    cols = parts[0] if len(parts) == 1 else {c: np.concatenate([p[c] for p in parts]) for c in _COLUMNS}
+    J = np.asarray(Js, dtype=float)
+    rot = (J + 0.5) ** 2 if langer else J * (J + 1)
+    # one crossing into the core for every J
+    cols = _core.wkb_levels(model, params, curve, mu, rot, v_arr, m_in, m_out, order=order)
+    cols["J"] = np.asarray(Js)[cols["rot_index"]]
+    vD = {J: (None if math.isnan(x) else float(x)) for J, x in zip(Js, cols["vD"])}
     return LevelTable(cols, mu=mu, method="wkb" if order == 1 else "wkb2", potential=potential, vD=vD)
