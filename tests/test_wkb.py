@@ -393,3 +393,15 @@ def test_second_order_term_vanishes_for_morse():
     t = wkbfit.levels(wkbfit.Morse(De=1000, re=2, a=1), C_U, v=list(range(25)), order=2)
     exact = 2 * math.sqrt(1000) * (t.v + 0.5) - (t.v + 0.5) ** 2
     assert np.max(np.abs(t.energy - exact)) < 1e-8
+
+
+def test_action_with_outer_turning_point_hundreds_of_angstrom_out():
+    # LJ(12,6), re = 4 A: at binding energies 1e-6 .. 1e-12 De the outer turning point lies at
+    # 45 .. 450 A; the action must still be exact to 1e-12 relative (reference: mpmath, 30 digits)
+    pot, mu = wkbfit.LennardJones(De=4000.0, re=4.0), 20.0
+    binding = np.array([1e-6, 1e-9, 1e-12]) * pot.De
+    o = core_orbits(pot, mu, 0.0, binding)
+    assert o["outer_turning_point"][-1] > 400
+    for i, b in enumerate(binding):
+        ref = mp_action(pot, mu, mp.mpf(pot.De) - mp.mpf(b))
+        assert o["action"][i] == pytest.approx(float(ref), rel=1e-12), b
