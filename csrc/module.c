@@ -10,6 +10,8 @@
 #include <numpy/arrayobject.h>
 
 #include <math.h>
+#include <stdarg.h>
+#include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -28,6 +30,18 @@ static PyObject *raise_status(const wkb_error *err)
     else if (err->status == WKB_ENOCONV || err->status == WKB_ENUMERIC)
         type = PyExc_RuntimeError;
     PyErr_SetString(type, err->message[0] ? err->message : wkb_status_name(err->status));
+    return NULL;
+}
+
+/* ValueError with a printf-style message (PyErr_Format knows no floating-point formats). */
+static PyObject *value_error(const char *fmt, ...)
+{
+    char buf[512];
+    va_list ap;
+    va_start(ap, fmt);
+    vsnprintf(buf, sizeof buf, fmt, ap);
+    va_end(ap);
+    PyErr_SetString(PyExc_ValueError, buf);
     return NULL;
 }
 
@@ -940,12 +954,11 @@ static PyObject *py_exact_levels(PyObject *self, PyObject *args, PyObject *kwds)
         }
     }
     if (!(mu > 0) || !isfinite(mu)) {
-        PyErr_Format(PyExc_ValueError, "reduced mass mu=%g u is invalid: it must be a finite number > 0", mu);
+        value_error("reduced mass mu=%g u is invalid: it must be a finite number > 0", mu);
         goto cleanup;
     }
     if (!(ws = wkb_radial_alloc(&settings))) {
-        PyErr_Format(PyExc_ValueError,
-                     "invalid exact-solver settings (energy_tol=%g and min_binding=%g must be > 0, "
+        value_error("invalid exact-solver settings (energy_tol=%g and min_binding=%g must be > 0, "
                      "0 <= phase_step=%g <= 0.5)", settings.energy_tol, settings.min_binding, settings.phase_step);
         goto cleanup;
     }
@@ -982,11 +995,11 @@ static PyObject *py_exact_levels(PyObject *self, PyObject *args, PyObject *kwds)
             }
             if ((size_t)vv[i] >= count) {
                 if (count == 0)
-                    PyErr_Format(PyExc_ValueError, "v=%d is not bound: this potential binds no level at J=%d "
-                                 "for mu=%g u", vv[i], J, mu);
+                    value_error("v=%d is not bound: this potential binds no level at J=%d for mu=%g u", vv[i], J,
+                                mu);
                 else
-                    PyErr_Format(PyExc_ValueError, "v=%d is above the last bound level (v=%zu) of this potential "
-                                 "at J=%d for mu=%g u", vv[i], count - 1, J, mu);
+                    value_error("v=%d is above the last bound level (v=%zu) of this potential at J=%d for "
+                                "mu=%g u", vv[i], count - 1, J, mu);
                 goto cleanup;
             }
         }

@@ -239,8 +239,8 @@ int wkb_well_set(wkb_well *w, const wkb_potential *pot, double mu, double rot, i
     if (imin == 0 || imin == n - 1)
         return wkb_fail(err, WKB_ENOWELL,
                         "the potential has no well%s: V%s decreases monotonically towards %s r in %g..%g A",
-                        rot > 0 ? " at this rotation" : "", rot > 0 ? "(r) + centrifugal term" : "(r)",
-                        imin == 0 ? "small" : "large", r_lo, r_hi);
+                        rot > 0 ? " at this rotation" : "",
+                        rot > 0 ? "(r) + J(J+1) hbar^2/(2 mu r^2)" : "(r)", imin == 0 ? "small" : "large", r_lo, r_hi);
     w->i_bottom = imin;
     {
         double rb;

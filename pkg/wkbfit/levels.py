@@ -128,7 +128,9 @@ class LevelTable:
 
 
 def _as_int_list(x, name):
-    if isinstance(x, (int, np.integer)) and not isinstance(x, bool):
+    if isinstance(x, (bool, np.bool_)):
+        raise ValueError("%s must be a non-negative integer or a list of them; got %r" % (name, x))
+    if isinstance(x, (int, np.integer)):
         out = [int(x)]
     else:
         try:
@@ -192,7 +194,19 @@ def _wkb_levels(potential, mu, vs, Js, langer, maslov, order=1):
     J = np.asarray(Js, dtype=float)
     rot = (J + 0.5) ** 2 if langer else J * (J + 1)
     # one crossing into the core for every J
-    cols = _core.wkb_levels(model, params, curve, mu, rot, v_arr, m_in, m_out, order=order)
+    try:
+        cols = _core.wkb_levels(model, params, curve, mu, rot, v_arr, m_in, m_out, order=order)
+    except ValueError as exc:
+        if len(Js) > 1 and "rotation" in str(exc):
+            # name the first J that fails
+            for J in Js:
+                try:
+                    _core.wkb_levels(model, params, curve, mu, float(J * (J + 1)), np.empty(0, np.intc), m_in, m_out)
+                except ValueError:
+                    raise ValueError("J=%d: %s" % (J, exc)) from None
+        elif len(Js) == 1:
+            raise ValueError("J=%d: %s" % (Js[0], exc)) from None
+        raise
     cols["J"] = np.asarray(Js)[cols["rot_index"]]
     vD = {J: (None if math.isnan(x) else float(x)) for J, x in zip(Js, cols["vD"])}
     return LevelTable(cols, mu=mu, method="wkb" if order == 1 else "wkb2", potential=potential, vD=vD)
