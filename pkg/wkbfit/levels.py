@@ -204,7 +204,7 @@ def _wkb_levels(potential, mu, vs, Js, langer, maslov, order=1):
                     _core.wkb_levels(model, params, curve, mu, float(J * (J + 1)), np.empty(0, np.intc), m_in, m_out)
                 except ValueError:
                     raise ValueError("J=%d: %s" % (J, exc)) from None
-        elif len(Js) == 1:
+        elif Js[0] > 0:
             raise ValueError("J=%d: %s" % (Js[0], exc)) from None
         raise
     cols["J"] = np.asarray(Js)[cols["rot_index"]]
