@@ -1115,6 +1115,65 @@ cleanup:
     return result;
 }
 
+/* ---------------------------------------------------------------- RKR (rkr.c) */
+
+static PyObject *py_rkr(PyObject *self, PyObject *args, PyObject *kwds)
+{
+    static char *kwlist[] = {"G_coefficients", "B_coefficients", "mu", "v", "quadrature_points", NULL};
+    enum { NCOL = 6 };
+    static const char *names[NCOL] = {"energy", "f", "g", "inner_turning_point", "outer_turning_point", "error"};
+    PyObject *G_obj, *B_obj, *v_obj, *result = NULL;
+    double mu;
+    Py_ssize_t quadrature_points = 0;
+    PyArrayObject *G = NULL, *B = NULL, *v = NULL, *cols[NCOL] = {NULL};
+    wkb_error err = {0};
+    int status;
+
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "OOdO|n", kwlist, &G_obj, &B_obj, &mu, &v_obj,
+                                     &quadrature_points))
+        return NULL;
+    if (quadrature_points < 0)
+        return value_error("quadrature_points=%zd is invalid: use 32, 64, 96, 100, 128, 256, 512 or 1024",
+                           quadrature_points);
+    if (!(G = as_double_array(G_obj, "G_coefficients", 1)) || !(B = as_double_array(B_obj, "B_coefficients", 1)) ||
+        !(v = as_double_array(v_obj, "v", 1)))
+        goto cleanup;
+    const npy_intp n = PyArray_SIZE(v);
+    for (int c = 0; c < NCOL; c++)
+        if (!(cols[c] = new_vector(n)))
+            goto cleanup;
+    {
+        double *out[NCOL];
+        for (int c = 0; c < NCOL; c++)
+            out[c] = PyArray_DATA(cols[c]);
+        Py_BEGIN_ALLOW_THREADS
+        status = wkb_rkr(PyArray_DATA(G), (size_t)PyArray_SIZE(G), PyArray_DATA(B), (size_t)PyArray_SIZE(B), mu,
+                         PyArray_DATA(v), (size_t)n, (size_t)quadrature_points, out[0], out[1], out[2], out[3],
+                         out[4], out[5], &err);
+        Py_END_ALLOW_THREADS
+    }
+    if (status) {
+        raise_status(&err);
+        goto cleanup;
+    }
+    if (!(result = PyDict_New()))
+        goto cleanup;
+    for (int c = 0; c < NCOL; c++) {
+        Py_INCREF(cols[c]);
+        if (dict_steal(result, names[c], (PyObject *)cols[c]) < 0) {
+            Py_CLEAR(result);
+            goto cleanup;
+        }
+    }
+cleanup:
+    for (int c = 0; c < NCOL; c++)
+        Py_XDECREF(cols[c]);
+    Py_XDECREF(G);
+    Py_XDECREF(B);
+    Py_XDECREF(v);
+    return result;
+}
+
 /* ---------------------------------------------------------------- module */
 
 static PyMethodDef core_methods[] = {
@@ -1154,6 +1213,10 @@ static PyMethodDef core_methods[] = {
     {"fit_levels", (PyCFunction)(void (*)(void))py_fit_levels, METH_VARARGS | METH_KEYWORDS,
      "fit_levels(model, params, curve, mu, rot, method=0) -> dict (energy, jacobian[count, n_params], vD, dvD_dp,\n"
      "asymptote): every bound level (0 WKB, 1 exact) with its parameter gradient; vD is the WKB one"},
+    {"rkr", (PyCFunction)(void (*)(void))py_rkr, METH_VARARGS | METH_KEYWORDS,
+     "rkr(G_coefficients, B_coefficients, mu, v, quadrature_points=0) -> dict of arrays (energy, f, g,\n"
+     "inner_turning_point, outer_turning_point, error): RKR turning points from Dunham expansions\n"
+     "G = sum Y_k0 (v+1/2)^k (k >= 1) and B = sum Y_k1 (v+1/2)^k (k >= 0), cm-1, A, u"},
     {NULL, NULL, 0, NULL},
 };
 

@@ -10,26 +10,10 @@
 
 #include <gsl/gsl_math.h>
 
+#include "model_power.h" /* power(s, e): exact small integer powers, shared with models_extended.c */
 #include "wkb.h"
 
 extern const wkb_model wkb_model_pointwise; /* defined in pointwise.c */
-
-/* s^e, exact and fast (repeated squaring) for the small integer exponents that Lennard-Jones forms use. */
-static double power(double s, double e)
-{
-    if (e == floor(e) && e >= 0 && e <= 64) {
-        unsigned k = (unsigned)e;
-        double result = 1;
-        while (k) {
-            if (k & 1)
-                result *= s;
-            s *= s;
-            k >>= 1;
-        }
-        return result;
-    }
-    return pow(s, e);
-}
 
 static int check_positive(const char *model, const char *name, double value, wkb_error *err)
 {
@@ -189,7 +173,13 @@ const wkb_model wkb_model_poschl_teller = {
 
 /* ---- the table ---- */
 const wkb_model *const wkb_models[] = {
-    &wkb_model_morse, &wkb_model_lennard_jones, &wkb_model_poschl_teller, &wkb_model_pointwise, NULL,
+    &wkb_model_morse, &wkb_model_lennard_jones, &wkb_model_poschl_teller, &wkb_model_pointwise,
+    /* models_extended.c: EMO and MLR with K = 1..8 exponent coefficients */
+    &wkb_models_emo[0], &wkb_models_emo[1], &wkb_models_emo[2], &wkb_models_emo[3],
+    &wkb_models_emo[4], &wkb_models_emo[5], &wkb_models_emo[6], &wkb_models_emo[7],
+    &wkb_models_mlr[0], &wkb_models_mlr[1], &wkb_models_mlr[2], &wkb_models_mlr[3],
+    &wkb_models_mlr[4], &wkb_models_mlr[5], &wkb_models_mlr[6], &wkb_models_mlr[7],
+    NULL,
 };
 
 const wkb_model *wkb_model_by_name(const char *name)

@@ -97,6 +97,25 @@ static inline double wkb_potential_asymptote(const wkb_potential *pot)
     return pot->model->asymptote(pot);
 }
 
+/* ------------------------------------------------------- models_extended.c */
+/* EMO and MLR, one descriptor per number K = 1..8 of exponent coefficients beta_0..beta_(K-1)
+   (named "emoK" and "mlrK"); r in angstrom, De and C_m/r^m in cm-1. Both have V(re) = 0 and the
+   asymptote De; r_min is re. y_p(r; a) = (r^p - a^p)/(r^p + a^p).
+   EMO [Lee et al., J. Mol. Spectrosc. 194, 197 (1999)]: parameters De, re, p, beta0..;
+     V = De [1 - exp(-beta(r) (r - re))]^2, beta(r) = sum_i beta_i y_p(r; re)^i; exponential tail.
+     Checks: De, re, beta0 > 0, sum_i beta_i > 0, p a whole number in 1..64.
+   MLR [Le Roy & Henderson, Mol. Phys. 105, 663 (2007); Le Roy et al., J. Chem. Phys. 131, 204309
+     (2009)]: parameters De, re, C6, C8, C10, p, q, r_ref, beta0..;
+     V = De [1 - (u(r)/u(re)) exp(-beta(r) y_p(r; re))]^2 with the undamped u(r) = C6/r^6 + C8/r^8
+     + C10/r^10, beta(r) = y_p(r; r_ref) beta_inf + [1 - y_p(r; r_ref)] sum_i beta_i y_q(r; r_ref)^i,
+     beta_inf = ln(2 De/u(re)); De - V -> u(r) at large r (tail power 6).
+     Checks: De, re, C6, r_ref > 0; C8, C10 >= 0; u(re) < 2 De; q a whole number in 1..64; p a
+     whole number in 3..64 that exceeds the spread of the inverse powers (p >= 5 if C10 > 0). */
+#define WKB_EMO_MAX_BETAS 8
+#define WKB_MLR_MAX_BETAS 8 /* 8 + 8 parameters = WKB_MAX_PARAMS */
+extern const wkb_model wkb_models_emo[WKB_EMO_MAX_BETAS]; /* [K-1]: "emoK" */
+extern const wkb_model wkb_models_mlr[WKB_MLR_MAX_BETAS]; /* [K-1]: "mlrK" */
+
 /* ------------------------------------------------------------- pointwise.c */
 /* Builds a point-wise potential from n >= 5 points r (angstrom, > 0, strictly
    increasing) and V (cm-1, any zero), all finite; the inputs are copied, not kept.
@@ -398,5 +417,28 @@ int wkb_fit_run(const wkb_potential *start, const wkb_fit_data *data, const wkb_
 int wkb_fit_levels(const wkb_potential *pot, double mu, double rot, const wkb_settings *settings,
                    const wkb_level_source *source, size_t capacity, double *energy, double *dEdp,
                    size_t *count, double *vD, double *dvDdp, wkb_error *err);
+
+/* ---------------------------------------------------------------- rkr.c */
+#define WKB_RKR_MAX_TERMS 32       /* coefficients per Dunham expansion */
+#define WKB_RKR_DEFAULT_POINTS 100 /* Gauss-Legendre nodes per integral */
+
+/* First-order RKR turning points (Rydberg, Klein, Rees; physics.md section 5) from Dunham
+   expansions in x = v + 1/2, measured from the potential minimum (Y_00 left out):
+     G(v) = sum_{k=1}^{nG} G_coef[k-1] x^k   (G_coef = Y_10, Y_20, ...; cm-1)
+     B(v) = sum_{k=0}^{nB-1} B_coef[k] x^k   (B_coef = Y_01, Y_11, ...; cm-1).
+   mu: reduced mass, u. For each of the n values v[i] (> -1/2): energy = G(v) (cm-1), the
+   Klein integrals f = (r2 - r1)/2 (angstrom) and g = (1/r1 - 1/r2)/2 (1/angstrom), the
+   turning points r_inner < r_outer (angstrom) and error, a conservative estimate of their
+   quadrature error (largest change against a rule of about 2/3 as many nodes, angstrom).
+   The integrals use v' = v - w^2 and Gauss-Legendre in w with quadrature_points nodes
+   (a size GSL tabulates: 32, 64, 96, 100, 128, 256, 512, 1024; 0 for
+   WKB_RKR_DEFAULT_POINTS); G(v) - G(v') is formed from the Taylor
+   coefficients of G at v, free of cancellation. Nothing is allocated per level.
+   Status: WKB_EINVAL (mu not finite and > 0; no, too many or non-finite coefficients;
+   v not finite or <= -1/2; dG/dv <= 0 or B <= 0 somewhere on [-1/2, max v], with the v
+   where it happens in the message; bad quadrature_points); WKB_ENOMEM; WKB_ENUMERIC. */
+int wkb_rkr(const double *G_coef, size_t nG, const double *B_coef, size_t nB, double mu,
+            const double *v, size_t n, size_t quadrature_points, double *energy, double *f,
+            double *g, double *r_inner, double *r_outer, double *error, wkb_error *err);
 
 #endif

@@ -5,9 +5,11 @@ Units: energies in cm-1, distances in angstrom, masses in u.
 from ._core import HBAR2_OVER_2U, GSL_VERSION
 from .masses import reduced_mass, isotope_mass, isotope_info, parse_isotopologue, as_reduced_mass
 from .potentials import Potential, Morse, LennardJones, PoschlTeller, PointwisePotential
+from .potentials import EMO, MLR
 from .levels import LevelTable, levels
 from .exact import exact_wavefunction, compare_wkb_exact, WKBComparison
 from .observed import ObservedLevels, read_levels
 from .fitting import fit, FitResult
+from .rkr import RKRTurningPoints, rkr_turning_points, rkr_potential
 
 __version__ = "0.1.0"

@@ -4,6 +4,7 @@ Units: r in angstrom, energies in cm-1. The analytic models have their minimum V
 and their asymptote at +De, so level energies are term values above the minimum.
 """
 import math
+import re
 
 import numpy as np
 
@@ -12,7 +13,7 @@ from . import _core
 #: model name -> parameter names, from the core's model table (read once)
 MODEL_PARAMETERS = _core.models()
 
-__all__ = ["Potential", "Morse", "LennardJones", "PoschlTeller", "PointwisePotential"]
+__all__ = ["Potential", "Morse", "LennardJones", "PoschlTeller", "PointwisePotential", "EMO", "MLR"]
 
 
 def _as_r(r):
@@ -210,3 +211,95 @@ class PointwisePotential(Potential):
             len(self.r), self.r[0], self.r[-1], self.tail["asymptote"],
             " (fitted)" if self.tail["asymptote_fitted"] else "", self.tail["tail_power"],
             " (fitted)" if self.tail["tail_power_fitted"] else "")
+
+
+# -- EMO and MLR: the core has one model per number of exponent coefficients ("emo1".."emo8", "mlr1"..) --
+_MAX_BETAS = 8
+
+
+def _exponent_coefficients(owner, betas, keywords):
+    """The beta_i as a list of floats, from `betas` (a sequence, or one number for beta0 alone) or
+    from keywords beta0, beta1, ... (as `with_params` and `fit` pass them)."""
+    unknown = sorted(k for k in keywords if not re.fullmatch(r"beta[0-9]+", k))
+    if unknown:
+        raise ValueError("%s got unknown parameter%s %s" % (owner, "s" if len(unknown) > 1 else "", ", ".join(unknown)))
+    if keywords:
+        if betas is not None:
+            raise ValueError("%s: give the coefficients either as betas=[...] or as beta0=..., beta1=..., not both"
+                             % owner)
+        names = ["beta%d" % i for i in range(len(keywords))]
+        if sorted(keywords) != sorted(names):
+            raise ValueError("%s: coefficients given as keywords must be beta0..beta%d without gaps; got %s"
+                             % (owner, len(keywords) - 1, ", ".join(sorted(keywords))))
+        betas = [keywords[n] for n in names]
+    if betas is None:
+        raise ValueError("%s needs betas: a sequence of 1 to %d exponent coefficients beta0, beta1, ..."
+                         % (owner, _MAX_BETAS))
+    try:
+        values = np.array(betas, dtype=float)  # a copy: the caller's sequence is not kept
+    except (TypeError, ValueError):
+        raise ValueError("%s betas=%r must be a sequence of 1 to %d numbers" % (owner, betas, _MAX_BETAS)) from None
+    values = values.reshape(1) if values.ndim == 0 else values
+    if values.ndim != 1 or not 1 <= len(values) <= _MAX_BETAS:
+        raise ValueError("%s betas=%r must be a sequence of 1 to %d numbers; got shape %s"
+                         % (owner, betas, _MAX_BETAS, values.shape))
+    return values.tolist()
+
+
+class EMO(Potential):
+    """Expanded Morse oscillator [Lee, Seto, Hirao, Bernath & Le Roy, J. Mol. Spectrosc. 194, 197 (1999)]:
+
+    V = De [1 - exp(-beta(r) (r - re))]^2,  beta(r) = sum_i beta_i y(r)^i,  y = (r^p - re^p)/(r^p + re^p).
+
+    De in cm-1, re in angstrom, betas (1 to 8 coefficients beta0, beta1, ...) in 1/angstrom, p a whole
+    number (1..64; fixed in fits by default). One coefficient gives the Morse potential with a = beta0.
+    Needs beta0 > 0 and sum(betas) > 0 (the exponent at large r), so that V rises at re and tends to De.
+    The tail is exponential, not the physical inverse-power one.
+    """
+
+    model = "emo"  # the family; each object uses the core's model "emoK" for its K coefficients
+    fixed_by_default = ("p",)
+
+    def __init__(self, De, re, betas=None, p=3, **coefficients):
+        values = _exponent_coefficients("EMO", betas, coefficients)
+        self.model = "emo%d" % len(values)
+        super().__init__(De=De, re=re, p=p, **{"beta%d" % i: b for i, b in enumerate(values)})
+
+    @property
+    def betas(self):
+        """The exponent coefficients (beta0, beta1, ...) in 1/angstrom."""
+        return tuple(self._params[3:].tolist())
+
+
+class MLR(Potential):
+    """Morse/long-range potential [Le Roy & Henderson, Mol. Phys. 105, 663 (2007); Le Roy et al.,
+    J. Chem. Phys. 131, 204309 (2009)]:
+
+    V = De [1 - (u(r)/u(re)) exp(-beta(r) y_p(r; re))]^2,  u(r) = C6/r^6 + C8/r^8 + C10/r^10,
+    beta(r) = y_p(r; r_ref) beta_inf + [1 - y_p(r; r_ref)] sum_i beta_i y_q(r; r_ref)^i,
+    beta_inf = ln(2 De/u(re)),  y_p(r; a) = (r^p - a^p)/(r^p + a^p),
+
+    so that De - V -> u(r) at large r. De in cm-1; re, r_ref in angstrom; C_m in cm-1 angstrom^m
+    (C6 > 0; C8, C10 >= 0, 0 leaves the term out; u(re) < 2 De); betas: 1 to 8 coefficients
+    (dimensionless). p and q are whole numbers; p must exceed 2 and the spread of the inverse
+    powers (p >= 5 with C10 > 0), since V = De - u(r) + O(C6 r^-(6+p)). r_ref=None takes the
+    starting re; r_ref is then a parameter of its own and does not follow re when re changes.
+    u(r) is undamped: no damping functions in this version.
+
+    Fixed in fits by default: p, q, r_ref and the long-range coefficients C6, C8, C10 (common
+    practice holds them at theoretical values; vary them with vary=...).
+    """
+
+    model = "mlr"  # the family; each object uses the core's model "mlrK" for its K coefficients
+    fixed_by_default = ("C6", "C8", "C10", "p", "q", "r_ref")
+
+    def __init__(self, De, re, C6, betas=None, C8=0.0, C10=0.0, p=5, q=3, r_ref=None, **coefficients):
+        values = _exponent_coefficients("MLR", betas, coefficients)
+        self.model = "mlr%d" % len(values)
+        super().__init__(De=De, re=re, C6=C6, C8=C8, C10=C10, p=p, q=q, r_ref=re if r_ref is None else r_ref,
+                         **{"beta%d" % i: b for i, b in enumerate(values)})
+
+    @property
+    def betas(self):
+        """The exponent coefficients (beta0, beta1, ...), dimensionless."""
+        return tuple(self._params[8:].tolist())

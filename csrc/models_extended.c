@@ -1,0 +1,347 @@
+/* models_extended.c: the expanded Morse oscillator (EMO) and the Morse/long-range (MLR) models.
+ *
+ * Both have V(re) = 0 and the asymptote +De, like the models of potential.c, and give V, dV/dr,
+ * d2V/dr2, the depth De - V without cancellation near the asymptote and analytic dV/dp for every
+ * parameter. The number of exponent coefficients beta_i is fixed per descriptor, so each model has
+ * one descriptor per count K = 1..8: "emoK" and "mlrK" (the binding checks parameter counts by name).
+ *
+ * Radial variable (both models): y_p(r; a) = (r^p - a^p)/(r^p + a^p), from -1 at r = 0 to +1 at
+ * r = infinity.
+ * EMO [Lee, Seto, Hirao, Bernath & Le Roy, J. Mol. Spectrosc. 194, 197 (1999)]:
+ *   V = De [1 - exp(-beta(r) (r - re))]^2, beta(r) = sum_i beta_i y_p(r; re)^i.
+ * MLR [Le Roy & Henderson, Mol. Phys. 105, 663 (2007); Le Roy et al., J. Chem. Phys. 131, 204309 (2009)]:
+ *   V = De [1 - (u(r)/u(re)) exp(-beta(r) y_p(r; re))]^2, u(r) = C6/r^6 + C8/r^8 + C10/r^10 (undamped),
+ *   beta(r) = y_p(r; r_ref) beta_inf + [1 - y_p(r; r_ref)] sum_i beta_i y_q(r; r_ref)^i,
+ *   beta_inf = ln(2 De/u(re)), so that De - V -> u(r) as r -> infinity.
+ */
+#include <math.h>
+
+#include <gsl/gsl_math.h>
+
+#include "model_power.h"
+#include "wkb.h"
+
+/* ---- shared pieces ---- */
+
+/* y_p(r; a) and what its uses need, with 1 - y and 1 - y^2 formed without cancellation at large r
+   (through (a/r)^p) and no overflow of r^p. dy/dr = (p/2r)(1 - y^2), d2y/dr2 = -(dy/dr)(1 + p y)/r. */
+typedef struct {
+    double y, one_minus_y, one_minus_y2, dy, d2y;
+} radial_variable;
+
+static void radial_variable_at(double r, double a, double p, radial_variable *out)
+{
+    if (r > a) {
+        const double t = power(a / r, p);
+        out->y = (1 - t) / (1 + t);
+        out->one_minus_y = 2 * t / (1 + t);
+        out->one_minus_y2 = 4 * t / ((1 + t) * (1 + t));
+    } else {
+        const double s = power(r / a, p);
+        out->y = (s - 1) / (s + 1);
+        out->one_minus_y = 2 / (1 + s);
+        out->one_minus_y2 = 4 * s / ((1 + s) * (1 + s));
+    }
+    out->dy = 0.5 * p / r * out->one_minus_y2;
+    out->d2y = -out->dy * (1 + p * out->y) / r;
+}
+
+/* dy/da and dy/dp of y_p(r; a). */
+static double radial_variable_d_center(const radial_variable *v, double a, double p)
+{
+    return -0.5 * p / a * v->one_minus_y2;
+}
+static double radial_variable_d_power(const radial_variable *v, double r, double a)
+{
+    return 0.5 * v->one_minus_y2 * log(r / a);
+}
+
+/* S = sum_i c_i y^i, S1 = dS/dy, S2 = d2S/dy2 for n coefficients (Horner). */
+static void polynomial(const double *c, size_t n, double y, double *S, double *S1, double *S2)
+{
+    double s = 0, s1 = 0, s2 = 0;
+    for (size_t i = n; i-- > 0;) {
+        s2 = s2 * y + 2 * s1;
+        s1 = s1 * y + s;
+        s = s * y + c[i];
+    }
+    *S = s;
+    *S1 = s1;
+    *S2 = s2;
+}
+
+static int check_positive(const char *model, const char *name, double value, wkb_error *err)
+{
+    if (!(value > 0))
+        return wkb_fail(err, WKB_EINVAL, "%s parameter %s=%g is invalid: it must be > 0", model, name, value);
+    return WKB_SUCCESS;
+}
+
+static int check_integer(const char *model, const char *name, double value, double lowest, const char *why,
+                         wkb_error *err)
+{
+    if (!(value == floor(value) && value >= lowest && value <= 64))
+        return wkb_fail(err, WKB_EINVAL, "%s parameter %s=%.17g is invalid: it must be a whole number from %g to 64%s",
+                        model, name, value, lowest, why);
+    return WKB_SUCCESS;
+}
+
+static double param0(const wkb_potential *pot) { return pot->p[0]; }
+static double param1(const wkb_potential *pot) { return pot->p[1]; }
+
+/* The inner end of the scan: step in from re by 2% of re until V reaches 1e4 De, or stop at the top
+   of an inner turnover (possible with large high-order beta_i), but not below 0.04 re. */
+static double inner_wall(const wkb_potential *pot)
+{
+    const double De = pot->p[0], re = pot->p[1];
+    double r_prev = re, V_prev = 0;
+    for (int k = 1; k <= 48; k++) {
+        const double r = re * (1 - 0.02 * k);
+        wkb_pot_value pv;
+        pot->model->eval(pot, r, &pv);
+        if (!(pv.V > V_prev))
+            return r_prev;
+        if (pv.V >= 1e4 * De)
+            return r;
+        r_prev = r;
+        V_prev = pv.V;
+    }
+    return r_prev;
+}
+
+/* ---- EMO: p = (De, re, p, beta_0 .. beta_(K-1)) ---- */
+#define EMO_LEADING 3 /* parameters before the beta_i */
+
+static const char *const emo_names[EMO_LEADING + WKB_EMO_MAX_BETAS] = {
+    "De", "re", "p", "beta0", "beta1", "beta2", "beta3", "beta4", "beta5", "beta6", "beta7",
+};
+
+static int emo_check(const double *p, size_t n_betas, wkb_error *err)
+{
+    int s;
+    if ((s = check_positive("EMO", "De", p[0], err)) || (s = check_positive("EMO", "re", p[1], err)) ||
+        (s = check_integer("EMO", "p", p[2], 1, "", err)))
+        return s;
+    if (!(p[3] > 0))
+        return wkb_fail(err, WKB_EINVAL,
+                        "EMO parameter beta0=%g is invalid: it must be > 0 (the curvature at re is 2 De beta0^2)", p[3]);
+    double beta_far = 0;
+    for (size_t i = 0; i < n_betas; i++)
+        beta_far += p[EMO_LEADING + i];
+    if (!(beta_far > 0))
+        return wkb_fail(err, WKB_EINVAL,
+                        "EMO coefficients are invalid: their sum (beta at large r) is %g, but it must be > 0 for "
+                        "V to approach De from below", beta_far);
+    return WKB_SUCCESS;
+}
+
+/* phi = beta(r) (r - re) with its r-derivatives; the rest of the evaluation is Morse's with phi for a (r - re). */
+typedef struct {
+    radial_variable y;
+    double beta, beta1, phi, dphi, d2phi;
+} emo_terms;
+
+static void emo_terms_at(const wkb_potential *pot, double r, emo_terms *t)
+{
+    const double re = pot->p[1], p = pot->p[2];
+    const size_t n = pot->model->n_params - EMO_LEADING;
+    double B2;
+    radial_variable_at(r, re, p, &t->y);
+    polynomial(pot->p + EMO_LEADING, n, t->y.y, &t->beta, &t->beta1, &B2);
+    const double d = r - re, dy = t->y.dy;
+    t->phi = t->beta * d;
+    t->dphi = t->beta + t->beta1 * dy * d;
+    t->d2phi = 2 * t->beta1 * dy + (B2 * dy * dy + t->beta1 * t->y.d2y) * d;
+}
+
+static void emo_eval(const wkb_potential *pot, double r, wkb_pot_value *out)
+{
+    const double De = pot->p[0];
+    emo_terms t;
+    emo_terms_at(pot, r, &t);
+    const double x = exp(-t.phi), dphi = t.dphi;
+    /* same operation order as the Morse model, so that one coefficient reproduces it exactly */
+    out->V = De * (1 - x) * (1 - x);
+    out->dV = 2 * De * dphi * x * (1 - x);
+    out->d2V = 2 * De * dphi * dphi * x * (2 * x - 1) + 2 * De * t.d2phi * x * (1 - x);
+    out->depth = De * x * (2 - x);
+}
+
+static void emo_param_derivs(const wkb_potential *pot, double r, double *dVdp)
+{
+    const double De = pot->p[0], re = pot->p[1], p = pot->p[2];
+    const size_t n = pot->model->n_params - EMO_LEADING;
+    emo_terms t;
+    emo_terms_at(pot, r, &t);
+    const double x = exp(-t.phi), d = r - re;
+    const double dV_dphi = 2 * De * x * (1 - x);
+    dVdp[0] = (1 - x) * (1 - x);
+    dVdp[1] = dV_dphi * (-t.beta + d * t.beta1 * radial_variable_d_center(&t.y, re, p));
+    dVdp[2] = dV_dphi * d * t.beta1 * radial_variable_d_power(&t.y, r, re);
+    double yi = 1;
+    for (size_t i = 0; i < n; i++) {
+        dVdp[EMO_LEADING + i] = dV_dphi * d * yi;
+        yi *= t.y.y;
+    }
+}
+
+static double exponential_tail(const wkb_potential *pot) { return 0.0; }
+
+#define EMO_CHECK(K)                                                                                           \
+    static int emo_check_##K(const double *p, wkb_error *err) { return emo_check(p, K, err); }
+EMO_CHECK(1)
+EMO_CHECK(2)
+EMO_CHECK(3)
+EMO_CHECK(4)
+EMO_CHECK(5)
+EMO_CHECK(6)
+EMO_CHECK(7)
+EMO_CHECK(8)
+#undef EMO_CHECK
+
+#define EMO_ENTRY(K)                                                                                           \
+    {"emo" #K, EMO_LEADING + K, emo_names, emo_check_##K, emo_eval, emo_param_derivs,                        \
+     param0, param1, inner_wall, exponential_tail}
+const wkb_model wkb_models_emo[WKB_EMO_MAX_BETAS] = {
+    EMO_ENTRY(1), EMO_ENTRY(2), EMO_ENTRY(3), EMO_ENTRY(4), EMO_ENTRY(5), EMO_ENTRY(6), EMO_ENTRY(7), EMO_ENTRY(8),
+};
+#undef EMO_ENTRY
+
+/* ---- MLR: p = (De, re, C6, C8, C10, p, q, r_ref, beta_0 .. beta_(K-1)) ---- */
+#define MLR_LEADING 8
+
+static const char *const mlr_names[MLR_LEADING + WKB_MLR_MAX_BETAS] = {
+    "De", "re", "C6", "C8", "C10", "p", "q", "r_ref",
+    "beta0", "beta1", "beta2", "beta3", "beta4", "beta5", "beta6", "beta7",
+};
+
+/* u(r) = C6/r^6 + C8/r^8 + C10/r^10 and its r-derivatives. */
+typedef struct {
+    double u, du, d2u;
+} long_range;
+
+static void long_range_at(const double *p, double r, long_range *out)
+{
+    const double ir = 1 / r, ir2 = ir * ir, ir6 = ir2 * ir2 * ir2;
+    const double t6 = p[2] * ir6, t8 = p[3] * ir6 * ir2, t10 = p[4] * ir6 * ir2 * ir2;
+    out->u = t6 + t8 + t10;
+    out->du = -(6 * t6 + 8 * t8 + 10 * t10) * ir;
+    out->d2u = (42 * t6 + 72 * t8 + 110 * t10) * ir2;
+}
+
+static int mlr_check(const double *p, wkb_error *err)
+{
+    int s;
+    if ((s = check_positive("MLR", "De", p[0], err)) || (s = check_positive("MLR", "re", p[1], err)) ||
+        (s = check_positive("MLR", "C6", p[2], err)) || (s = check_positive("MLR", "r_ref", p[7], err)))
+        return s;
+    if (!(p[3] >= 0))
+        return wkb_fail(err, WKB_EINVAL, "MLR parameter C8=%g is invalid: it must be >= 0 (0 leaves it out)", p[3]);
+    if (!(p[4] >= 0))
+        return wkb_fail(err, WKB_EINVAL, "MLR parameter C10=%g is invalid: it must be >= 0 (0 leaves it out)", p[4]);
+    /* V -> De - u + O(C6 r^-(6+p)): the last inverse power must fall off slower than the error term */
+    const double spread = p[4] > 0 ? 4 : p[3] > 0 ? 2 : 0;
+    const double p_lowest = GSL_MAX(3.0, spread + 1);
+    const char *why = spread > 2 ? " (with C10 > 0, p must exceed the spread 10 - 6 of the inverse powers)"
+                                 : " (p must exceed 2, and the spread m_last - 6 of the inverse powers)";
+    if ((s = check_integer("MLR", "p", p[5], p_lowest, why, err)) || (s = check_integer("MLR", "q", p[6], 1, "", err)))
+        return s;
+    long_range lr;
+    long_range_at(p, p[1], &lr);
+    if (!(lr.u < 2 * p[0]))
+        return wkb_fail(err, WKB_EINVAL,
+                        "MLR parameters are invalid: u_LR(re) = C6/re^6 + C8/re^8 + C10/re^10 = %g must be below "
+                        "2 De = %g, so that beta_inf = ln(2 De/u_LR(re)) is positive", lr.u, 2 * p[0]);
+    return WKB_SUCCESS;
+}
+
+/* V = De (1 - x)^2 with x = exp(L), L = ln(u(r)/u(re)) - phi, phi = beta(r) y_p(r; re). */
+typedef struct {
+    long_range at_r, at_re;
+    radial_variable eq, ref_p, ref_q;
+    double beta_inf, S, S1, beta, phi, x, dL, d2L;
+} mlr_terms;
+
+static void mlr_terms_at(const wkb_potential *pot, double r, mlr_terms *t)
+{
+    const double *p = pot->p;
+    const double De = p[0], re = p[1], pw = p[5], qw = p[6], r_ref = p[7];
+    const size_t n = pot->model->n_params - MLR_LEADING;
+    double S2;
+    long_range_at(p, r, &t->at_r);
+    long_range_at(p, re, &t->at_re);
+    radial_variable_at(r, re, pw, &t->eq);
+    radial_variable_at(r, r_ref, pw, &t->ref_p);
+    radial_variable_at(r, r_ref, qw, &t->ref_q);
+    polynomial(p + MLR_LEADING, n, t->ref_q.y, &t->S, &t->S1, &S2);
+    t->beta_inf = log(2 * De / t->at_re.u);
+    const radial_variable *e = &t->eq, *a = &t->ref_p, *b = &t->ref_q;
+    const double gap = t->beta_inf - t->S; /* d beta / d y_p^ref */
+    t->beta = a->y * t->beta_inf + a->one_minus_y * t->S;
+    const double dbeta = a->dy * gap + a->one_minus_y * t->S1 * b->dy;
+    const double d2beta = a->d2y * gap - 2 * a->dy * t->S1 * b->dy +
+                          a->one_minus_y * (S2 * b->dy * b->dy + t->S1 * b->d2y);
+    t->phi = t->beta * e->y;
+    const double dphi = dbeta * e->y + t->beta * e->dy;
+    const double d2phi = d2beta * e->y + 2 * dbeta * e->dy + t->beta * e->d2y;
+    const double g = t->at_r.du / t->at_r.u;
+    t->x = t->at_r.u / t->at_re.u * exp(-t->phi);
+    t->dL = g - dphi;
+    t->d2L = t->at_r.d2u / t->at_r.u - g * g - d2phi;
+}
+
+static void mlr_eval(const wkb_potential *pot, double r, wkb_pot_value *out)
+{
+    const double De = pot->p[0];
+    mlr_terms t;
+    mlr_terms_at(pot, r, &t);
+    const double x = t.x;
+    out->V = De * (1 - x) * (1 - x);
+    out->dV = -2 * De * (1 - x) * x * t.dL;
+    out->d2V = 2 * De * x * (x * t.dL * t.dL - (1 - x) * (t.d2L + t.dL * t.dL));
+    out->depth = De * x * (2 - x); /* -> u(r) - u(r)^2/(4 De) at large r, no cancellation */
+}
+
+static void mlr_param_derivs(const wkb_potential *pot, double r, double *dVdp)
+{
+    const double *p = pot->p;
+    const double De = p[0], re = p[1], pw = p[5], qw = p[6], r_ref = p[7];
+    const size_t n = pot->model->n_params - MLR_LEADING;
+    mlr_terms t;
+    mlr_terms_at(pot, r, &t);
+    const radial_variable *e = &t.eq, *a = &t.ref_p, *b = &t.ref_q;
+    const double x = t.x, dV_dL = -2 * De * (1 - x) * x;
+    const double gap = t.beta_inf - t.S;
+    /* 1 - y_p^ref y_p^eq without cancellation at large r */
+    const double one_minus_yy = a->one_minus_y + a->y * e->one_minus_y;
+    const double ue = t.at_re.u, ir_e = 1 / re, ir = 1 / r;
+
+    dVdp[0] = (1 - x) * (1 - x) + dV_dL * (-a->y * e->y / De);
+    dVdp[1] = dV_dL * (-t.at_re.du / ue * one_minus_yy - t.beta * radial_variable_d_center(e, re, pw));
+    /* C_m enters ln u(r), ln u(re) and beta_inf */
+    for (int k = 0; k < 3; k++) {
+        const double m = 6 + 2 * k;
+        dVdp[2 + k] = dV_dL * (power(ir, m) / t.at_r.u - power(ir_e, m) / ue * one_minus_yy);
+    }
+    const double dbeta_dp = radial_variable_d_power(a, r, r_ref) * gap;
+    dVdp[5] = dV_dL * -(dbeta_dp * e->y + t.beta * radial_variable_d_power(e, r, re));
+    dVdp[6] = dV_dL * -(a->one_minus_y * t.S1 * radial_variable_d_power(b, r, r_ref) * e->y);
+    const double dbeta_dref = radial_variable_d_center(a, r_ref, pw) * gap +
+                              a->one_minus_y * t.S1 * radial_variable_d_center(b, r_ref, qw);
+    dVdp[7] = dV_dL * -(dbeta_dref * e->y);
+    double yi = 1;
+    for (size_t i = 0; i < n; i++) {
+        dVdp[MLR_LEADING + i] = dV_dL * -(a->one_minus_y * yi * e->y);
+        yi *= b->y;
+    }
+}
+
+static double sixth_power_tail(const wkb_potential *pot) { return 6.0; }
+
+#define MLR_ENTRY(K)                                                                                           \
+    {"mlr" #K, MLR_LEADING + K, mlr_names, mlr_check, mlr_eval, mlr_param_derivs,                            \
+     param0, param1, inner_wall, sixth_power_tail}
+const wkb_model wkb_models_mlr[WKB_MLR_MAX_BETAS] = {
+    MLR_ENTRY(1), MLR_ENTRY(2), MLR_ENTRY(3), MLR_ENTRY(4), MLR_ENTRY(5), MLR_ENTRY(6), MLR_ENTRY(7), MLR_ENTRY(8),
+};
+#undef MLR_ENTRY
