@@ -563,7 +563,7 @@ int wkb_fit_run(const wkb_potential *start, const wkb_fit_data *data, const wkb_
     /* a varied parameter that no level depends on (J=0 levels of a Morse well and re) would
        only feed rounding noise to the solver, which then wanders along it: hold it fixed */
     {
-        double sens[WKB_MAX_PARAMS], top = 0;
+        double sens[WKB_MAX_PARAMS], column[WKB_MAX_PARAMS], top = 0;
         size_t kept = 0;
         for (size_t j = 0; j < c.nv; j++) {
             const size_t k = c.var[j];
@@ -572,11 +572,14 @@ int wkb_fit_run(const wkb_potential *start, const wkb_fit_data *data, const wkb_
                 const double q = c.cache_jac[i * c.np + k] / data->sigma[i];
                 s2 += q * q;
             }
-            sens[j] = sqrt(s2) * GSL_MAX(fabs(start->p[k]), GSL_DBL_MIN);
+            column[j] = sqrt(s2);
+            sens[j] = column[j] * fabs(start->p[k]);
             top = GSL_MAX(top, sens[j]);
         }
         for (size_t j = 0; j < c.nv; j++) {
-            if (sens[j] > WKB_FIT_INSENSITIVE * top)
+            /* a parameter starting at 0 has no scale of its own: keep it unless no level depends on it */
+            const int at_zero = start->p[c.var[j]] == 0;
+            if (at_zero ? column[j] > 0 : sens[j] > WKB_FIT_INSENSITIVE * top)
                 c.var[kept++] = c.var[j];
             else
                 out->insensitive[c.var[j]] = 1;

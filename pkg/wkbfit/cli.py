@@ -59,10 +59,14 @@ def _find_model(name):
     raise UserError("unknown potential model %r; models: %s" % (name, ", ".join(MODELS)))
 
 
+#: marks a constructor parameter without a default
+REQUIRED = object()
+
+
 def _model_signature(cls):
-    """[(parameter name, default or None)] of a model's constructor."""
+    """[(parameter name, default or REQUIRED)] of a model's constructor."""
     params = list(inspect.signature(cls.__init__).parameters.values())[1:]
-    return [(p.name, None if p.default is inspect.Parameter.empty else p.default) for p in params
+    return [(p.name, REQUIRED if p.default is inspect.Parameter.empty else p.default) for p in params
             if p.kind in (p.POSITIONAL_OR_KEYWORD, p.KEYWORD_ONLY)]
 
 
@@ -93,7 +97,7 @@ def _build_potential(model, assignments):
         parts = text.split(",")
         values[name] = (_number(parts[0], name) if len(parts) == 1
                         else [_number(p, name) for p in parts])
-    missing = [n for n, default in signature if default is None and n not in values]
+    missing = [n for n, default in signature if default is REQUIRED and n not in values]
     if missing:
         raise UserError("%s needs %s; write them as NAME=VALUE, for example %s" % (
             cls.__name__, ", ".join(missing), " ".join("%s=..." % n for n in missing)))
@@ -298,7 +302,8 @@ def _cmd_demo(args, out):
 # -- parser -------------------------------------------------------------------------------
 def _parser():
     models_help = ", ".join("%s (%s)" % (name, ", ".join(
-        "%s%s" % (n, "" if d is None else "=%g" % d) for n, d in _model_signature(cls)))
+        "%s%s" % (n, "" if d is REQUIRED else "=%g" % d if isinstance(d, (int, float)) else "=%s" % (d,))
+        for n, d in _model_signature(cls)))
         for name, cls in MODELS.items())
     parser = _Parser(prog="wkbfit", description=(
         "WKB and exact levels of diatomic potentials, and weighted fits of potentials to measured levels. "
