@@ -1,6 +1,8 @@
 # wkbfit: set-up, build, demo and tests.  `make demo` and `make test` do everything on a fresh machine.
 PYTHON ?= python3
-PIP = $(PYTHON) -m pip
+PIP = PIP_ROOT_USER_ACTION=ignore $(PYTHON) -m pip --disable-pip-version-check
+# the build tools' deprecation chatter is not for users
+QUIET = PYTHONWARNINGS=ignore
 # Build steps take this lock so that parallel builds in one work tree do not collide.
 LOCK = flock /tmp/wkbfit-build.lock
 
@@ -34,9 +36,9 @@ python-deps:
 
 # The extension built in place, and an editable install of this tree (pkg/) unless it is installed already.
 build:
-	@$(LOCK) $(PYTHON) setup.py -q build_ext --inplace
+	@$(LOCK) env $(QUIET) $(PYTHON) setup.py -q build_ext --inplace
 	@$(PYTHON) -c "import os, sys, wkbfit; sys.exit(os.path.realpath(wkbfit.__file__) != os.path.realpath('pkg/wkbfit/__init__.py'))" 2>/dev/null || \
-	  $(LOCK) $(PIP) install -q --no-build-isolation --no-deps -e .
+	  $(LOCK) env $(QUIET) $(PIP) install -q --no-build-isolation --no-deps -e .
 
 clean:
 	rm -rf build pkg/wkbfit/_core*.so pkg/*.egg-info

@@ -405,3 +405,24 @@ def test_action_with_outer_turning_point_hundreds_of_angstrom_out():
     for i, b in enumerate(binding):
         ref = mp_action(pot, mu, mp.mpf(pot.De) - mp.mpf(b))
         assert o["action"][i] == pytest.approx(float(ref), rel=1e-12), b
+
+
+def test_two_threads_give_the_serial_results():
+    # the core keeps no global state and releases the GIL: concurrent calls must not interfere
+    import threading
+    pots = [(hcl_morse(), HCL_MU), (wkbfit.LennardJones(De=4000.0, re=4.0), 20.0)]
+    serial = [wkbfit.levels(p, mu, J=[0, 7]).energy for p, mu in pots]
+    results = [[None] * 20 for _ in pots]
+
+    def work(k):
+        for i in range(20):
+            results[k][i] = wkbfit.levels(pots[k][0], pots[k][1], J=[0, 7]).energy
+
+    threads = [threading.Thread(target=work, args=(k,)) for k in range(2)]
+    for t in threads:
+        t.start()
+    for t in threads:
+        t.join()
+    for k in range(2):
+        for e in results[k]:
+            assert np.array_equal(e, serial[k])
