@@ -373,10 +373,11 @@ static PyObject *py_wkb_levels(PyObject *self, PyObject *args, PyObject *kwds)
                                    "outer_turning_point", "Bv", "dEdv", "error"};
     PyObject *result = NULL;
     wkb_potential pot;
-    wkb_well *w = NULL;
+    wkb_well **wells = NULL; /* one set-up well per rotational factor, kept between the two passes */
     wkb_level *lv = NULL;
     wkb_error err = {0};
     size_t n = 0;
+    npy_intp n_rot = 0;
     int status = WKB_SUCCESS;
 
     if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOdO|Oiipi", kwlist, &model_name, &params_obj, &curve_obj,
@@ -405,17 +406,22 @@ static PyObject *py_wkb_levels(PyObject *self, PyObject *args, PyObject *kwds)
             goto cleanup;
         }
     }
-    const npy_intp n_rot = PyArray_SIZE(rot_arr);
+    n_rot = PyArray_SIZE(rot_arr);
     if (!(vD_arr = new_vector(n_rot)) ||
         !(count_arr = (PyArrayObject *)PyArray_SimpleNew(1, (npy_intp[]){n_rot}, NPY_INTP)))
         goto cleanup;
     {
         wkb_settings settings = wkb_default_settings();
         settings.order = order;
-        if (!(w = wkb_well_alloc(&settings))) {
+        if (!(wells = calloc((size_t)n_rot + 1, sizeof *wells))) {
             PyErr_NoMemory();
             goto cleanup;
         }
+        for (npy_intp k = 0; k < n_rot; k++)
+            if (!(wells[k] = wkb_well_alloc(&settings))) {
+                PyErr_NoMemory();
+                goto cleanup;
+            }
     }
     const double *rot = PyArray_DATA(rot_arr);
     double *vD = PyArray_DATA(vD_arr);
@@ -424,9 +430,9 @@ static PyObject *py_wkb_levels(PyObject *self, PyObject *args, PyObject *kwds)
     Py_BEGIN_ALLOW_THREADS
     for (npy_intp k = 0; k < n_rot && !status; k++) {
         size_t c = 0;
-        status = wkb_well_set(w, &pot, mu, rot[k], maslov_in, maslov_out, &err);
+        status = wkb_well_set(wells[k], &pot, mu, rot[k], maslov_in, maslov_out, &err);
         if (!status)
-            status = wkb_level_count(w, &c, &vD[k], &err);
+            status = wkb_level_count(wells[k], &c, &vD[k], &err);
         count[k] = (npy_intp)c;
         n += v_arr ? (size_t)PyArray_SIZE(v_arr) : c;
     }
@@ -457,9 +463,7 @@ static PyObject *py_wkb_levels(PyObject *self, PyObject *args, PyObject *kwds)
         for (npy_intp k = 0; k < n_rot && !status; k++) {
             const size_t m = vv ? (size_t)PyArray_SIZE(v_arr) : (size_t)count[k];
             size_t c;
-            status = wkb_well_set(w, &pot, mu, rot[k], maslov_in, maslov_out, &err);
-            if (status)
-                break;
+            wkb_well *w = wells[k];
             if (!vv && !pd) {
                 status = wkb_all_levels(w, lv + row, m, &c, NULL, &err);
             } else {
@@ -517,7 +521,10 @@ cleanup:
     Py_XDECREF(count_arr);
     Py_XDECREF(index);
     free(lv);
-    wkb_well_free(w);
+    if (wells)
+        for (npy_intp k = 0; k < n_rot; k++)
+            wkb_well_free(wells[k]);
+    free(wells);
     return result;
 }
 
