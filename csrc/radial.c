@@ -553,10 +553,30 @@ typedef struct {
     double norm;    /* sum wt w^2 */
 } radial_sweep;
 
+/* Walks from grid point start into the forbidden region (dir -1 inward, +1 outward), summing
+   kappa dx until the tail target or the recurrence cap is reached; returns the last point
+   reached and the sum in *decay. */
+static size_t forbidden_walk(const wkb_radial *w, double b, size_t start, int dir, double *decay)
+{
+    double acc = 0;
+    size_t j = start;
+    while (dir < 0 ? j > 0 : j + 1 < w->n) {
+        const size_t i = dir < 0 ? j - 1 : j + 1;
+        const double T = w->qt[i] + b * w->wt[i];
+        if (!(16 * T < RADIAL_T_CAP))
+            break;
+        acc += T > 0 ? sqrt(12 * T) : 0;
+        j = i;
+        if (acc >= w->set.tail_decay)
+            break;
+    }
+    *decay = acc;
+    return j;
+}
+
 static int find_range(const wkb_radial *w, double b, radial_range *rg, wkb_error *err)
 {
     const size_t n = w->n;
-    const double *qt = w->qt, *wt = w->wt;
     if (!(w->pmax[n - 1] > b))
         return wkb_fail(err, WKB_ENOLEVEL, "binding energy %g cm-1 is below the bottom of the well", b);
     size_t lo = 0, hi = n - 1; /* first i with pmax[i] > b */
@@ -579,33 +599,11 @@ static int find_range(const wkb_radial *w, double b, radial_range *rg, wkb_error
     }
     rg->ib = lo;
 
-    const double tail = w->set.tail_decay;
-    double acc = 0;
-    size_t j = rg->ia;
-    for (size_t i = rg->ia; i-- > 0;) {
-        const double T = qt[i] + b * wt[i];
-        if (!(16 * T < RADIAL_T_CAP))
-            break;
-        acc += T > 0 ? sqrt(12 * T) : 0;
-        j = i;
-        if (acc >= tail)
-            break;
-    }
+    double acc;
+    size_t j = forbidden_walk(w, b, rg->ia, -1, &acc);
     rg->decay_in = j == 0 && w->r[0] == 0 ? HUGE_VAL : acc; /* r = 0 is the true boundary */
     rg->is = j == 0 ? 0 : ((j - 1 + 3) / 4) * 4;
-
-    acc = 0;
-    j = rg->ib;
-    for (size_t i = rg->ib + 1; i < n; i++) {
-        const double T = qt[i] + b * wt[i];
-        if (!(16 * T < RADIAL_T_CAP))
-            break;
-        acc += T > 0 ? sqrt(12 * T) : 0;
-        j = i;
-        if (acc >= tail)
-            break;
-    }
-    rg->decay_out = acc;
+    j = forbidden_walk(w, b, rg->ib, +1, &rg->decay_out);
     rg->ie = ((j + 1) / 4) * 4;
     if (rg->ie > n - 1)
         rg->ie = n - 1;

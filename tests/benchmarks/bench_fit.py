@@ -23,62 +23,16 @@ import time
 import warnings
 
 import numpy as np
-from scipy.integrate import IntegrationWarning, quad
-from scipy.optimize import brentq, least_squares, minimize_scalar
+from scipy.integrate import IntegrationWarning
+from scipy.optimize import least_squares
 
 sys.path.insert(0, os.path.join(os.path.dirname(__file__), "..", "..", "pkg"))
 import wkbfit  # noqa: E402
+from scipy_wkb import ScipyWKB  # noqa: E402  (tests/benchmarks/scipy_wkb.py)
 from timing import time_call  # noqa: E402  (tests/benchmarks/timing.py)
 
 
 # ------------------------------------------------------------------ the SciPy baseline
-def scipy_wkb_levels(model, params, mu, vs, J):
-    """First-order WKB levels (Maslov 1/2) of v in vs at rotation J, with brentq and quad."""
-    eps = wkbfit.HBAR2_OVER_2U / mu
-    rot = eps * J * (J + 1)
-    if model == "morse":
-        De, re, a = params
-
-        def V(r):
-            return De * (1 - math.exp(-a * (r - re))) ** 2 + rot / (r * r)
-        r_small = max(re - math.log(101.0) / a, 1e-3 * re)
-    else:
-        De, re, n, m = params
-
-        def V(r):
-            s = re / r
-            return De + De / (n - m) * (m * s ** n - n * s ** m) + rot / (r * r)
-        r_small = re * 0.5
-    r_bottom = minimize_scalar(V, bounds=(r_small, 3 * re), method="bounded",
-                               options={"xatol": 1e-12 * re}).x
-    bottom = V(r_bottom)
-
-    def turning_points(E):
-        r1 = brentq(lambda r: V(r) - E, r_small, r_bottom, xtol=1e-14, rtol=1e-15)
-        hi = 2 * r_bottom
-        while V(hi) < E:
-            hi *= 2
-        r2 = brentq(lambda r: V(r) - E, r_bottom, hi, xtol=1e-14, rtol=1e-15)
-        return r1, r2
-
-    def action(E):
-        r1, r2 = turning_points(E)
-        val, _ = quad(lambda r: math.sqrt(max(E - V(r), 0.0) / eps), r1, r2, epsabs=0, epsrel=1e-12, limit=200)
-        return val
-
-    out = []
-    lo = bottom + 1e-9 * De
-    for v in sorted(vs):
-        target = math.pi * (v + 0.5)
-        E = brentq(lambda E: action(E) - target, lo, De * (1 - 1e-12), xtol=1e-10, rtol=1e-15)
-        out.append(E)
-        lo = E
-    order = np.argsort(vs)
-    result = np.empty(len(vs))
-    result[order] = out
-    return result
-
-
 def scipy_fit(model, start, obs, mu, vary_idx):
     """scipy.optimize.least_squares over the baseline levels; returns (parameters, uncertainties)."""
     Js = sorted(set(obs.J.tolist()))
@@ -90,7 +44,7 @@ def scipy_fit(model, start, obs, mu, vary_idx):
         p[vary_idx] = x
         calc = np.empty(len(obs))
         for J, idx in groups:
-            calc[idx] = scipy_wkb_levels(model, p, mu, obs.v[idx].tolist(), J)
+            calc[idx] = ScipyWKB(model, p, mu, J).levels(obs.v[idx].tolist())
         return (obs.energy - calc) / obs.uncertainty
 
     res = least_squares(residuals, full[vary_idx], x_scale="jac", ftol=1e-12, xtol=1e-12, gtol=1e-12)

@@ -8,7 +8,6 @@ two threads against one (the core releases the GIL).
 Targets (issue 2): <= 5 us per level on one core; >= 1000x the SciPy baseline; >= 1.8x with
 two threads on two cores.  Run: python3 tests/benchmarks/bench_wkb.py
 """
-import math
 import multiprocessing
 import os
 import sys
@@ -16,55 +15,11 @@ import threading
 import time
 
 import numpy as np
-from scipy.integrate import quad
-from scipy.optimize import brentq
 
 sys.path.insert(0, os.path.join(os.path.dirname(__file__), "..", "..", "pkg"))
 import wkbfit  # noqa: E402
+from scipy_wkb import ScipyWKB  # noqa: E402  (tests/benchmarks/scipy_wkb.py)
 from timing import time_call  # noqa: E402  (tests/benchmarks/timing.py)
-
-
-def scipy_levels(pot, mu, tol=1e-10):
-    """All bound first-order WKB levels with SciPy root finding and adaptive quadrature."""
-    eps = wkbfit.HBAR2_OVER_2U / mu
-    De, re = pot.params["De"], pot.params["re"]
-    if pot.model == "morse":
-        a = pot.params["a"]
-
-        def V(r):
-            return De * (1 - math.exp(-a * (r - re))) ** 2
-    else:
-        def V(r):
-            s6 = (re / r) ** 6
-            return De * (1 + s6 * s6 - 2 * s6)
-
-    def turning_points(E):
-        r1 = brentq(lambda r: V(r) - E, re * 0.05 if pot.model == "morse" else re * 0.5, re, xtol=1e-14, rtol=1e-15)
-        hi = re * 2
-        while V(hi) < E:
-            hi *= 2
-        r2 = brentq(lambda r: V(r) - E, re, hi, xtol=1e-14, rtol=1e-15)
-        return r1, r2
-
-    def action(E):
-        r1, r2 = turning_points(E)
-        val, _ = quad(lambda r: np.sqrt(max(E - V(r), 0.0) / eps), r1, r2, epsabs=0, epsrel=1e-12, limit=200)
-        return val
-
-    def action_top():
-        r1 = turning_points(De * (1 - 1e-12))[0]
-        val, _ = quad(lambda r: np.sqrt(max(De - V(r), 0.0) / eps), r1, np.inf, epsabs=0, epsrel=1e-12, limit=400)
-        return val
-
-    vD = action_top() / np.pi - 0.5
-    out = []
-    lo = 0.0
-    for v in range(int(np.ceil(vD))):
-        target = np.pi * (v + 0.5)
-        E = brentq(lambda E: action(E) - target, lo + 1e-9 * De, De * (1 - 1e-13), xtol=tol, rtol=1e-15)
-        out.append(E)
-        lo = E
-    return np.array(out)
 
 
 def main():
@@ -80,7 +35,7 @@ def main():
         n = len(table)
         t_core = time_call(lambda: wkbfit.levels(pot, mu))
         t0 = time.perf_counter()
-        ref = scipy_levels(pot, mu)
+        ref = ScipyWKB(pot.model, list(pot.params.values()), mu).all_levels()
         t_scipy = time.perf_counter() - t0
         diff = np.max(np.abs(ref - table.energy[: len(ref)]))
         print("\n%s: %d levels" % (name, n))
