@@ -33,6 +33,7 @@
 #define MIDDLE_PIECE_LOG_LENGTH 1.5
 #define COMPACT_LOG_LENGTH 0.5 /* orbits with r2 < 1.65 r_b use a linear map on the outer side */
 #define THRESHOLD_TAIL_LOG_START 3.0 /* the tail piece starts at r_b e^3 */
+#define OUTER_SCALES 4.0 /* the last outer piece spans at most this many local lengths |V'/V''| at r2 */
 
 wkb_settings wkb_default_settings(void)
 {
@@ -491,7 +492,7 @@ static void piece_log(wkb_well *w, const energy_point *e, double ya, double yb, 
 static void piece_tail(wkb_well *w, const energy_point *e, double rT, double q, sums *s)
 {
     for (size_t i = 0; i < w->set.nodes; i++) {
-        const double t = w->gl_x[i], r = rT * pow(t, -1 / q);
+        const double t = w->gl_x[i], r = q == 1 ? rT / t : rT * pow(t, -1 / q);
         add_node(w, e, r, w->gl_w[i] * (r / (q * t)), s);
     }
 }
@@ -554,26 +555,35 @@ int wkb_orbit_at(wkb_well *w, double binding, wkb_orbit *orbit, double *avg_dVdp
         const double q = n > 2 ? 0.5 * (n - 2) : 1.0;
         pieces_log(w, &e, yb, yb + THRESHOLD_TAIL_LOG_START, &s);
         piece_tail(w, &e, exp(yb + THRESHOLD_TAIL_LOG_START), q, &s);
-    } else if (w->tail_power == 0) {
-        /* an exponential tail is smooth on the scale of r itself: linear pieces in r save an exp per node */
-        if (r2 - rb <= rb) {
-            piece_outer_linear(w, &e, rb, r2, &s);
-        } else {
-            pieces_linear(w, &e, rb, r2 - rb, 1.5 * rb, &s);
-            piece_outer_linear_long(w, &e, r2 - rb, r2, &s);
-        }
     } else {
-        const double y2 = log(r2), Y = y2 - yb;
-        if (Y <= COMPACT_LOG_LENGTH) {
-            if (Y > 0)
+        /* the length over which the potential changes near r2, |V_J'/V_J''|: 1/a under an
+           exponential tail, r/(n+1) under -C_n/r^n, the orbit's size near the bottom; pieces are
+           kept within a few of these */
+        wkb_pot_value pv;
+        effective(w, r2, &pv);
+        const double scale = OUTER_SCALES * fabs(pv.dV / pv.d2V);
+        if (w->tail_power == 0) {
+            /* an exponential tail is smooth on that scale in r itself: linear pieces save an exp per node */
+            if (r2 - rb <= scale) {
                 piece_outer_linear(w, &e, rb, r2, &s);
-        } else if (Y <= END_PIECE_LOG_LENGTH) {
-            piece_outer_end(w, &e, y2, Y, &s);
+            } else {
+                pieces_linear(w, &e, rb, r2 - scale, 1.5 * scale, &s);
+                piece_outer_linear_long(w, &e, r2 - scale, r2, &s);
+            }
         } else {
-            pieces_log(w, &e, yb, y2 - END_PIECE_LOG_LENGTH, &s);
-            piece_outer_end(w, &e, y2, END_PIECE_LOG_LENGTH, &s);
+            const double y2 = log(r2), Y = y2 - yb, L_end = GSL_MIN(END_PIECE_LOG_LENGTH, scale / r2);
+            if (Y <= GSL_MIN(COMPACT_LOG_LENGTH, L_end)) {
+                if (Y > 0)
+                    piece_outer_linear(w, &e, rb, r2, &s);
+            } else if (Y <= L_end) {
+                piece_outer_end(w, &e, y2, Y, &s);
+            } else {
+                pieces_log(w, &e, yb, y2 - L_end, &s);
+                piece_outer_end(w, &e, y2, L_end, &s);
+            }
         }
     }
+
     const double se = sqrt(w->eps);
     orbit->energy = e.E;
     orbit->binding = binding;

@@ -426,3 +426,17 @@ def test_two_threads_give_the_serial_results():
     for k in range(2):
         for e in results[k]:
             assert np.array_equal(e, serial[k])
+
+
+@pytest.mark.parametrize("a,re", [(5.0, 6.0), (3.0, 3.0), (0.4, 2.5)])
+def test_morse_action_closed_form_for_steep_and_soft_walls(a, re):
+    # the Morse action is I(b) = pi (sqrt(De) - sqrt(b)) / (a sqrt(eps)) at binding energy b
+    # (it follows from the Morse levels, Morse 1929); a*re from 1 to 30 exercises the lengths of the
+    # quadrature pieces against the decay length 1/a of the tail
+    De, mu = 5000.0, 20.0
+    eps = C_U / mu
+    b = De * np.array([0.9, 0.3, 0.05, 1e-2, 3e-3, 1e-4, 1e-8])
+    o = core_orbits(wkbfit.Morse(De=De, re=re, a=a), mu, 0.0, b)
+    exact = math.pi * (math.sqrt(De) - np.sqrt(b)) / (a * math.sqrt(eps))
+    assert np.allclose(o["action"], exact, rtol=1e-12, atol=0)
+    assert np.allclose(o["half_period"], math.pi / (2 * a * np.sqrt(eps * b)), rtol=1e-11, atol=0)
