@@ -8,11 +8,9 @@ prepares the data and analyses the result (covariance, correlations, reports, pr
 
 Units: energies cm-1, distances angstrom, masses u.
 """
-import html
 import json
 import math
 import os
-import tempfile
 import warnings
 
 import numpy as np
@@ -21,6 +19,8 @@ from . import _core
 from . import potentials as _potentials
 from .masses import as_reduced_mass, parse_isotopologue, reduced_mass
 from .observed import read_levels
+from . import reports as _reports
+from .reports import _frozen, _atomic_write
 from .potentials import Potential
 
 __all__ = ["fit", "FitResult", "Parameter", "Prediction", "FitWarning"]
@@ -28,8 +28,6 @@ __all__ = ["fit", "FitResult", "Parameter", "Prediction", "FitWarning"]
 _ENERGY_ZERO_CODES = {"minimum": 0, "asymptote": 1, "lowest": 2}
 _METHOD_CODES = {"wkb": 0, "exact": 1}
 
-#: units of the parameters of the built-in models (by parameter name)
-_UNITS = {"De": "cm-1", "re": "A", "a": "1/A", "n": "", "m": ""}
 
 #: singular values of the column-normalised weighted Jacobian below this fraction of the
 #: largest mean the normal matrix is numerically singular: the level energies carry about
@@ -38,11 +36,7 @@ _RCOND_SINGULAR = 1e-8
 #: a parameter whose relative sensitivity ||d chi/d ln p|| is below this fraction of the
 #: largest one does not influence the calculated levels at all
 _SENSITIVITY_ZERO = 1e-9
-#: normalised residuals beyond this are flagged in the report (common practice: 3 sigma)
-_LARGE_RESIDUAL = 3.0
 
-_FORMAT = "wkbfit-fit-result"
-_FORMAT_VERSION = 1
 
 
 class FitWarning(UserWarning):
@@ -580,144 +574,18 @@ class FitResult:
     # -- reports ------------------------------------------------------------------------
     def report(self):
         """A plain-text report: parameters, correlations, statistics and the residual table."""
-        obs = self.observed
-        labels = obs.isotopologues
-        lines = []
-        lines.append("Fit of a %s potential to %d levels of %d isotopologue%s (%s); method %s; energy zero %r (%s)" % (
-            type(self.potential).__name__, len(obs), len(labels), "" if len(labels) == 1 else "s",
-            ", ".join("unnamed" if l is None else l for l in labels), self.method, self.energy_zero,
-            {"minimum": "term values above the potential minimum",
-             "asymptote": "binding energies below the asymptote",
-             "lowest": "relative to v=0, J=0 of each isotopologue"}[self.energy_zero]))
-        lines.append("Status: %s. %s" % (self.status, self.message))
-        lines.append("Reduced masses: %s" % ", ".join(
-            "%s %.10g u" % ("unnamed" if k is None else k, m) for k, m in self.masses.items()))
-        lines.append("")
-        lines.append("Parameters")
-        lines.append("  %-6s %-6s %22s %16s %22s  %s" % ("name", "unit", "value", "1-sigma", "initial", "remarks"))
-        for name, p in self.params.items():
-            unit = _UNITS.get(name, "")
-            unc = "%16.6g" % p.uncertainty if p.uncertainty is not None else "%16s" % (
-                "fixed" if not p.vary else "not determined")
-            bounds = ""
-            if p.bounds != (None, None):
-                bounds = "bounds [%s, %s]" % ("-inf" if p.bounds[0] is None else "%.6g" % p.bounds[0],
-                                              "+inf" if p.bounds[1] is None else "%.6g" % p.bounds[1])
-            remark = "; ".join(x for x in (bounds, p.note if p.note != "fixed" else "") if x)
-            lines.append("  %-6s %-6s %22.12g %s %22.12g  %s" % (name, unit, p.value, unc, p.initial, remark))
-        if self.scale_uncertainties and self.dof > 0:
-            lines.append("  Uncertainties are one standard deviation, scaled by the dimensionless standard error "
-                         "%.4g (scale_uncertainties=True)." % self.standard_error)
-        else:
-            lines.append("  Uncertainties are one standard deviation from the stated measurement uncertainties "
-                         "(not scaled).")
-        lines.append("")
-        corr = self._sorted_correlations()
-        lines.append("Correlations of the varied parameters, largest first")
-        if corr:
-            for a, b, r in corr:
-                lines.append("  %-6s %-6s %+.6f%s" % (a, b, r, "  (strong)" if abs(r) > 0.95 else ""))
-        else:
-            lines.append("  (none: fewer than two determined varied parameters)")
-        lines.append("")
-        lines.append("Fit statistics")
-        n_fit = int(np.count_nonzero(self.fitted_rows))
-        lines.append("  fitted levels %d, varied parameters %d, degrees of freedom %d" % (
-            n_fit, len(self.var_names), self.dof))
-        lines.append("  chi-square %.8g" % self.chi_square)
-        lines.append("  dimensionless standard error sqrt(chi2/dof) %s" % (
-            "%.6g" % self.standard_error if self.standard_error is not None else "not defined (dof = 0)"))
-        r = self.residuals[self.fitted_rows]
-        lines.append("  rms residual %.6g cm-1, largest |obs - calc| %.6g cm-1" % (
-            float(np.sqrt(np.mean(r ** 2))), float(np.max(np.abs(r)))))
-        if self.condition_number is not None:
-            lines.append("  scaled condition number of the Jacobian %.4g" % self.condition_number)
-        lines.append("  iterations %d, model evaluations %d%s" % (
-            self.iterations, self.n_evaluations,
-            ", trial points outside the model's domain %d" % self.n_infeasible if self.n_infeasible else ""))
-        if self.dof_note:
-            lines.append("  " + self.dof_note)
-        lines.append("")
-        nr = self.normalized_residuals
-        n_large = int(np.count_nonzero(np.abs(nr[self.fitted_rows]) > _LARGE_RESIDUAL))
-        lines.append("Residuals (observed - calculated); '<<' marks |obs - calc|/sigma > %g (%d level%s)" % (
-            _LARGE_RESIDUAL, n_large, "" if n_large == 1 else "s"))
-        lines.append("  %-12s %4s %4s %16s %10s %16s %12s %9s" % (
-            "isotopologue", "v", "J", "observed", "sigma", "calculated", "obs-calc", "/sigma"))
-        for i in range(len(obs)):
-            if not self.fitted_rows[i]:
-                flag = "  zero of the data (not fitted)"
-            else:
-                flag = "  <<" if abs(nr[i]) > _LARGE_RESIDUAL else ""
-            lines.append("  %-12s %4d %4d %16.6f %10.4g %16.6f %12.6f %9.3f%s" % (
-                obs.isotopologue[i] or "-", obs.v[i], obs.J[i], obs.energy[i], obs.uncertainty[i],
-                self.calculated[i], self.residuals[i], nr[i], flag))
-        return "\n".join(lines)
+        return _reports.fit_report_text(self)
 
     def __str__(self):
         return self.report()
 
     def _repr_html_(self):
-        e = html.escape
-        rows = []
-        for name, p in self.params.items():
-            unc = "%.6g" % p.uncertainty if p.uncertainty is not None else ("fixed" if not p.vary else
-                                                                             "not determined")
-            rows.append("<tr><td>%s</td><td>%s</td><td>%.12g</td><td>%s</td><td>%.12g</td><td>%s</td></tr>" % (
-                e(name), e(_UNITS.get(name, "")), p.value, e(unc), p.initial,
-                e(p.note if p.note != "fixed" else "")))
-        params = ("<table><caption>Parameters (1 sigma%s)</caption><tr><th>name</th><th>unit</th><th>value</th>"
-                  "<th>uncertainty</th><th>initial</th><th>remarks</th></tr>%s</table>" % (
-                      ", scaled by the standard error" if self.scale_uncertainties and self.dof > 0 else "",
-                      "".join(rows)))
-        corr = "".join("<tr><td>%s</td><td>%s</td><td>%+.4f</td></tr>" % (e(a), e(b), r)
-                       for a, b, r in self._sorted_correlations())
-        corr = "<table><caption>Correlations</caption><tr><th>p1</th><th>p2</th><th>r</th></tr>%s</table>" % corr
-        stats = ("<p>Status: <b>%s</b> &mdash; %s<br>chi-square %.6g, dof %d, dimensionless standard error %s, "
-                 "iterations %d</p>" % (e(self.status), e(self.message), self.chi_square, self.dof,
-                                        "%.5g" % self.standard_error if self.standard_error is not None else "n/a",
-                                        self.iterations))
-        obs = self.observed
-        res = []
-        for i in range(len(obs)):
-            large = self.fitted_rows[i] and abs(self.normalized_residuals[i]) > _LARGE_RESIDUAL
-            style = ' style="background:#fdd"' if large else ""
-            res.append("<tr%s><td>%s</td><td>%d</td><td>%d</td><td>%.6f</td><td>%.4g</td><td>%.6f</td><td>%.6f</td>"
-                       "<td>%.3f</td></tr>" % (style, e(obs.isotopologue[i] or "-"), obs.v[i], obs.J[i],
-                                               obs.energy[i], obs.uncertainty[i], self.calculated[i],
-                                               self.residuals[i], self.normalized_residuals[i]))
-        resid = ("<details><summary>Residuals (%d levels; red: |obs-calc|/sigma &gt; %g)</summary><table><tr>"
-                 "<th>isotopologue</th><th>v</th><th>J</th><th>observed</th><th>sigma</th><th>calculated</th>"
-                 "<th>obs-calc</th><th>/sigma</th></tr>%s</table></details>" % (len(obs), _LARGE_RESIDUAL,
-                                                                                 "".join(res)))
-        title = "<h4>Fit of %s to %d levels (%s, energy zero %s)</h4>" % (
-            e(type(self.potential).__name__), len(obs), e(self.method), e(self.energy_zero))
-        return title + stats + params + corr + resid
+        return _reports.fit_report_html(self)
 
     # -- JSON -------------------------------------------------------------------------
     def to_dict(self):
         """The whole result as plain JSON-ready data (NaN and infinities as None)."""
-        return _jsonable({
-            "format": _FORMAT, "version": _FORMAT_VERSION,
-            "potential": {"class": type(self.potential).__name__, "model": self.potential.model,
-                          "params": self.potential.params, "initial": self.initial_potential.params},
-            "parameters": [p.to_dict() for p in self.params.values()],
-            "var_names": self.var_names,
-            "covariance": self.covariance.tolist(), "covariance_unscaled": self.covariance_unscaled.tolist(),
-            "correlation": self.correlation.tolist(),
-            "observed": dict(self.observed.to_dict(), energy_zero=self.energy_zero,
-                             isotopologue=list(self.observed.isotopologue)),
-            "masses": [[k, m] for k, m in self.masses.items()],
-            "calculated": self.calculated.tolist(), "residuals": self.residuals.tolist(),
-            "normalized_residuals": self.normalized_residuals.tolist(),
-            "fitted_rows": self.fitted_rows.tolist(), "jacobian": self.jacobian.tolist(),
-            "chi_square": self.chi_square, "dof": self.dof, "standard_error": self.standard_error,
-            "scale_uncertainties": self.scale_uncertainties, "covariance_scale": self.covariance_scale,
-            "condition_number": self.condition_number, "undetermined": self.undetermined,
-            "iterations": self.iterations, "n_evaluations": self.n_evaluations, "n_infeasible": self.n_infeasible,
-            "predicted_decrease": self.predicted_decrease, "status": self.status, "message": self.message,
-            "dof_note": self.dof_note, "method": self.method,
-        })
+        return _reports.fit_result_to_dict(self)
 
     def to_json(self, indent=1):
         return json.dumps(self.to_dict(), indent=indent, allow_nan=False)
@@ -743,42 +611,7 @@ class FitResult:
 
     @classmethod
     def from_dict(cls, data):
-        if not isinstance(data, dict) or data.get("format") != _FORMAT:
-            raise ValueError("this is not a wkbfit fit result (format %r expected)" % _FORMAT)
-        if data.get("version") != _FORMAT_VERSION:
-            raise ValueError("fit result version %r is not supported (expected %d)" % (data.get("version"),
-                                                                                          _FORMAT_VERSION))
-        pot_cls = getattr(_potentials, data["potential"]["class"], None)
-        if not (isinstance(pot_cls, type) and issubclass(pot_cls, Potential)):
-            raise ValueError("unknown potential class %r in the fit result" % data["potential"]["class"])
-        self = cls.__new__(cls)
-        self.potential = pot_cls(**data["potential"]["params"])
-        self.initial_potential = pot_cls(**data["potential"]["initial"])
-        o = data["observed"]
-        self.observed = read_levels({k: o[k] for k in ("v", "J", "energy", "uncertainty", "isotopologue")},
-                                    energy_zero=o["energy_zero"]) if any(x is not None for x in o["isotopologue"]) \
-            else read_levels({k: o[k] for k in ("v", "J", "energy", "uncertainty")}, energy_zero=o["energy_zero"])
-        self.masses = {k: m for k, m in data["masses"]}
-        self.method = data["method"]
-        self.energy_zero = o["energy_zero"]
-        self.scale_uncertainties = data["scale_uncertainties"]
-        self.params = {}
-        for p in data["parameters"]:
-            self.params[p["name"]] = Parameter(p["name"], p["value"], p["uncertainty"], p["vary"],
-                                               tuple(p["bounds"]), p["initial"], p["determined"], p["note"])
-        self.var_names = list(data["var_names"])
-        for key in ("covariance", "covariance_unscaled", "correlation"):
-            setattr(self, key, _frozen(_nan_array(data[key], (len(self.var_names),) * 2)))
-        for key in ("calculated", "residuals", "normalized_residuals"):
-            setattr(self, key, _frozen(_nan_array(data[key])))
-        self.fitted_rows = _frozen(np.array(data["fitted_rows"], dtype=bool))
-        self.jacobian = _frozen(_nan_array(data["jacobian"], (len(self.observed), len(self.params))))
-        for key in ("chi_square", "dof", "standard_error", "covariance_scale", "condition_number", "iterations",
-                    "n_evaluations", "n_infeasible", "predicted_decrease", "status", "message", "dof_note"):
-            setattr(self, key, data[key])
-        self.undetermined = list(data["undetermined"])
-        return self
-
+        return _reports.fit_result_from_dict(cls, data)
 
 # ------------------------------------------------------------------------------ predictions
 class Prediction:
@@ -839,24 +672,7 @@ class Prediction:
 
     def to_text(self, last=None):
         """A plain-text table; last=N shows only the N levels nearest dissociation."""
-        who = "isotopologue %s" % self.isotopologue if self.isotopologue else "reduced mass"
-        head = ["Predicted levels of %r, %s (mu = %.10g u), J = %d; one-sigma uncertainties" % (
-            self.potential, who, self.mu, self.J), self.summary(),
-            "%5s %18s %12s %18s %12s %14s %12s" % ("v", "energy [cm-1]", "+/-", "binding [cm-1]", "+/-",
-                                                   "dG(v+1/2)", "+/-")]
-        start = 0 if last is None else max(0, self.n_bound - int(last))
-        for v in range(start, self.n_bound):
-            if v < len(self.spacing):
-                sp = "%14.6f %12.6f" % (self.spacing[v], self.spacing_uncertainty[v])
-            else:
-                sp = "%14s %12s" % ("-", "-")
-            head.append("%5d %18.6f %12.6f %18.6f %12.6f %s" % (
-                v, self.energy[v], self.energy_uncertainty[v], self.binding_energy[v], self.binding_uncertainty[v],
-                sp))
-        if last is not None and start > 0:
-            head.insert(3, "(levels v < %d not shown)" % start)
-        head.extend(self.notes)
-        return "\n".join(head)
+        return _reports.prediction_text(self, last)
 
     def __str__(self):
         return self.to_text()
@@ -866,16 +682,7 @@ class Prediction:
             self.n_bound, self.mu, self.J, self.D0, self.vD)
 
     def _repr_html_(self):
-        rows = []
-        for v in range(self.n_bound):
-            sp = ("<td>%.6f</td><td>%.6f</td>" % (self.spacing[v], self.spacing_uncertainty[v])
-                  if v < len(self.spacing) else "<td>-</td><td>-</td>")
-            rows.append("<tr><td>%d</td><td>%.6f</td><td>%.6f</td><td>%.6f</td><td>%.6f</td>%s</tr>" % (
-                v, self.energy[v], self.energy_uncertainty[v], self.binding_energy[v], self.binding_uncertainty[v],
-                sp))
-        return ("<p>%s</p><table><tr><th>v</th><th>energy</th><th>+/-</th><th>binding</th><th>+/-</th>"
-                "<th>dG(v+1/2)</th><th>+/-</th></tr>%s</table>" % (html.escape(self.summary()), "".join(rows)))
-
+        return _reports.prediction_html(self)
 
 # ------------------------------------------------------------------------------ helpers
 def _stop_message(stop, test, iterations, max_iterations, decrease, n_infeasible, last_infeasible):
@@ -899,51 +706,3 @@ def _stop_message(stop, test, iterations, max_iterations, decrease, n_infeasible
     if n_infeasible and stop != "converged":
         text += "; %d trial points left the model's domain (last: %s)" % (n_infeasible, last_infeasible)
     return text
-
-
-def _frozen(arr):
-    arr = np.array(arr, copy=True)
-    arr.setflags(write=False)
-    return arr
-
-
-def _nan_array(data, shape=None):
-    arr = np.array([[math.nan if x is None else x for x in row] for row in data], dtype=float) \
-        if data and isinstance(data[0], list) else np.array([math.nan if x is None else x for x in data], dtype=float)
-    if shape is not None and arr.size == 0:
-        arr = arr.reshape(shape)
-    return arr
-
-
-def _jsonable(x):
-    if isinstance(x, dict):
-        return {k: _jsonable(v) for k, v in x.items()}
-    if isinstance(x, (list, tuple)):
-        return [_jsonable(v) for v in x]
-    if isinstance(x, (np.floating, float)):
-        f = float(x)
-        return f if math.isfinite(f) else None
-    if isinstance(x, (np.integer,)):
-        return int(x)
-    if isinstance(x, np.bool_):
-        return bool(x)
-    return x
-
-
-def _atomic_write(path, text):
-    """Write text to path through a temporary file in the same directory and os.replace."""
-    path = os.fspath(path)
-    directory = os.path.dirname(os.path.abspath(path))
-    fd, tmp = tempfile.mkstemp(prefix=".%s." % os.path.basename(path), suffix=".tmp", dir=directory)
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8") as fh:
-            fh.write(text)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, path)
-    except BaseException:
-        try:
-            os.unlink(tmp)
-        except OSError:
-            pass
-        raise
