@@ -9,6 +9,7 @@
 #include <Python.h>
 #include <numpy/arrayobject.h>
 
+#include <limits.h>
 #include <math.h>
 #include <stdarg.h>
 #include <stdio.h>
@@ -58,6 +59,49 @@ static PyArrayObject *as_double_array(PyObject *obj, const char *what, int ndim)
         return NULL;
     }
     return a;
+}
+
+/* A 1-dimensional C int array of quantum numbers (or flags) from any array-like, checked
+   element by element through doubles: a value that is not an integer in [lo, INT_MAX] is
+   refused by name instead of wrapping (v = 2**32 + 2 would become 2 in a plain cast).
+   NULL with a ValueError/TypeError. */
+static PyArrayObject *as_checked_int_array(PyObject *obj, const char *what, long lo)
+{
+    PyArrayObject *d = (PyArrayObject *)PyArray_FROM_OTF(obj, NPY_DOUBLE, NPY_ARRAY_IN_ARRAY);
+    if (!d) {
+        if (PyErr_ExceptionMatches(PyExc_OverflowError) || PyErr_ExceptionMatches(PyExc_ValueError) ||
+            PyErr_ExceptionMatches(PyExc_TypeError)) {
+            PyErr_Clear();
+            PyErr_Format(PyExc_ValueError, "%s must be integers in %ld..%d", what, lo, INT_MAX);
+        }
+        return NULL;
+    }
+    if (PyArray_NDIM(d) > 1) {
+        PyErr_Format(PyExc_ValueError, "%s must be a 1-dimensional array of integers, got %d dimensions", what,
+                     PyArray_NDIM(d));
+        Py_DECREF(d);
+        return NULL;
+    }
+    const npy_intp n = PyArray_SIZE(d);
+    PyArrayObject *out = (PyArrayObject *)PyArray_SimpleNew(1, (npy_intp[]){n}, NPY_INT);
+    if (!out) {
+        Py_DECREF(d);
+        return NULL;
+    }
+    const double *x = PyArray_DATA(d);
+    int *y = PyArray_DATA(out);
+    for (npy_intp i = 0; i < n; i++) {
+        if (!(x[i] >= (double)lo && x[i] <= (double)INT_MAX) || x[i] != floor(x[i])) {
+            value_error("%s[%zd]=%.17g is invalid: it must be an integer in %ld..%d", what, (Py_ssize_t)i, x[i],
+                        lo, INT_MAX);
+            Py_DECREF(d);
+            Py_DECREF(out);
+            return NULL;
+        }
+        y[i] = (int)x[i];
+    }
+    Py_DECREF(d);
+    return out;
 }
 
 static PyArrayObject *new_vector(npy_intp n)
@@ -362,11 +406,12 @@ cleanup:
 static PyObject *py_wkb_levels(PyObject *self, PyObject *args, PyObject *kwds)
 {
     static char *kwlist[] = {"model", "params", "curve", "mu", "rot", "v", "maslov_in", "maslov_out",
-                             "want_dVdp", "order", NULL};
+                             "want_dVdp", "order", "max_levels", NULL};
     const char *model_name;
     PyObject *params_obj, *curve_obj, *rot_obj, *v_obj = Py_None;
     double mu;
     int maslov_in = 1, maslov_out = 1, want_dVdp = 0, order = 1;
+    Py_ssize_t max_levels = 1000000; /* work limit: levels in one call (the caller may raise it) */
     PyArrayObject *rot_arr = NULL, *v_arr = NULL, *dVdp = NULL, *vD_arr = NULL, *count_arr = NULL, *index = NULL;
     PyArrayObject *cols[8] = {NULL};
     static const char *names[8] = {"v", "energy", "binding_energy", "inner_turning_point",
@@ -380,8 +425,9 @@ static PyObject *py_wkb_levels(PyObject *self, PyObject *args, PyObject *kwds)
     npy_intp n_rot = 0;
     int status = WKB_SUCCESS;
 
-    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOdO|Oiipi", kwlist, &model_name, &params_obj, &curve_obj,
-                                     &mu, &rot_obj, &v_obj, &maslov_in, &maslov_out, &want_dVdp, &order))
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOdO|Oiipin", kwlist, &model_name, &params_obj, &curve_obj,
+                                     &mu, &rot_obj, &v_obj, &maslov_in, &maslov_out, &want_dVdp, &order,
+                                     &max_levels))
         return NULL;
     if (order != 1 && order != 2) {
         PyErr_Format(PyExc_ValueError, "order=%d is invalid: use 1 (first-order WKB) or 2 (with the second-order term)",
@@ -398,7 +444,7 @@ static PyObject *py_wkb_levels(PyObject *self, PyObject *args, PyObject *kwds)
         goto cleanup;
     }
     if (v_obj != Py_None) {
-        v_arr = (PyArrayObject *)PyArray_FROM_OTF(v_obj, NPY_INT, NPY_ARRAY_IN_ARRAY);
+        v_arr = as_checked_int_array(v_obj, "v", 0);
         if (!v_arr)
             goto cleanup;
         if (PyArray_NDIM(v_arr) != 1) {
@@ -439,6 +485,14 @@ static PyObject *py_wkb_levels(PyObject *self, PyObject *args, PyObject *kwds)
     Py_END_ALLOW_THREADS
     if (status) {
         raise_status(&err);
+        goto cleanup;
+    }
+    if (max_levels >= 0 && n > (size_t)max_levels) {
+        /* refused before the work: millions of levels (e.g. from a huge reduced mass) take minutes */
+        PyErr_Format(PyExc_ValueError,
+                     "this call would compute %zu levels, more than the limit max_levels=%zd: ask for fewer "
+                     "(a list of v, fewer J values, a smaller reduced mass) or raise max_levels",
+                     n, max_levels);
         goto cleanup;
     }
     if (n && !(lv = calloc(n, sizeof *lv))) {
@@ -610,7 +664,7 @@ static int parse_fit_arrays(PyObject *v_obj, PyObject *rot_obj, PyObject *mu_obj
                             PyObject *sigma_obj, int energy_zero, fit_arrays *a, wkb_fit_data *data)
 {
     memset(data, 0, sizeof *data);
-    a->v = (PyArrayObject *)PyArray_FROM_OTF(v_obj, NPY_INT, NPY_ARRAY_IN_ARRAY | NPY_ARRAY_FORCECAST);
+    a->v = as_checked_int_array(v_obj, "v", 0);
     if (!a->v)
         return -1;
     if (PyArray_NDIM(a->v) != 1) {
@@ -946,14 +1000,14 @@ static PyObject *py_exact_levels(PyObject *self, PyObject *args, PyObject *kwds)
         return NULL;
     if (parse_potential(model_name, params_obj, curve_obj, &pot) < 0)
         return NULL;
-    if (!(J_arr = (PyArrayObject *)PyArray_FROM_OTF(J_obj, NPY_INT, NPY_ARRAY_IN_ARRAY | NPY_ARRAY_FORCECAST)))
+    if (!(J_arr = as_checked_int_array(J_obj, "J", 0)))
         goto cleanup;
     if (PyArray_NDIM(J_arr) != 1 || PyArray_SIZE(J_arr) < 1) {
         PyErr_SetString(PyExc_ValueError, "J must be a non-empty 1-dimensional array of integers");
         goto cleanup;
     }
     if (v_obj != Py_None) {
-        if (!(v_arr = (PyArrayObject *)PyArray_FROM_OTF(v_obj, NPY_INT, NPY_ARRAY_IN_ARRAY | NPY_ARRAY_FORCECAST)))
+        if (!(v_arr = as_checked_int_array(v_obj, "v", 0)))
             goto cleanup;
         if (PyArray_NDIM(v_arr) != 1) {
             PyErr_SetString(PyExc_ValueError, "v must be a 1-dimensional array of integers");

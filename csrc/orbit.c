@@ -226,6 +226,21 @@ int wkb_well_set(wkb_well *w, const wkb_potential *pot, double mu, double rot, i
     double r_lo = pot->model->r_inner_scan(pot), r_hi = 60 * r_hint;
     if (!(r_lo > 0 && r_hi > r_lo && isfinite(r_hi)))
         return wkb_fail(err, WKB_EINVAL, "cannot choose a range of r for this potential (%g .. %g A)", r_lo, r_hi);
+    /* The scan must cover every r where V_J lies below the asymptote, or an inner well or
+       barrier beyond a model's hint (an MLR turning over inside re) goes unseen and its levels
+       come out silently wrong: step inwards until V_J reaches the asymptote (or r ~ 0). */
+    {
+        wkb_pot_value pv;
+        effective(w, r_hint, &pv);
+        /* a wall within 1e-8 of the depth below the asymptote (a Poeschl-Teller plateau) counts as reached */
+        const double flat = 1e-8 * fabs(w->top - pv.V);
+        for (int k = 0; k < 400 && r_lo > 1e-6 * r_hint; k++) {
+            effective(w, r_lo, &pv);
+            if (!(pv.V < w->top - flat))
+                break;
+            r_lo *= 0.9;
+        }
+    }
     const size_t n = w->set.scan_points;
     const double step = log(r_hi / r_lo) / (double)(n - 1);
     size_t imin = 0;
@@ -262,15 +277,24 @@ int wkb_well_set(wkb_well *w, const wkb_potential *pot, double mu, double rot, i
         w->bound_top = GSL_MIN(w->top, inner_top);
     }
     /* local extrema (for detecting extra wells and barriers) */
+    /* Steps within a few rounding units are flat: on a tail at the asymptote, rounding noise
+       would otherwise make spurious extrema there and refuse levels just below threshold (Morse
+       curves with vD near an integer). An extremum is where the last non-flat step changes sign. */
     w->n_ext = 0;
-    for (size_t i = 1; i + 1 < n; i++) {
-        const double a = w->scan_V[i] - w->scan_V[i - 1], b = w->scan_V[i + 1] - w->scan_V[i];
-        if ((a < 0 && b >= 0) || (a > 0 && b <= 0)) {
+    int last_sign = 0;
+    for (size_t i = 1; i < n; i++) {
+        const double d = w->scan_V[i] - w->scan_V[i - 1];
+        const double tol = 16 * GSL_DBL_EPSILON * GSL_MAX(fabs(w->scan_V[i]), fabs(w->scan_V[i - 1]));
+        const int sign = d > tol ? 1 : (d < -tol ? -1 : 0);
+        if (sign == 0)
+            continue;
+        if (last_sign != 0 && sign != last_sign) {
             if (w->n_ext == MAX_EXTREMA)
                 return wkb_fail(err, WKB_EINVAL, "the potential oscillates: more than %d extrema in %g..%g A",
                                 MAX_EXTREMA, r_lo, r_hi);
-            w->ext[w->n_ext++] = i;
+            w->ext[w->n_ext++] = i - 1;
         }
+        last_sign = sign;
     }
     w->ready = 1;
     return WKB_SUCCESS;
@@ -457,16 +481,35 @@ static void piece_outer_linear_long(wkb_well *w, const energy_point *e, double r
     }
 }
 
-/* [ra, rb], plain in r, split into pieces no longer than max_length */
-static void pieces_linear(wkb_well *w, const energy_point *e, double ra, double rb, double max_length, sums *s)
+/* Number of pieces of at most max_length covering span; 0 when the span is empty. A NaN or
+   infinite span, or one needing more than MAX_PIECES pieces, is refused (returns 1): the count
+   would otherwise wrap in the size_t conversion and loop for ever with the GIL released. */
+#define MAX_PIECES 100000
+static int piece_count(double span, double max_length, size_t *m)
 {
-    if (rb <= ra)
-        return;
-    const size_t m = (size_t)ceil((rb - ra) / max_length);
+    *m = 0;
+    if (!(span > 0))
+        return isnan(span) ? 1 : 0;
+    const double nd = ceil(span / max_length);
+    if (!(nd <= MAX_PIECES))
+        return 1;
+    *m = (size_t)nd;
+    return 0;
+}
+
+/* [ra, rb], plain in r, split into pieces no longer than max_length */
+static int pieces_linear(wkb_well *w, const energy_point *e, double ra, double rb, double max_length, sums *s)
+{
+    size_t m;
+    if (piece_count(rb - ra, max_length, &m))
+        return 1;
+    if (m == 0)
+        return 0;
     const double h = (rb - ra) / (double)m;
     for (size_t k = 0; k < m; k++)
         for (size_t i = 0; i < w->set.nodes; i++)
             add_node(w, e, ra + h * ((double)k + w->gl_x[i]), w->gl_w[i] * h, s);
+    return 0;
 }
 
 /* [exp(y2 - L), exp(y2)] with y = y2 - L s^2 (square-root end at s = 0) */
@@ -498,13 +541,14 @@ static void piece_tail(wkb_well *w, const energy_point *e, double rT, double q, 
 }
 
 /* splits [ya, yb] into plain log pieces of at most MIDDLE_PIECE_LOG_LENGTH */
-static void pieces_log(wkb_well *w, const energy_point *e, double ya, double yb, sums *s)
+static int pieces_log(wkb_well *w, const energy_point *e, double ya, double yb, sums *s)
 {
-    if (yb <= ya)
-        return;
-    const size_t m = (size_t)ceil((yb - ya) / MIDDLE_PIECE_LOG_LENGTH);
+    size_t m;
+    if (piece_count(yb - ya, MIDDLE_PIECE_LOG_LENGTH, &m))
+        return 1;
     for (size_t k = 0; k < m; k++)
         piece_log(w, e, ya + (yb - ya) * (double)k / (double)m, ya + (yb - ya) * (double)(k + 1) / (double)m, s);
+    return 0;
 }
 
 int wkb_orbit_at(wkb_well *w, double binding, wkb_orbit *orbit, double *avg_dVdp, wkb_error *err)
@@ -533,6 +577,11 @@ int wkb_orbit_at(wkb_well *w, double binding, wkb_orbit *orbit, double *avg_dVdp
         return status;
     if (!infinite && (status = find_turning_point(w, &e, 1, &r2, err)))
         return status;
+    if (!(r1 > 0) || !isfinite(r1) || (!infinite && (!(r2 > r1) || !isfinite(r2))))
+        return wkb_fail(err, WKB_ENUMERIC,
+                        "the turning points at E=%.12g cm-1 are not finite positive distances (%g, %g A): the "
+                        "potential parameters are outside the range the quadrature can handle", e.E, r1, r2);
+    int bad_span = 0;
 
     w->last_tp[0] = r1;
     if (!infinite) {
@@ -553,7 +602,7 @@ int wkb_orbit_at(wkb_well *w, double binding, wkb_orbit *orbit, double *avg_dVdp
                             "the tail -C_n/r^n with n=%g <= 2 binds infinitely many levels: no action at the "
                             "asymptote", n);
         const double q = n > 2 ? 0.5 * (n - 2) : 1.0;
-        pieces_log(w, &e, yb, yb + THRESHOLD_TAIL_LOG_START, &s);
+        bad_span |= pieces_log(w, &e, yb, yb + THRESHOLD_TAIL_LOG_START, &s);
         piece_tail(w, &e, exp(yb + THRESHOLD_TAIL_LOG_START), q, &s);
     } else {
         /* the length over which the potential changes near r2, |V_J'/V_J''|: 1/a under an
@@ -567,7 +616,7 @@ int wkb_orbit_at(wkb_well *w, double binding, wkb_orbit *orbit, double *avg_dVdp
             if (r2 - rb <= scale) {
                 piece_outer_linear(w, &e, rb, r2, &s);
             } else {
-                pieces_linear(w, &e, rb, r2 - scale, 1.5 * scale, &s);
+                bad_span |= pieces_linear(w, &e, rb, r2 - scale, 1.5 * scale, &s);
                 piece_outer_linear_long(w, &e, r2 - scale, r2, &s);
             }
         } else {
@@ -578,12 +627,17 @@ int wkb_orbit_at(wkb_well *w, double binding, wkb_orbit *orbit, double *avg_dVdp
             } else if (Y <= L_end) {
                 piece_outer_end(w, &e, y2, Y, &s);
             } else {
-                pieces_log(w, &e, yb, y2 - L_end, &s);
+                bad_span |= pieces_log(w, &e, yb, y2 - L_end, &s);
                 piece_outer_end(w, &e, y2, L_end, &s);
             }
         }
     }
 
+    if (bad_span)
+        return wkb_fail(err, WKB_ENUMERIC,
+                        "the orbit at E=%.12g cm-1 (turning points %g, %g A) would need more than %d quadrature "
+                        "pieces or has a non-finite length scale: the potential parameters are outside the range "
+                        "the quadrature can handle", e.E, r1, r2, MAX_PIECES);
     const double se = sqrt(w->eps);
     orbit->energy = e.E;
     orbit->binding = binding;

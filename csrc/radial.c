@@ -475,7 +475,15 @@ static int build_grid(wkb_radial *w, wkb_error *err)
         double nd = ceil((x1 - x0) / h0 / 4) * 4 + 1;
         if (nd < 101)
             nd = 101;
-        if (nd > (double)w->set.max_points) {
+        if (!isfinite(x0) || !isfinite(x1) || !(x1 > x0) || !isfinite(h0) || !(h0 > 0)) {
+            /* a NaN size would pass the limit check below and wrap in the conversion */
+            status = wkb_fail(err, WKB_EINVAL,
+                              "the radial grid cannot be sized (range %g..%g A, step %g): the reduced mass or "
+                              "the potential parameters are outside the range the exact solver can handle",
+                              r_start, r_end, h0);
+            goto cleanup;
+        }
+        if (!(nd <= (double)w->set.max_points)) {
             status = wkb_fail(err, WKB_EINVAL,
                               "the radial grid would need %.0f points (more than max_points=%zu): the well is "
                               "very deep for this mass, or energy_tol/min_binding are very small",

@@ -8,7 +8,7 @@ import warnings
 
 import numpy as np
 
-from . import _core
+from . import _core, _validate
 from .masses import as_reduced_mass
 from .potentials import Potential
 
@@ -128,6 +128,10 @@ class LevelTable:
 
 
 def _as_int_list(x, name):
+    return _validate.integer_list(x, name)
+
+
+def _as_int_list_unchecked(x, name):
     if isinstance(x, (bool, np.bool_)):
         raise ValueError("%s must be a non-negative integer or a list of them; got %r" % (name, x))
     if isinstance(x, (int, np.integer)):
@@ -146,7 +150,8 @@ def _as_int_list(x, name):
     return out
 
 
-def levels(potential, mu, v=None, J=0, method="wkb", *, order=1, langer=False, maslov=(1, 1)):
+def levels(potential, mu, v=None, J=0, method="wkb", *, order=1, langer=False, maslov=(1, 1),
+           max_levels=_validate.MAX_LEVELS, max_J_values=_validate.MAX_J_VALUES):
     """Levels of `potential` for reduced mass `mu`.
 
     potential: a Potential object.
@@ -160,18 +165,27 @@ def levels(potential, mu, v=None, J=0, method="wkb", *, order=1, langer=False, m
        first-order error except close to dissociation, where it is not valid. The number of bound
        levels and vD are always first-order values.
     maslov: Maslov indices (inner, outer): 1 for a smooth turning point, 2 for a hard wall.
+    max_levels, max_J_values: work limits (levels computed, J values in one call); a call that
+       would exceed one is refused at once with a ValueError. Raise them for longer work.
     """
     if not isinstance(potential, Potential):
         raise ValueError("potential must be a wkbfit potential object (Morse, LennardJones, ...), got %r"
                          % (potential,))
     mu = as_reduced_mass(mu)
+    max_levels = _validate.integer(max_levels, "max_levels", 1, 2 ** 62)
+    max_J_values = _validate.integer(max_J_values, "max_J_values", 1, 2 ** 62)
+    if not isinstance(J, (int, np.integer)) and hasattr(J, "__len__"):
+        _validate.work_limit(len(J), max_J_values, "J values", "max_J_values", "give fewer J values")
     Js = _as_int_list(J, "J")
     vs = None if v is None else _as_int_list(v, "v")
+    if vs is not None:
+        _validate.work_limit(len(vs) * len(Js), max_levels, "levels", "max_levels", "give fewer v or J values")
+    langer = _validate.flag(langer, "langer")
     if method == "wkb":
-        if order not in (1, 2):
-            raise ValueError("order=%r is invalid: use 1 (first-order WKB) or 2 (with the second-order term)"
-                             % (order,))
-        return _wkb_levels(potential, mu, vs, Js, langer, maslov, order)
+        order = _validate.integer(order, "order", 1, 2,
+                                  "1 (first-order WKB) or 2 (with the second-order term)")
+        maslov = _validate.maslov_pair(maslov)
+        return _wkb_levels(potential, mu, vs, Js, langer, maslov, order, max_levels)
     if method == "exact":
         from .exact import exact_levels
         if langer:
@@ -180,7 +194,7 @@ def levels(potential, mu, v=None, J=0, method="wkb", *, order=1, langer=False, m
     raise ValueError("method=%r is not known; use 'wkb' or 'exact'" % (method,))
 
 
-def _wkb_levels(potential, mu, vs, Js, langer, maslov, order=1):
+def _wkb_levels(potential, mu, vs, Js, langer, maslov, order=1, max_levels=_validate.MAX_LEVELS):
     try:
         m_in, m_out = (int(m) for m in maslov)
     except (TypeError, ValueError):
@@ -195,7 +209,8 @@ def _wkb_levels(potential, mu, vs, Js, langer, maslov, order=1):
     rot = (J + 0.5) ** 2 if langer else J * (J + 1)
     # one crossing into the core for every J
     try:
-        cols = _core.wkb_levels(model, params, curve, mu, rot, v_arr, m_in, m_out, order=order)
+        cols = _core.wkb_levels(model, params, curve, mu, rot, v_arr, m_in, m_out, order=order,
+                                max_levels=max_levels)
     except ValueError as exc:
         if len(Js) > 1 and "rotation" in str(exc):
             # name the first J that fails
@@ -207,6 +222,26 @@ def _wkb_levels(potential, mu, vs, Js, langer, maslov, order=1):
         elif Js[0] > 0:
             raise ValueError("J=%d: %s" % (Js[0], exc)) from None
         raise
+    _check_levels(cols, Js)
     cols["J"] = np.asarray(Js)[cols["rot_index"]]
     vD = {J: (None if math.isnan(x) else float(x)) for J, x in zip(Js, cols["vD"])}
     return LevelTable(cols, mu=mu, method="wkb" if order == 1 else "wkb2", potential=potential, vD=vD)
+
+
+def _check_levels(cols, Js):
+    """Every result finite, and within one J the energies rise strictly with v: a repeated or
+    falling energy means an unseen second well or barrier, never a valid answer."""
+    _validate.finite_result({c: cols[c] for c in ("energy", "binding_energy", "inner_turning_point", "Bv",
+                                                    "dEdv", "error")}, "levels")
+    rot_index, v, E = cols["rot_index"], cols["v"], cols["energy"]
+    for k in np.unique(rot_index):
+        rows = np.flatnonzero(rot_index == k)
+        order = np.argsort(v[rows], kind="stable")
+        vk, Ek = v[rows][order], E[rows][order]
+        same_v = np.diff(vk) == 0
+        bad = np.flatnonzero(~same_v & ~(np.diff(Ek) > 0))
+        if len(bad):
+            i = bad[0]
+            raise ValueError("J=%d: the levels v=%d and v=%d have energies %.10g and %.10g cm-1, which do not "
+                             "rise with v: the potential has a second well or a barrier that single-well WKB "
+                             "cannot treat; use method='exact'" % (Js[k], vk[i], vk[i + 1], Ek[i], Ek[i + 1]))

@@ -11,6 +11,8 @@ import math
 import numbers
 import re
 
+from . import _validate
+
 __all__ = ["ISOTOPE_MASSES", "MASS_SOURCES", "IsotopeMass", "isotope_mass", "isotope_info", "reduced_mass",
            "parse_isotopologue", "as_reduced_mass"]
 
@@ -120,6 +122,9 @@ def _mass_of(atom):
     m = float(atom)
     if not (math.isfinite(m) and m > 0):
         raise ValueError("atomic mass %r is invalid: it must be a finite number > 0 (u)" % (atom,))
+    lo, hi = _validate.ATOM_MASS_RANGE
+    if not lo <= m <= hi:
+        raise ValueError("atomic mass %r u is outside the accepted range %g..%g u" % (atom, lo, hi))
     return m
 
 
@@ -166,4 +171,4 @@ def as_reduced_mass(mu):
     m = float(mu)
     if not (math.isfinite(m) and m > 0):
         raise ValueError("mu=%r is invalid: the reduced mass must be a finite number > 0 (u)" % (mu,))
-    return m
+    return _validate.reduced_mass_value(m)

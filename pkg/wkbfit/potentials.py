@@ -8,7 +8,7 @@ import re
 
 import numpy as np
 
-from . import _core
+from . import _core, _validate
 
 #: model name -> parameter names, from the core's model table (read once)
 MODEL_PARAMETERS = _core.models()
@@ -46,14 +46,45 @@ class Potential:
                              % (type(self).__name__, ", ".join(names), missing or "none", extra or "none"))
         values = []
         for n in names:
+            if not _validate.is_real_number(params[n]):
+                raise _validate.ArgumentTypeError("%s parameter %s=%r is not a number: give a finite real number"
+                                % (type(self).__name__, n, params[n]))
             try:
                 values.append(float(params[n]))
-            except (TypeError, ValueError):
+            except (TypeError, ValueError, OverflowError):
                 raise ValueError("%s parameter %s=%r is not a number" % (type(self).__name__, n, params[n])) from None
         self._params = np.array(values, dtype=float)
         self._params.setflags(write=False)
         # the core checks the values and raises ValueError naming the bad one
         _core.potential_values(self.model, self._params, np.empty(0), self._curve())
+        self._check_working_range()
+
+    #: working range of the analytic models' re (angstrom) and De (cm-1): far beyond any molecule,
+    #: but inside the range where the solvers' length and energy scales stay finite
+    RE_RANGE = (1e-3, 1e4)
+    DE_MAX = 1e9
+
+    def _check_working_range(self):
+        p = dict(zip(self.param_names, self._params.tolist()))
+        owner = type(self).__name__
+        if "re" in p and not self.RE_RANGE[0] <= p["re"] <= self.RE_RANGE[1]:
+            raise ValueError("%s parameter re=%r A is outside the working range %g..%g A"
+                             % (owner, p["re"], self.RE_RANGE[0], self.RE_RANGE[1]))
+        if "De" in p and not p["De"] <= self.DE_MAX:
+            raise ValueError("%s parameter De=%r cm-1 is outside the working range (at most %g cm-1)"
+                             % (owner, p["De"], self.DE_MAX))
+        if "re" in p:
+            # V must be finite over the range the solvers scan (a few percent of re to 60 re)
+            r = p["re"] * np.geomspace(0.02, 60.0, 64)
+            vals = _core.potential_values(self.model, self._params, r, self._curve())
+            bad = ~(np.isfinite(vals[0]) & np.isfinite(vals[1]) & np.isfinite(vals[3]))
+            if np.any(bad & (r >= 0.5 * p["re"])):
+                k = int(np.flatnonzero(bad & (r >= 0.5 * p["re"]))[0])
+                raise ValueError("%s with %s gives a non-finite V at r=%.6g A: the parameters are outside the "
+                                 "range this model can be evaluated in" % (owner, self._param_text(), r[k]))
+
+    def _param_text(self):
+        return ", ".join("%s=%.10g" % kv for kv in zip(self.param_names, self._params.tolist()))
 
     # -- description -------------------------------------------------------------------
     @property
@@ -99,20 +130,39 @@ class Potential:
         """V(r) in cm-1 for r in angstrom (scalar or array)."""
         arr = _as_r(r)
         V = _core.potential_values(self.model, self._params, arr.ravel(), self._curve())[0]
+        _outside_domain(self, arr.ravel(), V)
         return float(V[0]) if arr.ndim == 0 else V.reshape(arr.shape)
 
     def derivatives(self, r):
         """(V, dV/dr, d2V/dr2) at r (1-D arrays)."""
-        V, dV, d2V, _ = _core.potential_values(self.model, self._params, np.atleast_1d(_as_r(r)), self._curve())
+        rr = np.atleast_1d(_as_r(r))
+        V, dV, d2V, _ = _core.potential_values(self.model, self._params, rr, self._curve())
+        for x in (V, dV, d2V):
+            _outside_domain(self, rr.ravel(), x.ravel())
         return V, dV, d2V
 
     def binding_depth(self, r):
         """asymptote - V(r), computed without cancellation where V nears the asymptote."""
-        return _core.potential_values(self.model, self._params, np.atleast_1d(_as_r(r)), self._curve())[3]
+        rr = np.atleast_1d(_as_r(r))
+        d = _core.potential_values(self.model, self._params, rr, self._curve())[3]
+        _outside_domain(self, rr.ravel(), d.ravel())
+        return d
 
     def param_derivatives(self, r):
         """Array (len(r), n_params) of dV/dp for each parameter, in `param_names` order."""
-        return _core.param_derivatives(self.model, self._params, np.atleast_1d(_as_r(r)), self._curve())
+        rr = np.atleast_1d(_as_r(r))
+        out = _core.param_derivatives(self.model, self._params, rr, self._curve())
+        _outside_domain(self, np.repeat(rr.ravel(), out.shape[1]) if out.ndim == 2 else rr.ravel(), out.ravel())
+        return out
+
+
+def _outside_domain(potential, r, values):
+    """Refuses non-finite values (r far outside where the model can be evaluated) by naming r."""
+    bad = ~np.isfinite(values)
+    if np.any(bad):
+        k = int(np.flatnonzero(bad)[0])
+        raise ValueError("%r cannot be evaluated at r=%.6g A (the result is not finite): r is outside its domain; "
+                         "give r where V stays finite" % (potential, r[k]))
 
 
 class Morse(Potential):
