@@ -160,3 +160,144 @@ def test_level_count_limit_names_itself_and_can_be_raised():
         levels(pot, 50.0, max_levels=100)
     t = levels(pot, 50.0, max_levels=100000)
     assert len(t) > 100
+
+
+# ---- files and the command line ---------------------------------------------------------------
+
+def cli(args, tmp_path):
+    """Runs the command line in a child process; returns (status, stdout, stderr)."""
+    done = subprocess.run([sys.executable, "-m", "wkbfit"] + args, capture_output=True, text=True, timeout=120,
+                          cwd=tmp_path, env=dict(os.environ, PYTHONPATH=PKG))
+    return done.returncode, done.stdout, done.stderr
+
+
+@pytest.mark.parametrize("option", [["-J", "0-10000000"], ["-v", "99999999999999999999"], ["-J", "99999999999"]])
+def test_cli_refuses_huge_requests_without_a_traceback(option, tmp_path):
+    status, out, err = cli(["levels", "morse", "De=4000", "re=4", "a=1.2", "--mu", "7"] + option, tmp_path)
+    assert status == 2
+    assert "Traceback" not in err and err.startswith("wkbfit: error:"), err
+    assert option[0] in err
+
+
+def test_cli_names_the_target_when_output_is_unwritable(tmp_path):
+    target = tmp_path / "no-such-dir" / "result.json"
+    status, out, err = cli(["demo", "-o", str(target)], tmp_path)
+    assert status == 2 and "Traceback" not in err
+    assert str(target) in err and ".tmp" not in err, err
+
+
+def test_cli_keeps_an_existing_result_unless_forced(tmp_path):
+    target = tmp_path / "result.json"
+    target.write_text("precious")
+    status, out, err = cli(["demo", "-o", str(target)], tmp_path)
+    assert status == 2 and "--force" in err and target.read_text() == "precious"
+    status, out, err = cli(["demo", "-o", str(target), "--force"], tmp_path)
+    assert status in (0, 1), err
+    assert target.read_text().startswith("{")
+
+
+def test_temporary_file_is_removed_when_killed_during_the_write(tmp_path):
+    # SIGTERM arrives while the result is being written: the handler turns it into SystemExit and
+    # the atomic write removes its temporary file; the target is not created half-written
+    rc, out = run_isolated("""
+        import os, signal
+        from wkbfit import cli, reports
+        real_fsync = os.fsync
+        def killed_fsync(fd):
+            os.kill(os.getpid(), signal.SIGTERM)
+            real_fsync(fd)
+        os.fsync = killed_fsync
+        try:
+            with cli._signals_exit():
+                reports._atomic_write(%r, "x" * 100000)
+        except SystemExit as done:
+            print("exit", done.code)
+        print(sorted(os.listdir(%r)))
+    """ % (str(tmp_path / "out.json"), str(tmp_path)))
+    assert "exit %d" % (128 + 15) in out, out
+    assert "[]" in out, out
+
+
+def test_csv_with_byte_order_mark_is_read(tmp_path):
+    path = tmp_path / "levels.csv"
+    path.write_bytes("\ufeffv,energy,uncertainty\n0,100.5,0.1\n1,300.25,0.1\n".encode("utf-8"))
+    obs = read_levels(str(path))
+    assert obs.v.tolist() == [0, 1] and obs.energy.tolist() == [100.5, 300.25]
+
+
+def _small_fit():
+    data = {"v": [0, 1, 2, 3, 4], "J": [0] * 5, "uncertainty": [0.01] * 5}
+    true = Morse(De=5000.0, re=2.0, a=1.0)
+    data["energy"] = levels(true, 5.0, v=data["v"]).energy.tolist()
+    return fit(Morse(De=5200.0, re=2.0, a=1.05), data, mu=5.0, vary=["De", "a"])
+
+
+@pytest.mark.parametrize("tamper", [
+    lambda d: d.pop("parameters"),
+    lambda d: d.__setitem__("residuals", d["residuals"][:-1]),
+    lambda d: d.__setitem__("jacobian", [[1.0]]),
+    lambda d: d.__setitem__("covariance", "oops"),
+    lambda d: d["potential"].__setitem__("params", {"De": "deep", "re": 2.0, "a": 1.0}),
+    lambda d: d.__setitem__("iterations", "many"),
+    lambda d: d["observed"].__setitem__("v", None),
+    lambda d: d.__setitem__("masses", [["x", -1.0]]),
+])
+def test_tampered_fit_result_gives_one_clear_value_error(tamper):
+    import json
+    result = _small_fit()
+    data = json.loads(result.to_json())
+    tamper(data)
+    with pytest.raises(ValueError, match="fit result"):
+        type(result).load_json(json.dumps(data))
+
+
+def test_deeply_nested_json_is_a_value_error():
+    from wkbfit import FitResult
+    with pytest.raises(ValueError, match="JSON"):
+        FitResult.load_json("{" + '"a":[' * 100000 + "]" * 100000 + "}")
+
+
+# ---- argument checks ------------------------------------------------------------------------
+
+@pytest.mark.parametrize("kwargs, name", [
+    ({"maslov": (1.7, 1)}, "maslov"), ({"maslov": (True, 1)}, "maslov"), ({"maslov": "12"}, "maslov"),
+    ({"langer": "yes"}, "langer"), ({"langer": 1}, "langer"), ({"order": 3}, "order"), ({"order": "2"}, "order"),
+    ({"J": "5"}, "J"), ({"J": [[1, 2]]}, "J"), ({"v": 2.5}, "v"), ({"v": 10 ** 30}, "v"), ({"J": np.array([[1]])}, "J"),
+])
+def test_bad_level_arguments_are_named(kwargs, name):
+    with pytest.raises((ValueError, TypeError), match=name):
+        levels(Morse(De=5000.0, re=2.0, a=1.0), 5.0, **kwargs)
+
+
+def test_order_two_point_zero_is_accepted_as_two():
+    pot = Morse(De=5000.0, re=2.0, a=1.0)
+    a = levels(pot, 5.0, v=[0, 1], order=2.0)
+    b = levels(pot, 5.0, v=[0, 1], order=2)
+    np.testing.assert_array_equal(a.energy, b.energy)
+
+
+@pytest.mark.parametrize("params", [{"De": True}, {"De": "1000"}, {"De": None}, {"De": 1e300}, {"re": 1e-300},
+                                    {"De": complex(1, 1)}, {"De": np.array([1.0, 2.0])}])
+def test_bad_potential_parameters_are_named(params):
+    p = dict(De=1000.0, re=1.0, a=1.0)
+    p.update(params)
+    name = next(iter(params))
+    with pytest.raises((ValueError, TypeError), match=name):
+        Morse(**p)
+
+
+def test_potential_outside_its_domain_says_so():
+    pot = LennardJones(De=1000.0, re=1.0, n=12, m=6)
+    with pytest.raises(ValueError, match="outside its domain"):
+        pot(np.array([1.0, 1e-30]))  # (re/r)^12 overflows
+    with pytest.raises(ValueError, match="outside its domain"):
+        pot.derivatives(1e-30)
+    with pytest.raises(ValueError, match="r must"):
+        pot(float("inf"))
+    assert pot(1.0) == pytest.approx(0.0, abs=1e-9)
+
+
+def test_reduced_mass_of_absurd_masses_is_refused():
+    with pytest.raises(ValueError, match="mass"):
+        wkbfit.reduced_mass(1e300, 1e300)
+    assert wkbfit.reduced_mass(1.0, 1.0) == 0.5

@@ -19,6 +19,7 @@ import warnings
 
 import numpy as np
 
+from . import _validate
 from . import potentials as _potentials
 
 __all__ = ["main", "MODELS"]
@@ -110,16 +111,24 @@ def _positive_int(text):
     return int(text)
 
 
-def _int_list(text, what):
-    """'3', '0,2,5' or '0-10' (inclusive) -> list of ints >= 0."""
+def _int_list(text, what, limit=_validate.MAX_J_VALUES):
+    """'3', '0,2,5' or '0-10' (inclusive) -> list of ints >= 0, at most `limit` of them (a work limit
+    checked before a range is expanded) and each at most MAX_QUANTUM_NUMBER."""
     out = []
+    top = _validate.MAX_QUANTUM_NUMBER
     for part in text.split(","):
         part = part.strip()
         m = re.fullmatch(r"(\d+)\s*-\s*(\d+)", part)
+        for number in (m.groups() if m else [part] if re.fullmatch(r"\d+", part) else []):
+            if int(number) > top:
+                raise UserError("%s=%s: quantum numbers above %d are not accepted" % (what, number, top))
         if m:
             lo, hi = int(m.group(1)), int(m.group(2))
             if hi < lo:
                 raise UserError("%s range %r is empty" % (what, part))
+            if len(out) + hi - lo + 1 > limit:
+                raise UserError("%s %s asks for %d values, more than the limit of %d per call: give a shorter "
+                                "range" % (what, text, len(out) + hi - lo + 1, limit))
             out.extend(range(lo, hi + 1))
         elif re.fullmatch(r"\d+", part):
             out.append(int(part))
@@ -153,7 +162,7 @@ def _cmd_levels(args, out):
         raise UserError("give the reduced mass: --mu MU (in u) or --isotopologue LABEL (such as 7Li133Cs)")
     mu = args.mu if args.mu is not None else args.isotopologue
     Js = _int_list(args.J, "-J")
-    vs = None if args.v is None else _int_list(args.v, "-v")
+    vs = None if args.v is None else _int_list(args.v, "-v", _validate.MAX_LEVELS)
     table = levels(pot, mu, v=vs, J=Js if len(Js) > 1 else Js[0], method=args.method, langer=args.langer)
     if args.csv:
         cols = table.columns
@@ -217,6 +226,8 @@ def _fit_kwargs(args, pot):
 def _cmd_fit(args, out):
     from .fitting import fit
     from .observed import read_levels
+    path = args.output or _default_json_path(args.datafile)
+    _refuse_overwrite(path, args.force)
     obs = read_levels(args.datafile, energy_zero=args.energy_zero)
     pot = _build_potential(args.model, args.params)
     mu = _mu_argument(args, obs)
@@ -230,10 +241,15 @@ def _cmd_fit(args, out):
     for target in args.predict or []:
         print("", file=out)
         print(_prediction_text(result, target, args.near), file=out)
-    path = args.output or _default_json_path(args.datafile)
     result.save_json(path)
     print("\nfit result written to %s" % path, file=out)
     return 0 if _fit_ok(result) else 1
+
+
+def _refuse_overwrite(path, force):
+    """An existing result is kept unless --force says otherwise (checked before the fit runs)."""
+    if path and os.path.exists(path) and not force:
+        raise UserError("%s exists already: give another name with -o, or --force to replace it" % path)
 
 
 def _default_json_path(datafile):
@@ -263,6 +279,7 @@ def _cmd_demo(args, out):
     from .fitting import fit
     from .levels import levels
     from .observed import read_levels
+    _refuse_overwrite(args.output, args.force)
     obs = read_levels(demo.demo_data_path(), energy_zero="minimum")
     print("=" * 100, file=out)
     print(demo.DEMO_BANNER, file=out)
@@ -374,7 +391,8 @@ def _parser():
                    help="number of levels nearest dissociation to print for each isotopologue (default 10)")
     p.add_argument("-o", "--output", metavar="JSON",
                    help="where to write the fit result (default: DATAFILE name with -fit.json, in the current "
-                        "directory)")
+                        "directory); an existing file is kept unless --force")
+    p.add_argument("--force", action="store_true", help="replace an existing result file")
     p.set_defaults(run=_cmd_fit)
 
     p = sub.add_parser("demo", help="fit the shipped INVENTED demo data",
@@ -385,7 +403,9 @@ def _parser():
     p.add_argument("--method", choices=("wkb", "exact"), default="wkb", help="level calculation (default wkb)")
     p.add_argument("--near", type=_positive_int, default=10, metavar="N",
                    help="number of levels nearest dissociation to print (default 10)")
-    p.add_argument("-o", "--output", metavar="JSON", help="also write the fit result as JSON")
+    p.add_argument("-o", "--output", metavar="JSON", help="also write the fit result as JSON (an existing file is "
+                                                          "kept unless --force)")
+    p.add_argument("--force", action="store_true", help="replace an existing result file")
     p.set_defaults(run=_cmd_demo)
     return parser
 
@@ -406,7 +426,7 @@ def main(argv=None, out=None):
         if args.command is None:
             parser.print_help(out)
             return EXIT_USAGE
-        with warnings.catch_warnings():
+        with warnings.catch_warnings(), _signals_exit():
             warnings.simplefilter("always")
             warnings.showwarning = _show_warning
             return args.run(args, out)
@@ -426,6 +446,41 @@ def main(argv=None, out=None):
         message = " ".join(str(err).split())
         print("wkbfit: error: %s" % message, file=sys.stderr)
         return EXIT_USAGE
+    except (MemoryError, RuntimeError, ArithmeticError, TypeError) as err:
+        # never a traceback for something the input caused; WKBFIT_DEBUG=1 shows it
+        if os.environ.get("WKBFIT_DEBUG"):
+            raise
+        what = "out of memory: ask for less work" if isinstance(err, MemoryError) else \
+            "the calculation failed (%s): %s" % (type(err).__name__, " ".join(str(err).split()))
+        print("wkbfit: error: %s" % what, file=sys.stderr)
+        return EXIT_USAGE
+
+
+class _signals_exit:
+    """While a command runs, SIGTERM and SIGHUP raise SystemExit (as Ctrl-C raises KeyboardInterrupt),
+    so that the cleanup of temporary files runs when the command is killed; the handlers are restored
+    afterwards. Only in the main thread (signal handlers cannot be set elsewhere)."""
+
+    def __enter__(self):
+        import signal
+        import threading
+        self.saved = {}
+        if threading.current_thread() is threading.main_thread():
+            for name in ("SIGTERM", "SIGHUP"):
+                sig = getattr(signal, name, None)
+                if sig is not None:
+                    self.saved[sig] = signal.signal(sig, self._exit)
+        return self
+
+    @staticmethod
+    def _exit(signum, frame):
+        raise SystemExit(128 + signum)
+
+    def __exit__(self, *exc):
+        import signal
+        for sig, handler in self.saved.items():
+            signal.signal(sig, handler)
+        return False
 
 
 if __name__ == "__main__":

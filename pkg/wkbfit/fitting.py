@@ -599,14 +599,19 @@ class FitResult:
         """A FitResult from a path written by save_json (or a JSON string)."""
         if isinstance(source, (str, os.PathLike)) and not str(source).lstrip().startswith("{"):
             try:
-                with open(source, encoding="utf-8") as fh:
+                with open(source, encoding="utf-8-sig") as fh:
                     data = json.load(fh)
             except OSError as err:
                 raise ValueError("cannot read fit result %r: %s" % (os.fspath(source), err.strerror or err)) from None
-            except json.JSONDecodeError as err:
+            except (json.JSONDecodeError, UnicodeDecodeError, RecursionError) as err:
                 raise ValueError("%r is not valid JSON: %s" % (os.fspath(source), err)) from None
+        elif isinstance(source, (str, bytes, bytearray)):
+            try:
+                data = json.loads(source)
+            except (json.JSONDecodeError, UnicodeDecodeError, RecursionError) as err:
+                raise ValueError("the text is not valid JSON: %s" % err) from None
         else:
-            data = json.loads(source)
+            raise ValueError("source must be a path or a JSON string; got %s" % type(source).__name__)
         return cls.from_dict(data)
 
     @classmethod

@@ -216,7 +216,7 @@ def _read_csv(path):
     """(columns as lists of strings, a row description per data row, comment lines)."""
     name = os.fspath(path)
     try:
-        handle = open(name, newline="", encoding="utf-8")
+        handle = open(name, newline="", encoding="utf-8-sig")  # a spreadsheet's "CSV UTF-8" starts with a BOM
     except OSError as err:
         raise ValueError("cannot open levels file %r: %s" % (name, err.strerror or err)) from None
     comments, header, rows, lines = [], None, [], []

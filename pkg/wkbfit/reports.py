@@ -164,6 +164,53 @@ def fit_result_to_dict(result):
 
 
 def fit_result_from_dict(cls, data):
+    """A FitResult from its JSON form; tampered or wrong-shaped data give one ValueError."""
+    if not isinstance(data, dict) or data.get("format") != FORMAT:
+        raise ValueError("this is not a wkbfit fit result (format %r expected)" % FORMAT)
+    try:
+        result = _fit_result_from_checked_dict(cls, data)
+        _check_loaded_shapes(result)
+    except ValueError as err:
+        raise ValueError("the fit result is damaged or was changed by hand: %s" % err) from None
+    except (KeyError, TypeError, IndexError, AttributeError, RecursionError, OverflowError) as err:
+        what = "missing entry %s" % err if isinstance(err, KeyError) else "%s: %s" % (type(err).__name__, err)
+        raise ValueError("the fit result is damaged or was changed by hand (%s); write it again with "
+                         "save_json" % what) from None
+    return result
+
+
+def _check_loaded_shapes(result):
+    """Every array of a loaded result has the shape the data and parameters imply."""
+    n, n_var, n_par = len(result.observed), len(result.var_names), len(result.params)
+    want = {"covariance": (n_var, n_var), "covariance_unscaled": (n_var, n_var), "correlation": (n_var, n_var),
+            "calculated": (n,), "residuals": (n,), "normalized_residuals": (n,), "fitted_rows": (n,),
+            "jacobian": (n, n_par)}
+    for key, shape in want.items():
+        got = getattr(result, key).shape
+        if got != shape:
+            raise ValueError("%s has shape %s, expected %s" % (key, got, shape))
+    unknown = [v for v in result.var_names if v not in result.params]
+    if unknown:
+        raise ValueError("var_names names %s, which are not parameters" % unknown)
+    for key in ("iterations", "n_evaluations", "n_infeasible", "dof"):
+        x = getattr(result, key)
+        if isinstance(x, bool) or not isinstance(x, int):
+            raise ValueError("%s=%r must be an integer" % (key, x))
+    for key in ("chi_square", "standard_error", "covariance_scale", "condition_number", "predicted_decrease"):
+        x = getattr(result, key)
+        if x is not None and (isinstance(x, bool) or not isinstance(x, (int, float))):
+            raise ValueError("%s=%r must be a number or null" % (key, x))
+    for key in ("status", "message", "dof_note", "method"):
+        if not isinstance(getattr(result, key), str):
+            raise ValueError("%s=%r must be a string" % (key, getattr(result, key)))
+    if not isinstance(result.scale_uncertainties, bool):
+        raise ValueError("scale_uncertainties=%r must be true or false" % (result.scale_uncertainties,))
+    for label, m in result.masses.items():
+        if isinstance(m, bool) or not isinstance(m, (int, float)) or not (m > 0 and math.isfinite(m)):
+            raise ValueError("the mass of %r is %r, not a number > 0" % (label, m))
+
+
+def _fit_result_from_checked_dict(cls, data):
     from .fitting import Parameter
     if not isinstance(data, dict) or data.get("format") != FORMAT:
         raise ValueError("this is not a wkbfit fit result (format %r expected)" % FORMAT)
@@ -269,13 +316,20 @@ def _atomic_write(path, text):
     """Write text to path through a temporary file in the same directory and os.replace."""
     path = os.fspath(path)
     directory = os.path.dirname(os.path.abspath(path))
-    fd, tmp = tempfile.mkstemp(prefix=".%s." % os.path.basename(path), suffix=".tmp", dir=directory)
+    try:
+        fd, tmp = tempfile.mkstemp(prefix=".%s." % os.path.basename(path), suffix=".tmp", dir=directory)
+    except OSError as err:
+        # name the target, not the temporary file the user never asked for
+        raise OSError(err.errno, "cannot write %s: %s" % (path, err.strerror or err)) from None
     try:
         with os.fdopen(fd, "w", encoding="utf-8") as fh:
             fh.write(text)
             fh.flush()
             os.fsync(fh.fileno())
-        os.replace(tmp, path)
+        try:
+            os.replace(tmp, path)
+        except OSError as err:
+            raise OSError(err.errno, "cannot write %s: %s" % (path, err.strerror or err)) from None
     except BaseException:
         try:
             os.unlink(tmp)
