@@ -367,6 +367,13 @@ static int build_grid(wkb_radial *w, wkb_error *err)
         return wkb_fail(err, WKB_EINVAL, "the potential gives no usable scan range (r_inner_scan=%g, r_min=%g A)",
                         r_lo, r_hint);
 
+    /* The scan must start where V_J is at or above the asymptote, or an inner well beyond a
+       model's hint (an MLR turning over inside re) is cut off: step inwards until it is. */
+    {
+        const double flat = 1e-8 * fabs(depth_j(w, r_hint));
+        for (int k = 0; k < 400 && r_lo > 1e-6 * r_hint && depth_j(w, r_lo) > flat; k++)
+            r_lo *= 0.9;
+    }
     /* Geometric scan from the inner wall outward until the threshold tail is left behind. */
     const double b_floor = w->set.min_binding;
     size_t ns = 0, kmax = 0;
@@ -523,7 +530,9 @@ static int build_grid(wkb_radial *w, wkb_error *err)
                 d = w->rot > 0 ? -HUGE_VAL : pv.depth;
             }
             if (isnan(d) || (r > 0 && !isfinite(d))) {
-                status = wkb_fail(err, WKB_ENUMERIC, "the potential is not finite at r=%g A", r);
+                /* caused by the potential given (e.g. no repulsive wall down to r = 0): an input error */
+                status = wkb_fail(err, WKB_EINVAL, "the potential is not finite at r=%g A, inside the range the "
+                                  "exact solver must cover (the classically allowed region reaches it)", r);
                 goto cleanup;
             }
             w->r[i] = r;

@@ -138,3 +138,27 @@ def finite_result(arrays, what):
             k = int(np.flatnonzero(~np.isfinite(a.ravel()))[0])
             raise ValueError("%s: %s[%d] is not finite (%r): the input lies outside the range where the "
                              "calculation is accurate" % (what, name, k, float(a.ravel()[k])))
+
+
+def real_array(value, name, valid="finite real numbers", ndim=None, finite=True):
+    """A new float array from a number or (nested) sequence of real numbers, refusing strings, bools,
+    None, complex and ragged or object input by name (instead of NumPy's own messages)."""
+    if value is None or isinstance(value, (str, bytes, dict, set)):
+        raise ArgumentTypeError("%s=%r is invalid: give %s" % (name, value, valid))
+    try:
+        raw = np.asarray(value)
+    except (TypeError, ValueError, OverflowError):
+        raise ValueError("%s=%r is invalid: give %s of one regular shape" % (name, value, valid)) from None
+    if raw.dtype.kind == "O":
+        try:
+            raw = np.array(raw.tolist(), dtype=float)
+        except (TypeError, ValueError, OverflowError):
+            raise ArgumentTypeError("%s=%r is invalid: give %s" % (name, value, valid)) from None
+    if raw.dtype.kind not in "iuf":
+        raise ArgumentTypeError("%s=%r is invalid (%s values): give %s" % (name, value, raw.dtype.name, valid))
+    arr = np.array(raw, dtype=float)
+    if ndim is not None and arr.ndim not in ((ndim,) if isinstance(ndim, int) else ndim):
+        raise ValueError("%s must be %s with %s dimension(s); got shape %s" % (name, valid, ndim, arr.shape))
+    if finite and not np.all(np.isfinite(arr)):
+        raise ValueError("%s must be %s; got a non-finite value" % (name, valid))
+    return arr

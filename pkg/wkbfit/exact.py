@@ -13,7 +13,7 @@ import warnings
 
 import numpy as np
 
-from . import _core
+from . import _core, _validate
 from .levels import LevelTable, levels as _levels
 from .masses import as_reduced_mass
 from .potentials import Potential
@@ -34,7 +34,7 @@ def _check_potential(potential):
 
 def _positive(name, value):
     try:
-        x = float(value)
+        x = _validate.real(value, name, "a finite value > 0 in cm-1")
     except (TypeError, ValueError):
         raise ValueError("%s=%r is not a number; give a value > 0 in cm-1" % (name, value)) from None
     if not (math.isfinite(x) and x > 0):
@@ -43,6 +43,13 @@ def _positive(name, value):
 
 
 def _ints(x, name):
+    out = _validate.integer_list(x, name, 0, 100000)
+    if not out:
+        raise ValueError("%s must be a non-negative integer or a non-empty list of them; got %r" % (name, x))
+    return out
+
+
+def _ints_unchecked(x, name):
     arr = np.atleast_1d(np.asarray(x))
     if arr.ndim != 1 or arr.size == 0:
         raise ValueError("%s must be a non-negative integer or a non-empty list of them; got %r" % (name, x))

@@ -15,7 +15,7 @@ import warnings
 
 import numpy as np
 
-from . import _core
+from . import _core, _validate
 from . import potentials as _potentials
 from .masses import as_reduced_mass, parse_isotopologue, reduced_mass
 from .observed import read_levels
@@ -129,10 +129,8 @@ def fit(potential, observed, mu=None, *, method="wkb", vary=None, bounds=None, s
         raise ValueError("method=%r is not known; use 'wkb' (first-order WKB levels) or 'exact'" % (method,))
     if not isinstance(scale_uncertainties, (bool, np.bool_)):
         raise ValueError("scale_uncertainties=%r must be True or False" % (scale_uncertainties,))
-    try:
-        max_iterations = int(max_iterations)
-    except (TypeError, ValueError):
-        raise ValueError("max_iterations=%r must be a positive integer" % (max_iterations,)) from None
+    max_iterations = _validate.integer(max_iterations, "max_iterations", 1, 10 ** 7,
+                                       "a positive integer (at most 10^7)")
     if max_iterations < 1:
         raise ValueError("max_iterations=%r must be a positive integer" % (max_iterations,))
 
@@ -467,6 +465,9 @@ class FitResult:
         if mu is not None:
             return as_reduced_mass(mu), None
         if isotopologue is not None:
+            if not isinstance(isotopologue, str):
+                raise _validate.ArgumentTypeError("isotopologue=%r must be a label such as '7Li133Cs'"
+                                                  % (isotopologue,))
             if isotopologue in self.masses:
                 return self.masses[isotopologue], isotopologue
             try:

@@ -119,7 +119,8 @@ def _mass_of(atom):
         return isotope_mass(atom)
     if not _is_number(atom):
         raise ValueError("an atom must be an isotope label such as '7Li' or a mass in u; got %r" % (atom,))
-    m = float(atom)
+    m = _validate.real(atom, "atomic mass", "a finite number > 0 (u)") if not isinstance(atom, int) or \
+        abs(atom) < 2 ** 1000 else math.inf
     if not (math.isfinite(m) and m > 0):
         raise ValueError("atomic mass %r is invalid: it must be a finite number > 0 (u)" % (atom,))
     lo, hi = _validate.ATOM_MASS_RANGE
@@ -168,7 +169,7 @@ def as_reduced_mass(mu):
     if not _is_number(mu):
         raise ValueError("mu must be a reduced mass in u, a pair of isotopes or an isotopologue label; got %r"
                          % (mu,))
-    m = float(mu)
+    m = float(mu) if not isinstance(mu, int) or abs(mu) < 2 ** 1000 else math.inf
     if not (math.isfinite(m) and m > 0):
         raise ValueError("mu=%r is invalid: the reduced mass must be a finite number > 0 (u)" % (mu,))
     return _validate.reduced_mass_value(m)

@@ -27,6 +27,7 @@ import sys
 
 import numpy as np
 
+from . import _validate as _limits  # (this module has a function named _validate)
 from .masses import as_reduced_mass, parse_isotopologue, reduced_mass
 
 __all__ = ["ObservedLevels", "read_levels", "ENERGY_ZEROS"]
@@ -329,14 +330,17 @@ def _number(value, column, where):
     if isinstance(value, (bool, np.bool_)):
         raise ValueError("%s, column %r: %r is not a number" % (where, column, value))
     if isinstance(value, numbers.Real):
-        x = float(value)
+        try:
+            x = float(value)
+        except OverflowError:
+            raise ValueError("%s, column %r: %r is too large for a number" % (where, column, value)) from None
     else:
         text = "" if value is None else str(value).strip()
         if not text:
             raise ValueError("%s, column %r: the value is missing" % (where, column))
         try:
             x = float(text)
-        except ValueError:
+        except (ValueError, OverflowError):
             raise ValueError("%s, column %r: %r is not a number" % (where, column, value)) from None
     if not math.isfinite(x):
         raise ValueError("%s, column %r: %r is not a finite number (NaN or infinite); every level needs a value"
@@ -351,6 +355,9 @@ def _quantum_number(value, column, where):
                          % (where, column, value))
     if x < 0:
         raise ValueError("%s, column %r: %r is negative; quantum numbers are integers >= 0" % (where, column, value))
+    if x > _limits.MAX_QUANTUM_NUMBER:
+        raise ValueError("%s, column %r: %r is above the largest quantum number accepted (%d)"
+                         % (where, column, value, _limits.MAX_QUANTUM_NUMBER))
     return int(x)
 
 

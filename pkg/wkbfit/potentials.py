@@ -18,7 +18,7 @@ __all__ = ["Potential", "Morse", "LennardJones", "PoschlTeller", "PointwisePoten
 
 def _as_r(r):
     """r as a float array (a copy is never needed: the core does not write to it)."""
-    arr = np.asarray(r, dtype=float)
+    arr = _validate.real_array(r, "r", "a distance in angstrom or an array of them", finite=False)
     if not np.all(np.isfinite(arr)):
         raise ValueError("r must contain only finite distances (angstrom); got non-finite values")
     if np.any(arr <= 0):
@@ -223,20 +223,21 @@ class PointwisePotential(Potential):
     model = "pointwise"
 
     def __init__(self, r, V, asymptote=None, tail_power=None):
-        try:
-            r = np.array(r, dtype=float, copy=True)
-            V = np.array(V, dtype=float, copy=True)
-        except (TypeError, ValueError) as exc:
-            raise ValueError("r (angstrom) and V (cm-1) must be arrays of numbers: %s" % exc) from None
+        r = _validate.real_array(r, "r", "arrays of numbers (distances in angstrom)", finite=False)
+        V = _validate.real_array(V, "V", "arrays of numbers (energies in cm-1)", finite=False)
         if r.ndim != 1 or V.ndim != 1 or r.shape != V.shape:
             raise ValueError("r and V must be 1-D arrays of the same length; got shapes %s and %s"
                              % (r.shape, V.shape))
         for name, val in (("asymptote", asymptote), ("tail_power", tail_power)):
-            if val is not None and not math.isfinite(float(val)):
-                raise ValueError("%s=%r must be a finite number or None (to fit it)" % (name, val))
-        self._curve_capsule, D, n, Cn = _core.pointwise_build(
-            r, V, math.nan if asymptote is None else float(asymptote),
-            math.nan if tail_power is None else float(tail_power))
+            if val is not None:
+                _validate.real(val, name, "a finite number or None (to fit it)")
+        try:
+            self._curve_capsule, D, n, Cn = _core.pointwise_build(
+                r, V, math.nan if asymptote is None else float(asymptote),
+                math.nan if tail_power is None else float(tail_power))
+        except RuntimeError as exc:
+            # a numerical failure caused by the points given: the user can fix it, so a ValueError
+            raise ValueError("the points do not define a usable curve: %s" % exc) from None
         r.setflags(write=False)
         V.setflags(write=False)
         self.r, self.V = r, V
@@ -285,10 +286,8 @@ def _exponent_coefficients(owner, betas, keywords):
     if betas is None:
         raise ValueError("%s needs betas: a sequence of 1 to %d exponent coefficients beta0, beta1, ..."
                          % (owner, _MAX_BETAS))
-    try:
-        values = np.array(betas, dtype=float)  # a copy: the caller's sequence is not kept
-    except (TypeError, ValueError):
-        raise ValueError("%s betas=%r must be a sequence of 1 to %d numbers" % (owner, betas, _MAX_BETAS)) from None
+    values = _validate.real_array(betas, "%s: betas" % owner, "a sequence of 1 to %d finite numbers" % _MAX_BETAS,
+                                  finite=False)  # a copy: the caller's sequence is not kept
     values = values.reshape(1) if values.ndim == 0 else values
     if values.ndim != 1 or not 1 <= len(values) <= _MAX_BETAS:
         raise ValueError("%s betas=%r must be a sequence of 1 to %d numbers; got shape %s"

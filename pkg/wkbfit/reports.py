@@ -173,7 +173,7 @@ def fit_result_from_dict(cls, data):
     except ValueError as err:
         raise ValueError("the fit result is damaged or was changed by hand: %s" % err) from None
     except (KeyError, TypeError, IndexError, AttributeError, RecursionError, OverflowError) as err:
-        what = "missing entry %s" % err if isinstance(err, KeyError) else "%s: %s" % (type(err).__name__, err)
+        what = "missing entry %s" % err if isinstance(err, KeyError) else "an entry has the wrong type or shape"
         raise ValueError("the fit result is damaged or was changed by hand (%s); write it again with "
                          "save_json" % what) from None
     return result
@@ -198,8 +198,14 @@ def _check_loaded_shapes(result):
             raise ValueError("%s=%r must be an integer" % (key, x))
     for key in ("chi_square", "standard_error", "covariance_scale", "condition_number", "predicted_decrease"):
         x = getattr(result, key)
-        if x is not None and (isinstance(x, bool) or not isinstance(x, (int, float))):
-            raise ValueError("%s=%r must be a number or null" % (key, x))
+        if x is not None and (isinstance(x, bool) or not isinstance(x, (int, float)) or not math.isfinite(x)):
+            raise ValueError("%s=%r must be a finite number or null" % (key, x))
+    for p in result.params.values():
+        for what in ("value", "initial", "uncertainty"):
+            x = getattr(p, what)
+            if (x is not None or what != "uncertainty") and (isinstance(x, bool) or not isinstance(x, (int, float))
+                                                              or not math.isfinite(x)):
+                raise ValueError("parameter %s: %s=%r is not a finite number" % (p.name, what, x))
     for key in ("status", "message", "dof_note", "method"):
         if not isinstance(getattr(result, key), str):
             raise ValueError("%s=%r must be a string" % (key, getattr(result, key)))
@@ -290,6 +296,13 @@ def _frozen(arr):
 
 
 def _nan_array(data, shape=None):
+    try:
+        return _nan_array_unchecked(data, shape)
+    except (TypeError, ValueError, OverflowError):
+        raise ValueError("an array entry is not a (nested) list of numbers or null of one regular shape") from None
+
+
+def _nan_array_unchecked(data, shape=None):
     arr = np.array([[math.nan if x is None else x for x in row] for row in data], dtype=float) \
         if data and isinstance(data[0], list) else np.array([math.nan if x is None else x for x in data], dtype=float)
     if shape is not None and arr.size == 0:

@@ -25,7 +25,7 @@ import math
 
 import numpy as np
 
-from . import _core
+from . import _core, _validate
 from .masses import as_reduced_mass
 from .potentials import PointwisePotential
 
@@ -78,10 +78,7 @@ class RKRTurningPoints:
 
 
 def _coefficients(c, name, first_power, dunham_l):
-    try:
-        arr = np.array(c, dtype=float, copy=True)  # a copy: the user's array is never touched
-    except (TypeError, ValueError):
-        raise ValueError("%s must be a sequence of numbers (cm-1), got %r" % (name, c)) from None
+    arr = _validate.real_array(c, name, "a sequence of numbers (cm-1)", finite=False)  # a copy
     if arr.ndim != 1 or arr.size == 0:
         raise ValueError("%s must be a non-empty 1-D sequence of numbers (cm-1), got shape %s" % (name, arr.shape))
     bad = np.nonzero(~np.isfinite(arr))[0]
@@ -93,10 +90,7 @@ def _coefficients(c, name, first_power, dunham_l):
 
 
 def _quantum_numbers(v):
-    try:
-        arr = np.array(v, dtype=float, copy=True)
-    except (TypeError, ValueError):
-        raise ValueError("v must be a number or a sequence of numbers > -1/2, got %r" % (v,)) from None
+    arr = _validate.real_array(v, "v", "a number or a sequence of numbers > -1/2", finite=False)
     if arr.ndim > 1:
         raise ValueError("v must be a number or a 1-D sequence of numbers, got shape %s" % (arr.shape,))
     return np.atleast_1d(arr)
@@ -127,8 +121,14 @@ def rkr_turning_points(G_coefficients, B_coefficients, mu, v, *, quadrature_poin
     mu = as_reduced_mass(mu)
     vs = _quantum_numbers(v)
     data = _core.rkr(G, B, mu, vs, _quadrature(quadrature_points))
+    _validate.finite_result({k: data[k] for k in ("energy", "inner_turning_point", "outer_turning_point")},
+                            "RKR turning points (G(v) and B(v) overflow: use v inside the range of the data)")
     re = math.sqrt(_core.HBAR2_OVER_2U / (mu * B[0])) if B[0] > 0 else math.nan
     return RKRTurningPoints(vs, data, mu, re)
+
+
+#: work limit of the default v of rkr_potential (8 points per level up to the turnover of G(v))
+_DEFAULT_V_LIMIT = 10000
 
 
 def _default_quantum_numbers(G):
@@ -136,13 +136,17 @@ def _default_quantum_numbers(G):
     uniformly in sqrt(v + 1/2): near the minimum the turning points then move by equal steps in r
     (r - re grows like sqrt(v + 1/2)), and at the top the steps in v are about 1/4."""
     slope_roots = np.polynomial.Polynomial(np.concatenate([[0.0], G])).deriv().roots()
-    x_top = [x.real for x in slope_roots if abs(x.imag) <= 1e-9 * abs(x) and x.real > 0]
+    x_top = [x.real for x in slope_roots if abs(x.imag) <= 1e-9 * abs(x) and x.real > 0 and math.isfinite(x.real)]
     if not x_top:
         raise ValueError("G(v) never stops increasing, so there is no natural end to the RKR curve; "
                          "give v explicitly (the range of the levels the Dunham expansion was fitted to)")
     v_top = math.ceil(min(x_top) - 0.5) - 1  # the last integer v strictly below the maximum
     if v_top < 1:
         raise ValueError("G(v) stops increasing at v = %.6g, below v = 1; give v explicitly" % (min(x_top) - 0.5))
+    if v_top > _DEFAULT_V_LIMIT:
+        raise ValueError("G(v) stops increasing only at v = %.6g: too far for a default set of points (more than "
+                         "v = %d); give v explicitly (the range of the levels the expansion was fitted to)"
+                         % (min(x_top) - 0.5, _DEFAULT_V_LIMIT))
     n = 8 * (v_top + 1)
     s = np.linspace(0.0, math.sqrt(v_top + 0.5), n + 1)[1:]
     return s * s - 0.5
