@@ -361,7 +361,9 @@ def _parser():
     p.add_argument("--fix", action="append", metavar="NAME", help="keep this parameter at its starting value")
     p.add_argument("--vary", action="append", metavar="NAME",
                    help="vary this parameter (for one fixed by default, such as the Lennard-Jones n and m)")
-    p.add_argument("--method", choices=("wkb", "exact"), default="wkb", help="level calculation (default wkb)")
+    p.add_argument("--method", choices=("corrected", "wkb", "exact"), default="corrected",
+                   help="level calculation: corrected (default: WKB with exact per-level corrections, exact-level "
+                        "quality), wkb (first-order only, fast) or exact (every iteration exact)")
     scale = p.add_mutually_exclusive_group()
     scale.add_argument("--scale-uncertainties", dest="scale_uncertainties", action="store_const", const=True,
                        default=None, help="scale parameter uncertainties by the dimensionless standard error")
@@ -382,7 +384,9 @@ def _parser():
                                    "state of LiCs (two isotopologues), fit a Lennard-Jones potential, print the "
                                    "report and the predicted levels near dissociation. The data are made up, "
                                    "not measurements.")
-    p.add_argument("--method", choices=("wkb", "exact"), default="wkb", help="level calculation (default wkb)")
+    p.add_argument("--method", choices=("corrected", "wkb", "exact"), default="corrected",
+                   help="level calculation: corrected (default: WKB with exact per-level corrections, exact-level "
+                        "quality), wkb (first-order only, fast) or exact (every iteration exact)")
     p.add_argument("--near", type=_positive_int, default=10, metavar="N",
                    help="number of levels nearest dissociation to print (default 10)")
     p.add_argument("-o", "--output", metavar="JSON", help="also write the fit result as JSON")
