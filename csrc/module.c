@@ -671,10 +671,12 @@ static int fit_source(int method, wkb_radial **radial, wkb_level_source *source,
 
 static PyObject *py_fit_evaluate(PyObject *self, PyObject *args, PyObject *kwds)
 {
-    static char *kwlist[] = {"model", "params", "curve", "v", "rot", "mu", "energy_zero", "method", NULL};
+    static char *kwlist[] = {"model", "params", "curve", "v", "rot", "mu", "energy_zero", "method", "energy_tol",
+                             NULL};
     const char *model_name;
     PyObject *params_obj, *curve_obj, *v_obj, *rot_obj, *mu_obj, *result = NULL;
     int energy_zero = WKB_ZERO_MINIMUM, method = 0, status;
+    double energy_tol = 0; /* exact levels' target accuracy, cm-1 (0: the solver's default) */
     wkb_radial *radial = NULL;
     wkb_level_source source_store;
     const wkb_level_source *source = NULL;
@@ -686,14 +688,29 @@ static PyObject *py_fit_evaluate(PyObject *self, PyObject *args, PyObject *kwds)
     PyArrayObject *calc = NULL, *jac = NULL;
     size_t bad_row = 0;
 
-    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOOOO|ii", kwlist, &model_name, &params_obj, &curve_obj, &v_obj,
-                                     &rot_obj, &mu_obj, &energy_zero, &method))
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOOOO|iid", kwlist, &model_name, &params_obj, &curve_obj, &v_obj,
+                                     &rot_obj, &mu_obj, &energy_zero, &method, &energy_tol))
         return NULL;
+    if (!(isfinite(energy_tol) && energy_tol >= 0)) {
+        PyErr_SetString(PyExc_ValueError, "energy_tol must be a finite number > 0 (cm-1), or 0 for the default");
+        return NULL;
+    }
     if (parse_potential(model_name, params_obj, curve_obj, &pot) < 0)
         return NULL;
     if (parse_fit_arrays(v_obj, rot_obj, mu_obj, NULL, NULL, energy_zero, &a, &data) < 0 ||
         fit_source(method, &radial, &source_store, &source) < 0)
         goto cleanup;
+    if (radial && energy_tol > 0) {
+        /* the same source with a looser (or tighter) accuracy target */
+        wkb_radial_settings rs = wkb_radial_default_settings();
+        rs.energy_tol = energy_tol;
+        wkb_radial_free(radial);
+        if (!(radial = wkb_radial_alloc(&rs))) {
+            PyErr_SetString(PyExc_ValueError, "invalid energy_tol for the exact solver (or out of memory)");
+            goto cleanup;
+        }
+        source_store.ctx = radial;
+    }
     npy_intp dims[2] = {(npy_intp)data.n, (npy_intp)pot.model->n_params};
     if (!(calc = new_vector(dims[0])) || !(jac = (PyArrayObject *)PyArray_ZEROS(2, dims, NPY_DOUBLE, 0)))
         goto cleanup;
@@ -1217,7 +1234,8 @@ static PyMethodDef core_methods[] = {
      "wkb_orbits(model, params, curve, mu, rot, binding) -> dict of arrays: action (integral k dr), "
      "half_period (d action/dE, 1/cm-1), inner/outer turning points, Bv; at binding energies asymptote - E"},
     {"fit_evaluate", (PyCFunction)(void (*)(void))py_fit_evaluate, METH_VARARGS | METH_KEYWORDS,
-     "fit_evaluate(model, params, curve, v, rot, mu, energy_zero=0, method=0) -> (calc, jacobian[n, n_params]):\n"
+     "fit_evaluate(model, params, curve, v, rot, mu, energy_zero=0, method=0, energy_tol=0) -> (calc, "
+     "jacobian[n, n_params]):\n"
      "the fit's model levels (energy_zero 0 minimum, 1 asymptote, 2 lowest; method 0 WKB, 1 exact) and d calc/d p"},
     {"fit_run", (PyCFunction)(void (*)(void))py_fit_run, METH_VARARGS | METH_KEYWORDS,
      "fit_run(model, params, curve, v, rot, mu, energy, sigma, energy_zero, vary, lower, upper,\n"

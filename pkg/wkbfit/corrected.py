@@ -25,10 +25,12 @@ import numpy as np
 
 from . import _core
 
-__all__ = ["run_corrected", "run_with_unbound_rows", "DEFAULT_TOLERANCE", "MAX_REFRESHES"]
+__all__ = ["run_corrected", "run_with_unbound_rows", "LINEAR_STEP", "MAX_REFRESHES"]
 
-#: stop when the exact Gauss-Newton step is below this many standard deviations (each parameter)
-DEFAULT_TOLERANCE = 1e-3
+#: the exact Gauss-Newton step is taken (and the fit ends) once it is below this many standard
+#: deviations for every parameter: its second-order remainder is then ~LINEAR_STEP^2 times the
+#: problem's relative curvature, far below 0.01 standard deviation
+LINEAR_STEP = 0.3
 #: exact refreshes at most (each one exact evaluation)
 MAX_REFRESHES = 12
 
@@ -98,17 +100,24 @@ def exact_calc(model, params, curve, v, rot, mu, energy_zero, tolerance):
     return calc, error
 
 
-def run_corrected(args, *, tolerance=DEFAULT_TOLERANCE, max_refreshes=MAX_REFRESHES):
+def run_corrected(args, *, tolerance=LINEAR_STEP, max_refreshes=MAX_REFRESHES):
     """The corrected fit; args: a dict of the keyword arguments of _core.fit_run (method left out).
 
-    Returns the dict of _core.fit_run for the final point, with calc the EXACT levels there and
-    jacobian the semiclassical d calc/dp (the corrections' own parameter dependence is second
-    order: the uncertainties agree with the exact fit's within 1 %, tests/test_default_fit.py),
-    plus: refreshes (exact evaluations made), iterations (Levenberg-Marquardt iterations,
-    summed over the runs), history (per refresh: largest Gauss-Newton step of the corrected
-    problem in standard deviations, chi-square), inconsistency (per row: exact minus
-    corrected-semiclassical model at the final point, cm-1: the corrected fit's method
-    error), converged_refreshes (bool).
+    1. a first-order WKB run from the start;
+    2. a refresh: exact levels (no derivatives) at its point give the corrections
+       delta = E_exact - E_wkb, and a WKB run with them fixed;
+    3. one exact evaluation WITH the exact Jacobian <v|dV/dp|v> at the new point: the exact
+       Gauss-Newton step there. Below `tolerance` standard deviations (for every varied
+       parameter) the step is taken (the problem is linear to O(step^2) there) and the fit
+       ends with the exact Jacobian's covariance; otherwise the exact levels of this
+       evaluation become the new corrections and 2-3 repeat.
+
+    Returns the dict of _core.fit_run for the final point (calc = exact levels linearly
+    continued by the step, jacobian = the exact one) plus: refreshes (exact evaluations,
+    with and without derivatives), exact_jacobians, iterations (WKB Levenberg-Marquardt
+    iterations summed), history (per exact evaluation: kind, largest step in standard
+    deviations, chi-square), remainder (per row: the second-order remainder of the final
+    linear step, estimated from the WKB levels, cm-1), converged_refreshes.
     """
     a = dict(args)
     model, curve = a["model"], a["curve"]
@@ -117,32 +126,51 @@ def run_corrected(args, *, tolerance=DEFAULT_TOLERANCE, max_refreshes=MAX_REFRES
     offset = np.zeros(len(v))
     out = _core.fit_run(method=_WKB, offset=None, **a)
     iterations, n_eval, history = out["iterations"], out["n_eval"], []
-    refreshes, done = 0, False
-    while True:
+    refreshes = jacobians = 0
+    done = False
+    while out["stop"] == "converged":
         p = out["params"]
-        calc_ex, exact_error = exact_calc(model, p, curve, v, rot, mu, zero, tol_levels)
-        refreshes += 1
         var = [k for k, f in enumerate(a["vary"]) if f and not out["insensitive"][k]]
-        # the step that the exact residuals ask for, with the semiclassical Jacobian: zero at a
-        # self-consistent point (the last run converged on exactly these residuals)
-        step, sd, chi2 = _gauss_newton(calc_ex, out["jacobian"], energy, sigma, var)
-        worst = float(np.max(np.abs(step) / sd)) if len(var) else 0.0
-        history.append({"step_sd": worst, "chi_square": chi2})
-        inconsistency = calc_ex - out["calc"]
-        if worst < tolerance or refreshes >= max_refreshes or out["stop"] != "converged":
-            # a run that did not converge keeps its own status and message
-            done = worst < tolerance or out["stop"] != "converged"
+        if refreshes == 0:
+            # the pure WKB point is far from the exact minimum: first correct, cheaply
+            calc_ex, _ = exact_calc(model, p, curve, v, rot, mu, zero, tol_levels)
+            refreshes += 1
+            step, sd, chi2 = _gauss_newton(calc_ex, out["jacobian"], energy, sigma, var)
+            history.append({"kind": "levels", "step_sd": float(np.max(np.abs(step) / sd)), "chi_square": chi2})
+        else:
+            calc_ex, jac_ex = _core.fit_evaluate(model, p, curve, v, rot, mu, zero, _EXACT, tol_levels)
+            refreshes += 1
+            jacobians += 1
+            step, sd, chi2 = _gauss_newton(calc_ex, jac_ex, energy, sigma, var)
+            worst = float(np.max(np.abs(step) / sd)) if var else 0.0
+            history.append({"kind": "levels and Jacobian", "step_sd": worst, "chi_square": chi2})
+            if worst < tolerance:
+                done = True
+                break
+        if refreshes >= max_refreshes:
             break
-        offset = offset + inconsistency  # = calc_ex - E_wkb(p)
+        offset = offset + (calc_ex - out["calc"])  # = E_exact - E_wkb at p
         a["params"] = p
         out = _core.fit_run(method=_WKB, offset=offset, **a)
         iterations += out["iterations"]
         n_eval += out["n_eval"]
-    r = (calc_ex - energy) / sigma
     out = dict(out)
-    out.update(calc=calc_ex, chi_square=float(r @ r), iterations=iterations, n_eval=n_eval,
-               refreshes=refreshes, history=history, inconsistency=inconsistency, converged_refreshes=done,
-               level_tolerance=tol_levels, exact_error=exact_error)
+    if done:
+        full = np.zeros(len(a["vary"]))
+        full[var] = step
+        p_final = out["params"] + full
+        calc_final = calc_ex + jac_ex @ full
+        # the remainder of the linear step, from the WKB levels (same curvature to leading order)
+        wkb_p, _ = _core.fit_evaluate(model, out["params"], curve, v, rot, mu, zero, _WKB)
+        wkb_f, _ = _core.fit_evaluate(model, p_final, curve, v, rot, mu, zero, _WKB)
+        remainder = wkb_f - wkb_p - out["jacobian"] @ full
+        r = (calc_final - energy) / sigma
+        out.update(params=p_final, calc=calc_final, jacobian=jac_ex, chi_square=float(r @ r))
+    else:
+        remainder = np.full(len(v), np.nan)
+    out.update(iterations=iterations, n_eval=n_eval, refreshes=refreshes, exact_jacobians=jacobians,
+               history=history, remainder=remainder, converged_refreshes=done or out["stop"] != "converged",
+               level_tolerance=tol_levels)
     return out
 
 
@@ -199,11 +227,12 @@ def run_with_unbound_rows(run, args, n_vary, max_rounds=20):
         if now.all():
             full = dict(args)
             full["params"] = params
-            notes.append("the %d level%s not bound by the starting potential became bound and were brought in; the "
-                         "final fit uses every level" % (start_missing, "" if start_missing == 1 else "s"))
+            notes.append("the %d level%s not bound by the starting potential became bound and %s brought in; the "
+                         "final fit uses every level" % (start_missing, "" if start_missing == 1 else "s",
+                                                         "was" if start_missing == 1 else "were"))
             return run(full), notes
         if np.array_equal(now, bound):
-            raise _Unreachable(now, int(np.count_nonzero(now)), False, params)
+            raise _Unreachable(now, int(np.count_nonzero(now)), False, params, out["stop"])
         bound = now
     raise _Unreachable(bound, int(np.count_nonzero(bound)), False, params)
 
@@ -211,8 +240,9 @@ def run_with_unbound_rows(run, args, n_vary, max_rounds=20):
 class _Unreachable(ValueError):
     """The potential (after fitting the bound rows) does not bind every row."""
 
-    def __init__(self, bound, n_bound, at_start, params):
+    def __init__(self, bound, n_bound, at_start, params, stop="converged"):
         super().__init__("unreachable")
+        self.stop = stop
         self.bound = bound
         self.n_bound = n_bound
         self.at_start = at_start

@@ -314,6 +314,11 @@ def _unreachable_message(err, obs, rows, potential):
                 "unbound: %s%s. Start from a deeper or wider well (larger De, or a smaller a / larger re, e.g. "
                 "De from a Birge-Sponer or LeRoy-Bernstein estimate of the data)" % (
                     potential, err.n_bound, shown, more))
+    if err.stop != "converged":
+        return ("the data's levels %s%s are not bound by the starting potential %r, and the fit of the %d bound "
+                "levels stopped before converging (%s) at a potential that does not bind them either: start closer "
+                "to the data (a deeper well, larger De, with the other parameters near their expected values)"
+                % (shown, more, potential, err.n_bound, err.stop))
     return ("the data's levels %s%s stay unbound: fitting the %d bound levels from %r leads to a potential that "
             "does not bind them. The model cannot reach these levels from this start: start from a deeper well "
             "(larger De), check their v assignment, or leave them out" % (shown, more, err.n_bound, potential))
@@ -576,7 +581,11 @@ class FitResult:
         isotopologue: a label (its fitted reduced mass, or one from the mass table); mu: a
         reduced mass in u (or a pair of isotopes); with neither, the fit's only isotopologue.
         J: rotational quantum number (integer >= 0).
-        Uncertainties come from the covariance and the Jacobian dE/dp (linear propagation).
+        Uncertainties come from the covariance and the Jacobian dE/dp (linear propagation), with
+        each level's method error (`method_error`: |WKB - exact| for method "wkb", the exact
+        solver's error estimate otherwise) added in quadrature. Levels are exact levels unless the
+        fit's method is "wkb". v_th (the quantum threshold number) and quasibound levels are not
+        computed yet (None): they come with the matched-end-phase levels.
         Returns a Prediction: levels, binding energies, spacings dG(v+1/2), D0, vD and the
         number of bound levels, each with its uncertainty.
         """
@@ -608,15 +617,17 @@ class FitResult:
         else:
             notes.append("levels are exact levels of the fitted potential (radial Schroedinger equation); vD and "
                          "its uncertainty are semiclassical (first-order WKB)")
-        e_unc = self._propagate(G)
-        b_unc = self._propagate(dA[None, :] - G)
+        merr, merr00, note = _method_error.prediction_method_errors(self.method, self.potential, mass, J, E, E00)
+        notes.append(note)
+        e_unc = np.hypot(self._propagate(G), merr)
+        b_unc = np.hypot(self._propagate(dA[None, :] - G), merr)
         if len(E) > 1:
             spacing = np.diff(E)
-            s_unc = self._propagate(np.diff(G, axis=0))
+            s_unc = np.hypot(self._propagate(np.diff(G, axis=0)), np.hypot(merr[1:], merr[:-1]))
         else:
             spacing, s_unc = np.zeros(0), np.zeros(0)
         D0 = asym - E00
-        D0_unc = float(self._propagate((dA - G00)[None, :])[0]) if np.isfinite(D0) else math.nan
+        D0_unc = float(np.hypot(self._propagate((dA - G00)[None, :])[0], merr00)) if np.isfinite(D0) else math.nan
         vD = res["vD"]
         dvD = res["dvD_dp"]
         if np.all(np.isfinite(dvD[self._gradient_covariance()[0]])):
@@ -624,9 +635,13 @@ class FitResult:
         else:
             vD_unc = math.nan
             notes.append("the uncertainty of vD could not be computed (a perturbed potential is invalid)")
-        return Prediction(E, e_unc, asym - E, b_unc, spacing, s_unc, J=J, mu=mass, isotopologue=label,
+        pred = Prediction(E, e_unc, asym - E, b_unc, spacing, s_unc, J=J, mu=mass, isotopologue=label,
                           D0=D0, D0_uncertainty=D0_unc, vD=vD, vD_uncertainty=vD_unc, potential=self.potential,
                           method=self.method, notes=notes)
+        pred.method_error = _frozen(merr)
+        # hooks for the matched-end-phase levels: the quantum threshold number and quasibound levels
+        pred.v_th, pred.v_th_uncertainty, pred.quasibound = None, None, None
+        return pred
 
     # -- reports ------------------------------------------------------------------------
     def report(self):

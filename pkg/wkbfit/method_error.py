@@ -2,9 +2,8 @@
 
 After every fit, each fitted level gets a method error (cm-1), the error of the level
 calculation the fit used, in the data's energy zero:
-  "corrected"  |E_exact - (E_wkb + delta)| at the final point: the inconsistency of the
-               semiclassical model with its exact corrections left after the last refresh
-               (the final residuals themselves are exact levels);
+  "corrected"  the final levels are exact levels continued by the last (small) exact
+               Gauss-Newton step: its second-order remainder, with the exact solver's accuracy;
   "wkb"        |E_wkb - E_exact| from one exact evaluation at the final point: the bias of
                first-order WKB, which the fit cannot see;
   "exact"      the exact solver's own error estimate (one extra pass of exact levels without
@@ -34,9 +33,10 @@ def row_method_errors(method, args, out):
     level tables that carry their own method_error (matched end phases) plug in here."""
     from .corrected import exact_calc, exact_tolerance
     if method == "corrected":
-        err = np.hypot(np.abs(np.asarray(out["inconsistency"], dtype=float)), out["exact_error"])
-        return err, ("method error = exact minus corrected-semiclassical level after the last of %d exact "
-                     "refreshes, with the exact solver's error estimate in quadrature" % out["refreshes"])
+        err = np.hypot(np.abs(np.asarray(out["remainder"], dtype=float)), out["level_tolerance"])
+        return err, ("method error = the second-order remainder of the final exact Gauss-Newton step (after %d "
+                     "exact evaluations), with the exact levels' target accuracy %.1e cm-1 (1e-3 of the smallest "
+                     "uncertainty) in quadrature" % (out["refreshes"], out["level_tolerance"]))
     try:
         calc_ex, exact_err = exact_calc(args["model"], args["params"], args["curve"], args["v"], args["rot"],
                                         args["mu"], args["energy_zero"], exact_tolerance(args["sigma"]))
@@ -79,6 +79,35 @@ def attach(result, rows, out, args=None):
             "at %s): %s. Use method='exact' for these data" % (
                 result.method, len(flagged), "" if len(flagged) == 1 else "s", FLAG_FRACTION, ratio[worst],
                 level_name(obs, worst), level_list(obs, flagged)))
+
+
+def prediction_method_errors(method, potential, mu, J, energy, E00):
+    """Method errors of predicted levels v = 0..len(energy)-1 at J and of the level v=0, J=0:
+    (array, scalar, note). One exact pass (levels without derivatives)."""
+    model, params, curve = potential._core_args()
+    n = len(energy)
+    try:
+        res = _core.exact_levels(model, params, curve, float(mu), np.array([J], dtype=np.intc), None)
+        res0 = res if J == 0 else _core.exact_levels(model, params, curve, float(mu), np.array([0], dtype=np.intc),
+                                                     np.array([0], dtype=np.intc))
+    except ValueError as err:
+        return np.zeros(n), 0.0, "method errors of the predictions not available (%s)" % err
+    ex, ex_err = res["energy"], res["error"]
+    merr = np.full(n, math.nan)
+    m = min(n, len(ex))
+    if method == "wkb":
+        merr[:m] = np.hypot(np.asarray(energy[:m]) - ex[:m], ex_err[:m])
+        merr00 = float(math.hypot(E00 - res0["energy"][0], res0["error"][0]))
+        note = "uncertainties include each level's method error |WKB - exact| in quadrature"
+    else:
+        merr[:m] = ex_err[:m]
+        merr00 = float(res0["error"][0])
+        note = "uncertainties include the exact solver's error estimate of each level in quadrature"
+    if m < n:
+        # a WKB level above the last exact one: its whole binding energy is the error
+        merr[m:] = np.abs(potential.asymptote - np.asarray(energy[m:]))
+        note += "; WKB levels v >= %d have no exact counterpart (their binding energy counts as the error)" % m
+    return merr, merr00, note
 
 
 def level_name(obs, i):
