@@ -122,6 +122,8 @@ static int check_data(const wkb_fit_data *d, wkb_error *err)
             return wkb_fail(err, WKB_EINVAL, "row %zu: reduced mass %g u is invalid", i + 1, d->mu[i]);
         if (d->energy && !isfinite(d->energy[i]))
             return wkb_fail(err, WKB_EINVAL, "row %zu: energy %g is not finite", i + 1, d->energy[i]);
+        if (d->offset && !isfinite(d->offset[i]))
+            return wkb_fail(err, WKB_EINVAL, "row %zu: correction %g is not finite", i + 1, d->offset[i]);
         if (d->sigma && !(isfinite(d->sigma[i]) && d->sigma[i] > 0))
             return wkb_fail(err, WKB_EINVAL, "row %zu: uncertainty %g is invalid: it must be > 0", i + 1,
                             d->sigma[i]);
@@ -261,6 +263,8 @@ int wkb_fit_evaluate(wkb_fit_evaluator *ev, const wkb_potential *pot, double *ca
                     row[k] = dE[k] - ref_dE[k];
             break;
         }
+        if (d->offset)
+            calc[i] += d->offset[i]; /* fixed per-row correction (see wkb_fit_data) */
         if (!isfinite(calc[i]))
             return wkb_fail(err, WKB_ENUMERIC, "the calculated energy of row %zu is not finite", i + 1);
         if (row)

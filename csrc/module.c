@@ -725,10 +725,12 @@ static int fit_source(int method, wkb_radial **radial, wkb_level_source *source,
 
 static PyObject *py_fit_evaluate(PyObject *self, PyObject *args, PyObject *kwds)
 {
-    static char *kwlist[] = {"model", "params", "curve", "v", "rot", "mu", "energy_zero", "method", NULL};
+    static char *kwlist[] = {"model", "params", "curve", "v", "rot", "mu", "energy_zero", "method", "energy_tol",
+                             NULL};
     const char *model_name;
     PyObject *params_obj, *curve_obj, *v_obj, *rot_obj, *mu_obj, *result = NULL;
     int energy_zero = WKB_ZERO_MINIMUM, method = 0, status;
+    double energy_tol = 0; /* exact levels' target accuracy, cm-1 (0: the solver's default) */
     wkb_radial *radial = NULL;
     wkb_level_source source_store;
     const wkb_level_source *source = NULL;
@@ -740,14 +742,29 @@ static PyObject *py_fit_evaluate(PyObject *self, PyObject *args, PyObject *kwds)
     PyArrayObject *calc = NULL, *jac = NULL;
     size_t bad_row = 0;
 
-    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOOOO|ii", kwlist, &model_name, &params_obj, &curve_obj, &v_obj,
-                                     &rot_obj, &mu_obj, &energy_zero, &method))
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOOOO|iid", kwlist, &model_name, &params_obj, &curve_obj, &v_obj,
+                                     &rot_obj, &mu_obj, &energy_zero, &method, &energy_tol))
         return NULL;
+    if (!(isfinite(energy_tol) && energy_tol >= 0)) {
+        PyErr_SetString(PyExc_ValueError, "energy_tol must be a finite number > 0 (cm-1), or 0 for the default");
+        return NULL;
+    }
     if (parse_potential(model_name, params_obj, curve_obj, &pot) < 0)
         return NULL;
     if (parse_fit_arrays(v_obj, rot_obj, mu_obj, NULL, NULL, energy_zero, &a, &data) < 0 ||
         fit_source(method, &radial, &source_store, &source) < 0)
         goto cleanup;
+    if (radial && energy_tol > 0) {
+        /* the same source with a looser (or tighter) accuracy target */
+        wkb_radial_settings rs = wkb_radial_default_settings();
+        rs.energy_tol = energy_tol;
+        wkb_radial_free(radial);
+        if (!(radial = wkb_radial_alloc(&rs))) {
+            PyErr_SetString(PyExc_ValueError, "invalid energy_tol for the exact solver (or out of memory)");
+            goto cleanup;
+        }
+        source_store.ctx = radial;
+    }
     npy_intp dims[2] = {(npy_intp)data.n, (npy_intp)pot.model->n_params};
     if (!(calc = new_vector(dims[0])) || !(jac = (PyArrayObject *)PyArray_ZEROS(2, dims, NPY_DOUBLE, 0)))
         goto cleanup;
@@ -793,11 +810,12 @@ static PyObject *py_fit_run(PyObject *self, PyObject *args, PyObject *kwds)
 {
     static char *kwlist[] = {"model", "params", "curve", "v", "rot", "mu", "energy", "sigma", "energy_zero",
                              "vary", "lower", "upper", "max_iterations", "xtol", "gtol", "decrease_tol", "method",
-                             NULL};
+                             "offset", NULL};
     const char *model_name;
     PyObject *params_obj, *curve_obj, *v_obj, *rot_obj, *mu_obj, *energy_obj, *sigma_obj, *vary_obj, *lower_obj,
-        *upper_obj, *result = NULL;
+        *upper_obj, *offset_obj = Py_None, *result = NULL;
     int energy_zero, status, method = 0;
+    PyArrayObject *offset = NULL; /* per-row correction added to calc (None: none) */
     Py_ssize_t max_iterations = -1;
     wkb_radial *radial = NULL;
     wkb_level_source source_store;
@@ -811,10 +829,10 @@ static PyObject *py_fit_run(PyObject *self, PyObject *args, PyObject *kwds)
     wkb_error err = {0};
     PyArrayObject *vary = NULL, *lower = NULL, *upper = NULL, *calc = NULL, *jac = NULL, *best = NULL;
 
-    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOOOOOOiOOO|ndddi", kwlist, &model_name, &params_obj,
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOOOOOOiOOO|ndddiO", kwlist, &model_name, &params_obj,
                                      &curve_obj, &v_obj, &rot_obj, &mu_obj, &energy_obj, &sigma_obj, &energy_zero,
                                      &vary_obj, &lower_obj, &upper_obj, &max_iterations, &settings.xtol,
-                                     &settings.gtol, &settings.decrease_tol, &method))
+                                     &settings.gtol, &settings.decrease_tol, &method, &offset_obj))
         return NULL;
     if (max_iterations >= 0)
         settings.max_iterations = (size_t)max_iterations;
@@ -823,6 +841,16 @@ static PyObject *py_fit_run(PyObject *self, PyObject *args, PyObject *kwds)
     if (parse_fit_arrays(v_obj, rot_obj, mu_obj, energy_obj, sigma_obj, energy_zero, &a, &data) < 0 ||
         fit_source(method, &radial, &source_store, &source) < 0)
         goto cleanup;
+    if (offset_obj != Py_None) {
+        if (!(offset = as_double_array(offset_obj, "offset", 1)))
+            goto cleanup;
+        if ((size_t)PyArray_SIZE(offset) != data.n) {
+            PyErr_Format(PyExc_ValueError, "offset has %zd entries but v has %zu", (Py_ssize_t)PyArray_SIZE(offset),
+                         data.n);
+            goto cleanup;
+        }
+        data.offset = PyArray_DATA(offset);
+    }
     const size_t np = pot.model->n_params;
     if (!(vary = (PyArrayObject *)PyArray_FROM_OTF(vary_obj, NPY_INT, NPY_ARRAY_IN_ARRAY | NPY_ARRAY_FORCECAST)) ||
         !(lower = as_double_array(lower_obj, "lower", 1)) || !(upper = as_double_array(upper_obj, "upper", 1)))
@@ -880,6 +908,7 @@ static PyObject *py_fit_run(PyObject *self, PyObject *args, PyObject *kwds)
 cleanup:
     fit_arrays_release(&a);
     wkb_radial_free(radial);
+    Py_XDECREF(offset);
     Py_XDECREF(vary);
     Py_XDECREF(lower);
     Py_XDECREF(upper);
@@ -1259,11 +1288,12 @@ static PyMethodDef core_methods[] = {
      "wkb_orbits(model, params, curve, mu, rot, binding) -> dict of arrays: action (integral k dr), "
      "half_period (d action/dE, 1/cm-1), inner/outer turning points, Bv; at binding energies asymptote - E"},
     {"fit_evaluate", (PyCFunction)(void (*)(void))py_fit_evaluate, METH_VARARGS | METH_KEYWORDS,
-     "fit_evaluate(model, params, curve, v, rot, mu, energy_zero=0, method=0) -> (calc, jacobian[n, n_params]):\n"
+     "fit_evaluate(model, params, curve, v, rot, mu, energy_zero=0, method=0, energy_tol=0) -> (calc, "
+     "jacobian[n, n_params]):\n"
      "the fit's model levels (energy_zero 0 minimum, 1 asymptote, 2 lowest; method 0 WKB, 1 exact) and d calc/d p"},
     {"fit_run", (PyCFunction)(void (*)(void))py_fit_run, METH_VARARGS | METH_KEYWORDS,
      "fit_run(model, params, curve, v, rot, mu, energy, sigma, energy_zero, vary, lower, upper,\n"
-     "max_iterations=-1, xtol, gtol, decrease_tol, method=0) -> dict (params, calc, jacobian, chi_square, iterations,\n"
+     "max_iterations=-1, xtol, gtol, decrease_tol, method=0, offset=None) -> dict (params, calc, jacobian, chi_square, iterations,\n"
      "n_eval, n_infeasible, stop, test, predicted_decrease, last_infeasible); a failure at the start raises\n"
      "ValueError(message, row index)"},
     {"exact_levels", (PyCFunction)(void (*)(void))py_exact_levels, METH_VARARGS | METH_KEYWORDS,

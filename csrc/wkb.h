@@ -337,6 +337,10 @@ typedef struct {
     const double *energy; /* observed energy, cm-1, in the zero energy_zero */
     const double *sigma;  /* one-sigma uncertainty, cm-1, > 0 */
     int energy_zero;      /* enum wkb_energy_zero */
+    /* per-row additive correction to calc (cm-1, in the data's zero; NULL for none): the
+       semiclassical fit with exact corrections adds E_exact - E_wkb here, held fixed
+       during one run (its parameter dependence is left out of the Jacobian) */
+    const double *offset;
 } wkb_fit_data;
 
 /* A source of levels other than first-order WKB (such as the exact solver): prepared once

@@ -13,8 +13,8 @@ CELLS = [
 
 **INVENTED DATA.** The levels used here belong to an *invented* electronic state of LiCs, "measured" by an
 *invented* laboratory. The isotope labels (7Li133Cs, 6Li133Cs) are real only so that the reduced masses come from
-real atomic masses; every energy is made up (WKB levels of an invented Lennard-Jones potential plus seeded noise,
-see `wkbfit/demo.py`). They are **not** measurements of LiCs.
+real atomic masses; every energy is made up (exact levels of an invented Morse/long-range potential with a C6
+dispersion tail, plus seeded noise, see `wkbfit/demo.py`). They are **not** measurements of LiCs.
 
 The job: term values with their uncertainties in, a potential that reproduces them within those uncertainties out,
 with parameter uncertainties and predictions of the levels nobody measured, above all near dissociation.
@@ -41,13 +41,28 @@ observed.to_dataframe().head(10)"""),
     ("md", """\
 ## The fit
 
-A Lennard-Jones (n, 6) potential: the well depth `De`, the equilibrium distance `re` and the repulsive exponent `n`
-vary; the attractive exponent stays at `m = 6`, the dispersion tail. Both isotopologues share one potential, each
-with its own reduced mass; the J > 0 levels include the centrifugal term."""),
+A Morse/long-range (MLR) potential: the well depth `De`, the equilibrium distance `re` and the exponent
+coefficients `beta0`, `beta1` vary; the dispersion coefficient `C6` stays at its (invented) theoretical value. Both
+isotopologues share one potential, each with its own reduced mass; the J > 0 levels include the centrifugal term.
+
+The default method gives exact-level quality at semiclassical cost: first-order WKB iterations with per-level
+exact corrections, refreshed until the exact problem's Gauss-Newton step is negligible. The report's *Method
+error* section compares each level's method error with its uncertainty."""),
     ("code", """\
-start = wkbfit.LennardJones(De=4000.0, re=4.0, n=12, m=6)
-result = wkbfit.fit(start, observed, vary=["De", "re", "n"])
+start = demo.demo_start_potential()
+result = wkbfit.fit(start, observed, vary=list(demo.DEMO_VARY))
 print(result.report())"""),
+    ("md", """\
+The same data fitted with first-order WKB alone (`method="wkb"`): faster, but its levels are off by more than
+their uncertainties, and the fit says so (a warning naming the levels, and the report's method-error section)."""),
+    ("code", """\
+import warnings
+with warnings.catch_warnings(record=True) as caught:
+    warnings.simplefilter("always")
+    first_order = wkbfit.fit(start, observed, vary=list(demo.DEMO_VARY), method="wkb")
+print("first-order WKB: sqrt(chi2/dof) = %.2f, %d levels with method error > 0.1 sigma"
+      % (first_order.standard_error, len(first_order.method_error_flagged)))
+print("warning:", str(caught[0].message)[:300], "...")"""),
     ("code", """\
 result  # the HTML view"""),
     ("md", """\
@@ -61,13 +76,24 @@ for label, prediction in predictions.items():
     print(prediction.to_text(last=10))
     print()"""),
     ("md", """\
+Near dissociation, the precisely measured last levels of 7Li133Cs can also be fitted on their own with the
+LeRoy-Bernstein law, a near-dissociation expansion and (for levels bound by less than E_beta) the quantum threshold
+law; v_th is the true threshold quantum number."""),
+    ("code", """\
+label = "7Li133Cs"
+near = demo.DEMO_ISOTOPOLOGUES[label]["near_threshold"]
+rows = [i for i in observed.rows_of(label) if observed.J[i] == 0 and observed.v[i] in near]
+nd = wkbfit.near_dissociation_fit(observed.v[rows], observed.energy[rows], observed.uncertainty[rows], 6,
+                                  mu=result.masses[label], corrections=2)
+print(nd.table())"""),
+    ("md", """\
 Because the data are invented we know the potential they came from, and can ask whether the quoted
-uncertainties are honest: the differences between the true and the predicted levels, in units of the
-predicted one-sigma uncertainty, should be of order one."""),
+uncertainties are honest: the differences between the true and the predicted levels (exact levels of the true
+potential), in units of the predicted one-sigma uncertainty, should be of order one."""),
     ("code", """\
 true_potential = demo.demo_true_potential()
 for label, prediction in predictions.items():
-    true_levels = wkbfit.levels(true_potential, result.masses[label])
+    true_levels = wkbfit.levels(true_potential, result.masses[label], method="exact")
     n = min(len(true_levels), prediction.n_bound)
     pulls = (true_levels.energy[:n] - prediction.energy[:n]) / prediction.energy_uncertainty[:n]
     print("%s: %d true bound levels, %d predicted; largest |true - predicted|/sigma = %.2f"

@@ -174,20 +174,25 @@ def test_demo_data_is_labelled_invented_and_realistic():
     true = demo.demo_true_potential()
     for label in obs.isotopologues:
         rows = obs.rows_of(label)
-        assert 20 <= len(rows) <= 40
+        near = demo.DEMO_ISOTOPOLOGUES[label]["near_threshold"]
+        band = [i for i in rows if obs.v[i] not in near or obs.J[i] != 0]
+        assert 20 <= len(rows) <= 50
         assert np.any(obs.J[rows] > 0)
         mu = obs.masses_by_isotopologue()[label]
-        # the highest measured level lies well below dissociation: below half the quantum number vD
-        assert obs.v[rows].max() < 0.5 * wkbfit.levels(true, mu).vD
-    assert obs.uncertainty.min() >= 0.005 and obs.uncertainty.max() <= 0.05
-    # the noise is what the header says: normalised deviations from the generating potential have
-    # unit spread (chi-square test at the 99.9 % level for 48 degrees of freedom: 22.9 .. 84.0, from the
-    # chi-square quantiles of scipy.stats)
+        # the measured band stops well below dissociation (below 0.6 vD); only the few precisely
+        # measured levels near threshold lie above it
+        assert obs.v[band].max() < 0.6 * wkbfit.levels(true, mu).vD
+        precise = [i for i in rows if obs.J[i] == 0 and obs.v[i] in near]
+        assert len(precise) == len(near)
+        assert np.all(obs.uncertainty[precise] == demo.DEMO_NEAR_THRESHOLD_SIGMA)
+    assert obs.uncertainty.min() >= 0.002 and obs.uncertainty.max() <= 0.05
+    # the noise is what the header says: normalised deviations from the EXACT levels of the generating
+    # potential have unit spread (chi-square test at the 99.9 % level, quantiles of scipy.stats)
     from scipy import stats
     calc = np.empty(len(obs))
     masses = obs.resolve_masses()
     for i in range(len(obs)):
-        calc[i] = wkbfit.levels(true, masses[i], v=int(obs.v[i]), J=int(obs.J[i])).energy[0]
+        calc[i] = wkbfit.levels(true, masses[i], v=int(obs.v[i]), J=int(obs.J[i]), method="exact").energy[0]
     chi2 = float(np.sum(((obs.energy - calc) / obs.uncertainty) ** 2))
     lo, hi = stats.chi2.ppf([0.0005, 0.9995], len(obs))
     assert lo < chi2 < hi
@@ -287,9 +292,12 @@ def test_demo_runs_the_fit(capsys, tmp_path):
     # 3 standard deviations (seeded data, so this is one draw, not a statistic)
     for name in demo.DEMO_VARY:
         p = result.params[name]
-        assert abs(p.value - demo.DEMO_TRUE_PARAMS[name]) < 3 * p.uncertainty, (name, p.value, p.uncertainty)
-    assert 0.7 < result.standard_error < 1.3  # noise as stated: chi2/dof near 1 (45 dof)
-    assert result.params["m"].vary is False
+        assert abs(p.value - demo.DEMO_TRUE_VALUES[name]) < 3 * p.uncertainty, (name, p.value, p.uncertainty)
+    assert 0.7 < result.standard_error < 1.3  # noise as stated: chi2/dof near 1 (69 dof)
+    assert result.params["C6"].vary is False
+    # the default (corrected) method, the method-error check and the near-dissociation table are shown
+    assert result.method == "corrected" and not result.method_error_flagged
+    assert "Method error against the data" in out and "Near-dissociation fits" in out and "v_th" in out
 
 
 def test_fit_unlabelled_data_with_mu_and_predictions(capsys, tmp_path):

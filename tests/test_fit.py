@@ -5,6 +5,7 @@ Synthetic data are levels of known potentials (computed by wkbfit.levels) plus s
 noise of known sigma; the checks compare the fit against those known parameters, against
 finite differences, against scipy.optimize.least_squares, and against published constants.
 """
+import functools
 import json
 import math
 
@@ -12,8 +13,13 @@ import numpy as np
 import pytest
 
 import wkbfit
-from wkbfit import HBAR2_OVER_2U, FitResult, LennardJones, Morse, _core, fit, read_levels
+from wkbfit import HBAR2_OVER_2U, FitResult, LennardJones, Morse, _core, read_levels
 from wkbfit.fitting import FitWarning
+
+# These tests exercise the fit engine with first-order WKB levels on data made from WKB levels
+# (the model is then exact for its data): method "wkb" unless a test says otherwise. The default
+# fit (WKB with exact corrections) is tested on exact-solver data in tests/test_default_fit.py.
+fit = functools.partial(wkbfit.fit, method="wkb")
 
 MU_LICS = wkbfit.reduced_mass("7Li", "133Cs")
 
@@ -370,10 +376,11 @@ def test_bad_input_gives_clear_errors_and_leaves_user_data_unchanged():
     two = {"v": [0, 1], "energy": [100.0, 300.0], "uncertainty": [0.1, 0.1]}
     with pytest.raises(ValueError, match="2 fitted levels cannot determine 3 varied parameters"):
         fit(start, two, MU_LICS)
-    # a starting potential that binds fewer levels than the data ask for
-    shallow = Morse(De=250.0, re=3.67, a=0.6)  # binds v = 0..16 only (vD = 16.07)
-    with pytest.raises(ValueError, match=r"data row \d+ \(v=17, J=\d+\).*above the last bound level.*start from a deeper"):
-        fit(shallow, obs, MU_LICS)
+    # a starting potential that binds fewer levels than the data's varied parameters need
+    hopeless = Morse(De=2.0, re=3.67, a=0.6)  # binds v = 0 only
+    with pytest.raises(ValueError, match=r"binds only 1 of the data's levels, fewer than the varied parameters; "
+                                         r"unbound: v=1.*Start from a deeper"):
+        fit(hopeless, obs, MU_LICS)
     # each case of the data reader surfaces through fit as well
     with pytest.raises(ValueError, match="uncertainty"):
         fit(start, {"v": [0, 1, 2, 3], "energy": [1.0, 2.0, 3.0, 4.0], "uncertainty": [0.1, 0.0, 0.1, 0.1]}, MU_LICS)

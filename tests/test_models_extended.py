@@ -219,7 +219,7 @@ def test_mlr_fit_recovers_parameters():
     # (Gauss-Markov); 3 sigma is common practice. Levels of a known MLR plus seeded noise (sigma known).
     true = wkbfit.MLR(De=3000.0, re=3.0, C6=2e5, betas=[0.3, 0.1, 0.05])
     mu, sigma, vs = 10.0, 0.01, list(range(16))
-    exact = np.concatenate([wkbfit.levels(true, mu, v=vs, J=J).energy for J in (0, 8)])
+    exact = np.concatenate([wkbfit.levels(true, mu, v=vs, J=J, method="exact").energy for J in (0, 8)])
     rng = np.random.default_rng(2024)
     data = {"v": vs * 2, "J": [0] * 16 + [8] * 16, "energy": exact + rng.normal(0.0, sigma, len(exact)),
             "uncertainty": np.full(len(exact), sigma)}

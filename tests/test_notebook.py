@@ -33,7 +33,8 @@ def test_demo_notebook_runs(monkeypatch):
     text = "".join(o.get("text", "") for o in outputs if o.output_type == "stream")
     assert "INVENTED DEMO DATA" in text
     assert "Status: converged" in text                     # the fit report
-    assert "Predicted levels of LennardJones" in text      # predictions near dissociation
+    assert "Predicted levels of MLR" in text               # predictions near dissociation
+    assert "Near-dissociation fits" in text and "Method error against the data" in text
     images = [o for o in outputs if "image/png" in o.get("data", {})]
     assert images, "the notebook draws the potential with its levels and the normalised residuals"
 

@@ -6,11 +6,14 @@ the demo shows how a real data file is read; the electronic state, its potential
 and every number are made up. They are NOT measurements of the LiCs molecule and must never be
 used as reference values for it.
 
-The scenario: the "demo state" of LiCs, an invented Lennard-Jones(10, 6) well, as measured by the
-invented "Laboratory of Imaginary Spectroscopy". Its levels are the WKB levels of that potential
-plus seeded Gaussian noise of the stated one-sigma uncertainty. The measured levels reach v = 15 of
-the about 42 bound levels, about a quarter of the well depth below dissociation, so the levels near
-dissociation are predictions of the fit, not interpolations.
+The scenario: the "demo state" of LiCs, an invented Morse/long-range (MLR) curve with a realistic
+-C6/r^6 dispersion tail, as measured by the invented "Laboratory of Imaginary Spectroscopy". Its
+levels are EXACT levels of that potential (the radial Schroedinger equation, wkbfit's exact solver)
+plus seeded Gaussian noise of the stated one-sigma uncertainty: not WKB levels, so a first-order WKB
+fit of them shows its bias (about 0.15 cm-1 at v = 0), as real data would. The measured band
+reaches v = 24 of the 42 bound levels of 7Li133Cs; a few levels near threshold (v = 33-40, bound by
+104 to 0.26 cm-1) were "measured" more precisely (2 mcm-1), as a photoassociation-style experiment
+would, for the near-dissociation analysis.
 
 Regenerate the shipped file with `python -m wkbfit.demo` (it rewrites wkbfit/data/demo_levels.csv).
 """
@@ -20,29 +23,38 @@ import numpy as np
 
 from .levels import levels
 from .masses import parse_isotopologue, reduced_mass
-from .potentials import LennardJones
+from .potentials import MLR
 
-__all__ = ["DEMO_SEED", "DEMO_TRUE_PARAMS", "DEMO_START_PARAMS", "DEMO_VARY", "DEMO_ISOTOPOLOGUES",
+__all__ = ["DEMO_SEED", "DEMO_TRUE_PARAMS", "DEMO_TRUE_VALUES", "DEMO_NEAR_THRESHOLD_SIGMA", "DEMO_START_PARAMS", "DEMO_VARY", "DEMO_ISOTOPOLOGUES",
            "demo_data_path", "demo_true_potential", "demo_start_potential", "make_demo_data",
            "write_demo_csv", "load_demo_levels", "DEMO_BANNER"]
 
 #: the seed of the shipped data set
 DEMO_SEED = 20250611
 
-#: the invented "true" potential: Lennard-Jones (n, m) with minimum 0 at re and asymptote De
-DEMO_TRUE_PARAMS = {"De": 4321.5, "re": 4.05, "n": 10.0, "m": 6.0}
+#: the invented "true" potential: an MLR with minimum 0 at re, asymptote De and the dispersion tail C6/r^6
+#: (C6 in cm-1 A^6, of the size of an alkali pair's; invented like everything here)
+DEMO_TRUE_PARAMS = {"De": 5875.0, "re": 3.67, "C6": 1.52e7, "betas": [-0.35, 0.08], "r_ref": 4.2}
 
-#: where the demo fit starts (a guess a user might make) and what it varies (the m = 6 dispersion tail is kept)
-DEMO_START_PARAMS = {"De": 4000.0, "re": 4.0, "n": 12.0, "m": 6.0}
-DEMO_VARY = ("De", "re", "n")
+#: where the demo fit starts (a guess a user might make) and what it varies (C6 is held at its "theoretical"
+#: value, as common practice does)
+DEMO_START_PARAMS = {"De": 5700.0, "re": 3.70, "C6": 1.52e7, "betas": [-0.3, 0.05], "r_ref": 4.2}
+DEMO_VARY = ("De", "re", "beta0", "beta1")
+
+#: the true values by parameter name (betas spelled out), for comparisons
+DEMO_TRUE_VALUES = {"De": 5875.0, "re": 3.67, "C6": 1.52e7, "beta0": -0.35, "beta1": 0.08, "r_ref": 4.2}
 
 #: the two invented measurements, per isotopologue: J=0 band v = 0..v_max with some levels not observed,
 #: and rotational levels (J, list of v)
 DEMO_ISOTOPOLOGUES = {
-    "7Li133Cs": {"v_max": 15, "missing": 2, "rotational": {5: (0, 1, 2, 4), 12: (0, 3, 6, 9, 12),
-                                                            30: (1, 5, 11, 15)}},
-    "6Li133Cs": {"v_max": 14, "missing": 2, "rotational": {9: (0, 2, 4, 7, 10), 28: (3, 8, 12)}},
+    "7Li133Cs": {"v_max": 24, "missing": 3, "rotational": {5: (0, 1, 2, 4), 12: (0, 3, 6, 9, 12, 18),
+                                                            30: (1, 5, 11, 15, 20)},
+                 "near_threshold": (33, 34, 35, 36, 37, 38, 39, 40)},
+    "6Li133Cs": {"v_max": 20, "missing": 2, "rotational": {9: (0, 2, 4, 7, 10, 16), 28: (3, 8, 12)},
+                 "near_threshold": ()},
 }
+#: one-sigma uncertainty of the precisely measured levels near threshold, cm-1
+DEMO_NEAR_THRESHOLD_SIGMA = 0.002
 
 DEMO_BANNER = ("INVENTED DEMO DATA: an invented electronic state of LiCs 'measured' by an invented laboratory. "
                "Every number is made up; these are not measurements of LiCs.")
@@ -53,8 +65,10 @@ Molecule and state: an INVENTED electronic state ("demo state") of LiCs. The iso
 real only so that reduced masses come from the AME2020 atomic masses in wkbfit.masses; the state,
 its potential and all numbers below are made up and are not measurements of LiCs.
 Laboratory: the INVENTED "Laboratory of Imaginary Spectroscopy" (it does not exist).
-How made: WKB levels of the invented potential LennardJones(De={De} cm-1, re={re} A, n={n}, m={m})
-plus seeded Gaussian noise with the one-sigma uncertainty given on each line.
+How made: EXACT levels (radial Schroedinger equation) of the invented potential
+MLR(De={De} cm-1, re={re} A, C6={C6:g} cm-1 A^6, betas={betas}, r_ref={r_ref} A, p=5, q=3)
+plus seeded Gaussian noise with the one-sigma uncertainty given on each line; 7Li133Cs v=33-40 (J=0)
+near threshold were 'measured' more precisely.
 Columns: isotopologue; v; J; energy = term value above the potential minimum (cm-1);
 uncertainty = one standard deviation (cm-1).  Read with wkbfit.read_levels(path) (energy_zero='minimum').
 """
@@ -67,18 +81,18 @@ def demo_data_path():
 
 def demo_true_potential():
     """The invented potential the demo levels were generated from."""
-    return LennardJones(**DEMO_TRUE_PARAMS)
+    return MLR(**DEMO_TRUE_PARAMS)
 
 
 def demo_start_potential():
     """The starting guess of the demo fit."""
-    return LennardJones(**DEMO_START_PARAMS)
+    return MLR(**DEMO_START_PARAMS)
 
 
 def make_demo_data(seed=DEMO_SEED):
     """The invented demo levels as a dict of columns (isotopologue, v, J, energy, uncertainty).
 
-    Levels: WKB levels of `demo_true_potential()` for each isotopologue of DEMO_ISOTOPOLOGUES;
+    Levels: exact levels of `demo_true_potential()` for each isotopologue of DEMO_ISOTOPOLOGUES;
     uncertainties drawn from 0.005-0.05 cm-1 (larger for higher and rotating levels); energies
     rounded to 1e-4 cm-1 after adding Gaussian noise of that sigma (numpy default_rng(seed)).
     """
@@ -93,12 +107,16 @@ def make_demo_data(seed=DEMO_SEED):
         selected = [(int(v), 0) for v in vs if v not in gone]
         for J, v_list in plan["rotational"].items():
             selected.extend((int(v), int(J)) for v in v_list)
+        selected.extend((int(v), 0) for v in plan["near_threshold"])
         for J in sorted({J for _, J in selected}):
             v_here = [v for v, JJ in selected if JJ == J]
-            table = levels(pot, mu, v=v_here, J=J)
+            table = levels(pot, mu, v=v_here, J=J, method="exact")
             for v, energy in zip(table.v.tolist(), table.energy.tolist()):
-                # low levels: high-resolution work (5-10 mcm-1); upper levels and rotating levels: coarser
-                if J == 0 and v < 6:
+                # low levels: high-resolution work (5-10 mcm-1); upper levels and rotating levels: coarser;
+                # the levels near threshold: precise (photoassociation-style)
+                if J == 0 and v in plan["near_threshold"]:
+                    sigma = DEMO_NEAR_THRESHOLD_SIGMA
+                elif J == 0 and v < 6:
                     sigma = rng.choice([0.005, 0.008, 0.01])
                 elif J == 0 and v < 12:
                     sigma = rng.choice([0.01, 0.015, 0.02])
@@ -120,7 +138,7 @@ def write_demo_csv(path=None, seed=DEMO_SEED):
     lines = ["# " + line for line in header.splitlines()]
     lines.append("isotopologue,v,J,energy,uncertainty")
     for i in range(len(cols["v"])):
-        lines.append("%s,%d,%d,%.4f,%.3f" % (cols["isotopologue"][i], cols["v"][i], cols["J"][i],
+        lines.append("%s,%d,%d,%.4f,%g" % (cols["isotopologue"][i], cols["v"][i], cols["J"][i],
                                             cols["energy"][i], cols["uncertainty"][i]))
     tmp = path + ".tmp"
     with open(tmp, "w", encoding="utf-8") as handle:

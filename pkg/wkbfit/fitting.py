@@ -20,6 +20,8 @@ from . import potentials as _potentials
 from .masses import as_reduced_mass, parse_isotopologue, reduced_mass
 from .observed import read_levels
 from . import reports as _reports
+from . import corrected as _corrected
+from . import method_error as _method_error
 from .reports import _frozen, _atomic_write
 from .potentials import Potential
 
@@ -27,6 +29,13 @@ __all__ = ["fit", "FitResult", "Parameter", "Prediction", "FitWarning"]
 
 _ENERGY_ZERO_CODES = {"minimum": 0, "asymptote": 1, "lowest": 2}
 _METHOD_CODES = {"wkb": 0, "exact": 1}
+#: fit methods: "corrected" (the default: WKB iterations with exact per-level corrections), "wkb", "exact"
+FIT_METHODS = ("corrected", "wkb", "exact")
+
+
+def _level_code(method):
+    """Level source of a method's predictions: exact levels unless plain first-order WKB."""
+    return _METHOD_CODES["wkb" if method == "wkb" else "exact"]
 
 
 #: singular values of the column-normalised weighted Jacobian below this fraction of the
@@ -78,7 +87,7 @@ class Parameter:
 
 
 # ------------------------------------------------------------------------------ fit
-def fit(potential, observed, mu=None, *, method="wkb", vary=None, bounds=None, scale_uncertainties=True,
+def fit(potential, observed, mu=None, *, method="corrected", vary=None, bounds=None, scale_uncertainties=True,
         max_iterations=200):
     """Fit the parameters of `potential` to measured levels by weighted least squares.
 
@@ -97,9 +106,19 @@ def fit(potential, observed, mu=None, *, method="wkb", vary=None, bounds=None, s
                     J=0 themselves (energy 0 by definition) are shown but not fitted.
     mu: None (reduced masses from the isotopologue labels and the mass table), a number (one
         isotopologue), or a dict label -> reduced mass in u.
-    method: "wkb" (first-order WKB levels; the default) or "exact" (levels of the radial
-        Schroedinger equation, with the Jacobian <v|dV/dp|v> from the exact wavefunctions;
-        every iteration uses exact levels, about 20-30 times slower than WKB).
+    method: "corrected" (the default): exact-levels quality at semiclassical cost. Levenberg-
+        Marquardt iterations on first-order WKB levels plus per-level corrections E_exact - E_wkb,
+        held fixed during a run and refreshed by one exact evaluation until the exact problem's
+        Gauss-Newton step is below 1e-3 standard deviation (wkbfit.corrected); parameters,
+        uncertainties and residuals are those of the exact-levels fit. `refreshes` counts the
+        exact evaluations.
+        "wkb": first-order WKB levels only (fast; biased where WKB is not exact, which the
+        method-error check after the fit detects and warns about).
+        "exact": levels of the radial Schroedinger equation in every iteration, with the Jacobian
+        <v|dV/dp|v> from the exact wavefunctions (about 20-30 times slower than WKB).
+        After every fit each level's method error is compared with its uncertainty
+        (`method_error`, `method_error_flagged`); levels with method error > 0.1 sigma are named
+        in a warning and in the report.
     vary: None (every parameter except the class's `fixed_by_default`, e.g. the Lennard-Jones
         exponents), a dict name -> bool overriding those defaults, or a list of the names to vary.
     bounds: dict name -> (lower, upper), None for an open side. A bounded parameter is fitted
@@ -125,8 +144,9 @@ def fit(potential, observed, mu=None, *, method="wkb", vary=None, bounds=None, s
     if not names:
         raise ValueError("%r has no adjustable parameters: nothing to fit" % (potential,))
     obs = read_levels(observed)
-    if method not in ("wkb", "exact"):
-        raise ValueError("method=%r is not known; use 'wkb' (first-order WKB levels) or 'exact'" % (method,))
+    if method not in FIT_METHODS:
+        raise ValueError("method=%r is not known; use 'corrected' (the default: WKB with exact corrections), 'wkb' "
+                         "(first-order WKB levels) or 'exact'" % (method,))
     if not isinstance(scale_uncertainties, (bool, np.bool_)):
         raise ValueError("scale_uncertainties=%r must be True or False" % (scale_uncertainties,))
     max_iterations = _validate.integer(max_iterations, "max_iterations", 1, 10 ** 7,
@@ -159,10 +179,18 @@ def fit(potential, observed, mu=None, *, method="wkb", vary=None, bounds=None, s
                              if len(rows) < len(obs) else ""))
 
     model, params0, curve = potential._core_args()
+    args = dict(model=model, params=params0, curve=curve, v=obs.v[rows], rot=rot[rows], mu=mu_rows[rows],
+                energy=obs.energy[rows], sigma=obs.uncertainty[rows], energy_zero=_ENERGY_ZERO_CODES[zero],
+                vary=np.asarray(vary_flags, dtype=np.intc), lower=lower, upper=upper, max_iterations=max_iterations)
+    if method == "corrected":
+        run = _corrected.run_corrected
+    else:
+        def run(a):
+            return _core.fit_run(method=_METHOD_CODES[method], **a)
     try:
-        out = _core.fit_run(model, params0, curve, obs.v[rows], rot[rows], mu_rows[rows], obs.energy[rows],
-                            obs.uncertainty[rows], _ENERGY_ZERO_CODES[zero], np.asarray(vary_flags, dtype=np.intc),
-                            lower, upper, max_iterations, method=_METHOD_CODES[method])
+        out, start_notes = _corrected.run_with_unbound_rows(run, args, n_vary)
+    except _corrected._Unreachable as err:
+        raise ValueError(_unreachable_message(err, obs, rows, potential)) from None
     except ValueError as err:
         if len(err.args) == 2 and isinstance(err.args[1], int):
             raise ValueError(_start_failure_message(err.args[0], obs, rows[err.args[1]], potential)) from None
@@ -182,6 +210,16 @@ def fit(potential, observed, mu=None, *, method="wkb", vary=None, bounds=None, s
         stop_test=int(out["test"]), predicted_decrease=float(out["predicted_decrease"]),
         n_infeasible=int(out["n_infeasible"]), last_infeasible=out["last_infeasible"],
         max_iterations=max_iterations, insensitive=[n for n, f in zip(names, out["insensitive"]) if f])
+    result.refreshes = int(out.get("refreshes", 0))
+    result.refresh_history = list(out.get("history", ()))
+    result.start_notes = start_notes
+    if method == "corrected" and not out["converged_refreshes"]:
+        result.status = "max_iterations"
+        result.message = ("the exact corrections did not become self-consistent in %d refreshes (last exact "
+                          "Gauss-Newton step %.3g standard deviations)"
+                          % (result.refreshes, result.refresh_history[-1]["step_sd"]))
+    final_args = dict(args, params=out["params"])
+    _method_error.attach(result, rows, out, final_args)
     result._warn()
     return result
 
@@ -263,6 +301,25 @@ def _row_description(obs, i):
     label = obs.isotopologue[i]
     return "data row %d (%sv=%d, J=%d)" % (i + 1, "isotopologue %s, " % label if label is not None else "",
                                            obs.v[i], obs.J[i])
+
+
+def _unreachable_message(err, obs, rows, potential):
+    missing = [int(rows[i]) for i in np.nonzero(~err.bound)[0]]
+    shown = ", ".join("v=%d%s" % (obs.v[i], " J=%d" % obs.J[i] if obs.J[i] else "") for i in missing[:8])
+    more = " and %d more" % (len(missing) - 8) if len(missing) > 8 else ""
+    if err.at_start:
+        return ("the starting potential %r binds only %d of the data's levels, fewer than the varied parameters; "
+                "unbound: %s%s. Start from a deeper or wider well (larger De, or a smaller a / larger re, e.g. "
+                "De from a Birge-Sponer or LeRoy-Bernstein estimate of the data)" % (
+                    potential, err.n_bound, shown, more))
+    if err.stop != "converged":
+        return ("the data's levels %s%s are not bound by the starting potential %r, and the fit of the %d bound "
+                "levels stopped before converging (%s) at a potential that does not bind them either: start closer "
+                "to the data (a deeper well, larger De, with the other parameters near their expected values)"
+                % (shown, more, potential, err.n_bound, err.stop))
+    return ("the data's levels %s%s stay unbound: fitting the %d bound levels from %r leads to a potential that "
+            "does not bind them. The model cannot reach these levels from this start: start from a deeper well "
+            "(larger De), check their v assignment, or leave them out" % (shown, more, err.n_bound, potential))
 
 
 def _start_failure_message(message, obs, i, potential):
@@ -421,6 +478,11 @@ class FitResult:
             self.dof_note = ""
 
     def _warn(self):
+        if getattr(self, "start_notes", ()):
+            warnings.warn("the starting potential did not bind every level: " + "; ".join(self.start_notes),
+                          FitWarning, stacklevel=3)
+        if getattr(self, "method_error_warning", ""):
+            warnings.warn(self.method_error_warning, FitWarning, stacklevel=3)
         if self.status != "converged":
             warnings.warn("the fit did not converge: %s; the result holds the best point reached" % self.message,
                           FitWarning, stacklevel=3)
@@ -520,7 +582,11 @@ class FitResult:
         isotopologue: a label (its fitted reduced mass, or one from the mass table); mu: a
         reduced mass in u (or a pair of isotopes); with neither, the fit's only isotopologue.
         J: rotational quantum number (integer >= 0).
-        Uncertainties come from the covariance and the Jacobian dE/dp (linear propagation).
+        Uncertainties come from the covariance and the Jacobian dE/dp (linear propagation), with
+        each level's method error (`method_error`: |WKB - exact| for method "wkb", the exact
+        solver's error estimate otherwise) added in quadrature. Levels are exact levels unless the
+        fit's method is "wkb". v_th (the quantum threshold number) and quasibound levels are not
+        computed yet (None): they come with the matched-end-phase levels.
         Returns a Prediction: levels, binding energies, spacings dG(v+1/2), D0, vD and the
         number of bound levels, each with its uncertainty.
         """
@@ -533,7 +599,7 @@ class FitResult:
             raise ValueError("J=%r must be an integer >= 0" % (J,))
         J = int(Jf)
         model, params, curve = self.potential._core_args()
-        code = _METHOD_CODES[self.method]
+        code = _level_code(self.method)
         res = _core.fit_levels(model, params, curve, mass, float(J * (J + 1)), code)
         E, G = res["energy"], res["jacobian"]
         asym, dA = res["asymptote"], self._asymptote_gradient()
@@ -552,15 +618,17 @@ class FitResult:
         else:
             notes.append("levels are exact levels of the fitted potential (radial Schroedinger equation); vD and "
                          "its uncertainty are semiclassical (first-order WKB)")
-        e_unc = self._propagate(G)
-        b_unc = self._propagate(dA[None, :] - G)
+        merr, merr00, note = _method_error.prediction_method_errors(self.method, self.potential, mass, J, E, E00)
+        notes.append(note)
+        e_unc = np.hypot(self._propagate(G), merr)
+        b_unc = np.hypot(self._propagate(dA[None, :] - G), merr)
         if len(E) > 1:
             spacing = np.diff(E)
-            s_unc = self._propagate(np.diff(G, axis=0))
+            s_unc = np.hypot(self._propagate(np.diff(G, axis=0)), np.hypot(merr[1:], merr[:-1]))
         else:
             spacing, s_unc = np.zeros(0), np.zeros(0)
         D0 = asym - E00
-        D0_unc = float(self._propagate((dA - G00)[None, :])[0]) if np.isfinite(D0) else math.nan
+        D0_unc = float(np.hypot(self._propagate((dA - G00)[None, :])[0], merr00)) if np.isfinite(D0) else math.nan
         vD = res["vD"]
         dvD = res["dvD_dp"]
         if np.all(np.isfinite(dvD[self._gradient_covariance()[0]])):
@@ -568,9 +636,13 @@ class FitResult:
         else:
             vD_unc = math.nan
             notes.append("the uncertainty of vD could not be computed (a perturbed potential is invalid)")
-        return Prediction(E, e_unc, asym - E, b_unc, spacing, s_unc, J=J, mu=mass, isotopologue=label,
+        pred = Prediction(E, e_unc, asym - E, b_unc, spacing, s_unc, J=J, mu=mass, isotopologue=label,
                           D0=D0, D0_uncertainty=D0_unc, vD=vD, vD_uncertainty=vD_unc, potential=self.potential,
                           method=self.method, notes=notes)
+        pred.method_error = _frozen(merr)
+        # hooks for the matched-end-phase levels: the quantum threshold number and quasibound levels
+        pred.v_th, pred.v_th_uncertainty, pred.quasibound = None, None, None
+        return pred
 
     # -- reports ------------------------------------------------------------------------
     def report(self):

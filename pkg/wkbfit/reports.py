@@ -18,6 +18,8 @@ from .potentials import Potential
 _UNITS = {"De": "cm-1", "re": "A", "a": "1/A", "n": "", "m": ""}
 #: normalised residuals beyond this are flagged in the report (common practice: 3 sigma)
 _LARGE_RESIDUAL = 3.0
+#: method errors above this fraction of the uncertainty are listed (wkbfit.method_error.FLAG_FRACTION)
+_METHOD_FLAG = 0.1
 
 FORMAT = "wkbfit-fit-result"
 FORMAT_VERSION = 1
@@ -83,6 +85,8 @@ def fit_report_text(result):
     if result.dof_note:
         lines.append("  " + result.dof_note)
     lines.append("")
+    lines.extend(method_error_lines(result))
+    lines.append("")
     nr = result.normalized_residuals
     n_large = int(np.count_nonzero(np.abs(nr[result.fitted_rows]) > _LARGE_RESIDUAL))
     lines.append("Residuals (observed - calculated); '<<' marks |obs - calc|/sigma > %g (%d level%s)" % (
@@ -98,6 +102,44 @@ def fit_report_text(result):
             obs.isotopologue[i] or "-", obs.v[i], obs.J[i], obs.energy[i], obs.uncertainty[i],
             result.calculated[i], result.residuals[i], nr[i], flag))
     return "\n".join(lines)
+
+
+def method_error_lines(result):
+    """The report section on the method's error against the data (and how the fit was run)."""
+    lines = ["Method error against the data (method %s)" % result.method]
+    refreshes = getattr(result, "refreshes", 0)
+    if result.method == "corrected":
+        hist = getattr(result, "refresh_history", [])
+        lines.append("  first-order WKB iterations with per-level exact corrections: %d exact evaluation%s, %d "
+                     "Levenberg-Marquardt iterations; exact Gauss-Newton step at each (standard deviations): %s" % (
+                         refreshes, "" if refreshes == 1 else "s", result.iterations,
+                         ", ".join("%.2g (%s)" % (h["step_sd"], h.get("kind", "")) for h in hist)))
+    for note in getattr(result, "start_notes", ()):
+        lines.append("  start: " + note)
+    err = getattr(result, "method_error", None)
+    if err is None:
+        lines.append("  (not computed)")
+        return lines
+    lines.append("  " + result.method_error_note)
+    ratio = result.method_error_ratio[result.fitted_rows]
+    if np.all(np.isnan(ratio)):
+        return lines
+    lines.append("  largest method error %.3g cm-1, %.3g of its level's uncertainty; levels above %g sigma: %d" % (
+        float(np.nanmax(err)), float(np.nanmax(ratio)), _METHOD_FLAG, len(result.method_error_flagged)))
+    if result.method_error_flagged:
+        obs = result.observed
+        lines.append("  %-12s %4s %4s %12s %10s %9s" % ("isotopologue", "v", "J", "method err", "sigma", "/sigma"))
+        for i in result.method_error_flagged[:20]:
+            lines.append("  %-12s %4d %4d %12.4g %10.4g %9.3f" % (obs.isotopologue[i] or "-", obs.v[i], obs.J[i],
+                                                                 err[i], obs.uncertainty[i],
+                                                                 result.method_error_ratio[i]))
+        if len(result.method_error_flagged) > 20:
+            lines.append("  ... and %d more" % (len(result.method_error_flagged) - 20))
+        lines.append("  These levels are computed less accurately than they were measured: fit with a more exact "
+                     "method (method='corrected', the default, or 'exact').")
+    else:
+        lines.append("  every level is computed to better than %g of its uncertainty" % _METHOD_FLAG)
+    return lines
 
 
 def fit_report_html(result):
@@ -160,6 +202,10 @@ def fit_result_to_dict(result):
         "iterations": result.iterations, "n_evaluations": result.n_evaluations, "n_infeasible": result.n_infeasible,
         "predicted_decrease": result.predicted_decrease, "status": result.status, "message": result.message,
         "dof_note": result.dof_note, "method": result.method,
+        "refreshes": getattr(result, "refreshes", 0), "refresh_history": getattr(result, "refresh_history", []),
+        "start_notes": getattr(result, "start_notes", []),
+        "method_error": None if getattr(result, "method_error", None) is None else result.method_error.tolist(),
+        "method_error_note": getattr(result, "method_error_note", ""),
     })
 
 
@@ -252,6 +298,27 @@ def _fit_result_from_checked_dict(cls, data):
                 "n_evaluations", "n_infeasible", "predicted_decrease", "status", "message", "dof_note"):
         setattr(result, key, data[key])
     result.undetermined = list(data["undetermined"])
+    # results written before the method-error check have none of these
+    result.refreshes = data.get("refreshes", 0)
+    result.refresh_history = data.get("refresh_history", [])
+    result.start_notes = data.get("start_notes", [])
+    if isinstance(result.refreshes, bool) or not isinstance(result.refreshes, int) or result.refreshes < 0:
+        raise ValueError("refreshes=%r must be a whole number >= 0" % (result.refreshes,))
+    if not isinstance(result.refresh_history, list):
+        raise ValueError("refresh_history=%r must be a list" % (result.refresh_history,))
+    if not (isinstance(result.start_notes, list) and all(isinstance(x, str) for x in result.start_notes)):
+        raise ValueError("start_notes=%r must be a list of strings" % (result.start_notes,))
+    if data.get("method_error") is not None:
+        if not isinstance(data.get("method_error_note", ""), str):
+            raise ValueError("method_error_note=%r must be a string" % (data.get("method_error_note"),))
+        err = _frozen(_nan_array(data["method_error"]))
+        if err.shape != result.observed.uncertainty.shape:
+            raise ValueError("method_error has %d entries for %d observed levels" % (err.size,
+                                                                                     result.observed.uncertainty.size))
+        result.method_error = err
+        result.method_error_ratio = _frozen(err / result.observed.uncertainty)
+        result.method_error_flagged = [int(i) for i in np.nonzero(result.method_error_ratio > _METHOD_FLAG)[0]]
+        result.method_error_note = data.get("method_error_note", "")
     return result
 
 

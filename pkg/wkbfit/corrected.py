@@ -1,0 +1,249 @@
+"""The default fit: semiclassical iterations with per-level exact corrections.
+
+Levenberg-Marquardt runs on first-order WKB levels plus a fixed per-level correction
+delta_i = E_exact,i - E_wkb,i evaluated at the current parameters (an additive offset inside
+the C fit, csrc/fit.c). After each run one exact evaluation at the new point gives the exact
+levels, the exact Jacobian <v|dV/dp|v> and new corrections ("a refresh"). The loop stops when
+the Gauss-Newton step of the EXACT problem at that point, (J^T W J)^-1 J^T W r with the exact
+J and r, is below `tolerance` standard deviations for every varied parameter: the point is
+then the minimum of the exact-levels fit to that accuracy, and its covariance comes from the
+exact Jacobian, so parameters and uncertainties are those of `method="exact"`. The WKB
+Jacobian ignores d(delta)/dp, which only changes the path to the minimum, not the minimum
+(the stopping test uses the exact Jacobian).
+
+A few exact evaluations (typically 2-3) replace the 5-15 of an exact fit, and each WKB
+iteration costs ~1/30 of an exact one.
+
+Also here: unbound rows at the start (`run_with_unbound_rows`): rows the starting potential
+does not bind are left out and brought in as soon as the fitted potential binds them.
+
+Units: cm-1.
+"""
+import math
+
+import numpy as np
+
+from . import _core
+
+__all__ = ["run_corrected", "run_with_unbound_rows", "LINEAR_STEP", "MAX_REFRESHES"]
+
+#: the exact Gauss-Newton step is taken (and the fit ends) once it is below this many standard
+#: deviations for every parameter: its second-order remainder is then ~LINEAR_STEP^2 times the
+#: problem's relative curvature, far below 0.01 standard deviation
+LINEAR_STEP = 0.3
+#: exact refreshes at most (each one exact evaluation)
+MAX_REFRESHES = 12
+
+_WKB, _EXACT = 0, 1
+
+
+def _gauss_newton(calc, jac, energy, sigma, var):
+    """Exact Gauss-Newton step (varied parameters var) and the parameter standard deviations."""
+    A = jac[:, var] / sigma[:, None]
+    r = (calc - energy) / sigma
+    norms = np.linalg.norm(A, axis=0)
+    norms[norms == 0] = 1.0
+    An = A / norms
+    step, *_ = np.linalg.lstsq(An, -r, rcond=None)
+    step /= norms
+    try:
+        inv = np.linalg.inv(An.T @ An) / np.outer(norms, norms)
+    except np.linalg.LinAlgError:
+        inv = np.linalg.pinv(An.T @ An) / np.outer(norms, norms)
+    chi2 = float(r @ r)
+    dof = len(r) - len(var)
+    sd = np.sqrt(np.abs(np.diag(inv)))
+    if dof > 0:
+        # the smaller of the stated-uncertainty and the scaled standard deviations
+        sd = sd * min(1.0, math.sqrt(chi2 / dof))
+    return step, sd, chi2
+
+
+def exact_tolerance(sigma):
+    """Target accuracy of the exact levels of a refresh: 1e-3 of the smallest uncertainty
+    (so the solver's error moves no parameter by more than ~1e-3 standard deviation), between
+    1e-9 and 1e-5 cm-1."""
+    return float(min(1e-5, max(1e-9, 1e-3 * float(np.min(sigma)))))
+
+
+def exact_calc(model, params, curve, v, rot, mu, energy_zero, tolerance):
+    """(exact levels of the rows in the data's energy zero, their estimated numerical errors), cm-1;
+    no parameter derivatives (they cost three times the levels).
+
+    One core call per (reduced mass, J) with that group's v values; binding energies come
+    straight from the solver (asymptote - E without cancellation)."""
+    J = np.rint((np.sqrt(1.0 + 4.0 * np.asarray(rot)) - 1.0) / 2.0).astype(int)
+    calc = np.empty(len(v))
+    error = np.empty(len(v))
+    ref = {}
+    keys = np.stack([np.asarray(mu, dtype=float), J.astype(float)], axis=1)
+    for m, j in np.unique(keys, axis=0):
+        sel = np.nonzero((keys[:, 0] == m) & (keys[:, 1] == j))[0]
+        want = np.unique(np.asarray(v)[sel])
+        res = _core.exact_levels(model, params, curve, float(m), np.array([int(j)], dtype=np.intc),
+                                 want.astype(np.intc), energy_tol=tolerance)
+        col = res["binding_energy"] if energy_zero == 1 else res["energy"]
+        lookup = dict(zip(res["v"].tolist(), zip(col.tolist(), res["error"].tolist())))
+        calc[sel] = [lookup[int(x)][0] for x in np.asarray(v)[sel]]
+        error[sel] = [lookup[int(x)][1] for x in np.asarray(v)[sel]]
+        if energy_zero == 2 and int(j) == 0 and 0 in lookup:
+            ref[float(m)] = lookup[0]
+    if energy_zero == 2:
+        for m in np.unique(keys[:, 0]):
+            if m not in ref:
+                res = _core.exact_levels(model, params, curve, float(m), np.array([0], dtype=np.intc),
+                                         np.array([0], dtype=np.intc), energy_tol=tolerance)
+                ref[m] = (float(res["energy"][0]), float(res["error"][0]))
+            sel = keys[:, 0] == m
+            calc[sel] -= ref[m][0]
+            error[sel] = np.hypot(error[sel], ref[m][1])
+    return calc, error
+
+
+def run_corrected(args, *, tolerance=LINEAR_STEP, max_refreshes=MAX_REFRESHES):
+    """The corrected fit; args: a dict of the keyword arguments of _core.fit_run (method left out).
+
+    1. a first-order WKB run from the start;
+    2. a refresh: exact levels (no derivatives) at its point give the corrections
+       delta = E_exact - E_wkb, and a WKB run with them fixed;
+    3. one exact evaluation WITH the exact Jacobian <v|dV/dp|v> at the new point: the exact
+       Gauss-Newton step there. Below `tolerance` standard deviations (for every varied
+       parameter) the step is taken (the problem is linear to O(step^2) there) and the fit
+       ends with the exact Jacobian's covariance; otherwise the exact levels of this
+       evaluation become the new corrections and 2-3 repeat.
+
+    Returns the dict of _core.fit_run for the final point (calc = exact levels linearly
+    continued by the step, jacobian = the exact one) plus: refreshes (exact evaluations,
+    with and without derivatives), exact_jacobians, iterations (WKB Levenberg-Marquardt
+    iterations summed), history (per exact evaluation: kind, largest step in standard
+    deviations, chi-square), remainder (per row: the second-order remainder of the final
+    linear step, estimated from the WKB levels, cm-1), converged_refreshes.
+    """
+    a = dict(args)
+    model, curve = a["model"], a["curve"]
+    v, rot, mu, energy, sigma, zero = a["v"], a["rot"], a["mu"], a["energy"], a["sigma"], a["energy_zero"]
+    tol_levels = exact_tolerance(sigma)
+    offset = np.zeros(len(v))
+    out = _core.fit_run(method=_WKB, offset=None, **a)
+    iterations, n_eval, history = out["iterations"], out["n_eval"], []
+    refreshes = jacobians = 0
+    done = False
+    while out["stop"] == "converged":
+        p = out["params"]
+        var = [k for k, f in enumerate(a["vary"]) if f and not out["insensitive"][k]]
+        if refreshes == 0:
+            # the pure WKB point is far from the exact minimum: first correct, cheaply
+            calc_ex, _ = exact_calc(model, p, curve, v, rot, mu, zero, tol_levels)
+            refreshes += 1
+            step, sd, chi2 = _gauss_newton(calc_ex, out["jacobian"], energy, sigma, var)
+            history.append({"kind": "levels", "step_sd": float(np.max(np.abs(step) / sd)), "chi_square": chi2})
+        else:
+            calc_ex, jac_ex = _core.fit_evaluate(model, p, curve, v, rot, mu, zero, _EXACT, tol_levels)
+            refreshes += 1
+            jacobians += 1
+            step, sd, chi2 = _gauss_newton(calc_ex, jac_ex, energy, sigma, var)
+            worst = float(np.max(np.abs(step) / sd)) if var else 0.0
+            history.append({"kind": "levels and Jacobian", "step_sd": worst, "chi_square": chi2})
+            if worst < tolerance:
+                done = True
+                break
+        if refreshes >= max_refreshes:
+            break
+        offset = offset + (calc_ex - out["calc"])  # = E_exact - E_wkb at p
+        a["params"] = p
+        out = _core.fit_run(method=_WKB, offset=offset, **a)
+        iterations += out["iterations"]
+        n_eval += out["n_eval"]
+    out = dict(out)
+    if done:
+        full = np.zeros(len(a["vary"]))
+        full[var] = step
+        p_final = out["params"] + full
+        calc_final = calc_ex + jac_ex @ full
+        # the remainder of the linear step, from the WKB levels (same curvature to leading order)
+        wkb_p, _ = _core.fit_evaluate(model, out["params"], curve, v, rot, mu, zero, _WKB)
+        wkb_f, _ = _core.fit_evaluate(model, p_final, curve, v, rot, mu, zero, _WKB)
+        remainder = wkb_f - wkb_p - out["jacobian"] @ full
+        r = (calc_final - energy) / sigma
+        out.update(params=p_final, calc=calc_final, jacobian=jac_ex, chi_square=float(r @ r))
+    else:
+        remainder = np.full(len(v), np.nan)
+    out.update(iterations=iterations, n_eval=n_eval, refreshes=refreshes, exact_jacobians=jacobians,
+               history=history, remainder=remainder, converged_refreshes=done or out["stop"] != "converged",
+               level_tolerance=tol_levels)
+    return out
+
+
+def bound_counts(model, params, curve, mu, rot):
+    """Number of first-order WKB bound levels for each distinct (mu, rot) pair: dict."""
+    counts = {}
+    for m, r in set(zip(mu.tolist(), rot.tolist())):
+        try:
+            res = _core.fit_levels(model, params, curve, m, r, 0)
+            counts[(m, r)] = len(res["energy"])
+        except ValueError:
+            counts[(m, r)] = 0
+    return counts
+
+
+def _bound_rows(model, params, curve, v, mu, rot):
+    counts = bound_counts(model, params, curve, mu, rot)
+    return np.array([vi < counts[(m, r)] for vi, m, r in zip(v.tolist(), mu.tolist(), rot.tolist())], dtype=bool)
+
+
+def run_with_unbound_rows(run, args, n_vary, max_rounds=20):
+    """Runs run(args) on the rows the current potential binds, growing the set as levels become bound.
+
+    run: a function of an args dict (the keywords of _core.fit_run) returning its dict.
+    Returns (out for all rows, list of notes describing what was done). If the starting
+    potential binds every row, this is run(args) and no note. Raises ValueError (with the
+    rows) when the start binds fewer rows than varied parameters, or when fits on the bound
+    rows stop binding more of them.
+    """
+    model, curve = args["model"], args["curve"]
+    v, mu, rot = np.asarray(args["v"]), np.asarray(args["mu"]), np.asarray(args["rot"])
+    bound = _bound_rows(model, args["params"], curve, v, mu, rot)
+    if args["energy_zero"] == 2:
+        # "lowest" data need v=0, J=0 of each isotopologue, which any well binds
+        pass
+    if bound.all():
+        return run(args), []
+    notes = []
+    params = np.array(args["params"], dtype=float)
+    start_missing = int(np.count_nonzero(~bound))
+    for round_ in range(max_rounds):
+        idx = np.nonzero(bound)[0]
+        if len(idx) < max(n_vary, 1):
+            raise _Unreachable(bound, len(idx), round_ == 0, params)
+        sub = dict(args)
+        for key in ("v", "rot", "mu", "energy", "sigma"):
+            sub[key] = np.ascontiguousarray(np.asarray(args[key])[idx])
+        sub["params"] = params
+        out = run(sub)
+        params = out["params"]
+        now = _bound_rows(model, params, curve, v, mu, rot) | bound
+        notes.append("round %d: fitted %d of %d levels (the others are not bound by the %s potential)"
+                     % (round_ + 1, len(idx), len(v), "starting" if round_ == 0 else "intermediate"))
+        if now.all():
+            full = dict(args)
+            full["params"] = params
+            notes.append("the %d level%s not bound by the starting potential became bound and %s brought in; the "
+                         "final fit uses every level" % (start_missing, "" if start_missing == 1 else "s",
+                                                         "was" if start_missing == 1 else "were"))
+            return run(full), notes
+        if np.array_equal(now, bound):
+            raise _Unreachable(now, int(np.count_nonzero(now)), False, params, out["stop"])
+        bound = now
+    raise _Unreachable(bound, int(np.count_nonzero(bound)), False, params)
+
+
+class _Unreachable(ValueError):
+    """The potential (after fitting the bound rows) does not bind every row."""
+
+    def __init__(self, bound, n_bound, at_start, params, stop="converged"):
+        super().__init__("unreachable")
+        self.stop = stop
+        self.bound = bound
+        self.n_bound = n_bound
+        self.at_start = at_start
+        self.params = params

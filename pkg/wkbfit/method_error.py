@@ -1,0 +1,128 @@
+"""The method's error against the data: each level's method error compared with its uncertainty.
+
+After every fit, each fitted level gets a method error (cm-1), the error of the level
+calculation the fit used, in the data's energy zero:
+  "corrected"  the final levels are exact levels continued by the last (small) exact
+               Gauss-Newton step: its second-order remainder, with the exact solver's accuracy;
+  "wkb"        |E_wkb - E_exact| from one exact evaluation at the final point: the bias of
+               first-order WKB, which the fit cannot see;
+  "exact"      the exact solver's own error estimate (one extra pass of exact levels without
+               derivatives, about 1/4 of one exact iteration).
+A level whose method error exceeds FLAG_FRACTION of its uncertainty is flagged: the report
+lists it and a FitWarning names it, with the advice to use a more exact method.
+
+`row_method_errors` is the one place the per-level method error comes from; when the level
+tables carry their own `method_error` (matched end phases), it is wired in there.
+"""
+import math
+
+import numpy as np
+
+from . import _core
+
+__all__ = ["FLAG_FRACTION", "row_method_errors", "attach"]
+
+#: a level's method error above this fraction of its uncertainty is flagged
+#: (the issue's threshold: 0.1 sigma shifts a fitted level by a tenth of its error bar)
+FLAG_FRACTION = 0.1
+
+
+def row_method_errors(method, args, out):
+    """Per fitted row: (method error in cm-1, note). args: the keywords of the fit's core run,
+    with the final parameters in args["params"]. The one source of per-level method errors:
+    level tables that carry their own method_error (matched end phases) plug in here."""
+    from .corrected import exact_calc, exact_tolerance
+    if method == "corrected":
+        err = np.hypot(np.abs(np.asarray(out["remainder"], dtype=float)), out["level_tolerance"])
+        return err, ("method error = the second-order remainder of the final exact Gauss-Newton step (after %d "
+                     "exact evaluations), with the exact levels' target accuracy %.1e cm-1 (1e-3 of the smallest "
+                     "uncertainty) in quadrature" % (out["refreshes"], out["level_tolerance"]))
+    try:
+        calc_ex, exact_err = exact_calc(args["model"], args["params"], args["curve"], args["v"], args["rot"],
+                                        args["mu"], args["energy_zero"], exact_tolerance(args["sigma"]))
+    except ValueError as err:
+        return (np.full(len(args["v"]), math.nan),
+                "method error not available: the exact levels of the fitted potential could not be computed (%s)"
+                % err)
+    if method == "wkb":
+        return (np.hypot(np.asarray(out["calc"]) - calc_ex, exact_err),
+                "method error = |first-order WKB - exact level| at the fitted parameters (one exact evaluation)")
+    return exact_err, "method error = the exact solver's error estimate of each level"
+
+
+def attach(result, rows, out, args=None):
+    """Sets result.method_error (all rows, NaN for rows not fitted), method_error_ratio
+    (method error / uncertainty), method_error_flagged (row indices above FLAG_FRACTION),
+    method_error_note and method_error_warning (empty when nothing is flagged)."""
+    obs = result.observed
+    if args is None:
+        args = out["_args"]
+    err_rows, note = row_method_errors(result.method, args, out)
+    err = np.full(len(obs), math.nan)
+    err[rows] = err_rows
+    ratio = err / obs.uncertainty
+    flagged = [int(i) for i in np.nonzero(ratio > FLAG_FRACTION)[0]]
+    result.method_error = _frozen(err)
+    result.method_error_ratio = _frozen(ratio)
+    result.method_error_flagged = flagged
+    result.method_error_note = note
+    result.method_error_warning = ""
+    if flagged:
+        worst = int(np.nanargmax(ratio))
+        result.method_error_warning = (
+            "the %s levels of %d data row%s are off by more than %g of their uncertainty (largest %.3g sigma, "
+            "%.3g cm-1 at %s): %s. Use a more exact method (method='corrected', the default, or 'exact')"
+            % (result.method, len(flagged), "" if len(flagged) == 1 else "s", FLAG_FRACTION, ratio[worst],
+               err[worst], level_name(obs, worst), level_list(obs, flagged))
+            if result.method == "wkb" else
+            "the %s levels of %d data row%s carry a method error above %g of their uncertainty (largest %.3g sigma "
+            "at %s): %s. Use method='exact' for these data" % (
+                result.method, len(flagged), "" if len(flagged) == 1 else "s", FLAG_FRACTION, ratio[worst],
+                level_name(obs, worst), level_list(obs, flagged)))
+
+
+def prediction_method_errors(method, potential, mu, J, energy, E00):
+    """Method errors of predicted levels v = 0..len(energy)-1 at J and of the level v=0, J=0:
+    (array, scalar, note). One exact pass (levels without derivatives)."""
+    model, params, curve = potential._core_args()
+    n = len(energy)
+    try:
+        res = _core.exact_levels(model, params, curve, float(mu), np.array([J], dtype=np.intc), None)
+        res0 = res if J == 0 else _core.exact_levels(model, params, curve, float(mu), np.array([0], dtype=np.intc),
+                                                     np.array([0], dtype=np.intc))
+    except ValueError as err:
+        return np.zeros(n), 0.0, "method errors of the predictions not available (%s)" % err
+    ex, ex_err = res["energy"], res["error"]
+    merr = np.full(n, math.nan)
+    m = min(n, len(ex))
+    if method == "wkb":
+        merr[:m] = np.hypot(np.asarray(energy[:m]) - ex[:m], ex_err[:m])
+        merr00 = float(math.hypot(E00 - res0["energy"][0], res0["error"][0]))
+        note = "uncertainties include each level's method error |WKB - exact| in quadrature"
+    else:
+        merr[:m] = ex_err[:m]
+        merr00 = float(res0["error"][0])
+        note = "uncertainties include the exact solver's error estimate of each level in quadrature"
+    if m < n:
+        # a WKB level above the last exact one: its whole binding energy is the error
+        merr[m:] = np.abs(potential.asymptote - np.asarray(energy[m:]))
+        note += "; WKB levels v >= %d have no exact counterpart (their binding energy counts as the error)" % m
+    return merr, merr00, note
+
+
+def level_name(obs, i):
+    label = obs.isotopologue[i]
+    return "%sv=%d J=%d" % ("%s " % label if label is not None else "", obs.v[i], obs.J[i])
+
+
+def level_list(obs, idx, limit=12):
+    text = ", ".join(level_name(obs, i) for i in idx[:limit])
+    if len(idx) > limit:
+        text += " and %d more" % (len(idx) - limit)
+    return text
+
+
+def _frozen(arr):
+    arr = np.array(arr, copy=True)
+    arr.setflags(write=False)
+    return arr
