@@ -175,29 +175,17 @@ class WKBComparison:
 
     def to_text(self, uncertainty=None):
         """A plain-text table; with `uncertainty` (cm-1) a last column says whether WKB is within it."""
-        head = "%4s %4s %18s %18s %13s %10s %14s" % ("v", "J", "WKB [cm-1]", "exact [cm-1]",
-                                                   "WKB-exact", "exact err", "binding [cm-1]")
-        if uncertainty is not None:
-            ok = self.good_enough(uncertainty)
-            head += "  within %.3g" % float(np.max(uncertainty))
-        lines = ["WKB (order %s) versus exact levels of %r, mu = %.10g u"
-                 % (getattr(self, "order", 1), self.potential, self.mu), head]
-        for i in range(len(self)):
-            line = "%4d %4d %18.8f %18.8f %13.3e %10.1e %14.8g" % (
-                self.v[i], self.J[i], self.wkb_energy[i], self.exact_energy[i], self.difference[i],
-                self.exact_error[i], self.binding_energy[i])
-            if uncertainty is not None:
-                line += "  %s" % ("yes" if ok[i] else "NO")
-            lines.append(line)
-        if len(self):
-            v, J, d = self.largest_difference()
-            lines.append("largest |WKB - exact| = %.3e cm-1 at v=%d, J=%d" % (abs(d), v, J))
-        if self.only_exact:
-            lines.append("bound only in the exact calculation: " +
-                         ", ".join("v=%d J=%d" % k for k in self.only_exact))
-        if self.only_wkb:
-            lines.append("bound only in WKB: " + ", ".join("v=%d J=%d" % k for k in self.only_wkb))
-        return "\n".join(lines)
+        from . import reports
+        return reports.comparison_text(self, uncertainty)
+
+    def _repr_html_(self):
+        from . import reports
+        return reports.comparison_html(self)
+
+    def plot(self, ax=None, **options):
+        """|WKB - exact| level by level (`wkbfit.plots.wkb_vs_exact`)."""
+        from . import plots
+        return plots.wkb_vs_exact(self, ax=ax, **options)
 
     def __str__(self):
         return self.to_text()
