@@ -16,7 +16,9 @@ import numpy as np
 from . import _core
 from .levels import LevelTable, levels as _levels
 from .masses import as_reduced_mass
-from .potentials import Potential
+from .potentials import Potential, PointwisePotential
+from .coverage import check_levels
+from ._warn import warn as _warn
 
 __all__ = ["exact_levels", "exact_wavefunction", "compare_wkb_exact", "WKBComparison"]
 
@@ -82,7 +84,8 @@ def exact_levels(potential, mu, vs=None, Js=(0,), *, tolerance=DEFAULT_TOLERANCE
     vs = None if vs is None else _ints(vs, "v")
     tolerance = _positive("tolerance", tolerance)
     min_binding = _positive("min_binding", min_binding)
-    res = _core_call(potential, mu, vs, Js, tolerance, min_binding)
+    pointwise = isinstance(potential, PointwisePotential)  # wavefunctions to check the reach beyond the points
+    res = _core_call(potential, mu, vs, Js, tolerance, min_binding, **({"want_wavefunctions": True} if pointwise else {}))
     cols = {c: res[c] for c in ("v", "J", "energy", "binding_energy", "inner_turning_point",
                                 "outer_turning_point", "Bv", "dEdv", "error")}
     counts = {J: int(c) for J, c in zip(Js, res["count"].tolist())}
@@ -91,14 +94,15 @@ def exact_levels(potential, mu, vs=None, Js=(0,), *, tolerance=DEFAULT_TOLERANCE
              "bound levels: " + ", ".join("J=%d: %d" % (J, c) for J, c in counts.items())]
     table = LevelTable(cols, mu=mu, method="exact", potential=potential, vD={}, notes=notes)
     table.bound_counts = counts
+    check_levels(table, res.get("wavefunctions"))
     worst = np.nanmax(table.error) if len(table) else 0.0
     if worst > 10 * tolerance:
         i = int(np.nanargmax(table.error))
-        warnings.warn("exact level v=%d, J=%d (bound by %.3g cm-1) has an estimated error of %.2g cm-1, above "
+        _warn("exact level v=%d, J=%d (bound by %.3g cm-1) has an estimated error of %.2g cm-1, above "
                       "the tolerance %.2g: the accuracy is limited by round-off in the recurrence (about "
                       "1e-16 De/h^2 for a well of depth De), or, for a level bound by less than min_binding, "
                       "by the extent of the grid" % (table.v[i], table.J[i], table.binding_energy[i], worst,
-                                                      tolerance), RuntimeWarning, stacklevel=2)
+                                                      tolerance), RuntimeWarning)
     return table
 
 

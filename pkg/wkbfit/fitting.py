@@ -22,6 +22,7 @@ from .observed import read_levels
 from . import reports as _reports
 from .reports import _frozen, _atomic_write
 from .potentials import Potential
+from ._warn import warn as _warn
 
 __all__ = ["fit", "FitResult", "Parameter", "Prediction", "FitWarning"]
 
@@ -425,12 +426,12 @@ class FitResult:
 
     def _warn(self):
         if self.status != "converged":
-            warnings.warn("the fit did not converge: %s; the result holds the best point reached" % self.message,
-                          FitWarning, stacklevel=3)
+            _warn("the fit did not converge: %s; the result holds the best point reached" % self.message,
+                  FitWarning)
         for name in self.undetermined:
-            warnings.warn("parameter %s: %s" % (name, self.params[name].note), FitWarning, stacklevel=3)
+            _warn("parameter %s: %s" % (name, self.params[name].note), FitWarning)
         if self.dof_note:
-            warnings.warn(self.dof_note, FitWarning, stacklevel=3)
+            _warn(self.dof_note, FitWarning)
 
     # -- simple views -------------------------------------------------------------------
     @property

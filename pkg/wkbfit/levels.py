@@ -11,6 +11,7 @@ import numpy as np
 from . import _core
 from .masses import as_reduced_mass
 from .potentials import Potential
+from .coverage import check_levels
 
 __all__ = ["LevelTable", "levels"]
 
@@ -198,4 +199,6 @@ def _wkb_levels(potential, mu, vs, Js, langer, maslov, order=1):
         raise
     cols["J"] = np.asarray(Js)[cols["rot_index"]]
     vD = {J: (None if math.isnan(x) else float(x)) for J, x in zip(Js, cols["vD"])}
-    return LevelTable(cols, mu=mu, method="wkb" if order == 1 else "wkb2", potential=potential, vD=vD)
+    table = LevelTable(cols, mu=mu, method="wkb" if order == 1 else "wkb2", potential=potential, vD=vD)
+    check_levels(table)  # levels reaching beyond a point-wise curve's points
+    return table
