@@ -56,7 +56,7 @@ def test_rkr_curve_levels_beyond_its_points():
     we, wexe = 2990.9, 52.8
     curve = wkbfit.rkr_potential([we, -wexe], [10.59, -0.307], "1H35Cl", v=np.linspace(-0.4, 3, 12),
                                  asymptote=we * we / (4 * wexe), tail_power=6)
-    with pytest.warns(ExtrapolationWarning, match=r"v=5: outer turning point"):
+    with pytest.warns(ExtrapolationWarning, match=r"v=5: inner turning point .* outer turning point"):
         wkbfit.levels(curve, "1H35Cl", v=[0, 1, 2, 5])
 
 
