@@ -4,6 +4,7 @@
     wkbfit check DATAFILE [--energy-zero ZERO]
     wkbfit fit DATAFILE MODEL NAME=VALUE ... [--mu MU | --mass LABEL=MU ...] [--fix NAME] [--vary NAME] [-o JSON]
     wkbfit demo
+    wkbfit rkr | compare | curve | predict   (see wkbfit.cli_tools)
 
 User errors (bad numbers, unreadable files, unknown names) print one line to stderr and exit with status 2
 (set WKBFIT_DEBUG=1 to see the traceback instead).
@@ -19,6 +20,7 @@ import warnings
 
 import numpy as np
 
+from . import cli_tools
 from . import potentials as _potentials
 
 __all__ = ["main", "MODELS"]
@@ -154,7 +156,10 @@ def _cmd_levels(args, out):
     mu = args.mu if args.mu is not None else args.isotopologue
     Js = _int_list(args.J, "-J")
     vs = None if args.v is None else _int_list(args.v, "-v")
-    table = levels(pot, mu, v=vs, J=Js if len(Js) > 1 else Js[0], method=args.method, langer=args.langer)
+    if args.method == "exact" and args.order != 1:
+        raise UserError("--order applies to --method wkb only")
+    order = {"order": args.order} if args.method == "wkb" else {}
+    table = levels(pot, mu, v=vs, J=Js if len(Js) > 1 else Js[0], method=args.method, langer=args.langer, **order)
     if args.csv:
         cols = table.columns
         print(",".join(cols), file=out)
@@ -231,8 +236,14 @@ def _cmd_fit(args, out):
         print("", file=out)
         print(_prediction_text(result, target, args.near), file=out)
     path = args.output or _default_json_path(args.datafile)
+    if args.output_dir is not None:
+        path = cli_tools._output_path(args, os.path.basename(path) if args.output is None else path)
     result.save_json(path)
     print("\nfit result written to %s" % path, file=out)
+    poor = cli_tools.poor_fit_message(result, args.sigma_limit)
+    if poor:
+        print("wkbfit: error: %s" % poor, file=sys.stderr)
+        return cli_tools.EXIT_POOR_FIT
     return 0 if _fit_ok(result) else 1
 
 
@@ -310,7 +321,8 @@ def _parser():
         "Units: energies cm-1, distances angstrom, masses u."),
         epilog="Run 'wkbfit COMMAND --help' for the options of a command. Exit status: 0 done, 1 a fit did not "
                "converge (its best point is still reported), 2 a mistake in the command or the data (one line on "
-               "stderr; WKBFIT_DEBUG=1 shows the traceback).")
+               "stderr; WKBFIT_DEBUG=1 shows the traceback), 3 a fit converged to a sqrt of reduced chi-square "
+               "above --sigma-limit (default %g)." % cli_tools.SIGMA_LIMIT)
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
 
     p = sub.add_parser("levels", help="list the levels of a potential",
@@ -329,6 +341,8 @@ def _parser():
                    help="wkb (first-order semiclassical, default) or exact (radial Schroedinger equation)")
     p.add_argument("--langer", action="store_true", help="use (J+1/2)^2 for the centrifugal term (WKB only)")
     p.add_argument("--csv", action="store_true", help="print comma-separated values instead of a table")
+    p.add_argument("--order", type=int, choices=(1, 2), default=1,
+                   help="WKB order: 1 (default) or 2 (with the second-order term)")
     p.set_defaults(run=_cmd_levels)
 
     def data_options(p):
@@ -364,7 +378,7 @@ def _parser():
     p.add_argument("--method", choices=("wkb", "exact"), default="wkb", help="level calculation (default wkb)")
     scale = p.add_mutually_exclusive_group()
     scale.add_argument("--scale-uncertainties", dest="scale_uncertainties", action="store_const", const=True,
-                       default=None, help="scale parameter uncertainties by the dimensionless standard error")
+                       default=None, help="scale parameter uncertainties by the sqrt of reduced chi-square")
     scale.add_argument("--no-scale-uncertainties", dest="scale_uncertainties", action="store_const", const=False,
                        help="take the data uncertainties as they are")
     p.add_argument("--predict", action="append", metavar="LABEL_OR_MU",
@@ -375,6 +389,11 @@ def _parser():
     p.add_argument("-o", "--output", metavar="JSON",
                    help="where to write the fit result (default: DATAFILE name with -fit.json, in the current "
                         "directory)")
+    p.add_argument("--output-dir", metavar="DIR", default=None,
+                   help="directory for the fit result (created if missing)")
+    p.add_argument("--sigma-limit", type=lambda s: _number(s, "--sigma-limit"), default=cli_tools.SIGMA_LIMIT,
+                   metavar="S", help="a converged fit whose sqrt of reduced chi-square exceeds S is reported as "
+                                     "failed, exit status 3 (default %g)" % cli_tools.SIGMA_LIMIT)
     p.set_defaults(run=_cmd_fit)
 
     p = sub.add_parser("demo", help="fit the shipped INVENTED demo data",
@@ -387,6 +406,7 @@ def _parser():
                    help="number of levels nearest dissociation to print (default 10)")
     p.add_argument("-o", "--output", metavar="JSON", help="also write the fit result as JSON")
     p.set_defaults(run=_cmd_demo)
+    cli_tools.add_subcommands(sub, models_help, list(MODELS))
     return parser
 
 
