@@ -97,6 +97,10 @@ def _build_potential(model, assignments):
         if name in values:
             raise UserError("parameter %s is given twice" % name)
         parts = text.split(",")
+        default = dict(signature)[name]
+        if isinstance(default, str) and text == default:  # a named default, such as the MLR r_ref=re
+            values[name] = text
+            continue
         values[name] = (_number(parts[0], name) if len(parts) == 1
                         else [_number(p, name) for p in parts])
     missing = [n for n, default in signature if default is REQUIRED and n not in values]
