@@ -11,5 +11,6 @@ from .exact import exact_wavefunction, compare_wkb_exact, WKBComparison
 from .observed import ObservedLevels, read_levels
 from .fitting import fit, FitResult
 from .rkr import RKRTurningPoints, rkr_turning_points, rkr_potential
+from . import plots  # figures; matplotlib itself is imported only when one is drawn
 
 __version__ = "0.1.0"
