@@ -271,16 +271,18 @@ static void curve_destructor(PyObject *capsule)
 
 static PyObject *py_pointwise_build(PyObject *self, PyObject *args, PyObject *kwds)
 {
-    static char *kwlist[] = {"r", "V", "asymptote", "tail_power", NULL};
+    static char *kwlist[] = {"r", "V", "asymptote", "tail_power", "inner_wall", NULL};
     PyObject *r_obj, *V_obj;
     double asymptote = NAN, tail_power = NAN;
+    int inner_wall = WKB_WALL_EXPONENTIAL;
     PyArrayObject *r = NULL, *V = NULL;
     PyObject *result = NULL, *capsule = NULL;
     wkb_pointwise *curve = NULL;
     wkb_error err = {0};
     int status;
 
-    if (!PyArg_ParseTupleAndKeywords(args, kwds, "OO|dd", kwlist, &r_obj, &V_obj, &asymptote, &tail_power))
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "OO|ddi", kwlist, &r_obj, &V_obj, &asymptote, &tail_power,
+                                     &inner_wall))
         return NULL;
     if (!(r = as_double_array(r_obj, "r", 1)) || !(V = as_double_array(V_obj, "V", 1)))
         goto cleanup;
@@ -290,8 +292,8 @@ static PyObject *py_pointwise_build(PyObject *self, PyObject *args, PyObject *kw
         goto cleanup;
     }
     Py_BEGIN_ALLOW_THREADS
-    status = wkb_pointwise_alloc(PyArray_DATA(r), PyArray_DATA(V), (size_t)PyArray_SIZE(r), asymptote,
-                                 tail_power, &curve, &err);
+    status = wkb_pointwise_alloc_wall(PyArray_DATA(r), PyArray_DATA(V), (size_t)PyArray_SIZE(r), asymptote,
+                                      tail_power, inner_wall, &curve, &err);
     Py_END_ALLOW_THREADS
     if (status) {
         raise_status(&err);
@@ -302,9 +304,11 @@ static PyObject *py_pointwise_build(PyObject *self, PyObject *args, PyObject *kw
         goto cleanup;
     }
     {
-        double D, n, Cn;
+        double D, n, Cn, A, B, C;
+        int form;
         wkb_pointwise_tail(curve, &D, &n, &Cn);
-        result = Py_BuildValue("(Oddd)", capsule, D, n, Cn);
+        wkb_pointwise_wall(curve, &form, &A, &B, &C);
+        result = Py_BuildValue("(Oddd(iddd))", capsule, D, n, Cn, form, A, B, C);
     }
 cleanup:
     Py_XDECREF(capsule);
@@ -1273,7 +1277,8 @@ static PyMethodDef core_methods[] = {
     {"param_derivatives", (PyCFunction)(void (*)(void))py_param_derivatives, METH_VARARGS | METH_KEYWORDS,
      "param_derivatives(model, params, r, curve=None) -> array (len(r), n_params) of dV/dp"},
     {"pointwise_build", (PyCFunction)(void (*)(void))py_pointwise_build, METH_VARARGS | METH_KEYWORDS,
-     "pointwise_build(r, V, asymptote=nan, tail_power=nan) -> (curve, asymptote, tail_power, tail_coefficient)"},
+     "pointwise_build(r, V, asymptote=nan, tail_power=nan, inner_wall=0) -> (curve, asymptote, tail_power, "
+     "tail_coefficient, (wall form, A, B, C))"},
     {"airy", (PyCFunction)(void (*)(void))py_airy, METH_VARARGS | METH_KEYWORDS,
      "airy(z, errors=False) -> (Ai, Ai', Bi, Bi') from GSL, arrays shaped like z; with errors=True\n"
      "((Ai, Ai', Bi, Bi'), (their absolute error estimates)). Valid for -1e6 <= z <= 104."},

@@ -46,7 +46,8 @@
 struct wkb_pointwise {
     size_t n;
     double *r, *V, *M;      /* points and spline second derivatives M_i = S''(r_i) */
-    double wall_A, wall_B, wall_C, wall_width;
+    int wall_form;          /* WKB_WALL_EXPONENTIAL or WKB_WALL_INVERSE_POWER */
+    double wall_A, wall_B, wall_C, wall_width; /* C: the rate (1/A) or the power */
     double D, power, Cn, tail_width;
     double r_min, V_min, r_scan;
 };
@@ -72,8 +73,14 @@ static pw_val spline_piece(const wkb_pointwise *c, size_t i, double x)
 
 static pw_val wall_value(const wkb_pointwise *c, double x)
 {
-    const double e = exp(GSL_MIN(-c->wall_C * (x - c->r[0]), PW_MAX_EXP)) * c->wall_B;
-    pw_val w = {c->wall_A + e, -c->wall_C * e, c->wall_C * c->wall_C * e};
+    const double C = c->wall_C;
+    if (c->wall_form == WKB_WALL_INVERSE_POWER) { /* A + B (r_0/r)^C */
+        const double e = exp(GSL_MIN(C * log(c->r[0] / x), PW_MAX_EXP)) * c->wall_B;
+        pw_val w = {c->wall_A + e, -C * e / x, C * (C + 1) * e / (x * x)};
+        return w;
+    }
+    const double e = exp(GSL_MIN(-C * (x - c->r[0]), PW_MAX_EXP)) * c->wall_B;
+    pw_val w = {c->wall_A + e, -C * e, C * C * e};
     return w;
 }
 
@@ -279,33 +286,36 @@ static int spline_setup(wkb_pointwise *c, double *scratch, wkb_error *err)
     return WKB_SUCCESS;
 }
 
-/* Exponential wall A + B exp(-C (r - r_0)) through the three innermost points. */
+/* Wall through the three innermost points: A + B exp(-C (r - r_0)), or A + B (r_0/r)^C. Both lead to
+   the ratio equation: exponential x = C h_0, k = h_1/h_0; inverse power x = C ln(r_1/r_0),
+   k = ln(r_2/r_1)/ln(r_1/r_0); then B = (V_0 - V_1)/(1 - e^-x) and A = V_0 - B in both. */
 static int fit_wall(wkb_pointwise *c, gsl_root_fsolver *solver, wkb_error *err)
 {
     const double *r = c->r, *V = c->V;
-    const double h0 = r[1] - r[0], h1 = r[2] - r[1];
+    const int power = c->wall_form == WKB_WALL_INVERSE_POWER;
+    const double h0 = power ? log(r[1] / r[0]) : r[1] - r[0], h1 = power ? log(r[2] / r[1]) : r[2] - r[1];
+    const char *form = power ? "inverse-power wall A + B/r^k" : "exponential wall A + B exp(-C r)";
     double x;
     int side, s;
     if (!(V[0] > V[1] && V[1] > V[2]))
         return wkb_fail(err, WKB_EINVAL,
                         "the inner wall does not rise: V must fall with r over the three innermost points, "
-                        "but V=%.10g, %.10g, %.10g cm-1 at r=%.10g, %.10g, %.10g A; no exponential wall "
-                        "A + B exp(-C r) fits (start the points on the repulsive wall)",
-                        V[0], V[1], V[2], r[0], r[1], r[2]);
+                        "but V=%.10g, %.10g, %.10g cm-1 at r=%.10g, %.10g, %.10g A; no %s fits (start the "
+                        "points on the repulsive wall)", V[0], V[1], V[2], r[0], r[1], r[2], form);
     const double q = (V[0] - V[1]) / (V[1] - V[2]);
     s = solve_ratio(solver, q, h1 / h0, &x, &side);
     if (s == WKB_EINVAL && side < 0)
         return wkb_fail(err, WKB_EINVAL,
-                        "the inner wall does not curve upwards: V=%.10g, %.10g, %.10g cm-1 at r=%.10g, "
-                        "%.10g, %.10g A lie on or below a straight line, so no exponential wall "
-                        "A + B exp(-C r) with C > 0 fits (check these points)",
-                        V[0], V[1], V[2], r[0], r[1], r[2]);
+                        "the inner wall does not curve upwards enough: V=%.10g, %.10g, %.10g cm-1 at r=%.10g, "
+                        "%.10g, %.10g A, so no %s with a positive %s fits (check these points%s)",
+                        V[0], V[1], V[2], r[0], r[1], r[2], form, power ? "power k" : "rate C",
+                        power ? ", or use the exponential wall" : "");
     if (s == WKB_EINVAL)
         return wkb_fail(err, WKB_EINVAL,
-                        "the inner wall is too steep to fit A + B exp(-C r): V=%.10g, %.10g, %.10g cm-1 at "
-                        "r=%.10g, %.10g, %.10g A", V[0], V[1], V[2], r[0], r[1], r[2]);
+                        "the inner wall is too steep to fit an %s: V=%.10g, %.10g, %.10g cm-1 at "
+                        "r=%.10g, %.10g, %.10g A", form, V[0], V[1], V[2], r[0], r[1], r[2]);
     if (s)
-        return wkb_fail(err, s, "the fit of the inner wall A + B exp(-C r) did not converge");
+        return wkb_fail(err, s, "the fit of the inner %s did not converge", form);
     c->wall_C = x / h0;
     c->wall_B = (V[0] - V[1]) / (-expm1(-x));
     c->wall_A = V[0] - c->wall_B;
@@ -435,13 +445,22 @@ static void find_inner_scan(wkb_pointwise *c)
         scale = c->V[0] - c->V_min;
     const double target = c->V_min + PW_SCAN_DEPTHS * scale;
     double r = c->r[0];
-    if (target > c->V[0])
-        r = c->r[0] - log((target - c->wall_A) / c->wall_B) / c->wall_C;
+    if (target > c->V[0]) {
+        const double ln_ratio = log((target - c->wall_A) / c->wall_B); /* > 0 */
+        r = c->wall_form == WKB_WALL_INVERSE_POWER ? c->r[0] * exp(-ln_ratio / c->wall_C)
+                                                   : c->r[0] - ln_ratio / c->wall_C;
+    }
     c->r_scan = GSL_MAX(r, 1e-3 * c->r[0]);
 }
 
 int wkb_pointwise_alloc(const double *r, const double *V, size_t n, double asymptote,
                         double tail_power, wkb_pointwise **out, wkb_error *err)
+{
+    return wkb_pointwise_alloc_wall(r, V, n, asymptote, tail_power, WKB_WALL_EXPONENTIAL, out, err);
+}
+
+int wkb_pointwise_alloc_wall(const double *r, const double *V, size_t n, double asymptote,
+                             double tail_power, int inner_wall, wkb_pointwise **out, wkb_error *err)
 {
     wkb_pointwise *c = NULL;
     double *scratch = NULL;
@@ -451,6 +470,9 @@ int wkb_pointwise_alloc(const double *r, const double *V, size_t n, double asymp
     *out = NULL;
     if ((status = check_points(r, V, n, err)))
         return status;
+    if (inner_wall != WKB_WALL_EXPONENTIAL && inner_wall != WKB_WALL_INVERSE_POWER)
+        return wkb_fail(err, WKB_EINVAL, "inner wall form %d is not known: use %d (exponential) or %d "
+                        "(inverse power)", inner_wall, WKB_WALL_EXPONENTIAL, WKB_WALL_INVERSE_POWER);
     if (!(c = calloc(1, sizeof *c)) || !(c->r = malloc(n * sizeof(double))) ||
         !(c->V = malloc(n * sizeof(double))) || !(c->M = malloc(n * sizeof(double))) ||
         !(scratch = malloc(2 * n * sizeof(double))) ||
@@ -459,6 +481,7 @@ int wkb_pointwise_alloc(const double *r, const double *V, size_t n, double asymp
         goto cleanup;
     }
     c->n = n;
+    c->wall_form = inner_wall;
     for (size_t i = 0; i < n; i++)
         c->r[i] = r[i], c->V[i] = V[i];
     if ((status = spline_setup(c, scratch, err)) || (status = fit_wall(c, solver, err)) ||
@@ -491,4 +514,12 @@ void wkb_pointwise_tail(const wkb_pointwise *curve, double *asymptote, double *p
     *asymptote = curve->D;
     *power = curve->power;
     *coefficient = curve->Cn;
+}
+
+void wkb_pointwise_wall(const wkb_pointwise *curve, int *form, double *A, double *B, double *C)
+{
+    *form = curve->wall_form;
+    *A = curve->wall_A;
+    *B = curve->wall_B;
+    *C = curve->wall_C;
 }

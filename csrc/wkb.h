@@ -131,6 +131,15 @@ extern const wkb_model wkb_models_mlr[WKB_MLR_MAX_BETAS]; /* [K-1]: "mlrK" */
    point or the failed fit (and what to give instead); WKB_ENOMEM; WKB_ENOCONV. */
 int wkb_pointwise_alloc(const double *r, const double *V, size_t n, double asymptote,
                         double tail_power, wkb_pointwise **out, wkb_error *err);
+/* Forms of the inner wall of a point-wise curve (continuation inside its first point r_0). */
+enum { WKB_WALL_EXPONENTIAL = 0, /* A + B exp(-C (r - r_0)), C > 0 in 1/angstrom */
+       WKB_WALL_INVERSE_POWER = 1 /* A + B (r_0/r)^C, C > 0 the power */ };
+/* As wkb_pointwise_alloc, with the inner wall's form chosen (WKB_WALL_*); both forms pass through
+   the three innermost points. WKB_EINVAL also for an unknown form. */
+int wkb_pointwise_alloc_wall(const double *r, const double *V, size_t n, double asymptote,
+                             double tail_power, int inner_wall, wkb_pointwise **out, wkb_error *err);
+/* The inner wall: its form (WKB_WALL_*), A and B (cm-1) and C (rate in 1/angstrom, or power). */
+void wkb_pointwise_wall(const wkb_pointwise *curve, int *form, double *A, double *B, double *C);
 /* Frees a curve; accepts NULL. */
 void wkb_pointwise_free(wkb_pointwise *curve);
 /* The fitted or given tail: asymptote D, power n, coefficient C_n (V = D - C_n/r^n). */

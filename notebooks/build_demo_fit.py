@@ -102,37 +102,13 @@ for label, prediction in predictions.items():
 ## The potential with its levels, and the normalised residuals"""),
     ("code", """\
 fig, (ax_pot, ax_res) = plt.subplots(1, 2, figsize=(13, 5))
-
-label = observed.isotopologues[0]
-mu = result.masses[label]
-fitted = result.potential
-table = wkbfit.levels(fitted, mu)
-r = np.linspace(0.86 * fitted.re, 4.0 * fitted.re, 800)
-ax_pot.plot(r, fitted(r), color="black", lw=1.5, label="fitted potential")
-ax_pot.axhline(fitted.asymptote, color="grey", ls=":", lw=1, label="asymptote")
-measured = set(observed.v[(observed.isotopologue == label) & (observed.J == 0)].tolist())
-for v, E, r_in, r_out in zip(table.v, table.energy, table.inner_turning_point, table.outer_turning_point):
-    seen = int(v) in measured
-    ax_pot.plot([r_in, r_out], [E, E], color="tab:blue" if seen else "tab:orange", lw=1.0 if seen else 0.7)
-ax_pot.plot([], [], color="tab:blue", label="levels measured (J=0)")
-ax_pot.plot([], [], color="tab:orange", label="levels predicted")
-ax_pot.set_xlim(r[0], r[-1])
-ax_pot.set_ylim(-0.03 * fitted.asymptote, 1.08 * fitted.asymptote)
-ax_pot.set_xlabel("r [angstrom]")
-ax_pot.set_ylabel("V(r), E [cm-1]")
-ax_pot.set_title("%s (INVENTED state): fitted potential and its J=0 levels" % label)
-ax_pot.legend(loc="lower right", fontsize=8)
-
-for k, lab in enumerate(observed.isotopologues):
-    rows = observed.rows_of(lab)
-    ax_res.scatter(result.calculated[rows], result.normalized_residuals[rows], s=18 + 1.5 * observed.J[rows],
-                   marker="os"[k % 2], label="%s (marker size grows with J)" % lab, alpha=0.8)
-for level, style in ((0, "-"), (1, ":"), (-1, ":"), (3, "--"), (-3, "--")):
-    ax_res.axhline(level, color="grey", ls=style, lw=0.8)
-ax_res.set_xlabel("calculated energy [cm-1]")
-ax_res.set_ylabel("(observed - calculated) / uncertainty")
-ax_res.set_title("normalised residuals; standard error %.3f" % result.standard_error)
-ax_res.legend(fontsize=8)
+# the fitted potential with the J=0 levels of both isotopologues between their turning points
+wkbfit.plots.potential(result.potential, {label: result.masses[label] for label in observed.isotopologues},
+                       ax=ax_pot)
+ax_pot.set_title("INVENTED state: fitted potential and its J=0 levels")
+# normalised residuals against energy, with the 1, 2, 3 sigma bands
+result.plot(ax=ax_res, against="energy")
+ax_res.set_title("normalised residuals; sqrt of reduced chi-square %.3f" % result.sqrt_reduced_chi_square)
 fig.tight_layout()
 plt.show()"""),
     ("md", """\

@@ -12,5 +12,6 @@ from .observed import ObservedLevels, read_levels
 from .fitting import fit, FitResult
 from .rkr import RKRTurningPoints, rkr_turning_points, rkr_potential
 from .near_dissociation import near_dissociation_fit, NearDissociationFit
+from . import plots  # figures; matplotlib itself is imported only when one is drawn
 
 __version__ = "0.1.0"

@@ -4,6 +4,7 @@
     wkbfit check DATAFILE [--energy-zero ZERO]
     wkbfit fit DATAFILE MODEL NAME=VALUE ... [--mu MU | --mass LABEL=MU ...] [--fix NAME] [--vary NAME] [-o JSON]
     wkbfit demo
+    wkbfit rkr | compare | curve | predict   (see wkbfit.cli_tools)
 
 User errors (bad numbers, unreadable files, unknown names) print one line to stderr and exit with status 2
 (set WKBFIT_DEBUG=1 to see the traceback instead).
@@ -20,6 +21,7 @@ import warnings
 import numpy as np
 
 from . import _validate
+from . import cli_tools
 from . import potentials as _potentials
 
 __all__ = ["main", "MODELS"]
@@ -96,6 +98,10 @@ def _build_potential(model, assignments):
         if name in values:
             raise UserError("parameter %s is given twice" % name)
         parts = text.split(",")
+        default = dict(signature)[name]
+        if isinstance(default, str) and text == default:  # a named default, such as the MLR r_ref=re
+            values[name] = text
+            continue
         values[name] = (_number(parts[0], name) if len(parts) == 1
                         else [_number(p, name) for p in parts])
     missing = [n for n, default in signature if default is REQUIRED and n not in values]
@@ -163,7 +169,10 @@ def _cmd_levels(args, out):
     mu = args.mu if args.mu is not None else args.isotopologue
     Js = _int_list(args.J, "-J")
     vs = None if args.v is None else _int_list(args.v, "-v", _validate.MAX_LEVELS)
-    table = levels(pot, mu, v=vs, J=Js if len(Js) > 1 else Js[0], method=args.method, langer=args.langer)
+    if args.method == "exact" and args.order != 1:
+        raise UserError("--order applies to --method wkb only")
+    order = {"order": args.order} if args.method == "wkb" else {}
+    table = levels(pot, mu, v=vs, J=Js if len(Js) > 1 else Js[0], method=args.method, langer=args.langer, **order)
     if args.csv:
         cols = table.columns
         print(",".join(cols), file=out)
@@ -227,6 +236,8 @@ def _cmd_fit(args, out):
     from .fitting import fit
     from .observed import read_levels
     path = args.output or _default_json_path(args.datafile)
+    if args.output_dir is not None:
+        path = cli_tools._output_path(args, os.path.basename(path) if args.output is None else path)
     _refuse_overwrite(path, args.force)
     obs = read_levels(args.datafile, energy_zero=args.energy_zero)
     pot = _build_potential(args.model, args.params)
@@ -243,6 +254,10 @@ def _cmd_fit(args, out):
         print(_prediction_text(result, target, args.near), file=out)
     result.save_json(path)
     print("\nfit result written to %s" % path, file=out)
+    poor = cli_tools.poor_fit_message(result, args.sigma_limit)
+    if poor:
+        print("wkbfit: error: %s" % poor, file=sys.stderr)
+        return cli_tools.EXIT_POOR_FIT
     return 0 if _fit_ok(result) else 1
 
 
@@ -367,7 +382,8 @@ def _parser():
         "Units: energies cm-1, distances angstrom, masses u."),
         epilog="Run 'wkbfit COMMAND --help' for the options of a command. Exit status: 0 done, 1 a fit did not "
                "converge (its best point is still reported), 2 a mistake in the command or the data (one line on "
-               "stderr; WKBFIT_DEBUG=1 shows the traceback).")
+               "stderr; WKBFIT_DEBUG=1 shows the traceback), 3 a fit converged to a sqrt of reduced chi-square "
+               "above --sigma-limit (default %g)." % cli_tools.SIGMA_LIMIT)
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
 
     p = sub.add_parser("levels", help="list the levels of a potential",
@@ -386,6 +402,8 @@ def _parser():
                    help="wkb (first-order semiclassical, default) or exact (radial Schroedinger equation)")
     p.add_argument("--langer", action="store_true", help="use (J+1/2)^2 for the centrifugal term (WKB only)")
     p.add_argument("--csv", action="store_true", help="print comma-separated values instead of a table")
+    p.add_argument("--order", type=int, choices=(1, 2), default=1,
+                   help="WKB order: 1 (default) or 2 (with the second-order term)")
     p.set_defaults(run=_cmd_levels)
 
     def data_options(p):
@@ -423,7 +441,7 @@ def _parser():
                         "quality), wkb (first-order only, fast) or exact (every iteration exact)")
     scale = p.add_mutually_exclusive_group()
     scale.add_argument("--scale-uncertainties", dest="scale_uncertainties", action="store_const", const=True,
-                       default=None, help="scale parameter uncertainties by the dimensionless standard error")
+                       default=None, help="scale parameter uncertainties by the sqrt of reduced chi-square")
     scale.add_argument("--no-scale-uncertainties", dest="scale_uncertainties", action="store_const", const=False,
                        help="take the data uncertainties as they are")
     p.add_argument("--predict", action="append", metavar="LABEL_OR_MU",
@@ -435,6 +453,11 @@ def _parser():
                    help="where to write the fit result (default: DATAFILE name with -fit.json, in the current "
                         "directory); an existing file is kept unless --force")
     p.add_argument("--force", action="store_true", help="replace an existing result file")
+    p.add_argument("--output-dir", metavar="DIR", default=None,
+                   help="directory for the fit result (created if missing)")
+    p.add_argument("--sigma-limit", type=lambda s: _number(s, "--sigma-limit"), default=cli_tools.SIGMA_LIMIT,
+                   metavar="S", help="a converged fit whose sqrt of reduced chi-square exceeds S is reported as "
+                                     "failed, exit status 3 (default %g)" % cli_tools.SIGMA_LIMIT)
     p.set_defaults(run=_cmd_fit)
 
     p = sub.add_parser("demo", help="fit the shipped INVENTED demo data",
@@ -451,6 +474,7 @@ def _parser():
                                                           "kept unless --force)")
     p.add_argument("--force", action="store_true", help="replace an existing result file")
     p.set_defaults(run=_cmd_demo)
+    cli_tools.add_subcommands(sub, models_help, list(MODELS))
     return parser
 
 

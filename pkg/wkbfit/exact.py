@@ -16,7 +16,9 @@ import numpy as np
 from . import _core, _validate
 from .levels import LevelTable, levels as _levels
 from .masses import as_reduced_mass
-from .potentials import Potential
+from .potentials import Potential, PointwisePotential
+from .coverage import check_levels
+from ._warn import warn as _warn
 
 __all__ = ["exact_levels", "exact_wavefunction", "compare_wkb_exact", "WKBComparison"]
 
@@ -89,7 +91,8 @@ def exact_levels(potential, mu, vs=None, Js=(0,), *, tolerance=DEFAULT_TOLERANCE
     vs = None if vs is None else _ints(vs, "v")
     tolerance = _positive("tolerance", tolerance)
     min_binding = _positive("min_binding", min_binding)
-    res = _core_call(potential, mu, vs, Js, tolerance, min_binding)
+    pointwise = isinstance(potential, PointwisePotential)  # wavefunctions to check the reach beyond the points
+    res = _core_call(potential, mu, vs, Js, tolerance, min_binding, **({"want_wavefunctions": True} if pointwise else {}))
     cols = {c: res[c] for c in ("v", "J", "energy", "binding_energy", "inner_turning_point",
                                 "outer_turning_point", "Bv", "dEdv", "error")}
     counts = {J: int(c) for J, c in zip(Js, res["count"].tolist())}
@@ -98,14 +101,15 @@ def exact_levels(potential, mu, vs=None, Js=(0,), *, tolerance=DEFAULT_TOLERANCE
              "bound levels: " + ", ".join("J=%d: %d" % (J, c) for J, c in counts.items())]
     table = LevelTable(cols, mu=mu, method="exact", potential=potential, vD={}, notes=notes)
     table.bound_counts = counts
+    check_levels(table, res.get("wavefunctions"))
     worst = np.nanmax(table.error) if len(table) else 0.0
     if worst > 10 * tolerance:
         i = int(np.nanargmax(table.error))
-        warnings.warn("exact level v=%d, J=%d (bound by %.3g cm-1) has an estimated error of %.2g cm-1, above "
+        _warn("exact level v=%d, J=%d (bound by %.3g cm-1) has an estimated error of %.2g cm-1, above "
                       "the tolerance %.2g: the accuracy is limited by round-off in the recurrence (about "
                       "1e-16 De/h^2 for a well of depth De), or, for a level bound by less than min_binding, "
                       "by the extent of the grid" % (table.v[i], table.J[i], table.binding_energy[i], worst,
-                                                      tolerance), RuntimeWarning, stacklevel=2)
+                                                      tolerance), RuntimeWarning)
     return table
 
 
@@ -182,29 +186,17 @@ class WKBComparison:
 
     def to_text(self, uncertainty=None):
         """A plain-text table; with `uncertainty` (cm-1) a last column says whether WKB is within it."""
-        head = "%4s %4s %18s %18s %13s %10s %14s" % ("v", "J", "WKB [cm-1]", "exact [cm-1]",
-                                                   "WKB-exact", "exact err", "binding [cm-1]")
-        if uncertainty is not None:
-            ok = self.good_enough(uncertainty)
-            head += "  within %.3g" % float(np.max(uncertainty))
-        lines = ["WKB (order %s) versus exact levels of %r, mu = %.10g u"
-                 % (getattr(self, "order", 1), self.potential, self.mu), head]
-        for i in range(len(self)):
-            line = "%4d %4d %18.8f %18.8f %13.3e %10.1e %14.8g" % (
-                self.v[i], self.J[i], self.wkb_energy[i], self.exact_energy[i], self.difference[i],
-                self.exact_error[i], self.binding_energy[i])
-            if uncertainty is not None:
-                line += "  %s" % ("yes" if ok[i] else "NO")
-            lines.append(line)
-        if len(self):
-            v, J, d = self.largest_difference()
-            lines.append("largest |WKB - exact| = %.3e cm-1 at v=%d, J=%d" % (abs(d), v, J))
-        if self.only_exact:
-            lines.append("bound only in the exact calculation: " +
-                         ", ".join("v=%d J=%d" % k for k in self.only_exact))
-        if self.only_wkb:
-            lines.append("bound only in WKB: " + ", ".join("v=%d J=%d" % k for k in self.only_wkb))
-        return "\n".join(lines)
+        from . import reports
+        return reports.comparison_text(self, uncertainty)
+
+    def _repr_html_(self):
+        from . import reports
+        return reports.comparison_html(self)
+
+    def plot(self, ax=None, **options):
+        """|WKB - exact| level by level (`wkbfit.plots.wkb_vs_exact`)."""
+        from . import plots
+        return plots.wkb_vs_exact(self, ax=ax, **options)
 
     def __str__(self):
         return self.to_text()

@@ -24,6 +24,7 @@ from . import corrected as _corrected
 from . import method_error as _method_error
 from .reports import _frozen, _atomic_write
 from .potentials import Potential
+from ._warn import warn as _warn
 
 __all__ = ["fit", "FitResult", "Parameter", "Prediction", "FitWarning"]
 
@@ -125,7 +126,7 @@ def fit(potential, observed, mu=None, *, method="corrected", vary=None, bounds=N
         through a smooth monotone transform (logistic between two bounds, exponential beyond
         one), and must start strictly inside its bounds.
     scale_uncertainties: multiply the covariance by the reduced chi-square chi2/dof, i.e. the
-        uncertainties by the dimensionless standard error (default True). Common practice in
+        uncertainties by the sqrt of reduced chi-square (default True). Common practice in
         spectroscopic fits: the quoted uncertainties then reflect the actual scatter of the
         residuals, including model shortcomings (a WKB model, a too simple potential form) and
         mis-stated measurement uncertainties. With False the uncertainties follow from the
@@ -345,7 +346,8 @@ class FitResult:
       residuals: observed - calculated (cm-1); normalized_residuals: residuals / uncertainty
       fitted_rows: bool array, False for rows not fitted (v=0, J=0 of energy_zero="lowest" data)
       jacobian: d calculated / d p for every parameter (rows x all parameters)
-      chi_square, dof, standard_error (dimensionless, sqrt(chi2/dof); None when dof = 0)
+      chi_square, dof, sqrt_reduced_chi_square (sqrt(chi2/dof), dimensionless; None when dof = 0;
+        also readable as `standard_error`, its earlier name)
       iterations, n_evaluations, status ("converged", "max_iterations", "no_progress"),
       success (status == "converged"), message
       potential: the fitted potential; initial_potential; masses: label -> reduced mass (u)
@@ -376,7 +378,7 @@ class FitResult:
         self.chi_square = float(chi_square)
         n_fit = int(np.count_nonzero(self.fitted_rows))
         self.dof = n_fit - len(self.var_names)
-        self.standard_error = math.sqrt(self.chi_square / self.dof) if self.dof > 0 else None
+        self.sqrt_reduced_chi_square = math.sqrt(self.chi_square / self.dof) if self.dof > 0 else None
         self.iterations = iterations
         self.n_evaluations = n_evaluations
         self.n_infeasible = n_infeasible
@@ -472,8 +474,8 @@ class FitResult:
             self.params[name] = Parameter(name, values[name], unc, vary_flags[k], (lo, hi), initial[name],
                                           determined, note)
         if self.dof == 0:
-            self.dof_note = ("no degrees of freedom (as many fitted levels as varied parameters): the dimensionless "
-                             "standard error is not defined and the uncertainties are not scaled")
+            self.dof_note = ("no degrees of freedom (as many fitted levels as varied parameters): the sqrt of "
+                             "reduced chi-square is not defined and the uncertainties are not scaled")
         else:
             self.dof_note = ""
 
@@ -484,14 +486,19 @@ class FitResult:
         if getattr(self, "method_error_warning", ""):
             warnings.warn(self.method_error_warning, FitWarning, stacklevel=3)
         if self.status != "converged":
-            warnings.warn("the fit did not converge: %s; the result holds the best point reached" % self.message,
-                          FitWarning, stacklevel=3)
+            _warn("the fit did not converge: %s; the result holds the best point reached" % self.message,
+                  FitWarning)
         for name in self.undetermined:
-            warnings.warn("parameter %s: %s" % (name, self.params[name].note), FitWarning, stacklevel=3)
+            _warn("parameter %s: %s" % (name, self.params[name].note), FitWarning)
         if self.dof_note:
-            warnings.warn(self.dof_note, FitWarning, stacklevel=3)
+            _warn(self.dof_note, FitWarning)
 
     # -- simple views -------------------------------------------------------------------
+    @property
+    def standard_error(self):
+        """The earlier name of `sqrt_reduced_chi_square` (kept for code written against it)."""
+        return self.sqrt_reduced_chi_square
+
     @property
     def success(self):
         return self.status == "converged"
@@ -505,6 +512,20 @@ class FitResult:
     def uncertainties(self):
         """One-sigma uncertainties by name (None for fixed or undetermined parameters)."""
         return {n: p.uncertainty for n, p in self.params.items()}
+
+    def to_dataframe(self):
+        """The residual table as a pandas DataFrame: isotopologue, v, J, observed, uncertainty,
+        calculated, residual (cm-1), normalized_residual (residual/uncertainty), fitted."""
+        return _reports.residual_dataframe(self)
+
+    def parameters_dataframe(self):
+        """The parameters as a pandas DataFrame indexed by name (value, uncertainty, unit, ...)."""
+        return _reports.parameter_dataframe(self)
+
+    def plot(self, ax=None, **options):
+        """The normalised residuals (`wkbfit.plots.residuals`)."""
+        from . import plots
+        return plots.residuals(self, ax=ax, **options)
 
     def __repr__(self):
         return "<FitResult %s: %s, %d levels, chi2=%.6g, dof=%d, %s>" % (
@@ -761,6 +782,11 @@ class Prediction:
 
     def _repr_html_(self):
         return _reports.prediction_html(self)
+
+    def plot(self, ax=None, **options):
+        """The near-dissociation plot of these levels (`wkbfit.plots.near_dissociation`)."""
+        from . import plots
+        return plots.near_dissociation(self, ax=ax, **options)
 
 # ------------------------------------------------------------------------------ helpers
 def _stop_message(stop, test, iterations, max_iterations, decrease, n_infeasible, last_infeasible):

@@ -11,6 +11,7 @@ import numpy as np
 from . import _core, _validate
 from .masses import as_reduced_mass
 from .potentials import Potential
+from .coverage import check_levels
 
 __all__ = ["LevelTable", "levels"]
 
@@ -96,20 +97,9 @@ class LevelTable:
 
     def to_text(self, columns=("v", "J", "energy", "binding_energy", "dEdv", "Bv",
                                "inner_turning_point", "outer_turning_point")):
-        """A plain-text table, one level per line."""
-        head = "  ".join("%14s" % ("%s%s" % (c, " [%s]" % _UNITS[c] if _UNITS[c] else "")) for c in columns)
-        lines = ["%s levels of %r, mu = %.10g u" % (self.method.upper(), self.potential, self.mu), head]
-        for i in range(len(self)):
-            cells = []
-            for c in columns:
-                x = getattr(self, c)[i]
-                cells.append("%14d" % x if c in ("v", "J") else "%14.6f" % x if abs(x) < 1e7 else "%14.6e" % x)
-            lines.append("  ".join(cells))
-        for J, vD in sorted(self.vD_by_J.items()):
-            lines.append("J=%d: quantum number at dissociation vD = %s" % (
-                J, "%.6f" % vD if vD is not None else "not defined (no bound levels)"))
-        lines.extend(self.notes)
-        return "\n".join(lines)
+        """A plain-text table, one level per line: a line of names, a line of units, aligned columns."""
+        from . import reports
+        return reports.level_table_text(self, list(columns))
 
     def __str__(self):
         return self.to_text()
@@ -118,13 +108,13 @@ class LevelTable:
         return "<LevelTable %s: %d levels, mu=%.8g u>" % (self.method, len(self), self.mu)
 
     def _repr_html_(self):
-        cols = ("v", "J", "energy", "binding_energy", "dEdv", "Bv", "inner_turning_point", "outer_turning_point")
-        rows = "".join("<tr>%s</tr>" % "".join(
-            "<td>%s</td>" % (int(getattr(self, c)[i]) if c in ("v", "J") else "%.6f" % getattr(self, c)[i])
-            for c in cols) for i in range(len(self)))
-        head = "".join("<th>%s%s</th>" % (c, " [%s]" % _UNITS[c] if _UNITS[c] else "") for c in cols)
-        return "<table><caption>%s levels, mu = %.8g u</caption><tr>%s</tr>%s</table>" % (
-            self.method.upper(), self.mu, head, rows)
+        from . import reports
+        return reports.level_table_html(self)
+
+    def plot(self, ax=None, **options):
+        """The potential with these levels between their turning points (`wkbfit.plots.potential`)."""
+        from . import plots
+        return plots.potential(self.potential, levels=self, ax=ax, **options)
 
 
 def _as_int_list(x, name):
@@ -231,8 +221,10 @@ def _wkb_levels(potential, mu, vs, Js, langer, maslov, order=1, max_levels=_vali
     _check_levels(cols, Js)
     cols["J"] = np.asarray(Js)[cols["rot_index"]]
     vD = {J: (None if math.isnan(x) else float(x)) for J, x in zip(Js, np.atleast_1d(cols["vD"]))}
-    return LevelTable(cols, mu=mu, method="wkb" if order == 1 else "wkb2", potential=potential, vD=vD,
-                      notes=cols.get("notes", ()))
+    table = LevelTable(cols, mu=mu, method="wkb" if order == 1 else "wkb2", potential=potential, vD=vD,
+                       notes=cols.get("notes", ()))
+    check_levels(table)  # levels reaching beyond a point-wise curve's points
+    return table
 
 
 def _second_order_by_level(model, params, curve, mu, rot, vs, m_in, m_out, Js, first_error):

@@ -152,6 +152,10 @@ class ObservedLevels:
             len(self), len(labels), "" if len(labels) == 1 else "s", _names(labels), self.energy_zero,
             ", from %s" % self.source if self.source else "")
 
+    def _repr_html_(self):
+        from . import reports
+        return reports.observed_html(self)
+
     def __str__(self):
         lines = [repr(self)]
         lines.append("%-14s %5s %5s %16s %12s" % ("isotopologue", "v", "J", "energy [cm-1]", "sigma [cm-1]"))

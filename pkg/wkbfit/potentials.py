@@ -205,24 +205,33 @@ class PoschlTeller(Potential):
 class PointwisePotential(Potential):
     """A potential known at points (r in angstrom, V in cm-1, in the user's own energy zero).
 
-    Inside the data range a cubic spline with not-a-knot end conditions joins the points
-    (it interpolates every point). Below the first point an exponential wall
-    A + B exp(-C r) through the three innermost points continues it, and beyond the last
-    point an inverse-power tail D - C_n/r^n. The asymptote D and the power n are used
-    when given and otherwise fitted exactly to the outermost points (D and n unknown: the
-    last three points; one unknown: the last two; none: the last point); `tail` reports
-    the result. Each join is continuous to the second derivative: over one interval
-    outside the data range (width r[1] - r[0], at most r[0]/2, on the wall side;
-    r[-1] - r[-2] on the tail side) the continued end cubic of the spline is blended into
-    the extrapolation with a quintic smoothstep weight.
+    Between the points: a cubic spline through every point (not-a-knot ends). Outside them the
+    curve is continued by formulas, which are guesses, not data (levels that reach there are
+    reported by an ExtrapolationWarning):
 
-    At least 5 points are needed; r must be > 0 and strictly increasing, and the first
-    three points must lie on the repulsive wall (V falling with r and curving upwards). The arrays given are copied.
+    inner_wall: how the curve goes on inside the first point, passing through the three innermost
+        points (which must fall with r and curve upwards):
+        "exponential"    A + B exp(-C (r - r_0)), a Born-Mayer-like wall (the default);
+        "inverse_power"  A + B (r_0/r)^k, softer at small r.
+    outer_tail: how it goes on beyond the last point: "inverse_power", D - C_n/r^n, the long-range
+        form (the only one so far). The asymptote D and the power n are used when given
+        (asymptote=..., tail_power=...) and otherwise solved for from the outermost points (both
+        unknown: the last three; one: the last two); `tail` reports the result, `wall` the wall.
+
+    Each continuation is joined to the spline with matching value, slope and curvature: over one
+    interval beyond the end point (inside: r[1] - r[0], at most r[0]/2; outside: r[-1] - r[-2]) the
+    extended end cubic fades into the formula with a quintic smoothstep weight.
+
+    At least 5 points are needed; r must be > 0 and strictly increasing. The arrays given are copied.
     """
 
     model = "pointwise"
+    #: the forms of the inner wall, by name (their codes in the core)
+    INNER_WALLS = ("exponential", "inverse_power")
+    OUTER_TAILS = ("inverse_power",)
 
-    def __init__(self, r, V, asymptote=None, tail_power=None):
+    def __init__(self, r, V, asymptote=None, tail_power=None, *, inner_wall="exponential",
+                 outer_tail="inverse_power"):
         r = _validate.real_array(r, "r", "arrays of numbers (distances in angstrom)", finite=False)
         V = _validate.real_array(V, "V", "arrays of numbers (energies in cm-1)", finite=False)
         if r.ndim != 1 or V.ndim != 1 or r.shape != V.shape:
@@ -231,18 +240,27 @@ class PointwisePotential(Potential):
         for name, val in (("asymptote", asymptote), ("tail_power", tail_power)):
             if val is not None:
                 _validate.real(val, name, "a finite number or None (to fit it)")
+        if inner_wall not in self.INNER_WALLS:
+            raise ValueError("inner_wall=%r is not known; use one of %s" % (inner_wall, ", ".join(
+                repr(w) for w in self.INNER_WALLS)))
+        if outer_tail not in self.OUTER_TAILS:
+            raise ValueError("outer_tail=%r is not known; use %s" % (outer_tail, ", ".join(
+                repr(t) for t in self.OUTER_TAILS)))
         try:
-            self._curve_capsule, D, n, Cn = _core.pointwise_build(
+            self._curve_capsule, D, n, Cn, wall = _core.pointwise_build(
                 r, V, math.nan if asymptote is None else float(asymptote),
-                math.nan if tail_power is None else float(tail_power))
+                math.nan if tail_power is None else float(tail_power), self.INNER_WALLS.index(inner_wall))
         except RuntimeError as exc:
             # a numerical failure caused by the points given: the user can fix it, so a ValueError
             raise ValueError("the points do not define a usable curve: %s" % exc) from None
         r.setflags(write=False)
         V.setflags(write=False)
         self.r, self.V = r, V
-        self.tail = {"asymptote": D, "tail_power": n, "tail_coefficient": Cn,
+        self.tail = {"form": outer_tail, "asymptote": D, "tail_power": n, "tail_coefficient": Cn,
                      "asymptote_fitted": asymptote is None, "tail_power_fitted": tail_power is None}
+        _, A, B, C = wall
+        self.wall = {"form": inner_wall, "offset": A, "height": B,
+                     ("power" if inner_wall == "inverse_power" else "rate"): C}
         super().__init__()
 
     def _curve(self):
@@ -331,8 +349,10 @@ class MLR(Potential):
     so that De - V -> u(r) at large r. De in cm-1; re, r_ref in angstrom; C_m in cm-1 angstrom^m
     (C6 > 0; C8, C10 >= 0, 0 leaves the term out; u(re) < 2 De); betas: 1 to 8 coefficients
     (dimensionless). p and q are whole numbers; p must exceed 2 and the spread of the inverse
-    powers (p >= 5 with C10 > 0), since V = De - u(r) + O(C6 r^-(6+p)). r_ref=None takes the
-    starting re; r_ref is then a parameter of its own and does not follow re when re changes.
+    powers (p >= 5 with C10 > 0), since V = De - u(r) + O(C6 r^-(6+p)). r_ref: the reference
+    distance of the y variables, a distance in angstrom or the string "re" (the default), which takes
+    the re given here; it is a parameter of its own and does not follow re when re changes later
+    (in a fit or with_params). r_ref=None still means "re" but is deprecated.
     u(r) is undamped: no damping functions in this version.
 
     Fixed in fits by default: p, q, r_ref and the long-range coefficients C6, C8, C10 (common
@@ -342,10 +362,19 @@ class MLR(Potential):
     model = "mlr"  # the family; each object uses the core's model "mlrK" for its K coefficients
     fixed_by_default = ("C6", "C8", "C10", "p", "q", "r_ref")
 
-    def __init__(self, De, re, C6, betas=None, C8=0.0, C10=0.0, p=5, q=3, r_ref=None, **coefficients):
+    def __init__(self, De, re, C6, betas=None, C8=0.0, C10=0.0, p=5, q=3, r_ref="re", **coefficients):
         values = _exponent_coefficients("MLR", betas, coefficients)
         self.model = "mlr%d" % len(values)
-        super().__init__(De=De, re=re, C6=C6, C8=C8, C10=C10, p=p, q=q, r_ref=re if r_ref is None else r_ref,
+        if r_ref is None:
+            from ._warn import warn
+            warn('MLR(r_ref=None) is deprecated: write r_ref="re" for the reference distance at re, or give a '
+                 'distance in angstrom', DeprecationWarning)
+            r_ref = "re"
+        if isinstance(r_ref, str):
+            if r_ref != "re":
+                raise ValueError('MLR r_ref=%r is not valid: give a distance in angstrom or the string "re"' % (r_ref,))
+            r_ref = re
+        super().__init__(De=De, re=re, C6=C6, C8=C8, C10=C10, p=p, q=q, r_ref=r_ref,
                          **{"beta%d" % i: b for i, b in enumerate(values)})
 
     @property

@@ -15,7 +15,13 @@ from .observed import read_levels
 from .potentials import Potential
 
 #: units of the parameters of the built-in models (by parameter name)
-_UNITS = {"De": "cm-1", "re": "A", "a": "1/A", "n": "", "m": ""}
+_UNITS = {"De": "cm-1", "re": "A", "a": "1/A", "n": "", "m": "", "C6": "cm-1 A^6", "C8": "cm-1 A^8",
+          "C10": "cm-1 A^10", "r_ref": "A", "p": "", "q": ""}
+#: the name of sqrt(chi2/dof) in reports, HTML, help texts and the JSON key
+STATISTIC_NAME = "sqrt of reduced chi-square"
+STATISTIC_KEY = "sqrt_reduced_chi_square"
+#: the key the same number had in files written before (read, never written)
+_OLD_STATISTIC_KEY = "standard_error"
 #: normalised residuals beyond this are flagged in the report (common practice: 3 sigma)
 _LARGE_RESIDUAL = 3.0
 #: method errors above this fraction of the uncertainty are listed (wkbfit.method_error.FLAG_FRACTION)
@@ -53,8 +59,8 @@ def fit_report_text(result):
         remark = "; ".join(x for x in (bounds, p.note if p.note != "fixed" else "") if x)
         lines.append("  %-6s %-6s %22.12g %s %22.12g  %s" % (name, unit, p.value, unc, p.initial, remark))
     if result.scale_uncertainties and result.dof > 0:
-        lines.append("  Uncertainties are one standard deviation, scaled by the dimensionless standard error "
-                     "%.4g (scale_uncertainties=True)." % result.standard_error)
+        lines.append("  Uncertainties are one standard deviation, scaled by the %s "
+                     "%.4g (scale_uncertainties=True)." % (STATISTIC_NAME, result.sqrt_reduced_chi_square))
     else:
         lines.append("  Uncertainties are one standard deviation from the stated measurement uncertainties "
                      "(not scaled).")
@@ -72,8 +78,9 @@ def fit_report_text(result):
     lines.append("  fitted levels %d, varied parameters %d, degrees of freedom %d" % (
         n_fit, len(result.var_names), result.dof))
     lines.append("  chi-square %.8g" % result.chi_square)
-    lines.append("  dimensionless standard error sqrt(chi2/dof) %s" % (
-        "%.6g" % result.standard_error if result.standard_error is not None else "not defined (dof = 0)"))
+    lines.append("  %s, sqrt(chi2/dof), %s" % (STATISTIC_NAME,
+        "%.6g" % result.sqrt_reduced_chi_square if result.sqrt_reduced_chi_square is not None
+        else "not defined (dof = 0)"))
     r = result.residuals[result.fitted_rows]
     lines.append("  rms residual %.6g cm-1, largest |obs - calc| %.6g cm-1" % (
         float(np.sqrt(np.mean(r ** 2))), float(np.max(np.abs(r)))))
@@ -153,28 +160,23 @@ def fit_report_html(result):
             e(p.note if p.note != "fixed" else "")))
     params = ("<table><caption>Parameters (1 sigma%s)</caption><tr><th>name</th><th>unit</th><th>value</th>"
               "<th>uncertainty</th><th>initial</th><th>remarks</th></tr>%s</table>" % (
-                  ", scaled by the standard error" if result.scale_uncertainties and result.dof > 0 else "",
+                  ", scaled by the " + STATISTIC_NAME if result.scale_uncertainties and result.dof > 0 else "",
                   "".join(rows)))
     corr = "".join("<tr><td>%s</td><td>%s</td><td>%+.4f</td></tr>" % (e(a), e(b), r)
                    for a, b, r in result._sorted_correlations())
     corr = "<table><caption>Correlations</caption><tr><th>p1</th><th>p2</th><th>r</th></tr>%s</table>" % corr
-    stats = ("<p>Status: <b>%s</b> &mdash; %s<br>chi-square %.6g, dof %d, dimensionless standard error %s, "
+    stats = ("<p>Status: <b>%s</b> &mdash; %s<br>chi-square %.6g, dof %d, %s %s, "
              "iterations %d</p>" % (e(result.status), e(result.message), result.chi_square, result.dof,
-                                    "%.5g" % result.standard_error if result.standard_error is not None else "n/a",
+                                    STATISTIC_NAME, "%.5g" % result.sqrt_reduced_chi_square
+                                    if result.sqrt_reduced_chi_square is not None else "n/a",
                                     result.iterations))
     obs = result.observed
-    res = []
-    for i in range(len(obs)):
-        large = result.fitted_rows[i] and abs(result.normalized_residuals[i]) > _LARGE_RESIDUAL
-        style = ' style="background:#fdd"' if large else ""
-        res.append("<tr%s><td>%s</td><td>%d</td><td>%d</td><td>%.6f</td><td>%.4g</td><td>%.6f</td><td>%.6f</td>"
-                   "<td>%.3f</td></tr>" % (style, e(obs.isotopologue[i] or "-"), obs.v[i], obs.J[i],
-                                           obs.energy[i], obs.uncertainty[i], result.calculated[i],
-                                           result.residuals[i], result.normalized_residuals[i]))
-    resid = ("<details><summary>Residuals (%d levels; red: |obs-calc|/sigma &gt; %g)</summary><table><tr>"
-             "<th>isotopologue</th><th>v</th><th>J</th><th>observed</th><th>sigma</th><th>calculated</th>"
-             "<th>obs-calc</th><th>/sigma</th></tr>%s</table></details>" % (len(obs), _LARGE_RESIDUAL,
-                                                                             "".join(res)))
+    cols = residual_columns(result)
+    flags = np.array(["<<" if f and abs(x) > _LARGE_RESIDUAL else "" for f, x in
+                      zip(result.fitted_rows, result.normalized_residuals)], dtype=object)
+    resid = html_table(cols + [("flag", "", flags, "%s")],
+                       "Residuals (observed - calculated) of %d levels; '<<' marks |obs-calc|/sigma > %g"
+                       % (len(obs), _LARGE_RESIDUAL))
     title = "<h4>Fit of %s to %d levels (%s, energy zero %s)</h4>" % (
         e(type(result.potential).__name__), len(obs), e(result.method), e(result.energy_zero))
     return title + stats + params + corr + resid
@@ -184,7 +186,8 @@ def fit_result_to_dict(result):
     """The whole result as plain JSON-ready data (NaN and infinities as None)."""
     return _jsonable({
         "format": FORMAT, "version": FORMAT_VERSION,
-        "potential": {"class": type(result.potential).__name__, "model": result.potential.model,
+        "potential": {"class": type(result.potential).__name__, "model": type(result.potential).model,
+                      "beta_coefficient_count": len(getattr(result.potential, "betas", ())),
                       "params": result.potential.params, "initial": result.initial_potential.params},
         "parameters": [p.to_dict() for p in result.params.values()],
         "var_names": result.var_names,
@@ -196,7 +199,7 @@ def fit_result_to_dict(result):
         "calculated": result.calculated.tolist(), "residuals": result.residuals.tolist(),
         "normalized_residuals": result.normalized_residuals.tolist(),
         "fitted_rows": result.fitted_rows.tolist(), "jacobian": result.jacobian.tolist(),
-        "chi_square": result.chi_square, "dof": result.dof, "standard_error": result.standard_error,
+        "chi_square": result.chi_square, "dof": result.dof, STATISTIC_KEY: result.sqrt_reduced_chi_square,
         "scale_uncertainties": result.scale_uncertainties, "covariance_scale": result.covariance_scale,
         "condition_number": result.condition_number, "undetermined": result.undetermined,
         "iterations": result.iterations, "n_evaluations": result.n_evaluations, "n_infeasible": result.n_infeasible,
@@ -294,7 +297,9 @@ def _fit_result_from_checked_dict(cls, data):
         setattr(result, key, _frozen(_nan_array(data[key])))
     result.fitted_rows = _frozen(np.array(data["fitted_rows"], dtype=bool))
     result.jacobian = _frozen(_nan_array(data["jacobian"], (len(result.observed), len(result.params))))
-    for key in ("chi_square", "dof", "standard_error", "covariance_scale", "condition_number", "iterations",
+    if STATISTIC_KEY not in data and _OLD_STATISTIC_KEY in data:  # a file written before the rename
+        data = dict(data, **{STATISTIC_KEY: data[_OLD_STATISTIC_KEY]})
+    for key in ("chi_square", "dof", STATISTIC_KEY, "covariance_scale", "condition_number", "iterations",
                 "n_evaluations", "n_infeasible", "predicted_decrease", "status", "message", "dof_note"):
         setattr(result, key, data[key])
     result.undetermined = list(data["undetermined"])
@@ -325,35 +330,18 @@ def _fit_result_from_checked_dict(cls, data):
 def prediction_text(prediction, last=None):
     """A plain-text table; last=N shows only the N levels nearest dissociation."""
     who = "isotopologue %s" % prediction.isotopologue if prediction.isotopologue else "reduced mass"
-    head = ["Predicted levels of %r, %s (mu = %.10g u), J = %d; one-sigma uncertainties" % (
-        prediction.potential, who, prediction.mu, prediction.J), prediction.summary(),
-        "%5s %18s %12s %18s %12s %14s %12s" % ("v", "energy [cm-1]", "+/-", "binding [cm-1]", "+/-",
-                                               "dG(v+1/2)", "+/-")]
+    title = "Predicted levels of %r, %s (mu = %.10g u), J = %d; one-sigma uncertainties\n%s" % (
+        prediction.potential, who, prediction.mu, prediction.J, prediction.summary())
     start = 0 if last is None else max(0, prediction.n_bound - int(last))
-    for v in range(start, prediction.n_bound):
-        if v < len(prediction.spacing):
-            sp = "%14.6f %12.6f" % (prediction.spacing[v], prediction.spacing_uncertainty[v])
-        else:
-            sp = "%14s %12s" % ("-", "-")
-        head.append("%5d %18.6f %12.6f %18.6f %12.6f %s" % (
-            v, prediction.energy[v], prediction.energy_uncertainty[v], prediction.binding_energy[v], prediction.binding_uncertainty[v],
-            sp))
+    cols = [(name, unit, values[start:], fmt) for name, unit, values, fmt in prediction_columns(prediction)]
     if last is not None and start > 0:
-        head.insert(3, "(levels v < %d not shown)" % start)
-    head.extend(prediction.notes)
-    return "\n".join(head)
+        title += "\n(levels v < %d not shown)" % start
+    return text_table(cols, title, prediction.notes)
 
 
 def prediction_html(prediction):
-    rows = []
-    for v in range(prediction.n_bound):
-        sp = ("<td>%.6f</td><td>%.6f</td>" % (prediction.spacing[v], prediction.spacing_uncertainty[v])
-              if v < len(prediction.spacing) else "<td>-</td><td>-</td>")
-        rows.append("<tr><td>%d</td><td>%.6f</td><td>%.6f</td><td>%.6f</td><td>%.6f</td>%s</tr>" % (
-            v, prediction.energy[v], prediction.energy_uncertainty[v], prediction.binding_energy[v], prediction.binding_uncertainty[v],
-            sp))
-    return ("<p>%s</p><table><tr><th>v</th><th>energy</th><th>+/-</th><th>binding</th><th>+/-</th>"
-            "<th>dG(v+1/2)</th><th>+/-</th></tr>%s</table>" % (html.escape(prediction.summary()), "".join(rows)))
+    return "<p>%s</p>%s" % (html.escape(prediction.summary()),
+                            html_table(prediction_columns(prediction), "predicted levels", prediction.notes))
 
 
 def _frozen(arr):
@@ -416,3 +404,205 @@ def _atomic_write(path, text):
         except OSError:
             pass
         raise
+
+
+# ------------------------------------------------------------------------------ generic tables
+#: tables longer than this are folded in HTML: the first and last rows shown, the rest collapsed
+FOLD_HEAD, FOLD_TAIL = 8, 4
+
+
+def _cell(x, fmt):
+    if x is None:
+        return "-"
+    if isinstance(x, (str, np.str_)):
+        return str(x)
+    if isinstance(x, (bool, np.bool_)):
+        return "yes" if x else "no"
+    if isinstance(x, (int, np.integer)):
+        return "%d" % x
+    f = float(x)
+    if not math.isfinite(f):
+        return "-" if math.isnan(f) else ("inf" if f > 0 else "-inf")
+    return fmt % f
+
+
+def text_table(columns, title=None, notes=()):
+    """Aligned plain-text table: columns is a list of (name, unit, values, format).
+
+    A line of units follows the line of names ('-' for dimensionless columns); numbers are
+    right-aligned, every column as wide as its widest cell.
+    """
+    names = [c[0] for c in columns]
+    units = ["[%s]" % c[1] if c[1] else "-" for c in columns]
+    n = len(columns[0][2]) if columns else 0
+    cells = [[_cell(c[2][i], c[3]) for c in columns] for i in range(n)]
+    widths = [max([len(names[k]), len(units[k])] + [len(row[k]) for row in cells]) for k in range(len(columns))]
+    lines = [] if title is None else [title]
+    lines.append("  ".join(s.rjust(w) for s, w in zip(names, widths)))
+    lines.append("  ".join(s.rjust(w) for s, w in zip(units, widths)))
+    lines.extend("  ".join(s.rjust(w) for s, w in zip(row, widths)) for row in cells)
+    lines.extend(notes)
+    return "\n".join(lines)
+
+
+def html_table(columns, caption="", notes=(), head=FOLD_HEAD, tail=FOLD_TAIL):
+    """An HTML table with units in the headers; long tables show the first `head` and last `tail`
+    rows, and the whole table sits in a collapsed <details> block below."""
+    e = html.escape
+    n = len(columns[0][2]) if columns else 0
+    header = "<tr>%s</tr>" % "".join("<th>%s%s</th>" % (e(c[0]), " [%s]" % e(c[1]) if c[1] else "")
+                                      for c in columns)
+
+    def row(i):
+        return "<tr>%s</tr>" % "".join('<td style="text-align:right">%s</td>' % e(_cell(c[2][i], c[3]))
+                                       for c in columns)
+
+    cap = "<caption>%s</caption>" % e(caption) if caption else ""
+    foot = "".join("<p><small>%s</small></p>" % e(x) for x in notes)
+    if n <= head + tail + 2:
+        return "<table>%s%s%s</table>%s" % (cap, header, "".join(row(i) for i in range(n)), foot)
+    folded = '<tr><td colspan="%d" style="text-align:center"><i>... %d rows folded ...</i></td></tr>' % (
+        len(columns), n - head - tail)
+    short = "<table>%s%s%s%s%s</table>" % (cap, header, "".join(row(i) for i in range(head)), folded,
+                                          "".join(row(i) for i in range(n - tail, n)))
+    full = "<details><summary>all %d rows</summary><table>%s%s</table></details>" % (
+        n, header, "".join(row(i) for i in range(n)))
+    return short + full + foot
+
+
+# ------------------------------------------------------------------------------ level tables, comparisons, RKR
+def level_table_columns(table, names=None):
+    from .levels import LevelTable
+    units = {c: u for c, (u, _) in LevelTable.describe().items()}
+    names = names or [c for c in ("v", "J", "energy", "binding_energy", "dEdv", "Bv", "inner_turning_point",
+                                  "outer_turning_point", "error") if c in table.columns]
+    fmt = {"inner_turning_point": "%.8f", "outer_turning_point": "%.8f", "error": "%.2g", "Bv": "%.8g"}
+    cols = [(c, units.get(c, ""), getattr(table, c), fmt.get(c, "%.6f")) for c in names]
+    if hasattr(table, "quasibound") and "quasibound" not in names:
+        cols.append(("quasibound", "", np.asarray(table.quasibound, dtype=bool), "%s"))
+    return cols
+
+
+def level_table_title(table):
+    return "%s levels of %r, mu = %.10g u" % (table.method.upper(), table.potential, table.mu)
+
+
+def level_table_notes(table):
+    notes = ["J=%d: quantum number at dissociation vD = %s" % (
+        J, "%.6f" % vD if vD is not None else "not defined (no bound levels)")
+        for J, vD in sorted(table.vD_by_J.items())]
+    return notes + list(table.notes)
+
+
+def level_table_text(table, names=None):
+    return text_table(level_table_columns(table, names), level_table_title(table), level_table_notes(table))
+
+
+def level_table_html(table):
+    return html_table(level_table_columns(table), level_table_title(table), level_table_notes(table))
+
+
+def comparison_columns(comp, uncertainty=None):
+    cols = [("v", "", comp.v, "%d"), ("J", "", comp.J, "%d"), ("WKB", "cm-1", comp.wkb_energy, "%.8f"),
+            ("exact", "cm-1", comp.exact_energy, "%.8f"), ("WKB-exact", "cm-1", comp.difference, "%.3e"),
+            ("exact error", "cm-1", comp.exact_error, "%.1e"), ("binding", "cm-1", comp.binding_energy, "%.8g")]
+    if uncertainty is not None:
+        cols.append(("within %.3g" % float(np.max(uncertainty)), "", comp.good_enough(uncertainty), "%s"))
+    return cols
+
+
+def comparison_title(comp):
+    return "WKB (order %s) versus exact levels of %r, mu = %.10g u" % (getattr(comp, "order", 1), comp.potential,
+                                                                       comp.mu)
+
+
+def comparison_notes(comp):
+    lines = []
+    if len(comp):
+        v, J, d = comp.largest_difference()
+        lines.append("largest |WKB - exact| = %.3e cm-1 at v=%d, J=%d" % (abs(d), v, J))
+    if comp.only_exact:
+        lines.append("bound only in the exact calculation: " + ", ".join("v=%d J=%d" % k for k in comp.only_exact))
+    if comp.only_wkb:
+        lines.append("bound only in WKB: " + ", ".join("v=%d J=%d" % k for k in comp.only_wkb))
+    return lines
+
+
+def comparison_text(comp, uncertainty=None):
+    return text_table(comparison_columns(comp, uncertainty), comparison_title(comp), comparison_notes(comp))
+
+
+def comparison_html(comp):
+    return html_table(comparison_columns(comp), comparison_title(comp), comparison_notes(comp))
+
+
+def rkr_columns(tp):
+    return [("v", "", tp.v, "%.4f"), ("G(v)", "cm-1", tp.energy, "%.6f"),
+            ("r_inner", "A", tp.inner_turning_point, "%.10f"), ("r_outer", "A", tp.outer_turning_point, "%.10f"),
+            ("f", "A", tp.f, "%.10f"), ("g", "1/A", tp.g, "%.10f"), ("error", "A", tp.error, "%.1e")]
+
+
+def rkr_title(tp):
+    return "RKR turning points, mu = %.10g u, re = %.10f A" % (tp.mu, tp.re)
+
+
+def rkr_text(tp):
+    return text_table(rkr_columns(tp), rkr_title(tp))
+
+
+def rkr_html(tp):
+    return html_table(rkr_columns(tp), rkr_title(tp))
+
+
+def observed_columns(obs):
+    labels = np.array([x if x is not None else "-" for x in obs.isotopologue], dtype=object)
+    cols = [("isotopologue", "", labels, "%s"), ("v", "", obs.v, "%d"), ("J", "", obs.J, "%d"),
+            ("energy", "cm-1", obs.energy, "%.6f"), ("uncertainty", "cm-1", obs.uncertainty, "%.6g")]
+    kinds = getattr(obs, "kind", None)
+    if kinds is not None:
+        cols.insert(1, ("kind", "", np.asarray(kinds, dtype=object), "%s"))
+    return cols
+
+
+def observed_html(obs):
+    return html_table(observed_columns(obs), "%d measured levels, energy zero %r%s" % (
+        len(obs), obs.energy_zero, ", from %s" % obs.source if obs.source else ""))
+
+
+def prediction_columns(pred):
+    sp = np.append(pred.spacing, np.nan)
+    spu = np.append(pred.spacing_uncertainty, np.nan)
+    return [("v", "", pred.v, "%d"), ("energy", "cm-1", pred.energy, "%.6f"),
+            ("+/-", "cm-1", pred.energy_uncertainty, "%.6f"), ("binding", "cm-1", pred.binding_energy, "%.6f"),
+            ("+/-", "cm-1", pred.binding_uncertainty, "%.6f"), ("dG(v+1/2)", "cm-1", sp, "%.6f"),
+            ("+/-", "cm-1", spu, "%.6f")]
+
+
+def residual_columns(result):
+    obs = result.observed
+    labels = np.array([x if x is not None else "-" for x in obs.isotopologue], dtype=object)
+    return [("isotopologue", "", labels, "%s"), ("v", "", obs.v, "%d"), ("J", "", obs.J, "%d"),
+            ("observed", "cm-1", obs.energy, "%.6f"), ("sigma", "cm-1", obs.uncertainty, "%.4g"),
+            ("calculated", "cm-1", result.calculated, "%.6f"), ("obs-calc", "cm-1", result.residuals, "%.6f"),
+            ("(obs-calc)/sigma", "", result.normalized_residuals, "%.3f"),
+            ("fitted", "", np.asarray(result.fitted_rows, dtype=bool), "%s")]
+
+
+def residual_dataframe(result):
+    import pandas as pd
+    obs = result.observed
+    data = {"isotopologue": list(obs.isotopologue), "v": obs.v, "J": obs.J, "observed": obs.energy,
+            "uncertainty": obs.uncertainty, "calculated": result.calculated, "residual": result.residuals,
+            "normalized_residual": result.normalized_residuals, "fitted": np.asarray(result.fitted_rows, bool)}
+    kinds = getattr(obs, "kind", None)
+    if kinds is not None:
+        data["kind"] = list(kinds)
+    return pd.DataFrame(data)
+
+
+def parameter_dataframe(result):
+    import pandas as pd
+    rows = [dict(p.to_dict(), unit=_UNITS.get(p.name, "")) for p in result.params.values()]
+    for r in rows:
+        r["lower_bound"], r["upper_bound"] = r.pop("bounds")
+    return pd.DataFrame(rows).set_index("name")

@@ -62,13 +62,23 @@ class RKRTurningPoints:
         return len(self.v)
 
     def to_text(self):
-        """A plain-text table, one v per line."""
-        lines = ["RKR turning points, mu = %.10g u, re = %.10f A" % (self.mu, self.re),
-                 "%10s  %16s  %14s  %14s  %10s" % ("v", "G(v) [cm-1]", "r_inner [A]", "r_outer [A]", "error [A]")]
-        for i in range(len(self)):
-            lines.append("%10.4f  %16.6f  %14.10f  %14.10f  %10.1e" % (
-                self.v[i], self.energy[i], self.inner_turning_point[i], self.outer_turning_point[i], self.error[i]))
-        return "\n".join(lines)
+        """A plain-text table, one v per line (names, units, aligned columns)."""
+        from . import reports
+        return reports.rkr_text(self)
+
+    def to_dataframe(self):
+        """The turning points as a pandas DataFrame (columns as `columns`)."""
+        import pandas as pd
+        return pd.DataFrame({c: getattr(self, c) for c in self.columns})
+
+    def _repr_html_(self):
+        from . import reports
+        return reports.rkr_html(self)
+
+    def plot(self, potential=None, ax=None, **options):
+        """The turning points, against a model curve when one is given (`wkbfit.plots.rkr_curve`)."""
+        from . import plots
+        return plots.rkr_curve(self, potential, ax=ax, **options)
 
     def __str__(self):
         return self.to_text()

@@ -1,0 +1,433 @@
+"""Figures of potentials, levels and fits (matplotlib, imported only when a function is called).
+
+Every function takes an optional `ax` (a matplotlib Axes; a new figure when None), draws into it
+and returns it; every axis is labelled with its unit. The arrays drawn are the numbers of the
+objects given (no smoothing, no resampling of measured data).
+
+    potential(pot, mu)            the curve with its levels drawn between their turning points
+    residuals(result)             (observed - calculated)/sigma against v or energy, with 1/2/3 sigma bands
+    birge_sponer(result)          dG(v+1/2) against v + 1/2, measured and fitted with its 1-sigma band
+    near_dissociation(result)     (D - E)^((n-2)/(2n)) against v: a straight line for a -C_n/r^n tail
+    wkb_vs_exact(pot, mu)         |WKB - exact| level by level against the data uncertainties
+    correlation(result)           the correlation matrix of the varied parameters
+    rkr_curve(turning_points)     RKR turning points against a model curve
+
+Units: energies cm-1, distances angstrom.
+"""
+import math
+
+import numpy as np
+
+__all__ = ["potential", "residuals", "birge_sponer", "near_dissociation", "wkb_vs_exact", "correlation",
+           "rkr_curve", "ENERGY_LABEL", "R_LABEL"]
+
+R_LABEL = "r [Å]"
+ENERGY_LABEL = "energy [cm$^{-1}$]"
+V_LABEL = "v (vibrational quantum number, dimensionless)"
+
+
+def _pyplot():
+    try:
+        import matplotlib.pyplot as plt
+    except ImportError:
+        raise ImportError("wkbfit.plots needs matplotlib: pip install matplotlib "
+                          "(or pip install 'wkbfit[plot]')") from None
+    return plt
+
+
+def _axes(ax):
+    if ax is not None:
+        return ax
+    plt = _pyplot()
+    return plt.subplots()[1]
+
+
+def _colors():
+    return ["C%d" % i for i in range(10)]
+
+
+# ------------------------------------------------------------------------------------ potential
+def _masses_argument(mu):
+    """mu as a list of (label, mass): None -> [], a number/pair -> one, a dict -> several."""
+    from .masses import as_reduced_mass
+    if mu is None:
+        return []
+    if isinstance(mu, dict):
+        return [(str(k), as_reduced_mass(m)) for k, m in mu.items()]
+    if isinstance(mu, str):
+        from .masses import parse_isotopologue, reduced_mass
+        return [(mu, reduced_mass(*parse_isotopologue(mu)))]
+    if isinstance(mu, (list, tuple)) and mu and all(isinstance(m, str) for m in mu) and not (
+            len(mu) == 2 and _is_isotope_pair(mu)):
+        from .masses import parse_isotopologue, reduced_mass
+        return [(m, reduced_mass(*parse_isotopologue(m))) for m in mu]
+    m = as_reduced_mass(mu)
+    return [("mu = %.6g u" % m, m)]
+
+
+def _is_isotope_pair(items):
+    from .masses import isotope_mass
+    try:
+        for x in items:
+            isotope_mass(x)
+    except (ValueError, KeyError, TypeError):
+        return False
+    return True
+
+
+def potential(potential, mu=None, ax=None, *, J=0, levels=None, r=None, energy_max=None, order=1):
+    """The potential curve V(r) and, for each reduced mass, its levels between their turning points.
+
+    potential: a wkbfit Potential. mu: None (the curve only), a reduced mass in u, an isotopologue
+    label ("7Li133Cs"), a list of labels, or a dict label -> reduced mass for several
+    isotopologues (one colour each). J: the rotational quantum number of the levels drawn.
+    levels: a LevelTable (or a dict label -> LevelTable) to draw instead of computing levels.
+    Levels marked quasibound (a boolean `quasibound` column, where the table has one) are drawn
+    dashed. r: the distances of the curve (default: from the inner wall at about 1.3 well depths
+    to 3 re, or past the last level's outer turning point). energy_max: top of the energy axis.
+    Returns the Axes; the curve is the line labelled "V(r)", each set of levels a LineCollection.
+    """
+    from .levels import levels as compute_levels
+    from .potentials import Potential
+    if not isinstance(potential, Potential):
+        raise TypeError("potential must be a wkbfit potential object (Morse, LennardJones, ...), got %r"
+                        % (potential,))
+    tables = []
+    if levels is not None:
+        items = levels.items() if isinstance(levels, dict) else [(None, levels)]
+        for label, table in items:
+            if not all(hasattr(table, c) for c in ("energy", "inner_turning_point", "outer_turning_point", "mu")):
+                raise TypeError("levels must be a LevelTable or a dict label -> LevelTable, got %r" % (table,))
+            tables.append((label if label is not None else "mu = %.6g u" % table.mu, table))
+    else:
+        for label, m in _masses_argument(mu):
+            tables.append((label, compute_levels(potential, m, J=J, order=order) if order != 1
+                           else compute_levels(potential, m, J=J)))
+    ax = _axes(ax)
+    D = potential.asymptote
+    V_min = _curve_minimum(potential)
+    depth = D - V_min
+    if r is None:
+        r = _default_r(potential, tables, V_min, depth)
+    r = np.asarray(r, dtype=float)
+    V = potential(r)
+    top = energy_max if energy_max is not None else V_min + 1.15 * depth
+    shown = V <= top + 0.5 * depth
+    ax.plot(r[shown], V[shown], color="k", lw=1.5, label="V(r)")
+    ax.axhline(D, color="0.6", lw=0.8, ls=":", label="asymptote %.6g cm$^{-1}$" % D)
+    for k, (label, table) in enumerate(tables):
+        _levels_into(ax, label, table, _colors()[k % 10])
+    ax.set_ylim(V_min - 0.05 * depth, top)
+    ax.set_xlim(r[0], r[-1])
+    ax.set_xlabel(R_LABEL)
+    ax.set_ylabel(ENERGY_LABEL)
+    ax.set_title(type(potential).__name__ + ("" if J == 0 else ", J = %d" % J))
+    ax.legend(fontsize="small", loc="lower right")
+    return ax
+
+
+def _levels_into(ax, label, table, color):
+    """Each level of table as a horizontal segment between its turning points; quasibound ones dashed."""
+    quasi = np.asarray(getattr(table, "quasibound", np.zeros(len(table), bool)), dtype=bool)
+    if quasi.shape != (len(table),):
+        quasi = np.zeros(len(table), bool)
+    bound = ~quasi
+    E, r1, r2 = (np.asarray(x, dtype=float) for x in (table.energy, table.inner_turning_point,
+                                                      table.outer_turning_point))
+    ax.hlines(E[bound], r1[bound], r2[bound], colors=color, lw=0.9,
+              label="%s: %d levels" % (label, int(np.count_nonzero(bound))))
+    if np.any(quasi):
+        ax.hlines(E[quasi], r1[quasi], r2[quasi], colors=color, lw=0.9, linestyles="dashed",
+                  label="%s: %d quasibound" % (label, int(np.count_nonzero(quasi))))
+
+
+def _curve_minimum(potential):
+    from .potentials import PointwisePotential
+    if isinstance(potential, PointwisePotential):
+        return float(np.min(potential.V))
+    return 0.0
+
+
+def _default_r(potential, tables, V_min, depth):
+    from .potentials import PointwisePotential
+    if isinstance(potential, PointwisePotential):
+        r_lo, r_hi = potential.r[0] * 0.97, potential.r[-1] * 1.2
+    else:
+        re = potential.params.get("re", 1.0)
+        grid = np.geomspace(re * 0.3, re * 3.0, 4000)
+        V = potential(grid)
+        inner = grid[(grid < re) & (V <= V_min + 1.3 * depth)]
+        r_lo, r_hi = (inner[0] if len(inner) else re * 0.5), re * 3.0
+    for _, table in tables:
+        if len(table):
+            r_hi = max(r_hi, float(np.nanmax(table.outer_turning_point)) * 1.05)
+            r_lo = min(r_lo, float(np.nanmin(table.inner_turning_point)) * 0.98)
+    return np.linspace(r_lo, min(r_hi, 30 * r_lo), 1500)
+
+
+# ------------------------------------------------------------------------------------ residuals
+def residuals(result, ax=None, *, against="v"):
+    """Normalised residuals (observed - calculated)/sigma of a FitResult with the 1, 2, 3 sigma bands.
+
+    against: "v" (the vibrational quantum number) or "energy" (the observed energy, cm-1). One colour
+    per isotopologue and one marker per data kind (where the data carry a `kind` column), filled for
+    J = 0 and open for J > 0. Rows not fitted (the zero of "lowest" data) are left out.
+    """
+    if against not in ("v", "energy"):
+        raise ValueError("against=%r is not known; use 'v' or 'energy'" % (against,))
+    ax = _axes(ax)
+    obs = result.observed
+    fitted = np.asarray(result.fitted_rows, dtype=bool)
+    x_all = obs.v if against == "v" else obs.energy
+    y_all = result.normalized_residuals
+    kinds = getattr(obs, "kind", None)
+    kind_values = list(dict.fromkeys(kinds.tolist())) if kinds is not None else [None]
+    markers = "osD^vP*X"
+    for s, colour in ((3, "0.93"), (2, "0.86"), (1, "0.78")):
+        ax.axhspan(-s, s, color=colour, lw=0, zorder=0)
+    for k, label in enumerate(obs.isotopologues):
+        rows = np.zeros(len(obs), bool)
+        rows[obs.rows_of(label)] = True
+        for m, kind in enumerate(kind_values):
+            sel = rows & fitted & ((kinds == kind) if kinds is not None else True)
+            if not np.any(sel):
+                continue
+            name = "unnamed" if label is None else label
+            if kind is not None:
+                name += " (%s)" % kind
+            for rot, face in ((obs.J == 0, _colors()[k % 10]), (obs.J > 0, "none")):
+                part = sel & rot
+                if np.any(part):
+                    ax.plot(x_all[part], y_all[part], ls="none", marker=markers[m % len(markers)],
+                            color=_colors()[k % 10], mfc=face,
+                            label=name + (", J = 0" if face != "none" else ", J > 0"))
+    ax.axhline(0.0, color="k", lw=0.6)
+    ax.set_xlabel(V_LABEL if against == "v" else "observed " + ENERGY_LABEL)
+    ax.set_ylabel("(observed - calculated)/sigma (dimensionless)")
+    ax.set_title("normalised residuals; bands at 1, 2, 3 sigma")
+    ax.legend(fontsize="small")
+    return ax
+
+
+# ------------------------------------------------------------------------------------ Birge-Sponer
+def _prediction_of(source, isotopologue=None):
+    from .fitting import FitResult, Prediction
+    if isinstance(source, Prediction):
+        return source, None
+    if isinstance(source, FitResult):
+        return source.predict(isotopologue=isotopologue), source
+    raise TypeError("give a FitResult or a Prediction, got %r" % (source,))
+
+
+def _observed_spacings(obs, label):
+    """(v + 1/2, dG, sigma) from consecutive J = 0 levels of one isotopologue."""
+    rows = obs.rows_of(label)
+    rows = rows[obs.J[rows] == 0]
+    by_v = {int(obs.v[i]): i for i in rows}
+    x, dG, s = [], [], []
+    for v in sorted(by_v):
+        if v + 1 in by_v:
+            i, j = by_v[v], by_v[v + 1]
+            x.append(v + 0.5)
+            dG.append(obs.energy[j] - obs.energy[i])
+            s.append(math.hypot(obs.uncertainty[i], obs.uncertainty[j]))
+    return np.array(x), np.array(dG), np.array(s)
+
+
+def birge_sponer(source, ax=None, *, isotopologue=None):
+    """Birge-Sponer plot: dG(v+1/2) = G(v+1) - G(v) against v + 1/2.
+
+    source: a FitResult (its measured J = 0 spacings of consecutive v as points with error bars, and
+    the fitted potential's spacings as a line with its 1-sigma band), a Prediction (the line and
+    band only) or a LevelTable (the spacings of its J = 0 levels as a line). isotopologue: which one,
+    for a FitResult of several. The area under the curve up to its zero is D0.
+    """
+    from .levels import LevelTable
+    ax = _axes(ax)
+    if isinstance(source, LevelTable):
+        rows = np.nonzero(source.J == 0)[0]
+        rows = rows[np.argsort(source.v[rows])]
+        x = source.v[rows][:-1] + 0.5
+        ax.plot(x, np.diff(source.energy[rows]), "-", color="C0", label="%s levels" % source.method.upper())
+        title = "Birge-Sponer plot, mu = %.6g u" % source.mu
+    else:
+        pred, result = _prediction_of(source, isotopologue)
+        x = pred.v[:-1] + 0.5
+        ax.fill_between(x, pred.spacing - pred.spacing_uncertainty, pred.spacing + pred.spacing_uncertainty,
+                        color="C0", alpha=0.3, lw=0, label="fit, 1 sigma")
+        ax.plot(x, pred.spacing, "-", color="C0", label="fitted potential")
+        if result is not None:
+            label = pred.isotopologue if pred.isotopologue in result.observed.isotopologues else \
+                result.observed.isotopologues[0]
+            ox, odG, os_ = _observed_spacings(result.observed, label)
+            if len(ox):
+                ax.errorbar(ox, odG, yerr=os_, fmt="o", color="C1", ms=4, label="measured (J = 0)")
+        title = "Birge-Sponer plot%s" % (", " + pred.isotopologue if pred.isotopologue else "")
+    ax.axhline(0.0, color="k", lw=0.6)
+    ax.set_xlabel("v + 1/2 (dimensionless)")
+    ax.set_ylabel("dG(v+1/2) [cm$^{-1}$]")
+    ax.set_title(title)
+    ax.legend(fontsize="small")
+    return ax
+
+
+# ------------------------------------------------------------------------------------ near dissociation
+def tail_power(potential):
+    """The power n of the potential's -C_n/r^n tail, or None for an exponential tail."""
+    from . import potentials as P
+    if isinstance(potential, P.PointwisePotential):
+        return float(potential.tail["tail_power"])
+    if isinstance(potential, P.LennardJones):
+        return float(potential.params["m"])
+    if isinstance(potential, P.MLR):
+        return 6.0
+    return None
+
+
+def near_dissociation(source, ax=None, *, isotopologue=None, n=None, last=None):
+    """Near-dissociation plot: (D - E)^((n-2)/(2n)) against v.
+
+    For a -C_n/r^n tail the binding energy goes as (vD - v)^(2n/(n-2)) near the limit (LeRoy-Bernstein),
+    so this is a straight line reaching zero at vD. For an exponential tail (Morse, EMO, Poeschl-Teller)
+    the exponent 1/2 is used, for which the Morse levels lie exactly on a line. source: a FitResult
+    (measured levels as points, fitted ones with error bars) or a Prediction. n: the tail power
+    (default: that of the potential). last: draw only the last `last` levels. vD and its one-sigma
+    range are marked.
+    """
+    pred, result = _prediction_of(source, isotopologue)
+    n = tail_power(pred.potential) if n is None else float(n)
+    if n is not None and not n > 2:
+        raise ValueError("n=%r: the tail power must exceed 2 for a near-dissociation plot" % (n,))
+    alpha = 0.5 if n is None else (n - 2) / (2 * n)
+    ax = _axes(ax)
+    b = np.asarray(pred.binding_energy)
+    sb = np.asarray(pred.binding_uncertainty)
+    start = 0 if last is None else max(0, pred.n_bound - int(last))
+    sel = slice(start, pred.n_bound)
+    y = b[sel] ** alpha
+    ax.errorbar(pred.v[sel], y, yerr=alpha * b[sel] ** (alpha - 1) * sb[sel], fmt="s", color="C0", ms=4,
+                capsize=2, label="fitted levels, 1 sigma")
+    if result is not None:
+        obs = result.observed
+        label = pred.isotopologue if pred.isotopologue in obs.isotopologues else obs.isotopologues[0]
+        rows = obs.rows_of(label)
+        rows = rows[(obs.J[rows] == pred.J) & (obs.v[rows] >= start)]
+        bo = _observed_binding(result, rows, pred)
+        ok = bo > 0
+        if np.any(ok):
+            ax.plot(obs.v[rows][ok], bo[ok] ** alpha, "o", mfc="none", color="C1", label="measured")
+    if math.isfinite(pred.vD):
+        ax.axvline(pred.vD, color="C3", lw=1, label="vD = %.3f +/- %.3f" % (pred.vD, pred.vD_uncertainty))
+        if math.isfinite(pred.vD_uncertainty):
+            ax.axvspan(pred.vD - pred.vD_uncertainty, pred.vD + pred.vD_uncertainty, color="C3", alpha=0.15, lw=0)
+    power = "1/2" if n is None else "(n-2)/(2n) = %.4g" % alpha
+    ax.set_xlabel(V_LABEL)
+    ax.set_ylabel("(D - E)$^{%s}$ [(cm$^{-1}$)$^{%s}$]" % ("1/2" if n is None else "%.3g" % alpha,
+                                                            "1/2" if n is None else "%.3g" % alpha))
+    ax.set_title("near dissociation: exponent %s%s" % (power, "" if n is None else ", n = %g" % n))
+    ax.set_ylim(bottom=0)
+    ax.legend(fontsize="small")
+    return ax
+
+
+def _observed_binding(result, rows, pred):
+    obs = result.observed
+    E = obs.energy[rows]
+    if obs.energy_zero == "asymptote":
+        return np.asarray(E, dtype=float)
+    if obs.energy_zero == "minimum":
+        return pred.potential.asymptote - E
+    return pred.D0 - E  # "lowest": measured from v=0, J=0
+
+
+# ------------------------------------------------------------------------------------ WKB vs exact
+def wkb_vs_exact(potential, mu=None, ax=None, *, J=0, order=(1, 2), uncertainty=None, comparison=None):
+    """|WKB - exact| level by level (log scale) against the data uncertainties: where is WKB good enough?
+
+    potential, mu: the potential and reduced mass (u or labels); or give comparison= a WKBComparison
+    (then potential may be that object too). order: the WKB orders to compare (1, 2 or both).
+    uncertainty: a number (cm-1), an array per v, or an ObservedLevels whose J-matching rows give
+    the uncertainty at each measured v; drawn as a second curve. Filled markers: WKB above exact,
+    open: below.
+    """
+    from .exact import WKBComparison, compare_wkb_exact
+    from .observed import ObservedLevels
+    if isinstance(potential, WKBComparison):
+        comparison, potential = potential, potential.potential
+    comparisons = []
+    if comparison is not None:
+        comparisons.append(comparison)
+    else:
+        for o in (order if isinstance(order, (tuple, list)) else (order,)):
+            comparisons.append(compare_wkb_exact(potential, mu, J=J, order=o))
+    ax = _axes(ax)
+    for k, comp in enumerate(comparisons):
+        o = getattr(comp, "order", 1)
+        d = np.abs(comp.difference)
+        pos = comp.difference >= 0
+        color = _colors()[k % 10]
+        ax.semilogy(comp.v, np.maximum(d, 1e-14), "-", color=color, lw=0.8,
+                    label="|WKB - exact|, order %d" % o)
+        ax.semilogy(comp.v[pos], np.maximum(d[pos], 1e-14), "o", color=color, ms=3)
+        ax.semilogy(comp.v[~pos], np.maximum(d[~pos], 1e-14), "o", mfc="none", color=color, ms=3)
+        ax.semilogy(comp.v, np.maximum(comp.exact_error, 1e-14), ":", color="0.5", lw=0.8,
+                    label="error of the exact levels" if k == 0 else None)
+    if uncertainty is not None:
+        if isinstance(uncertainty, ObservedLevels):
+            rows = np.nonzero(uncertainty.J == J)[0]
+            ax.semilogy(uncertainty.v[rows], uncertainty.uncertainty[rows], "x", color="C3",
+                        label="data uncertainty")
+        else:
+            u = np.broadcast_to(np.asarray(uncertainty, dtype=float), comparisons[0].v.shape)
+            ax.semilogy(comparisons[0].v, u, "--", color="C3", label="data uncertainty")
+    ax.set_xlabel(V_LABEL)
+    ax.set_ylabel("|WKB - exact| [cm$^{-1}$]")
+    ax.set_title("semiclassical minus exact levels%s" % ("" if J == 0 else ", J = %d" % J))
+    ax.legend(fontsize="small")
+    return ax
+
+
+# ------------------------------------------------------------------------------------ correlation
+def correlation(result, ax=None):
+    """The correlation matrix of the varied parameters of a FitResult (-1 blue .. +1 red, values written)."""
+    ax = _axes(ax)
+    C = np.asarray(result.correlation, dtype=float)
+    names = list(result.var_names)
+    image = ax.imshow(C, vmin=-1, vmax=1, cmap="RdBu_r")
+    for i in range(len(names)):
+        for j in range(len(names)):
+            if np.isfinite(C[i, j]):
+                ax.text(j, i, "%+.3f" % C[i, j], ha="center", va="center", fontsize="small",
+                        color="w" if abs(C[i, j]) > 0.6 else "k")
+    ax.set_xticks(range(len(names)), names)
+    ax.set_yticks(range(len(names)), names)
+    ax.set_xlabel("varied parameter (correlation coefficient, dimensionless)")
+    ax.set_ylabel("varied parameter (correlation coefficient, dimensionless)")
+    ax.figure.colorbar(image, ax=ax, label="correlation coefficient (dimensionless)")
+    ax.set_title("parameter correlations")
+    return ax
+
+
+# ------------------------------------------------------------------------------------ RKR
+def rkr_curve(turning_points, potential=None, ax=None, *, r=None):
+    """RKR turning points (inner and outer, at G(v)) as points, and a model curve V(r) as a line.
+
+    turning_points: an RKRTurningPoints. potential: a Potential to compare with (for example a fit
+    or the curve the constants came from), or None.
+    """
+    ax = _axes(ax)
+    tp = turning_points
+    ax.plot(tp.inner_turning_point, tp.energy, "o", color="C0", ms=4, label="RKR inner turning points")
+    ax.plot(tp.outer_turning_point, tp.energy, "s", color="C1", ms=4, label="RKR outer turning points")
+    if potential is not None:
+        if r is None:
+            lo, hi = float(np.min(tp.inner_turning_point)), float(np.max(tp.outer_turning_point))
+            r = np.linspace(lo - 0.05 * (hi - lo), hi + 0.1 * (hi - lo), 800)
+        r = np.asarray(r, dtype=float)
+        ax.plot(r, potential(r), "-", color="k", lw=1, label="%s" % type(potential).__name__)
+        ax.set_ylim(-0.05 * float(np.max(tp.energy)), 1.2 * float(np.max(tp.energy)))
+    ax.set_xlabel(R_LABEL)
+    ax.set_ylabel(ENERGY_LABEL)
+    ax.set_title("RKR curve, mu = %.6g u" % tp.mu)
+    ax.legend(fontsize="small")
+    return ax

@@ -1,0 +1,110 @@
+"""The subcommands rkr, compare, curve and predict, --order, --output-dir and the poor-fit exit status."""
+import math
+import os
+
+import numpy as np
+import pytest
+
+import wkbfit
+from wkbfit import cli, cli_tools
+
+MU = 0.979592539  # u, 1H35Cl (AME2020)
+# Morse constants: G(v) = we (v+1/2) - wexe (v+1/2)^2 and B(v) = Be - alpha_e (v+1/2) [Morse, Phys. Rev. 34, 57 (1929)]
+MORSE = wkbfit.Morse(De=42341.9, re=1.27455, a=1.75194)
+WE = MORSE.a * math.sqrt(4 * MORSE.De * wkbfit.HBAR2_OVER_2U / MU)
+WEXE = WE * WE / (4 * MORSE.De)
+BE = wkbfit.HBAR2_OVER_2U / (MU * MORSE.re ** 2)
+
+
+def run(capsys, *argv):
+    status = cli.main([str(a) for a in argv])
+    captured = capsys.readouterr()
+    return status, captured.out, captured.err
+
+
+def test_help_lists_the_new_subcommands(capsys):
+    status, out, _ = run(capsys, "--help")
+    for command in ("rkr", "compare", "curve", "predict"):
+        assert command in out
+        status, text, _ = run(capsys, command, "--help")
+        assert status == 0 and text.startswith("usage: wkbfit %s" % command)
+
+
+def test_rkr_writes_turning_points_and_a_curve_that_curve_reads(capsys, tmp_path):
+    status, out, err = run(capsys, "rkr", "--G", "%r,%r" % (WE, -WEXE), "--B", repr(BE), "--mu", MU, "-v", "0-4",
+                           "--asymptote", MORSE.De, "--tail-power", 6, "--output-dir", tmp_path / "out")
+    assert status == 0, err
+    tp_file = tmp_path / "out" / "rkr-turning-points.csv"
+    data = np.genfromtxt(tp_file, delimiter=",", names=True, skip_header=2)
+    # f = (r2 - r1)/2 depends on G(v) alone: for a Morse G(v) it is the Morse curve's (Morse 1929; 1e-9 A)
+    E = WE * (data["v"] + 0.5) - WEXE * (data["v"] + 0.5) ** 2
+    r1 = MORSE.re - np.log(1 + np.sqrt(E / MORSE.De)) / MORSE.a
+    r2 = MORSE.re - np.log(1 - np.sqrt(E / MORSE.De)) / MORSE.a
+    assert np.allclose(data["f"], (r2 - r1) / 2, rtol=0, atol=1e-9)
+    assert np.allclose(data["G"], E, rtol=1e-12)
+    # and the file holds what the library computes (tested against Morse in test_rkr.py), to its 12 decimals
+    tp = wkbfit.rkr_turning_points([WE, -WEXE], [BE], MU, v=range(5))
+    assert np.allclose(data["r_inner"], tp.inner_turning_point, atol=1e-11)
+    assert np.allclose(data["r_outer"], tp.outer_turning_point, atol=1e-11)
+    assert "[cm-1]" in out and "[A]" in out
+    curve = tmp_path / "out" / "rkr-curve.csv"
+    status, out, err = run(capsys, "curve", curve, "--mu", MU, "-v", "0-3", "--asymptote", MORSE.De,
+                           "--tail-power", 6)
+    assert status == 0, err
+    rows = [line.split() for line in out.splitlines() if line.split() and line.split()[0].isdigit()]
+    energies = np.array([float(r[2]) for r in rows])
+    # WKB levels of the RKR curve reproduce the G(v) it came from (RKR inverts first-order WKB; spline of
+    # 8 points per v; observed 2e-5 cm-1, tolerance 1e-3 cm-1; the table prints 6 decimals)
+    assert np.allclose(energies, WE * (np.arange(4) + 0.5) - WEXE * (np.arange(4) + 0.5) ** 2, atol=1e-3)
+
+
+def test_compare_orders_and_uncertainty(capsys):
+    lj = ["lennard-jones", "De=4000", "re=4.0"]
+    status, out, err = run(capsys, "compare", *lj, "--mu", 20, "-v", "0-5", "--uncertainty", 0.01)
+    assert status == 0, err
+    assert "order 1" in out and "order 2" in out and "within 0.01" in out
+    comp = wkbfit.compare_wkb_exact(wkbfit.LennardJones(4000, 4.0), 20.0, v=range(6), order=2)
+    assert "%.3e" % comp.difference[5] in out
+    status, out, _ = run(capsys, "compare", *lj, "--mu", 20, "-v", "0", "--order", "1")
+    assert "order 2" not in out
+
+
+def test_levels_order_two(capsys):
+    status, out, _ = run(capsys, "levels", "lennard-jones", "De=4000", "re=4.0", "--mu", 20, "-v", "3",
+                         "--order", 2)
+    assert status == 0
+    E = wkbfit.levels(wkbfit.LennardJones(4000, 4.0), 20.0, v=3, order=2).energy[0]
+    assert "%.6f" % E in out
+
+
+def test_curve_file_errors(capsys, tmp_path):
+    bad = tmp_path / "bad.txt"
+    bad.write_text("r V\n1.0 2.0\n1.1 x\n")
+    status, _, err = run(capsys, "curve", bad, "--mu", 1)
+    assert status == 2 and "line 3" in err and "Traceback" not in err
+
+
+def test_predict_from_saved_fit_and_poor_fit_status(capsys, tmp_path):
+    lj = wkbfit.LennardJones(De=4000.0, re=4.0, n=12, m=6)
+    t = wkbfit.levels(lj, 20.0, v=list(range(10)))
+    rng = np.random.default_rng(5)
+    path = tmp_path / "levels.csv"
+    path.write_text("v,energy,uncertainty\n" + "".join(
+        "%d,%.6f,0.01\n" % (v, e) for v, e in zip(t.v, t.energy + rng.normal(0, 0.01, len(t)))))
+    status, out, err = run(capsys, "fit", path, "lennard-jones", "De=3950", "re=4.01", "--mu", 20,
+                           "--output-dir", tmp_path / "res")
+    assert status == 0, err
+    saved = tmp_path / "res" / "levels-fit.json"
+    status, out, err = run(capsys, "predict", saved, "--near", 3)
+    assert status == 0, err
+    pred = wkbfit.FitResult.load_json(saved).predict()
+    assert "%.6f" % pred.energy[-1] in out and "(levels v < %d not shown)" % (pred.n_bound - 3) in out
+    # the same data with uncertainties understated tenfold: converges, sqrt(chi2/dof) ~ 10 > 3 -> exit 3
+    path.write_text(path.read_text().replace(",0.01\n", ",0.001\n"))
+    status, out, err = run(capsys, "fit", path, "lennard-jones", "De=3950", "re=4.01", "--mu", 20,
+                           "-o", tmp_path / "poor.json")
+    assert status == cli_tools.EXIT_POOR_FIT
+    assert "above the limit 3" in err and "sqrt of reduced chi-square" in err
+    status, _, _ = run(capsys, "fit", path, "lennard-jones", "De=3950", "re=4.01", "--mu", 20,
+                       "-o", tmp_path / "poor.json", "--force", "--sigma-limit", 100)
+    assert status == 0

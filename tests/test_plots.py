@@ -1,0 +1,209 @@
+"""wkbfit.plots: every figure runs headless (Agg), labels each axis with its unit, and draws the
+numbers it was given (the plotted arrays are checked, not pixels)."""
+import math
+import sys
+
+import numpy as np
+import pytest
+
+matplotlib = pytest.importorskip("matplotlib", reason="the figures need matplotlib (pip install matplotlib)")
+matplotlib.use("Agg")
+import matplotlib.pyplot as plt  # noqa: E402
+
+import wkbfit  # noqa: E402
+from wkbfit import HBAR2_OVER_2U, plots  # noqa: E402
+
+UNIT_WORDS = ("cm$^{-1}$", "Å", "dimensionless")
+MU = 0.979592539  # u, 1H35Cl from AME2020 (physics.md section 8)
+MORSE = wkbfit.Morse(De=42341.9, re=1.27455, a=1.75194)
+
+
+@pytest.fixture(autouse=True)
+def _close_figures():
+    yield
+    plt.close("all")
+
+
+def has_units(ax):
+    return all(any(w in label for w in UNIT_WORDS) for label in (ax.get_xlabel(), ax.get_ylabel()))
+
+
+def morse_analytic(v, mu, pot=MORSE):
+    """Morse term values [Morse, Phys. Rev. 34, 57 (1929)]: we (v+1/2) - wexe (v+1/2)^2."""
+    we = pot.a * math.sqrt(4 * pot.De * HBAR2_OVER_2U / mu)
+    wexe = we * we / (4 * pot.De)
+    x = np.asarray(v) + 0.5
+    return we * x - wexe * x * x
+
+
+@pytest.fixture(scope="module")
+def lj_fit():
+    """A fit of a Lennard-Jones (12, 6) potential to its own levels with seeded noise (two isotopologues)."""
+    true = wkbfit.LennardJones(De=4000.0, re=4.0, n=12, m=6)
+    rows = {"v": [], "J": [], "energy": [], "uncertainty": [], "isotopologue": []}
+    rng = np.random.default_rng(7)
+    for label in ("7Li133Cs", "6Li133Cs"):
+        t = wkbfit.levels(true, label, v=list(range(12)))
+        rows["v"] += t.v.tolist()
+        rows["J"] += [0] * len(t)
+        rows["energy"] += (t.energy + rng.normal(0, 0.01, len(t))).tolist()
+        rows["uncertainty"] += [0.01] * len(t)
+        rows["isotopologue"] += [label] * len(t)
+    return wkbfit.fit(wkbfit.LennardJones(De=3900.0, re=4.02, n=12, m=6), wkbfit.read_levels(rows),
+                      vary=["De", "re"])
+
+
+def test_matplotlib_only_imported_when_a_figure_is_drawn():
+    import os
+    import subprocess
+    pkg = os.path.join(os.path.dirname(os.path.dirname(os.path.abspath(__file__))), "pkg")
+    code = ("import sys, wkbfit, wkbfit.plots; "
+            "sys.exit(1 if any(m.startswith('matplotlib') for m in sys.modules) else 0)")
+    env = dict(os.environ, PYTHONPATH=pkg)
+    assert subprocess.run([sys.executable, "-c", code], env=env).returncode == 0
+
+
+def test_potential_levels_between_turning_points():
+    ax = plots.potential(MORSE, MU)
+    assert isinstance(ax, matplotlib.axes.Axes) and has_units(ax)
+    (curve,) = [line for line in ax.lines if line.get_label() == "V(r)"]
+    r, V = curve.get_data()
+    assert np.allclose(V, MORSE(r), rtol=0, atol=1e-9)
+    segs = ax.collections[0].get_segments()
+    table = wkbfit.levels(MORSE, MU)
+    assert len(segs) == len(table)
+    E = np.array([s[0, 1] for s in segs])
+    # the levels drawn are the analytic Morse levels (first-order WKB is exact for Morse; 1e-6 cm-1)
+    assert np.allclose(E, morse_analytic(table.v, MU), rtol=0, atol=1e-6)
+    # and each runs between the two analytic turning points re -+ ... of V(r) = E: (1 -+ sqrt(E/De))
+    r1 = MORSE.re - np.log(1 + np.sqrt(E / MORSE.De)) / MORSE.a
+    r2 = MORSE.re - np.log(1 - np.sqrt(E / MORSE.De)) / MORSE.a
+    assert np.allclose([s[0, 0] for s in segs], r1, atol=1e-8)
+    assert np.allclose([s[1, 0] for s in segs], r2, atol=1e-8)
+
+
+def test_potential_several_isotopologues_and_given_ax():
+    fig, ax = plt.subplots()
+    out = plots.potential(MORSE, {"1H35Cl": MU, "2H35Cl": 1.904413}, ax=ax)
+    assert out is ax and len(ax.collections) == 2
+    assert len(ax.collections[1].get_segments()) == len(wkbfit.levels(MORSE, 1.904413))
+
+
+def test_potential_marks_quasibound_levels_when_the_table_has_them():
+    table = wkbfit.levels(MORSE, MU, v=[0, 1, 2, 3])
+
+    class WithQuasibound:  # a table that carries the column another part of wkbfit adds
+        def __init__(self, t):
+            self.__dict__.update({c: getattr(t, c) for c in t.columns})
+            self.mu, self.method, self.potential, self.columns = t.mu, t.method, t.potential, t.columns
+            self.quasibound = np.array([False, False, True, True])
+
+        def __len__(self):
+            return 4
+
+    ax = plots.potential(MORSE, levels=table)
+    assert len(ax.collections) == 1  # no quasibound column: every level solid
+    ax = plots.potential(MORSE, levels=WithQuasibound(table))
+    assert len(ax.collections) == 2
+    assert ax.collections[1].get_linestyle()[0][1] is not None  # dashed
+    assert np.allclose([s[0, 1] for s in ax.collections[1].get_segments()], table.energy[2:])
+    assert np.allclose([s[0, 1] for s in ax.collections[0].get_segments()], table.energy[:2])
+
+
+def test_residuals_against_v_and_energy(lj_fit):
+    for against in ("v", "energy"):
+        ax = plots.residuals(lj_fit, against=against)
+        assert has_units(ax)
+        xs = np.concatenate([line.get_xdata() for line in ax.lines if line.get_marker() not in (None, "None", "")])
+        ys = np.concatenate([line.get_ydata() for line in ax.lines if line.get_marker() not in (None, "None", "")])
+        x_ref = lj_fit.observed.v if against == "v" else lj_fit.observed.energy
+        assert sorted(zip(xs, ys)) == sorted(zip(x_ref, lj_fit.normalized_residuals))
+        assert len(ax.patches) == 3  # the 1, 2, 3 sigma bands
+    with pytest.raises(ValueError, match="against"):
+        plots.residuals(lj_fit, against="J")
+
+
+def test_birge_sponer(lj_fit):
+    ax = plots.birge_sponer(lj_fit, isotopologue="7Li133Cs")
+    assert has_units(ax)
+    pred = lj_fit.predict(isotopologue="7Li133Cs")
+    (fitted,) = [line for line in ax.lines if line.get_label() == "fitted potential"]
+    assert np.allclose(fitted.get_xdata(), pred.v[:-1] + 0.5)
+    assert np.allclose(fitted.get_ydata(), np.diff(pred.energy), atol=1e-9)
+    # the measured spacings: differences of consecutive measured levels
+    obs = lj_fit.observed.select("7Li133Cs")
+    points = [c for c in ax.containers if hasattr(c, "lines")][0].lines[0]
+    assert np.allclose(points.get_ydata(), np.diff(obs.energy))
+    ax = plots.birge_sponer(wkbfit.levels(MORSE, MU))
+    # Morse: dG(v+1/2) = we - 2 wexe (v + 1) falls on a straight line (Morse 1929)
+    y = ax.lines[0].get_ydata()
+    x = ax.lines[0].get_xdata()
+    assert np.allclose(y, morse_analytic(x + 0.5, MU) - morse_analytic(x - 0.5, MU), atol=1e-6)
+
+
+def test_near_dissociation_straight_line_for_a_pure_inverse_power_tail(lj_fit):
+    ax = plots.near_dissociation(lj_fit, isotopologue="7Li133Cs", last=6)
+    assert has_units(ax)
+    pred = lj_fit.predict(isotopologue="7Li133Cs")
+    container = ax.containers[0]
+    x, y = container.lines[0].get_data()
+    alpha = (6 - 2) / 12
+    assert np.allclose(x, pred.v[-6:]) and np.allclose(y, pred.binding_energy[-6:] ** alpha)
+    # vD marked where it was predicted
+    assert any(np.allclose(line.get_xdata(), pred.vD) for line in ax.lines)
+    # a Morse potential with exponent 1/2: sqrt(D - E) = sqrt(De) - (we/(2 sqrt(De))) (v + 1/2), linear in v
+    ax = plots.near_dissociation(_morse_prediction(), n=None)
+    x, y = ax.containers[0].lines[0].get_data()
+    assert np.allclose(np.diff(y, 2), 0.0, atol=1e-7)
+
+
+def _morse_prediction():
+    rows = wkbfit.levels(MORSE, MU, v=list(range(8)))
+    data = {"v": rows.v, "energy": rows.energy, "uncertainty": np.full(len(rows), 0.01)}
+    return wkbfit.fit(MORSE, wkbfit.read_levels(data), mu=MU, vary=["De", "a"]).predict()
+
+
+def test_wkb_vs_exact():
+    lj = wkbfit.LennardJones(De=4000.0, re=4.0, n=12, m=6)
+    ax = plots.wkb_vs_exact(lj, 20.0, uncertainty=0.01)
+    assert has_units(ax) and ax.get_yscale() == "log"
+    comp = wkbfit.compare_wkb_exact(lj, 20.0)
+    (first,) = [line for line in ax.lines if line.get_label() == "|WKB - exact|, order 1"]
+    assert np.allclose(first.get_ydata(), np.abs(comp.difference))
+    assert any(line.get_label() == "|WKB - exact|, order 2" for line in ax.lines)
+    assert any(line.get_label() == "data uncertainty" and np.allclose(line.get_ydata(), 0.01) for line in ax.lines)
+    ax = comp.plot()
+    assert len([line for line in ax.lines if line.get_label().startswith("|WKB")]) == 1
+
+
+def test_correlation(lj_fit):
+    ax = plots.correlation(lj_fit)
+    assert has_units(ax)
+    assert np.allclose(ax.images[0].get_array(), lj_fit.correlation)
+    assert [t.get_text() for t in ax.get_xticklabels()] == lj_fit.var_names
+
+
+def test_rkr_curve_against_model():
+    # HCl-like Dunham constants (cm-1), a Morse G(v) and B(v) of MORSE at this mass
+    we = MORSE.a * math.sqrt(4 * MORSE.De * HBAR2_OVER_2U / MU)
+    tp = wkbfit.rkr_turning_points([we, -we * we / (4 * MORSE.De)], [HBAR2_OVER_2U / (MU * MORSE.re ** 2)], MU,
+                                   v=[0, 1, 2, 3])
+    ax = tp.plot(MORSE)
+    assert has_units(ax)
+    inner = [line for line in ax.lines if line.get_label() == "RKR inner turning points"][0]
+    assert np.allclose(inner.get_xdata(), tp.inner_turning_point) and np.allclose(inner.get_ydata(), tp.energy)
+    (model,) = [line for line in ax.lines if line.get_label() == "Morse"]
+    assert np.allclose(model.get_ydata(), MORSE(model.get_xdata()))
+
+
+def test_plot_methods(lj_fit):
+    assert isinstance(lj_fit.plot(), matplotlib.axes.Axes)
+    assert isinstance(lj_fit.predict(isotopologue="6Li133Cs").plot(), matplotlib.axes.Axes)
+    assert isinstance(wkbfit.levels(MORSE, MU).plot(), matplotlib.axes.Axes)
+
+
+def test_bad_input_is_named():
+    with pytest.raises(TypeError, match="potential"):
+        plots.potential("Morse")
+    with pytest.raises(TypeError, match="FitResult or a Prediction"):
+        plots.near_dissociation(MORSE)
