@@ -11,5 +11,7 @@ from .exact import exact_wavefunction, compare_wkb_exact, WKBComparison
 from .observed import ObservedLevels, read_levels
 from .fitting import fit, FitResult
 from .rkr import RKRTurningPoints, rkr_turning_points, rkr_potential
+from .replicas import bootstrap, ReplicaResult
+from .model_scan import scan_models, ModelScan
 
 __version__ = "0.1.0"

@@ -3,6 +3,7 @@
     wkbfit levels MODEL NAME=VALUE ... (--mu MU | --isotopologue LABEL) [-J J] [-v V] [--method wkb|exact]
     wkbfit check DATAFILE [--energy-zero ZERO]
     wkbfit fit DATAFILE MODEL NAME=VALUE ... [--mu MU | --mass LABEL=MU ...] [--fix NAME] [--vary NAME] [-o JSON]
+                [--replicas N [--scheduler ADDRESS]]
     wkbfit demo
 
 User errors (bad numbers, unreadable files, unknown names) print one line to stderr and exit with status 2
@@ -230,10 +231,26 @@ def _cmd_fit(args, out):
     for target in args.predict or []:
         print("", file=out)
         print(_prediction_text(result, target, args.near), file=out)
+    if args.replicas:
+        print("", file=out)
+        print(_replicas_text(result, args), file=out)
     path = args.output or _default_json_path(args.datafile)
     result.save_json(path)
     print("\nfit result written to %s" % path, file=out)
     return 0 if _fit_ok(result) else 1
+
+
+def _replicas_text(result, args):
+    """The bootstrap or Monte-Carlo replicas of the fit (--replicas N [--scheduler ADDRESS])."""
+    if not result.success:
+        return "replicas skipped: the fit did not converge"
+    executor = args.scheduler or ("serial" if args.threads == 1 else args.threads)
+    try:
+        reps = result.bootstrap(args.replicas, seed=args.seed, kind=args.replica_kind, executor=executor,
+                                progress=False if args.no_progress else None)
+    except ImportError as err:
+        raise UserError(str(err)) from None
+    return reps.to_text()
 
 
 def _default_json_path(datafile):
@@ -375,6 +392,19 @@ def _parser():
     p.add_argument("-o", "--output", metavar="JSON",
                    help="where to write the fit result (default: DATAFILE name with -fit.json, in the current "
                         "directory)")
+    replicas = p.add_argument_group("replicas (the spread of the parameters and predictions over refits)")
+    replicas.add_argument("--replicas", type=_positive_int, default=0, metavar="N",
+                          help="refit N Monte-Carlo or bootstrap replicas of the data and print their statistics")
+    replicas.add_argument("--replica-kind", choices=("monte-carlo", "resample"), default="monte-carlo",
+                          help="monte-carlo: calculated levels plus noise of the uncertainties (default); "
+                               "resample: the levels drawn with replacement")
+    replicas.add_argument("--seed", type=int, default=1, help="seed of the replicas (default 1)")
+    replicas.add_argument("--threads", type=_positive_int, default=None, metavar="N",
+                          help="threads for the replicas (default: every core)")
+    replicas.add_argument("--scheduler", metavar="ADDRESS",
+                          help="run the replicas on this Dask scheduler (e.g. tcp://host:8786; needs the extra "
+                               "wkbfit[dask])")
+    replicas.add_argument("--no-progress", action="store_true", help="no progress bar")
     p.set_defaults(run=_cmd_fit)
 
     p = sub.add_parser("demo", help="fit the shipped INVENTED demo data",

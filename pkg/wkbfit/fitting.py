@@ -184,6 +184,10 @@ def fit(potential, observed, mu=None, *, method="wkb", vary=None, bounds=None, s
         stop_test=int(out["test"]), predicted_decrease=float(out["predicted_decrease"]),
         n_infeasible=int(out["n_infeasible"]), last_infeasible=out["last_infeasible"],
         max_iterations=max_iterations, insensitive=[n for n, f in zip(names, out["insensitive"]) if f])
+    # how this fit was made, so that replicas and scans refit exactly the same way
+    result.fit_options = {"method": method, "vary": list(result.var_names),
+                          "bounds": {n: b for n, b in bounds_by_name.items() if b != (None, None)},
+                          "scale_uncertainties": bool(scale_uncertainties), "max_iterations": max_iterations}
     result._warn()
     return result
 
@@ -570,6 +574,20 @@ class FitResult:
         return Prediction(E, e_unc, asym - E, b_unc, spacing, s_unc, J=J, mu=mass, isotopologue=label,
                           D0=D0, D0_uncertainty=D0_unc, vD=vD, vD_uncertainty=vD_unc, potential=self.potential,
                           method=self.method, notes=notes)
+
+    # -- replicas -----------------------------------------------------------------------
+    def bootstrap(self, n=1000, seed=1, kind="monte-carlo", executor=None, **options):
+        """Refit n bootstrap or Monte-Carlo replicas of the data with this fit's own settings.
+
+        kind: "monte-carlo" (default; calculated levels plus noise of the stated uncertainties,
+        scaled like the covariance) or "resample" (levels drawn with replacement); seed: replica
+        i uses numpy.random.default_rng([seed, i]), the same on every executor; executor: None or
+        "threads" (all cores), "serial", a dask.distributed.Client or a scheduler address.
+        Options: progress, isotopologue, n_top_levels (see wkbfit.replicas.bootstrap).
+        Returns a ReplicaResult (.std[name], .samples, .n_failed, .failures, a summary table).
+        """
+        from .replicas import bootstrap
+        return bootstrap(self, n=n, seed=seed, kind=kind, executor=executor, **options)
 
     # -- reports ------------------------------------------------------------------------
     def report(self):
