@@ -132,3 +132,17 @@ def test_bad_input(mlr_data):
         wkbfit.scan_models(mlr_data, [TRUE], MU, acceptable_delta=-1)
     with pytest.raises(ValueError, match="isotopologue"):
         wkbfit.scan_models(mlr_data, [TRUE], MU, isotopologue="7Li133Cs")
+
+
+def test_mlr_candidate_grid():
+    start = wkbfit.MLR(De=2950.0, re=3.0, C6=2e5, C8=1e6, betas=[0.3, 0.1], r_ref=3.1)
+    grid = model_scan.mlr_candidates(start, n_betas=[1, 2, 4], p=(5, 6), r_ref=(3.0, 3.2))
+    assert len(grid) == 3 * 2 * 2
+    assert [len(c.betas) for c in grid[::4]] == [1, 2, 4]
+    assert grid[0].betas == (0.3,) and grid[-1].betas == (0.3, 0.1, 0.0, 0.0)
+    assert {(c.params["p"], c.params["r_ref"]) for c in grid} == {(5, 3.0), (5, 3.2), (6, 3.0), (6, 3.2)}
+    assert all(c.params["C8"] == 1e6 and c.params["q"] == 3 for c in grid)
+    with pytest.raises(ValueError, match="n_betas"):
+        model_scan.mlr_candidates(start, n_betas=[9])
+    with pytest.raises(ValueError, match="MLR"):
+        model_scan.mlr_candidates(wkbfit.Morse(De=1.0, re=1.0, a=1.0))

@@ -205,3 +205,12 @@ def test_executor_chunks_keep_order():
     out = executors.run_chunks(lambda shared, x: (shared, x * x), "s", range(37), executor=2)
     assert out == [("s", x * x) for x in range(37)]
     assert executors.run_chunks(lambda s, x: x, None, [], executor="serial") == []
+
+
+def test_unconverged_fit_is_not_bootstrapped():
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        res = wkbfit.fit(wkbfit.Morse(De=5000.0, re=3.5, a=0.7), morse_data(3), MU, max_iterations=1)
+    assert res.status != "converged"
+    with pytest.raises(ValueError, match="did not converge"):
+        res.bootstrap(10)

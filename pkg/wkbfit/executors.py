@@ -4,7 +4,7 @@
 `task(shared, item)` to every item and returns the results in the order of `items`, whatever
 the executor:
 
-    None or "threads"   a thread pool over every core (os.cpu_count()); the C core releases
+    None or "threads"   a thread pool over every core this process may use; the C core releases
                         the GIL inside each fit, so threads run in parallel
     "serial"            one after the other in this thread
     an int n >= 1       a thread pool of n threads
@@ -38,6 +38,14 @@ _DASK_MISSING = ("a Dask executor needs dask.distributed, which is not installed
                  "pip install 'wkbfit[dask]' (or pip install 'dask[distributed]'), or use executor='threads'")
 
 
+def n_cores():
+    """The cores this process may run on (its CPU affinity where the system reports it)."""
+    try:
+        return len(os.sched_getaffinity(0)) or 1
+    except (AttributeError, OSError):
+        return os.cpu_count() or 1
+
+
 def _run_chunk(task, shared, chunk):
     return [task(shared, item) for item in chunk]
 
@@ -57,7 +65,7 @@ def _is_dask_client(obj):
 def describe_executor(executor):
     """A short plain-language name of an executor argument (for reports)."""
     if executor is None or executor == "threads":
-        return "threads (%d)" % (os.cpu_count() or 1)
+        return "threads (%d)" % n_cores()
     if executor == "serial":
         return "serial"
     if isinstance(executor, int) and not isinstance(executor, bool):
@@ -122,9 +130,9 @@ def run_chunks(task, shared, items, executor=None, progress=None, desc=""):
         if isinstance(executor, str) and executor != "threads" or _is_dask_client(executor):
             return _run_dask(task, shared, items, executor, bar)
         if isinstance(executor, concurrent.futures.Executor):
-            workers = getattr(executor, "_max_workers", os.cpu_count() or 1)
+            workers = getattr(executor, "_max_workers", n_cores())
             return _run_pool(executor, task, shared, items, workers, bar)
-        workers = executor if isinstance(executor, int) else (os.cpu_count() or 1)
+        workers = executor if isinstance(executor, int) else n_cores()
         with concurrent.futures.ThreadPoolExecutor(max_workers=workers) as pool:
             return _run_pool(pool, task, shared, items, workers, bar)
     finally:

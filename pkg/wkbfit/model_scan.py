@@ -31,7 +31,7 @@ from .executors import describe_executor, run_chunks
 from .observed import read_levels
 from .potentials import Potential
 
-__all__ = ["scan_models", "ModelScan", "information_criteria", "RANK_BY"]
+__all__ = ["scan_models", "ModelScan", "information_criteria", "mlr_candidates", "RANK_BY"]
 
 RANK_BY = ("bic", "aic", "chi2")
 
@@ -39,6 +39,32 @@ RANK_BY = ("bic", "aic", "chi2")
 def information_criteria(chi_square, n_levels, n_params):
     """(AIC, BIC) = (chi2 + 2k, chi2 + k ln N) of a weighted least-squares fit (see the module notes)."""
     return chi_square + 2.0 * n_params, chi_square + n_params * math.log(n_levels)
+
+
+def mlr_candidates(start, n_betas=range(2, 9), p=None, q=None, r_ref=None):
+    """MLR starting potentials over a grid of sizes and shapes, each from `start` (an MLR).
+
+    n_betas: numbers of exponent coefficients; p, q, r_ref: sequences of values (None: the
+    start's own). Each candidate keeps De, re and the long-range coefficients of `start` and
+    its first coefficients, truncated or padded with zeros. Returns a list of MLR objects, in
+    the order n_betas, then p, q, r_ref.
+    """
+    from .potentials import MLR
+    if not isinstance(start, MLR):
+        raise ValueError("mlr_candidates needs an MLR starting potential; got %r" % (start,))
+    base = start.params
+    betas = list(start.betas)
+    out = []
+    for n in n_betas:
+        if isinstance(n, bool) or int(n) != n or not 1 <= n <= 8:
+            raise ValueError("n_betas holds %r; each must be a whole number 1..8" % (n,))
+        b = (betas + [0.0] * 8)[:int(n)]
+        for pp in (base["p"],) if p is None else p:
+            for qq in (base["q"],) if q is None else q:
+                for rr in (base["r_ref"],) if r_ref is None else r_ref:
+                    out.append(MLR(De=base["De"], re=base["re"], C6=base["C6"], C8=base["C8"], C10=base["C10"],
+                                   betas=b, p=pp, q=qq, r_ref=rr))
+    return out
 
 
 def _label(pot):

@@ -147,6 +147,9 @@ def bootstrap(result, n=1000, seed=1, kind="monte-carlo", executor=None, *, prog
     n_top_levels = _check_int(n_top_levels, "n_top_levels", 0)
     if kind not in KINDS:
         raise ValueError("kind=%r is not known; use %s" % (kind, " or ".join("%r (%s)" % kv for kv in KINDS.items())))
+    if result.status != "converged":
+        raise ValueError("the fit did not converge (%s): replicas would start from a point that is not the "
+                         "minimum; refit until it converges, then bootstrap" % result.message)
     if result.undetermined:
         raise ValueError("the fit leaves %s undetermined: fix %s before bootstrapping"
                          % (", ".join(result.undetermined), "them" if len(result.undetermined) > 1 else "it"))
