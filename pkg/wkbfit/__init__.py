@@ -13,5 +13,7 @@ from .fitting import fit, FitResult
 from .rkr import RKRTurningPoints, rkr_turning_points, rkr_potential
 from .near_dissociation import near_dissociation_fit, NearDissociationFit
 from . import plots  # figures; matplotlib itself is imported only when one is drawn
+from .replicas import bootstrap, ReplicaResult
+from .model_scan import scan_models, ModelScan
 
 __version__ = "0.1.0"

@@ -3,6 +3,7 @@
     wkbfit levels MODEL NAME=VALUE ... (--mu MU | --isotopologue LABEL) [-J J] [-v V] [--method wkb|exact]
     wkbfit check DATAFILE [--energy-zero ZERO]
     wkbfit fit DATAFILE MODEL NAME=VALUE ... [--mu MU | --mass LABEL=MU ...] [--fix NAME] [--vary NAME] [-o JSON]
+                [--replicas N [--scheduler ADDRESS]]
     wkbfit demo
     wkbfit rkr | compare | curve | predict   (see wkbfit.cli_tools)
 
@@ -252,6 +253,9 @@ def _cmd_fit(args, out):
     for target in args.predict or []:
         print("", file=out)
         print(_prediction_text(result, target, args.near), file=out)
+    if args.replicas:
+        print("", file=out)
+        print(_replicas_text(result, args), file=out)
     result.save_json(path)
     print("\nfit result written to %s" % path, file=out)
     poor = cli_tools.poor_fit_message(result, args.sigma_limit)
@@ -300,6 +304,19 @@ def _demo_near_dissociation(demo, obs, result, true):
                  "~100 cm-1 reach in to ~7 A, where this MLR's tail is not yet C6/r^6 alone: the expansion's few terms "
                  "absorb that, biasing C6; the potential fit, which uses the whole curve, does not.")
     return "\n".join(lines)
+
+
+def _replicas_text(result, args):
+    """The bootstrap or Monte-Carlo replicas of the fit (--replicas N [--scheduler ADDRESS])."""
+    if not result.success:
+        return "replicas skipped: the fit did not converge"
+    executor = args.scheduler or ("serial" if args.threads == 1 else args.threads)
+    try:
+        reps = result.bootstrap(args.replicas, seed=args.seed, kind=args.replica_kind, executor=executor,
+                                progress=False if args.no_progress else None)
+    except ImportError as err:
+        raise UserError(str(err)) from None
+    return reps.to_text()
 
 
 def _default_json_path(datafile):
@@ -458,6 +475,19 @@ def _parser():
     p.add_argument("--sigma-limit", type=lambda s: _number(s, "--sigma-limit"), default=cli_tools.SIGMA_LIMIT,
                    metavar="S", help="a converged fit whose sqrt of reduced chi-square exceeds S is reported as "
                                      "failed, exit status 3 (default %g)" % cli_tools.SIGMA_LIMIT)
+    replicas = p.add_argument_group("replicas (the spread of the parameters and predictions over refits)")
+    replicas.add_argument("--replicas", type=_positive_int, default=0, metavar="N",
+                          help="refit N Monte-Carlo or bootstrap replicas of the data and print their statistics")
+    replicas.add_argument("--replica-kind", choices=("monte-carlo", "resample"), default="monte-carlo",
+                          help="monte-carlo: calculated levels plus noise of the uncertainties (default); "
+                               "resample: the levels drawn with replacement")
+    replicas.add_argument("--seed", type=int, default=1, help="seed of the replicas (default 1)")
+    replicas.add_argument("--threads", type=_positive_int, default=None, metavar="N",
+                          help="threads for the replicas (default: every core)")
+    replicas.add_argument("--scheduler", metavar="ADDRESS",
+                          help="run the replicas on this Dask scheduler (e.g. tcp://host:8786; needs the extra "
+                               "wkbfit[dask])")
+    replicas.add_argument("--no-progress", action="store_true", help="no progress bar")
     p.set_defaults(run=_cmd_fit)
 
     p = sub.add_parser("demo", help="fit the shipped INVENTED demo data",

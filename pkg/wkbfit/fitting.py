@@ -221,6 +221,10 @@ def fit(potential, observed, mu=None, *, method="corrected", vary=None, bounds=N
                           % (result.refreshes, result.refresh_history[-1]["step_sd"]))
     final_args = dict(args, params=out["params"])
     _method_error.attach(result, rows, out, final_args)
+    # how this fit was made, so that replicas and scans refit exactly the same way
+    result.fit_options = {"method": method, "vary": list(result.var_names),
+                          "bounds": {n: b for n, b in bounds_by_name.items() if b != (None, None)},
+                          "scale_uncertainties": bool(scale_uncertainties), "max_iterations": max_iterations}
     result._warn()
     return result
 
@@ -664,6 +668,20 @@ class FitResult:
         # hooks for the matched-end-phase levels: the quantum threshold number and quasibound levels
         pred.v_th, pred.v_th_uncertainty, pred.quasibound = None, None, None
         return pred
+
+    # -- replicas -----------------------------------------------------------------------
+    def bootstrap(self, n=1000, seed=1, kind="monte-carlo", executor=None, **options):
+        """Refit n bootstrap or Monte-Carlo replicas of the data with this fit's own settings.
+
+        kind: "monte-carlo" (default; calculated levels plus noise of the stated uncertainties,
+        scaled like the covariance) or "resample" (levels drawn with replacement); seed: replica
+        i uses numpy.random.default_rng([seed, i]), the same on every executor; executor: None or
+        "threads" (all cores), "serial", a dask.distributed.Client or a scheduler address.
+        Options: progress, isotopologue, n_top_levels (see wkbfit.replicas.bootstrap).
+        Returns a ReplicaResult (.std[name], .samples, .n_failed, .failures, a summary table).
+        """
+        from .replicas import bootstrap
+        return bootstrap(self, n=n, seed=seed, kind=kind, executor=executor, **options)
 
     # -- reports ------------------------------------------------------------------------
     def report(self):

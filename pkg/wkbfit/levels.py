@@ -34,6 +34,9 @@ _DESCRIPTIONS = {
 }
 
 
+_INT, _FLOAT = np.dtype(int), np.dtype(float)
+
+
 class LevelTable:
     """Levels of one potential and reduced mass, as NumPy arrays of equal length.
 
@@ -46,7 +49,10 @@ class LevelTable:
         n = len(columns["v"])
         for name in _COLUMNS:
             col = columns.get(name)
-            col = np.asarray(np.full(n, np.nan) if col is None else col, dtype=int if name in ("v", "J") else float)
+            if col is None:
+                col = np.full(n, np.nan)
+            elif type(col) is not np.ndarray or col.dtype != (_INT if name in ("v", "J") else _FLOAT):
+                col = np.asarray(col, dtype=int if name in ("v", "J") else float)
             if len(col) != n:
                 raise ValueError("column %s has %d rows, expected %d" % (name, len(col), n))
             col.setflags(write=False)
@@ -118,6 +124,9 @@ class LevelTable:
 
 
 def _as_int_list(x, name):
+    # the common case first: a list of plain non-negative ints in range needs no NumPy round trip
+    if type(x) is list and x and all(type(e) is int and 0 <= e <= _validate.MAX_LEVELS for e in x):
+        return list(x)
     return _validate.integer_list(x, name)
 
 
@@ -194,9 +203,9 @@ def _wkb_levels(potential, mu, vs, Js, langer, maslov, order=1, max_levels=_vali
         raise ValueError("maslov=%r is invalid: each index is 1 (smooth turning point) or 2 (hard wall)"
                          % (maslov,))
     model, params, curve = potential._core_args()
-    v_arr = None if vs is None else np.asarray(vs, dtype=np.intc)
-    J = np.asarray(Js, dtype=float)
-    rot = (J + 0.5) ** 2 if langer else J * (J + 1)
+    # plain lists: the core converts them (cheaper than NumPy arrays for the common one-J call)
+    v_arr = None if vs is None else vs
+    rot = [(j + 0.5) ** 2 if langer else float(j * (j + 1)) for j in Js]
     # one crossing into the core for every J
     try:
         cols = _core.wkb_levels(model, params, curve, mu, rot, v_arr, m_in, m_out, order=order,
@@ -219,7 +228,7 @@ def _wkb_levels(potential, mu, vs, Js, langer, maslov, order=1, max_levels=_vali
             raise ValueError("J=%d: %s" % (Js[0], exc)) from None
         raise
     _check_levels(cols, Js)
-    cols["J"] = np.asarray(Js)[cols["rot_index"]]
+    cols["J"] = np.full(len(cols["v"]), Js[0]) if len(Js) == 1 else np.asarray(Js)[cols["rot_index"]]
     vD = {J: (None if math.isnan(x) else float(x)) for J, x in zip(Js, np.atleast_1d(cols["vD"]))}
     table = LevelTable(cols, mu=mu, method="wkb" if order == 1 else "wkb2", potential=potential, vD=vD,
                        notes=cols.get("notes", ()))

@@ -1,0 +1,340 @@
+"""Bootstrap and Monte-Carlo replicas of a fit: the spread of the parameters and predictions.
+
+`bootstrap(result, n=1000, seed=1, kind="monte-carlo", executor=None)` (also
+`FitResult.bootstrap`) refits n replicas of the data through `wkbfit.fit` itself, with the
+result's own settings (method, varied parameters, bounds, uncertainty scaling, iteration
+limit), each starting from the fitted potential, and returns a `ReplicaResult`.
+
+Kinds of replica (the default is "monte-carlo"):
+
+  "monte-carlo"  parametric: the calculated levels of the fit plus Gaussian noise of each
+                 level's stated uncertainty, multiplied by the fit's dimensionless standard
+                 error sqrt(chi2/dof) when the fit scales its uncertainties (so that the replica
+                 spread and the scaled covariance describe the same noise). It keeps the set of
+                 levels, which in spectroscopic data is structured: every replica still has
+                 the highest v and the J that fix De and re.
+  "resample"     nonparametric: the fitted rows drawn with replacement (case resampling). A
+                 draw may lose the few levels that fix one parameter; such a replica fails as
+                 "undetermined" and is counted.
+
+Replica i draws from numpy.random.default_rng([seed, i]): its numbers depend on the seed and on
+i only, never on the executor, the chunking or the worker, so one seed gives the same result
+serially, on threads and on a Dask cluster.
+
+A replica whose fit raises, does not converge, or leaves a parameter undetermined is a failure:
+counted in `n_failed`, listed with its reason in `failures`, and left out of the statistics,
+which say how many replicas they rest on.
+
+Predictions of every replica (for one isotopologue at J = 0): D0 (asymptote minus v=0, J=0),
+vD, the number of bound levels, and the binding energies of the levels nearest dissociation
+(the top `n_top_levels` of the central fit, NaN in a replica that does not bind one).
+"""
+import math
+import warnings
+
+import numpy as np
+
+from .executors import describe_executor, run_chunks
+from .observed import ObservedLevels
+
+__all__ = ["bootstrap", "ReplicaResult", "KINDS"]
+
+KINDS = {
+    "monte-carlo": "calculated levels plus Gaussian noise of the stated uncertainties (scaled like the covariance)",
+    "resample": "fitted levels drawn with replacement (case resampling)",
+}
+
+#: central probability contents of the percentile intervals reported
+INTERVALS = (0.6827, 0.95)
+
+
+def fit_settings(result):
+    """The keyword arguments with which `wkbfit.fit` made `result` (mu excepted)."""
+    stored = getattr(result, "fit_options", None)
+    if stored is not None:
+        return dict(stored)
+    return {"method": result.method, "vary": list(result.var_names),
+            "bounds": {n: p.bounds for n, p in result.params.items() if p.vary and p.bounds != (None, None)},
+            "scale_uncertainties": result.scale_uncertainties,
+            "max_iterations": getattr(result, "max_iterations", 200)}
+
+
+def prediction_values(result, isotopologue, v_top):
+    """The predictions of one fit (J = 0), as a dict of floats: the values of result.predict,
+    computed directly by the core (without the uncertainty propagation) for the methods the
+    core runs itself, else through result.predict."""
+    from . import _core
+    from .fitting import _METHOD_CODES
+    if result.method in _METHOD_CODES:
+        model, params, curve = result.potential._core_args()
+        res = _core.fit_levels(model, params, curve, result.masses[isotopologue], 0.0,
+                               _METHOD_CODES[result.method])
+        E, asym, vD = res["energy"], res["asymptote"], res["vD"]
+    else:
+        pred = result.predict(isotopologue=isotopologue)
+        E, asym, vD = pred.energy, pred.energy[0] + pred.binding_energy[0] if pred.n_bound else math.nan, pred.vD
+    out = {"D0": asym - E[0] if len(E) else math.nan, "vD": vD, "n_bound": float(len(E))}
+    for v in v_top:
+        out["Eb(v=%d)" % v] = float(asym - E[v]) if v < len(E) else math.nan
+    return out
+
+
+def _replica_data(shared, i):
+    """The ObservedLevels of replica i."""
+    rng = np.random.default_rng([shared["seed"], i])
+    v, J, E, sig, iso = shared["v"], shared["J"], shared["energy"], shared["uncertainty"], shared["isotopologue"]
+    fitted = shared["fitted_rows"]
+    if shared["kind"] == "monte-carlo":
+        E = E.copy()
+        rows = np.nonzero(fitted)[0]
+        E[rows] = shared["calculated"][rows] + shared["noise_scale"] * sig[rows] * rng.standard_normal(len(rows))
+        idx = np.arange(len(v))
+    else:
+        rows = np.nonzero(fitted)[0]
+        idx = np.concatenate([np.nonzero(~fitted)[0], rows[rng.integers(0, len(rows), len(rows))]])
+    return ObservedLevels(v[idx], J[idx], E[idx], sig[idx], iso[idx], shared["energy_zero"], "replica %d" % i)
+
+
+def _replica_task(shared, i):
+    """Fit replica i: (i, None, values) on success, (i, reason, None) on failure."""
+    from .fitting import fit, FitWarning
+    obs = _replica_data(shared, i)
+    present = set(obs.isotopologues)
+    masses = {k: m for k, m in shared["masses"].items() if k in present}
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", FitWarning)
+        try:
+            res = fit(shared["start"], obs, masses, **shared["settings"])
+        except (ValueError, ArithmeticError) as err:
+            return i, "fit failed: %s" % err, None
+        if res.status != "converged":
+            return i, "not converged: %s" % res.message, None
+        if res.undetermined:
+            return i, "undetermined parameter%s %s" % ("s" if len(res.undetermined) > 1 else "",
+                                                        ", ".join(res.undetermined)), None
+        values = {n: res.params[n].value for n in shared["names"]}
+        values["chi_square"] = res.chi_square
+        try:
+            values.update(prediction_values(res, shared["isotopologue_label"], shared["v_top"]))
+        except ValueError as err:
+            return i, "predictions failed: %s" % err, None
+    return i, None, values
+
+
+def _check_int(x, name, low):
+    if isinstance(x, (bool, np.bool_)) or not isinstance(x, (int, np.integer)) or x < low:
+        raise ValueError("%s=%r must be an integer >= %d" % (name, x, low))
+    return int(x)
+
+
+def bootstrap(result, n=1000, seed=1, kind="monte-carlo", executor=None, *, progress=None, isotopologue=None,
+              n_top_levels=3):
+    """Refit n replicas of the data of `result`; see the module documentation.
+
+    n: number of replicas (>= 2); seed: integer >= 0; kind: "monte-carlo" (default) or
+    "resample"; executor: None/"threads" (all cores), "serial", a number of threads, a
+    dask.distributed.Client or a scheduler address (see wkbfit.executors); progress: True,
+    False, or None (a tqdm bar for long runs); isotopologue: label whose levels are predicted
+    (default: the first isotopologue of the data); n_top_levels: how many levels nearest
+    dissociation to follow.
+    Returns a ReplicaResult.
+    """
+    from .fitting import FitResult
+    if not isinstance(result, FitResult):
+        raise ValueError("bootstrap needs a FitResult (from wkbfit.fit); got %r" % (result,))
+    n = _check_int(n, "n", 2)
+    seed = _check_int(seed, "seed", 0)
+    n_top_levels = _check_int(n_top_levels, "n_top_levels", 0)
+    if kind not in KINDS:
+        raise ValueError("kind=%r is not known; use %s" % (kind, " or ".join("%r (%s)" % kv for kv in KINDS.items())))
+    if result.status != "converged":
+        raise ValueError("the fit did not converge (%s): replicas would start from a point that is not the "
+                         "minimum; refit until it converges, then bootstrap" % result.message)
+    if result.undetermined:
+        raise ValueError("the fit leaves %s undetermined: fix %s before bootstrapping"
+                         % (", ".join(result.undetermined), "them" if len(result.undetermined) > 1 else "it"))
+    obs = result.observed
+    label = obs.isotopologues[0] if isotopologue is None else isotopologue
+    if label not in result.masses:
+        raise ValueError("isotopologue=%r is not one of the fit (%s)" % (label, ", ".join(map(repr, result.masses))))
+    central = prediction_values(result, label, [])
+    n_bound = int(central["n_bound"])
+    v_top = list(range(max(0, n_bound - n_top_levels), n_bound))
+    central = prediction_values(result, label, v_top)
+    noise_scale = result.standard_error if (result.scale_uncertainties and result.standard_error) else 1.0
+    shared = {
+        "v": np.array(obs.v), "J": np.array(obs.J), "energy": np.array(obs.energy),
+        "uncertainty": np.array(obs.uncertainty), "isotopologue": np.array(obs.isotopologue),
+        "energy_zero": obs.energy_zero, "fitted_rows": np.array(result.fitted_rows),
+        "calculated": np.array(result.calculated), "masses": dict(result.masses), "start": result.potential,
+        "settings": fit_settings(result), "names": list(result.var_names), "kind": kind, "seed": seed,
+        "noise_scale": float(noise_scale), "isotopologue_label": label, "v_top": v_top,
+    }
+    with warnings.catch_warnings():  # the pool's threads share this thread's filters
+        from .fitting import FitWarning
+        warnings.simplefilter("ignore", FitWarning)
+        out = run_chunks(_replica_task, shared, range(n), executor, progress, desc="replicas")
+    return ReplicaResult(result, out, kind=kind, seed=seed, executor=describe_executor(executor),
+                         central_predictions=central, isotopologue=label, noise_scale=noise_scale)
+
+
+class ReplicaResult:
+    """The replicas of one fit.
+
+    n, n_failed, failures [(replica index, reason)], kind, seed, executor;
+    names: the quantities followed (varied parameters, chi_square, D0, vD, n_bound, Eb(v=...));
+    values: name -> array over the converged replicas; mean, std (sample standard deviation,
+    ddof=1), intervals (name -> {probability: (low, high)} percentile intervals);
+    central: the values of the fit itself; covariance_sd: name -> one-sigma uncertainty from the
+    covariance matrix (linear propagation for the predictions; None where there is none);
+    samples: a pandas DataFrame, one row per converged replica.
+    """
+
+    def __init__(self, fit_result, outcomes, *, kind, seed, executor, central_predictions, isotopologue,
+                 noise_scale):
+        self.fit_result = fit_result
+        self.kind, self.seed, self.executor = kind, seed, executor
+        self.isotopologue = isotopologue
+        self.noise_scale = float(noise_scale)
+        self.n = len(outcomes)
+        ok = [(i, vals) for i, reason, vals in outcomes if reason is None]
+        self.failures = [(i, reason) for i, reason, vals in outcomes if reason is not None]
+        self.n_failed = len(self.failures)
+        self.n_converged = len(ok)
+        self.replica_index = np.array([i for i, _ in ok], dtype=int)
+        self.names = list(fit_result.var_names) + ["chi_square"] + list(central_predictions)
+        self.values = {k: np.array([vals[k] for _, vals in ok], dtype=float) for k in self.names}
+        self.central = dict(fit_result.values)
+        self.central["chi_square"] = fit_result.chi_square
+        self.central.update(central_predictions)
+        self.covariance_sd = self._covariance_sd(fit_result, central_predictions)
+        self.mean, self.std, self.intervals, self.n_finite = {}, {}, {}, {}
+        for k in self.names:
+            x = self.values[k]
+            x = x[np.isfinite(x)]
+            self.n_finite[k] = len(x)
+            self.mean[k] = float(np.mean(x)) if len(x) else math.nan
+            self.std[k] = float(np.std(x, ddof=1)) if len(x) > 1 else math.nan
+            self.intervals[k] = {p: tuple(float(q) for q in np.percentile(x, [50 * (1 - p), 50 * (1 + p)]))
+                                 if len(x) else (math.nan, math.nan) for p in INTERVALS}
+
+    def _covariance_sd(self, res, central):
+        out = {n: res.params[n].uncertainty for n in res.var_names}
+        out["chi_square"] = None
+        pred = res.predict(isotopologue=self.isotopologue)
+        out["D0"], out["vD"], out["n_bound"] = pred.D0_uncertainty, pred.vD_uncertainty, None
+        for k in central:
+            if k.startswith("Eb(v="):
+                out[k] = float(pred.binding_uncertainty[int(k[5:-1])])
+        return out
+
+    @property
+    def samples(self):
+        """One row per converged replica: its index, the parameters, chi-square and the predictions."""
+        try:
+            import pandas as pd
+        except ImportError:
+            raise ImportError("ReplicaResult.samples needs pandas: pip install pandas (or use .values, a dict of "
+                              "arrays)") from None
+        data = {"replica": self.replica_index}
+        data.update(self.values)
+        return pd.DataFrame(data)
+
+    def summary_rows(self):
+        """One dict per quantity: central value, covariance sd, replica mean, sd, intervals, unit."""
+        rows = []
+        for k in self.names:
+            row = {"quantity": k, "unit": _unit(self.fit_result, k), "fit": self.central[k],
+                   "covariance_sd": self.covariance_sd.get(k), "mean": self.mean[k], "sd": self.std[k],
+                   "n": self.n_finite[k]}
+            for p in INTERVALS:
+                row["p%.4g_low" % (100 * p)], row["p%.4g_high" % (100 * p)] = self.intervals[k][p]
+            rows.append(row)
+        return rows
+
+    def to_dataframe(self):
+        """The summary table (one row per quantity) as a pandas DataFrame."""
+        import pandas as pd
+        return pd.DataFrame(self.summary_rows())
+
+    def to_text(self):
+        return _text(self)
+
+    def __str__(self):
+        return self.to_text()
+
+    def __repr__(self):
+        return "<ReplicaResult %s: %d replicas (%d failed), seed %d, %s>" % (
+            self.kind, self.n, self.n_failed, self.seed, ", ".join(
+                "sd(%s)=%.3g" % (k, self.std[k]) for k in self.fit_result.var_names))
+
+    def _repr_html_(self):
+        return _html(self)
+
+
+def _unit(res, name):
+    if name in ("chi_square", "vD", "n_bound"):
+        return ""
+    if name == "D0" or name.startswith("Eb("):
+        return "cm-1"
+    from .reports import _UNITS
+    return _UNITS.get(name, "")
+
+
+def _fmt(x):
+    if x is None or (isinstance(x, float) and not math.isfinite(x)):
+        return "-"
+    return "%.10g" % x
+
+
+def _header(r):
+    lines = ["%s replicas of the fit of a %s potential (%s): %d replicas, %d converged, %d failed; seed %d; %s" % (
+        r.kind, type(r.fit_result.potential).__name__, KINDS[r.kind], r.n, r.n_converged, r.n_failed, r.seed,
+        r.executor)]
+    if r.kind == "monte-carlo":
+        lines.append("noise: stated uncertainties x %.4g%s" % (
+            r.noise_scale, " (the dimensionless standard error, as the scaled covariance)" if r.noise_scale != 1
+            else ""))
+    lines.append("predictions for isotopologue %s at J = 0; Eb = asymptote - E, binding energy" % (
+        r.isotopologue if r.isotopologue is not None else "(unnamed)"))
+    return lines
+
+
+def _text(r):
+    lines = _header(r)
+    lines.append("")
+    lines.append("%-14s %-5s %18s %13s %18s %13s %8s  %-31s %-31s" % (
+        "quantity", "unit", "fit", "covariance sd", "replica mean", "replica sd", "sd/cov",
+        "68.27% interval", "95% interval"))
+    for row in r.summary_rows():
+        ratio = (row["sd"] / row["covariance_sd"]) if row["covariance_sd"] else None
+        lines.append("%-14s %-5s %18s %13s %18s %13s %8s  [%-14s %14s] [%-14s %14s]%s" % (
+            row["quantity"], row["unit"], _fmt(row["fit"]), _fmt(row["covariance_sd"]), _fmt(row["mean"]),
+            _fmt(row["sd"]), "%.3f" % ratio if ratio else "-", _fmt(row["p68.27_low"]), _fmt(row["p68.27_high"]),
+            _fmt(row["p95_low"]), _fmt(row["p95_high"]),
+            "" if row["n"] == r.n_converged else "  (bound in %d replicas)" % row["n"]))
+    if r.failures:
+        lines.append("")
+        lines.append("failed replicas (%d, left out of the statistics):" % r.n_failed)
+        for i, reason in r.failures[:10]:
+            lines.append("  replica %d: %s" % (i, reason))
+        if r.n_failed > 10:
+            lines.append("  ... and %d more (see .failures)" % (r.n_failed - 10))
+    return "\n".join(lines)
+
+
+def _html(r):
+    import html
+    head = "".join("<th>%s</th>" % h for h in ("quantity", "unit", "fit", "covariance sd", "replica mean",
+                                               "replica sd", "68.27% interval", "95% interval", "n"))
+    body = "".join("<tr><td>%s</td><td>%s</td><td>%s</td><td>%s</td><td>%s</td><td>%s</td><td>[%s, %s]</td>"
+                   "<td>[%s, %s]</td><td>%d</td></tr>" % (
+                       html.escape(row["quantity"]), row["unit"], _fmt(row["fit"]), _fmt(row["covariance_sd"]),
+                       _fmt(row["mean"]), _fmt(row["sd"]), _fmt(row["p68.27_low"]), _fmt(row["p68.27_high"]),
+                       _fmt(row["p95_low"]), _fmt(row["p95_high"]), row["n"]) for row in r.summary_rows())
+    fails = ""
+    if r.failures:
+        fails = "<p>%d failed replicas (left out of the statistics), e.g. replica %d: %s</p>" % (
+            r.n_failed, r.failures[0][0], html.escape(r.failures[0][1]))
+    return "<div><p>%s</p><table><tr>%s</tr>%s</table>%s</div>" % (
+        "<br>".join(html.escape(x) for x in _header(r)), head, body, fails)

@@ -1,0 +1,219 @@
+"""Bootstrap and Monte-Carlo replicas of fits (wkbfit.replicas) and the executors they run on.
+
+Data are levels from the exact radial solver (method="exact") plus seeded Gaussian noise; the
+fits are first-order WKB, which for a Morse well at J = 0 is exact (the WKB quantization
+condition reproduces the Morse levels; checked here against the exact solver to 1e-8 cm-1), so
+the true parameters are known exactly.
+"""
+import concurrent.futures
+import math
+import sys
+import warnings
+
+import numpy as np
+import pytest
+
+import wkbfit
+from wkbfit import executors, replicas
+
+MU = 6.66420389  # u, the 7Li133Cs reduced mass of the mass table (a number here: these data are invented)
+TRUE = wkbfit.Morse(De=5875.0, re=3.67, a=0.6)
+
+
+def exact_levels(pot, vs, J):
+    return wkbfit.levels(pot, MU, v=vs, J=J, method="exact").energy
+
+
+def morse_data(seed, sigma=0.01, Js=(0, 10), nv=25):
+    vs, J, E = [], [], []
+    for j in Js:
+        vs += list(range(nv))
+        J += [j] * nv
+        E += exact_levels(TRUE, list(range(nv)), j).tolist()
+    rng = np.random.default_rng(seed)
+    return wkbfit.read_levels({"v": vs, "J": J, "energy": np.array(E) + rng.normal(0, sigma, len(E)),
+                               "uncertainty": np.full(len(E), sigma)})
+
+
+@pytest.fixture(scope="module")
+def morse_fit():
+    return wkbfit.fit(wkbfit.Morse(De=5800.0, re=3.66, a=0.605), morse_data(3), MU)
+
+
+def test_morse_wkb_is_exact_at_J0():
+    # the premise of the coverage test: WKB levels of a Morse well at J = 0 equal the exact ones
+    vs = list(range(40))
+    wkb = wkbfit.levels(TRUE, MU, v=vs).energy
+    assert np.max(np.abs(wkb - exact_levels(TRUE, vs, 0))) < 1e-8
+
+
+def test_bootstrap_sd_matches_covariance(morse_fit):
+    # common practice: where the model is nearly linear in its parameters over the spread of the
+    # replicas, replica standard deviations equal the covariance-matrix uncertainties; 800
+    # replicas estimate a standard deviation to 1/sqrt(2*800) = 2.5 %, so 10 % is 4 sigma
+    for kind in ("monte-carlo", "resample"):
+        reps = morse_fit.bootstrap(800, seed=11, kind=kind, progress=False)
+        assert reps.n_failed == 0 and reps.n_converged == 800
+        for name in ("De", "re", "a"):
+            ratio = reps.std[name] / morse_fit.params[name].uncertainty
+            assert abs(ratio - 1) < 0.10, (kind, name, ratio)
+        # and the predictions against their linear propagation
+        for name in ("D0", "vD"):
+            ratio = reps.std[name] / reps.covariance_sd[name]
+            assert abs(ratio - 1) < 0.10, (kind, name, ratio)
+        # the replicas scatter about the fitted values (mean within 4 standard errors of the mean)
+        for name in ("De", "a"):
+            assert abs(reps.mean[name] - morse_fit.params[name].value) < 4 * reps.std[name] / math.sqrt(800)
+
+
+def test_percentile_intervals_cover_truth_at_nominal_rate():
+    # seeded Monte-Carlo study: 120 data sets from the exact levels of a known Morse well (J = 0,
+    # De and a varied, re held at its true value); each data set gets 150 Monte-Carlo replicas.
+    # The 68.27 % and 95 % percentile intervals must contain the true De and a at their nominal
+    # rates within 3 binomial standard deviations, sqrt(p (1 - p) / 120) (4.3 % and 2.0 %).
+    vs = list(range(30))
+    exact = exact_levels(TRUE, vs, 0)
+    sigma, n_sets = 0.02, 120
+    hits = {(name, p): 0 for name in ("De", "a") for p in replicas.INTERVALS}
+    rng = np.random.default_rng(2024)
+    for k in range(n_sets):
+        obs = wkbfit.read_levels({"v": vs, "energy": exact + rng.normal(0, sigma, len(vs)),
+                                  "uncertainty": np.full(len(vs), sigma)})
+        res = wkbfit.fit(TRUE, obs, MU, vary=["De", "a"], scale_uncertainties=False)
+        reps = res.bootstrap(150, seed=k, progress=False)
+        assert reps.n_failed == 0
+        for name in ("De", "a"):
+            for p in replicas.INTERVALS:
+                lo, hi = reps.intervals[name][p]
+                hits[(name, p)] += lo <= TRUE.params[name] <= hi
+    for (name, p), h in hits.items():
+        rate = h / n_sets
+        assert abs(rate - p) < 3 * math.sqrt(p * (1 - p) / n_sets) + 1.0 / 150, (name, p, rate)
+
+
+def test_same_seed_same_numbers_on_every_executor(morse_fit):
+    a = morse_fit.bootstrap(60, seed=5, executor="serial", progress=False)
+    b = morse_fit.bootstrap(60, seed=5, executor="threads", progress=False)
+    c = morse_fit.bootstrap(60, seed=5, executor=3, progress=False)
+    with concurrent.futures.ProcessPoolExecutor(2) as pool:  # any concurrent.futures executor
+        p = morse_fit.bootstrap(60, seed=5, executor=pool, progress=False)
+    for k in a.names:
+        assert np.array_equal(a.values[k], b.values[k]) and np.array_equal(a.values[k], c.values[k])
+        assert np.array_equal(a.values[k], p.values[k])
+    assert a.samples.equals(b.samples)
+    d = morse_fit.bootstrap(60, seed=6, executor="serial", progress=False)
+    assert not np.array_equal(a.values["De"], d.values["De"])
+    # replica i depends on (seed, i) only: the first 30 of 60 are the 30 of a 30-replica run
+    e = morse_fit.bootstrap(30, seed=5, executor="serial", progress=False)
+    assert np.array_equal(e.values["De"], a.values["De"][:30])
+
+
+def test_dask_local_cluster_gives_the_same_numbers(morse_fit):
+    distributed = pytest.importorskip("distributed", reason="dask.distributed is not installed (pip install "
+                                      "'wkbfit[dask]'); the Dask executor cannot be tested")
+    serial = morse_fit.bootstrap(40, seed=9, executor="serial", progress=False)
+    candidates = [wkbfit.Morse(De=5800.0, re=3.66, a=0.605), wkbfit.LennardJones(De=5800.0, re=3.67)]
+    obs = morse_data(3)
+    scan_serial = wkbfit.scan_models(obs, candidates, MU, executor="serial")
+    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None) \
+            as cluster, distributed.Client(cluster) as client:
+        on_client = morse_fit.bootstrap(40, seed=9, executor=client, progress=False)
+        on_address = morse_fit.bootstrap(40, seed=9, executor=cluster.scheduler_address, progress=False)
+        scan_dask = wkbfit.scan_models(obs, candidates, MU, executor=client)
+    for k in serial.names:
+        assert np.array_equal(serial.values[k], on_client.values[k])
+        assert np.array_equal(serial.values[k], on_address.values[k])
+    assert [r["chi2"] for r in scan_serial.rows] == [r["chi2"] for r in scan_dask.rows]
+    assert [r["candidate"] for r in scan_serial.rows] == [r["candidate"] for r in scan_dask.rows]
+
+
+def test_failed_replicas_are_counted_and_reported():
+    # 25 J = 0 levels and a single J = 10 level: re rests on that one level, which a resample
+    # leaves out with probability (1 - 1/26)^26 = 36 %; those replicas fail as undetermined
+    vs = list(range(25)) + [3]
+    Js = [0] * 25 + [10]
+    E = np.concatenate([exact_levels(TRUE, list(range(25)), 0), exact_levels(TRUE, [3], 10)])
+    rng = np.random.default_rng(1)
+    obs = wkbfit.read_levels({"v": vs, "J": Js, "energy": E + rng.normal(0, 0.01, 26),
+                              "uncertainty": np.full(26, 0.01)})
+    res = wkbfit.fit(TRUE, obs, MU)
+    reps = res.bootstrap(200, seed=3, kind="resample", progress=False)
+    assert reps.n_failed + reps.n_converged == 200
+    assert 40 < reps.n_failed < 110  # binomial(200, 0.36): mean 72, sd 7
+    assert all("undetermined" in reason and "re" in reason for _, reason in reps.failures)
+    assert len(reps.samples) == reps.n_converged
+    assert set(reps.samples["replica"]).isdisjoint(i for i, _ in reps.failures)
+    text = reps.to_text()
+    assert "%d failed" % reps.n_failed in text and "failed replicas" in text
+    assert "failed" in reps._repr_html_()
+
+
+def test_renderings_and_tables(morse_fit):
+    reps = morse_fit.bootstrap(50, seed=2, progress=False)
+    text = str(reps)
+    for fragment in ("monte-carlo", "covariance sd", "replica sd", "68.27% interval", "95% interval", "cm-1",
+                     "D0", "vD", "n_bound", "Eb(v="):
+        assert fragment in text
+    assert repr(reps).startswith("<ReplicaResult monte-carlo: 50 replicas (0 failed)")
+    df = reps.to_dataframe()
+    assert list(df["quantity"])[:3] == ["De", "re", "a"]
+    assert df.set_index("quantity").loc["De", "covariance_sd"] == morse_fit.params["De"].uncertainty
+    assert "<table>" in reps._repr_html_()
+    # the top levels followed are the last bound levels of the fit
+    pred = morse_fit.predict()
+    top = [k for k in reps.names if k.startswith("Eb(")]
+    assert top == ["Eb(v=%d)" % v for v in range(pred.n_bound - 3, pred.n_bound)]
+    assert reps.central[top[-1]] == pytest.approx(pred.binding_energy[-1], abs=1e-9)
+    assert reps.central["D0"] == pytest.approx(pred.D0, abs=1e-9)
+
+
+def test_progress_bar_shown_and_switched_off(morse_fit, capsys):
+    pytest.importorskip("tqdm")
+    morse_fit.bootstrap(8, seed=1, executor="serial", progress=True)
+    assert "replicas" in capsys.readouterr().err
+    morse_fit.bootstrap(8, seed=1, executor="serial", progress=False)
+    assert capsys.readouterr().err == ""
+
+
+def test_bad_input(morse_fit):
+    for kwargs, fragment in (({"n": 1}, "n=1"), ({"n": 2.5}, "n=2.5"), ({"seed": -1}, "seed=-1"),
+                             ({"kind": "jackknife"}, "kind='jackknife'"), ({"executor": "fast"}, "'fast'"),
+                             ({"executor": 0}, "executor=0"), ({"isotopologue": "X"}, "isotopologue='X'"),
+                             ({"progress": "yes"}, "progress='yes'")):
+        with pytest.raises(ValueError, match=fragment.replace("(", r"\(").replace(".", r"\.")):
+            morse_fit.bootstrap(**{"n": 10, **kwargs})
+    with pytest.raises(ValueError, match="FitResult"):
+        replicas.bootstrap("not a fit")
+
+
+def test_missing_dask_names_the_extra(morse_fit, monkeypatch):
+    monkeypatch.setitem(sys.modules, "distributed", None)
+    with pytest.raises(ImportError, match=r"wkbfit\[dask\]"):
+        morse_fit.bootstrap(4, executor="tcp://127.0.0.1:1", progress=False)
+
+
+def test_refits_use_the_fit_settings(morse_fit):
+    # the replicas refit through wkbfit.fit with the result's own settings
+    res = wkbfit.fit(TRUE, morse_data(4), MU, vary=["De", "a"], bounds={"a": (0.5, 0.7)},
+                     scale_uncertainties=False, max_iterations=50)
+    s = replicas.fit_settings(res)
+    assert s == {"method": "wkb", "vary": ["De", "a"], "bounds": {"a": (0.5, 0.7)}, "scale_uncertainties": False,
+                 "max_iterations": 50}
+    reps = res.bootstrap(20, seed=1, progress=False)
+    assert set(reps.std) >= {"De", "a"} and "re" not in reps.std
+    assert reps.noise_scale == 1.0  # unscaled covariance: the stated uncertainties as they are
+
+
+def test_executor_chunks_keep_order():
+    out = executors.run_chunks(lambda shared, x: (shared, x * x), "s", range(37), executor=2)
+    assert out == [("s", x * x) for x in range(37)]
+    assert executors.run_chunks(lambda s, x: x, None, [], executor="serial") == []
+
+
+def test_unconverged_fit_is_not_bootstrapped():
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        res = wkbfit.fit(wkbfit.Morse(De=5000.0, re=3.5, a=0.7), morse_data(3), MU, max_iterations=1)
+    assert res.status != "converged"
+    with pytest.raises(ValueError, match="did not converge"):
+        res.bootstrap(10)
