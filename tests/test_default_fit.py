@@ -175,3 +175,17 @@ def test_a_start_too_shallow_for_the_data_continues():
     reference = fit(LJ_START, obs, ISOTOPOLOGUES)
     for name in result.var_names:
         assert abs(result.params[name].value - reference.params[name].value) < 0.01 * reference.params[name].uncertainty
+
+
+def test_result_records_refreshes_and_method_errors_through_json(tmp_path):
+    obs = observed(exact_rows(LJ_TRUE, LJ_PLAN), 0.01, np.random.default_rng(8))
+    result = fit(LJ_START, obs, ISOTOPOLOGUES)
+    assert result.refreshes == len(result.refresh_history) >= 2
+    assert result.refresh_history[0]["kind"] == "levels" and result.refresh_history[-1]["kind"] == "levels and Jacobian"
+    assert result.method_error.shape == (len(obs),) and np.all(result.method_error < 0.1 * 0.01)
+    path = tmp_path / "r.json"
+    result.save_json(path)
+    loaded = wkbfit.FitResult.load_json(path)
+    assert loaded.method == "corrected" and loaded.refreshes == result.refreshes
+    np.testing.assert_allclose(loaded.method_error, result.method_error, rtol=1e-12)
+    assert "Method error against the data (method corrected)" in loaded.report()
