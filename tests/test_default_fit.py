@@ -189,3 +189,26 @@ def test_result_records_refreshes_and_method_errors_through_json(tmp_path):
     assert loaded.method == "corrected" and loaded.refreshes == result.refreshes
     np.testing.assert_allclose(loaded.method_error, result.method_error, rtol=1e-12)
     assert "Method error against the data (method corrected)" in loaded.report()
+
+
+@pytest.mark.parametrize("zero", ["asymptote", "lowest"])
+def test_default_fit_matches_the_exact_fit_in_other_energy_zeros(zero):
+    # the corrections live in the data's own zero (binding energies; E - E(v=0, J=0) per isotopologue)
+    cols = exact_rows(LJ_TRUE, LJ_PLAN)
+    rng = np.random.default_rng(11)
+    energy = cols["energy"] + rng.normal(0.0, 0.01, len(cols["v"]))
+    if zero == "asymptote":
+        energy = LJ_TRUE.De - energy
+    else:
+        for label in ISOTOPOLOGUES:
+            e00 = wkbfit.levels(LJ_TRUE, ISOTOPOLOGUES[label], v=[0], method="exact").energy[0]
+            rows = [i for i, lab in enumerate(cols["isotopologue"]) if lab == label]
+            energy[rows] -= e00
+        energy[(np.array(cols["v"]) == 0) & (np.array(cols["J"]) == 0)] = 0.0  # the data's zero by definition
+    obs = read_levels(dict(cols, energy=energy, uncertainty=np.full(len(energy), 0.01)), energy_zero=zero)
+    default = fit(LJ_START, obs, ISOTOPOLOGUES)
+    exact = fit(LJ_START, obs, ISOTOPOLOGUES, method="exact")
+    for name in default.var_names:
+        d, e = default.params[name], exact.params[name]
+        assert abs(d.value - e.value) < 0.01 * e.uncertainty, (name, d.value, e.value)
+        assert d.uncertainty == pytest.approx(e.uncertainty, rel=0.01)

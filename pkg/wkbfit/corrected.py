@@ -83,11 +83,11 @@ def exact_calc(model, params, curve, v, rot, mu, energy_zero, tolerance):
         res = _core.exact_levels(model, params, curve, float(m), np.array([int(j)], dtype=np.intc),
                                  want.astype(np.intc), energy_tol=tolerance)
         col = res["binding_energy"] if energy_zero == 1 else res["energy"]
-        lookup = dict(zip(res["v"].tolist(), zip(col.tolist(), res["error"].tolist())))
-        calc[sel] = [lookup[int(x)][0] for x in np.asarray(v)[sel]]
-        error[sel] = [lookup[int(x)][1] for x in np.asarray(v)[sel]]
-        if energy_zero == 2 and int(j) == 0 and 0 in lookup:
-            ref[float(m)] = lookup[0]
+        at = np.searchsorted(res["v"], np.asarray(v)[sel])  # the solver returns the v asked for, ascending
+        calc[sel] = col[at]
+        error[sel] = res["error"][at]
+        if energy_zero == 2 and int(j) == 0 and res["v"][0] == 0:
+            ref[float(m)] = (float(res["energy"][0]), float(res["error"][0]))
     if energy_zero == 2:
         for m in np.unique(keys[:, 0]):
             if m not in ref:
