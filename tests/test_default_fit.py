@@ -107,6 +107,7 @@ def test_default_fit_matches_the_exact_fit(true, start, plan):
     np.testing.assert_allclose(default.calculated, exact.calculated, rtol=0, atol=1e-3 * 0.01)
     assert 2 <= default.refreshes <= 5 and len(default.refresh_history) == default.refreshes
     assert default.refresh_history[-1]["step_sd"] < wkbfit.corrected.LINEAR_STEP  # the last exact step, taken
+    assert default.refresh_history[-1]["remainder_sd"] < wkbfit.corrected.REMAINDER_SD  # and linear enough
     assert not default.method_error_flagged
 
 

@@ -25,12 +25,14 @@ import numpy as np
 
 from . import _core
 
-__all__ = ["run_corrected", "run_with_unbound_rows", "LINEAR_STEP", "MAX_REFRESHES"]
+__all__ = ["run_corrected", "run_with_unbound_rows", "LINEAR_STEP", "REMAINDER_SD", "MAX_REFRESHES"]
 
-#: the exact Gauss-Newton step is taken (and the fit ends) once it is below this many standard
-#: deviations for every parameter: its second-order remainder is then ~LINEAR_STEP^2 times the
-#: problem's relative curvature, far below 0.01 standard deviation
-LINEAR_STEP = 0.3
+#: the exact Gauss-Newton step is taken (and the fit ends) when it is below LINEAR_STEP standard
+#: deviations for every parameter and the correction for its second-order remainder (estimated
+#: from the WKB levels; applied) is below REMAINDER_SD standard deviations: what is left is then
+#: third order, or the error of the WKB estimate of the curvature (~1 % of it), < 1e-3 sd
+LINEAR_STEP = 30.0
+REMAINDER_SD = 0.1
 #: exact refreshes at most (each one exact evaluation)
 MAX_REFRESHES = 12
 
@@ -107,10 +109,11 @@ def run_corrected(args, *, tolerance=LINEAR_STEP, max_refreshes=MAX_REFRESHES):
     2. a refresh: exact levels (no derivatives) at its point give the corrections
        delta = E_exact - E_wkb, and a WKB run with them fixed;
     3. one exact evaluation WITH the exact Jacobian <v|dV/dp|v> at the new point: the exact
-       Gauss-Newton step there. Below `tolerance` standard deviations (for every varied
-       parameter) the step is taken (the problem is linear to O(step^2) there) and the fit
-       ends with the exact Jacobian's covariance; otherwise the exact levels of this
-       evaluation become the new corrections and 3 repeats.
+       Gauss-Newton step there. If it is below `tolerance` standard deviations and the
+       correction for its second-order remainder (the WKB levels' own: one WKB evaluation)
+       is below REMAINDER_SD, the corrected step is taken and the fit ends with the exact
+       Jacobian's covariance; otherwise the exact levels of this evaluation become the new
+       corrections and 3 repeats.
 
     Returns the dict of _core.fit_run for the final point (calc = exact levels linearly
     continued by the step, jacobian = the exact one) plus: refreshes (exact evaluations,
@@ -147,8 +150,21 @@ def run_corrected(args, *, tolerance=LINEAR_STEP, max_refreshes=MAX_REFRESHES):
             worst = float(np.max(np.abs(step) / sd)) if var else 0.0
             history.append({"kind": "levels and Jacobian", "step_sd": worst, "chi_square": chi2})
             if worst < tolerance:
-                done = True
-                break
+                # take the step, corrected for its second-order remainder (from the WKB levels, whose
+                # curvature is the exact one to leading order), if that correction is below REMAINDER_SD
+                full = np.zeros(len(a["vary"]))
+                full[var] = step
+                try:
+                    wkb_f, _ = _core.fit_evaluate(model, p + full, curve, v, rot, mu, zero, _WKB)
+                except ValueError:
+                    wkb_f = None  # the step leaves the model's domain: correct and run again
+                if wkb_f is not None:
+                    remainder = wkb_f - (out["calc"] - offset) - out["jacobian"] @ full
+                    shift, _, _ = _gauss_newton(energy + remainder, jac_ex, energy, sigma, var)
+                    history[-1]["remainder_sd"] = float(np.max(np.abs(shift) / sd)) if var else 0.0
+                    if history[-1]["remainder_sd"] < REMAINDER_SD:
+                        done = True
+                        break
         if refreshes >= max_refreshes:
             break
         offset = offset + (calc_ex - out["calc"])  # = E_exact - E_wkb at p
@@ -158,14 +174,10 @@ def run_corrected(args, *, tolerance=LINEAR_STEP, max_refreshes=MAX_REFRESHES):
         n_eval += out["n_eval"]
     out = dict(out)
     if done:
-        full = np.zeros(len(a["vary"]))
-        full[var] = step
-        p_final = out["params"] + full
-        calc_final = calc_ex + jac_ex @ full
-        # the remainder of the linear step, from the WKB levels (same curvature to leading order)
-        wkb_p = out["calc"] - offset
-        wkb_f, _ = _core.fit_evaluate(model, p_final, curve, v, rot, mu, zero, _WKB)
-        remainder = wkb_f - wkb_p - out["jacobian"] @ full
+        correction = np.zeros(len(a["vary"]))
+        correction[var] = shift
+        p_final = out["params"] + full + correction
+        calc_final = calc_ex + jac_ex @ (full + correction) + remainder
         r = (calc_final - energy) / sigma
         out.update(params=p_final, calc=calc_final, jacobian=jac_ex, chi_square=float(r @ r))
     else:
