@@ -33,7 +33,8 @@ import numpy as np
 
 from ._core import HBAR2_OVER_2U
 
-__all__ = ["near_dissociation_fit", "NearDissociationFit", "LawFit", "lb_constant", "threshold_length"]
+__all__ = ["near_dissociation_fit", "NearDissociationFit", "LawFit", "lb_constant", "threshold_length", "long_range_tail",
+           "threshold_number"]
 
 
 def lb_constant(C_n, n, mu):
