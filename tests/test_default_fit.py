@@ -4,9 +4,9 @@ Sources of the criteria:
 - Gauss-Markov: for a correct model and correctly stated Gaussian uncertainties the weighted
   least-squares estimate is unbiased and its pulls (fitted - true)/sigma follow a unit normal
   distribution (Student t with dof degrees of freedom when sigma is scaled by the standard
-  error, sd sqrt(dof/(dof-2)) ~ 1.03 here). With N = 120 replicas the sample mean has standard
-  error 0.09 and the sample sd 0.065, so |mean| < 0.2 and 0.8 < sd < 1.2 are 2.2 and 3 standard
-  errors wide (the issue's windows).
+  error, sd sqrt(dof/(dof-2)) = 1.03-1.05 here). With N = 200 replicas the sample mean has standard
+  error 0.07 and the sample sd 0.05, so |mean| < 0.2 and 0.8 < sd < 1.2 are about 3 standard errors
+  wide (the issue's windows).
 - The default fit must reach the minimum of an exact-levels fit (method="exact") on the same
   data: parameters within 0.01 standard deviation, uncertainties within 1 % (the issue's targets).
 - The data come from the exact radial solver (wkbfit.levels(method="exact"), tested against
@@ -22,7 +22,7 @@ import wkbfit.corrected
 from wkbfit import LennardJones, MLR, fit, read_levels
 from wkbfit.fitting import FitWarning
 
-N_REPLICAS = 120
+N_REPLICAS = 200
 ISOTOPOLOGUES = {"A": 20.0, "B": 22.0}  # reduced masses (u) of two invented isotopologues
 
 
