@@ -16,6 +16,7 @@ import numpy as np
 import pytest
 
 import wkbfit
+import wkbfit.fitting
 from wkbfit import near_dissociation_fit
 from wkbfit.near_dissociation import lb_constant, threshold_length
 
@@ -132,3 +133,30 @@ def test_bad_input():
     user = np.array(E)
     near_dissociation_fit(v, user, s, asymptote=3.0, mu=10.0, corrections=0)
     assert user.tolist() == E  # the user's array is not changed
+
+
+def test_long_range_tail_read_off_the_models():
+    # LJ(12,6): C6 = 2 De re^6 (physics.md 4a); MLR: De - V -> C6/r^6 (its definition); Morse: exponential
+    from wkbfit.near_dissociation import long_range_tail
+    n, C6 = long_range_tail(wkbfit.LennardJones(De=1000.0, re=4.0))
+    assert n == 6 and C6 == pytest.approx(2 * 1000.0 * 4.0 ** 6, rel=1e-4)
+    n, C6 = long_range_tail(MLR_C6)
+    assert n == 6 and C6 == pytest.approx(1.5e7, rel=1e-4)
+    assert long_range_tail(wkbfit.Morse(De=1000.0, re=2.0, a=1.0)) is None
+
+
+def test_predictions_give_v_th():
+    # physics.md 4c: v_th = vD - 1/8 for a C6 tail. Exact levels of MLR_C6 (noise-free, sigma 1e-6) fitted by
+    # the default method: the prediction's v_th (from the threshold law at the last level, bound by
+    # 0.03 E_beta) agrees with vD - 1/8 of the fitted potential within 3e-3 (as in the threshold test).
+    mu = 39.945
+    table = wkbfit.levels(MLR_C6, mu, v=list(range(0, 90, 6)), method="exact")
+    obs = wkbfit.read_levels({"v": table.v, "energy": table.energy, "uncertainty": np.full(len(table), 1e-3)})
+    result = wkbfit.fit(MLR_C6.with_params(De=5990.0), obs, mu=mu)
+    pred = result.predict()
+    assert "threshold law" in " ".join(pred.notes)
+    assert pred.v_th == pytest.approx(pred.vD - 0.125, abs=3e-3)
+    assert "v_th = " in pred.summary() and pred.v_th_uncertainty > 0
+    with pytest.warns(wkbfit.fitting.FitWarning, match="wkb levels"):
+        wkb = wkbfit.fit(MLR_C6.with_params(De=5990.0), obs, mu=mu, method="wkb")
+    assert wkb.predict().v_th is None  # first-order WKB levels say nothing about the true threshold

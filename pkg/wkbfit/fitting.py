@@ -610,8 +610,9 @@ class FitResult:
         Uncertainties come from the covariance and the Jacobian dE/dp (linear propagation), with
         each level's method error (`method_error`: |WKB - exact| for method "wkb", the exact
         solver's error estimate otherwise) added in quadrature. Levels are exact levels unless the
-        fit's method is "wkb". v_th (the quantum threshold number) and quasibound levels are not
-        computed yet (None): they come with the matched-end-phase levels.
+        fit's method is "wkb". For J = 0 and exact levels, v_th (the quantum threshold number, with
+        v_th_uncertainty; wkbfit.near_dissociation.threshold_number); quasibound levels are not computed
+        yet (quasibound None): they come with the matched-end-phase levels.
         Returns a Prediction: levels, binding energies, spacings dG(v+1/2), D0, vD and the
         number of bound levels, each with its uncertainty.
         """
@@ -665,8 +666,14 @@ class FitResult:
                           D0=D0, D0_uncertainty=D0_unc, vD=vD, vD_uncertainty=vD_unc, potential=self.potential,
                           method=self.method, notes=notes)
         pred.method_error = _frozen(merr)
-        # hooks for the matched-end-phase levels: the quantum threshold number and quasibound levels
+        # the quantum threshold number (J = 0 series of exact levels); quasibound levels come with the
+        # matched-end-phase levels (hook: pred.quasibound)
         pred.v_th, pred.v_th_uncertainty, pred.quasibound = None, None, None
+        if J == 0 and self.method != "wkb" and math.isfinite(vD):
+            from .near_dissociation import threshold_number
+            pred.v_th, pred.v_th_uncertainty, note = threshold_number(self.potential, mass, asym - E, b_unc, vD,
+                                                                     vD_unc)
+            pred.notes.append(note)
         return pred
 
     # -- replicas -----------------------------------------------------------------------
@@ -783,8 +790,10 @@ class Prediction:
 
     def summary(self):
         lo, hi = self.n_bound_range
-        return ("D0 = %.6f +/- %.6f cm-1 (asymptote minus v=0, J=0); vD = %.5f +/- %.5f; bound levels %d%s" % (
-            self.D0, self.D0_uncertainty, self.vD, self.vD_uncertainty, self.n_bound,
+        v_th = getattr(self, "v_th", None)
+        return ("D0 = %.6f +/- %.6f cm-1 (asymptote minus v=0, J=0); vD = %.5f +/- %.5f%s; bound levels %d%s" % (
+            self.D0, self.D0_uncertainty, self.vD, self.vD_uncertainty,
+            "; v_th = %.5f +/- %.5f" % (v_th, self.v_th_uncertainty) if v_th is not None else "", self.n_bound,
             " (%d to %d within one standard deviation of vD)" % (lo, hi) if (lo, hi) != (self.n_bound,) * 2 else ""))
 
     def to_text(self, last=None):

@@ -33,7 +33,8 @@ import numpy as np
 
 from ._core import HBAR2_OVER_2U
 
-__all__ = ["near_dissociation_fit", "NearDissociationFit", "LawFit", "lb_constant", "threshold_length"]
+__all__ = ["near_dissociation_fit", "NearDissociationFit", "LawFit", "lb_constant", "threshold_length", "long_range_tail",
+           "threshold_number"]
 
 
 def lb_constant(C_n, n, mu):
@@ -397,3 +398,61 @@ def near_dissociation_fit(v, energy, uncertainty, tail_power=6, asymptote=None, 
         notes.append("binding-energy data: D is the asymptote in the data's zero (0 = the nominal threshold)")
     return NearDissociationFit(int(n) if n == int(n) else n, mu, lb, expansion, threshold, asymptote is not None,
                                notes)
+
+
+# ------------------------------------------------------------------------------ predictions
+#: how well v_th = vD - 1/(2(n-2)) holds for a real core (physics.md 4c check: 6e-4), in v
+_VTH_RELATION_ERROR = 1e-3
+
+
+def long_range_tail(potential, depths=(1e-2, 1e-4)):
+    """(n, C_n) of the potential's outermost region: n = -d ln(D - V)/d ln r where D - V falls to each
+    of `depths` (cm-1); they must agree to 1 % (an inverse power; an exponential tail's n keeps
+    growing and gives None). n is rounded to a whole number when within 0.05; C_n = (D - V) r^n at
+    the smaller depth."""
+    r = float(potential.params.get("re", 1.0)) * 1.5
+    found = []
+    for depth in depths:
+        for _ in range(400):
+            d = float(potential.binding_depth(np.array([r]))[0])
+            if 0 < d < depth:
+                break
+            r *= 1.05
+        else:
+            return None
+        rr = np.array([r / 1.01, r * 1.01])
+        dd = potential.binding_depth(rr)
+        if not np.all(dd > 0):
+            return None
+        found.append((-math.log(dd[1] / dd[0]) / math.log(rr[1] / rr[0]), r, d))
+    (n1, _, _), (n, r, d) = found
+    if not (2 < n < 64) or abs(n - n1) > 0.01 * n:
+        return None
+    if abs(n - round(n)) < 0.05:
+        n = float(round(n))
+    return n, d * r ** n
+
+
+def threshold_number(potential, mu, binding, binding_uncertainty, vD, vD_uncertainty, threshold_range=0.1):
+    """(v_th, its uncertainty, note) of a J = 0 series from its last exact level.
+
+    binding: binding energies of the bound levels v = 0..N-1 (exact levels), with their
+    uncertainties. If the last level is bound by less than threshold_range * E_beta, the
+    quadratic threshold law gives v_th = v + (bbar/pi) sqrt(b/eps) (physics.md 4c (ii));
+    otherwise v_th = vD - 1/(2(n-2)) (physics.md 4c (i)) with vD the WKB value. n and C_n are read
+    off the potential's tail (long_range_tail). None when the tail is not an inverse power."""
+    tail = long_range_tail(potential)
+    if tail is None or not len(binding):
+        return None, None, "v_th not given: the potential's tail is not an inverse power"
+    n, C_n = tail
+    beta, bbar, E_beta = threshold_length(C_n, n, mu)
+    eps = HBAR2_OVER_2U / mu
+    b, sb = float(binding[-1]), float(binding_uncertainty[-1])
+    if 0 < b < threshold_range * E_beta:
+        v_th = len(binding) - 1 + bbar / math.pi * math.sqrt(b / eps)
+        unc = math.hypot(bbar / (2 * math.pi * math.sqrt(b * eps)) * sb, 0.05 * (v_th - len(binding) + 1))
+        return v_th, unc, ("v_th from the quadratic threshold law at the last level (bound by %.3g E_beta; "
+                           "tail -C%g/r^%g read off the potential)" % (b / E_beta, n, n))
+    v_th = vD - 1.0 / (2 * (n - 2))
+    return v_th, math.hypot(vD_uncertainty, _VTH_RELATION_ERROR), (
+        "v_th = vD - 1/(2(n-2)) (physics.md 4c; tail -C%g/r^%g read off the potential), to ~1e-3" % (n, n))

@@ -179,7 +179,8 @@ def fit_report_html(result):
                        % (len(obs), _LARGE_RESIDUAL))
     title = "<h4>Fit of %s to %d levels (%s, energy zero %s)</h4>" % (
         e(type(result.potential).__name__), len(obs), e(result.method), e(result.energy_zero))
-    return title + stats + params + corr + resid
+    method = "<pre>%s</pre>" % e("\n".join(method_error_lines(result)))
+    return title + stats + params + corr + method + resid
 
 
 def fit_result_to_dict(result):
