@@ -172,7 +172,8 @@ class WKBComparison:
         return np.abs(self.difference) <= u
 
     def to_dataframe(self):
-        import pandas as pd
+        from ._optional import pandas
+        pd = pandas()
         return pd.DataFrame({"v": self.v, "J": self.J, "wkb_energy": self.wkb_energy,
                              "exact_energy": self.exact_energy, "difference": self.difference,
                              "exact_error": self.exact_error, "binding_energy": self.binding_energy})

@@ -682,7 +682,8 @@ class Prediction:
 
     def to_dataframe(self):
         """Levels as a pandas DataFrame; spacing of the last level is NaN (no level above it)."""
-        import pandas as pd
+        from ._optional import pandas
+        pd = pandas()
         return pd.DataFrame(self.to_dict())
 
     def summary(self):

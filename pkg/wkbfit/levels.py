@@ -92,7 +92,8 @@ class LevelTable:
         return {c: getattr(self, c).tolist() for c in _COLUMNS}
 
     def to_dataframe(self):
-        import pandas as pd
+        from ._optional import pandas
+        pd = pandas()
         return pd.DataFrame({c: getattr(self, c) for c in _COLUMNS})
 
     def to_text(self, columns=("v", "J", "energy", "binding_energy", "dEdv", "Bv",

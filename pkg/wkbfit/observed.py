@@ -142,7 +142,8 @@ class ObservedLevels:
         return out
 
     def to_dataframe(self):
-        import pandas as pd
+        from ._optional import pandas
+        pd = pandas()
         return pd.DataFrame(self.to_dict())
 
     def __repr__(self):

@@ -27,12 +27,8 @@ V_LABEL = "v (vibrational quantum number, dimensionless)"
 
 
 def _pyplot():
-    try:
-        import matplotlib.pyplot as plt
-    except ImportError:
-        raise ImportError("wkbfit.plots needs matplotlib: pip install matplotlib "
-                          "(or pip install 'wkbfit[plot]')") from None
-    return plt
+    from ._optional import pyplot
+    return pyplot()
 
 
 def _axes(ax):

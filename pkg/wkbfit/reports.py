@@ -455,7 +455,8 @@ def residual_columns(result):
 
 
 def residual_dataframe(result):
-    import pandas as pd
+    from ._optional import pandas
+    pd = pandas()
     obs = result.observed
     data = {"isotopologue": list(obs.isotopologue), "v": obs.v, "J": obs.J, "observed": obs.energy,
             "uncertainty": obs.uncertainty, "calculated": result.calculated, "residual": result.residuals,
@@ -467,7 +468,8 @@ def residual_dataframe(result):
 
 
 def parameter_dataframe(result):
-    import pandas as pd
+    from ._optional import pandas
+    pd = pandas()
     rows = [dict(p.to_dict(), unit=_UNITS.get(p.name, "")) for p in result.params.values()]
     for r in rows:
         r["lower_bound"], r["upper_bound"] = r.pop("bounds")
