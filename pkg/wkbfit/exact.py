@@ -14,7 +14,7 @@ import warnings
 import numpy as np
 
 from . import _core
-from .levels import LevelTable, levels as _levels
+from .levels import SOLVERS as _SOLVERS, LevelTable, levels as _levels
 from .masses import as_reduced_mass
 from .potentials import Potential, PointwisePotential
 from .coverage import check_levels
@@ -213,3 +213,6 @@ def compare_wkb_exact(potential, mu, J=0, v=None, *, order=1, tolerance=DEFAULT_
     comparison = WKBComparison(wkb, exact, potential, mu)
     comparison.order = order
     return comparison
+
+
+_SOLVERS["exact"] = exact_levels  # levels(..., method="exact") dispatches here

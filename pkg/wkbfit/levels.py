@@ -118,6 +118,11 @@ class LevelTable:
         return plots.potential(self.potential, levels=self, ax=ax, **options)
 
 
+#: level solvers other than WKB, by method name. exact.py registers "exact" when it is imported (wkbfit's
+#: __init__ does), so that this module never imports exact.py, which builds on LevelTable: no import circle.
+SOLVERS = {}
+
+
 def _as_int_list(x, name):
     if isinstance(x, (bool, np.bool_)):
         raise ValueError("%s must be a non-negative integer or a list of them; got %r" % (name, x))
@@ -164,7 +169,9 @@ def levels(potential, mu, v=None, J=0, method="wkb", *, order=1, langer=False, m
                              % (order,))
         return _wkb_levels(potential, mu, vs, Js, langer, maslov, order)
     if method == "exact":
-        from .exact import exact_levels
+        exact_levels = SOLVERS.get("exact")
+        if exact_levels is None:
+            raise ValueError("method='exact' needs the exact radial solver: import wkbfit (or wkbfit.exact) first")
         if langer:
             raise ValueError("langer=True applies to WKB only; the exact solver uses J(J+1)")
         return exact_levels(potential, mu, vs, Js)

@@ -338,8 +338,7 @@ def html_table(columns, caption="", notes=(), head=FOLD_HEAD, tail=FOLD_TAIL):
 
 # ------------------------------------------------------------------------------ level tables, comparisons, RKR
 def level_table_columns(table, names=None):
-    from .levels import LevelTable
-    units = {c: u for c, (u, _) in LevelTable.describe().items()}
+    units = {c: u for c, (u, _) in table.describe().items()}
     names = names or [c for c in ("v", "J", "energy", "binding_energy", "dEdv", "Bv", "inner_turning_point",
                                   "outer_turning_point", "error") if c in table.columns]
     fmt = {"inner_turning_point": "%.8f", "outer_turning_point": "%.8f", "error": "%.2g", "Bv": "%.8g"}
