@@ -96,6 +96,8 @@ def fit_report_text(result):
         _LARGE_RESIDUAL, n_large, "" if n_large == 1 else "s"))
     lines.append("  %-12s %4s %4s %16s %10s %16s %12s %9s" % (
         "isotopologue", "v", "J", "observed", "sigma", "calculated", "obs-calc", "/sigma"))
+    lines.append("  %-12s %4s %4s %16s %10s %16s %12s %9s" % (
+        "", "-", "-", "[cm-1]", "[cm-1]", "[cm-1]", "[cm-1]", "-"))
     for i in range(len(obs)):
         if not result.fitted_rows[i]:
             flag = "  zero of the data (not fitted)"
