@@ -200,6 +200,8 @@ def test_plot_methods(lj_fit):
     assert isinstance(lj_fit.plot(), matplotlib.axes.Axes)
     assert isinstance(lj_fit.predict(isotopologue="6Li133Cs").plot(), matplotlib.axes.Axes)
     assert isinstance(wkbfit.levels(MORSE, MU).plot(), matplotlib.axes.Axes)
+    ax = MORSE.plot(MU)
+    assert len(ax.collections[0].get_segments()) == len(wkbfit.levels(MORSE, MU))
 
 
 def test_bad_input_is_named():

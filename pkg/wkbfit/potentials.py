@@ -110,6 +110,11 @@ class Potential:
         """asymptote - V(r), computed without cancellation where V nears the asymptote."""
         return _core.potential_values(self.model, self._params, np.atleast_1d(_as_r(r)), self._curve())[3]
 
+    def plot(self, mu=None, ax=None, **options):
+        """The curve, with its levels for mu (reduced mass(es); see `wkbfit.plots.potential`)."""
+        from . import plots
+        return plots.potential(self, mu, ax=ax, **options)
+
     def param_derivatives(self, r):
         """Array (len(r), n_params) of dV/dp for each parameter, in `param_names` order."""
         return _core.param_derivatives(self.model, self._params, np.atleast_1d(_as_r(r)), self._curve())
