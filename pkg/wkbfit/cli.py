@@ -6,9 +6,9 @@
     wkbfit demo
     wkbfit rkr | compare | curve | predict   (see wkbfit.cli_tools)
 
-User errors (bad numbers, unreadable files, unknown names) print one line to stderr and exit with status 2;
-a fit that converges to a sqrt of reduced chi-square above --sigma-limit (default 3) exits with status 3
-(set WKBFIT_DEBUG=1 to see the traceback instead).
+User errors (bad numbers, unreadable files, unknown names) print one line to stderr and exit with status 2
+(set WKBFIT_DEBUG=1 to see the traceback instead); a fit that converges to a sqrt of reduced chi-square
+above --sigma-limit (default 3) exits with status 3.
 """
 import argparse
 import importlib.util
