@@ -26,7 +26,9 @@ _OLD_STATISTIC_KEY = "standard_error"
 _LARGE_RESIDUAL = 3.0
 
 FORMAT = "wkbfit-fit-result"
-FORMAT_VERSION = 1
+#: 2: the statistic's key is sqrt_reduced_chi_square (1: standard_error) and potential.model names the family
+FORMAT_VERSION = 2
+_READABLE_VERSIONS = (1, 2)
 
 
 def fit_report_text(result):
@@ -172,9 +174,9 @@ def fit_result_from_dict(cls, data):
     from .fitting import Parameter
     if not isinstance(data, dict) or data.get("format") != FORMAT:
         raise ValueError("this is not a wkbfit fit result (format %r expected)" % FORMAT)
-    if data.get("version") != FORMAT_VERSION:
-        raise ValueError("fit result version %r is not supported (expected %d)" % (data.get("version"),
-                                                                                      FORMAT_VERSION))
+    if data.get("version") not in _READABLE_VERSIONS:
+        raise ValueError("fit result version %r is not supported (this wkbfit reads versions %s)" % (
+            data.get("version"), ", ".join(str(v) for v in _READABLE_VERSIONS)))
     pot_cls = getattr(_potentials, data["potential"]["class"], None)
     if not (isinstance(pot_cls, type) and issubclass(pot_cls, Potential)):
         raise ValueError("unknown potential class %r in the fit result" % data["potential"]["class"])
