@@ -313,6 +313,13 @@ def near_dissociation(source, ax=None, *, isotopologue=None, n=None, last=None):
         ok = bo > 0
         if np.any(ok):
             ax.plot(obs.v[rows][ok], bo[ok] ** alpha, "o", mfc="none", ms=8, mew=1.2, color="C1", label="measured")
+    if math.isfinite(pred.vD) and pred.n_bound:
+        # the threshold law: a straight line through the last level that reaches zero at vD
+        v_last, y_last = float(pred.v[-1]), float(b[-1] ** alpha)
+        v_line = np.linspace(max(float(pred.v[start]), v_last - 6), pred.vD, 50)
+        if pred.vD > v_last:
+            ax.plot(v_line, y_last * (pred.vD - v_line) / (pred.vD - v_last), "--", color="0.4", lw=0.8,
+                    label="straight line through the last level to vD")
     if math.isfinite(pred.vD):
         ax.axvline(pred.vD, color="C3", lw=1, label="vD = %.3f +/- %.3f" % (pred.vD, pred.vD_uncertainty))
         if math.isfinite(pred.vD_uncertainty):
