@@ -439,6 +439,10 @@ class FitResult:
         """The earlier name of `sqrt_reduced_chi_square` (kept for code written against it)."""
         return self.sqrt_reduced_chi_square
 
+    @standard_error.setter
+    def standard_error(self, value):  # code written against the earlier name may still assign it
+        self.sqrt_reduced_chi_square = value
+
     @property
     def success(self):
         return self.status == "converged"
