@@ -31,8 +31,8 @@ system-deps:
 	else echo "wkbfit: the GSL development files are missing and apt-get is not available; install GSL (e.g. 'dnf install gsl-devel' or 'conda install gsl') and retry"; exit 1; fi
 
 python-deps:
-	@$(PYTHON) -c "import numpy, scipy, pytest, mpmath, periodictable, pandas, matplotlib, nbclient, nbformat, ipykernel, setuptools, wheel, tqdm, distributed" 2>/dev/null || \
-	  $(PIP) install -q numpy scipy pytest mpmath "periodictable>=2" pandas matplotlib nbclient nbformat ipykernel setuptools wheel tqdm "dask[distributed]"
+	@$(PYTHON) -c "import numpy, scipy, pytest, mpmath, periodictable, pandas, matplotlib, nbclient, nbformat, ipykernel, setuptools, wheel, tqdm, distributed, build" 2>/dev/null || \
+	  $(PIP) install -q numpy scipy pytest mpmath "periodictable>=2" pandas matplotlib nbclient nbformat ipykernel setuptools wheel tqdm "dask[distributed]" build
 
 # The extension built in place, and an editable install of this tree (pkg/) unless it is installed already.
 build:

@@ -141,10 +141,11 @@ def test_check(capsys, tmp_path):
     status, out, _ = run(capsys, "check", path)
     assert status == 0
     assert "# made for a test" in out
-    assert "1H35Cl         2 levels, v = 0..1, J = 0, sigma = 0.01..0.02 cm-1, reduced mass %.10g u" % (
-        wkbfit.reduced_mass("1H", "35Cl")) in out
+    # a table: names, units, one row per isotopologue
+    assert "sigma min  sigma max  reduced mass" in out and "[cm-1]     [cm-1]           [u]" in out
+    assert "1H35Cl       2  0..1  0       0.01       0.02  %.10g" % wkbfit.reduced_mass("1H", "35Cl") in out
     status, out, _ = run(capsys, "check", path, "--mass", "2H35Cl=1.5")
-    assert "2H35Cl         1 levels" in out and "reduced mass 1.5 u" in out
+    assert out.splitlines()[-1].split() == ["2H35Cl", "1", "0..0", "0", "0.05", "0.05", "1.5"]
     bad = write_levels(tmp_path / "bad.csv", [("1H35Cl", 0, 0, 1000.0, 0.01), ("1H35Cl", 1, 0, 3000.0, 0)])
     assert_user_error(capsys, ["check", bad], "bad.csv, row 2 (line 3), column 'uncertainty'")
     assert_user_error(capsys, ["check", str(tmp_path / "missing.csv")], "cannot open levels file")

@@ -108,3 +108,24 @@ def test_predict_from_saved_fit_and_poor_fit_status(capsys, tmp_path):
     status, _, _ = run(capsys, "fit", path, "lennard-jones", "De=3950", "re=4.01", "--mu", 20,
                        "-o", tmp_path / "poor.json", "--force", "--sigma-limit", 100)
     assert status == 0
+
+
+def test_curve_inner_wall_option_and_compare_on_a_curve_file(capsys, tmp_path):
+    r = np.linspace(1.6, 6.0, 45)
+    V = 5000 * (2 / r) ** 9 - 3000 * (2 / r) ** 6
+    path = tmp_path / "curve.txt"
+    path.write_text("# r [A]  V [cm-1]\nr V\n" + "".join("%.10f %.10f\n" % rv for rv in zip(r, V)))
+    for wall in ("exponential", "inverse_power"):
+        status, out, err = run(capsys, "curve", path, "--mu", 5, "-v", "0-2", "--asymptote", 0, "--tail-power", 6,
+                               "--inner-wall", wall)
+        assert status == 0, err
+        curve = wkbfit.PointwisePotential(r, V, asymptote=0.0, tail_power=6, inner_wall=wall)
+        E = wkbfit.levels(curve, 5.0, v=[0, 1, 2]).energy
+        assert all("%.6f" % e in out for e in E)
+    status, _, err = run(capsys, "curve", path, "--mu", 5, "--inner-wall", "hard")
+    assert status == 2 and "--inner-wall" in err
+    status, out, err = run(capsys, "compare", "--curve", path, "--mu", 5, "-v", "0-2", "--asymptote", 0,
+                           "--tail-power", 6, "--order", 1)
+    assert status == 0, err
+    comp = wkbfit.compare_wkb_exact(wkbfit.PointwisePotential(r, V, asymptote=0.0, tail_power=6), 5.0, v=[0, 1, 2])
+    assert "%.8f" % comp.exact_energy[2] in out

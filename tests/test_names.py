@@ -59,6 +59,7 @@ def test_report_html_and_json(result):
 def test_old_json_key_is_still_read_and_the_old_attribute_still_works(result):
     data = json.loads(result.to_json())
     data["standard_error"] = data.pop("sqrt_reduced_chi_square")
+    data["version"] = 1  # as written before the rename
     old = wkbfit.FitResult.from_dict(data)
     assert old.sqrt_reduced_chi_square == result.sqrt_reduced_chi_square == result.standard_error
 

@@ -333,5 +333,5 @@ def test_unlabelled_data_need_mu():
 def test_repr_and_str():
     obs = read_levels(as_dict())
     assert repr(obs) == "<ObservedLevels: 5 levels, 2 isotopologues ('7Li133Cs', '6Li133Cs'), energy zero 'minimum'>"
-    assert len(str(obs).splitlines()) == 7
+    assert len(str(obs).splitlines()) == 8  # title, names, units, 5 rows
     assert isinstance(obs, ObservedLevels)

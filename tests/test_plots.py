@@ -200,6 +200,8 @@ def test_plot_methods(lj_fit):
     assert isinstance(lj_fit.plot(), matplotlib.axes.Axes)
     assert isinstance(lj_fit.predict(isotopologue="6Li133Cs").plot(), matplotlib.axes.Axes)
     assert isinstance(wkbfit.levels(MORSE, MU).plot(), matplotlib.axes.Axes)
+    ax = MORSE.plot(MU)
+    assert len(ax.collections[0].get_segments()) == len(wkbfit.levels(MORSE, MU))
 
 
 def test_bad_input_is_named():
@@ -207,3 +209,14 @@ def test_bad_input_is_named():
         plots.potential("Morse")
     with pytest.raises(TypeError, match="FitResult or a Prediction"):
         plots.near_dissociation(MORSE)
+
+
+def test_wkb_vs_exact_near_dissociation_second_order_on_the_lower_levels():
+    """The second-order term fails close to dissociation; the figure then compares it on the lower 80%."""
+    lj = wkbfit.LennardJones(De=4321.5, re=4.05, n=10, m=6)
+    ax = plots.wkb_vs_exact(lj, 6.66420389)
+    first = [line for line in ax.lines if line.get_label() == "|WKB - exact|, order 1"][0]
+    second = [line for line in ax.lines if line.get_label() == "|WKB - exact|, order 2"][0]
+    assert len(second.get_xdata()) == int(0.8 * len(first.get_xdata()))
+    comp = wkbfit.compare_wkb_exact(lj, 6.66420389, order=2, v=list(range(len(second.get_xdata()))))
+    assert np.allclose(second.get_ydata(), np.abs(comp.difference))

@@ -86,3 +86,23 @@ def test_text_tables_have_units_line_and_aligned_columns(objects, name):
     for row in body:
         row_ends = [m.end() for m in __import__("re").finditer(r"\S+", row)]
         assert row_ends == ends, (units, row)
+
+
+def test_levels_and_exact_import_each_other_in_one_direction_only():
+    """exact.py builds on levels.py (LevelTable); levels.py reaches the exact solver through its SOLVERS
+    table, never by importing exact.py (not even inside a function)."""
+    import ast
+    import os
+    here = os.path.join(os.path.dirname(os.path.dirname(os.path.abspath(__file__))), "pkg", "wkbfit")
+
+    def imported(name):
+        tree = ast.parse(open(os.path.join(here, name + ".py"), encoding="utf-8").read())
+        out = set()
+        for node in ast.walk(tree):
+            if isinstance(node, ast.ImportFrom) and node.level == 1:
+                out.add(node.module or "")
+                out.update(a.name for a in node.names if not node.module)
+        return out
+
+    assert "exact" not in imported("levels") and "levels" in imported("exact")
+    assert wkbfit.levels(LJ, 20.0, v=[0], method="exact").method == "exact"  # the dispatch still works

@@ -8,7 +8,8 @@
     wkbfit rkr | compare | curve | predict   (see wkbfit.cli_tools)
 
 User errors (bad numbers, unreadable files, unknown names) print one line to stderr and exit with status 2
-(set WKBFIT_DEBUG=1 to see the traceback instead).
+(set WKBFIT_DEBUG=1 to see the traceback instead); a fit that converges to a sqrt of reduced chi-square
+above --sigma-limit (default 3) exits with status 3.
 """
 import argparse
 import importlib.util
@@ -193,12 +194,17 @@ def _cmd_check(args, out):
         print("# " + line, file=out)
     print(repr(obs), file=out)
     masses = obs.masses_by_isotopologue(_mu_argument(args, obs))
-    for label in obs.isotopologues:
-        rows = obs.rows_of(label)
-        print("  %-12s %3d levels, v = %d..%d, J = %s, sigma = %.3g..%.3g cm-1, reduced mass %.10g u" % (
-            label or "unnamed", len(rows), obs.v[rows].min(), obs.v[rows].max(),
-            ",".join(str(j) for j in sorted(set(obs.J[rows].tolist()))),
-            obs.uncertainty[rows].min(), obs.uncertainty[rows].max(), masses[label]), file=out)
+    from .reports import text_table
+    labels = obs.isotopologues
+    rows = [obs.rows_of(label) for label in labels]
+    print(text_table([
+        ("isotopologue", "", [label or "unnamed" for label in labels], "%s"),
+        ("levels", "", [len(r) for r in rows], "%d"),
+        ("v", "", ["%d..%d" % (obs.v[r].min(), obs.v[r].max()) for r in rows], "%s"),
+        ("J", "", [",".join(str(j) for j in sorted(set(obs.J[r].tolist()))) for r in rows], "%s"),
+        ("sigma min", "cm-1", [obs.uncertainty[r].min() for r in rows], "%.3g"),
+        ("sigma max", "cm-1", [obs.uncertainty[r].max() for r in rows], "%.3g"),
+        ("reduced mass", "u", [masses[label] for label in labels], "%.10g")]), file=out)
     return 0
 
 

@@ -14,7 +14,7 @@ import warnings
 import numpy as np
 
 from . import _core, _validate
-from .levels import LevelTable, levels as _levels
+from .levels import SOLVERS as _SOLVERS, LevelTable, levels as _levels
 from .masses import as_reduced_mass
 from .potentials import Potential, PointwisePotential
 from .coverage import check_levels
@@ -179,7 +179,8 @@ class WKBComparison:
         return np.abs(self.difference) <= u
 
     def to_dataframe(self):
-        import pandas as pd
+        from ._optional import pandas
+        pd = pandas()
         return pd.DataFrame({"v": self.v, "J": self.J, "wkb_energy": self.wkb_energy,
                              "exact_energy": self.exact_energy, "difference": self.difference,
                              "exact_error": self.exact_error, "binding_energy": self.binding_energy})
@@ -219,3 +220,6 @@ def compare_wkb_exact(potential, mu, J=0, v=None, *, order=1, tolerance=DEFAULT_
     comparison = WKBComparison(wkb, exact, potential, mu)
     comparison.order = order
     return comparison
+
+
+_SOLVERS["exact"] = exact_levels  # levels(..., method="exact") dispatches here

@@ -503,6 +503,10 @@ class FitResult:
         """The earlier name of `sqrt_reduced_chi_square` (kept for code written against it)."""
         return self.sqrt_reduced_chi_square
 
+    @standard_error.setter
+    def standard_error(self, value):  # code written against the earlier name may still assign it
+        self.sqrt_reduced_chi_square = value
+
     @property
     def success(self):
         return self.status == "converged"
@@ -785,7 +789,8 @@ class Prediction:
 
     def to_dataframe(self):
         """Levels as a pandas DataFrame; spacing of the last level is NaN (no level above it)."""
-        import pandas as pd
+        from ._optional import pandas
+        pd = pandas()
         return pd.DataFrame(self.to_dict())
 
     def summary(self):

@@ -98,7 +98,8 @@ class LevelTable:
         return {c: getattr(self, c).tolist() for c in _COLUMNS}
 
     def to_dataframe(self):
-        import pandas as pd
+        from ._optional import pandas
+        pd = pandas()
         return pd.DataFrame({c: getattr(self, c) for c in _COLUMNS})
 
     def to_text(self, columns=("v", "J", "energy", "binding_energy", "dEdv", "Bv",
@@ -121,6 +122,11 @@ class LevelTable:
         """The potential with these levels between their turning points (`wkbfit.plots.potential`)."""
         from . import plots
         return plots.potential(self.potential, levels=self, ax=ax, **options)
+
+
+#: level solvers other than WKB, by method name. exact.py registers "exact" when it is imported (wkbfit's
+#: __init__ does), so that this module never imports exact.py, which builds on LevelTable: no import circle.
+SOLVERS = {}
 
 
 def _as_int_list(x, name):
@@ -186,7 +192,9 @@ def levels(potential, mu, v=None, J=0, method="wkb", *, order=1, langer=False, m
         maslov = _validate.maslov_pair(maslov)
         return _wkb_levels(potential, mu, vs, Js, langer, maslov, order, max_levels)
     if method == "exact":
-        from .exact import exact_levels
+        exact_levels = SOLVERS.get("exact")
+        if exact_levels is None:
+            raise ValueError("method='exact' needs the exact radial solver: import wkbfit (or wkbfit.exact) first")
         if langer:
             raise ValueError("langer=True applies to WKB only; the exact solver uses J(J+1)")
         return exact_levels(potential, mu, vs, Js)

@@ -143,7 +143,8 @@ class ObservedLevels:
         return out
 
     def to_dataframe(self):
-        import pandas as pd
+        from ._optional import pandas
+        pd = pandas()
         return pd.DataFrame(self.to_dict())
 
     def __repr__(self):
@@ -157,12 +158,8 @@ class ObservedLevels:
         return reports.observed_html(self)
 
     def __str__(self):
-        lines = [repr(self)]
-        lines.append("%-14s %5s %5s %16s %12s" % ("isotopologue", "v", "J", "energy [cm-1]", "sigma [cm-1]"))
-        for i in range(len(self)):
-            lines.append("%-14s %5d %5d %16.6f %12.6f" % (
-                self.isotopologue[i] or "-", self.v[i], self.J[i], self.energy[i], self.uncertainty[i]))
-        return "\n".join(lines)
+        from . import reports
+        return reports.text_table(reports.observed_columns(self), repr(self))
 
 
 # -- reading ------------------------------------------------------------------------------

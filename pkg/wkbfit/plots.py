@@ -27,12 +27,8 @@ V_LABEL = "v (vibrational quantum number, dimensionless)"
 
 
 def _pyplot():
-    try:
-        import matplotlib.pyplot as plt
-    except ImportError:
-        raise ImportError("wkbfit.plots needs matplotlib: pip install matplotlib "
-                          "(or pip install 'wkbfit[plot]')") from None
-    return plt
+    from ._optional import pyplot
+    return pyplot()
 
 
 def _axes(ax):
@@ -158,11 +154,12 @@ def _default_r(potential, tables, V_min, depth):
         V = potential(grid)
         inner = grid[(grid < re) & (V <= V_min + 1.3 * depth)]
         r_lo, r_hi = (inner[0] if len(inner) else re * 0.5), re * 3.0
+    r_cap = 4.0 * potential.params.get("re", r_hi)  # the last levels reach far out: show the well, not them
     for _, table in tables:
         if len(table):
-            r_hi = max(r_hi, float(np.nanmax(table.outer_turning_point)) * 1.05)
+            r_hi = max(r_hi, min(float(np.nanmax(table.outer_turning_point)) * 1.05, r_cap))
             r_lo = min(r_lo, float(np.nanmin(table.inner_turning_point)) * 0.98)
-    return np.linspace(r_lo, min(r_hi, 30 * r_lo), 1500)
+    return np.linspace(r_lo, r_hi, 1500)
 
 
 # ------------------------------------------------------------------------------------ residuals
@@ -315,7 +312,14 @@ def near_dissociation(source, ax=None, *, isotopologue=None, n=None, last=None):
         bo = _observed_binding(result, rows, pred)
         ok = bo > 0
         if np.any(ok):
-            ax.plot(obs.v[rows][ok], bo[ok] ** alpha, "o", mfc="none", color="C1", label="measured")
+            ax.plot(obs.v[rows][ok], bo[ok] ** alpha, "o", mfc="none", ms=8, mew=1.2, color="C1", label="measured")
+    if math.isfinite(pred.vD) and pred.n_bound:
+        # the threshold law: a straight line through the last level that reaches zero at vD
+        v_last, y_last = float(pred.v[-1]), float(b[-1] ** alpha)
+        v_line = np.linspace(max(float(pred.v[start]), v_last - 6), pred.vD, 50)
+        if pred.vD > v_last:
+            ax.plot(v_line, y_last * (pred.vD - v_line) / (pred.vD - v_last), "--", color="0.4", lw=0.8,
+                    label="straight line through the last level to vD")
     if math.isfinite(pred.vD):
         ax.axvline(pred.vD, color="C3", lw=1, label="vD = %.3f +/- %.3f" % (pred.vD, pred.vD_uncertainty))
         if math.isfinite(pred.vD_uncertainty):
@@ -358,8 +362,16 @@ def wkb_vs_exact(potential, mu=None, ax=None, *, J=0, order=(1, 2), uncertainty=
     if comparison is not None:
         comparisons.append(comparison)
     else:
-        for o in (order if isinstance(order, (tuple, list)) else (order,)):
-            comparisons.append(compare_wkb_exact(potential, mu, J=J, order=o))
+        orders = order if isinstance(order, (tuple, list)) else (order,)
+        for o in orders:
+            try:
+                comparisons.append(compare_wkb_exact(potential, mu, J=J, order=o))
+            except ValueError:
+                if o == 1 or len(orders) == 1:
+                    raise
+                # the second-order term is not valid close to dissociation: compare the lower 80% only
+                n = len(comparisons[0]) if comparisons else 0
+                comparisons.append(compare_wkb_exact(potential, mu, J=J, order=o, v=list(range(int(0.8 * n)))))
     ax = _axes(ax)
     for k, comp in enumerate(comparisons):
         o = getattr(comp, "order", 1)

@@ -148,6 +148,11 @@ class Potential:
         _outside_domain(self, rr.ravel(), d.ravel())
         return d
 
+    def plot(self, mu=None, ax=None, **options):
+        """The curve, with its levels for mu (reduced mass(es); see `wkbfit.plots.potential`)."""
+        from . import plots
+        return plots.potential(self, mu, ax=ax, **options)
+
     def param_derivatives(self, r):
         """Array (len(r), n_params) of dV/dp for each parameter, in `param_names` order."""
         rr = np.atleast_1d(_as_r(r))

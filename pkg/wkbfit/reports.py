@@ -28,7 +28,9 @@ _LARGE_RESIDUAL = 3.0
 _METHOD_FLAG = 0.1
 
 FORMAT = "wkbfit-fit-result"
-FORMAT_VERSION = 1
+#: 2: the statistic's key is sqrt_reduced_chi_square (1: standard_error) and potential.model names the family
+FORMAT_VERSION = 2
+_READABLE_VERSIONS = (1, 2)
 
 
 def fit_report_text(result):
@@ -100,6 +102,8 @@ def fit_report_text(result):
         _LARGE_RESIDUAL, n_large, "" if n_large == 1 else "s"))
     lines.append("  %-12s %4s %4s %16s %10s %16s %12s %9s" % (
         "isotopologue", "v", "J", "observed", "sigma", "calculated", "obs-calc", "/sigma"))
+    lines.append("  %-12s %4s %4s %16s %10s %16s %12s %9s" % (
+        "", "-", "-", "[cm-1]", "[cm-1]", "[cm-1]", "[cm-1]", "-"))
     for i in range(len(obs)):
         if not result.fitted_rows[i]:
             flag = "  zero of the data (not fitted)"
@@ -270,9 +274,9 @@ def _fit_result_from_checked_dict(cls, data):
     from .fitting import Parameter
     if not isinstance(data, dict) or data.get("format") != FORMAT:
         raise ValueError("this is not a wkbfit fit result (format %r expected)" % FORMAT)
-    if data.get("version") != FORMAT_VERSION:
-        raise ValueError("fit result version %r is not supported (expected %d)" % (data.get("version"),
-                                                                                      FORMAT_VERSION))
+    if data.get("version") not in _READABLE_VERSIONS:
+        raise ValueError("fit result version %r is not supported (this wkbfit reads versions %s)" % (
+            data.get("version"), ", ".join(str(v) for v in _READABLE_VERSIONS)))
     pot_cls = getattr(_potentials, data["potential"]["class"], None)
     if not (isinstance(pot_cls, type) and issubclass(pot_cls, Potential)):
         raise ValueError("unknown potential class %r in the fit result" % data["potential"]["class"])
@@ -473,8 +477,7 @@ def html_table(columns, caption="", notes=(), head=FOLD_HEAD, tail=FOLD_TAIL):
 
 # ------------------------------------------------------------------------------ level tables, comparisons, RKR
 def level_table_columns(table, names=None):
-    from .levels import LevelTable
-    units = {c: u for c, (u, _) in LevelTable.describe().items()}
+    units = {c: u for c, (u, _) in table.describe().items()}
     names = names or [c for c in ("v", "J", "energy", "binding_energy", "dEdv", "Bv", "inner_turning_point",
                                   "outer_turning_point", "error") if c in table.columns]
     fmt = {"inner_turning_point": "%.8f", "outer_turning_point": "%.8f", "error": "%.2g", "Bv": "%.8g"}
@@ -590,7 +593,8 @@ def residual_columns(result):
 
 
 def residual_dataframe(result):
-    import pandas as pd
+    from ._optional import pandas
+    pd = pandas()
     obs = result.observed
     data = {"isotopologue": list(obs.isotopologue), "v": obs.v, "J": obs.J, "observed": obs.energy,
             "uncertainty": obs.uncertainty, "calculated": result.calculated, "residual": result.residuals,
@@ -602,7 +606,8 @@ def residual_dataframe(result):
 
 
 def parameter_dataframe(result):
-    import pandas as pd
+    from ._optional import pandas
+    pd = pandas()
     rows = [dict(p.to_dict(), unit=_UNITS.get(p.name, "")) for p in result.params.values()]
     for r in rows:
         r["lower_bound"], r["upper_bound"] = r.pop("bounds")

@@ -68,7 +68,8 @@ class RKRTurningPoints:
 
     def to_dataframe(self):
         """The turning points as a pandas DataFrame (columns as `columns`)."""
-        import pandas as pd
+        from ._optional import pandas
+        pd = pandas()
         return pd.DataFrame({c: getattr(self, c) for c in self.columns})
 
     def _repr_html_(self):
