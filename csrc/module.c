@@ -591,19 +591,21 @@ cleanup:
 
 /* ------------------------------------------------- quasibound levels (quasibound.c, resonance.c) */
 
-#define QB_NCOL 13
+#define QB_NCOL 15
 static PyObject *py_quasibound_levels(PyObject *self, PyObject *args, PyObject *kwds)
 {
-    static char *kwlist[] = {"model", "params", "curve", "mu", "rot", "order", "width_form", NULL};
+    static char *kwlist[] = {"model", "params", "curve", "mu", "rot", "order", "width_form", "barrier_phase",
+                             "width_phase", NULL};
     static const char *names[QB_NCOL] = {"v", "rot_index", "energy", "above_asymptote", "width", "theta", "dEdv",
                                          "Bv", "error", "inner_turning_point", "outer_turning_point",
-                                         "barrier_turning_point", "order"};
+                                         "barrier_turning_point", "order", "dtheta_dE",
+                                         "width_spacing"};
     static const char *range_names[7] = {"barrier_found", "barrier_top", "barrier_height", "barrier_r", "v_first",
                                          "v_top", "first_order_fallback"};
     const char *model_name;
     PyObject *params_obj, *curve_obj, *rot_obj, *result = NULL;
     double mu;
-    int order = 2, width_form = WKB_WIDTH_UNIFORM;
+    int order = 2, width_form = WKB_WIDTH_UNIFORM, barrier_phase = 1, width_phase = 1;
     PyArrayObject *rot_arr = NULL, *cols[QB_NCOL] = {NULL}, *rcols[7] = {NULL};
     wkb_potential pot;
     wkb_qb *q = NULL;
@@ -612,8 +614,8 @@ static PyObject *py_quasibound_levels(PyObject *self, PyObject *args, PyObject *
     int status = WKB_SUCCESS;
     size_t total = 0;
 
-    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOdO|ii", kwlist, &model_name, &params_obj, &curve_obj, &mu,
-                                     &rot_obj, &order, &width_form))
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOdO|iipp", kwlist, &model_name, &params_obj, &curve_obj, &mu,
+                                     &rot_obj, &order, &width_form, &barrier_phase, &width_phase))
         return NULL;
     if (parse_potential(model_name, params_obj, curve_obj, &pot) < 0)
         return NULL;
@@ -624,6 +626,8 @@ static PyObject *py_quasibound_levels(PyObject *self, PyObject *args, PyObject *
     wkb_qb_settings settings = wkb_qb_default_settings();
     settings.order = order;
     settings.width_form = width_form;
+    settings.barrier_phase = barrier_phase;
+    settings.width_phase = width_phase;
     if (!(q = wkb_qb_alloc(&settings))) {
         value_error("order=%d / width_form=%d are invalid (order 1 or 2; width form 0 uniform, 1 Kemble)", order,
                     width_form);
@@ -681,7 +685,8 @@ static PyObject *py_quasibound_levels(PyObject *self, PyObject *args, PyObject *
             for (size_t i = 0; i < c && row + i < total; i++) {
                 const wkb_qb_level *L = &lv[row + i];
                 const double vals[QB_NCOL] = {L->v, (double)k, L->energy, L->above_asymptote, L->width, L->theta,
-                                              L->dEdv, L->Bv, L->error, L->r1, L->r2, L->r3, L->order};
+                                              L->dEdv, L->Bv, L->error, L->r1, L->r2, L->r3, L->order,
+                                              L->dtheta_dE, L->width_spacing};
                 for (int cc = 0; cc < QB_NCOL; cc++)
                     out[cc][row + i] = vals[cc];
             }
@@ -1406,7 +1411,7 @@ static PyMethodDef core_methods[] = {
      "wkb_orbits(model, params, curve, mu, rot, binding) -> dict of arrays: action (integral k dr), "
      "half_period (d action/dE, 1/cm-1), inner/outer turning points, Bv; at binding energies asymptote - E"},
     {"quasibound_levels", (PyCFunction)(void (*)(void))py_quasibound_levels, METH_VARARGS | METH_KEYWORDS,
-     "quasibound_levels(model, params, curve, mu, rot, order=2, width_form=0) -> dict of columns"},
+     "quasibound_levels(model, params, curve, mu, rot, order=2, width_form=0, barrier_phase=True, width_phase=True)"},
     {"resonances", (PyCFunction)(void (*)(void))py_resonances, METH_VARARGS | METH_KEYWORDS,
      "resonances(model, params, curve, mu, J, energy, width, phase_step=, r_match=) -> dict of columns"},
     {"fit_evaluate", (PyCFunction)(void (*)(void))py_fit_evaluate, METH_VARARGS | METH_KEYWORDS,

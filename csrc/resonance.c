@@ -11,7 +11,8 @@
  * V(R) absorbs the residual tail to first order (the eikonal phase), its gradient term being of
  * relative size V'/(eps k^3) (negligible at R ~ 30-150 A for tails falling faster than 1/r^2).
  * The matching function g(E) = W(u, h+)/W(u, h-) (discrete Wronskians at the last two grid points),
- * the ratio -c-/c+ of the incoming to the outgoing amplitude, vanishes at the pole; its zero is found by the secant method, starting from a semiclassical estimate.
+ * the ratio -c-/c+ of the incoming to the outgoing amplitude, vanishes at the pole (for narrow
+ * resonances, where that ratio is ~1 except within ~Gamma of the pole, the zero of W(u, h+) itself); its zero is found by the secant method, starting from a semiclassical estimate.
  * Numerov's O(h^4) error is removed by Richardson extrapolation over grid strides 4, 2, 1; the error
  * estimate combines the change of the extrapolated pole between stride sets (4,2) and (2,1) with the
  * change when R is moved inwards (the outer matching error).
@@ -27,6 +28,8 @@
 
 #include "wkb.h"
 
+#define NARROW 1e-3 /* width/(E - D) below which the pole is sought as a zero of c- rather than of c-/c+ */
+
 struct wkb_res {
     wkb_resonance_settings set;
     size_t capacity;
@@ -41,7 +44,7 @@ wkb_resonance_settings wkb_resonance_default_settings(void)
     s.r_match_alt = 0.7;
     s.start_decay = 36.0;
     s.max_points = 20000000;
-    s.max_iter = 60;
+    s.max_iter = 100;
     return s;
 }
 
@@ -85,7 +88,7 @@ typedef struct {
     const double *f;
     double r0, h, eps, D, VR; /* VR = V(R) - D without rotation, at the matching radius */
     size_t n;                 /* index of the matching point on the fine grid */
-    int l;
+    int l, narrow;
 } shooting;
 
 static double complex match(const shooting *s, size_t stride, double complex E)
@@ -109,49 +112,59 @@ static double complex match(const shooting *s, size_t stride, double complex E)
     const double complex e = cexp(I * k * hs);
     const double complex pN = hankel_reduced(s->l, k * R, 1), pM = hankel_reduced(s->l, k * (R - hs), 1) / e;
     const double complex mN = hankel_reduced(s->l, k * R, -1), mM = hankel_reduced(s->l, k * (R - hs), -1) * e;
+    if (s->narrow)
+        return u1 * pM - u0 * pN; /* c- alone: near a narrow pole 1/S is ~1 except within ~Gamma of it */
     return cexp(2 * I * k * R) * (u1 * pM - u0 * pN) / (u1 * mM - u0 * mN);
 }
 
 /* secant iteration on match(); 0 on convergence */
 static int secant(const shooting *s, size_t stride, double complex E0, double complex E1, int max_iter,
-                  double complex *root, int *iterations)
+                  double max_step, double complex *root, int *iterations)
 {
     double complex g0 = match(s, stride, E0), g1 = match(s, stride, E1);
+    double last_step = INFINITY;
     for (int it = 0; it < max_iter; it++) {
-        if (!isfinite(creal(g1)) || !isfinite(cimag(g1)))
+        if (!isfinite(creal(g1)) || !isfinite(cimag(g1)) || !isfinite(creal(g0)) || !isfinite(cimag(g0)))
             return WKB_ENUMERIC;
         if (g1 == g0)
             break;
-        const double complex E2 = E1 - g1 * (E1 - E0) / (g1 - g0);
+        double complex step = -g1 * (E1 - E0) / (g1 - g0);
+        if (cabs(step) > max_step) /* far from the pole g is not of its near-pole form: walk */
+            step *= max_step / cabs(step);
+        const double complex E2 = E1 + step;
         E0 = E1;
         g0 = g1;
         E1 = E2;
         g1 = match(s, stride, E1);
         (*iterations)++;
-        /* to rounding level: the width can be 1e-13 of the energy */
-        if (fabs(creal(E1 - E0)) <= 2e-16 * fabs(creal(E1)) && fabs(cimag(E1 - E0)) <= 2e-16 * fabs(creal(E1))) {
-            *root = E1;
+        /* to rounding level (the width can be 1e-13 of the energy), or until the steps stop shrinking
+           once they are small (the noise floor of g) */
+        const double dE = cabs(E1 - E0);
+        if ((fabs(creal(E1 - E0)) <= 2e-16 * fabs(creal(E1)) && fabs(cimag(E1 - E0)) <= 2e-16 * fabs(creal(E1))) ||
+            (dE < 1e-10 * cabs(E1) && dE >= last_step)) {
+            *root = cabs(g1) < cabs(g0) ? E1 : E0;
             return WKB_SUCCESS;
         }
+        last_step = dE;
     }
     *root = E1;
     return cabs(E1 - E0) <= 1e-12 * cabs(E1) ? WKB_SUCCESS : WKB_ENOCONV;
 }
 
 /* The pole with Richardson extrapolation over strides 4, 2, 1 at matching index n; step error into *err_h. */
-static int pole_at(shooting *s, size_t n, double complex guess, double delta, int max_iter, double complex *pole,
-                   double complex *err_h, int *iterations)
+static int pole_at(shooting *s, size_t n, double complex guess, double delta, int max_iter, double max_step,
+                   double complex *pole, double complex *err_h, int *iterations)
 {
     double complex E[3];
     const size_t strides[3] = {4, 2, 1};
     s->n = n;
     double complex g = guess;
     for (int k = 0; k < 3; k++) {
-        int status = secant(s, strides[k], g, g + delta, max_iter, &E[k], iterations);
+        int status = secant(s, strides[k], g, g + delta, max_iter, max_step, &E[k], iterations);
         if (status)
             return status;
         g = E[k];
-        delta = GSL_MAX(1e-3 * delta, 10 * cabs(E[k] - (k ? E[k - 1] : guess)) + 1e-9);
+        delta = 1e-3 * delta + 1e-12 * cabs(g); /* finer grids move the pole by O(h^4) only */
     }
     const double complex R21 = E[2] + (E[2] - E[1]) / 15, R42 = E[1] + (E[1] - E[0]) / 15;
     *pole = R21;
@@ -198,8 +211,8 @@ int wkb_res_find(wkb_res *w, const wkb_potential *pot, double mu, int J, double 
     }
     const double r0 = GSL_MAX(r, 0.02 * bar.r_bottom);
     const double k_max = sqrt((energy_guess - bar.bottom) / eps);
-    /* R: where the outgoing wave has not yet grown much over the incoming one (|Im k| R <= 3 keeps the
-       pole well conditioned), but beyond the outer turning point by several wavelengths */
+    /* R: where the outgoing wave has not yet grown much over the incoming one (an error delta of u at R
+       reads as an incoming amplitude delta exp(2 |Im k| R): |Im k| R <= 1 keeps the pole well conditioned), but beyond the outer turning point by several wavelengths */
     double r3 = bar.r_top;
     while (r3 < 1e4 * bar.r_top) {
         wkb_potential_eval(pot, r3, &pv);
@@ -209,7 +222,7 @@ int wkb_res_find(wkb_res *w, const wkb_potential *pot, double mu, int J, double 
     }
     const double complex k_guess = csqrt((energy_guess - D - 0.5 * I * width_guess) / eps);
     const double R_floor = GSL_MAX(2 * bar.r_top, r3 + 10 * 2 * M_PI / creal(k_guess));
-    const double R = GSL_MAX(R_floor, GSL_MIN(w->set.r_match, 3 / GSL_MAX(fabs(cimag(k_guess)), 1e-300)));
+    const double R = GSL_MAX(R_floor, GSL_MIN(w->set.r_match, 1 / GSL_MAX(fabs(cimag(k_guess)), 1e-300)));
     double h = w->set.phase_step / k_max;
     size_t n = (size_t)ceil((R - r0) / h / 4) * 4;
     if (n + 1 > w->set.max_points)
@@ -230,7 +243,7 @@ int wkb_res_find(wkb_res *w, const wkb_potential *pot, double mu, int J, double 
         if (!isfinite(w->f[i]))
             return wkb_fail(err, WKB_ENUMERIC, "the potential is not finite at r=%g A", ri);
     }
-    shooting s = {w->f, r0, h, eps, D, 0, n, J};
+    shooting s = {w->f, r0, h, eps, D, 0, n, J, width_guess < NARROW * (energy_guess - D)};
     wkb_potential_eval(pot, R, &pv);
     s.VR = -pv.depth;
     const double complex guess = energy_guess - 0.5 * I * width_guess;
@@ -238,7 +251,9 @@ int wkb_res_find(wkb_res *w, const wkb_potential *pot, double mu, int J, double 
     double complex pole, pole_alt;
     double complex err_h, err_h2;
     int iterations = 0;
-    if ((status = pole_at(&s, n, guess, delta, w->set.max_iter, &pole, &err_h, &iterations)))
+    /* steps of at most a fraction of the guessed width (or of E - D for narrow ones) */
+    const double max_step = GSL_MAX(0.5 * width_guess, 1e-3 * (energy_guess - D));
+    if ((status = pole_at(&s, n, guess, delta, w->set.max_iter, max_step, &pole, &err_h, &iterations)))
         return wkb_fail(err, status, "J=%d: the resonance near E=%.10g cm-1 did not converge", J, energy_guess);
     /* the outer matching error: the same at a smaller radius (index a multiple of 4) */
     {
@@ -246,7 +261,7 @@ int wkb_res_find(wkb_res *w, const wkb_potential *pot, double mu, int J, double 
         size_t n2 = (size_t)((R2 - r0) / h / 4) * 4;
         wkb_potential_eval(pot, r0 + h * (double)n2, &pv);
         s.VR = -pv.depth;
-        if ((status = pole_at(&s, n2, pole, 1e-3 * delta + 1e-9, w->set.max_iter, &pole_alt, &err_h2,
+        if ((status = pole_at(&s, n2, pole, 1e-3 * delta + 1e-9, w->set.max_iter, max_step, &pole_alt, &err_h2,
                               &iterations)))
             return wkb_fail(err, status, "J=%d: the resonance near E=%.10g cm-1 did not converge at R=%.4g A", J,
                             energy_guess, R2);

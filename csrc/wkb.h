@@ -459,6 +459,8 @@ typedef struct {
     int max_iter;
     int order;          /* position rule: 1 first order, 2 with the second-order term (falls back to 1) */
     int width_form;     /* enum wkb_width_form */
+    int barrier_phase;  /* order 2: add the barrier-phase remainder (wkb_barrier_phase_remainder) */
+    int width_phase;    /* width spacing pi/(dI/dE - dphi/dE / 2) instead of pi/(dI/dE) */
 } wkb_qb_settings;
 wkb_qb_settings wkb_qb_default_settings(void);
 
@@ -482,12 +484,18 @@ typedef struct {
     double Bv;                 /* inner-well average of eps/r^2 */
     double curvature_integral; /* integral_{r1}^{r2} V_J''/sqrt(E - V_J) dr */
     double theta;              /* barrier penetration integral */
+    double dtheta_dE;          /* its energy derivative, 1/cm-1 (negative) */
 } wkb_qb_orbit_values;
+/* phi(-theta/pi) + pi/(24 theta): the parabolic-barrier phase of physics.md 10 less its leading term. */
+double wkb_barrier_phase_remainder(double theta);
+/* d phi/d e at e = -theta/pi: Re psi(1/2 + i e) - ln|e|. */
+double wkb_barrier_phase_slope(double theta);
 
 typedef struct {
     int v, order;              /* order: the position rule that converged (1 or 2) */
     double energy, above_asymptote; /* E and E - D, cm-1 */
     double width, theta, dEdv, Bv, error; /* width: FWHM cm-1; error: numerical error of E */
+    double dtheta_dE, width_spacing; /* width_spacing: the level spacing in the width formula, cm-1 */
     double r1, r2, r3;
 } wkb_qb_level;
 

@@ -32,6 +32,24 @@ _DESCRIPTIONS = {
     "error": "estimated numerical error of the energy (not the semiclassical error)",
 }
 
+# Quasibound levels (levels(..., quasibound=True), quasibound.py). Bound rows: quasibound False, width 0,
+# theta inf (no barrier to tunnel through), lifetime inf, width_error 0, above_barrier False.
+_QB_COLUMNS = ("quasibound", "width", "theta", "lifetime", "width_error", "above_barrier")
+_COLUMNS = _COLUMNS + _QB_COLUMNS
+_BOOL_COLUMNS = ("quasibound", "above_barrier")
+_DEFAULTS = {"quasibound": False, "width": 0.0, "theta": np.inf, "lifetime": np.inf, "width_error": 0.0,
+             "above_barrier": False}
+_UNITS.update({"quasibound": "", "width": "cm-1", "theta": "", "lifetime": "s", "width_error": "cm-1",
+               "above_barrier": ""})
+_DESCRIPTIONS.update({
+    "quasibound": "True for a level between the asymptote and the top of the barrier (a shape resonance)",
+    "width": "full width at half maximum of a quasibound level (0 for bound levels)",
+    "theta": "barrier penetration integral of a quasibound level (inf for bound levels: no barrier to cross)",
+    "lifetime": "hbar/width (inf for bound levels)",
+    "width_error": "estimated numerical error of the width (exact resonances; NaN where not estimated)",
+    "above_barrier": "True for an exact resonance whose energy lies above the barrier top (not trapped)",
+})
+
 
 class LevelTable:
     """Levels of one potential and reduced mass, as NumPy arrays of equal length.
@@ -45,7 +63,8 @@ class LevelTable:
         n = len(columns["v"])
         for name in _COLUMNS:
             col = columns.get(name)
-            col = np.asarray(np.full(n, np.nan) if col is None else col, dtype=int if name in ("v", "J") else float)
+            dtype = int if name in ("v", "J") else bool if name in _BOOL_COLUMNS else float
+            col = np.asarray(np.full(n, _DEFAULTS.get(name, np.nan)) if col is None else col, dtype=dtype)
             if len(col) != n:
                 raise ValueError("column %s has %d rows, expected %d" % (name, len(col), n))
             col.setflags(write=False)
@@ -103,7 +122,8 @@ class LevelTable:
             cells = []
             for c in columns:
                 x = getattr(self, c)[i]
-                cells.append("%14d" % x if c in ("v", "J") else "%14.6f" % x if abs(x) < 1e7 else "%14.6e" % x)
+                cells.append("%14d" % x if c in ("v", "J") + _BOOL_COLUMNS else "%14.6f" % x
+                             if x == 0 or 1e-3 <= abs(x) < 1e7 or not np.isfinite(x) else "%14.6e" % x)
             lines.append("  ".join(cells))
         for J, vD in sorted(self.vD_by_J.items()):
             lines.append("J=%d: quantum number at dissociation vD = %s" % (
@@ -146,7 +166,8 @@ def _as_int_list(x, name):
     return out
 
 
-def levels(potential, mu, v=None, J=0, method="wkb", *, order=1, langer=False, maslov=(1, 1)):
+def levels(potential, mu, v=None, J=0, method="wkb", *, order=1, langer=False, maslov=(1, 1), quasibound=False,
+           quasibound_rule=None, width_form="uniform"):
     """Levels of `potential` for reduced mass `mu`.
 
     potential: a Potential object.
@@ -160,7 +181,17 @@ def levels(potential, mu, v=None, J=0, method="wkb", *, order=1, langer=False, m
        first-order error except close to dissociation, where it is not valid. The number of bound
        levels and vD are always first-order values.
     maslov: Maslov indices (inner, outer): 1 for a smooth turning point, 2 for a hard wall.
+    quasibound: also return the levels between the asymptote and the top of the barrier of
+       V + J(J+1) hbar^2/(2 mu r^2) (columns quasibound, width, theta, lifetime; see wkbfit.quasibound).
+       With method="exact" these are exact resonance poles with error estimates (error, width_error).
+    quasibound_rule: position rule of semiclassical quasibound levels (wkbfit.quasibound.RULES); None
+       follows `order` (1: "first_order", 2: "second_order_barrier").
+    width_form: "uniform" (ln(1 + exp(-2 theta)), default) or "kemble" (1/(1 + exp(2 theta))).
     """
+    if quasibound:
+        from .quasibound import levels_with_quasibound
+        return levels_with_quasibound(potential, mu, v, J, method, order=order, langer=langer, maslov=maslov,
+                                      rule=quasibound_rule, width_form=width_form)
     if not isinstance(potential, Potential):
         raise ValueError("potential must be a wkbfit potential object (Morse, LennardJones, ...), got %r"
                          % (potential,))
