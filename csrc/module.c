@@ -720,6 +720,70 @@ cleanup:
     return result;
 }
 
+static PyObject *py_barrier_integrals(PyObject *self, PyObject *args, PyObject *kwds)
+{
+    static char *kwlist[] = {"model", "params", "curve", "mu", "rot", "energy", NULL};
+    static const char *names[7] = {"theta", "dtheta_dE", "action", "half_period", "inner_turning_point",
+                                   "outer_turning_point", "barrier_turning_point"};
+    const char *model_name;
+    PyObject *params_obj, *curve_obj, *E_obj, *result = NULL;
+    double mu, rot;
+    PyArrayObject *E_arr = NULL, *cols[7] = {NULL};
+    wkb_potential pot;
+    wkb_qb *q = NULL;
+    wkb_error err = {0};
+    int status = WKB_SUCCESS;
+
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOddO", kwlist, &model_name, &params_obj, &curve_obj, &mu, &rot,
+                                     &E_obj))
+        return NULL;
+    if (parse_potential(model_name, params_obj, curve_obj, &pot) < 0)
+        return NULL;
+    if (!(E_arr = as_double_array(E_obj, "energy", 1)))
+        return NULL;
+    const npy_intp n = PyArray_SIZE(E_arr);
+    if (!(q = wkb_qb_alloc(NULL))) {
+        PyErr_NoMemory();
+        goto cleanup;
+    }
+    for (int c = 0; c < 7; c++)
+        if (!(cols[c] = new_vector(n)))
+            goto cleanup;
+    {
+        const double *E = PyArray_DATA(E_arr);
+        double *out[7];
+        for (int c = 0; c < 7; c++)
+            out[c] = PyArray_DATA(cols[c]);
+        Py_BEGIN_ALLOW_THREADS
+        status = wkb_qb_set(q, &pot, mu, rot, &err);
+        for (npy_intp i = 0; i < n && !status; i++) {
+            wkb_qb_orbit_values o;
+            status = wkb_qb_orbit(q, E[i] - wkb_qb_barrier(q)->asymptote, &o, &err);
+            const double vals[7] = {o.theta, o.dtheta_dE, o.action, o.half_period, o.r1, o.r2, o.r3};
+            for (int c = 0; c < 7; c++)
+                out[c][i] = vals[c];
+        }
+        Py_END_ALLOW_THREADS
+    }
+    if (status) {
+        raise_status(&err);
+        goto cleanup;
+    }
+    if (!(result = PyDict_New()))
+        goto cleanup;
+    for (int c = 0; c < 7; c++)
+        if (PyDict_SetItemString(result, names[c], (PyObject *)cols[c]) < 0) {
+            Py_CLEAR(result);
+            break;
+        }
+cleanup:
+    for (int c = 0; c < 7; c++)
+        Py_XDECREF(cols[c]);
+    Py_XDECREF(E_arr);
+    wkb_qb_free(q);
+    return result;
+}
+
 static PyObject *py_resonances(PyObject *self, PyObject *args, PyObject *kwds)
 {
     static char *kwlist[] = {"model", "params", "curve", "mu", "J", "energy", "width", "phase_step", "r_match",
@@ -1412,6 +1476,8 @@ static PyMethodDef core_methods[] = {
      "half_period (d action/dE, 1/cm-1), inner/outer turning points, Bv; at binding energies asymptote - E"},
     {"quasibound_levels", (PyCFunction)(void (*)(void))py_quasibound_levels, METH_VARARGS | METH_KEYWORDS,
      "quasibound_levels(model, params, curve, mu, rot, order=2, width_form=0, barrier_phase=True, width_phase=True)"},
+    {"barrier_integrals", (PyCFunction)(void (*)(void))py_barrier_integrals, METH_VARARGS | METH_KEYWORDS,
+     "barrier_integrals(model, params, curve, mu, rot, energy) -> theta, dtheta_dE, action, ... at each E"},
     {"resonances", (PyCFunction)(void (*)(void))py_resonances, METH_VARARGS | METH_KEYWORDS,
      "resonances(model, params, curve, mu, J, energy, width, phase_step=, r_match=) -> dict of columns"},
     {"fit_evaluate", (PyCFunction)(void (*)(void))py_fit_evaluate, METH_VARARGS | METH_KEYWORDS,

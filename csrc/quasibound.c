@@ -165,8 +165,9 @@ int wkb_barrier_find(const wkb_potential *pot, double mu, double rot, size_t sca
     if (!(r_lo > 0 && r_hi > r_lo && isfinite(r_hi)))
         return wkb_fail(err, WKB_EINVAL, "cannot choose a range of r for this potential (%g .. %g A)", r_lo, r_hi);
     const double step = log(r_hi / r_lo) / (double)(scan_points - 1);
-    /* the deepest point, then the first maximum outside it */
-    double V_prev = NAN, r_prev = r_lo, V_min = INFINITY, r_min = NAN;
+    /* the first local minimum out from the inner wall (the well, whose bottom may lie above the asymptote
+       at high J), then the first maximum outside it */
+    double V_prev = NAN, r_prev = r_lo, r_min = NAN;
     size_t i_min = 0;
     wkb_pot_value pv;
     for (size_t i = 0; i < scan_points; i++) {
@@ -174,13 +175,15 @@ int wkb_barrier_find(const wkb_potential *pot, double mu, double rot, size_t sca
         effective(pot, eps_rot, r, &pv);
         if (!isfinite(pv.V))
             return wkb_fail(err, WKB_ENUMERIC, "the potential is not finite at r=%g A (V=%g)", r, pv.V);
-        if (pv.V < V_min) {
-            V_min = pv.V;
-            r_min = r;
-            i_min = i;
+        if (i > 0 && pv.V > V_prev) {
+            i_min = i - 1;
+            r_min = r_prev;
+            break;
         }
+        V_prev = pv.V;
+        r_prev = r;
     }
-    if (i_min == 0 || i_min == scan_points - 1)
+    if (i_min == 0)
         return WKB_SUCCESS; /* no well: nothing is trapped */
     {
         const double a = r_min * exp(-step), b = r_min * exp(step);
@@ -191,6 +194,8 @@ int wkb_barrier_find(const wkb_potential *pot, double mu, double rot, size_t sca
         bar->r_bottom = rb;
         bar->bottom = pv.V;
     }
+    V_prev = NAN;
+    r_prev = r_min;
     for (size_t i = i_min; i < scan_points; i++) {
         const double r = r_lo * exp(step * (double)i);
         effective(pot, eps_rot, r, &pv);
@@ -481,6 +486,14 @@ static int solve(wkb_qb *q, int v, int order, double e_lo, double e_hi, double e
                     v, e);
 }
 
+/* lowest e = E - D of the quasibound range: just above the asymptote, or the bottom of a well that lies
+   above it (high J) */
+static double range_start(const wkb_qb *q)
+{
+    const double H = q->bar.height, above = q->bar.bottom - q->D;
+    return above > 0 ? above + 1e-9 * (H - above) : 1e-9 * H;
+}
+
 int wkb_qb_count(wkb_qb *q, size_t *count, wkb_qb_range *range, wkb_error *err)
 {
     *count = 0;
@@ -491,8 +504,9 @@ int wkb_qb_count(wkb_qb *q, size_t *count, wkb_qb_range *range, wkb_error *err)
     range->barrier = q->bar;
     if (!q->bar.found)
         return WKB_SUCCESS;
-    /* first-order quantum numbers at the asymptote and at the barrier top (the ends of the range) */
-    const double H = q->bar.height, e_min = 1e-9 * H, e_max = H * (1 - 1e-9);
+    /* first-order quantum numbers at the asymptote (or the well bottom, where that is higher) and at the
+       barrier top: the ends of the range */
+    const double H = q->bar.height, e_min = range_start(q), e_max = H * (1 - 1e-9);
     wkb_qb_orbit_values o;
     int status;
     if ((status = wkb_qb_orbit(q, e_min, &o, err)))
@@ -514,7 +528,7 @@ int wkb_qb_levels(wkb_qb *q, wkb_qb_level *levels, size_t capacity, size_t *coun
     int status = wkb_qb_count(q, count, range, err);
     if (status || !*count)
         return status;
-    const double H = q->bar.height, e_min = 1e-9 * H, e_max = H * (1 - 1e-9);
+    const double H = q->bar.height, e_min = range_start(q), e_max = H * (1 - 1e-9);
     const int v0 = (int)ceil(range->v_first), v1 = (int)ceil(range->v_top);
     size_t n = 0;
     for (int v = v0; v < v1; v++) {

@@ -112,6 +112,44 @@ def exact_resonances(potential, mu, J, energy, width, *, phase_step=0.04, r_matc
     return res
 
 
+def _bound_levels(potential, mu, Js, method, order):
+    """The bound levels of every J; a J whose well lies wholly above the asymptote (high J) has none."""
+    from .levels import LevelTable, _COLUMNS, levels as _levels
+
+    def one(Jset):
+        return _levels(potential, mu, None, Jset, method, order=order)
+
+    try:
+        return one(Js), []
+    except ValueError as exc:
+        if "no well" not in str(exc) and "below the asymptote" not in str(exc) and "has no point" not in str(exc):
+            raise
+    tables, no_well = [], []
+    for J in Js:
+        try:
+            tables.append(one([J]))
+        except ValueError as exc:
+            if "no well" not in str(exc) and "below the asymptote" not in str(exc) and "has no point" not in str(exc):
+                raise
+            no_well.append(J)
+    if not tables:
+        return LevelTable({c: [] for c in _COLUMNS}, mu=mu, method="exact" if method == "exact" else
+                          ("wkb" if order == 1 else "wkb2"), potential=potential,
+                          vD={J: None for J in Js}), no_well
+    cols = {c: np.concatenate([getattr(t, c) for t in tables]) for c in _COLUMNS}
+    vD = {}
+    for t in tables:
+        vD.update(t.vD_by_J)
+    vD.update({J: None for J in no_well})
+    table = LevelTable(cols, mu=mu, method=tables[0].method, potential=potential, vD=vD, notes=tables[0].notes)
+    counts = {}
+    for t in tables:
+        counts.update(getattr(t, "bound_counts", {}))
+    counts.update({J: 0 for J in no_well})
+    table.bound_counts = counts
+    return table, no_well
+
+
 def levels_with_quasibound(potential, mu, v, J, method, *, order, langer, maslov, rule, width_form):
     """What `levels(..., quasibound=True)` returns: bound and quasibound levels in one LevelTable."""
     from .levels import LevelTable, _COLUMNS, _as_int_list, levels as _levels
@@ -132,8 +170,7 @@ def levels_with_quasibound(potential, mu, v, J, method, *, order, langer, maslov
     mu = as_reduced_mass(mu)
     Js = _as_int_list(J, "J")
     vs = None if v is None else _as_int_list(v, "v")
-    bound = _levels(potential, mu, None, Js, method, order=order) if method == "wkb" else \
-        _levels(potential, mu, None, Js, "exact")
+    bound, no_well = _bound_levels(potential, mu, Js, method, order)
     # exact resonances are seeded by the best semiclassical rule, whatever `order` says
     qcols, barriers, notes = quasibound_columns(potential, mu, Js, rule=rule if method == "wkb" else None,
                                                 order=order if method == "wkb" else 2, width_form=width_form)
@@ -168,6 +205,8 @@ def levels_with_quasibound(potential, mu, v, J, method, *, order, langer, maslov
             notes.append("exact resonances above the barrier top (above_barrier = True): "
                          + ", ".join("J=%d v=%d" % (qcols["J"][i], qcols["v"][i]) for i in range(n_q)
                                      if res["above_barrier"][i]))
+    for J in no_well:
+        notes.append("J=%d: the well of V_J lies above the asymptote: no bound levels" % J)
     qcols["lifetime"] = lifetime(qcols["width"])
     cols = {}
     for name in _COLUMNS:
