@@ -39,8 +39,8 @@ struct wkb_res {
 wkb_resonance_settings wkb_resonance_default_settings(void)
 {
     wkb_resonance_settings s;
-    s.phase_step = 0.04;
-    s.r_match = 150.0;
+    s.phase_step = 0.06;
+    s.r_match = 50.0;
     s.r_match_alt = 0.7;
     s.start_decay = 36.0;
     s.max_points = 20000000;

@@ -352,3 +352,14 @@ def test_no_barrier_gives_no_quasibound_levels():
     m = wkbfit.Morse(De=1000.0, re=2.0, a=1.0)
     t = wkbfit.levels(m, MU, J=0, quasibound=True)
     assert not np.any(t.quasibound) and t.barriers[0] is None
+
+
+def test_fit_with_a_quasibound_datum_says_so():
+    # a data set holding a quasibound level: the fit cannot use it, and the message says why (not "start from
+    # a deeper well", which would not help)
+    t = wkbfit.levels(LJ, MU, J=40, order=2, quasibound=True)
+    obs = wkbfit.ObservedLevels(v=t.v, J=t.J, energy=t.energy, uncertainty=np.full(len(t), 0.01),
+                                isotopologue=[None] * len(t), energy_zero="minimum")
+    with pytest.raises(ValueError, match=r"v=2, J=40 is a quasibound level") as info:
+        wkbfit.fit(wkbfit.LennardJones(2500.0, 1.0), obs, mu=MU)
+    assert "deeper" not in str(info.value)

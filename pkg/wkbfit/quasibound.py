@@ -98,7 +98,7 @@ def quasibound_columns(potential, mu, Js, *, rule=None, order=2, width_form="uni
     return cols, barriers, notes
 
 
-def exact_resonances(potential, mu, J, energy, width, *, phase_step=0.04, r_match=150.0):
+def exact_resonances(potential, mu, J, energy, width, *, phase_step=0.06, r_match=50.0):
     """Exact resonance poles near the guesses (energy, FWHM width in cm-1; one J each).
 
     Returns a dict of arrays: energy, width, energy_error, width_error (estimates, cm-1), r_match (A),
