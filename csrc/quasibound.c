@@ -391,6 +391,8 @@ double wkb_barrier_phase_slope(double theta)
     return re.val - log(fabs(e));
 }
 
+static double range_start(const wkb_qb *q);
+
 /* Quantization function F(e) = I - (second-order term) - pi (v + 1/2) and its slope dI/dE. */
 static int rule(wkb_qb *q, double e, int order, double target, double *F, double *slope, double *fd_error,
                 wkb_qb_orbit_values *o, wkb_error *err)
@@ -404,7 +406,7 @@ static int rule(wkb_qb *q, double e, int order, double target, double *F, double
     if (order == 2) {
         /* step: 1% of the level spacing, kept inside (0, height) */
         double h = 0.01 * M_PI / o->half_period;
-        h = GSL_MIN(h, 0.2 * GSL_MIN(e, q->bar.height - e));
+        h = GSL_MIN(h, 0.2 * GSL_MIN(e - range_start(q), q->bar.height - e));
         double K[4];
         const double off[4] = {-2, -1, 1, 2};
         for (int k = 0; k < 4; k++) {

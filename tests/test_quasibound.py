@@ -385,3 +385,15 @@ def test_semiclassical_against_exact_on_a_rotating_morse_curve():
             assert abs(ratio - 1) < (0.015 if th >= 1 else 0.04), (J, ex.v[i], th, ratio)
             seen += 1
     assert seen >= 12
+
+
+def test_exact_resonances_bad_input():
+    from wkbfit.quasibound import exact_resonances
+    with pytest.raises(ValueError, match="whole numbers"):
+        exact_resonances(LJ, MU, [40.5], [2759.0], [1e-5])
+    with pytest.raises(ValueError, match="one length"):
+        exact_resonances(LJ, MU, [40, 41], [2759.0], [1e-5])
+    with pytest.raises(ValueError, match="not above the asymptote"):
+        exact_resonances(LJ, MU, [40], [2400.0], [1e-5])
+    with pytest.raises(ValueError, match="widths >= 0"):
+        exact_resonances(LJ, MU, [40], [2759.0], [-1.0])

@@ -104,7 +104,22 @@ def exact_resonances(potential, mu, J, energy, width, *, phase_step=0.06, r_matc
     Returns a dict of arrays: energy, width, energy_error, width_error (estimates, cm-1), r_match (A),
     grid_points, above_barrier (bool).
     """
+    from .potentials import Potential
+    if not isinstance(potential, Potential):
+        raise ValueError("potential must be a wkbfit potential object, got %r" % (potential,))
+    J_arr = np.atleast_1d(np.asarray(J))
+    E_arr = np.atleast_1d(np.asarray(energy, dtype=float))
+    G_arr = np.atleast_1d(np.asarray(width, dtype=float))
+    if not (J_arr.ndim == E_arr.ndim == G_arr.ndim == 1 and len(J_arr) == len(E_arr) == len(G_arr)):
+        raise ValueError("J, energy and width must be 1-dimensional and of one length; got lengths %d, %d, %d"
+                         % (J_arr.size, E_arr.size, G_arr.size))
+    if J_arr.size and (not np.all(np.isfinite(J_arr.astype(float))) or np.any(J_arr != np.round(J_arr))
+                       or np.any(J_arr < 0)):
+        raise ValueError("J must hold whole numbers >= 0; got %r" % (J,))
+    if not (np.all(np.isfinite(E_arr)) and np.all(np.isfinite(G_arr)) and np.all(G_arr >= 0)):
+        raise ValueError("energy and width guesses must be finite, widths >= 0 (cm-1)")
     model, params, curve = potential._core_args()
+    J, energy, width = J_arr.astype(int), E_arr, G_arr
     res = _core.resonances(model, params, curve, float(mu), np.asarray(J, dtype=np.intc),
                            np.asarray(energy, dtype=float), np.asarray(width, dtype=float),
                            phase_step=float(phase_step), r_match=float(r_match))
