@@ -115,7 +115,10 @@ class LevelTable:
 
     def to_text(self, columns=("v", "J", "energy", "binding_energy", "dEdv", "Bv",
                                "inner_turning_point", "outer_turning_point")):
-        """A plain-text table, one level per line."""
+        """A plain-text table, one level per line (with width, theta and the quasibound flag when the
+        table holds quasibound levels)."""
+        if np.any(self.quasibound) and not set(columns) & set(_QB_COLUMNS):
+            columns = tuple(columns) + ("width", "theta", "quasibound")
         head = "  ".join("%14s" % ("%s%s" % (c, " [%s]" % _UNITS[c] if _UNITS[c] else "")) for c in columns)
         lines = ["%s levels of %r, mu = %.10g u" % (self.method.upper(), self.potential, self.mu), head]
         for i in range(len(self)):
