@@ -435,7 +435,7 @@ static int solve(wkb_qb *q, int v, int order, double e_lo, double e_hi, double e
                  wkb_error *err)
 {
     const double target = M_PI * (v + 0.5);
-    double e = e0, F = 0, slope = 1, fd = 0;
+    double e = e0, F = 0, slope = 1, fd = 0, e_prev = NAN, F_prev = NAN;
     wkb_qb_orbit_values o;
     int status;
     for (int it = 0; it < q->set.max_iter; it++) {
@@ -445,6 +445,15 @@ static int solve(wkb_qb *q, int v, int order, double e_lo, double e_hi, double e
             e_hi = GSL_MIN(e_hi, e);
         else
             e_lo = GSL_MAX(e_lo, e);
+        /* the secant slope also holds the energy dependence of the second-order and barrier terms, which
+           dI/dE alone leaves out (Newton with dI/dE converges only linearly at order 2) */
+        if (it > 0 && e != e_prev) {
+            const double sec = (F - F_prev) / (e - e_prev);
+            if (isfinite(sec) && sec > 0.1 * slope && sec < 10 * slope)
+                slope = sec;
+        }
+        e_prev = e;
+        F_prev = F;
         double en = e - F / slope;
         if (!(en > e_lo && en < e_hi))
             en = 0.5 * (e_lo + e_hi);
