@@ -1,11 +1,14 @@
 /* quasibound.c: levels trapped behind a barrier of V_J(r) = V(r) + eps*rot/r^2 (shape resonances).
  *
- * Barrier: the first local maximum of V_J outside the well minimum; levels between the asymptote D
- * and the barrier top V_b are quasibound. At energy E in (D, V_b) V_J has three turning points
- * r1 < r2 < r3: the inner well [r1, r2] and the barrier [r2, r3].
+ * Barrier: the first local maximum of V_J outside the first local minimum out from the inner wall (the
+ * well); levels between the asymptote D (or the well bottom, where a high J lifts it above D) and the
+ * barrier top V_b are quasibound. At energy E in (D, V_b) V_J has three turning points r1 < r2 < r3: the
+ * inner well [r1, r2] and the barrier [r2, r3]. Levels that would lie above V_b are not trapped and are
+ * not returned (wkb_qb_range gives the quantum number v_top at the barrier top).
  *
  * Position: the inner-well rule, first order I(E) = pi (v + 1/2), or second order
- *   I(E) - (sqrt(eps)/24) dK/dE = pi (v + 1/2) + rem(theta)/2,  K(E) = integral_{r1}^{r2} V_J''/sqrt(E - V_J) dr
+ *   I(E) - (sqrt(eps)/24) dK/dE = pi (v + 1/2) + rem(theta)/2,
+ *   K(E) = integral_{r1}^{r2} V_J''/sqrt(E - V_J) dr
  * (Dunham; physics.md sections 2 and 10), dK/dE by a five-point difference, where rem is the part of the
  * parabolic-barrier phase that the second-order term does not already hold (wkb_barrier_phase_remainder;
  * barrier_phase = 0 leaves it out).

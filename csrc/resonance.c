@@ -9,10 +9,15 @@
  *   u_out(r) = h_J^+(k r),  k = sqrt((E - V(R))/eps)  (principal branch, Re k > 0),
  * which is the exact outgoing solution where V has reached its asymptote; taking k at the local
  * V(R) absorbs the residual tail to first order (the eikonal phase), its gradient term being of
- * relative size V'/(eps k^3) (negligible at R ~ 30-150 A for tails falling faster than 1/r^2).
+ * relative size V'/(eps k^3) (negligible at R ~ 10-50 A for tails falling faster than 1/r^2).
+ * R = min(r_match, 2/|Im k|), but at least 10 wavelengths beyond the outer turning point: an error of u
+ * at R reads as an incoming amplitude amplified by exp(2 |Im k| R).
  * The matching function g(E) = W(u, h+)/W(u, h-) (discrete Wronskians at the last two grid points),
- * the ratio -c-/c+ of the incoming to the outgoing amplitude, vanishes at the pole (for narrow
- * resonances, where that ratio is ~1 except within ~Gamma of the pole, the zero of W(u, h+) itself); its zero is found by the secant method, starting from a semiclassical estimate.
+ * the ratio -c-/c+ of the incoming to the outgoing amplitude, vanishes at the pole; for narrow
+ * resonances, where that ratio is ~1 except within ~Gamma of the pole, the zero of W(u, h+) itself is
+ * sought. The secant method finds it, starting from a semiclassical estimate. The recurrence runs in
+ * long double: the barrier amplifies its rounding by exp(theta), which in double precision limits widths
+ * to ~1e-12 cm-1 (measured), in long double to ~1e-16.
  * Numerov's O(h^4) error is removed by Richardson extrapolation over grid strides 4, 2, 1; the error
  * estimate combines the change of the extrapolated pole between stride sets (4,2) and (2,1) with the
  * change when R is moved inwards (the outer matching error).
@@ -33,7 +38,7 @@
 struct wkb_res {
     wkb_resonance_settings set;
     size_t capacity;
-    double *f; /* V_J/eps on the fine grid */
+    double *f; /* (V_J - D)/eps on the fine grid */
 };
 
 wkb_resonance_settings wkb_resonance_default_settings(void)
@@ -213,9 +218,14 @@ int wkb_res_find(wkb_res *w, const wkb_potential *pot, double mu, int J, double 
             break;
     }
     const double r0 = GSL_MAX(r, 0.02 * bar.r_bottom);
+    if (acc < 0.5 * w->set.start_decay)
+        return wkb_fail(err, WKB_EINVAL,
+                        "J=%d: the inner wall is too low for E=%.10g cm-1 (tunnelling integral %.3g inside the inner "
+                        "turning point): u = 0 cannot be imposed there", J, energy_guess, acc);
     const double k_max = sqrt((energy_guess - bar.bottom) / eps);
     /* R: where the outgoing wave has not yet grown much over the incoming one (an error delta of u at R
-       reads as an incoming amplitude delta exp(2 |Im k| R): |Im k| R <= 2 keeps the pole well conditioned), but beyond the outer turning point by several wavelengths */
+       reads as an incoming amplitude delta exp(2 |Im k| R): |Im k| R <= 2 keeps the pole well conditioned),
+       but beyond the outer turning point by several wavelengths */
     double r3 = bar.r_top;
     while (r3 < 1e4 * bar.r_top) {
         wkb_potential_eval(pot, r3, &pv);

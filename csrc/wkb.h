@@ -524,7 +524,8 @@ int wkb_qb_levels(wkb_qb *q, wkb_qb_level *levels, size_t capacity, size_t *coun
    top of resonance.c). */
 typedef struct {
     double phase_step;  /* k_max * h on the finest grid */
-    double r_match;     /* matching radius R, A (raised to 2 r_top if smaller) */
+    double r_match;     /* largest matching radius R, A (R = min(r_match, 2/|Im k|), at least 10 wavelengths
+                           beyond the outer turning point) */
     double r_match_alt; /* second radius, as a fraction of R, for the outer error estimate */
     double start_decay; /* integral of kappa from the start point to the inner turning point */
     size_t max_points;
