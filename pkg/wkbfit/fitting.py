@@ -272,7 +272,7 @@ def _quasibound_note(potential, mu, v, J):
     """Why a datum above the last bound level cannot be fitted, if it is quasibound; None otherwise."""
     from .quasibound import quasibound_columns
     try:
-        cols, barriers, _ = quasibound_columns(potential, mu, [int(J)], order=2)
+        cols, barriers, _ = quasibound_columns(potential, mu, [int(J)])
     except (ValueError, RuntimeError):
         return None
     hit = np.nonzero(cols["v"] == v)[0]

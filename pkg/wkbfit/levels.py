@@ -188,7 +188,8 @@ def levels(potential, mu, v=None, J=0, method="wkb", *, order=1, langer=False, m
        V + J(J+1) hbar^2/(2 mu r^2) (columns quasibound, width, theta, lifetime; see wkbfit.quasibound).
        With method="exact" these are exact resonance poles with error estimates (error, width_error).
     quasibound_rule: position rule of semiclassical quasibound levels (wkbfit.quasibound.RULES); None
-       follows `order` (1: "first_order", 2: "second_order_barrier").
+       is "second_order_barrier" (second order plus the barrier-phase remainder, the best on test) whatever
+       `order` the bound levels use; "first_order" and "second_order" are the plain rules.
     width_form: "uniform" (ln(1 + exp(-2 theta)), default) or "kemble" (1/(1 + exp(2 theta))).
     """
     if quasibound:

@@ -45,23 +45,23 @@ def lifetime(width):
         return np.where(w > 0, LIFETIME_CONSTANT / np.where(w > 0, w, 1.0), np.inf)
 
 
-def _rule(rule, order):
+def _rule(rule):
     if rule is None:
-        rule = "first_order" if order == 1 else "second_order_barrier"
+        rule = "second_order_barrier"  # the best rule on test, whatever order the bound levels use
     if rule not in RULES:
-        raise ValueError("quasibound_rule=%r is not known; use one of %s (None: follow `order`)"
+        raise ValueError("quasibound_rule=%r is not known; use one of %s (None: second_order_barrier)"
                          % (rule, ", ".join(sorted(RULES))))
     return rule
 
 
-def quasibound_columns(potential, mu, Js, *, rule=None, order=2, width_form="uniform"):
+def quasibound_columns(potential, mu, Js, *, rule=None, width_form="uniform"):
     """Semiclassical quasibound levels of every J in Js, as a dict of NumPy columns plus notes.
 
     Returns (columns, barriers, notes): columns has v, J, energy, binding_energy (negative: D - E),
     inner_turning_point, outer_turning_point (the barrier's inner side), Bv, dEdv, error, width, theta,
     barrier_turning_point (r3), position_order; barriers maps J -> dict(top, height, r_top) or None.
     """
-    rule = _rule(rule, order)
+    rule = _rule(rule)
     if width_form not in WIDTH_FORMS:
         raise ValueError("width_form=%r is not known; use 'uniform' (ln(1 + exp(-2 theta))) or 'kemble' "
                          "(1/(1 + exp(2 theta)))" % (width_form,))
@@ -186,9 +186,9 @@ def levels_with_quasibound(potential, mu, v, J, method, *, order, langer, maslov
     Js = _as_int_list(J, "J")
     vs = None if v is None else _as_int_list(v, "v")
     bound, no_well = _bound_levels(potential, mu, Js, method, order)
-    # exact resonances are seeded by the best semiclassical rule, whatever `order` says
+    # exact resonances are seeded by the best semiclassical rule, whatever `quasibound_rule` says
     qcols, barriers, notes = quasibound_columns(potential, mu, Js, rule=rule if method == "wkb" else None,
-                                                order=order if method == "wkb" else 2, width_form=width_form)
+                                                width_form=width_form)
     n_q = len(qcols["v"])
     qcols["quasibound"] = np.ones(n_q, bool)
     qcols["width_error"] = np.full(n_q, np.nan)
