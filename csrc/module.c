@@ -647,6 +647,276 @@ cleanup:
     return result;
 }
 
+/* ------------------------------------------------- quasibound levels (quasibound.c, resonance.c) */
+
+#define QB_NCOL 15
+static PyObject *py_quasibound_levels(PyObject *self, PyObject *args, PyObject *kwds)
+{
+    static char *kwlist[] = {"model", "params", "curve", "mu", "rot", "order", "width_form", "barrier_phase",
+                             "width_phase", NULL};
+    static const char *names[QB_NCOL] = {"v", "rot_index", "energy", "above_asymptote", "width", "theta", "dEdv",
+                                         "Bv", "error", "inner_turning_point", "outer_turning_point",
+                                         "barrier_turning_point", "order", "dtheta_dE",
+                                         "width_spacing"};
+    static const char *range_names[7] = {"barrier_found", "barrier_top", "barrier_height", "barrier_r", "v_first",
+                                         "v_top", "first_order_fallback"};
+    const char *model_name;
+    PyObject *params_obj, *curve_obj, *rot_obj, *result = NULL;
+    double mu;
+    int order = 2, width_form = WKB_WIDTH_UNIFORM, barrier_phase = 1, width_phase = 1;
+    PyArrayObject *rot_arr = NULL, *cols[QB_NCOL] = {NULL}, *rcols[7] = {NULL};
+    wkb_potential pot;
+    wkb_qb *q = NULL;
+    wkb_qb_level *lv = NULL;
+    wkb_error err = {0};
+    int status = WKB_SUCCESS;
+    size_t total = 0;
+
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOdO|iipp", kwlist, &model_name, &params_obj, &curve_obj, &mu,
+                                     &rot_obj, &order, &width_form, &barrier_phase, &width_phase))
+        return NULL;
+    if (parse_potential(model_name, params_obj, curve_obj, &pot) < 0)
+        return NULL;
+    if (!(rot_arr = as_double_array(rot_obj, "rot", 1)))
+        return NULL;
+    const npy_intp n_rot = PyArray_SIZE(rot_arr);
+    const double *rot = PyArray_DATA(rot_arr);
+    wkb_qb_settings settings = wkb_qb_default_settings();
+    settings.order = order;
+    settings.width_form = width_form;
+    settings.barrier_phase = barrier_phase;
+    settings.width_phase = width_phase;
+    if (!(q = wkb_qb_alloc(&settings))) {
+        value_error("order=%d / width_form=%d are invalid (order 1 or 2; width form 0 uniform, 1 Kemble)", order,
+                    width_form);
+        goto cleanup;
+    }
+    for (int c = 0; c < 7; c++)
+        if (!(rcols[c] = new_vector(n_rot)))
+            goto cleanup;
+    {
+        double *rc[7];
+        for (int c = 0; c < 7; c++)
+            rc[c] = PyArray_DATA(rcols[c]);
+        /* first pass: how many levels each J has */
+        Py_BEGIN_ALLOW_THREADS
+        for (npy_intp k = 0; k < n_rot && !status; k++) {
+            size_t c = 0;
+            wkb_qb_range range;
+            status = wkb_qb_set(q, &pot, mu, rot[k], &err);
+            if (!status)
+                status = wkb_qb_count(q, &c, &range, &err);
+            total += c;
+        }
+        Py_END_ALLOW_THREADS
+        if (status) {
+            raise_status(&err);
+            goto cleanup;
+        }
+        if (!(lv = calloc(total + 1, sizeof *lv))) {
+            PyErr_NoMemory();
+            goto cleanup;
+        }
+        for (int c = 0; c < QB_NCOL; c++)
+            if (!(cols[c] = new_vector((npy_intp)total)))
+                goto cleanup;
+        double *out[QB_NCOL];
+        for (int c = 0; c < QB_NCOL; c++)
+            out[c] = PyArray_DATA(cols[c]);
+        Py_BEGIN_ALLOW_THREADS
+        size_t row = 0;
+        for (npy_intp k = 0; k < n_rot && !status; k++) {
+            size_t c = 0;
+            wkb_qb_range range;
+            status = wkb_qb_set(q, &pot, mu, rot[k], &err);
+            if (!status)
+                status = wkb_qb_levels(q, lv + row, total - row, &c, &range, &err);
+            if (status)
+                break;
+            rc[0][k] = range.barrier.found;
+            rc[1][k] = range.barrier.found ? range.barrier.top : NAN;
+            rc[2][k] = range.barrier.found ? range.barrier.height : NAN;
+            rc[3][k] = range.barrier.found ? range.barrier.r_top : NAN;
+            rc[4][k] = range.v_first;
+            rc[5][k] = range.v_top;
+            rc[6][k] = (double)range.n_first_order_fallback;
+            for (size_t i = 0; i < c && row + i < total; i++) {
+                const wkb_qb_level *L = &lv[row + i];
+                const double vals[QB_NCOL] = {L->v, (double)k, L->energy, L->above_asymptote, L->width, L->theta,
+                                              L->dEdv, L->Bv, L->error, L->r1, L->r2, L->r3, L->order,
+                                              L->dtheta_dE, L->width_spacing};
+                for (int cc = 0; cc < QB_NCOL; cc++)
+                    out[cc][row + i] = vals[cc];
+            }
+            row += c;
+        }
+        Py_END_ALLOW_THREADS
+    }
+    if (status) {
+        raise_status(&err);
+        goto cleanup;
+    }
+    if (!(result = PyDict_New()))
+        goto cleanup;
+    for (int c = 0; c < QB_NCOL; c++)
+        if (PyDict_SetItemString(result, names[c], (PyObject *)cols[c]) < 0)
+            goto fail;
+    for (int c = 0; c < 7; c++)
+        if (PyDict_SetItemString(result, range_names[c], (PyObject *)rcols[c]) < 0)
+            goto fail;
+    goto cleanup;
+fail:
+    Py_CLEAR(result);
+cleanup:
+    for (int c = 0; c < QB_NCOL; c++)
+        Py_XDECREF(cols[c]);
+    for (int c = 0; c < 7; c++)
+        Py_XDECREF(rcols[c]);
+    Py_XDECREF(rot_arr);
+    free(lv);
+    wkb_qb_free(q);
+    return result;
+}
+
+static PyObject *py_barrier_integrals(PyObject *self, PyObject *args, PyObject *kwds)
+{
+    static char *kwlist[] = {"model", "params", "curve", "mu", "rot", "energy", NULL};
+    static const char *names[7] = {"theta", "dtheta_dE", "action", "half_period", "inner_turning_point",
+                                   "outer_turning_point", "barrier_turning_point"};
+    const char *model_name;
+    PyObject *params_obj, *curve_obj, *E_obj, *result = NULL;
+    double mu, rot;
+    PyArrayObject *E_arr = NULL, *cols[7] = {NULL};
+    wkb_potential pot;
+    wkb_qb *q = NULL;
+    wkb_error err = {0};
+    int status = WKB_SUCCESS;
+
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOddO", kwlist, &model_name, &params_obj, &curve_obj, &mu, &rot,
+                                     &E_obj))
+        return NULL;
+    if (parse_potential(model_name, params_obj, curve_obj, &pot) < 0)
+        return NULL;
+    if (!(E_arr = as_double_array(E_obj, "energy", 1)))
+        return NULL;
+    const npy_intp n = PyArray_SIZE(E_arr);
+    if (!(q = wkb_qb_alloc(NULL))) {
+        PyErr_NoMemory();
+        goto cleanup;
+    }
+    for (int c = 0; c < 7; c++)
+        if (!(cols[c] = new_vector(n)))
+            goto cleanup;
+    {
+        const double *E = PyArray_DATA(E_arr);
+        double *out[7];
+        for (int c = 0; c < 7; c++)
+            out[c] = PyArray_DATA(cols[c]);
+        Py_BEGIN_ALLOW_THREADS
+        status = wkb_qb_set(q, &pot, mu, rot, &err);
+        for (npy_intp i = 0; i < n && !status; i++) {
+            wkb_qb_orbit_values o;
+            status = wkb_qb_orbit(q, E[i] - wkb_qb_barrier(q)->asymptote, &o, &err);
+            const double vals[7] = {o.theta, o.dtheta_dE, o.action, o.half_period, o.r1, o.r2, o.r3};
+            for (int c = 0; c < 7; c++)
+                out[c][i] = vals[c];
+        }
+        Py_END_ALLOW_THREADS
+    }
+    if (status) {
+        raise_status(&err);
+        goto cleanup;
+    }
+    if (!(result = PyDict_New()))
+        goto cleanup;
+    for (int c = 0; c < 7; c++)
+        if (PyDict_SetItemString(result, names[c], (PyObject *)cols[c]) < 0) {
+            Py_CLEAR(result);
+            break;
+        }
+cleanup:
+    for (int c = 0; c < 7; c++)
+        Py_XDECREF(cols[c]);
+    Py_XDECREF(E_arr);
+    wkb_qb_free(q);
+    return result;
+}
+
+static PyObject *py_resonances(PyObject *self, PyObject *args, PyObject *kwds)
+{
+    static char *kwlist[] = {"model", "params", "curve", "mu", "J", "energy", "width", "phase_step", "r_match",
+                             NULL};
+    static const char *names[7] = {"energy", "width", "energy_error", "width_error", "r_match", "grid_points",
+                                   "above_barrier"};
+    const char *model_name;
+    PyObject *params_obj, *curve_obj, *J_obj, *E_obj, *G_obj, *result = NULL;
+    double mu;
+    wkb_resonance_settings settings = wkb_resonance_default_settings();
+    PyArrayObject *J_arr = NULL, *E_arr = NULL, *G_arr = NULL, *cols[7] = {NULL};
+    wkb_potential pot;
+    wkb_res *w = NULL;
+    wkb_error err = {0};
+    int status = WKB_SUCCESS;
+
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOdOOO|dd", kwlist, &model_name, &params_obj, &curve_obj, &mu,
+                                     &J_obj, &E_obj, &G_obj, &settings.phase_step, &settings.r_match))
+        return NULL;
+    if (parse_potential(model_name, params_obj, curve_obj, &pot) < 0)
+        return NULL;
+    if (!(J_arr = (PyArrayObject *)PyArray_FROM_OTF(J_obj, NPY_INT, NPY_ARRAY_IN_ARRAY)) ||
+        !(E_arr = as_double_array(E_obj, "energy", 1)) || !(G_arr = as_double_array(G_obj, "width", 1)))
+        goto cleanup;
+    const npy_intp n = PyArray_SIZE(E_arr);
+    if (PyArray_NDIM(J_arr) != 1 || PyArray_SIZE(J_arr) != n || PyArray_SIZE(G_arr) != n) {
+        value_error("J, energy and width must be 1-dimensional arrays of one length");
+        goto cleanup;
+    }
+    if (!(w = wkb_res_alloc(&settings))) {
+        value_error("resonance settings phase_step=%g, r_match=%g are invalid (0 < phase_step <= 0.5, r_match > 0)",
+                    settings.phase_step, settings.r_match);
+        goto cleanup;
+    }
+    for (int c = 0; c < 7; c++)
+        if (!(cols[c] = new_vector(n)))
+            goto cleanup;
+    {
+        const int *J = PyArray_DATA(J_arr);
+        const double *E = PyArray_DATA(E_arr), *G = PyArray_DATA(G_arr);
+        double *out[7];
+        for (int c = 0; c < 7; c++)
+            out[c] = PyArray_DATA(cols[c]);
+        Py_BEGIN_ALLOW_THREADS
+        for (npy_intp i = 0; i < n && !status; i++) {
+            wkb_resonance res;
+            status = wkb_res_find(w, &pot, mu, J[i], E[i], G[i], &res, &err);
+            const double vals[7] = {res.energy, res.width, res.energy_error, res.width_error, res.r_match,
+                                    (double)res.grid_points, res.above_barrier};
+            for (int c = 0; c < 7; c++)
+                out[c][i] = vals[c];
+        }
+        Py_END_ALLOW_THREADS
+    }
+    if (status) {
+        raise_status(&err);
+        goto cleanup;
+    }
+    if (!(result = PyDict_New()))
+        goto cleanup;
+    for (int c = 0; c < 7; c++)
+        if (PyDict_SetItemString(result, names[c], (PyObject *)cols[c]) < 0) {
+            Py_CLEAR(result);
+            break;
+        }
+cleanup:
+    for (int c = 0; c < 7; c++)
+        Py_XDECREF(cols[c]);
+    Py_XDECREF(J_arr);
+    Py_XDECREF(E_arr);
+    Py_XDECREF(G_arr);
+    wkb_res_free(w);
+    return result;
+}
+
 /* ---------------------------------------------------------------- fits (fit.c) */
 
 /* The level arrays of a fit: v (int), rot, mu [, energy, sigma], all of one length n. */
@@ -1292,6 +1562,12 @@ static PyMethodDef core_methods[] = {
     {"wkb_orbits", (PyCFunction)(void (*)(void))py_wkb_orbits, METH_VARARGS | METH_KEYWORDS,
      "wkb_orbits(model, params, curve, mu, rot, binding) -> dict of arrays: action (integral k dr), "
      "half_period (d action/dE, 1/cm-1), inner/outer turning points, Bv; at binding energies asymptote - E"},
+    {"quasibound_levels", (PyCFunction)(void (*)(void))py_quasibound_levels, METH_VARARGS | METH_KEYWORDS,
+     "quasibound_levels(model, params, curve, mu, rot, order=2, width_form=0, barrier_phase=True, width_phase=True)"},
+    {"barrier_integrals", (PyCFunction)(void (*)(void))py_barrier_integrals, METH_VARARGS | METH_KEYWORDS,
+     "barrier_integrals(model, params, curve, mu, rot, energy) -> theta, dtheta_dE, action, ... at each E"},
+    {"resonances", (PyCFunction)(void (*)(void))py_resonances, METH_VARARGS | METH_KEYWORDS,
+     "resonances(model, params, curve, mu, J, energy, width, phase_step=, r_match=) -> dict of columns"},
     {"fit_evaluate", (PyCFunction)(void (*)(void))py_fit_evaluate, METH_VARARGS | METH_KEYWORDS,
      "fit_evaluate(model, params, curve, v, rot, mu, energy_zero=0, method=0, energy_tol=0) -> (calc, "
      "jacobian[n, n_params]):\n"

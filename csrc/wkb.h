@@ -454,4 +454,112 @@ int wkb_rkr(const double *G_coef, size_t nG, const double *B_coef, size_t nB, do
             const double *v, size_t n, size_t quadrature_points, double *energy, double *f,
             double *g, double *r_inner, double *r_outer, double *error, wkb_error *err);
 
+/* ------------------------------------------------------------ quasibound.c */
+/* Levels trapped behind a barrier of V_J = V + eps*rot/r^2 (shape resonances), semiclassically:
+   positions from the inner-well rule between r1 and r2 (first or second order, physics.md 2, 10),
+   FWHM Gamma = (dE/dv / 2 pi) T(theta), theta = integral_{r2}^{r3} sqrt((V_J - E)/eps) dr. */
+enum wkb_width_form {
+    WKB_WIDTH_UNIFORM = 0, /* T = ln(1 + exp(-2 theta)) (uniform form, physics.md 10) */
+    WKB_WIDTH_KEMBLE = 1   /* T = 1/(1 + exp(2 theta)) (Kemble, Phys. Rev. 48, 549 (1935)) */
+};
+/* The barrier-penetration factor T(theta) of the given form. */
+double wkb_transmission(double theta, int width_form);
+
+typedef struct {
+    size_t nodes;       /* Gauss-Legendre points per quadrature piece (positive half of a 2*nodes rule) */
+    size_t scan_points; /* log grid for the barrier search */
+    double energy_tol;  /* cm-1 */
+    int max_iter;
+    int order;          /* position rule: 1 first order, 2 with the second-order term (falls back to 1) */
+    int width_form;     /* enum wkb_width_form */
+    int barrier_phase;  /* order 2: add the barrier-phase remainder (wkb_barrier_phase_remainder) */
+    int width_phase;    /* width spacing pi/(dI/dE - dphi/dE / 2) instead of pi/(dI/dE) */
+} wkb_qb_settings;
+wkb_qb_settings wkb_qb_default_settings(void);
+
+/* The barrier of V_J outside the well: found = 0 when V_J has no maximum above the asymptote. */
+typedef struct {
+    int found;
+    double asymptote;          /* D, cm-1 */
+    double r_bottom, bottom;   /* the well minimum of V_J */
+    double r_top, top, height; /* the barrier maximum: r, V_J, V_J - D */
+} wkb_barrier;
+/* Scans V_J on scan_points log-spaced points from the model's inner scan point to 200 r_min.
+   Status: WKB_EINVAL (bad mu, rot), WKB_ENUMERIC (a non-finite potential). */
+int wkb_barrier_find(const wkb_potential *pot, double mu, double rot, size_t scan_points, wkb_barrier *bar,
+                     wkb_error *err);
+
+/* The phase integrals at E = D + e, 0 < e < height. */
+typedef struct {
+    double energy, r1, r2, r3;
+    double action;             /* integral_{r1}^{r2} k dr */
+    double half_period;        /* d(action)/dE, 1/cm-1 */
+    double Bv;                 /* inner-well average of eps/r^2 */
+    double curvature_integral; /* integral_{r1}^{r2} V_J''/sqrt(E - V_J) dr */
+    double theta;              /* barrier penetration integral */
+    double dtheta_dE;          /* its energy derivative, 1/cm-1 (negative) */
+} wkb_qb_orbit_values;
+/* phi(-theta/pi) + pi/(24 theta): the parabolic-barrier phase of physics.md 10 less its leading term. */
+double wkb_barrier_phase_remainder(double theta);
+/* d phi/d e at e = -theta/pi: Re psi(1/2 + i e) - ln|e|. */
+double wkb_barrier_phase_slope(double theta);
+
+typedef struct {
+    int v, order;              /* order: the position rule that converged (1 or 2) */
+    double energy, above_asymptote; /* E and E - D, cm-1 */
+    double width, theta, dEdv, Bv, error; /* width: FWHM cm-1; error: numerical error of E */
+    double dtheta_dE, width_spacing; /* width_spacing: the level spacing in the width formula, cm-1 */
+    double r1, r2, r3;
+} wkb_qb_level;
+
+typedef struct {
+    wkb_barrier barrier;
+    double v_first, v_top;     /* first-order quantum numbers at the asymptote and at the barrier top */
+    size_t n_first_order_fallback; /* levels where the second-order rule found no root */
+} wkb_qb_range;
+
+typedef struct wkb_qb wkb_qb;
+wkb_qb *wkb_qb_alloc(const wkb_qb_settings *settings); /* NULL on bad settings or no memory */
+void wkb_qb_free(wkb_qb *q);
+int wkb_qb_set(wkb_qb *q, const wkb_potential *pot, double mu, double rot, wkb_error *err);
+const wkb_barrier *wkb_qb_barrier(const wkb_qb *q);
+/* Status: WKB_ENOLEVEL (no barrier), WKB_EINVAL (e outside (0, height)), WKB_ENUMERIC. */
+int wkb_qb_orbit(wkb_qb *q, double e, wkb_qb_orbit_values *o, wkb_error *err);
+/* The range (and the number of levels in it) without solving for them. */
+int wkb_qb_count(wkb_qb *q, size_t *count, wkb_qb_range *range, wkb_error *err);
+/* Every level with D < E < V_b (v = ceil(v_first) .. ceil(v_top)-1) into levels[capacity];
+   *count may exceed capacity. No barrier: *count = 0, success. */
+int wkb_qb_levels(wkb_qb *q, wkb_qb_level *levels, size_t capacity, size_t *count, wkb_qb_range *range,
+                  wkb_error *err);
+
+/* ------------------------------------------------------------- resonance.c */
+/* Exact resonances: complex-energy poles E_r - i Gamma/2 of the outgoing-wave problem (details at the
+   top of resonance.c). */
+typedef struct {
+    double phase_step;  /* k_max * h on the finest grid */
+    double r_match;     /* largest matching radius R, A (R = min(r_match, 2/|Im k|), at least 10 wavelengths
+                           beyond the outer turning point) */
+    double r_match_alt; /* second radius, as a fraction of R, for the outer error estimate */
+    double start_decay; /* integral of kappa from the start point to the inner turning point */
+    size_t max_points;
+    int max_iter;       /* secant iterations per grid */
+} wkb_resonance_settings;
+wkb_resonance_settings wkb_resonance_default_settings(void);
+
+typedef struct {
+    double energy, width;             /* E_r and FWHM Gamma, cm-1 */
+    double energy_error, width_error; /* estimates, cm-1 */
+    double r_match;
+    size_t grid_points;
+    int iterations, above_barrier;
+} wkb_resonance;
+
+typedef struct wkb_res wkb_res;
+wkb_res *wkb_res_alloc(const wkb_resonance_settings *settings); /* NULL on bad settings or no memory */
+void wkb_res_free(wkb_res *w);
+/* The pole nearest the guess (E, FWHM in cm-1) for integer J. Status: WKB_EINVAL, WKB_ENOLEVEL (no
+   barrier), WKB_ENOCONV, WKB_ENUMERIC, WKB_ENOMEM. */
+int wkb_res_find(wkb_res *w, const wkb_potential *pot, double mu, int J, double energy_guess, double width_guess,
+                 wkb_resonance *out, wkb_error *err);
+
 #endif

@@ -33,7 +33,7 @@ def test_fit_with_replicas(capsys, tmp_path):
     assert "%.10g" % reps.std["De"] in line
     assert abs(result.params["De"].value - reps.central["De"]) < 1e-9
 
-    assert cli.main(argv[:-7] + ["--replicas", "10", "--replica-kind", "resample", "--no-progress"]) == 0
+    assert cli.main(argv[:-7] + ["--replicas", "10", "--replica-kind", "resample", "--no-progress", "--force"]) == 0
     assert "resample replicas" in capsys.readouterr().out
 
 

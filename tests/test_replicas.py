@@ -197,7 +197,7 @@ def test_refits_use_the_fit_settings(morse_fit):
     res = wkbfit.fit(TRUE, morse_data(4), MU, vary=["De", "a"], bounds={"a": (0.5, 0.7)},
                      scale_uncertainties=False, max_iterations=50)
     s = replicas.fit_settings(res)
-    assert s == {"method": "wkb", "vary": ["De", "a"], "bounds": {"a": (0.5, 0.7)}, "scale_uncertainties": False,
+    assert s == {"method": "corrected", "vary": ["De", "a"], "bounds": {"a": (0.5, 0.7)}, "scale_uncertainties": False,
                  "max_iterations": 50}
     reps = res.bootstrap(20, seed=1, progress=False)
     assert set(reps.std) >= {"De", "a"} and "re" not in reps.std

@@ -191,10 +191,11 @@ def fit(potential, observed, mu=None, *, method="corrected", vary=None, bounds=N
     try:
         out, start_notes = _corrected.run_with_unbound_rows(run, args, n_vary)
     except _corrected._Unreachable as err:
-        raise ValueError(_unreachable_message(err, obs, rows, potential)) from None
+        raise ValueError(_unreachable_message(err, obs, rows, potential, mu_rows)) from None
     except ValueError as err:
         if len(err.args) == 2 and isinstance(err.args[1], int):
-            raise ValueError(_start_failure_message(err.args[0], obs, rows[err.args[1]], potential)) from None
+            i = rows[err.args[1]]
+            raise ValueError(_start_failure_message(err.args[0], obs, i, potential, mu_rows[i])) from None
         raise
 
     calc = np.zeros(len(obs))
@@ -308,8 +309,15 @@ def _row_description(obs, i):
                                            obs.v[i], obs.J[i])
 
 
-def _unreachable_message(err, obs, rows, potential):
+def _unreachable_message(err, obs, rows, potential, mu_rows=None):
     missing = [int(rows[i]) for i in np.nonzero(~err.bound)[0]]
+    # a datum that is a quasibound level of the start: say so instead of advising a deeper well
+    for i in missing if mu_rows is not None else ():
+        if obs.J[i] > 0:
+            note = _quasibound_note(potential, float(mu_rows[i]), int(obs.v[i]), int(obs.J[i]))
+            if note:
+                return "the starting potential %r does not bind %s: %s" % (potential, _row_description(obs, i),
+                                                                            note)
     shown = ", ".join("v=%d%s" % (obs.v[i], " J=%d" % obs.J[i] if obs.J[i] else "") for i in missing[:8])
     more = " and %d more" % (len(missing) - 8) if len(missing) > 8 else ""
     if err.at_start:
@@ -327,9 +335,33 @@ def _unreachable_message(err, obs, rows, potential):
             "(larger De), check their v assignment, or leave them out" % (shown, more, err.n_bound, potential))
 
 
-def _start_failure_message(message, obs, i, potential):
+def _quasibound_note(potential, mu, v, J):
+    """Why a datum above the last bound level cannot be fitted, if it is quasibound; None otherwise."""
+    from .quasibound import quasibound_columns
+    try:
+        cols, barriers, _ = quasibound_columns(potential, mu, [int(J)])
+    except (ValueError, RuntimeError):
+        return None
+    hit = np.nonzero(cols["v"] == v)[0]
+    if not len(hit):
+        return None
+    k = int(hit[0])
+    return ("v=%d, J=%d is a quasibound level of the starting potential (%.4f cm-1 above the asymptote, behind "
+            "the barrier of V + J(J+1) hbar^2/(2 mu r^2), whose top lies %.4f cm-1 above it; width %.3g cm-1): fits "
+            "use bound levels "
+            "only, so leave such levels out of the data (levels(..., quasibound=True) computes their positions "
+            "and widths)" % (v, J, -cols["binding_energy"][k], barriers[int(J)]["height"], cols["width"][k]))
+
+
+def _start_failure_message(message, obs, i, potential, mu=None):
     text = "the starting potential %r cannot compute %s: %s" % (potential, _row_description(obs, i), message)
-    if "not bound" in message or "last bound level" in message or "binds no levels" in message:
+    note = None
+    if mu is not None and obs.J[i] > 0 and ("not bound" in message or "last bound level" in message or
+                                           "binds no levels" in message):
+        note = _quasibound_note(potential, float(mu), int(obs.v[i]), int(obs.J[i]))
+    if note:
+        text += "; " + note
+    elif "not bound" in message or "last bound level" in message or "binds no levels" in message:
         text += ("; every level of the data must be bound by the starting potential: start from a deeper or "
                  "wider well (larger De, or a smaller a / larger re), e.g. from a Birge-Sponer estimate of De")
     return text

@@ -33,6 +33,24 @@ _DESCRIPTIONS = {
     "error": "estimated numerical error of the energy (not the semiclassical error)",
 }
 
+# Quasibound levels (levels(..., quasibound=True), quasibound.py). Bound rows: quasibound False, width 0,
+# theta inf (no barrier to tunnel through), lifetime inf, width_error 0, above_barrier False.
+_QB_COLUMNS = ("quasibound", "width", "theta", "lifetime", "width_error", "above_barrier")
+_COLUMNS = _COLUMNS + _QB_COLUMNS
+_BOOL_COLUMNS = ("quasibound", "above_barrier")
+_DEFAULTS = {"quasibound": False, "width": 0.0, "theta": np.inf, "lifetime": np.inf, "width_error": 0.0,
+             "above_barrier": False}
+_UNITS.update({"quasibound": "", "width": "cm-1", "theta": "", "lifetime": "s", "width_error": "cm-1",
+               "above_barrier": ""})
+_DESCRIPTIONS.update({
+    "quasibound": "True for a level between the asymptote and the top of the barrier (a shape resonance)",
+    "width": "full width at half maximum of a quasibound level (0 for bound levels)",
+    "theta": "barrier penetration integral of a quasibound level (inf for bound levels: no barrier to cross)",
+    "lifetime": "hbar/width (inf for bound levels)",
+    "width_error": "estimated numerical error of the width (exact resonances; NaN where not estimated)",
+    "above_barrier": "True for an exact resonance whose energy lies above the barrier top (not trapped)",
+})
+
 
 _INT, _FLOAT = np.dtype(int), np.dtype(float)
 
@@ -50,9 +68,10 @@ class LevelTable:
         for name in _COLUMNS:
             col = columns.get(name)
             if col is None:
-                col = np.full(n, np.nan)
-            elif type(col) is not np.ndarray or col.dtype != (_INT if name in ("v", "J") else _FLOAT):
-                col = np.asarray(col, dtype=int if name in ("v", "J") else float)
+                col = np.full(n, _DEFAULTS.get(name, np.nan))
+            dtype = _INT if name in ("v", "J") else np.dtype(bool) if name in _BOOL_COLUMNS else _FLOAT
+            if type(col) is not np.ndarray or col.dtype != dtype:
+                col = np.asarray(col, dtype=dtype)
             if len(col) != n:
                 raise ValueError("column %s has %d rows, expected %d" % (name, len(col), n))
             col.setflags(write=False)
@@ -104,8 +123,11 @@ class LevelTable:
 
     def to_text(self, columns=("v", "J", "energy", "binding_energy", "dEdv", "Bv",
                                "inner_turning_point", "outer_turning_point")):
-        """A plain-text table, one level per line: a line of names, a line of units, aligned columns."""
+        """A plain-text table, one level per line: a line of names, a line of units, aligned columns
+        (with width, theta and the quasibound flag when the table holds quasibound levels)."""
         from . import reports
+        if np.any(self.quasibound) and not set(columns) & set(_QB_COLUMNS):
+            columns = tuple(columns) + ("width", "theta", "quasibound")
         return reports.level_table_text(self, list(columns))
 
     def __str__(self):
@@ -155,8 +177,9 @@ def _as_int_list_unchecked(x, name):
     return out
 
 
-def levels(potential, mu, v=None, J=0, method="wkb", *, order=1, langer=False, maslov=(1, 1),
-           max_levels=_validate.MAX_LEVELS, max_J_values=_validate.MAX_J_VALUES):
+def levels(potential, mu, v=None, J=0, method="wkb", *, order=1, langer=False, maslov=(1, 1), quasibound=False,
+           quasibound_rule=None, width_form="uniform", max_levels=_validate.MAX_LEVELS,
+           max_J_values=_validate.MAX_J_VALUES):
     """Levels of `potential` for reduced mass `mu`.
 
     potential: a Potential object.
@@ -172,7 +195,18 @@ def levels(potential, mu, v=None, J=0, method="wkb", *, order=1, langer=False, m
     maslov: Maslov indices (inner, outer): 1 for a smooth turning point, 2 for a hard wall.
     max_levels, max_J_values: work limits (levels computed, J values in one call); a call that
        would exceed one is refused at once with a ValueError. Raise them for longer work.
+    quasibound: also return the levels between the asymptote and the top of the barrier of
+       V + J(J+1) hbar^2/(2 mu r^2) (columns quasibound, width, theta, lifetime; see wkbfit.quasibound).
+       With method="exact" these are exact resonance poles with error estimates (error, width_error).
+    quasibound_rule: position rule of semiclassical quasibound levels (wkbfit.quasibound.RULES); None
+       is "second_order_barrier" (second order plus the barrier-phase remainder, the best on test) whatever
+       `order` the bound levels use; "first_order" and "second_order" are the plain rules.
+    width_form: "uniform" (ln(1 + exp(-2 theta)), default) or "kemble" (1/(1 + exp(2 theta))).
     """
+    if quasibound:
+        from .quasibound import levels_with_quasibound
+        return levels_with_quasibound(potential, mu, v, J, method, order=order, langer=langer, maslov=maslov,
+                                      rule=quasibound_rule, width_form=width_form)
     if not isinstance(potential, Potential):
         raise ValueError("potential must be a wkbfit potential object (Morse, LennardJones, ...), got %r"
                          % (potential,))

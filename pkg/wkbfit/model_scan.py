@@ -2,7 +2,7 @@
 
 `scan_models(observed, candidates, mu=None, executor=None)` fits every candidate (a starting
 potential, or a pair (potential, dict of fit options for that candidate)) through `wkbfit.fit`
-and returns a `ModelScan`: a ranked table with chi-square, the dimensionless standard error
+and returns a `ModelScan`: a ranked table with chi-square, the sqrt of reduced chi-square
 sqrt(chi2/dof), the information criteria, and the predictions of each model with their spread
 over the acceptable models (the model dependence of D0, vD and the last levels).
 

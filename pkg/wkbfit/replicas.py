@@ -293,7 +293,7 @@ def _header(r):
         r.executor)]
     if r.kind == "monte-carlo":
         lines.append("noise: stated uncertainties x %.4g%s" % (
-            r.noise_scale, " (the dimensionless standard error, as the scaled covariance)" if r.noise_scale != 1
+            r.noise_scale, " (the sqrt of reduced chi-square, as the scaled covariance)" if r.noise_scale != 1
             else ""))
     lines.append("predictions for isotopologue %s at J = 0; Eb = asymptote - E, binding energy" % (
         r.isotopologue if r.isotopologue is not None else "(unnamed)"))

@@ -480,9 +480,11 @@ def level_table_columns(table, names=None):
     units = {c: u for c, (u, _) in table.describe().items()}
     names = names or [c for c in ("v", "J", "energy", "binding_energy", "dEdv", "Bv", "inner_turning_point",
                                   "outer_turning_point", "error") if c in table.columns]
-    fmt = {"inner_turning_point": "%.8f", "outer_turning_point": "%.8f", "error": "%.2g", "Bv": "%.8g"}
+    fmt = {"inner_turning_point": "%.8f", "outer_turning_point": "%.8f", "error": "%.2g", "Bv": "%.8g",
+           "width": "%.4g", "theta": "%.4g", "lifetime": "%.4g", "width_error": "%.2g", "quasibound": "%s",
+           "above_barrier": "%s"}
     cols = [(c, units.get(c, ""), getattr(table, c), fmt.get(c, "%.6f")) for c in names]
-    if hasattr(table, "quasibound") and "quasibound" not in names:
+    if np.any(getattr(table, "quasibound", False)) and "quasibound" not in names:
         cols.append(("quasibound", "", np.asarray(table.quasibound, dtype=bool), "%s"))
     return cols
 
