@@ -76,7 +76,13 @@ struct wkb_fit_evaluator {
     size_t *order;  /* row indices sorted by (mu, rot, v) */
     wkb_well *well;
     const wkb_level_source *source; /* NULL: first-order WKB levels */
+    size_t n_level_calculations;    /* levels computed since the evaluator was made */
 };
+
+size_t wkb_fit_evaluator_level_calculations(const wkb_fit_evaluator *ev)
+{
+    return ev ? ev->n_level_calculations : 0;
+}
 
 /* Sort key order: reduced mass, then rotation, then v. */
 static int row_before(const wkb_fit_data *d, size_t a, size_t b)
@@ -190,6 +196,7 @@ static void asymptote_gradient(const wkb_potential *pot, double *dA)
 /* One level of the current well (WKB) or of the external source. */
 static int level_of(wkb_fit_evaluator *ev, int v, double *energy, double *dEdp, wkb_error *err)
 {
+    ev->n_level_calculations++;
     if (ev->source)
         return ev->source->level(ev->source->ctx, v, energy, dEdp, err);
     wkb_level level;
@@ -312,60 +319,124 @@ static double to_external(double u, double lo, double hi, double *dpdu)
 
 /* ------------------------------------------------------------------ the fit */
 
+/* The engine fits rows that are linear combinations of levels (wkb_fit_rows): the distinct
+   levels are computed once per evaluation, whatever the number of rows that use them, and
+   the extra linear parameters (free term values of levels outside the model, a fitted
+   asymptote) enter the rows with constant coefficients, so their Jacobian columns cost no
+   level calculation. Fitted variables: the varied potential parameters (through the bound
+   transforms), then every extra parameter (unbounded). */
 typedef struct {
     wkb_fit_evaluator *ev;
-    const wkb_fit_data *data;
+    const wkb_fit_data *levels;
+    const wkb_fit_rows *rows;
     const wkb_potential *start;
     const wkb_fit_spec *spec;
-    size_t n, nv, np;
+    size_t n, nl, nvp, nv, np, ne, ncol; /* rows, levels, varied potential parameters, all fitted
+                                            variables, model parameters, extras, Jacobian columns */
     size_t var[WKB_MAX_PARAMS];
     double dpdu[WKB_MAX_PARAMS];
-    /* solver variables y: u = u0 + T y, T = V S^-1 from the SVD of the weighted Jacobian at
-       the start, so that the solver starts with orthonormal Jacobian columns */
-    double u0[WKB_MAX_PARAMS], T[WKB_MAX_PARAMS][WKB_MAX_PARAMS];
-    /* cache of the last evaluation: x, calc, jac (np per row) */
-    double *cache_x, *cache_calc, *cache_jac;
+    /* solver variables y: u = u0 + T y (T nv x nv, row-major), T = V S^-1 from the SVD of the
+       weighted Jacobian at the start, so that the solver starts with orthonormal columns */
+    double *u0, *T;
+    double *extra_start;          /* extras at the start */
+    double *level_E, *level_dE;   /* the levels of the last evaluation and dE/dp */
+    /* cache of the last evaluation: x, calc, jac (ncol per row) */
+    double *cache_x, *cache_calc, *cache_jac, *cache_extra;
     int cache_valid;
     /* the last accepted point (where GSL asked for the Jacobian) */
-    double *best_calc, *best_jac;
+    double *best_calc, *best_jac, *best_extra;
     double best_p[WKB_MAX_PARAMS];
     size_t n_infeasible, n_eval;
     wkb_error last_infeasible;
 } fit_context;
 
-/* Parameters p from the internal vector x; writes dp/du into ctx->dpdu. */
-static void params_from_x(fit_context *c, const gsl_vector *x, double *p)
+/* Parameters p and extras from the internal vector x (NULL: the start); writes dp/du into ctx->dpdu. */
+static void params_from_x(fit_context *c, const gsl_vector *x, double *p, double *extra)
 {
     memcpy(p, c->start->p, c->np * sizeof *p);
     for (size_t j = 0; j < c->nv; j++) {
-        const size_t k = c->var[j];
         double u = c->u0[j];
-        for (size_t l = 0; l < c->nv; l++)
-            u += c->T[j][l] * gsl_vector_get(x, l);
-        p[k] = to_external(u, c->spec->lower[k], c->spec->upper[k], &c->dpdu[j]);
+        for (size_t l = 0; x && l < c->nv; l++)
+            u += c->T[j * c->nv + l] * gsl_vector_get(x, l);
+        if (j < c->nvp) {
+            const size_t k = c->var[j];
+            p[k] = to_external(u, c->spec->lower[k], c->spec->upper[k], &c->dpdu[j]);
+        } else {
+            extra[j - c->nvp] = u;
+        }
     }
 }
 
-/* Evaluates calc and jac (with respect to p) at x into the cache. Returns WKB_SUCCESS,
-   a model-domain status (the point is infeasible), or WKB_ENOMEM. */
+/* The rows from the levels: calc[n] and, if jac, jac[n][ncol] (model parameters, then extras). */
+static void combine_rows(const fit_context *c, const wkb_potential *pot, const double *extra, double *calc,
+                         double *jac)
+{
+    const wkb_fit_rows *R = c->rows;
+    const size_t np = c->np;
+    double dA[WKB_MAX_PARAMS] = {0}, asym = wkb_potential_asymptote(pot);
+    int any_asym = 0;
+    for (size_t i = 0; i < c->n; i++)
+        any_asym |= R->coef_asymptote && R->coef_asymptote[i] != 0;
+    if (any_asym && jac)
+        asymptote_gradient(pot, dA);
+    for (size_t i = 0; i < c->n; i++) {
+        const int a = R->level_a[i], b = R->level_b ? R->level_b[i] : -1, e = R->extra ? R->extra[i] : -1;
+        const double ca = R->coef_a[i], cb = R->coef_b ? R->coef_b[i] : 0;
+        const double cA = R->coef_asymptote ? R->coef_asymptote[i] : 0, ce = R->coef_extra ? R->coef_extra[i] : 0;
+        double value = R->offset ? R->offset[i] : 0;
+        if (a >= 0)
+            value += ca * c->level_E[a];
+        if (b >= 0)
+            value += cb * c->level_E[b];
+        if (cA != 0)
+            value += cA * asym;
+        if (e >= 0)
+            value += ce * extra[e];
+        calc[i] = value;
+        if (!jac)
+            continue;
+        double *row = jac + i * c->ncol;
+        memset(row, 0, c->ncol * sizeof *row);
+        for (size_t k = 0; k < np; k++) {
+            double d = cA * dA[k];
+            if (a >= 0)
+                d += ca * c->level_dE[a * np + k];
+            if (b >= 0)
+                d += cb * c->level_dE[b * np + k];
+            row[k] = d;
+        }
+        if (e >= 0)
+            row[np + e] = ce;
+    }
+}
+
+/* Evaluates calc and jac (with respect to p and the extras) at x into the cache. Returns
+   WKB_SUCCESS, a model-domain status (the point is infeasible), or WKB_ENOMEM. */
 static int evaluate_at(fit_context *c, const gsl_vector *x)
 {
     double p[WKB_MAX_PARAMS];
     wkb_potential pot;
     wkb_error err = {0};
-    params_from_x(c, x, p);
+    params_from_x(c, x, p, c->cache_extra);
     for (size_t j = 0; j < c->nv; j++)
         c->cache_x[j] = gsl_vector_get(x, j);
     c->cache_valid = 0;
     c->n_eval++;
     int status = wkb_potential_init(&pot, c->start->model, p, c->start->curve, &err);
     if (!status)
-        status = wkb_fit_evaluate(c->ev, &pot, c->cache_calc, c->cache_jac, NULL, &err);
+        status = wkb_fit_evaluate(c->ev, &pot, c->level_E, c->level_dE, NULL, &err);
     if (status) {
         c->n_infeasible++;
         c->last_infeasible = err;
         return status;
     }
+    combine_rows(c, &pot, c->cache_extra, c->cache_calc, c->cache_jac);
+    for (size_t i = 0; i < c->n; i++)
+        if (!isfinite(c->cache_calc[i])) {
+            c->n_infeasible++;
+            wkb_fail(&c->last_infeasible, WKB_ENUMERIC, "the calculated value of row %zu is not finite", i + 1);
+            return WKB_ENUMERIC;
+        }
     c->cache_valid = 1;
     return WKB_SUCCESS;
 }
@@ -388,8 +459,18 @@ static int residual_f(const gsl_vector *x, void *params, gsl_vector *f)
         return GSL_ENOMEM;
     for (size_t i = 0; i < c->n; i++)
         gsl_vector_set(f, i, status ? INFEASIBLE_RESIDUAL
-                                    : (c->cache_calc[i] - c->data->energy[i]) / c->data->sigma[i]);
+                                    : (c->cache_calc[i] - c->rows->observed[i]) / c->rows->sigma[i]);
     return GSL_SUCCESS;
+}
+
+/* d f_i / d u_j of row i from its Jacobian row (dpdu current) into du[nv]. */
+static void row_du(const fit_context *c, size_t i, const double *row, double *du)
+{
+    const double s = c->rows->sigma[i];
+    for (size_t j = 0; j < c->nvp; j++)
+        du[j] = row[c->var[j]] * c->dpdu[j] / s;
+    for (size_t j = c->nvp; j < c->nv; j++)
+        du[j] = row[c->np + (j - c->nvp)] / s;
 }
 
 static int residual_df(const gsl_vector *x, void *params, gsl_matrix *J)
@@ -398,22 +479,21 @@ static int residual_df(const gsl_vector *x, void *params, gsl_matrix *J)
     if (!cache_matches(c, x) && evaluate_at(c, x))
         return GSL_EDOM; /* GSL asks for J only at accepted (feasible) points */
     double p[WKB_MAX_PARAMS];
-    params_from_x(c, x, p); /* refreshes dpdu */
+    params_from_x(c, x, p, c->best_extra); /* refreshes dpdu */
+    double *du = c->u0 + c->nv; /* scratch after u0 (allocated 2 nv) */
     for (size_t i = 0; i < c->n; i++) {
-        const double *row = c->cache_jac + i * c->np;
-        double du[WKB_MAX_PARAMS]; /* d f_i / d u_j */
-        for (size_t j = 0; j < c->nv; j++)
-            du[j] = row[c->var[j]] * c->dpdu[j] / c->data->sigma[i];
+        row_du(c, i, c->cache_jac + i * c->ncol, du);
         for (size_t l = 0; l < c->nv; l++) {
             double sum = 0;
             for (size_t j = 0; j < c->nv; j++)
-                sum += du[j] * c->T[j][l];
+                if (du[j] != 0)
+                    sum += du[j] * c->T[j * c->nv + l];
             gsl_matrix_set(J, i, l, sum);
         }
     }
     /* GSL evaluates the Jacobian exactly at each accepted point: remember it */
     memcpy(c->best_calc, c->cache_calc, c->n * sizeof *c->best_calc);
-    memcpy(c->best_jac, c->cache_jac, c->n * c->np * sizeof *c->best_jac);
+    memcpy(c->best_jac, c->cache_jac, c->n * c->ncol * sizeof *c->best_jac);
     memcpy(c->best_p, p, c->np * sizeof *p);
     return GSL_SUCCESS;
 }
@@ -459,17 +539,20 @@ static int whitening(fit_context *c, wkb_error *err)
     const size_t nv = c->nv;
     gsl_matrix *A = gsl_matrix_alloc(c->n, nv), *V = gsl_matrix_alloc(nv, nv);
     gsl_vector *S = gsl_vector_alloc(nv), *work = gsl_vector_alloc(nv);
+    double *du = c->u0 + nv;
     int status = WKB_SUCCESS;
     if (!A || !V || !S || !work) {
         status = wkb_fail(err, WKB_ENOMEM, "out of memory for the fit's change of variables");
         goto cleanup;
     }
-    for (size_t j = 0; j < nv; j++) {
+    for (size_t j = 0; j < c->nvp; j++) {
         const size_t k = c->var[j];
-        double dpdu;
-        to_external(c->u0[j], c->spec->lower[k], c->spec->upper[k], &dpdu);
-        for (size_t i = 0; i < c->n; i++)
-            gsl_matrix_set(A, i, j, c->cache_jac[i * c->np + k] * dpdu / c->data->sigma[i]);
+        to_external(c->u0[j], c->spec->lower[k], c->spec->upper[k], &c->dpdu[j]);
+    }
+    for (size_t i = 0; i < c->n; i++) {
+        row_du(c, i, c->cache_jac + i * c->ncol, du);
+        for (size_t j = 0; j < nv; j++)
+            gsl_matrix_set(A, i, j, du[j]);
     }
     if (gsl_linalg_SV_decomp(A, V, S, work) != GSL_SUCCESS) {
         status = wkb_fail(err, WKB_ENUMERIC, "the singular value decomposition of the starting Jacobian failed");
@@ -482,7 +565,7 @@ static int whitening(fit_context *c, wkb_error *err)
     }
     for (size_t j = 0; j < nv; j++)
         for (size_t l = 0; l < nv; l++)
-            c->T[j][l] = gsl_matrix_get(V, j, l) / GSL_MAX(gsl_vector_get(S, l), 1e-10 * smax);
+            c->T[j * nv + l] = gsl_matrix_get(V, j, l) / GSL_MAX(gsl_vector_get(S, l), 1e-10 * smax);
 cleanup:
     gsl_matrix_free(A);
     gsl_matrix_free(V);
@@ -491,8 +574,8 @@ cleanup:
     return status;
 }
 
-static int check_spec(const wkb_potential *start, const wkb_fit_spec *spec, size_t n, size_t *var, size_t *nv,
-                      wkb_error *err)
+static int check_spec(const wkb_potential *start, const wkb_fit_spec *spec, size_t n, size_t n_extra, size_t *var,
+                      size_t *nv, wkb_error *err)
 {
     const wkb_model *m = start->model;
     *nv = 0;
@@ -509,16 +592,48 @@ static int check_spec(const wkb_potential *start, const wkb_fit_spec *spec, size
                             m->param_names[k], p, lo, hi);
         var[(*nv)++] = k;
     }
-    if (*nv == 0)
+    if (*nv == 0 && n_extra == 0)
         return wkb_fail(err, WKB_EINVAL, "no parameter is varied: nothing to fit");
-    if (n < *nv)
-        return wkb_fail(err, WKB_EINVAL, "%zu levels cannot determine %zu varied parameters", n, *nv);
+    if (n < *nv + n_extra)
+        return wkb_fail(err, WKB_EINVAL, "%zu data rows cannot determine %zu varied parameters", n, *nv + n_extra);
     return WKB_SUCCESS;
 }
 
-int wkb_fit_run(const wkb_potential *start, const wkb_fit_data *data, const wkb_fit_spec *spec,
-                const wkb_fit_settings *settings, const wkb_level_source *source,
-                wkb_fit_outcome *out, double *calc, double *jac, wkb_error *err)
+static int check_rows(const wkb_fit_rows *R, size_t n_levels, wkb_error *err)
+{
+    if (!R || R->n == 0)
+        return wkb_fail(err, WKB_EINVAL, "no data rows to fit");
+    if (!R->level_a || !R->coef_a || !R->observed || !R->sigma)
+        return wkb_fail(err, WKB_EINVAL, "the data rows need level_a, coef_a, observed and sigma");
+    for (size_t i = 0; i < R->n; i++) {
+        const int idx[2] = {R->level_a[i], R->level_b ? R->level_b[i] : -1};
+        for (int k = 0; k < 2; k++)
+            if (idx[k] < -1 || idx[k] >= (int)n_levels)
+                return wkb_fail(err, WKB_EINVAL, "row %zu: level index %d is invalid (0..%zu, or -1 for none)",
+                                i + 1, idx[k], n_levels - 1);
+        const int e = R->extra ? R->extra[i] : -1;
+        if (e < -1 || e >= (int)R->n_extra)
+            return wkb_fail(err, WKB_EINVAL, "row %zu: extra parameter index %d is invalid", i + 1, e);
+        if (!isfinite(R->observed[i]))
+            return wkb_fail(err, WKB_EINVAL, "row %zu: observed value %g is not finite", i + 1, R->observed[i]);
+        if (!(isfinite(R->sigma[i]) && R->sigma[i] > 0))
+            return wkb_fail(err, WKB_EINVAL, "row %zu: uncertainty %g is invalid: it must be > 0", i + 1,
+                            R->sigma[i]);
+    }
+    for (size_t e = 0; e < R->n_extra; e++) {
+        int used = 0;
+        for (size_t i = 0; i < R->n && !used; i++)
+            used = R->extra && R->extra[i] == (int)e && R->coef_extra && R->coef_extra[i] != 0;
+        if (!used)
+            return wkb_fail(err, WKB_EINVAL, "extra parameter %zu enters no data row", e);
+    }
+    return WKB_SUCCESS;
+}
+
+int wkb_fit_run_rows(const wkb_potential *start, const wkb_fit_data *levels, const wkb_fit_rows *rows,
+                     const wkb_fit_spec *spec, double *extra, const wkb_fit_settings *settings,
+                     const wkb_level_source *source, wkb_fit_outcome *out, double *calc, double *jac,
+                     wkb_error *err)
 {
     fit_context c;
     gsl_multifit_nlinear_workspace *w = NULL;
@@ -529,82 +644,125 @@ int wkb_fit_run(const wkb_potential *start, const wkb_fit_data *data, const wkb_
     memset(&c, 0, sizeof c);
     memset(out, 0, sizeof *out);
     out->bad_row = (size_t)-1;
-    if ((status = check_data(data, err)))
+    if ((status = check_data(levels, err)) || (status = check_rows(rows, levels->n, err)))
         return status;
-    if (!data->energy || !data->sigma)
-        return wkb_fail(err, WKB_EINVAL, "a fit needs observed energies and uncertainties");
-    if ((status = check_spec(start, spec, data->n, c.var, &c.nv, err)))
+    if (levels->energy_zero != WKB_ZERO_MINIMUM)
+        return wkb_fail(err, WKB_EINVAL, "the levels of a row fit are term values above the minimum");
+    if ((status = check_spec(start, spec, rows->n, rows->n_extra, c.var, &c.nvp, err)))
         return status;
-    c.data = data;
+    c.levels = levels;
+    c.rows = rows;
     c.start = start;
     c.spec = spec;
-    c.n = data->n;
+    c.n = rows->n;
+    c.nl = levels->n;
     c.np = start->model->n_params;
+    c.ne = rows->n_extra;
+    c.ncol = c.np + c.ne;
 
     status = WKB_ENOMEM;
-    if (!(c.ev = wkb_fit_evaluator_alloc(data, &settings->levels, source, err))) {
+    if (!(c.ev = wkb_fit_evaluator_alloc(levels, &settings->levels, source, err))) {
         status = err ? err->status : WKB_ENOMEM;
         goto cleanup;
     }
-    c.cache_x = malloc(c.nv * sizeof(double));
+    const size_t nv_max = c.nvp + c.ne;
+    c.u0 = malloc(2 * (nv_max + 1) * sizeof(double));
+    c.T = malloc((nv_max * nv_max + 1) * sizeof(double));
+    c.extra_start = malloc((c.ne + 1) * sizeof(double));
+    c.cache_extra = malloc((c.ne + 1) * sizeof(double));
+    c.best_extra = malloc((c.ne + 1) * sizeof(double));
+    c.level_E = malloc(c.nl * sizeof(double));
+    c.level_dE = malloc(c.nl * c.np * sizeof(double));
+    c.cache_x = malloc((nv_max + 1) * sizeof(double));
     c.cache_calc = malloc(c.n * sizeof(double));
-    c.cache_jac = malloc(c.n * c.np * sizeof(double));
+    c.cache_jac = malloc(c.n * c.ncol * sizeof(double));
     c.best_calc = calc;
     c.best_jac = jac;
-    if (!c.cache_x || !c.cache_calc || !c.cache_jac) {
-        wkb_fail(err, WKB_ENOMEM, "out of memory for a fit of %zu levels", c.n);
+    if (!c.u0 || !c.T || !c.extra_start || !c.cache_extra || !c.best_extra || !c.level_E || !c.level_dE ||
+        !c.cache_x || !c.cache_calc || !c.cache_jac) {
+        wkb_fail(err, WKB_ENOMEM, "out of memory for a fit of %zu rows and %zu levels", c.n, c.nl);
         goto cleanup;
     }
 
-    /* the starting point must be valid: say clearly why it is not */
-    if ((status = wkb_fit_evaluate(c.ev, start, c.cache_calc, c.cache_jac, &out->bad_row, err)))
+    /* the starting point must be valid: say clearly why it is not (bad_row names the level) */
+    if ((status = wkb_fit_evaluate(c.ev, start, c.level_E, c.level_dE, &out->bad_row, err)))
         goto cleanup;
     out->bad_row = (size_t)-1;
-    /* a varied parameter that no level depends on (J=0 levels of a Morse well and re) would
+    /* extras given as NaN start at their weighted least-squares values for the starting
+       potential (exact: the rows are linear in them and each row holds at most one) */
+    for (size_t e = 0; e < c.ne; e++)
+        c.extra_start[e] = isnan(extra[e]) ? 0.0 : extra[e];
+    combine_rows(&c, start, c.extra_start, c.cache_calc, c.cache_jac);
+    {
+        double *num = c.cache_extra, *den = c.best_extra;
+        for (size_t e = 0; e < c.ne; e++)
+            num[e] = den[e] = 0;
+        for (size_t i = 0; rows->extra && i < c.n; i++) {
+            const int e = rows->extra[i];
+            if (e < 0 || !isnan(extra[e]))
+                continue;
+            const double ce = rows->coef_extra[i], s2 = rows->sigma[i] * rows->sigma[i];
+            num[e] += ce * (rows->observed[i] - c.cache_calc[i]) / s2;
+            den[e] += ce * ce / s2;
+        }
+        for (size_t e = 0; e < c.ne; e++)
+            if (isnan(extra[e]))
+                c.extra_start[e] = num[e] / den[e];
+    }
+    combine_rows(&c, start, c.extra_start, c.cache_calc, c.cache_jac);
+    /* a varied parameter that no row depends on (J=0 levels of a Morse well and re) would
        only feed rounding noise to the solver, which then wanders along it: hold it fixed */
     {
         double sens[WKB_MAX_PARAMS], column[WKB_MAX_PARAMS], top = 0;
         size_t kept = 0;
-        for (size_t j = 0; j < c.nv; j++) {
+        for (size_t j = 0; j < c.nvp; j++) {
             const size_t k = c.var[j];
             double s2 = 0;
             for (size_t i = 0; i < c.n; i++) {
-                const double q = c.cache_jac[i * c.np + k] / data->sigma[i];
+                const double q = c.cache_jac[i * c.ncol + k] / rows->sigma[i];
                 s2 += q * q;
             }
             column[j] = sqrt(s2);
             sens[j] = column[j] * fabs(start->p[k]);
             top = GSL_MAX(top, sens[j]);
         }
-        for (size_t j = 0; j < c.nv; j++) {
-            /* a parameter starting at 0 has no scale of its own: keep it unless no level depends on it */
+        for (size_t j = 0; j < c.nvp; j++) {
+            /* a parameter starting at 0 has no scale of its own: keep it unless no row depends on it */
             const int at_zero = start->p[c.var[j]] == 0;
             if (at_zero ? column[j] > 0 : sens[j] > WKB_FIT_INSENSITIVE * top)
                 c.var[kept++] = c.var[j];
             else
                 out->insensitive[c.var[j]] = 1;
         }
-        if (kept == 0) {
+        if (kept == 0 && c.ne == 0) {
             status = wkb_fail(err, WKB_EINVAL, "no level depends on any varied parameter: nothing can be fitted");
             goto cleanup;
         }
-        c.nv = kept;
+        c.nvp = kept;
     }
+    c.nv = c.nvp + c.ne;
     x = gsl_vector_alloc(c.nv);
     g = gsl_vector_alloc(c.nv);
     t = gsl_vector_alloc(c.nv);
     N = gsl_matrix_alloc(c.nv, c.nv);
     if (!x || !g || !t || !N) {
-        status = wkb_fail(err, WKB_ENOMEM, "out of memory for a fit of %zu levels", c.n);
+        status = wkb_fail(err, WKB_ENOMEM, "out of memory for a fit of %zu rows", c.n);
         goto cleanup;
     }
     for (size_t j = 0; j < c.nv; j++) {
-        const size_t k = c.var[j];
-        c.u0[j] = to_internal(start->p[k], spec->lower[k], spec->upper[k]);
+        if (j < c.nvp) {
+            const size_t k = c.var[j];
+            c.u0[j] = to_internal(start->p[k], spec->lower[k], spec->upper[k]);
+        } else {
+            c.u0[j] = c.extra_start[j - c.nvp];
+        }
         gsl_vector_set(x, j, 0.0);
     }
     if ((status = whitening(&c, err)))
         goto cleanup;
+    /* the start is the first accepted point until GSL accepts another */
+    memcpy(c.best_p, start->p, c.np * sizeof(double));
+    memcpy(c.best_extra, c.extra_start, c.ne * sizeof(double));
 
     {
         gsl_multifit_nlinear_parameters fp = gsl_multifit_nlinear_default_parameters();
@@ -677,8 +835,11 @@ int wkb_fit_run(const wkb_potential *start, const wkb_fit_data *data, const wkb_
         }
     }
     memcpy(out->params, c.best_p, c.np * sizeof(double));
+    if (c.ne)
+        memcpy(extra, c.best_extra, c.ne * sizeof(double));
     out->n_eval = c.n_eval;
     out->n_infeasible = c.n_infeasible;
+    out->n_level_calculations = wkb_fit_evaluator_level_calculations(c.ev);
     if (c.n_infeasible)
         out->last_infeasible = c.last_infeasible;
     status = WKB_SUCCESS;
@@ -688,10 +849,95 @@ cleanup:
     gsl_vector_free(g);
     gsl_vector_free(t);
     gsl_matrix_free(N);
+    free(c.u0);
+    free(c.T);
+    free(c.extra_start);
+    free(c.cache_extra);
+    free(c.best_extra);
+    free(c.level_E);
+    free(c.level_dE);
     free(c.cache_x);
     free(c.cache_calc);
     free(c.cache_jac);
     wkb_fit_evaluator_free(c.ev);
+    return status;
+}
+
+/* The term-value fit of wkb_fit_run as a row fit: the data rows are the levels (energy zero
+   minimum), plus one level v=0, J=0 per reduced mass for the zero "lowest". */
+int wkb_fit_run(const wkb_potential *start, const wkb_fit_data *data, const wkb_fit_spec *spec,
+                const wkb_fit_settings *settings, const wkb_level_source *source,
+                wkb_fit_outcome *out, double *calc, double *jac, wkb_error *err)
+{
+    const size_t n = data ? data->n : 0;
+    int *v = NULL, *la = NULL, *lb = NULL;
+    double *rot = NULL, *mu = NULL, *ca = NULL, *cb = NULL, *cA = NULL;
+    int status;
+    memset(out, 0, sizeof *out);
+    out->bad_row = (size_t)-1;
+    if ((status = check_data(data, err)))
+        return status;
+    if (!data->energy || !data->sigma)
+        return wkb_fail(err, WKB_EINVAL, "a fit needs observed energies and uncertainties");
+    v = malloc(2 * n * sizeof *v);
+    rot = malloc(2 * n * sizeof *rot);
+    mu = malloc(2 * n * sizeof *mu);
+    la = malloc(n * sizeof *la);
+    lb = malloc(n * sizeof *lb);
+    ca = malloc(n * sizeof *ca);
+    cb = malloc(n * sizeof *cb);
+    cA = malloc(n * sizeof *cA);
+    if (!v || !rot || !mu || !la || !lb || !ca || !cb || !cA) {
+        status = wkb_fail(err, WKB_ENOMEM, "out of memory for a fit of %zu levels", n);
+        goto cleanup;
+    }
+    size_t nl = n;
+    for (size_t i = 0; i < n; i++) {
+        v[i] = data->v[i];
+        rot[i] = data->rot[i];
+        mu[i] = data->mu[i];
+        la[i] = (int)i;
+        ca[i] = data->energy_zero == WKB_ZERO_ASYMPTOTE ? -1.0 : 1.0;
+        cA[i] = data->energy_zero == WKB_ZERO_ASYMPTOTE ? 1.0 : 0.0;
+        lb[i] = -1;
+        cb[i] = 0;
+        if (data->energy_zero == WKB_ZERO_LOWEST) {
+            size_t r = n;
+            for (; r < nl && mu[r] != mu[i]; r++)
+                ;
+            if (r == nl) {
+                v[nl] = 0, rot[nl] = 0.0, mu[nl] = mu[i];
+                nl++;
+            }
+            lb[i] = (int)r;
+            cb[i] = -1.0;
+        }
+    }
+    wkb_fit_data levels = {nl, v, rot, mu, NULL, NULL, WKB_ZERO_MINIMUM};
+    wkb_fit_rows rows;
+    memset(&rows, 0, sizeof rows);
+    rows.n = n;
+    rows.level_a = la, rows.coef_a = ca, rows.level_b = lb, rows.coef_b = cb, rows.coef_asymptote = cA;
+    rows.observed = data->energy;
+    rows.sigma = data->sigma;
+    status = wkb_fit_run_rows(start, &levels, &rows, spec, NULL, settings, source, out, calc, jac, err);
+    if (status && out->bad_row != (size_t)-1 && out->bad_row >= n) {
+        /* a reference level failed: name the first row that needs it */
+        for (size_t i = 0; i < n; i++)
+            if (lb[i] == (int)out->bad_row) {
+                out->bad_row = i;
+                break;
+            }
+    }
+cleanup:
+    free(v);
+    free(rot);
+    free(mu);
+    free(la);
+    free(lb);
+    free(ca);
+    free(cb);
+    free(cA);
     return status;
 }
 

@@ -835,6 +835,158 @@ cleanup:
     return result;
 }
 
+/* fit_run_rows: a fit to rows that are linear combinations of distinct levels (mixed data). */
+static PyObject *py_fit_run_rows(PyObject *self, PyObject *args, PyObject *kwds)
+{
+    static char *kwlist[] = {"model", "params", "curve", "level_v", "level_rot", "level_mu", "level_a", "coef_a",
+                             "level_b", "coef_b", "coef_asymptote", "extra_index", "coef_extra", "offset",
+                             "observed", "sigma", "extra_start", "vary", "lower", "upper", "max_iterations",
+                             "method", NULL};
+    enum { NI = 3, ND = 7 };
+    const char *model_name;
+    PyObject *params_obj, *curve_obj, *lv_obj, *lrot_obj, *lmu_obj, *iobj[NI], *dobj[ND], *extra_obj, *vary_obj,
+        *lower_obj, *upper_obj, *result = NULL;
+    int status, method = 0;
+    Py_ssize_t max_iterations = -1;
+    wkb_radial *radial = NULL;
+    wkb_level_source source_store;
+    const wkb_level_source *source = NULL;
+    wkb_fit_settings settings = wkb_fit_default_settings();
+    fit_arrays a = {0};
+    wkb_fit_data levels;
+    wkb_fit_rows rows;
+    wkb_fit_spec spec;
+    wkb_fit_outcome out;
+    wkb_potential pot;
+    wkb_error err = {0};
+    PyArrayObject *iarr[NI] = {NULL}, *darr[ND] = {NULL};
+    PyArrayObject *vary = NULL, *lower = NULL, *upper = NULL, *calc = NULL, *jac = NULL, *best = NULL, *extra = NULL;
+    static const char *inames[NI] = {"level_a", "level_b", "extra_index"};
+    static const char *dnames[ND] = {"coef_a", "coef_b", "coef_asymptote", "coef_extra", "offset", "observed",
+                                     "sigma"};
+
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOOOOOOOOOOOOOOOOOO|ni", kwlist, &model_name, &params_obj,
+                                     &curve_obj, &lv_obj, &lrot_obj, &lmu_obj, &iobj[0], &dobj[0], &iobj[1],
+                                     &dobj[1], &dobj[2], &iobj[2], &dobj[3], &dobj[4], &dobj[5], &dobj[6],
+                                     &extra_obj, &vary_obj, &lower_obj, &upper_obj, &max_iterations, &method))
+        return NULL;
+    if (max_iterations >= 0)
+        settings.max_iterations = (size_t)max_iterations;
+    if (parse_potential(model_name, params_obj, curve_obj, &pot) < 0)
+        return NULL;
+    if (parse_fit_arrays(lv_obj, lrot_obj, lmu_obj, NULL, NULL, WKB_ZERO_MINIMUM, &a, &levels) < 0 ||
+        fit_source(method, &radial, &source_store, &source) < 0)
+        goto cleanup;
+    for (int k = 0; k < NI; k++) {
+        iarr[k] = (PyArrayObject *)PyArray_FROM_OTF(iobj[k], NPY_INT, NPY_ARRAY_IN_ARRAY | NPY_ARRAY_FORCECAST);
+        if (!iarr[k])
+            goto cleanup;
+    }
+    for (int k = 0; k < ND; k++)
+        if (!(darr[k] = as_double_array(dobj[k], dnames[k], 1)))
+            goto cleanup;
+    const npy_intp n = PyArray_SIZE(darr[5]);
+    for (int k = 0; k < NI; k++)
+        if (PyArray_SIZE(iarr[k]) != n) {
+            PyErr_Format(PyExc_ValueError, "%s has %zd entries but observed has %zd", inames[k],
+                         (Py_ssize_t)PyArray_SIZE(iarr[k]), (Py_ssize_t)n);
+            goto cleanup;
+        }
+    for (int k = 0; k < ND; k++)
+        if (PyArray_SIZE(darr[k]) != n) {
+            PyErr_Format(PyExc_ValueError, "%s has %zd entries but observed has %zd", dnames[k],
+                         (Py_ssize_t)PyArray_SIZE(darr[k]), (Py_ssize_t)n);
+            goto cleanup;
+        }
+    /* the extras are written back: work on a private copy */
+    if (!(extra = (PyArrayObject *)PyArray_FROM_OTF(extra_obj, NPY_DOUBLE, NPY_ARRAY_IN_ARRAY | NPY_ARRAY_ENSURECOPY)))
+        goto cleanup;
+    const size_t np = pot.model->n_params, ne = (size_t)PyArray_SIZE(extra);
+    if (!(vary = (PyArrayObject *)PyArray_FROM_OTF(vary_obj, NPY_INT, NPY_ARRAY_IN_ARRAY | NPY_ARRAY_FORCECAST)) ||
+        !(lower = as_double_array(lower_obj, "lower", 1)) || !(upper = as_double_array(upper_obj, "upper", 1)))
+        goto cleanup;
+    if ((size_t)PyArray_SIZE(vary) != np || (size_t)PyArray_SIZE(lower) != np || (size_t)PyArray_SIZE(upper) != np) {
+        PyErr_Format(PyExc_ValueError, "vary, lower and upper need %zu entries (one per parameter)", np);
+        goto cleanup;
+    }
+    memset(&spec, 0, sizeof spec);
+    for (size_t k = 0; k < np; k++) {
+        spec.vary[k] = ((const int *)PyArray_DATA(vary))[k] != 0;
+        spec.lower[k] = ((const double *)PyArray_DATA(lower))[k];
+        spec.upper[k] = ((const double *)PyArray_DATA(upper))[k];
+    }
+    memset(&rows, 0, sizeof rows);
+    rows.n = (size_t)n;
+    rows.n_extra = ne;
+    rows.level_a = PyArray_DATA(iarr[0]);
+    rows.level_b = PyArray_DATA(iarr[1]);
+    rows.extra = PyArray_DATA(iarr[2]);
+    rows.coef_a = PyArray_DATA(darr[0]);
+    rows.coef_b = PyArray_DATA(darr[1]);
+    rows.coef_asymptote = PyArray_DATA(darr[2]);
+    rows.coef_extra = PyArray_DATA(darr[3]);
+    rows.offset = PyArray_DATA(darr[4]);
+    rows.observed = PyArray_DATA(darr[5]);
+    rows.sigma = PyArray_DATA(darr[6]);
+    npy_intp dims[2] = {n, (npy_intp)(np + ne)};
+    if (!(calc = new_vector(n)) || !(jac = (PyArrayObject *)PyArray_ZEROS(2, dims, NPY_DOUBLE, 0)) ||
+        !(best = new_vector((npy_intp)np)))
+        goto cleanup;
+    {
+        double *pc = PyArray_DATA(calc), *pj = PyArray_DATA(jac), *pe = PyArray_DATA(extra);
+        Py_BEGIN_ALLOW_THREADS
+        status = wkb_fit_run_rows(&pot, &levels, &rows, &spec, pe, &settings, source, &out, pc, pj, &err);
+        Py_END_ALLOW_THREADS
+    }
+    if (status) {
+        /* a failure at the start names its level: the caller maps it to the user's data */
+        if (out.bad_row != (size_t)-1 && status != WKB_ENOMEM) {
+            PyObject *exc = Py_BuildValue("(sn)", err.message, (Py_ssize_t)out.bad_row);
+            if (exc) {
+                PyErr_SetObject(PyExc_ValueError, exc);
+                Py_DECREF(exc);
+            }
+        } else {
+            raise_status(&err);
+        }
+        goto cleanup;
+    }
+    memcpy(PyArray_DATA(best), out.params, np * sizeof(double));
+    if (!(result = PyDict_New()))
+        goto cleanup;
+    if (PyDict_SetItemString(result, "params", (PyObject *)best) < 0 ||
+        PyDict_SetItemString(result, "extra", (PyObject *)extra) < 0 ||
+        PyDict_SetItemString(result, "calc", (PyObject *)calc) < 0 ||
+        PyDict_SetItemString(result, "jacobian", (PyObject *)jac) < 0 ||
+        dict_steal(result, "chi_square", PyFloat_FromDouble(out.chi_square)) < 0 ||
+        dict_steal(result, "predicted_decrease", PyFloat_FromDouble(out.predicted_decrease)) < 0 ||
+        dict_steal(result, "iterations", PyLong_FromSize_t(out.iterations)) < 0 ||
+        dict_steal(result, "n_eval", PyLong_FromSize_t(out.n_eval)) < 0 ||
+        dict_steal(result, "n_infeasible", PyLong_FromSize_t(out.n_infeasible)) < 0 ||
+        dict_steal(result, "n_level_calculations", PyLong_FromSize_t(out.n_level_calculations)) < 0 ||
+        dict_steal(result, "stop", PyUnicode_FromString(wkb_fit_stop_name(out.stop))) < 0 ||
+        dict_steal(result, "test", PyLong_FromLong(out.test)) < 0 ||
+        dict_steal(result, "insensitive", insensitive_list(out.insensitive, np)) < 0 ||
+        dict_steal(result, "last_infeasible", PyUnicode_FromString(out.n_infeasible ? out.last_infeasible.message
+                                                                                      : "")) < 0)
+        Py_CLEAR(result);
+cleanup:
+    fit_arrays_release(&a);
+    wkb_radial_free(radial);
+    for (int k = 0; k < NI; k++)
+        Py_XDECREF(iarr[k]);
+    for (int k = 0; k < ND; k++)
+        Py_XDECREF(darr[k]);
+    Py_XDECREF(vary);
+    Py_XDECREF(lower);
+    Py_XDECREF(upper);
+    Py_XDECREF(calc);
+    Py_XDECREF(jac);
+    Py_XDECREF(best);
+    Py_XDECREF(extra);
+    return result;
+}
+
 static PyObject *py_fit_levels(PyObject *self, PyObject *args, PyObject *kwds)
 {
     static char *kwlist[] = {"model", "params", "curve", "mu", "rot", "method", NULL};
@@ -1212,6 +1364,12 @@ static PyMethodDef core_methods[] = {
      "max_iterations=-1, xtol, gtol, decrease_tol, method=0) -> dict (params, calc, jacobian, chi_square, iterations,\n"
      "n_eval, n_infeasible, stop, test, predicted_decrease, last_infeasible); a failure at the start raises\n"
      "ValueError(message, row index)"},
+    {"fit_run_rows", (PyCFunction)(void (*)(void))py_fit_run_rows, METH_VARARGS | METH_KEYWORDS,
+     "fit_run_rows(model, params, curve, level_v, level_rot, level_mu, level_a, coef_a, level_b, coef_b,\n"
+     "coef_asymptote, extra_index, coef_extra, offset, observed, sigma, extra_start, vary, lower, upper,\n"
+     "max_iterations=-1, method=0) -> dict (params, extra, calc, jacobian[n, n_params + n_extra], chi_square, ...,\n"
+     "n_level_calculations): a fit to rows that are linear combinations of distinct levels; a failure at the\n"
+     "start raises ValueError(message, level index)"},
     {"exact_levels", (PyCFunction)(void (*)(void))py_exact_levels, METH_VARARGS | METH_KEYWORDS,
      "exact_levels(model, params, curve, mu, J, v=None, want_dVdp=False, want_wavefunctions=False,\n"
      "energy_tol=1e-7, min_binding=1e-7, phase_step=0) -> dict of arrays (v, J, energy, binding_energy,\n"

@@ -14,7 +14,7 @@
 /* hbar^2/(2 u) in cm-1 angstrom^2, CODATA 2022 (h, c exact; u = 1.66053906892e-27 kg). */
 #define WKB_HBAR2_OVER_2U 16.85762916809
 
-#define WKB_MAX_PARAMS 16
+#define WKB_MAX_PARAMS 24
 
 /* ---------------------------------------------------------------- status.c */
 enum wkb_status {
@@ -360,6 +360,24 @@ void wkb_fit_evaluator_free(wkb_fit_evaluator *ev);
 int wkb_fit_evaluate(wkb_fit_evaluator *ev, const wkb_potential *pot, double *calc, double *jac,
                      size_t *bad_row, wkb_error *err);
 
+/* Levels computed by ev so far (each E_v with its dE_v/dp counts once). */
+size_t wkb_fit_evaluator_level_calculations(const wkb_fit_evaluator *ev);
+
+/* Data rows as linear combinations of levels, for fits to mixed data (term values, line
+   positions, binding energies, free term values of levels outside the model):
+     calc_i = offset_i + coef_a_i E[level_a_i] + coef_b_i E[level_b_i]
+              + coef_asymptote_i * asymptote(p) + coef_extra_i * extra[extra_i],
+   E[] the term values (cm-1, above the minimum) of the fit's levels; level or extra index
+   -1 for none. Only level_a, coef_a, observed and sigma are required (others NULL = none).
+   The extras are n_extra linear parameters fitted with the potential (free term values,
+   a fitted asymptote); their Jacobian columns are the constant coefficients. */
+typedef struct {
+    size_t n, n_extra;
+    const int *level_a, *level_b, *extra;
+    const double *coef_a, *coef_b, *coef_asymptote, *coef_extra, *offset;
+    const double *observed, *sigma; /* cm-1 */
+} wkb_fit_rows;
+
 /* Which parameters vary, and their bounds (+-INFINITY for none); indexed like the model's
    parameters. A varied parameter must start strictly inside its bounds. */
 typedef struct {
@@ -393,6 +411,7 @@ typedef struct {
     int insensitive[WKB_MAX_PARAMS]; /* varied parameters held fixed because no level depends on
                                         them at the start (relative sensitivity below WKB_FIT_INSENSITIVE) */
     wkb_error last_infeasible;     /* why the last infeasible trial point was rejected */
+    size_t n_level_calculations;   /* levels computed during the fit (all evaluations) */
 } wkb_fit_outcome;
 /* ||d f/d ln p_k|| below this fraction of the largest: the levels do not depend on p_k */
 #define WKB_FIT_INSENSITIVE 1e-9
@@ -407,6 +426,16 @@ typedef struct {
 int wkb_fit_run(const wkb_potential *start, const wkb_fit_data *data, const wkb_fit_spec *spec,
                 const wkb_fit_settings *settings, const wkb_level_source *source,
                 wkb_fit_outcome *out, double *calc, double *jac, wkb_error *err);
+
+/* The fit of wkb_fit_run to rows (wkb_fit_rows) over distinct levels (energy_zero minimum;
+   each level is computed once per evaluation whatever the number of rows using it).
+   extra[n_extra]: in, the starting extras (NaN: the weighted least-squares value for the
+   starting potential); out, the fitted ones. calc[n_rows], jac[n_rows][n_params + n_extra].
+   out->bad_row names the failing LEVEL at the start. Status as wkb_fit_run. */
+int wkb_fit_run_rows(const wkb_potential *start, const wkb_fit_data *levels, const wkb_fit_rows *rows,
+                     const wkb_fit_spec *spec, double *extra, const wkb_fit_settings *settings,
+                     const wkb_level_source *source, wkb_fit_outcome *out, double *calc, double *jac,
+                     wkb_error *err);
 
 /* Every bound level of (pot, mu, J(J+1) = rot) with its parameter gradient, for
    predictions: energy[capacity], dEdp[capacity][n_params]; *count = number of bound levels

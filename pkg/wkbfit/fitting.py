@@ -18,7 +18,10 @@ import numpy as np
 from . import _core
 from . import potentials as _potentials
 from .masses import as_reduced_mass, parse_isotopologue, reduced_mass
-from .observed import read_levels
+from .observed import ObservedLevels, read_levels
+from .lines import ObservedLines, ObservedWidths
+from .design import build_design
+from .checks import check_data
 from . import reports as _reports
 from .reports import _frozen, _atomic_write
 from .potentials import Potential
@@ -79,13 +82,17 @@ class Parameter:
 
 # ------------------------------------------------------------------------------ fit
 def fit(potential, observed, mu=None, *, method="wkb", vary=None, bounds=None, scale_uncertainties=True,
-        max_iterations=200):
+        max_iterations=200, omega=0):
     """Fit the parameters of `potential` to measured levels by weighted least squares.
 
     potential: a wkbfit potential object (Morse, LennardJones, ...); its parameter values are
         the starting point, and it is not changed (the result holds a new, fitted one).
-    observed: an ObservedLevels, or anything `read_levels` accepts (CSV path, DataFrame, dict);
-        its `energy_zero` says what the energies are measured from:
+    observed: the data: one data object or a list of them, fitted together: ObservedLevels
+        (read_levels: term values or binding energies; anything read_levels accepts is read
+        with its defaults) and ObservedLines (read_lines: line positions, with free term
+        values for levels of states that are not modelled). The distinct levels of all data
+        are computed once per model evaluation; see design.py. An ObservedLevels'
+        `energy_zero` says what its energies are measured from:
         "minimum"   calc = E_v, the term value above the potential minimum;
         "asymptote" calc = asymptote - E_v, the binding energy;
         "lowest"    calc = E_v - E_(v=0,J=0) of the same isotopologue. The fit uses the
@@ -113,6 +120,9 @@ def fit(potential, observed, mu=None, *, method="wkb", vary=None, bounds=None, s
         stated measurement uncertainties alone. Both covariances are kept in the result.
     max_iterations: accepted Levenberg-Marquardt steps at most; a fit that stops there returns
         its best point with status "max_iterations" and a warning.
+    omega: the electronic angular momentum (Omega, or Lambda) of the fitted state, a whole
+        number >= 0: the centrifugal term is hbar^2 [J(J+1) - Omega^2]/(2 mu r^2), every level
+        needs J >= Omega, and energy_zero="lowest" means v=0, J=Omega.
 
     Returns a FitResult. Raises ValueError for bad input (naming the bad value), including
     fewer levels than varied parameters and a starting potential that does not bind a level
@@ -124,7 +134,10 @@ def fit(potential, observed, mu=None, *, method="wkb", vary=None, bounds=None, s
     names = list(potential.param_names)
     if not names:
         raise ValueError("%r has no adjustable parameters: nothing to fit" % (potential,))
-    obs = read_levels(observed)
+    items = list(observed) if isinstance(observed, (list, tuple)) else [observed]
+    if not items:
+        raise ValueError("no data: give one data object (read_levels, read_lines) or a list of them")
+    datasets = [_as_data(x) for x in items]
     if method not in ("wkb", "exact"):
         raise ValueError("method=%r is not known; use 'wkb' (first-order WKB levels) or 'exact'" % (method,))
     if not isinstance(scale_uncertainties, (bool, np.bool_)):
@@ -138,54 +151,128 @@ def fit(potential, observed, mu=None, *, method="wkb", vary=None, bounds=None, s
 
     vary_flags = _vary_flags(potential, vary)
     lower, upper, bounds_by_name = _bounds(potential, bounds, vary_flags)
-    masses = obs.masses_by_isotopologue(mu)
-    mu_rows = np.array([masses[label] for label in obs.isotopologue], dtype=float)
-    rot = (obs.J * (obs.J + 1)).astype(float)
-    zero = obs.energy_zero
-    if zero not in _ENERGY_ZERO_CODES:
-        raise ValueError("energy_zero=%r of the data is not known; use one of %s" % (zero, list(_ENERGY_ZERO_CODES)))
-    # rows v=0, J=0 define the zero of "lowest" data: calc is 0 by definition, so they carry no information
-    fitted = np.ones(len(obs), dtype=bool)
-    if zero == "lowest":
-        fitted &= ~((obs.v == 0) & (obs.J == 0))
-    rows = np.nonzero(fitted)[0]
-    n_vary = int(sum(vary_flags))
-    if n_vary == 0:
+    omega = _omega(omega)
+    design = build_design(datasets, omega)
+    masses = _masses(datasets, mu)
+    n_vary = int(sum(vary_flags)) + len(design.extra_names)
+    if int(sum(vary_flags)) == 0:
         raise ValueError("no parameter is varied (vary=%r): nothing to fit" % (vary,))
-    if len(rows) < n_vary:
-        raise ValueError("%d fitted level%s cannot determine %d varied parameters (%s)%s; fix some parameters "
-                         "(vary=...) or add levels" % (
-                             len(rows), "" if len(rows) == 1 else "s", n_vary,
-                             ", ".join(n for n, f in zip(names, vary_flags) if f),
+    n_rows = design.n_rows
+    if n_rows < n_vary:
+        what = "level" if all(isinstance(x, ObservedLevels) for x in datasets) else "data row"
+        raise ValueError("%d fitted %s%s cannot determine %d varied parameters (%s)%s; fix some parameters "
+                         "(vary=...) or add data" % (
+                             n_rows, what, "" if n_rows == 1 else "s", n_vary,
+                             ", ".join([n for n, f in zip(names, vary_flags) if f] + design.extra_names),
                              " (the v=0, J=0 rows define the zero of energy_zero='lowest' data and are not fitted)"
-                             if len(rows) < len(obs) else ""))
+                             if n_rows < sum(len(x) for x in datasets) else ""))
+    if len(datasets) > 1:
+        check_data(datasets, stacklevel=2)
 
     model, params0, curve = potential._core_args()
+    lv, lrot, lmu, rows = design.arrays(masses, omega)
     try:
-        out = _core.fit_run(model, params0, curve, obs.v[rows], rot[rows], mu_rows[rows], obs.energy[rows],
-                            obs.uncertainty[rows], _ENERGY_ZERO_CODES[zero], np.asarray(vary_flags, dtype=np.intc),
-                            lower, upper, max_iterations, method=_METHOD_CODES[method])
+        out = _core.fit_run_rows(model, params0, curve, lv, lrot, lmu, rows["level_a"], rows["coef_a"],
+                                 rows["level_b"], rows["coef_b"], rows["coef_asymptote"], rows["extra_index"],
+                                 rows["coef_extra"], rows["offset"], rows["observed"], rows["sigma"],
+                                 np.array(design.extra_start, dtype=float), np.asarray(vary_flags, dtype=np.intc),
+                                 lower, upper, max_iterations, method=_METHOD_CODES[method])
     except ValueError as err:
         if len(err.args) == 2 and isinstance(err.args[1], int):
-            raise ValueError(_start_failure_message(err.args[0], obs, rows[err.args[1]], potential)) from None
+            raise ValueError(_start_failure_message(err.args[0], design, err.args[1], potential)) from None
         raise
 
-    calc = np.zeros(len(obs))
-    calc[rows] = out["calc"]
-    jac = np.zeros((len(obs), len(names)))
-    jac[rows] = out["jacobian"]
     fitted_potential = type(potential)(**dict(zip(names, out["params"].tolist()))) \
         if not isinstance(potential, _potentials.PointwisePotential) else potential
+    np_ = len(names)
+    calc_rows, jac_rows = out["calc"], out["jacobian"]
+    # per data row, data set after data set (rows not fitted: calc 0, zero Jacobian)
+    n_all = sum(len(b.rows) for b in design.blocks)
+    calc = np.zeros(n_all)
+    jac = np.zeros((n_all, np_ + len(design.extra_names)))
+    fitted = np.zeros(n_all, dtype=bool)
+    sigma = np.zeros(n_all)
+    observed_values = np.zeros(n_all)
+    start = 0
+    for block in design.blocks:
+        k = len(block.rows)
+        sel = block.rows >= 0
+        idx = np.arange(start, start + k)
+        calc[idx[sel]] = calc_rows[block.rows[sel]]
+        jac[idx[sel]] = jac_rows[block.rows[sel]]
+        fitted[idx] = sel
+        sigma[idx] = _data_sigma(block.data)
+        observed_values[idx] = _data_values(block.data)
+        block.start = start
+        start += k
     result = FitResult._build(
-        potential=fitted_potential, initial_potential=potential, observed=obs, masses=masses, method=method,
-        vary_flags=vary_flags, bounds_by_name=bounds_by_name, calculated=calc, jacobian=jac, fitted_rows=fitted,
+        potential=fitted_potential, initial_potential=potential, observed=datasets[0] if len(datasets) == 1
+        else list(datasets), masses=masses, method=method,
+        vary_flags=vary_flags, bounds_by_name=bounds_by_name, calculated=calc, jacobian=jac[:, :np_], fitted_rows=fitted,
         chi_square=float(out["chi_square"]), scale_uncertainties=bool(scale_uncertainties),
         iterations=int(out["iterations"]), n_evaluations=int(out["n_eval"]), stop=out["stop"],
         stop_test=int(out["test"]), predicted_decrease=float(out["predicted_decrease"]),
         n_infeasible=int(out["n_infeasible"]), last_infeasible=out["last_infeasible"],
-        max_iterations=max_iterations, insensitive=[n for n, f in zip(names, out["insensitive"]) if f])
+        max_iterations=max_iterations, insensitive=[n for n, f in zip(names, out["insensitive"]) if f],
+        observed_values=observed_values, sigma=sigma, design=design, extra_values=out["extra"],
+        jacobian_extra=jac[:, np_:], n_level_calculations=int(out["n_level_calculations"]), omega=omega)
     result._warn()
     return result
+
+
+def _as_data(item):
+    if isinstance(item, (ObservedLevels, ObservedLines, ObservedWidths)):
+        return item
+    return read_levels(item)
+
+
+def _data_values(data):
+    if isinstance(data, ObservedLines):
+        return data.wavenumber
+    if isinstance(data, ObservedWidths):
+        return data.width
+    return data.energy
+
+
+def _data_sigma(data):
+    return data.uncertainty
+
+
+def _omega(omega):
+    try:
+        value = float(omega)
+    except (TypeError, ValueError):
+        raise ValueError("omega=%r must be a whole number >= 0 (the electronic angular momentum Omega or Lambda "
+                         "of the state)" % (omega,)) from None
+    if not (math.isfinite(value) and value == int(value) and value >= 0):
+        raise ValueError("omega=%r must be a whole number >= 0 (the electronic angular momentum Omega or Lambda of "
+                         "the state; half-integer Omega is not supported)" % (omega,))
+    return int(value)
+
+
+def _masses(datasets, mu):
+    """Reduced mass of every isotopologue label of every data set."""
+    labels = []
+    for d in datasets:
+        for label in d.isotopologues if hasattr(d, "isotopologues") else [None]:
+            if label not in labels:
+                labels.append(label)
+    if isinstance(mu, dict):
+        unknown = [k for k in mu if k not in labels]
+        if unknown:
+            raise ValueError("mu gives a reduced mass for %s, which is not an isotopologue of the data (%s)" % (
+                ", ".join(repr(k) for k in unknown), ", ".join("unnamed" if l is None else repr(l) for l in labels)))
+    elif mu is not None and len(labels) > 1:
+        raise ValueError("a single reduced mass mu=%r was given but the data hold %d isotopologues; give a dict "
+                         "label -> reduced mass, or mu=None to take the masses from the labels" % (mu, len(labels)))
+    out = {}
+    for d in datasets:
+        own = d.isotopologues
+        sub = {k: v for k, v in mu.items() if k in own} if isinstance(mu, dict) else mu
+        if isinstance(d, ObservedWidths):
+            continue
+        out.update(d.masses_by_isotopologue(sub))
+    return out
 
 
 def _vary_flags(potential, vary):
@@ -261,14 +348,17 @@ def _bounds(potential, bounds, vary_flags):
     return lower, upper, by_name
 
 
-def _row_description(obs, i):
-    label = obs.isotopologue[i]
-    return "data row %d (%sv=%d, J=%d)" % (i + 1, "isotopologue %s, " % label if label is not None else "",
-                                           obs.v[i], obs.J[i])
-
-
-def _start_failure_message(message, obs, i, potential):
-    text = "the starting potential %r cannot compute %s: %s" % (potential, _row_description(obs, i), message)
+def _start_failure_message(message, design, level, potential):
+    label, v, J = design.level_keys[level]
+    users = [o for o, r in zip(design.row_origin, range(design.n_rows))
+             if level in (design.cols["level_a"][r], design.cols["level_b"][r])]
+    lev = "%sv=%d, J=%d" % ("isotopologue %s, " % label if label is not None else "", v, J)
+    if users:
+        b, i = users[0]
+        where = ("data set %d, row %d" % (b + 1, i + 1)) if len(design.blocks) > 1 else "data row %d" % (i + 1)
+        text = "the starting potential %r cannot compute %s (%s): %s" % (potential, where, lev, message)
+    else:
+        text = "the starting potential %r cannot compute the level %s: %s" % (potential, lev, message)
     if "not bound" in message or "last bound level" in message or "binds no levels" in message:
         text += ("; every level of the data must be bound by the starting potential: start from a deeper or "
                  "wider well (larger De, or a smaller a / larger re), e.g. from a Birge-Sponer estimate of De")
@@ -302,25 +392,42 @@ class FitResult:
     def _build(cls, *, potential, initial_potential, observed, masses, method, vary_flags, bounds_by_name,
                calculated, jacobian, fitted_rows, chi_square, scale_uncertainties, iterations, n_evaluations,
                stop, stop_test, predicted_decrease, n_infeasible, last_infeasible, max_iterations,
-               insensitive=()):
+               insensitive=(), observed_values=None, sigma=None, design=None, extra_values=(), jacobian_extra=None,
+               n_level_calculations=None, omega=0):
         self = cls.__new__(cls)
         names = list(potential.param_names)
         self.potential = potential
         self.initial_potential = initial_potential
         self.observed = observed
+        self.data = list(observed) if isinstance(observed, list) else [observed]
         self.masses = dict(masses)
         self.method = method
-        self.energy_zero = observed.energy_zero
+        self.omega = omega
+        first = self.data[0]
+        self.energy_zero = getattr(first, "energy_zero", None) if len(self.data) == 1 else None
+        if observed_values is None:
+            observed_values, sigma = observed.energy, observed.uncertainty
+        self._observed_values = _frozen(np.asarray(observed_values, dtype=float))
+        self._sigma = _frozen(np.asarray(sigma, dtype=float))
+        self.n_level_calculations = n_level_calculations
+        self.blocks = design.blocks if design is not None else []
+        self.n_levels = len(design.level_keys) if design is not None else None
+        extra_names = list(design.extra_names) if design is not None else []
+        self.extra_names = extra_names
+        self._extra_values = np.asarray(extra_values, dtype=float)
+        self.jacobian_extra = _frozen(np.zeros((len(self._sigma), 0)) if jacobian_extra is None
+                                      else np.asarray(jacobian_extra, dtype=float))
         self.scale_uncertainties = scale_uncertainties
         self.calculated = _frozen(np.asarray(calculated, dtype=float))
         self.jacobian = _frozen(np.asarray(jacobian, dtype=float))
         self.fitted_rows = _frozen(np.asarray(fitted_rows, dtype=bool))
-        self.residuals = _frozen(observed.energy - self.calculated)
-        self.normalized_residuals = _frozen(self.residuals / observed.uncertainty)
+        self.residuals = _frozen(np.where(self.fitted_rows, self._observed_values - self.calculated,
+                                          self._observed_values - self.calculated))
+        self.normalized_residuals = _frozen(self.residuals / self._sigma)
         self.var_names = [n for n, f in zip(names, vary_flags) if f]
         self.chi_square = float(chi_square)
         n_fit = int(np.count_nonzero(self.fitted_rows))
-        self.dof = n_fit - len(self.var_names)
+        self.dof = n_fit - len(self.var_names) - len(extra_names)
         self.standard_error = math.sqrt(self.chi_square / self.dof) if self.dof > 0 else None
         self.iterations = iterations
         self.n_evaluations = n_evaluations
@@ -333,13 +440,21 @@ class FitResult:
         return self
 
     def _analyse(self, names, vary_flags, bounds_by_name, insensitive=()):
-        """Covariance, correlations, and why any parameter is not determined."""
-        values = self.potential.params
-        initial = self.initial_potential.params
-        var_idx = [names.index(n) for n in self.var_names]
+        """Covariance, correlations, and why any parameter is not determined. The extra
+        parameters (free term values, fitted asymptotes) take part in the covariance; the
+        potential's block of it is `covariance`, the extras are in `free_parameters`."""
+        extra_names = self.extra_names
+        values = dict(self.potential.params, **dict(zip(extra_names, self._extra_values.tolist())))
+        initial = dict(self.initial_potential.params, **dict(zip(extra_names, self._extra_values.tolist())))
+        bounds_by_name = dict(bounds_by_name, **{n: (None, None) for n in extra_names})
+        pot_var = list(self.var_names)
+        all_var = pot_var + extra_names
+        var_idx = [names.index(n) for n in pot_var]
         rows = self.fitted_rows
-        Jw = self.jacobian[rows][:, var_idx] / self.observed.uncertainty[rows][:, None]
-        nv = len(var_idx)
+        Jall = np.hstack([self.jacobian[:, var_idx], self.jacobian_extra])
+        Jw = Jall[rows] / self._sigma[rows][:, None]
+        self.var_names = all_var
+        nv = len(all_var)
         reasons = {}
 
         # 1. parameters at a bound
@@ -416,6 +531,23 @@ class FitResult:
                             "approximate there")
             self.params[name] = Parameter(name, values[name], unc, vary_flags[k], (lo, hi), initial[name],
                                           determined, note)
+        #: free term values and fitted asymptotes: name -> Parameter (value in cm-1)
+        self.free_parameters = {}
+        for name in extra_names:
+            j = self.var_names.index(name)
+            det = name not in reasons
+            self.free_parameters[name] = Parameter(name, values[name], float(sd[j]) if det else None, True,
+                                                   (None, None), None, det, reasons.get(name, ""))
+        # the potential's block: var_names, covariance and correlation keep their meaning
+        npv = len(pot_var)
+        self.covariance_full = self.covariance
+        self.covariance_full_names = list(all_var)
+        self.covariance = _frozen(np.array(self.covariance[:npv, :npv]))
+        self.covariance_unscaled = _frozen(np.array(self.covariance_unscaled[:npv, :npv]))
+        self.correlation = _frozen(np.array(self.correlation[:npv, :npv]))
+        self.var_names = pot_var
+        self.undetermined_free = [n for n in self.undetermined if n in extra_names]
+        self.undetermined = [n for n in self.undetermined if n not in extra_names]
         if self.dof == 0:
             self.dof_note = ("no degrees of freedom (as many fitted levels as varied parameters): the dimensionless "
                              "standard error is not defined and the uncertainties are not scaled")
