@@ -9,6 +9,8 @@ for a typical mistake; none changes the data:
   - the same level (or line) given twice with different values (across data sets: `check_data`)
 Thresholds are rules of thumb (common practice), stated beside each check.
 """
+import os
+import sys
 import warnings
 
 import numpy as np
@@ -27,8 +29,15 @@ _SIGMA_LARGE = 0.25
 _SIGMA_SMALL = 1e-10
 
 
+_PACKAGE_DIR = os.path.dirname(os.path.abspath(__file__))
+
+
 def _warn(message, stacklevel):
-    warnings.warn(message, DataWarning, stacklevel=stacklevel + 1)
+    """Warn at the caller's first frame outside the package (stacklevel is a lower bound)."""
+    frame, level = sys._getframe(1), 2
+    while frame is not None and os.path.dirname(os.path.abspath(frame.f_code.co_filename)) == _PACKAGE_DIR:
+        frame, level = frame.f_back, level + 1
+    warnings.warn(message, DataWarning, stacklevel=max(level, 2))
 
 
 def _where(data):
@@ -87,6 +96,10 @@ def check_levels(obs, stacklevel=2):
 
 
 def _check_sigma(values, sigma, where, warn):
+    _check_sigma_against(values, sigma, where, warn)
+
+
+def _check_sigma_against(values, sigma, where, warn):
     spacing = _typical_spacing(values)
     if not np.isfinite(spacing) or spacing <= 0:
         return
@@ -119,7 +132,13 @@ def check_lines(lines, stacklevel=2):
         if len(sp) == 0 or np.min(sp) >= _MHZ_LIKE:
             warn("%severy line position is above %g cm-1 with spacings of %g and more: these look like frequencies "
                  "in MHz; read them with unit='MHz' (or 'GHz')" % (where, _MHZ_LIKE, _MHZ_LIKE))
-    _check_sigma(lines.wavenumber, lines.uncertainty, where, warn)
+    first = {}
+    for i, key in enumerate(lines.keys()):
+        first.setdefault(key, i)
+    distinct = np.array(sorted(first.values()), dtype=int)
+    # spacings between distinct transitions (repeated measurements of one line are no spacing)
+    spacing_values = lines.wavenumber[distinct]
+    _check_sigma_against(spacing_values, lines.uncertainty, where, warn)
     seen = {}
     for i, key in enumerate(lines.keys()):
         if key in seen and lines.wavenumber[seen[key]] != lines.wavenumber[i]:

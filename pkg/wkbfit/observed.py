@@ -326,12 +326,14 @@ def report_unknown_columns(columns, known, prefix, stacklevel=5):
     """Warn about columns that are not used; stop when J is missing but a column looks like it."""
     import warnings
     unknown = [c for c in columns if c not in known]
-    if "J" in known and "J" not in columns:
-        suspect = [c for c in unknown if c in _ROTATION_LIKE]
+    missing_J = [c for c in known if (c == "J" or c.startswith("J_")) and c not in columns]
+    if missing_J:
+        suspect = [c for c in unknown if c in _ROTATION_LIKE or c.split("_")[0] in ("N", "K", "F")]
         if suspect:
-            raise ValueError("%scolumn %r is not a column name, and the data have no J column: if %r is the "
-                             "rotational quantum number, name the column J; otherwise remove it (the levels would "
-                             "otherwise be read as J = 0)" % (prefix, suspect[0], suspect[0]))
+            raise ValueError("%scolumn %r is not a column name, and the data have no %s column: if %r is the "
+                             "rotational quantum number, name the column %s; otherwise remove it (the levels would "
+                             "otherwise be read as J = 0)" % (prefix, suspect[0], missing_J[0], suspect[0],
+                                                              missing_J[0]))
     if unknown:
         warnings.warn("%scolumn%s %s %s not used (known columns: %s); check the spelling" % (
             prefix, "s" if len(unknown) > 1 else "", ", ".join(repr(c) for c in unknown),
