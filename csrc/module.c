@@ -1333,6 +1333,46 @@ cleanup:
     return result;
 }
 
+/* ---------------------------------------------------------------- damping functions (damping.c) */
+
+static PyObject *py_damping(PyObject *self, PyObject *args, PyObject *kwds)
+{
+    static char *kwlist[] = {"kind", "m", "s", "rho", "r", NULL};
+    int kind, m, s;
+    double rho;
+    PyObject *r_obj;
+    PyArrayObject *r = NULL, *cols[4] = {NULL};
+    PyObject *result = NULL;
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "iiidO", kwlist, &kind, &m, &s, &rho, &r_obj))
+        return NULL;
+    if (kind < WKB_DAMPING_NONE || kind > WKB_DAMPING_DOUKETIS || m < 1 || m > 64)
+        return value_error("damping kind %d (0 none, 1 Tang-Toennies, 2 Douketis) or power m=%d (1..64) is invalid",
+                           kind, m);
+    if (!(r = as_double_array(r_obj, "r", 1)))
+        return NULL;
+    const npy_intp n = PyArray_SIZE(r);
+    for (int c = 0; c < 4; c++)
+        if (!(cols[c] = new_vector(n)))
+            goto cleanup;
+    {
+        const double *pr = PyArray_DATA(r);
+        double *o[4];
+        for (int c = 0; c < 4; c++)
+            o[c] = PyArray_DATA(cols[c]);
+        for (npy_intp i = 0; i < n; i++) {
+            wkb_damping d;
+            wkb_damping_eval(kind, m, s, rho, pr[i], &d);
+            o[0][i] = d.D, o[1][i] = d.dD, o[2][i] = d.d2D, o[3][i] = d.dD_drange;
+        }
+    }
+    result = Py_BuildValue("(OOOO)", cols[0], cols[1], cols[2], cols[3]);
+cleanup:
+    for (int c = 0; c < 4; c++)
+        Py_XDECREF(cols[c]);
+    Py_XDECREF(r);
+    return result;
+}
+
 /* ---------------------------------------------------------------- module */
 
 static PyMethodDef core_methods[] = {
@@ -1378,6 +1418,9 @@ static PyMethodDef core_methods[] = {
     {"fit_levels", (PyCFunction)(void (*)(void))py_fit_levels, METH_VARARGS | METH_KEYWORDS,
      "fit_levels(model, params, curve, mu, rot, method=0) -> dict (energy, jacobian[count, n_params], vD, dvD_dp,\n"
      "asymptote): every bound level (0 WKB, 1 exact) with its parameter gradient; vD is the WKB one"},
+    {"damping", (PyCFunction)(void (*)(void))py_damping, METH_VARARGS | METH_KEYWORDS,
+     "damping(kind, m, s, rho, r) -> (D, dD/dr, d2D/dr2, dD/drho): damping function D_m(r) (r in angstrom;\n"
+     "kind 0 none, 1 Tang-Toennies with b = rho in 1/angstrom, 2 Douketis type with dimensionless rho, s = -1, -2)"},
     {"rkr", (PyCFunction)(void (*)(void))py_rkr, METH_VARARGS | METH_KEYWORDS,
      "rkr(G_coefficients, B_coefficients, mu, v, quadrature_points=0) -> dict of arrays (energy, f, g,\n"
      "inner_turning_point, outer_turning_point, error): RKR turning points from Dunham expansions\n"

@@ -115,6 +115,29 @@ static inline double wkb_potential_asymptote(const wkb_potential *pot)
 #define WKB_MLR_MAX_BETAS 8 /* 8 + 8 parameters = WKB_MAX_PARAMS */
 extern const wkb_model wkb_models_emo[WKB_EMO_MAX_BETAS]; /* [K-1]: "emoK" */
 extern const wkb_model wkb_models_mlr[WKB_MLR_MAX_BETAS]; /* [K-1]: "mlrK" */
+/* MLR with C3, C4, C6, C8, C10 and damping (damping.c), "mlrdK": parameters De, re, C3, C4, C6, C8,
+   C10, p, q, r_ref, damping (0 none, 1 Tang-Toennies, 2 Douketis type), rho (the damping range:
+   b in 1/angstrom for Tang-Toennies, the dimensionless rho for the Douketis form), s (Douketis
+   power offset, -1 or -2), beta0..; u(r) = sum_m D_m(r) C_m/r^m; tail power the lowest m present.
+   Checks: C_m >= 0, one > 0; p whole, 3..64, above m_last - m_first; u_LR(re) > 0, and < 2 De
+   when undamped. */
+extern const wkb_model wkb_models_mlrd[WKB_MLR_MAX_BETAS]; /* [K-1]: "mlrdK" */
+
+/* ---------------------------------------------------------------- damping.c */
+/* Damping functions D_m(r) of long-range terms C_m/r^m (r in angstrom):
+   WKB_DAMPING_TANG_TOENNIES [Tang & Toennies, J. Chem. Phys. 80, 3726 (1984)]:
+     D_m = 1 - exp(-x) sum_{k=0}^{m} x^k/k!, x = range * r, range = b in 1/angstrom;
+   WKB_DAMPING_DOUKETIS [Douketis et al., J. Chem. Phys. 76, 3057 (1982), generalized by Le Roy
+     et al., Mol. Phys. 109, 435 (2011)]: D_m = [1 - exp(-b(s) rho r/m - c(s) (rho r)^2/sqrt(m))]^(m+s),
+     r in bohr, range = rho (dimensionless); s = -1 or -2 (other s: NaN).
+   WKB_DAMPING_NONE: D = 1. out: D, dD/dr, d2D/dr2, dD/d(range). */
+enum { WKB_DAMPING_NONE = 0, WKB_DAMPING_TANG_TOENNIES = 1, WKB_DAMPING_DOUKETIS = 2 };
+typedef struct {
+    double D, dD, d2D, dD_drange;
+} wkb_damping;
+void wkb_damping_eval(int kind, int m, int s, double range, double r, wkb_damping *out);
+/* b(s), c(s) of the Douketis-type form (from memory); returns 0 for an s without constants. */
+int wkb_douketis_constants(int s, double *b, double *c);
 
 /* ------------------------------------------------------------- pointwise.c */
 /* Builds a point-wise potential from n >= 5 points r (angstrom, > 0, strictly
