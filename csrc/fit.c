@@ -222,6 +222,7 @@ int wkb_fit_evaluate(wkb_fit_evaluator *ev, const wkb_potential *pot, double *ca
     double dA[WKB_MAX_PARAMS], dE[WKB_MAX_PARAMS], ref_dE[WKB_MAX_PARAMS];
     double ref_E = 0, asym = wkb_potential_asymptote(pot);
     double cur_mu = NAN, cur_rot = NAN, ref_mu = NAN;
+    const wkb_model *cur_model = NULL;
     int status;
 
     if (d->energy_zero == WKB_ZERO_ASYMPTOTE)
@@ -235,15 +236,20 @@ int wkb_fit_evaluate(wkb_fit_evaluator *ev, const wkb_potential *pot, double *ca
             /* the data zero of this isotopologue: its level v=0, J=0 */
             if ((status = set_well(ev, pot, mu, 0.0, err)))
                 return status;
-            cur_mu = mu, cur_rot = 0.0;
+            cur_mu = mu, cur_rot = 0.0, cur_model = NULL;
             if ((status = level_of(ev, 0, &ref_E, ref_dE, err)))
                 return status;
             ref_mu = mu;
         }
-        if (mu != cur_mu || rot != cur_rot) {
-            if ((status = set_well(ev, pot, mu, rot, err)))
+        /* a level with a model of its own (Born-Oppenheimer correction variant) */
+        const wkb_model *lm = d->level_model ? d->level_model[i] : NULL;
+        if (mu != cur_mu || rot != cur_rot || lm != cur_model) {
+            wkb_potential variant = *pot;
+            if (lm)
+                variant.model = lm;
+            if ((status = set_well(ev, &variant, mu, rot, err)))
                 return status;
-            cur_mu = mu, cur_rot = rot;
+            cur_mu = mu, cur_rot = rot, cur_model = lm;
         }
         double E;
         if ((status = level_of(ev, d->v[i], &E, dE, err)))
@@ -423,6 +429,8 @@ static int evaluate_at(fit_context *c, const gsl_vector *x)
     c->cache_valid = 0;
     c->n_eval++;
     int status = wkb_potential_init(&pot, c->start->model, p, c->start->curve, &err);
+    if (!status && strcmp(pot.model->name, "born_oppenheimer") == 0)
+        status = wkb_bob_potential_check((const wkb_bob_model *)pot.model, p, &err);
     if (!status)
         status = wkb_fit_evaluate(c->ev, &pot, c->level_E, c->level_dE, NULL, &err);
     if (status) {

@@ -835,13 +835,96 @@ cleanup:
     return result;
 }
 
+/* A Born-Oppenheimer corrected potential for fit_run_rows: the template model (reference
+   isotopologue) in *pot, one variant per (isotopologue, J) and the model of every level.
+   Returns 0 or -1 with an exception; the caller frees *tmpl, *variants, *models and arrs. */
+static int parse_bob(const char *model_name, PyObject *params_obj, PyObject *counts_obj, double power,
+                     PyObject *variant_obj, PyObject *ad_obj, PyObject *na_obj, PyObject *rot_obj, PyObject *lv_obj,
+                     wkb_potential *pot, wkb_bob_model **tmpl, wkb_bob_model **variants, const wkb_model ***models,
+                     PyArrayObject **arrs)
+{
+    const wkb_model *base = wkb_model_by_name(model_name);
+    wkb_error err = {0};
+    if (!base) {
+        PyErr_Format(PyExc_ValueError, "unknown potential model '%s'", model_name);
+        return -1;
+    }
+    if (!(arrs[0] = (PyArrayObject *)PyArray_FROM_OTF(counts_obj, NPY_INT, NPY_ARRAY_IN_ARRAY | NPY_ARRAY_FORCECAST)) ||
+        !(arrs[1] = (PyArrayObject *)PyArray_FROM_OTF(variant_obj, NPY_INT, NPY_ARRAY_IN_ARRAY | NPY_ARRAY_FORCECAST)) ||
+        !(arrs[2] = as_double_array(ad_obj, "variant_adiabatic", 2)) ||
+        !(arrs[3] = as_double_array(na_obj, "variant_centrifugal", 2)) ||
+        !(arrs[4] = as_double_array(rot_obj, "variant_rot_eps", 1)))
+        return -1;
+    if (PyArray_SIZE(arrs[0]) != 4) {
+        PyErr_SetString(PyExc_ValueError, "bob_counts needs 4 entries (S_A, S_B, R_A, R_B)");
+        return -1;
+    }
+    const npy_intp nvar = PyArray_SIZE(arrs[4]);
+    if (PyArray_DIM(arrs[2], 0) != nvar || PyArray_DIM(arrs[2], 1) != 2 || PyArray_DIM(arrs[3], 0) != nvar ||
+        PyArray_DIM(arrs[3], 1) != 2) {
+        PyErr_SetString(PyExc_ValueError, "variant_adiabatic and variant_centrifugal need shape (n_variants, 2)");
+        return -1;
+    }
+    const npy_intp nl = PyArray_SIZE(arrs[1]);
+    PyObject *lv = PyArray_FROM_OTF(lv_obj, NPY_INT, NPY_ARRAY_IN_ARRAY | NPY_ARRAY_FORCECAST);
+    if (!lv)
+        return -1;
+    const npy_intp n_levels = PyArray_SIZE((PyArrayObject *)lv);
+    Py_DECREF(lv);
+    if (nl != n_levels) {
+        PyErr_Format(PyExc_ValueError, "level_variant has %zd entries for %zd levels", (Py_ssize_t)nl,
+                     (Py_ssize_t)n_levels);
+        return -1;
+    }
+    if (!(*tmpl = calloc(1, sizeof **tmpl)) || !(*variants = calloc((size_t)nvar + 1, sizeof **variants)) ||
+        !(*models = calloc((size_t)nl + 1, sizeof **models))) {
+        PyErr_NoMemory();
+        return -1;
+    }
+    if (wkb_bob_model_init(*tmpl, base, PyArray_DATA(arrs[0]), power, &err)) {
+        raise_status(&err);
+        return -1;
+    }
+    PyArrayObject *params = as_double_array(params_obj, "params", 1);
+    if (!params)
+        return -1;
+    const size_t np = (*tmpl)->model.n_params;
+    if ((size_t)PyArray_SIZE(params) != np) {
+        PyErr_Format(PyExc_ValueError, "model %s with its corrections takes %zu parameters, got %zd", base->name, np,
+                     (Py_ssize_t)PyArray_SIZE(params));
+        Py_DECREF(params);
+        return -1;
+    }
+    int status = wkb_potential_init(pot, &(*tmpl)->model, PyArray_DATA(params), NULL, &err);
+    if (!status)
+        status = wkb_bob_potential_check(*tmpl, PyArray_DATA(params), &err);
+    Py_DECREF(params);
+    if (status) {
+        raise_status(&err);
+        return -1;
+    }
+    const double *ad = PyArray_DATA(arrs[2]), *na = PyArray_DATA(arrs[3]), *re = PyArray_DATA(arrs[4]);
+    for (npy_intp k = 0; k < nvar; k++)
+        wkb_bob_model_variant(*tmpl, &(*variants)[k], ad + 2 * k, na + 2 * k, re[k]);
+    const int *var = PyArray_DATA(arrs[1]);
+    for (npy_intp i = 0; i < nl; i++) {
+        if (var[i] < 0 || var[i] >= nvar) {
+            PyErr_Format(PyExc_ValueError, "level %zd: variant %d is invalid", (Py_ssize_t)i, var[i]);
+            return -1;
+        }
+        (*models)[i] = &(*variants)[var[i]].model;
+    }
+    return 0;
+}
+
 /* fit_run_rows: a fit to rows that are linear combinations of distinct levels (mixed data). */
 static PyObject *py_fit_run_rows(PyObject *self, PyObject *args, PyObject *kwds)
 {
     static char *kwlist[] = {"model", "params", "curve", "level_v", "level_rot", "level_mu", "level_a", "coef_a",
                              "level_b", "coef_b", "coef_asymptote", "extra_index", "coef_extra", "offset",
                              "observed", "sigma", "extra_start", "vary", "lower", "upper", "max_iterations",
-                             "method", NULL};
+                             "method", "bob_counts", "bob_power", "level_variant", "variant_adiabatic",
+                             "variant_centrifugal", "variant_rot_eps", NULL};
     enum { NI = 3, ND = 7 };
     const char *model_name;
     PyObject *params_obj, *curve_obj, *lv_obj, *lrot_obj, *lmu_obj, *iobj[NI], *dobj[ND], *extra_obj, *vary_obj,
@@ -864,19 +947,32 @@ static PyObject *py_fit_run_rows(PyObject *self, PyObject *args, PyObject *kwds)
     static const char *inames[NI] = {"level_a", "level_b", "extra_index"};
     static const char *dnames[ND] = {"coef_a", "coef_b", "coef_asymptote", "coef_extra", "offset", "observed",
                                      "sigma"};
+    PyObject *bob_counts_obj = Py_None, *variant_obj = Py_None, *vad_obj = Py_None, *vna_obj = Py_None,
+             *vrot_obj = Py_None;
+    double bob_power = 3;
+    wkb_bob_model *bob_template = NULL, *bob_variants = NULL;
+    const wkb_model **level_models = NULL;
+    PyArrayObject *bob_arr[5] = {NULL};
 
-    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOOOOOOOOOOOOOOOOOO|ni", kwlist, &model_name, &params_obj,
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOOOOOOOOOOOOOOOOOO|niOdOOOO", kwlist, &model_name, &params_obj,
                                      &curve_obj, &lv_obj, &lrot_obj, &lmu_obj, &iobj[0], &dobj[0], &iobj[1],
                                      &dobj[1], &dobj[2], &iobj[2], &dobj[3], &dobj[4], &dobj[5], &dobj[6],
-                                     &extra_obj, &vary_obj, &lower_obj, &upper_obj, &max_iterations, &method))
+                                     &extra_obj, &vary_obj, &lower_obj, &upper_obj, &max_iterations, &method,
+                                     &bob_counts_obj, &bob_power, &variant_obj, &vad_obj, &vna_obj, &vrot_obj))
         return NULL;
     if (max_iterations >= 0)
         settings.max_iterations = (size_t)max_iterations;
-    if (parse_potential(model_name, params_obj, curve_obj, &pot) < 0)
-        return NULL;
+    if (bob_counts_obj == Py_None) {
+        if (parse_potential(model_name, params_obj, curve_obj, &pot) < 0)
+            return NULL;
+    } else if (parse_bob(model_name, params_obj, bob_counts_obj, bob_power, variant_obj, vad_obj, vna_obj, vrot_obj,
+                         lv_obj, &pot, &bob_template, &bob_variants, &level_models, bob_arr) < 0) {
+        goto cleanup;
+    }
     if (parse_fit_arrays(lv_obj, lrot_obj, lmu_obj, NULL, NULL, WKB_ZERO_MINIMUM, &a, &levels) < 0 ||
         fit_source(method, &radial, &source_store, &source) < 0)
         goto cleanup;
+    levels.level_model = level_models;
     for (int k = 0; k < NI; k++) {
         iarr[k] = (PyArrayObject *)PyArray_FROM_OTF(iobj[k], NPY_INT, NPY_ARRAY_IN_ARRAY | NPY_ARRAY_FORCECAST);
         if (!iarr[k])
@@ -984,6 +1080,11 @@ cleanup:
     Py_XDECREF(jac);
     Py_XDECREF(best);
     Py_XDECREF(extra);
+    for (int k = 0; k < 5; k++)
+        Py_XDECREF(bob_arr[k]);
+    free(level_models);
+    free(bob_variants);
+    free(bob_template);
     return result;
 }
 

@@ -14,7 +14,7 @@
 /* hbar^2/(2 u) in cm-1 angstrom^2, CODATA 2022 (h, c exact; u = 1.66053906892e-27 kg). */
 #define WKB_HBAR2_OVER_2U 16.85762916809
 
-#define WKB_MAX_PARAMS 24
+#define WKB_MAX_PARAMS 40
 
 /* ---------------------------------------------------------------- status.c */
 enum wkb_status {
@@ -138,6 +138,29 @@ typedef struct {
 void wkb_damping_eval(int kind, int m, int s, double range, double r, wkb_damping *out);
 /* b(s), c(s) of the Douketis-type form (from memory); returns 0 for an s without constants. */
 int wkb_douketis_constants(int s, double *b, double *c);
+
+/* -------------------------------------------------------------------- bob.c */
+/* Born-Oppenheimer breakdown corrections [Le Roy, J. Mol. Spectrosc. 194, 189 (1999); from
+   memory]: a model descriptor wrapping an analytic base model; parameters: the base model's, then
+   for each of the functions S_A, S_B (adiabatic) and R_A, R_B (centrifugal) with n_coef[f] > 0:
+   c_inf, c_0 .. c_(n-1) of F = y c_inf + (1 - y) sum_i c_i y^i, y = y_p(r; re). V gains
+   adiabatic[X] S_X(r) + rot_eps centrifugal[X] R_X(r)/r^2 with adiabatic[X] = dM_X/M_X(alpha),
+   centrifugal[X] = M_X(1)/M_X(alpha), rot_eps = J(J+1) hbar^2/(2 mu_alpha). */
+typedef struct {
+    wkb_model model; /* first: the level code sees an ordinary model */
+    const wkb_model *base;
+    double power, adiabatic[2], centrifugal[2], rot_eps;
+    int n_coef[4];
+    const char *names[WKB_MAX_PARAMS];
+    char name_buf[WKB_MAX_PARAMS][16];
+} wkb_bob_model;
+/* The template (reference isotopologue, no rotation): WKB_EINVAL for a bad base or counts. */
+int wkb_bob_model_init(wkb_bob_model *b, const wkb_model *base, const int *n_coef, double power, wkb_error *err);
+/* A copy of tmpl for one isotopologue and J (tmpl must outlive it). */
+void wkb_bob_model_variant(const wkb_bob_model *tmpl, wkb_bob_model *out, const double *adiabatic,
+                           const double *centrifugal, double rot_eps);
+/* The base model's check on the base part of p. */
+int wkb_bob_potential_check(const wkb_bob_model *b, const double *p, wkb_error *err);
 
 /* ------------------------------------------------------------- pointwise.c */
 /* Builds a point-wise potential from n >= 5 points r (angstrom, > 0, strictly
@@ -360,6 +383,9 @@ typedef struct {
     const double *energy; /* observed energy, cm-1, in the zero energy_zero */
     const double *sigma;  /* one-sigma uncertainty, cm-1, > 0 */
     int energy_zero;      /* enum wkb_energy_zero */
+    /* optional, per level: the model to compute it with instead of the potential's own (a
+       Born-Oppenheimer correction variant of it with the same parameters), or NULL */
+    const wkb_model *const *level_model;
 } wkb_fit_data;
 
 /* A source of levels other than first-order WKB (such as the exact solver): prepared once

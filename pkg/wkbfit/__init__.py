@@ -12,6 +12,7 @@ from .observed import ObservedLevels, read_levels, DataWarning
 from .lines import ObservedLines, read_lines, ObservedWidths, read_widths
 from . import units
 from .fitting import fit, FitResult
+from .born_oppenheimer import BornOppenheimerCorrection
 from .rkr import RKRTurningPoints, rkr_turning_points, rkr_potential
 
 __version__ = "0.1.0"

@@ -22,6 +22,7 @@ from .observed import ObservedLevels, read_levels
 from .lines import ObservedLines, ObservedWidths
 from .design import build_design
 from .checks import check_data
+from .born_oppenheimer import BornOppenheimerCorrection
 from . import reports as _reports
 from .reports import _frozen, _atomic_write
 from .potentials import Potential
@@ -82,7 +83,7 @@ class Parameter:
 
 # ------------------------------------------------------------------------------ fit
 def fit(potential, observed, mu=None, *, method="wkb", vary=None, bounds=None, scale_uncertainties=True,
-        max_iterations=200, omega=0):
+        max_iterations=200, omega=0, born_oppenheimer=None):
     """Fit the parameters of `potential` to measured levels by weighted least squares.
 
     potential: a wkbfit potential object (Morse, LennardJones, ...); its parameter values are
@@ -120,6 +121,10 @@ def fit(potential, observed, mu=None, *, method="wkb", vary=None, bounds=None, s
         stated measurement uncertainties alone. Both covariances are kept in the result.
     max_iterations: accepted Levenberg-Marquardt steps at most; a fit that stops there returns
         its best point with status "max_iterations" and a warning.
+    born_oppenheimer: None, or a BornOppenheimerCorrection (born_oppenheimer.py): mass-scaled
+        adiabatic and non-adiabatic centrifugal correction functions for multi-isotopologue
+        data, whose coefficients (uA0, ..., tA0, ...) are fitted with the potential and appear
+        in `params`; the fitted potential is that of the reference isotopologue.
     omega: the electronic angular momentum (Omega, or Lambda) of the fitted state, a whole
         number >= 0: the centrifugal term is hbar^2 [J(J+1) - Omega^2]/(2 mu r^2), every level
         needs J >= Omega, and energy_zero="lowest" means v=0, J=Omega.
@@ -149,8 +154,18 @@ def fit(potential, observed, mu=None, *, method="wkb", vary=None, bounds=None, s
     if max_iterations < 1:
         raise ValueError("max_iterations=%r must be a positive integer" % (max_iterations,))
 
-    vary_flags = _vary_flags(potential, vary)
-    lower, upper, bounds_by_name = _bounds(potential, bounds, vary_flags)
+    bob = born_oppenheimer
+    if bob is not None and not isinstance(bob, BornOppenheimerCorrection):
+        raise ValueError("born_oppenheimer=%r must be None or a BornOppenheimerCorrection" % (bob,))
+    if bob is not None and isinstance(potential, _potentials.PointwisePotential):
+        raise ValueError("Born-Oppenheimer corrections need an analytic potential model, not a PointwisePotential")
+    bob_names = list(bob.param_names) if bob is not None else []
+    vary_flags = _vary_flags(potential, vary, bob_names, bob.fixed_by_default if bob is not None else ())
+    lower, upper, bounds_by_name = _bounds(potential, bounds, vary_flags[:len(names)])
+    if bob is not None:
+        lower = np.concatenate([lower, np.full(len(bob_names), -np.inf)])
+        upper = np.concatenate([upper, np.full(len(bob_names), np.inf)])
+        bounds_by_name.update({n: (None, None) for n in bob_names})
     omega = _omega(omega)
     design = build_design(datasets, omega)
     masses = _masses(datasets, mu)
@@ -171,20 +186,29 @@ def fit(potential, observed, mu=None, *, method="wkb", vary=None, bounds=None, s
 
     model, params0, curve = potential._core_args()
     lv, lrot, lmu, rows = design.arrays(masses, omega)
+    bob_kwargs = {}
+    if bob is not None:
+        if bob.reference not in masses:
+            raise ValueError("the reference isotopologue %r of the Born-Oppenheimer correction is not among the data's "
+                             "isotopologues (%s)" % (bob.reference, ", ".join(repr(k) for k in masses)))
+        var, ad, na, rot_eps = bob.variants(design.level_keys, masses, omega)
+        params0 = np.concatenate([params0, bob.start])
+        bob_kwargs = dict(bob_counts=np.array(bob.counts, dtype=np.intc), bob_power=float(bob.p), level_variant=var,
+                          variant_adiabatic=ad, variant_centrifugal=na, variant_rot_eps=rot_eps)
     try:
         out = _core.fit_run_rows(model, params0, curve, lv, lrot, lmu, rows["level_a"], rows["coef_a"],
                                  rows["level_b"], rows["coef_b"], rows["coef_asymptote"], rows["extra_index"],
                                  rows["coef_extra"], rows["offset"], rows["observed"], rows["sigma"],
                                  np.array(design.extra_start, dtype=float), np.asarray(vary_flags, dtype=np.intc),
-                                 lower, upper, max_iterations, method=_METHOD_CODES[method])
+                                 lower, upper, max_iterations, method=_METHOD_CODES[method], **bob_kwargs)
     except ValueError as err:
         if len(err.args) == 2 and isinstance(err.args[1], int):
             raise ValueError(_start_failure_message(err.args[0], design, err.args[1], potential)) from None
         raise
 
-    fitted_potential = type(potential)(**dict(zip(names, out["params"].tolist()))) \
+    fitted_potential = type(potential)(**dict(zip(names, out["params"][:len(names)].tolist()))) \
         if not isinstance(potential, _potentials.PointwisePotential) else potential
-    np_ = len(names)
+    np_ = len(names) + len(bob_names)
     calc_rows, jac_rows = out["calc"], out["jacobian"]
     # per data row, data set after data set (rows not fitted: calc 0, zero Jacobian)
     n_all = sum(len(b.rows) for b in design.blocks)
@@ -215,7 +239,8 @@ def fit(potential, observed, mu=None, *, method="wkb", vary=None, bounds=None, s
         n_infeasible=int(out["n_infeasible"]), last_infeasible=out["last_infeasible"],
         max_iterations=max_iterations, insensitive=[n for n, f in zip(names, out["insensitive"]) if f],
         observed_values=observed_values, sigma=sigma, design=design, extra_values=out["extra"],
-        jacobian_extra=jac[:, np_:], n_level_calculations=int(out["n_level_calculations"]), omega=omega)
+        jacobian_extra=jac[:, np_:], n_level_calculations=int(out["n_level_calculations"]), omega=omega,
+        correction=bob, correction_values=out["params"][len(names):].tolist())
     result._warn()
     return result
 
@@ -275,9 +300,10 @@ def _masses(datasets, mu):
     return out
 
 
-def _vary_flags(potential, vary):
-    names = list(potential.param_names)
-    default = [n not in getattr(potential, "fixed_by_default", ()) for n in names]
+def _vary_flags(potential, vary, extra_names=(), extra_fixed=()):
+    names = list(potential.param_names) + list(extra_names)
+    fixed = tuple(getattr(potential, "fixed_by_default", ())) + tuple(extra_fixed)
+    default = [n not in fixed for n in names]
     if vary is None:
         return default
     if isinstance(vary, dict):
@@ -393,9 +419,14 @@ class FitResult:
                calculated, jacobian, fitted_rows, chi_square, scale_uncertainties, iterations, n_evaluations,
                stop, stop_test, predicted_decrease, n_infeasible, last_infeasible, max_iterations,
                insensitive=(), observed_values=None, sigma=None, design=None, extra_values=(), jacobian_extra=None,
-               n_level_calculations=None, omega=0):
+               n_level_calculations=None, omega=0, correction=None, correction_values=()):
         self = cls.__new__(cls)
-        names = list(potential.param_names)
+        #: the Born-Oppenheimer correction fitted with the potential (None), and its coefficients
+        self.correction = correction
+        corr_names = list(correction.param_names) if correction is not None else []
+        self._correction_values = dict(zip(corr_names, [float(x) for x in correction_values]))
+        self._correction_initial = dict(zip(corr_names, correction.start)) if correction is not None else {}
+        names = list(potential.param_names) + corr_names
         self.potential = potential
         self.initial_potential = initial_potential
         self.observed = observed
@@ -444,8 +475,10 @@ class FitResult:
         parameters (free term values, fitted asymptotes) take part in the covariance; the
         potential's block of it is `covariance`, the extras are in `free_parameters`."""
         extra_names = self.extra_names
-        values = dict(self.potential.params, **dict(zip(extra_names, self._extra_values.tolist())))
-        initial = dict(self.initial_potential.params, **dict(zip(extra_names, self._extra_values.tolist())))
+        values = dict(self.potential.params, **self._correction_values,
+                      **dict(zip(extra_names, self._extra_values.tolist())))
+        initial = dict(self.initial_potential.params, **self._correction_initial,
+                       **dict(zip(extra_names, self._extra_values.tolist())))
         bounds_by_name = dict(bounds_by_name, **{n: (None, None) for n in extra_names})
         pot_var = list(self.var_names)
         all_var = pot_var + extra_names
@@ -615,7 +648,8 @@ class FitResult:
     def _gradient_covariance(self):
         """(indices of the varied determined parameters, their covariance)."""
         names = list(self.potential.param_names)
-        det = [j for j, n in enumerate(self.var_names) if n not in self.undetermined]
+        # the potential's parameters only (correction coefficients do not change the reference levels)
+        det = [j for j, n in enumerate(self.var_names) if n not in self.undetermined and n in names]
         idx = [names.index(self.var_names[j]) for j in det]
         return idx, self.covariance[np.ix_(det, det)]
 
