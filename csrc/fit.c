@@ -326,27 +326,34 @@ static double to_external(double u, double lo, double hi, double *dpdu)
 /* ------------------------------------------------------------------ the fit */
 
 /* The engine fits rows that are linear combinations of levels (wkb_fit_rows): the distinct
-   levels are computed once per evaluation, whatever the number of rows that use them, and
-   the extra linear parameters (free term values of levels outside the model, a fitted
-   asymptote) enter the rows with constant coefficients, so their Jacobian columns cost no
-   level calculation. Fitted variables: the varied potential parameters (through the bound
-   transforms), then every extra parameter (unbounded). */
+   levels are computed once per evaluation, whatever the number of rows that use them. The
+   extra linear parameters (free term values of levels outside the model, a fitted asymptote)
+   enter the rows with constant coefficients, at most one per row, so for given potential
+   parameters p their best values are closed-form weighted means,
+     x_e(p) = sum_{i in e} w_i c_i (obs_i - calc0_i(p)) / sum_{i in e} w_i c_i^2,  w = 1/sigma^2,
+   and the solver works on the projected problem in p alone (variable projection; Golub &
+   Pereyra, SIAM J. Numer. Anal. 10, 413 (1973)) with the exact total derivative
+     d calc_i/dp = J_i - c_i sum_{j in e} w_j c_j J_j / sum_{j in e} w_j c_j^2.
+   The minimum is that of the joint problem; the extras cost neither a level calculation nor a
+   solver variable. The output Jacobian holds the partial derivatives (potential parameters,
+   then the constant extra columns), from which the caller forms the joint covariance. */
 typedef struct {
     wkb_fit_evaluator *ev;
     const wkb_fit_data *levels;
     const wkb_fit_rows *rows;
     const wkb_potential *start;
     const wkb_fit_spec *spec;
-    size_t n, nl, nvp, nv, np, ne, ncol; /* rows, levels, varied potential parameters, all fitted
-                                            variables, model parameters, extras, Jacobian columns */
+    size_t n, nl, nv, np, ne, ncol; /* rows, levels, solver variables (varied potential parameters),
+                                       model parameters, extras, output Jacobian columns */
     size_t var[WKB_MAX_PARAMS];
     double dpdu[WKB_MAX_PARAMS];
-    /* solver variables y: u = u0 + T y (T nv x nv, row-major), T = V S^-1 from the SVD of the
-       weighted Jacobian at the start, so that the solver starts with orthonormal columns */
-    double *u0, *T;
-    double *extra_start;          /* extras at the start */
+    /* solver variables y: u = u0 + T y, T = V S^-1 from the SVD of the weighted Jacobian at the
+       start, so that the solver starts with orthonormal columns */
+    double u0[WKB_MAX_PARAMS], T[WKB_MAX_PARAMS][WKB_MAX_PARAMS];
+    double *extra_den;            /* sum w c^2 of each extra (constant) */
+    double *extra_mean;           /* ne x np: sum w c J / den, the projection of the Jacobian */
     double *level_E, *level_dE;   /* the levels of the last evaluation and dE/dp */
-    /* cache of the last evaluation: x, calc, jac (ncol per row) */
+    /* cache of the last evaluation: x, calc, partial jac (ncol per row), extras */
     double *cache_x, *cache_calc, *cache_jac, *cache_extra;
     int cache_valid;
     /* the last accepted point (where GSL asked for the Jacobian) */
@@ -356,26 +363,22 @@ typedef struct {
     wkb_error last_infeasible;
 } fit_context;
 
-/* Parameters p and extras from the internal vector x (NULL: the start); writes dp/du into ctx->dpdu. */
-static void params_from_x(fit_context *c, const gsl_vector *x, double *p, double *extra)
+/* Parameters p from the internal vector x (NULL: the start); writes dp/du into ctx->dpdu. */
+static void params_from_x(fit_context *c, const gsl_vector *x, double *p)
 {
     memcpy(p, c->start->p, c->np * sizeof *p);
     for (size_t j = 0; j < c->nv; j++) {
+        const size_t k = c->var[j];
         double u = c->u0[j];
         for (size_t l = 0; x && l < c->nv; l++)
-            u += c->T[j * c->nv + l] * gsl_vector_get(x, l);
-        if (j < c->nvp) {
-            const size_t k = c->var[j];
-            p[k] = to_external(u, c->spec->lower[k], c->spec->upper[k], &c->dpdu[j]);
-        } else {
-            extra[j - c->nvp] = u;
-        }
+            u += c->T[j][l] * gsl_vector_get(x, l);
+        p[k] = to_external(u, c->spec->lower[k], c->spec->upper[k], &c->dpdu[j]);
     }
 }
 
-/* The rows from the levels: calc[n] and, if jac, jac[n][ncol] (model parameters, then extras). */
-static void combine_rows(const fit_context *c, const wkb_potential *pot, const double *extra, double *calc,
-                         double *jac)
+/* The rows from the levels with every extra at 0: calc[n] and jac[n][ncol] (model parameters,
+   then the extras' constant columns). */
+static void combine_rows(const fit_context *c, const wkb_potential *pot, double *calc, double *jac)
 {
     const wkb_fit_rows *R = c->rows;
     const size_t np = c->np;
@@ -383,12 +386,12 @@ static void combine_rows(const fit_context *c, const wkb_potential *pot, const d
     int any_asym = 0;
     for (size_t i = 0; i < c->n; i++)
         any_asym |= R->coef_asymptote && R->coef_asymptote[i] != 0;
-    if (any_asym && jac)
+    if (any_asym)
         asymptote_gradient(pot, dA);
     for (size_t i = 0; i < c->n; i++) {
         const int a = R->level_a[i], b = R->level_b ? R->level_b[i] : -1, e = R->extra ? R->extra[i] : -1;
         const double ca = R->coef_a[i], cb = R->coef_b ? R->coef_b[i] : 0;
-        const double cA = R->coef_asymptote ? R->coef_asymptote[i] : 0, ce = R->coef_extra ? R->coef_extra[i] : 0;
+        const double cA = R->coef_asymptote ? R->coef_asymptote[i] : 0;
         double value = R->offset ? R->offset[i] : 0;
         if (a >= 0)
             value += ca * c->level_E[a];
@@ -396,11 +399,7 @@ static void combine_rows(const fit_context *c, const wkb_potential *pot, const d
             value += cb * c->level_E[b];
         if (cA != 0)
             value += cA * asym;
-        if (e >= 0)
-            value += ce * extra[e];
         calc[i] = value;
-        if (!jac)
-            continue;
         double *row = jac + i * c->ncol;
         memset(row, 0, c->ncol * sizeof *row);
         for (size_t k = 0; k < np; k++) {
@@ -412,18 +411,59 @@ static void combine_rows(const fit_context *c, const wkb_potential *pot, const d
             row[k] = d;
         }
         if (e >= 0)
-            row[np + e] = ce;
+            row[np + e] = R->coef_extra[i];
     }
 }
 
-/* Evaluates calc and jac (with respect to p and the extras) at x into the cache. Returns
+/* The best extras for the rows in calc (extras at 0), added into calc; into extra[ne]. */
+static void solve_extras(const fit_context *c, double *calc, double *extra)
+{
+    const wkb_fit_rows *R = c->rows;
+    if (!c->ne)
+        return;
+    for (size_t e = 0; e < c->ne; e++)
+        extra[e] = 0;
+    for (size_t i = 0; i < c->n; i++) {
+        const int e = R->extra ? R->extra[i] : -1;
+        if (e < 0)
+            continue;
+        const double ce = R->coef_extra[i], w = 1 / (R->sigma[i] * R->sigma[i]);
+        extra[e] += w * ce * (R->observed[i] - calc[i]);
+    }
+    for (size_t e = 0; e < c->ne; e++)
+        extra[e] /= c->extra_den[e];
+    for (size_t i = 0; i < c->n; i++) {
+        const int e = R->extra ? R->extra[i] : -1;
+        if (e >= 0)
+            calc[i] += R->coef_extra[i] * extra[e];
+    }
+}
+
+/* extra_mean[e][k] = sum_{i in e} w c J_ik / den_e from the partial Jacobian jac. */
+static void project_means(const fit_context *c, const double *jac)
+{
+    const wkb_fit_rows *R = c->rows;
+    if (!c->ne)
+        return;
+    memset(c->extra_mean, 0, c->ne * c->np * sizeof *c->extra_mean);
+    for (size_t i = 0; i < c->n; i++) {
+        const int e = R->extra ? R->extra[i] : -1;
+        if (e < 0)
+            continue;
+        const double f = R->coef_extra[i] / (R->sigma[i] * R->sigma[i] * c->extra_den[e]);
+        for (size_t k = 0; k < c->np; k++)
+            c->extra_mean[e * c->np + k] += f * jac[i * c->ncol + k];
+    }
+}
+
+/* Evaluates calc (extras at their best) and the partial jac at x into the cache. Returns
    WKB_SUCCESS, a model-domain status (the point is infeasible), or WKB_ENOMEM. */
 static int evaluate_at(fit_context *c, const gsl_vector *x)
 {
     double p[WKB_MAX_PARAMS];
     wkb_potential pot;
     wkb_error err = {0};
-    params_from_x(c, x, p, c->cache_extra);
+    params_from_x(c, x, p);
     for (size_t j = 0; j < c->nv; j++)
         c->cache_x[j] = gsl_vector_get(x, j);
     c->cache_valid = 0;
@@ -438,7 +478,8 @@ static int evaluate_at(fit_context *c, const gsl_vector *x)
         c->last_infeasible = err;
         return status;
     }
-    combine_rows(c, &pot, c->cache_extra, c->cache_calc, c->cache_jac);
+    combine_rows(c, &pot, c->cache_calc, c->cache_jac);
+    solve_extras(c, c->cache_calc, c->cache_extra);
     for (size_t i = 0; i < c->n; i++)
         if (!isfinite(c->cache_calc[i])) {
             c->n_infeasible++;
@@ -471,14 +512,17 @@ static int residual_f(const gsl_vector *x, void *params, gsl_vector *f)
     return GSL_SUCCESS;
 }
 
-/* d f_i / d u_j of row i from its Jacobian row (dpdu current) into du[nv]. */
+/* d f_i / d u_j of row i of the projected problem (dpdu and extra_mean current) into du[nv]. */
 static void row_du(const fit_context *c, size_t i, const double *row, double *du)
 {
     const double s = c->rows->sigma[i];
-    for (size_t j = 0; j < c->nvp; j++)
-        du[j] = row[c->var[j]] * c->dpdu[j] / s;
-    for (size_t j = c->nvp; j < c->nv; j++)
-        du[j] = row[c->np + (j - c->nvp)] / s;
+    const int e = c->rows->extra ? c->rows->extra[i] : -1;
+    const double ce = e >= 0 ? c->rows->coef_extra[i] : 0;
+    for (size_t j = 0; j < c->nv; j++) {
+        const size_t k = c->var[j];
+        const double d = e >= 0 ? row[k] - ce * c->extra_mean[e * c->np + k] : row[k];
+        du[j] = d * c->dpdu[j] / s;
+    }
 }
 
 static int residual_df(const gsl_vector *x, void *params, gsl_matrix *J)
@@ -486,22 +530,22 @@ static int residual_df(const gsl_vector *x, void *params, gsl_matrix *J)
     fit_context *c = params;
     if (!cache_matches(c, x) && evaluate_at(c, x))
         return GSL_EDOM; /* GSL asks for J only at accepted (feasible) points */
-    double p[WKB_MAX_PARAMS];
-    params_from_x(c, x, p, c->best_extra); /* refreshes dpdu */
-    double *du = c->u0 + c->nv; /* scratch after u0 (allocated 2 nv) */
+    double p[WKB_MAX_PARAMS], du[WKB_MAX_PARAMS];
+    params_from_x(c, x, p); /* refreshes dpdu */
+    project_means(c, c->cache_jac);
     for (size_t i = 0; i < c->n; i++) {
         row_du(c, i, c->cache_jac + i * c->ncol, du);
         for (size_t l = 0; l < c->nv; l++) {
             double sum = 0;
             for (size_t j = 0; j < c->nv; j++)
-                if (du[j] != 0)
-                    sum += du[j] * c->T[j * c->nv + l];
+                sum += du[j] * c->T[j][l];
             gsl_matrix_set(J, i, l, sum);
         }
     }
     /* GSL evaluates the Jacobian exactly at each accepted point: remember it */
     memcpy(c->best_calc, c->cache_calc, c->n * sizeof *c->best_calc);
     memcpy(c->best_jac, c->cache_jac, c->n * c->ncol * sizeof *c->best_jac);
+    memcpy(c->best_extra, c->cache_extra, c->ne * sizeof *c->best_extra);
     memcpy(c->best_p, p, c->np * sizeof *p);
     return GSL_SUCCESS;
 }
@@ -547,16 +591,17 @@ static int whitening(fit_context *c, wkb_error *err)
     const size_t nv = c->nv;
     gsl_matrix *A = gsl_matrix_alloc(c->n, nv), *V = gsl_matrix_alloc(nv, nv);
     gsl_vector *S = gsl_vector_alloc(nv), *work = gsl_vector_alloc(nv);
-    double *du = c->u0 + nv;
+    double du[WKB_MAX_PARAMS];
     int status = WKB_SUCCESS;
     if (!A || !V || !S || !work) {
         status = wkb_fail(err, WKB_ENOMEM, "out of memory for the fit's change of variables");
         goto cleanup;
     }
-    for (size_t j = 0; j < c->nvp; j++) {
+    for (size_t j = 0; j < nv; j++) {
         const size_t k = c->var[j];
         to_external(c->u0[j], c->spec->lower[k], c->spec->upper[k], &c->dpdu[j]);
     }
+    project_means(c, c->cache_jac);
     for (size_t i = 0; i < c->n; i++) {
         row_du(c, i, c->cache_jac + i * c->ncol, du);
         for (size_t j = 0; j < nv; j++)
@@ -573,7 +618,7 @@ static int whitening(fit_context *c, wkb_error *err)
     }
     for (size_t j = 0; j < nv; j++)
         for (size_t l = 0; l < nv; l++)
-            c->T[j * nv + l] = gsl_matrix_get(V, j, l) / GSL_MAX(gsl_vector_get(S, l), 1e-10 * smax);
+            c->T[j][l] = gsl_matrix_get(V, j, l) / GSL_MAX(gsl_vector_get(S, l), 1e-10 * smax);
 cleanup:
     gsl_matrix_free(A);
     gsl_matrix_free(V);
@@ -656,7 +701,7 @@ int wkb_fit_run_rows(const wkb_potential *start, const wkb_fit_data *levels, con
         return status;
     if (levels->energy_zero != WKB_ZERO_MINIMUM)
         return wkb_fail(err, WKB_EINVAL, "the levels of a row fit are term values above the minimum");
-    if ((status = check_spec(start, spec, rows->n, rows->n_extra, c.var, &c.nvp, err)))
+    if ((status = check_spec(start, spec, rows->n, rows->n_extra, c.var, &c.nv, err)))
         return status;
     c.levels = levels;
     c.rows = rows;
@@ -673,68 +718,54 @@ int wkb_fit_run_rows(const wkb_potential *start, const wkb_fit_data *levels, con
         status = err ? err->status : WKB_ENOMEM;
         goto cleanup;
     }
-    const size_t nv_max = c.nvp + c.ne;
-    c.u0 = malloc(2 * (nv_max + 1) * sizeof(double));
-    c.T = malloc((nv_max * nv_max + 1) * sizeof(double));
-    c.extra_start = malloc((c.ne + 1) * sizeof(double));
+    c.extra_den = calloc(c.ne + 1, sizeof(double));
+    c.extra_mean = malloc((c.ne * c.np + 1) * sizeof(double));
     c.cache_extra = malloc((c.ne + 1) * sizeof(double));
     c.best_extra = malloc((c.ne + 1) * sizeof(double));
     c.level_E = malloc(c.nl * sizeof(double));
     c.level_dE = malloc(c.nl * c.np * sizeof(double));
-    c.cache_x = malloc((nv_max + 1) * sizeof(double));
+    c.cache_x = malloc((c.nv + 1) * sizeof(double));
     c.cache_calc = malloc(c.n * sizeof(double));
     c.cache_jac = malloc(c.n * c.ncol * sizeof(double));
     c.best_calc = calc;
     c.best_jac = jac;
-    if (!c.u0 || !c.T || !c.extra_start || !c.cache_extra || !c.best_extra || !c.level_E || !c.level_dE ||
+    if (!c.extra_den || !c.extra_mean || !c.cache_extra || !c.best_extra || !c.level_E || !c.level_dE ||
         !c.cache_x || !c.cache_calc || !c.cache_jac) {
         wkb_fail(err, WKB_ENOMEM, "out of memory for a fit of %zu rows and %zu levels", c.n, c.nl);
         goto cleanup;
     }
+    for (size_t i = 0; rows->extra && i < c.n; i++)
+        if (rows->extra[i] >= 0)
+            c.extra_den[rows->extra[i]] += rows->coef_extra[i] * rows->coef_extra[i] / (rows->sigma[i] * rows->sigma[i]);
 
     /* the starting point must be valid: say clearly why it is not (bad_row names the level) */
     if ((status = wkb_fit_evaluate(c.ev, start, c.level_E, c.level_dE, &out->bad_row, err)))
         goto cleanup;
     out->bad_row = (size_t)-1;
-    /* extras given as NaN start at their weighted least-squares values for the starting
-       potential (exact: the rows are linear in them and each row holds at most one) */
-    for (size_t e = 0; e < c.ne; e++)
-        c.extra_start[e] = isnan(extra[e]) ? 0.0 : extra[e];
-    combine_rows(&c, start, c.extra_start, c.cache_calc, c.cache_jac);
-    {
-        double *num = c.cache_extra, *den = c.best_extra;
-        for (size_t e = 0; e < c.ne; e++)
-            num[e] = den[e] = 0;
-        for (size_t i = 0; rows->extra && i < c.n; i++) {
-            const int e = rows->extra[i];
-            if (e < 0 || !isnan(extra[e]))
-                continue;
-            const double ce = rows->coef_extra[i], s2 = rows->sigma[i] * rows->sigma[i];
-            num[e] += ce * (rows->observed[i] - c.cache_calc[i]) / s2;
-            den[e] += ce * ce / s2;
-        }
-        for (size_t e = 0; e < c.ne; e++)
-            if (isnan(extra[e]))
-                c.extra_start[e] = num[e] / den[e];
-    }
-    combine_rows(&c, start, c.extra_start, c.cache_calc, c.cache_jac);
+    combine_rows(&c, start, c.cache_calc, c.cache_jac);
+    solve_extras(&c, c.cache_calc, c.cache_extra);
     /* a varied parameter that no row depends on (J=0 levels of a Morse well and re) would
-       only feed rounding noise to the solver, which then wanders along it: hold it fixed */
+       only feed rounding noise to the solver, which then wanders along it: hold it fixed
+       (judged on the projected rows: what the extras absorb carries no information) */
     {
-        double sens[WKB_MAX_PARAMS], column[WKB_MAX_PARAMS], top = 0;
+        double sens[WKB_MAX_PARAMS], column[WKB_MAX_PARAMS], top = 0, du[WKB_MAX_PARAMS];
         size_t kept = 0;
-        for (size_t j = 0; j < c.nvp; j++) {
-            const size_t k = c.var[j];
-            double s2 = 0;
-            for (size_t i = 0; i < c.n; i++) {
-                const double q = c.cache_jac[i * c.ncol + k] / rows->sigma[i];
-                s2 += q * q;
-            }
-            column[j] = sqrt(s2);
-            sens[j] = column[j] * fabs(start->p[k]);
+        for (size_t j = 0; j < c.nv; j++)
+            c.dpdu[j] = 1;
+        project_means(&c, c.cache_jac);
+        for (size_t j = 0; j < c.nv; j++)
+            column[j] = 0;
+        for (size_t i = 0; i < c.n; i++) {
+            row_du(&c, i, c.cache_jac + i * c.ncol, du);
+            for (size_t j = 0; j < c.nv; j++)
+                column[j] += du[j] * du[j];
+        }
+        for (size_t j = 0; j < c.nv; j++) {
+            column[j] = sqrt(column[j]);
+            sens[j] = column[j] * fabs(start->p[c.var[j]]);
             top = GSL_MAX(top, sens[j]);
         }
-        for (size_t j = 0; j < c.nvp; j++) {
+        for (size_t j = 0; j < c.nv; j++) {
             /* a parameter starting at 0 has no scale of its own: keep it unless no row depends on it */
             const int at_zero = start->p[c.var[j]] == 0;
             if (at_zero ? column[j] > 0 : sens[j] > WKB_FIT_INSENSITIVE * top)
@@ -742,13 +773,12 @@ int wkb_fit_run_rows(const wkb_potential *start, const wkb_fit_data *levels, con
             else
                 out->insensitive[c.var[j]] = 1;
         }
-        if (kept == 0 && c.ne == 0) {
+        if (kept == 0) {
             status = wkb_fail(err, WKB_EINVAL, "no level depends on any varied parameter: nothing can be fitted");
             goto cleanup;
         }
-        c.nvp = kept;
+        c.nv = kept;
     }
-    c.nv = c.nvp + c.ne;
     x = gsl_vector_alloc(c.nv);
     g = gsl_vector_alloc(c.nv);
     t = gsl_vector_alloc(c.nv);
@@ -758,19 +788,17 @@ int wkb_fit_run_rows(const wkb_potential *start, const wkb_fit_data *levels, con
         goto cleanup;
     }
     for (size_t j = 0; j < c.nv; j++) {
-        if (j < c.nvp) {
-            const size_t k = c.var[j];
-            c.u0[j] = to_internal(start->p[k], spec->lower[k], spec->upper[k]);
-        } else {
-            c.u0[j] = c.extra_start[j - c.nvp];
-        }
+        const size_t k = c.var[j];
+        c.u0[j] = to_internal(start->p[k], spec->lower[k], spec->upper[k]);
         gsl_vector_set(x, j, 0.0);
     }
     if ((status = whitening(&c, err)))
         goto cleanup;
     /* the start is the first accepted point until GSL accepts another */
     memcpy(c.best_p, start->p, c.np * sizeof(double));
-    memcpy(c.best_extra, c.extra_start, c.ne * sizeof(double));
+    memcpy(c.best_extra, c.cache_extra, c.ne * sizeof(double));
+    memcpy(c.best_calc, c.cache_calc, c.n * sizeof(double));
+    memcpy(c.best_jac, c.cache_jac, c.n * c.ncol * sizeof(double));
 
     {
         gsl_multifit_nlinear_parameters fp = gsl_multifit_nlinear_default_parameters();
@@ -857,9 +885,8 @@ cleanup:
     gsl_vector_free(g);
     gsl_vector_free(t);
     gsl_matrix_free(N);
-    free(c.u0);
-    free(c.T);
-    free(c.extra_start);
+    free(c.extra_den);
+    free(c.extra_mean);
     free(c.cache_extra);
     free(c.best_extra);
     free(c.level_E);

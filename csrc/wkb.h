@@ -478,8 +478,9 @@ int wkb_fit_run(const wkb_potential *start, const wkb_fit_data *data, const wkb_
 
 /* The fit of wkb_fit_run to rows (wkb_fit_rows) over distinct levels (energy_zero minimum;
    each level is computed once per evaluation whatever the number of rows using it).
-   extra[n_extra]: in, the starting extras (NaN: the weighted least-squares value for the
-   starting potential); out, the fitted ones. calc[n_rows], jac[n_rows][n_params + n_extra].
+   extra[n_extra]: out, the fitted extras (closed-form weighted means for the potential: the
+   solver works on the problem projected onto the potential's parameters, see fit.c; the values
+   passed in are not used). calc[n_rows], jac[n_rows][n_params + n_extra].
    out->bad_row names the failing LEVEL at the start. Status as wkb_fit_run. */
 int wkb_fit_run_rows(const wkb_potential *start, const wkb_fit_data *levels, const wkb_fit_rows *rows,
                      const wkb_fit_spec *spec, double *extra, const wkb_fit_settings *settings,
