@@ -406,3 +406,34 @@ def test_cli_check_shows_the_plausibility_warnings_and_fit_takes_lines(tmp_path,
                  "--method", "exact", "-o", str(out_json)]) == 0
     text = capsys.readouterr().out
     assert "line positions" in text and "term values" in text
+
+
+def test_readme_mixed_data_example_runs(tmp_path, monkeypatch):
+    # the README's example, executed on invented data files made here from exact levels of its MLR
+    import os
+    import re as _re
+    text = open(os.path.join(os.path.dirname(__file__), "..", "README.md"), encoding="utf-8").read()
+    code = _re.search(r"<!-- mixed-data example.*?```python\n(.*?)```", text, _re.S).group(1)
+    true = wkbfit.MLR(De=5000.0, re=3.0, C6=2.0e6, C8=1.0e8, betas=[0.3, 0.1], damping="douketis",
+                      rho=wkbfit.potentials.damping_range("douketis", "Na", "Na"))
+    mu = 11.5
+    t = exact_levels(true, mu, vs=list(range(6)), Js=[0, 1, 2, 3])
+    E = {(int(v), int(J)): float(e) for v, J, e in zip(t.v, t.J, t.energy)}
+    (tmp_path / "levels.csv").write_text("v,J,energy,uncertainty\n" + "".join(
+        "%d,0,%.9f,0.01\n" % (v, E[(v, 0)]) for v in range(4)))
+    rows = ["v_upper J_upper v_lower J_lower wavenumber uncertainty upper_state"]
+    for v in range(6):
+        for Jl in (1, 3):
+            rows.append("7 2 %d %d %.9f 0.01 B" % (v, Jl, 21000.0 - E[(v, Jl)]))
+    (tmp_path / "fluorescence.txt").write_text("\n".join(rows) + "\n")
+    last = exact_levels(true, mu, vs=None, Js=[0])
+    (tmp_path / "binding_MHz.csv").write_text("v,energy,uncertainty\n" + "".join(
+        "%d,%.6f,1.0\n" % (v, b / CM1_PER_UNIT["MHz"]) for v, b in zip(last.v[-3:], last.binding_energy[-3:])))
+    monkeypatch.chdir(tmp_path)
+    namespace = {}
+    exec(compile(code, "README.md", "exec"), namespace)
+    result = namespace["result"]
+    assert result.success
+    assert list(result.free_parameters) == ["T[B v=7, J=2]"]
+    assert result.free_parameters["T[B v=7, J=2]"].value == pytest.approx(21000.0, abs=1e-3)
+    assert (tmp_path / "fit.json").exists()

@@ -712,6 +712,9 @@ class FitResult:
         if self.undetermined:
             notes.append("uncertainties leave out the undetermined parameter%s %s (held at their values)" % (
                 "s" if len(self.undetermined) > 1 else "", ", ".join(self.undetermined)))
+        if getattr(self, "correction", None) is not None:
+            notes.append("levels of the reference isotopologue's potential (%s): the Born-Oppenheimer corrections "
+                         "of other isotopologues are not applied to predictions" % self.correction.reference)
         if self.method == "wkb":
             notes.append("levels are first-order WKB levels of the fitted potential")
         else:
