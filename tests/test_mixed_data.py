@@ -321,6 +321,13 @@ def test_omega_in_the_centrifugal_term():
     within(r, TRUE)
     wrong = fit(START, obs, MU, method="exact")
     assert wrong.standard_error > 10 * r.standard_error
+    # predictions use J(J+1) - Omega^2: J = 7 of the state is the exact J = 4 level without Omega
+    pred = r.predict(J=7)
+    E4 = exact_table(TRUE, range(3), (4,))
+    for v in range(3):
+        assert abs(pred.energy[v] - E4[(v, 4)]) < 3 * pred.energy_uncertainty[v] + 1e-3
+    with pytest.raises(ValueError, match="J=3 is below Omega=6"):
+        r.predict(J=3)
     with pytest.raises(ValueError, match="J=2 is below Omega=3"):
         fit(START, read_levels({"v": [0, 1, 2, 3], "J": [2, 3, 3, 3], "energy": [1, 2, 3, 4],
                                 "uncertainty": [0.1] * 4}), MU, omega=3)

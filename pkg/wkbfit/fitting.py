@@ -697,15 +697,18 @@ class FitResult:
         if not (math.isfinite(Jf) and Jf == int(Jf) and Jf >= 0):
             raise ValueError("J=%r must be an integer >= 0" % (J,))
         J = int(Jf)
+        omega = int(getattr(self, "omega", 0) or 0)
+        if J < omega:
+            raise ValueError("J=%d is below Omega=%d of the fitted state: its levels have J >= Omega" % (J, omega))
         model, params, curve = self.potential._core_args()
         code = _METHOD_CODES[self.method]
-        res = _core.fit_levels(model, params, curve, mass, float(J * (J + 1)), code)
+        res = _core.fit_levels(model, params, curve, mass, float(J * (J + 1) - omega * omega), code)
         E, G = res["energy"], res["jacobian"]
         asym, dA = res["asymptote"], self._asymptote_gradient()
-        if J == 0:
+        if J == omega:
             E00, G00 = (E[0], G[0]) if len(E) else (math.nan, np.full(len(dA), math.nan))
         else:
-            r0 = _core.fit_levels(model, params, curve, mass, 0.0, code)
+            r0 = _core.fit_levels(model, params, curve, mass, float(omega), code)  # v=0, J=Omega
             E00, G00 = (r0["energy"][0], r0["jacobian"][0]) if len(r0["energy"]) else \
                 (math.nan, np.full(len(dA), math.nan))
         notes = []
