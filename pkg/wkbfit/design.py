@@ -56,11 +56,21 @@ class Design:
             self.extra_start.append(start)
         return self.extra_index[key]
 
+    _ORDER = ("level_a", "coef_a", "level_b", "coef_b", "coef_asymptote", "extra_index", "coef_extra", "offset",
+              "observed", "sigma")
+
     def add_row(self, origin, observed, sigma, a=-1, ca=0.0, b=-1, cb=0.0, cA=0.0, x=-1, cx=0.0, offset=0.0):
-        for k, v in (("level_a", a), ("coef_a", ca), ("level_b", b), ("coef_b", cb), ("coef_asymptote", cA),
-                     ("extra_index", x), ("coef_extra", cx), ("offset", offset), ("observed", observed),
-                     ("sigma", sigma)):
-            self.cols[k].append(v)
+        c = self.cols
+        c["level_a"].append(a)
+        c["coef_a"].append(ca)
+        c["level_b"].append(b)
+        c["coef_b"].append(cb)
+        c["coef_asymptote"].append(cA)
+        c["extra_index"].append(x)
+        c["coef_extra"].append(cx)
+        c["offset"].append(offset)
+        c["observed"].append(observed)
+        c["sigma"].append(sigma)
         self.row_origin.append(origin)
         return len(self.row_origin) - 1
 

@@ -514,7 +514,9 @@ class FitResult:
                 break
             A = Jw[:, keep]
             A = A / np.linalg.norm(A, axis=0)
-            _, s, vt = np.linalg.svd(A, full_matrices=False)
+            # singular values and vectors of A are those of R from A = QR (cheaper for many rows)
+            _, s, vt = np.linalg.svd(np.linalg.qr(A, mode="r") if A.shape[0] > 2 * A.shape[1] else A,
+                                     full_matrices=False)
             cond = float(s[0] / s[-1]) if s[-1] > 0 else math.inf
             small = s < _RCOND_SINGULAR * s[0]
             if not np.any(small):
