@@ -444,3 +444,37 @@ def test_readme_mixed_data_example_runs(tmp_path, monkeypatch):
     assert list(result.free_parameters) == ["T[B v=7, J=2]"]
     assert result.free_parameters["T[B v=7, J=2]"].value == pytest.approx(21000.0, abs=1e-3)
     assert (tmp_path / "fit.json").exists()
+
+
+def test_core_term_value_fit_is_the_row_fit_for_every_energy_zero():
+    # _core.fit_run (term values in one energy zero) now runs through the row engine: the three
+    # zeros recover the potential from its own exact levels (exact method: no model error)
+    from wkbfit import _core
+    E = exact_table(TRUE, range(8), (0,))
+    v = np.arange(1, 8, dtype=np.intc)
+    Ev = np.array([E[(k, 0)] for k in range(8)])
+    for zero, obs in ((0, Ev[1:]), (1, TRUE.De - Ev[1:]), (2, Ev[1:] - Ev[0])):
+        out = _core.fit_run("morse", np.array(START._params), None, v, np.zeros(7), np.full(7, MU), obs,
+                            np.full(7, 0.01), zero, np.array([1, 0, 1], dtype=np.intc), np.full(3, -np.inf),
+                            np.full(3, np.inf), method=1)
+        assert out["stop"] == "converged"
+        np.testing.assert_allclose(out["params"][[0, 2]], [TRUE.De, TRUE.a], rtol=1e-7)
+
+
+def test_json_round_trip_keeps_units_and_free_values(tmp_path):
+    pot, mu, v, b = binding_data()
+    c = scipy.constants.c
+    obs = read_levels({"v": v, "energy": b * (c * 100) / 1e6, "uncertainty": np.full(len(v), 3.0)},
+                      energy_zero="asymptote", unit="MHz")
+    r = fit(wkbfit.LennardJones(De=310.0, re=4.02), obs, mu, method="exact")
+    path = tmp_path / "r.json"
+    r.save_json(path)
+    back = wkbfit.FitResult.load_json(path)
+    assert back.observed.unit == "MHz"
+    np.testing.assert_allclose(back.residuals, r.residuals, rtol=1e-12, atol=1e-15)
+    assert back.report() == r.report()
+    cols, _ = progression(n_upper=2)
+    r2 = fit(START, read_lines(cols), MU)
+    back2 = wkbfit.FitResult.from_dict(r2.to_dict())
+    assert list(back2.free_parameters) == list(r2.free_parameters)
+    assert back2.report() == r2.report()
