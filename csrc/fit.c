@@ -76,7 +76,13 @@ struct wkb_fit_evaluator {
     size_t *order;  /* row indices sorted by (mu, rot, v) */
     wkb_well *well;
     const wkb_level_source *source; /* NULL: first-order WKB levels */
+    size_t n_level_calculations;    /* levels computed since the evaluator was made */
 };
+
+size_t wkb_fit_evaluator_level_calculations(const wkb_fit_evaluator *ev)
+{
+    return ev ? ev->n_level_calculations : 0;
+}
 
 /* Sort key order: reduced mass, then rotation, then v. */
 static int row_before(const wkb_fit_data *d, size_t a, size_t b)
@@ -192,6 +198,7 @@ static void asymptote_gradient(const wkb_potential *pot, double *dA)
 /* One level of the current well (WKB) or of the external source. */
 static int level_of(wkb_fit_evaluator *ev, int v, double *energy, double *dEdp, wkb_error *err)
 {
+    ev->n_level_calculations++;
     if (ev->source)
         return ev->source->level(ev->source->ctx, v, energy, dEdp, err);
     wkb_level level;
@@ -217,6 +224,7 @@ int wkb_fit_evaluate(wkb_fit_evaluator *ev, const wkb_potential *pot, double *ca
     double dA[WKB_MAX_PARAMS], dE[WKB_MAX_PARAMS], ref_dE[WKB_MAX_PARAMS];
     double ref_E = 0, asym = wkb_potential_asymptote(pot);
     double cur_mu = NAN, cur_rot = NAN, ref_mu = NAN;
+    const wkb_model *cur_model = NULL;
     int status;
 
     if (d->energy_zero == WKB_ZERO_ASYMPTOTE)
@@ -230,15 +238,20 @@ int wkb_fit_evaluate(wkb_fit_evaluator *ev, const wkb_potential *pot, double *ca
             /* the data zero of this isotopologue: its level v=0, J=0 */
             if ((status = set_well(ev, pot, mu, 0.0, err)))
                 return status;
-            cur_mu = mu, cur_rot = 0.0;
+            cur_mu = mu, cur_rot = 0.0, cur_model = NULL;
             if ((status = level_of(ev, 0, &ref_E, ref_dE, err)))
                 return status;
             ref_mu = mu;
         }
-        if (mu != cur_mu || rot != cur_rot) {
-            if ((status = set_well(ev, pot, mu, rot, err)))
+        /* a level with a model of its own (Born-Oppenheimer correction variant) */
+        const wkb_model *lm = d->level_model ? d->level_model[i] : NULL;
+        if (mu != cur_mu || rot != cur_rot || lm != cur_model) {
+            wkb_potential variant = *pot;
+            if (lm)
+                variant.model = lm;
+            if ((status = set_well(ev, &variant, mu, rot, err)))
                 return status;
-            cur_mu = mu, cur_rot = rot;
+            cur_mu = mu, cur_rot = rot, cur_model = lm;
         }
         double E;
         if ((status = level_of(ev, d->v[i], &E, dE, err)))
@@ -316,42 +329,139 @@ static double to_external(double u, double lo, double hi, double *dpdu)
 
 /* ------------------------------------------------------------------ the fit */
 
+/* The engine fits rows that are linear combinations of levels (wkb_fit_rows): the distinct
+   levels are computed once per evaluation, whatever the number of rows that use them. The
+   extra linear parameters (free term values of levels outside the model, a fitted asymptote)
+   enter the rows with constant coefficients, at most one per row, so for given potential
+   parameters p their best values are closed-form weighted means,
+     x_e(p) = sum_{i in e} w_i c_i (obs_i - calc0_i(p)) / sum_{i in e} w_i c_i^2,  w = 1/sigma^2,
+   and the solver works on the projected problem in p alone (variable projection; Golub &
+   Pereyra, SIAM J. Numer. Anal. 10, 413 (1973)) with the exact total derivative
+     d calc_i/dp = J_i - c_i sum_{j in e} w_j c_j J_j / sum_{j in e} w_j c_j^2.
+   The minimum is that of the joint problem; the extras cost neither a level calculation nor a
+   solver variable. The output Jacobian holds the partial derivatives (potential parameters,
+   then the constant extra columns), from which the caller forms the joint covariance. */
 typedef struct {
     wkb_fit_evaluator *ev;
-    const wkb_fit_data *data;
+    const wkb_fit_data *levels;
+    const wkb_fit_rows *rows;
     const wkb_potential *start;
     const wkb_fit_spec *spec;
-    size_t n, nv, np;
+    size_t n, nl, nv, np, ne, ncol; /* rows, levels, solver variables (varied potential parameters),
+                                       model parameters, extras, output Jacobian columns */
     size_t var[WKB_MAX_PARAMS];
     double dpdu[WKB_MAX_PARAMS];
-    /* solver variables y: u = u0 + T y, T = V S^-1 from the SVD of the weighted Jacobian at
-       the start, so that the solver starts with orthonormal Jacobian columns */
+    /* solver variables y: u = u0 + T y, T = V S^-1 from the SVD of the weighted Jacobian at the
+       start, so that the solver starts with orthonormal columns */
     double u0[WKB_MAX_PARAMS], T[WKB_MAX_PARAMS][WKB_MAX_PARAMS];
-    /* cache of the last evaluation: x, calc, jac (np per row) */
-    double *cache_x, *cache_calc, *cache_jac;
+    double *extra_den;            /* sum w c^2 of each extra (constant) */
+    double *extra_mean;           /* ne x np: sum w c J / den, the projection of the Jacobian */
+    double *level_E, *level_dE;   /* the levels of the last evaluation and dE/dp */
+    /* cache of the last evaluation: x, calc, partial jac (ncol per row), extras */
+    double *cache_x, *cache_calc, *cache_jac, *cache_extra;
     int cache_valid;
     /* the last accepted point (where GSL asked for the Jacobian) */
-    double *best_calc, *best_jac;
+    double *best_calc, *best_jac, *best_extra;
     double best_p[WKB_MAX_PARAMS];
     size_t n_infeasible, n_eval;
     wkb_error last_infeasible;
 } fit_context;
 
-/* Parameters p from the internal vector x; writes dp/du into ctx->dpdu. */
+/* Parameters p from the internal vector x (NULL: the start); writes dp/du into ctx->dpdu. */
 static void params_from_x(fit_context *c, const gsl_vector *x, double *p)
 {
     memcpy(p, c->start->p, c->np * sizeof *p);
     for (size_t j = 0; j < c->nv; j++) {
         const size_t k = c->var[j];
         double u = c->u0[j];
-        for (size_t l = 0; l < c->nv; l++)
+        for (size_t l = 0; x && l < c->nv; l++)
             u += c->T[j][l] * gsl_vector_get(x, l);
         p[k] = to_external(u, c->spec->lower[k], c->spec->upper[k], &c->dpdu[j]);
     }
 }
 
-/* Evaluates calc and jac (with respect to p) at x into the cache. Returns WKB_SUCCESS,
-   a model-domain status (the point is infeasible), or WKB_ENOMEM. */
+/* The rows from the levels with every extra at 0: calc[n] and jac[n][ncol] (model parameters,
+   then the extras' constant columns). */
+static void combine_rows(const fit_context *c, const wkb_potential *pot, double *calc, double *jac)
+{
+    const wkb_fit_rows *R = c->rows;
+    const size_t np = c->np;
+    double dA[WKB_MAX_PARAMS] = {0}, asym = wkb_potential_asymptote(pot);
+    int any_asym = 0;
+    for (size_t i = 0; i < c->n; i++)
+        any_asym |= R->coef_asymptote && R->coef_asymptote[i] != 0;
+    if (any_asym)
+        asymptote_gradient(pot, dA);
+    for (size_t i = 0; i < c->n; i++) {
+        const int a = R->level_a[i], b = R->level_b ? R->level_b[i] : -1, e = R->extra ? R->extra[i] : -1;
+        const double ca = R->coef_a[i], cb = R->coef_b ? R->coef_b[i] : 0;
+        const double cA = R->coef_asymptote ? R->coef_asymptote[i] : 0;
+        double value = R->offset ? R->offset[i] : 0;
+        if (a >= 0)
+            value += ca * c->level_E[a];
+        if (b >= 0)
+            value += cb * c->level_E[b];
+        if (cA != 0)
+            value += cA * asym;
+        calc[i] = value;
+        double *row = jac + i * c->ncol;
+        memset(row, 0, c->ncol * sizeof *row);
+        for (size_t k = 0; k < np; k++) {
+            double d = cA * dA[k];
+            if (a >= 0)
+                d += ca * c->level_dE[a * np + k];
+            if (b >= 0)
+                d += cb * c->level_dE[b * np + k];
+            row[k] = d;
+        }
+        if (e >= 0)
+            row[np + e] = R->coef_extra[i];
+    }
+}
+
+/* The best extras for the rows in calc (extras at 0), added into calc; into extra[ne]. */
+static void solve_extras(const fit_context *c, double *calc, double *extra)
+{
+    const wkb_fit_rows *R = c->rows;
+    if (!c->ne)
+        return;
+    for (size_t e = 0; e < c->ne; e++)
+        extra[e] = 0;
+    for (size_t i = 0; i < c->n; i++) {
+        const int e = R->extra ? R->extra[i] : -1;
+        if (e < 0)
+            continue;
+        const double ce = R->coef_extra[i], w = 1 / (R->sigma[i] * R->sigma[i]);
+        extra[e] += w * ce * (R->observed[i] - calc[i]);
+    }
+    for (size_t e = 0; e < c->ne; e++)
+        extra[e] /= c->extra_den[e];
+    for (size_t i = 0; i < c->n; i++) {
+        const int e = R->extra ? R->extra[i] : -1;
+        if (e >= 0)
+            calc[i] += R->coef_extra[i] * extra[e];
+    }
+}
+
+/* extra_mean[e][k] = sum_{i in e} w c J_ik / den_e from the partial Jacobian jac. */
+static void project_means(const fit_context *c, const double *jac)
+{
+    const wkb_fit_rows *R = c->rows;
+    if (!c->ne)
+        return;
+    memset(c->extra_mean, 0, c->ne * c->np * sizeof *c->extra_mean);
+    for (size_t i = 0; i < c->n; i++) {
+        const int e = R->extra ? R->extra[i] : -1;
+        if (e < 0)
+            continue;
+        const double f = R->coef_extra[i] / (R->sigma[i] * R->sigma[i] * c->extra_den[e]);
+        for (size_t k = 0; k < c->np; k++)
+            c->extra_mean[e * c->np + k] += f * jac[i * c->ncol + k];
+    }
+}
+
+/* Evaluates calc (extras at their best) and the partial jac at x into the cache. Returns
+   WKB_SUCCESS, a model-domain status (the point is infeasible), or WKB_ENOMEM. */
 static int evaluate_at(fit_context *c, const gsl_vector *x)
 {
     double p[WKB_MAX_PARAMS];
@@ -363,13 +473,23 @@ static int evaluate_at(fit_context *c, const gsl_vector *x)
     c->cache_valid = 0;
     c->n_eval++;
     int status = wkb_potential_init(&pot, c->start->model, p, c->start->curve, &err);
+    if (!status && strcmp(pot.model->name, "born_oppenheimer") == 0)
+        status = wkb_bob_potential_check((const wkb_bob_model *)pot.model, p, &err);
     if (!status)
-        status = wkb_fit_evaluate(c->ev, &pot, c->cache_calc, c->cache_jac, NULL, &err);
+        status = wkb_fit_evaluate(c->ev, &pot, c->level_E, c->level_dE, NULL, &err);
     if (status) {
         c->n_infeasible++;
         c->last_infeasible = err;
         return status;
     }
+    combine_rows(c, &pot, c->cache_calc, c->cache_jac);
+    solve_extras(c, c->cache_calc, c->cache_extra);
+    for (size_t i = 0; i < c->n; i++)
+        if (!isfinite(c->cache_calc[i])) {
+            c->n_infeasible++;
+            wkb_fail(&c->last_infeasible, WKB_ENUMERIC, "the calculated value of row %zu is not finite", i + 1);
+            return WKB_ENUMERIC;
+        }
     c->cache_valid = 1;
     return WKB_SUCCESS;
 }
@@ -392,8 +512,21 @@ static int residual_f(const gsl_vector *x, void *params, gsl_vector *f)
         return GSL_ENOMEM;
     for (size_t i = 0; i < c->n; i++)
         gsl_vector_set(f, i, status ? INFEASIBLE_RESIDUAL
-                                    : (c->cache_calc[i] - c->data->energy[i]) / c->data->sigma[i]);
+                                    : (c->cache_calc[i] - c->rows->observed[i]) / c->rows->sigma[i]);
     return GSL_SUCCESS;
+}
+
+/* d f_i / d u_j of row i of the projected problem (dpdu and extra_mean current) into du[nv]. */
+static void row_du(const fit_context *c, size_t i, const double *row, double *du)
+{
+    const double s = c->rows->sigma[i];
+    const int e = c->rows->extra ? c->rows->extra[i] : -1;
+    const double ce = e >= 0 ? c->rows->coef_extra[i] : 0;
+    for (size_t j = 0; j < c->nv; j++) {
+        const size_t k = c->var[j];
+        const double d = e >= 0 ? row[k] - ce * c->extra_mean[e * c->np + k] : row[k];
+        du[j] = d * c->dpdu[j] / s;
+    }
 }
 
 static int residual_df(const gsl_vector *x, void *params, gsl_matrix *J)
@@ -401,13 +534,11 @@ static int residual_df(const gsl_vector *x, void *params, gsl_matrix *J)
     fit_context *c = params;
     if (!cache_matches(c, x) && evaluate_at(c, x))
         return GSL_EDOM; /* GSL asks for J only at accepted (feasible) points */
-    double p[WKB_MAX_PARAMS];
+    double p[WKB_MAX_PARAMS], du[WKB_MAX_PARAMS];
     params_from_x(c, x, p); /* refreshes dpdu */
+    project_means(c, c->cache_jac);
     for (size_t i = 0; i < c->n; i++) {
-        const double *row = c->cache_jac + i * c->np;
-        double du[WKB_MAX_PARAMS]; /* d f_i / d u_j */
-        for (size_t j = 0; j < c->nv; j++)
-            du[j] = row[c->var[j]] * c->dpdu[j] / c->data->sigma[i];
+        row_du(c, i, c->cache_jac + i * c->ncol, du);
         for (size_t l = 0; l < c->nv; l++) {
             double sum = 0;
             for (size_t j = 0; j < c->nv; j++)
@@ -417,7 +548,8 @@ static int residual_df(const gsl_vector *x, void *params, gsl_matrix *J)
     }
     /* GSL evaluates the Jacobian exactly at each accepted point: remember it */
     memcpy(c->best_calc, c->cache_calc, c->n * sizeof *c->best_calc);
-    memcpy(c->best_jac, c->cache_jac, c->n * c->np * sizeof *c->best_jac);
+    memcpy(c->best_jac, c->cache_jac, c->n * c->ncol * sizeof *c->best_jac);
+    memcpy(c->best_extra, c->cache_extra, c->ne * sizeof *c->best_extra);
     memcpy(c->best_p, p, c->np * sizeof *p);
     return GSL_SUCCESS;
 }
@@ -463,6 +595,7 @@ static int whitening(fit_context *c, wkb_error *err)
     const size_t nv = c->nv;
     gsl_matrix *A = gsl_matrix_alloc(c->n, nv), *V = gsl_matrix_alloc(nv, nv);
     gsl_vector *S = gsl_vector_alloc(nv), *work = gsl_vector_alloc(nv);
+    double du[WKB_MAX_PARAMS];
     int status = WKB_SUCCESS;
     if (!A || !V || !S || !work) {
         status = wkb_fail(err, WKB_ENOMEM, "out of memory for the fit's change of variables");
@@ -470,10 +603,13 @@ static int whitening(fit_context *c, wkb_error *err)
     }
     for (size_t j = 0; j < nv; j++) {
         const size_t k = c->var[j];
-        double dpdu;
-        to_external(c->u0[j], c->spec->lower[k], c->spec->upper[k], &dpdu);
-        for (size_t i = 0; i < c->n; i++)
-            gsl_matrix_set(A, i, j, c->cache_jac[i * c->np + k] * dpdu / c->data->sigma[i]);
+        to_external(c->u0[j], c->spec->lower[k], c->spec->upper[k], &c->dpdu[j]);
+    }
+    project_means(c, c->cache_jac);
+    for (size_t i = 0; i < c->n; i++) {
+        row_du(c, i, c->cache_jac + i * c->ncol, du);
+        for (size_t j = 0; j < nv; j++)
+            gsl_matrix_set(A, i, j, du[j]);
     }
     if (gsl_linalg_SV_decomp(A, V, S, work) != GSL_SUCCESS) {
         status = wkb_fail(err, WKB_ENUMERIC, "the singular value decomposition of the starting Jacobian failed");
@@ -495,8 +631,8 @@ cleanup:
     return status;
 }
 
-static int check_spec(const wkb_potential *start, const wkb_fit_spec *spec, size_t n, size_t *var, size_t *nv,
-                      wkb_error *err)
+static int check_spec(const wkb_potential *start, const wkb_fit_spec *spec, size_t n, size_t n_extra, size_t *var,
+                      size_t *nv, wkb_error *err)
 {
     const wkb_model *m = start->model;
     *nv = 0;
@@ -513,16 +649,48 @@ static int check_spec(const wkb_potential *start, const wkb_fit_spec *spec, size
                             m->param_names[k], p, lo, hi);
         var[(*nv)++] = k;
     }
-    if (*nv == 0)
+    if (*nv == 0 && n_extra == 0)
         return wkb_fail(err, WKB_EINVAL, "no parameter is varied: nothing to fit");
-    if (n < *nv)
-        return wkb_fail(err, WKB_EINVAL, "%zu levels cannot determine %zu varied parameters", n, *nv);
+    if (n < *nv + n_extra)
+        return wkb_fail(err, WKB_EINVAL, "%zu data rows cannot determine %zu varied parameters", n, *nv + n_extra);
     return WKB_SUCCESS;
 }
 
-int wkb_fit_run(const wkb_potential *start, const wkb_fit_data *data, const wkb_fit_spec *spec,
-                const wkb_fit_settings *settings, const wkb_level_source *source,
-                wkb_fit_outcome *out, double *calc, double *jac, wkb_error *err)
+static int check_rows(const wkb_fit_rows *R, size_t n_levels, wkb_error *err)
+{
+    if (!R || R->n == 0)
+        return wkb_fail(err, WKB_EINVAL, "no data rows to fit");
+    if (!R->level_a || !R->coef_a || !R->observed || !R->sigma)
+        return wkb_fail(err, WKB_EINVAL, "the data rows need level_a, coef_a, observed and sigma");
+    for (size_t i = 0; i < R->n; i++) {
+        const int idx[2] = {R->level_a[i], R->level_b ? R->level_b[i] : -1};
+        for (int k = 0; k < 2; k++)
+            if (idx[k] < -1 || idx[k] >= (int)n_levels)
+                return wkb_fail(err, WKB_EINVAL, "row %zu: level index %d is invalid (0..%zu, or -1 for none)",
+                                i + 1, idx[k], n_levels - 1);
+        const int e = R->extra ? R->extra[i] : -1;
+        if (e < -1 || e >= (int)R->n_extra)
+            return wkb_fail(err, WKB_EINVAL, "row %zu: extra parameter index %d is invalid", i + 1, e);
+        if (!isfinite(R->observed[i]))
+            return wkb_fail(err, WKB_EINVAL, "row %zu: observed value %g is not finite", i + 1, R->observed[i]);
+        if (!(isfinite(R->sigma[i]) && R->sigma[i] > 0))
+            return wkb_fail(err, WKB_EINVAL, "row %zu: uncertainty %g is invalid: it must be > 0", i + 1,
+                            R->sigma[i]);
+    }
+    for (size_t e = 0; e < R->n_extra; e++) {
+        int used = 0;
+        for (size_t i = 0; i < R->n && !used; i++)
+            used = R->extra && R->extra[i] == (int)e && R->coef_extra && R->coef_extra[i] != 0;
+        if (!used)
+            return wkb_fail(err, WKB_EINVAL, "extra parameter %zu enters no data row", e);
+    }
+    return WKB_SUCCESS;
+}
+
+int wkb_fit_run_rows(const wkb_potential *start, const wkb_fit_data *levels, const wkb_fit_rows *rows,
+                     const wkb_fit_spec *spec, double *extra, const wkb_fit_settings *settings,
+                     const wkb_level_source *source, wkb_fit_outcome *out, double *calc, double *jac,
+                     wkb_error *err)
 {
     fit_context c;
     gsl_multifit_nlinear_workspace *w = NULL;
@@ -533,55 +701,76 @@ int wkb_fit_run(const wkb_potential *start, const wkb_fit_data *data, const wkb_
     memset(&c, 0, sizeof c);
     memset(out, 0, sizeof *out);
     out->bad_row = (size_t)-1;
-    if ((status = check_data(data, err)))
+    if ((status = check_data(levels, err)) || (status = check_rows(rows, levels->n, err)))
         return status;
-    if (!data->energy || !data->sigma)
-        return wkb_fail(err, WKB_EINVAL, "a fit needs observed energies and uncertainties");
-    if ((status = check_spec(start, spec, data->n, c.var, &c.nv, err)))
+    if (levels->energy_zero != WKB_ZERO_MINIMUM)
+        return wkb_fail(err, WKB_EINVAL, "the levels of a row fit are term values above the minimum");
+    if ((status = check_spec(start, spec, rows->n, rows->n_extra, c.var, &c.nv, err)))
         return status;
-    c.data = data;
+    c.levels = levels;
+    c.rows = rows;
     c.start = start;
     c.spec = spec;
-    c.n = data->n;
+    c.n = rows->n;
+    c.nl = levels->n;
     c.np = start->model->n_params;
+    c.ne = rows->n_extra;
+    c.ncol = c.np + c.ne;
 
     status = WKB_ENOMEM;
-    if (!(c.ev = wkb_fit_evaluator_alloc(data, &settings->levels, source, err))) {
+    if (!(c.ev = wkb_fit_evaluator_alloc(levels, &settings->levels, source, err))) {
         status = err ? err->status : WKB_ENOMEM;
         goto cleanup;
     }
-    c.cache_x = malloc(c.nv * sizeof(double));
+    c.extra_den = calloc(c.ne + 1, sizeof(double));
+    c.extra_mean = malloc((c.ne * c.np + 1) * sizeof(double));
+    c.cache_extra = malloc((c.ne + 1) * sizeof(double));
+    c.best_extra = malloc((c.ne + 1) * sizeof(double));
+    c.level_E = malloc(c.nl * sizeof(double));
+    c.level_dE = malloc(c.nl * c.np * sizeof(double));
+    c.cache_x = malloc((c.nv + 1) * sizeof(double));
     c.cache_calc = malloc(c.n * sizeof(double));
-    c.cache_jac = malloc(c.n * c.np * sizeof(double));
+    c.cache_jac = malloc(c.n * c.ncol * sizeof(double));
     c.best_calc = calc;
     c.best_jac = jac;
-    if (!c.cache_x || !c.cache_calc || !c.cache_jac) {
-        wkb_fail(err, WKB_ENOMEM, "out of memory for a fit of %zu levels", c.n);
+    if (!c.extra_den || !c.extra_mean || !c.cache_extra || !c.best_extra || !c.level_E || !c.level_dE ||
+        !c.cache_x || !c.cache_calc || !c.cache_jac) {
+        wkb_fail(err, WKB_ENOMEM, "out of memory for a fit of %zu rows and %zu levels", c.n, c.nl);
         goto cleanup;
     }
+    for (size_t i = 0; rows->extra && i < c.n; i++)
+        if (rows->extra[i] >= 0)
+            c.extra_den[rows->extra[i]] += rows->coef_extra[i] * rows->coef_extra[i] / (rows->sigma[i] * rows->sigma[i]);
 
-    /* the starting point must be valid: say clearly why it is not */
-    if ((status = wkb_fit_evaluate(c.ev, start, c.cache_calc, c.cache_jac, &out->bad_row, err)))
+    /* the starting point must be valid: say clearly why it is not (bad_row names the level) */
+    if ((status = wkb_fit_evaluate(c.ev, start, c.level_E, c.level_dE, &out->bad_row, err)))
         goto cleanup;
     out->bad_row = (size_t)-1;
-    /* a varied parameter that no level depends on (J=0 levels of a Morse well and re) would
-       only feed rounding noise to the solver, which then wanders along it: hold it fixed */
+    combine_rows(&c, start, c.cache_calc, c.cache_jac);
+    solve_extras(&c, c.cache_calc, c.cache_extra);
+    /* a varied parameter that no row depends on (J=0 levels of a Morse well and re) would
+       only feed rounding noise to the solver, which then wanders along it: hold it fixed
+       (judged on the projected rows: what the extras absorb carries no information) */
     {
-        double sens[WKB_MAX_PARAMS], column[WKB_MAX_PARAMS], top = 0;
+        double sens[WKB_MAX_PARAMS], column[WKB_MAX_PARAMS], top = 0, du[WKB_MAX_PARAMS];
         size_t kept = 0;
+        for (size_t j = 0; j < c.nv; j++)
+            c.dpdu[j] = 1;
+        project_means(&c, c.cache_jac);
+        for (size_t j = 0; j < c.nv; j++)
+            column[j] = 0;
+        for (size_t i = 0; i < c.n; i++) {
+            row_du(&c, i, c.cache_jac + i * c.ncol, du);
+            for (size_t j = 0; j < c.nv; j++)
+                column[j] += du[j] * du[j];
+        }
         for (size_t j = 0; j < c.nv; j++) {
-            const size_t k = c.var[j];
-            double s2 = 0;
-            for (size_t i = 0; i < c.n; i++) {
-                const double q = c.cache_jac[i * c.np + k] / data->sigma[i];
-                s2 += q * q;
-            }
-            column[j] = sqrt(s2);
-            sens[j] = column[j] * fabs(start->p[k]);
+            column[j] = sqrt(column[j]);
+            sens[j] = column[j] * fabs(start->p[c.var[j]]);
             top = GSL_MAX(top, sens[j]);
         }
         for (size_t j = 0; j < c.nv; j++) {
-            /* a parameter starting at 0 has no scale of its own: keep it unless no level depends on it */
+            /* a parameter starting at 0 has no scale of its own: keep it unless no row depends on it */
             const int at_zero = start->p[c.var[j]] == 0;
             if (at_zero ? column[j] > 0 : sens[j] > WKB_FIT_INSENSITIVE * top)
                 c.var[kept++] = c.var[j];
@@ -599,7 +788,7 @@ int wkb_fit_run(const wkb_potential *start, const wkb_fit_data *data, const wkb_
     t = gsl_vector_alloc(c.nv);
     N = gsl_matrix_alloc(c.nv, c.nv);
     if (!x || !g || !t || !N) {
-        status = wkb_fail(err, WKB_ENOMEM, "out of memory for a fit of %zu levels", c.n);
+        status = wkb_fail(err, WKB_ENOMEM, "out of memory for a fit of %zu rows", c.n);
         goto cleanup;
     }
     for (size_t j = 0; j < c.nv; j++) {
@@ -609,6 +798,11 @@ int wkb_fit_run(const wkb_potential *start, const wkb_fit_data *data, const wkb_
     }
     if ((status = whitening(&c, err)))
         goto cleanup;
+    /* the start is the first accepted point until GSL accepts another */
+    memcpy(c.best_p, start->p, c.np * sizeof(double));
+    memcpy(c.best_extra, c.cache_extra, c.ne * sizeof(double));
+    memcpy(c.best_calc, c.cache_calc, c.n * sizeof(double));
+    memcpy(c.best_jac, c.cache_jac, c.n * c.ncol * sizeof(double));
 
     {
         gsl_multifit_nlinear_parameters fp = gsl_multifit_nlinear_default_parameters();
@@ -681,8 +875,11 @@ int wkb_fit_run(const wkb_potential *start, const wkb_fit_data *data, const wkb_
         }
     }
     memcpy(out->params, c.best_p, c.np * sizeof(double));
+    if (c.ne)
+        memcpy(extra, c.best_extra, c.ne * sizeof(double));
     out->n_eval = c.n_eval;
     out->n_infeasible = c.n_infeasible;
+    out->n_level_calculations = wkb_fit_evaluator_level_calculations(c.ev);
     if (c.n_infeasible)
         out->last_infeasible = c.last_infeasible;
     status = WKB_SUCCESS;
@@ -692,10 +889,95 @@ cleanup:
     gsl_vector_free(g);
     gsl_vector_free(t);
     gsl_matrix_free(N);
+    free(c.extra_den);
+    free(c.extra_mean);
+    free(c.cache_extra);
+    free(c.best_extra);
+    free(c.level_E);
+    free(c.level_dE);
     free(c.cache_x);
     free(c.cache_calc);
     free(c.cache_jac);
     wkb_fit_evaluator_free(c.ev);
+    return status;
+}
+
+/* The term-value fit of wkb_fit_run as a row fit: the data rows are the levels (energy zero
+   minimum), plus one level v=0, J=0 per reduced mass for the zero "lowest". */
+int wkb_fit_run(const wkb_potential *start, const wkb_fit_data *data, const wkb_fit_spec *spec,
+                const wkb_fit_settings *settings, const wkb_level_source *source,
+                wkb_fit_outcome *out, double *calc, double *jac, wkb_error *err)
+{
+    const size_t n = data ? data->n : 0;
+    int *v = NULL, *la = NULL, *lb = NULL;
+    double *rot = NULL, *mu = NULL, *ca = NULL, *cb = NULL, *cA = NULL;
+    int status;
+    memset(out, 0, sizeof *out);
+    out->bad_row = (size_t)-1;
+    if ((status = check_data(data, err)))
+        return status;
+    if (!data->energy || !data->sigma)
+        return wkb_fail(err, WKB_EINVAL, "a fit needs observed energies and uncertainties");
+    v = malloc(2 * n * sizeof *v);
+    rot = malloc(2 * n * sizeof *rot);
+    mu = malloc(2 * n * sizeof *mu);
+    la = malloc(n * sizeof *la);
+    lb = malloc(n * sizeof *lb);
+    ca = malloc(n * sizeof *ca);
+    cb = malloc(n * sizeof *cb);
+    cA = malloc(n * sizeof *cA);
+    if (!v || !rot || !mu || !la || !lb || !ca || !cb || !cA) {
+        status = wkb_fail(err, WKB_ENOMEM, "out of memory for a fit of %zu levels", n);
+        goto cleanup;
+    }
+    size_t nl = n;
+    for (size_t i = 0; i < n; i++) {
+        v[i] = data->v[i];
+        rot[i] = data->rot[i];
+        mu[i] = data->mu[i];
+        la[i] = (int)i;
+        ca[i] = data->energy_zero == WKB_ZERO_ASYMPTOTE ? -1.0 : 1.0;
+        cA[i] = data->energy_zero == WKB_ZERO_ASYMPTOTE ? 1.0 : 0.0;
+        lb[i] = -1;
+        cb[i] = 0;
+        if (data->energy_zero == WKB_ZERO_LOWEST) {
+            size_t r = n;
+            for (; r < nl && mu[r] != mu[i]; r++)
+                ;
+            if (r == nl) {
+                v[nl] = 0, rot[nl] = 0.0, mu[nl] = mu[i];
+                nl++;
+            }
+            lb[i] = (int)r;
+            cb[i] = -1.0;
+        }
+    }
+    wkb_fit_data levels = {nl, v, rot, mu, NULL, NULL, WKB_ZERO_MINIMUM};
+    wkb_fit_rows rows;
+    memset(&rows, 0, sizeof rows);
+    rows.n = n;
+    rows.level_a = la, rows.coef_a = ca, rows.level_b = lb, rows.coef_b = cb, rows.coef_asymptote = cA;
+    rows.observed = data->energy;
+    rows.sigma = data->sigma;
+    rows.offset = data->offset; /* the corrected fit's fixed per-row corrections */
+    status = wkb_fit_run_rows(start, &levels, &rows, spec, NULL, settings, source, out, calc, jac, err);
+    if (status && out->bad_row != (size_t)-1 && out->bad_row >= n) {
+        /* a reference level failed: name the first row that needs it */
+        for (size_t i = 0; i < n; i++)
+            if (lb[i] == (int)out->bad_row) {
+                out->bad_row = i;
+                break;
+            }
+    }
+cleanup:
+    free(v);
+    free(rot);
+    free(mu);
+    free(la);
+    free(lb);
+    free(ca);
+    free(cb);
+    free(cA);
     return status;
 }
 

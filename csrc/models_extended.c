@@ -15,6 +15,7 @@
  *   beta_inf = ln(2 De/u(re)), so that De - V -> u(r) as r -> infinity.
  */
 #include <math.h>
+#include <stdio.h>
 
 #include <gsl/gsl_math.h>
 
@@ -345,3 +346,193 @@ const wkb_model wkb_models_mlr[WKB_MLR_MAX_BETAS] = {
     MLR_ENTRY(1), MLR_ENTRY(2), MLR_ENTRY(3), MLR_ENTRY(4), MLR_ENTRY(5), MLR_ENTRY(6), MLR_ENTRY(7), MLR_ENTRY(8),
 };
 #undef MLR_ENTRY
+
+/* ---- MLR with C3..C10 and damping: p = (De, re, C3, C4, C6, C8, C10, p, q, r_ref, damping, range, s,
+   beta_0 .. beta_(K-1)); u(r) = sum_m D_m(r) C_m/r^m over m = 3, 4, 6, 8, 10 (damping.c). The
+   exponent function and the parameter derivatives are those of the undamped MLR, with u, du/dr and
+   du/dp of the damped sum. damping: 0 none, 1 Tang-Toennies, 2 Douketis type; range its range
+   parameter; s the power offset of the Douketis form (-1 or -2; unused otherwise). ---- */
+#define MLRD_LEADING 13
+#define MLRD_TERMS 5
+static const int mlrd_powers[MLRD_TERMS] = {3, 4, 6, 8, 10};
+
+static const char *const mlrd_names[MLRD_LEADING + WKB_MLR_MAX_BETAS] = {
+    "De", "re", "C3", "C4", "C6", "C8", "C10", "p", "q", "r_ref", "damping", "rho", "s",
+    "beta0", "beta1", "beta2", "beta3", "beta4", "beta5", "beta6", "beta7",
+};
+
+/* u(r), its r-derivatives and du/dC_m (m = 3, 4, 6, 8, 10), du/d(range). */
+typedef struct {
+    double u, du, d2u, dC[MLRD_TERMS], drange;
+} damped_long_range;
+
+static void damped_long_range_at(const double *p, double r, damped_long_range *out)
+{
+    const int kind = (int)p[10], s = (int)p[12];
+    const double range = p[11];
+    out->u = out->du = out->d2u = out->drange = 0;
+    for (int k = 0; k < MLRD_TERMS; k++) {
+        const double C = p[2 + k];
+        const int m = mlrd_powers[k];
+        const double irm = power(1 / r, m);
+        wkb_damping d;
+        wkb_damping_eval(kind, m, s, range, r, &d);
+        out->dC[k] = d.D * irm;
+        if (C == 0)
+            continue;
+        out->u += C * d.D * irm;
+        out->du += C * (d.dD - m * d.D / r) * irm;
+        out->d2u += C * (d.d2D - 2 * m * d.dD / r + m * (m + 1) * d.D / (r * r)) * irm;
+        out->drange += C * d.dD_drange * irm;
+    }
+}
+
+static int mlrd_check(const double *p, wkb_error *err)
+{
+    int s;
+    if ((s = check_positive("MLR", "De", p[0], err)) || (s = check_positive("MLR", "re", p[1], err)) ||
+        (s = check_positive("MLR", "r_ref", p[9], err)))
+        return s;
+    int first = 0, last = 0;
+    for (int k = 0; k < MLRD_TERMS; k++) {
+        if (!(p[2 + k] >= 0) || !isfinite(p[2 + k]))
+            return wkb_fail(err, WKB_EINVAL, "MLR parameter %s=%g is invalid: it must be >= 0 (0 leaves it out)",
+                            mlrd_names[2 + k], p[2 + k]);
+        if (p[2 + k] > 0) {
+            if (!first)
+                first = mlrd_powers[k];
+            last = mlrd_powers[k];
+        }
+    }
+    if (!first)
+        return wkb_fail(err, WKB_EINVAL, "MLR parameters are invalid: at least one of C3, C4, C6, C8, C10 must be > 0");
+    const int kind = (int)p[10];
+    if (!(p[10] == kind && kind >= WKB_DAMPING_NONE && kind <= WKB_DAMPING_DOUKETIS))
+        return wkb_fail(err, WKB_EINVAL, "MLR parameter damping=%g is invalid: 0 none, 1 Tang-Toennies, 2 Douketis",
+                        p[10]);
+    if (kind != WKB_DAMPING_NONE && !(p[11] > 0 && isfinite(p[11])))
+        return wkb_fail(err, WKB_EINVAL, "MLR parameter rho=%g (the damping range) is invalid: it must be > 0", p[11]);
+    double b, c;
+    if (kind == WKB_DAMPING_DOUKETIS && !(p[12] == floor(p[12]) && wkb_douketis_constants((int)p[12], &b, &c)))
+        return wkb_fail(err, WKB_EINVAL, "MLR parameter s=%g is invalid for Douketis-type damping: use -1 or -2",
+                        p[12]);
+    if (kind == WKB_DAMPING_DOUKETIS && first + p[12] < 1)
+        return wkb_fail(err, WKB_EINVAL, "MLR parameters are invalid: Douketis-type damping with s=%g needs m + s >= 1 "
+                        "for the lowest power m=%d", p[12], first);
+    const double spread = last - first;
+    char why[160];
+    snprintf(why, sizeof why, " (p must exceed 2 and the spread %d - %d of the inverse powers)", last, first);
+    if ((s = check_integer("MLR", "p", p[7], GSL_MAX(3.0, spread + 1), why, err)) ||
+        (s = check_integer("MLR", "q", p[8], 1, "", err)))
+        return s;
+    damped_long_range lr;
+    damped_long_range_at(p, p[1], &lr);
+    if (!(lr.u > 0) || !isfinite(lr.u))
+        return wkb_fail(err, WKB_EINVAL, "MLR parameters are invalid: u_LR(re) = %g must be a finite number > 0", lr.u);
+    /* undamped, as the MLR without damping: u_LR(re) < 2 De keeps beta_inf > 0; with damping the
+       form needs only u_LR(re) > 0 (beta_inf = ln(2 De/u_LR(re)) may then be negative) */
+    if (kind == WKB_DAMPING_NONE && !(lr.u < 2 * p[0]))
+        return wkb_fail(err, WKB_EINVAL,
+                        "MLR parameters are invalid: the undamped u_LR(re) = %g must be below 2 De = %g, so that "
+                        "beta_inf = ln(2 De/u_LR(re)) is positive; damping (damping='tang-toennies' or 'douketis') "
+                        "lifts this limit", lr.u, 2 * p[0]);
+    return WKB_SUCCESS;
+}
+
+typedef struct {
+    damped_long_range at_r, at_re;
+    radial_variable eq, ref_p, ref_q;
+    double beta_inf, S, S1, beta, phi, x, dL, d2L;
+} mlrd_terms;
+
+static void mlrd_terms_at(const wkb_potential *pot, double r, mlrd_terms *t)
+{
+    const double *p = pot->p;
+    const double De = p[0], re = p[1], pw = p[7], qw = p[8], r_ref = p[9];
+    const size_t n = pot->model->n_params - MLRD_LEADING;
+    double S2;
+    damped_long_range_at(p, r, &t->at_r);
+    damped_long_range_at(p, re, &t->at_re);
+    radial_variable_at(r, re, pw, &t->eq);
+    radial_variable_at(r, r_ref, pw, &t->ref_p);
+    radial_variable_at(r, r_ref, qw, &t->ref_q);
+    polynomial(p + MLRD_LEADING, n, t->ref_q.y, &t->S, &t->S1, &S2);
+    t->beta_inf = log(2 * De / t->at_re.u);
+    const radial_variable *e = &t->eq, *a = &t->ref_p, *b = &t->ref_q;
+    const double gap = t->beta_inf - t->S;
+    t->beta = a->y * t->beta_inf + a->one_minus_y * t->S;
+    const double dbeta = a->dy * gap + a->one_minus_y * t->S1 * b->dy;
+    const double d2beta = a->d2y * gap - 2 * a->dy * t->S1 * b->dy +
+                          a->one_minus_y * (S2 * b->dy * b->dy + t->S1 * b->d2y);
+    t->phi = t->beta * e->y;
+    const double dphi = dbeta * e->y + t->beta * e->dy;
+    const double d2phi = d2beta * e->y + 2 * dbeta * e->dy + t->beta * e->d2y;
+    const double g = t->at_r.du / t->at_r.u;
+    t->x = t->at_r.u / t->at_re.u * exp(-t->phi);
+    t->dL = g - dphi;
+    t->d2L = t->at_r.d2u / t->at_r.u - g * g - d2phi;
+}
+
+static void mlrd_eval(const wkb_potential *pot, double r, wkb_pot_value *out)
+{
+    const double De = pot->p[0];
+    mlrd_terms t;
+    mlrd_terms_at(pot, r, &t);
+    const double x = t.x;
+    out->V = De * (1 - x) * (1 - x);
+    out->dV = -2 * De * (1 - x) * x * t.dL;
+    out->d2V = 2 * De * x * (x * t.dL * t.dL - (1 - x) * (t.d2L + t.dL * t.dL));
+    out->depth = De * x * (2 - x);
+}
+
+static void mlrd_param_derivs(const wkb_potential *pot, double r, double *dVdp)
+{
+    const double *p = pot->p;
+    const double De = p[0], re = p[1], pw = p[7], qw = p[8], r_ref = p[9];
+    const size_t n = pot->model->n_params - MLRD_LEADING;
+    mlrd_terms t;
+    mlrd_terms_at(pot, r, &t);
+    const radial_variable *e = &t.eq, *a = &t.ref_p, *b = &t.ref_q;
+    const double x = t.x, dV_dL = -2 * De * (1 - x) * x;
+    const double gap = t.beta_inf - t.S;
+    const double one_minus_yy = a->one_minus_y + a->y * e->one_minus_y;
+    const double ue = t.at_re.u;
+
+    dVdp[0] = (1 - x) * (1 - x) + dV_dL * (-a->y * e->y / De);
+    dVdp[1] = dV_dL * (-t.at_re.du / ue * one_minus_yy - t.beta * radial_variable_d_center(e, re, pw));
+    /* C_m and the damping range enter ln u(r), ln u(re) and beta_inf */
+    for (int k = 0; k < MLRD_TERMS; k++)
+        dVdp[2 + k] = dV_dL * (t.at_r.dC[k] / t.at_r.u - t.at_re.dC[k] / ue * one_minus_yy);
+    const double dbeta_dp = radial_variable_d_power(a, r, r_ref) * gap;
+    dVdp[7] = dV_dL * -(dbeta_dp * e->y + t.beta * radial_variable_d_power(e, r, re));
+    dVdp[8] = dV_dL * -(a->one_minus_y * t.S1 * radial_variable_d_power(b, r, r_ref) * e->y);
+    const double dbeta_dref = radial_variable_d_center(a, r_ref, pw) * gap +
+                              a->one_minus_y * t.S1 * radial_variable_d_center(b, r_ref, qw);
+    dVdp[9] = dV_dL * -(dbeta_dref * e->y);
+    dVdp[10] = 0; /* the damping form is a choice, not a continuous parameter */
+    dVdp[11] = dV_dL * (t.at_r.drange / t.at_r.u - t.at_re.drange / ue * one_minus_yy);
+    dVdp[12] = 0;
+    double yi = 1;
+    for (size_t i = 0; i < n; i++) {
+        dVdp[MLRD_LEADING + i] = dV_dL * -(a->one_minus_y * yi * e->y);
+        yi *= b->y;
+    }
+}
+
+/* the lowest inverse power present */
+static double mlrd_tail_power(const wkb_potential *pot)
+{
+    for (int k = 0; k < MLRD_TERMS; k++)
+        if (pot->p[2 + k] > 0)
+            return mlrd_powers[k];
+    return 6.0;
+}
+
+#define MLRD_ENTRY(K)                                                                                          \
+    {"mlrd" #K, MLRD_LEADING + K, mlrd_names, mlrd_check, mlrd_eval, mlrd_param_derivs,                      \
+     param0, param1, inner_wall, mlrd_tail_power}
+const wkb_model wkb_models_mlrd[WKB_MLR_MAX_BETAS] = {
+    MLRD_ENTRY(1), MLRD_ENTRY(2), MLRD_ENTRY(3), MLRD_ENTRY(4), MLRD_ENTRY(5), MLRD_ENTRY(6), MLRD_ENTRY(7),
+    MLRD_ENTRY(8),
+};
+#undef MLRD_ENTRY

@@ -1192,6 +1192,259 @@ cleanup:
     return result;
 }
 
+/* A Born-Oppenheimer corrected potential for fit_run_rows: the template model (reference
+   isotopologue) in *pot, one variant per (isotopologue, J) and the model of every level.
+   Returns 0 or -1 with an exception; the caller frees *tmpl, *variants, *models and arrs. */
+static int parse_bob(const char *model_name, PyObject *params_obj, PyObject *counts_obj, double power,
+                     PyObject *variant_obj, PyObject *ad_obj, PyObject *na_obj, PyObject *rot_obj, PyObject *lv_obj,
+                     wkb_potential *pot, wkb_bob_model **tmpl, wkb_bob_model **variants, const wkb_model ***models,
+                     PyArrayObject **arrs)
+{
+    const wkb_model *base = wkb_model_by_name(model_name);
+    wkb_error err = {0};
+    if (!base) {
+        PyErr_Format(PyExc_ValueError, "unknown potential model '%s'", model_name);
+        return -1;
+    }
+    if (!(arrs[0] = (PyArrayObject *)PyArray_FROM_OTF(counts_obj, NPY_INT, NPY_ARRAY_IN_ARRAY | NPY_ARRAY_FORCECAST)) ||
+        !(arrs[1] = (PyArrayObject *)PyArray_FROM_OTF(variant_obj, NPY_INT, NPY_ARRAY_IN_ARRAY | NPY_ARRAY_FORCECAST)) ||
+        !(arrs[2] = as_double_array(ad_obj, "variant_adiabatic", 2)) ||
+        !(arrs[3] = as_double_array(na_obj, "variant_centrifugal", 2)) ||
+        !(arrs[4] = as_double_array(rot_obj, "variant_rot_eps", 1)))
+        return -1;
+    if (PyArray_SIZE(arrs[0]) != 4) {
+        PyErr_SetString(PyExc_ValueError, "bob_counts needs 4 entries (S_A, S_B, R_A, R_B)");
+        return -1;
+    }
+    const npy_intp nvar = PyArray_SIZE(arrs[4]);
+    if (PyArray_DIM(arrs[2], 0) != nvar || PyArray_DIM(arrs[2], 1) != 2 || PyArray_DIM(arrs[3], 0) != nvar ||
+        PyArray_DIM(arrs[3], 1) != 2) {
+        PyErr_SetString(PyExc_ValueError, "variant_adiabatic and variant_centrifugal need shape (n_variants, 2)");
+        return -1;
+    }
+    const npy_intp nl = PyArray_SIZE(arrs[1]);
+    PyObject *lv = PyArray_FROM_OTF(lv_obj, NPY_INT, NPY_ARRAY_IN_ARRAY | NPY_ARRAY_FORCECAST);
+    if (!lv)
+        return -1;
+    const npy_intp n_levels = PyArray_SIZE((PyArrayObject *)lv);
+    Py_DECREF(lv);
+    if (nl != n_levels) {
+        PyErr_Format(PyExc_ValueError, "level_variant has %zd entries for %zd levels", (Py_ssize_t)nl,
+                     (Py_ssize_t)n_levels);
+        return -1;
+    }
+    if (!(*tmpl = calloc(1, sizeof **tmpl)) || !(*variants = calloc((size_t)nvar + 1, sizeof **variants)) ||
+        !(*models = calloc((size_t)nl + 1, sizeof **models))) {
+        PyErr_NoMemory();
+        return -1;
+    }
+    if (wkb_bob_model_init(*tmpl, base, PyArray_DATA(arrs[0]), power, &err)) {
+        raise_status(&err);
+        return -1;
+    }
+    PyArrayObject *params = as_double_array(params_obj, "params", 1);
+    if (!params)
+        return -1;
+    const size_t np = (*tmpl)->model.n_params;
+    if ((size_t)PyArray_SIZE(params) != np) {
+        PyErr_Format(PyExc_ValueError, "model %s with its corrections takes %zu parameters, got %zd", base->name, np,
+                     (Py_ssize_t)PyArray_SIZE(params));
+        Py_DECREF(params);
+        return -1;
+    }
+    int status = wkb_potential_init(pot, &(*tmpl)->model, PyArray_DATA(params), NULL, &err);
+    if (!status)
+        status = wkb_bob_potential_check(*tmpl, PyArray_DATA(params), &err);
+    Py_DECREF(params);
+    if (status) {
+        raise_status(&err);
+        return -1;
+    }
+    const double *ad = PyArray_DATA(arrs[2]), *na = PyArray_DATA(arrs[3]), *re = PyArray_DATA(arrs[4]);
+    for (npy_intp k = 0; k < nvar; k++)
+        wkb_bob_model_variant(*tmpl, &(*variants)[k], ad + 2 * k, na + 2 * k, re[k]);
+    const int *var = PyArray_DATA(arrs[1]);
+    for (npy_intp i = 0; i < nl; i++) {
+        if (var[i] < 0 || var[i] >= nvar) {
+            PyErr_Format(PyExc_ValueError, "level %zd: variant %d is invalid", (Py_ssize_t)i, var[i]);
+            return -1;
+        }
+        (*models)[i] = &(*variants)[var[i]].model;
+    }
+    return 0;
+}
+
+/* fit_run_rows: a fit to rows that are linear combinations of distinct levels (mixed data). */
+static PyObject *py_fit_run_rows(PyObject *self, PyObject *args, PyObject *kwds)
+{
+    static char *kwlist[] = {"model", "params", "curve", "level_v", "level_rot", "level_mu", "level_a", "coef_a",
+                             "level_b", "coef_b", "coef_asymptote", "extra_index", "coef_extra", "offset",
+                             "observed", "sigma", "extra_start", "vary", "lower", "upper", "max_iterations",
+                             "method", "bob_counts", "bob_power", "level_variant", "variant_adiabatic",
+                             "variant_centrifugal", "variant_rot_eps", NULL};
+    enum { NI = 3, ND = 7 };
+    const char *model_name;
+    PyObject *params_obj, *curve_obj, *lv_obj, *lrot_obj, *lmu_obj, *iobj[NI], *dobj[ND], *extra_obj, *vary_obj,
+        *lower_obj, *upper_obj, *result = NULL;
+    int status, method = 0;
+    Py_ssize_t max_iterations = -1;
+    wkb_radial *radial = NULL;
+    wkb_level_source source_store;
+    const wkb_level_source *source = NULL;
+    wkb_fit_settings settings = wkb_fit_default_settings();
+    fit_arrays a = {0};
+    wkb_fit_data levels;
+    wkb_fit_rows rows;
+    wkb_fit_spec spec;
+    wkb_fit_outcome out;
+    wkb_potential pot;
+    wkb_error err = {0};
+    PyArrayObject *iarr[NI] = {NULL}, *darr[ND] = {NULL};
+    PyArrayObject *vary = NULL, *lower = NULL, *upper = NULL, *calc = NULL, *jac = NULL, *best = NULL, *extra = NULL;
+    static const char *inames[NI] = {"level_a", "level_b", "extra_index"};
+    static const char *dnames[ND] = {"coef_a", "coef_b", "coef_asymptote", "coef_extra", "offset", "observed",
+                                     "sigma"};
+    PyObject *bob_counts_obj = Py_None, *variant_obj = Py_None, *vad_obj = Py_None, *vna_obj = Py_None,
+             *vrot_obj = Py_None;
+    double bob_power = 3;
+    wkb_bob_model *bob_template = NULL, *bob_variants = NULL;
+    const wkb_model **level_models = NULL;
+    PyArrayObject *bob_arr[5] = {NULL};
+
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOOOOOOOOOOOOOOOOOO|niOdOOOO", kwlist, &model_name, &params_obj,
+                                     &curve_obj, &lv_obj, &lrot_obj, &lmu_obj, &iobj[0], &dobj[0], &iobj[1],
+                                     &dobj[1], &dobj[2], &iobj[2], &dobj[3], &dobj[4], &dobj[5], &dobj[6],
+                                     &extra_obj, &vary_obj, &lower_obj, &upper_obj, &max_iterations, &method,
+                                     &bob_counts_obj, &bob_power, &variant_obj, &vad_obj, &vna_obj, &vrot_obj))
+        return NULL;
+    if (max_iterations >= 0)
+        settings.max_iterations = (size_t)max_iterations;
+    if (bob_counts_obj == Py_None) {
+        if (parse_potential(model_name, params_obj, curve_obj, &pot) < 0)
+            return NULL;
+    } else if (parse_bob(model_name, params_obj, bob_counts_obj, bob_power, variant_obj, vad_obj, vna_obj, vrot_obj,
+                         lv_obj, &pot, &bob_template, &bob_variants, &level_models, bob_arr) < 0) {
+        goto cleanup;
+    }
+    if (parse_fit_arrays(lv_obj, lrot_obj, lmu_obj, NULL, NULL, WKB_ZERO_MINIMUM, &a, &levels) < 0 ||
+        fit_source(method, &radial, &source_store, &source) < 0)
+        goto cleanup;
+    levels.level_model = level_models;
+    for (int k = 0; k < NI; k++) {
+        iarr[k] = (PyArrayObject *)PyArray_FROM_OTF(iobj[k], NPY_INT, NPY_ARRAY_IN_ARRAY | NPY_ARRAY_FORCECAST);
+        if (!iarr[k])
+            goto cleanup;
+    }
+    for (int k = 0; k < ND; k++)
+        if (!(darr[k] = as_double_array(dobj[k], dnames[k], 1)))
+            goto cleanup;
+    const npy_intp n = PyArray_SIZE(darr[5]);
+    for (int k = 0; k < NI; k++)
+        if (PyArray_SIZE(iarr[k]) != n) {
+            PyErr_Format(PyExc_ValueError, "%s has %zd entries but observed has %zd", inames[k],
+                         (Py_ssize_t)PyArray_SIZE(iarr[k]), (Py_ssize_t)n);
+            goto cleanup;
+        }
+    for (int k = 0; k < ND; k++)
+        if (PyArray_SIZE(darr[k]) != n) {
+            PyErr_Format(PyExc_ValueError, "%s has %zd entries but observed has %zd", dnames[k],
+                         (Py_ssize_t)PyArray_SIZE(darr[k]), (Py_ssize_t)n);
+            goto cleanup;
+        }
+    /* the extras are written back: work on a private copy */
+    if (!(extra = (PyArrayObject *)PyArray_FROM_OTF(extra_obj, NPY_DOUBLE, NPY_ARRAY_IN_ARRAY | NPY_ARRAY_ENSURECOPY)))
+        goto cleanup;
+    const size_t np = pot.model->n_params, ne = (size_t)PyArray_SIZE(extra);
+    if (!(vary = (PyArrayObject *)PyArray_FROM_OTF(vary_obj, NPY_INT, NPY_ARRAY_IN_ARRAY | NPY_ARRAY_FORCECAST)) ||
+        !(lower = as_double_array(lower_obj, "lower", 1)) || !(upper = as_double_array(upper_obj, "upper", 1)))
+        goto cleanup;
+    if ((size_t)PyArray_SIZE(vary) != np || (size_t)PyArray_SIZE(lower) != np || (size_t)PyArray_SIZE(upper) != np) {
+        PyErr_Format(PyExc_ValueError, "vary, lower and upper need %zu entries (one per parameter)", np);
+        goto cleanup;
+    }
+    memset(&spec, 0, sizeof spec);
+    for (size_t k = 0; k < np; k++) {
+        spec.vary[k] = ((const int *)PyArray_DATA(vary))[k] != 0;
+        spec.lower[k] = ((const double *)PyArray_DATA(lower))[k];
+        spec.upper[k] = ((const double *)PyArray_DATA(upper))[k];
+    }
+    memset(&rows, 0, sizeof rows);
+    rows.n = (size_t)n;
+    rows.n_extra = ne;
+    rows.level_a = PyArray_DATA(iarr[0]);
+    rows.level_b = PyArray_DATA(iarr[1]);
+    rows.extra = PyArray_DATA(iarr[2]);
+    rows.coef_a = PyArray_DATA(darr[0]);
+    rows.coef_b = PyArray_DATA(darr[1]);
+    rows.coef_asymptote = PyArray_DATA(darr[2]);
+    rows.coef_extra = PyArray_DATA(darr[3]);
+    rows.offset = PyArray_DATA(darr[4]);
+    rows.observed = PyArray_DATA(darr[5]);
+    rows.sigma = PyArray_DATA(darr[6]);
+    npy_intp dims[2] = {n, (npy_intp)(np + ne)};
+    if (!(calc = new_vector(n)) || !(jac = (PyArrayObject *)PyArray_ZEROS(2, dims, NPY_DOUBLE, 0)) ||
+        !(best = new_vector((npy_intp)np)))
+        goto cleanup;
+    {
+        double *pc = PyArray_DATA(calc), *pj = PyArray_DATA(jac), *pe = PyArray_DATA(extra);
+        Py_BEGIN_ALLOW_THREADS
+        status = wkb_fit_run_rows(&pot, &levels, &rows, &spec, pe, &settings, source, &out, pc, pj, &err);
+        Py_END_ALLOW_THREADS
+    }
+    if (status) {
+        /* a failure at the start names its level: the caller maps it to the user's data */
+        if (out.bad_row != (size_t)-1 && status != WKB_ENOMEM) {
+            PyObject *exc = Py_BuildValue("(sn)", err.message, (Py_ssize_t)out.bad_row);
+            if (exc) {
+                PyErr_SetObject(PyExc_ValueError, exc);
+                Py_DECREF(exc);
+            }
+        } else {
+            raise_status(&err);
+        }
+        goto cleanup;
+    }
+    memcpy(PyArray_DATA(best), out.params, np * sizeof(double));
+    if (!(result = PyDict_New()))
+        goto cleanup;
+    if (PyDict_SetItemString(result, "params", (PyObject *)best) < 0 ||
+        PyDict_SetItemString(result, "extra", (PyObject *)extra) < 0 ||
+        PyDict_SetItemString(result, "calc", (PyObject *)calc) < 0 ||
+        PyDict_SetItemString(result, "jacobian", (PyObject *)jac) < 0 ||
+        dict_steal(result, "chi_square", PyFloat_FromDouble(out.chi_square)) < 0 ||
+        dict_steal(result, "predicted_decrease", PyFloat_FromDouble(out.predicted_decrease)) < 0 ||
+        dict_steal(result, "iterations", PyLong_FromSize_t(out.iterations)) < 0 ||
+        dict_steal(result, "n_eval", PyLong_FromSize_t(out.n_eval)) < 0 ||
+        dict_steal(result, "n_infeasible", PyLong_FromSize_t(out.n_infeasible)) < 0 ||
+        dict_steal(result, "n_level_calculations", PyLong_FromSize_t(out.n_level_calculations)) < 0 ||
+        dict_steal(result, "stop", PyUnicode_FromString(wkb_fit_stop_name(out.stop))) < 0 ||
+        dict_steal(result, "test", PyLong_FromLong(out.test)) < 0 ||
+        dict_steal(result, "insensitive", insensitive_list(out.insensitive, np)) < 0 ||
+        dict_steal(result, "last_infeasible", PyUnicode_FromString(out.n_infeasible ? out.last_infeasible.message
+                                                                                      : "")) < 0)
+        Py_CLEAR(result);
+cleanup:
+    fit_arrays_release(&a);
+    wkb_radial_free(radial);
+    for (int k = 0; k < NI; k++)
+        Py_XDECREF(iarr[k]);
+    for (int k = 0; k < ND; k++)
+        Py_XDECREF(darr[k]);
+    Py_XDECREF(vary);
+    Py_XDECREF(lower);
+    Py_XDECREF(upper);
+    Py_XDECREF(calc);
+    Py_XDECREF(jac);
+    Py_XDECREF(best);
+    Py_XDECREF(extra);
+    for (int k = 0; k < 5; k++)
+        Py_XDECREF(bob_arr[k]);
+    free(level_models);
+    free(bob_variants);
+    free(bob_template);
+    return result;
+}
+
 static PyObject *py_fit_levels(PyObject *self, PyObject *args, PyObject *kwds)
 {
     static char *kwlist[] = {"model", "params", "curve", "mu", "rot", "method", NULL};
@@ -1538,6 +1791,46 @@ cleanup:
     return result;
 }
 
+/* ---------------------------------------------------------------- damping functions (damping.c) */
+
+static PyObject *py_damping(PyObject *self, PyObject *args, PyObject *kwds)
+{
+    static char *kwlist[] = {"kind", "m", "s", "rho", "r", NULL};
+    int kind, m, s;
+    double rho;
+    PyObject *r_obj;
+    PyArrayObject *r = NULL, *cols[4] = {NULL};
+    PyObject *result = NULL;
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "iiidO", kwlist, &kind, &m, &s, &rho, &r_obj))
+        return NULL;
+    if (kind < WKB_DAMPING_NONE || kind > WKB_DAMPING_DOUKETIS || m < 1 || m > 64)
+        return value_error("damping kind %d (0 none, 1 Tang-Toennies, 2 Douketis) or power m=%d (1..64) is invalid",
+                           kind, m);
+    if (!(r = as_double_array(r_obj, "r", 1)))
+        return NULL;
+    const npy_intp n = PyArray_SIZE(r);
+    for (int c = 0; c < 4; c++)
+        if (!(cols[c] = new_vector(n)))
+            goto cleanup;
+    {
+        const double *pr = PyArray_DATA(r);
+        double *o[4];
+        for (int c = 0; c < 4; c++)
+            o[c] = PyArray_DATA(cols[c]);
+        for (npy_intp i = 0; i < n; i++) {
+            wkb_damping d;
+            wkb_damping_eval(kind, m, s, rho, pr[i], &d);
+            o[0][i] = d.D, o[1][i] = d.dD, o[2][i] = d.d2D, o[3][i] = d.dD_drange;
+        }
+    }
+    result = Py_BuildValue("(OOOO)", cols[0], cols[1], cols[2], cols[3]);
+cleanup:
+    for (int c = 0; c < 4; c++)
+        Py_XDECREF(cols[c]);
+    Py_XDECREF(r);
+    return result;
+}
+
 /* ---------------------------------------------------------------- module */
 
 static PyMethodDef core_methods[] = {
@@ -1577,6 +1870,12 @@ static PyMethodDef core_methods[] = {
      "max_iterations=-1, xtol, gtol, decrease_tol, method=0, offset=None) -> dict (params, calc, jacobian, chi_square, iterations,\n"
      "n_eval, n_infeasible, stop, test, predicted_decrease, last_infeasible); a failure at the start raises\n"
      "ValueError(message, row index)"},
+    {"fit_run_rows", (PyCFunction)(void (*)(void))py_fit_run_rows, METH_VARARGS | METH_KEYWORDS,
+     "fit_run_rows(model, params, curve, level_v, level_rot, level_mu, level_a, coef_a, level_b, coef_b,\n"
+     "coef_asymptote, extra_index, coef_extra, offset, observed, sigma, extra_start, vary, lower, upper,\n"
+     "max_iterations=-1, method=0) -> dict (params, extra, calc, jacobian[n, n_params + n_extra], chi_square, ...,\n"
+     "n_level_calculations): a fit to rows that are linear combinations of distinct levels; a failure at the\n"
+     "start raises ValueError(message, level index)"},
     {"exact_levels", (PyCFunction)(void (*)(void))py_exact_levels, METH_VARARGS | METH_KEYWORDS,
      "exact_levels(model, params, curve, mu, J, v=None, want_dVdp=False, want_wavefunctions=False,\n"
      "energy_tol=1e-7, min_binding=1e-7, phase_step=0) -> dict of arrays (v, J, energy, binding_energy,\n"
@@ -1585,6 +1884,9 @@ static PyMethodDef core_methods[] = {
     {"fit_levels", (PyCFunction)(void (*)(void))py_fit_levels, METH_VARARGS | METH_KEYWORDS,
      "fit_levels(model, params, curve, mu, rot, method=0) -> dict (energy, jacobian[count, n_params], vD, dvD_dp,\n"
      "asymptote): every bound level (0 WKB, 1 exact) with its parameter gradient; vD is the WKB one"},
+    {"damping", (PyCFunction)(void (*)(void))py_damping, METH_VARARGS | METH_KEYWORDS,
+     "damping(kind, m, s, rho, r) -> (D, dD/dr, d2D/dr2, dD/drho): damping function D_m(r) (r in angstrom;\n"
+     "kind 0 none, 1 Tang-Toennies with b = rho in 1/angstrom, 2 Douketis type with dimensionless rho, s = -1, -2)"},
     {"rkr", (PyCFunction)(void (*)(void))py_rkr, METH_VARARGS | METH_KEYWORDS,
      "rkr(G_coefficients, B_coefficients, mu, v, quadrature_points=0) -> dict of arrays (energy, f, g,\n"
      "inner_turning_point, outer_turning_point, error): RKR turning points from Dunham expansions\n"

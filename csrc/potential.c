@@ -179,6 +179,8 @@ const wkb_model *const wkb_models[] = {
     &wkb_models_emo[4], &wkb_models_emo[5], &wkb_models_emo[6], &wkb_models_emo[7],
     &wkb_models_mlr[0], &wkb_models_mlr[1], &wkb_models_mlr[2], &wkb_models_mlr[3],
     &wkb_models_mlr[4], &wkb_models_mlr[5], &wkb_models_mlr[6], &wkb_models_mlr[7],
+    &wkb_models_mlrd[0], &wkb_models_mlrd[1], &wkb_models_mlrd[2], &wkb_models_mlrd[3],
+    &wkb_models_mlrd[4], &wkb_models_mlrd[5], &wkb_models_mlrd[6], &wkb_models_mlrd[7],
     NULL,
 };
 

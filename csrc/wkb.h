@@ -14,7 +14,7 @@
 /* hbar^2/(2 u) in cm-1 angstrom^2, CODATA 2022 (h, c exact; u = 1.66053906892e-27 kg). */
 #define WKB_HBAR2_OVER_2U 16.85762916809
 
-#define WKB_MAX_PARAMS 16
+#define WKB_MAX_PARAMS 40
 
 /* ---------------------------------------------------------------- status.c */
 enum wkb_status {
@@ -115,6 +115,52 @@ static inline double wkb_potential_asymptote(const wkb_potential *pot)
 #define WKB_MLR_MAX_BETAS 8 /* 8 + 8 parameters = WKB_MAX_PARAMS */
 extern const wkb_model wkb_models_emo[WKB_EMO_MAX_BETAS]; /* [K-1]: "emoK" */
 extern const wkb_model wkb_models_mlr[WKB_MLR_MAX_BETAS]; /* [K-1]: "mlrK" */
+/* MLR with C3, C4, C6, C8, C10 and damping (damping.c), "mlrdK": parameters De, re, C3, C4, C6, C8,
+   C10, p, q, r_ref, damping (0 none, 1 Tang-Toennies, 2 Douketis type), rho (the damping range:
+   b in 1/angstrom for Tang-Toennies, the dimensionless rho for the Douketis form), s (Douketis
+   power offset, -1 or -2), beta0..; u(r) = sum_m D_m(r) C_m/r^m; tail power the lowest m present.
+   Checks: C_m >= 0, one > 0; p whole, 3..64, above m_last - m_first; u_LR(re) > 0, and < 2 De
+   when undamped. */
+extern const wkb_model wkb_models_mlrd[WKB_MLR_MAX_BETAS]; /* [K-1]: "mlrdK" */
+
+/* ---------------------------------------------------------------- damping.c */
+/* Damping functions D_m(r) of long-range terms C_m/r^m (r in angstrom):
+   WKB_DAMPING_TANG_TOENNIES [Tang & Toennies, J. Chem. Phys. 80, 3726 (1984)]:
+     D_m = 1 - exp(-x) sum_{k=0}^{m} x^k/k!, x = range * r, range = b in 1/angstrom;
+   WKB_DAMPING_DOUKETIS [Douketis et al., J. Chem. Phys. 76, 3057 (1982), generalized by Le Roy
+     et al., Mol. Phys. 109, 435 (2011)]: D_m = [1 - exp(-b(s) rho r/m - c(s) (rho r)^2/sqrt(m))]^(m+s),
+     r in bohr, range = rho (dimensionless); s = -1 or -2 (other s: NaN).
+   WKB_DAMPING_NONE: D = 1. out: D, dD/dr, d2D/dr2, dD/d(range). */
+enum { WKB_DAMPING_NONE = 0, WKB_DAMPING_TANG_TOENNIES = 1, WKB_DAMPING_DOUKETIS = 2 };
+typedef struct {
+    double D, dD, d2D, dD_drange;
+} wkb_damping;
+void wkb_damping_eval(int kind, int m, int s, double range, double r, wkb_damping *out);
+/* b(s), c(s) of the Douketis-type form (from memory); returns 0 for an s without constants. */
+int wkb_douketis_constants(int s, double *b, double *c);
+
+/* -------------------------------------------------------------------- bob.c */
+/* Born-Oppenheimer breakdown corrections [Le Roy, J. Mol. Spectrosc. 194, 189 (1999); from
+   memory]: a model descriptor wrapping an analytic base model; parameters: the base model's, then
+   for each of the functions S_A, S_B (adiabatic) and R_A, R_B (centrifugal) with n_coef[f] > 0:
+   c_inf, c_0 .. c_(n-1) of F = y c_inf + (1 - y) sum_i c_i y^i, y = y_p(r; re). V gains
+   adiabatic[X] S_X(r) + rot_eps centrifugal[X] R_X(r)/r^2 with adiabatic[X] = dM_X/M_X(alpha),
+   centrifugal[X] = M_X(1)/M_X(alpha), rot_eps = J(J+1) hbar^2/(2 mu_alpha). */
+typedef struct {
+    wkb_model model; /* first: the level code sees an ordinary model */
+    const wkb_model *base;
+    double power, adiabatic[2], centrifugal[2], rot_eps;
+    int n_coef[4];
+    const char *names[WKB_MAX_PARAMS];
+    char name_buf[WKB_MAX_PARAMS][16];
+} wkb_bob_model;
+/* The template (reference isotopologue, no rotation): WKB_EINVAL for a bad base or counts. */
+int wkb_bob_model_init(wkb_bob_model *b, const wkb_model *base, const int *n_coef, double power, wkb_error *err);
+/* A copy of tmpl for one isotopologue and J (tmpl must outlive it). */
+void wkb_bob_model_variant(const wkb_bob_model *tmpl, wkb_bob_model *out, const double *adiabatic,
+                           const double *centrifugal, double rot_eps);
+/* The base model's check on the base part of p. */
+int wkb_bob_potential_check(const wkb_bob_model *b, const double *p, wkb_error *err);
 
 /* ------------------------------------------------------------- pointwise.c */
 /* Builds a point-wise potential from n >= 5 points r (angstrom, > 0, strictly
@@ -350,6 +396,9 @@ typedef struct {
        semiclassical fit with exact corrections adds E_exact - E_wkb here, held fixed
        during one run (its parameter dependence is left out of the Jacobian) */
     const double *offset;
+    /* optional, per level: the model to compute it with instead of the potential's own (a
+       Born-Oppenheimer correction variant of it with the same parameters), or NULL */
+    const wkb_model *const *level_model;
 } wkb_fit_data;
 
 /* A source of levels other than first-order WKB (such as the exact solver): prepared once
@@ -372,6 +421,24 @@ void wkb_fit_evaluator_free(wkb_fit_evaluator *ev);
    potential does not bind it), WKB_ENUMERIC for a non-finite result. */
 int wkb_fit_evaluate(wkb_fit_evaluator *ev, const wkb_potential *pot, double *calc, double *jac,
                      size_t *bad_row, wkb_error *err);
+
+/* Levels computed by ev so far (each E_v with its dE_v/dp counts once). */
+size_t wkb_fit_evaluator_level_calculations(const wkb_fit_evaluator *ev);
+
+/* Data rows as linear combinations of levels, for fits to mixed data (term values, line
+   positions, binding energies, free term values of levels outside the model):
+     calc_i = offset_i + coef_a_i E[level_a_i] + coef_b_i E[level_b_i]
+              + coef_asymptote_i * asymptote(p) + coef_extra_i * extra[extra_i],
+   E[] the term values (cm-1, above the minimum) of the fit's levels; level or extra index
+   -1 for none. Only level_a, coef_a, observed and sigma are required (others NULL = none).
+   The extras are n_extra linear parameters fitted with the potential (free term values,
+   a fitted asymptote); their Jacobian columns are the constant coefficients. */
+typedef struct {
+    size_t n, n_extra;
+    const int *level_a, *level_b, *extra;
+    const double *coef_a, *coef_b, *coef_asymptote, *coef_extra, *offset;
+    const double *observed, *sigma; /* cm-1 */
+} wkb_fit_rows;
 
 /* Which parameters vary, and their bounds (+-INFINITY for none); indexed like the model's
    parameters. A varied parameter must start strictly inside its bounds. */
@@ -406,6 +473,7 @@ typedef struct {
     int insensitive[WKB_MAX_PARAMS]; /* varied parameters held fixed because no level depends on
                                         them at the start (relative sensitivity below WKB_FIT_INSENSITIVE) */
     wkb_error last_infeasible;     /* why the last infeasible trial point was rejected */
+    size_t n_level_calculations;   /* levels computed during the fit (all evaluations) */
 } wkb_fit_outcome;
 /* ||d f/d ln p_k|| below this fraction of the largest: the levels do not depend on p_k */
 #define WKB_FIT_INSENSITIVE 1e-9
@@ -420,6 +488,17 @@ typedef struct {
 int wkb_fit_run(const wkb_potential *start, const wkb_fit_data *data, const wkb_fit_spec *spec,
                 const wkb_fit_settings *settings, const wkb_level_source *source,
                 wkb_fit_outcome *out, double *calc, double *jac, wkb_error *err);
+
+/* The fit of wkb_fit_run to rows (wkb_fit_rows) over distinct levels (energy_zero minimum;
+   each level is computed once per evaluation whatever the number of rows using it).
+   extra[n_extra]: out, the fitted extras (closed-form weighted means for the potential: the
+   solver works on the problem projected onto the potential's parameters, see fit.c; the values
+   passed in are not used). calc[n_rows], jac[n_rows][n_params + n_extra].
+   out->bad_row names the failing LEVEL at the start. Status as wkb_fit_run. */
+int wkb_fit_run_rows(const wkb_potential *start, const wkb_fit_data *levels, const wkb_fit_rows *rows,
+                     const wkb_fit_spec *spec, double *extra, const wkb_fit_settings *settings,
+                     const wkb_level_source *source, wkb_fit_outcome *out, double *calc, double *jac,
+                     wkb_error *err);
 
 /* Every bound level of (pot, mu, J(J+1) = rot) with its parameter gradient, for
    predictions: energy[capacity], dEdp[capacity][n_params]; *count = number of bound levels

@@ -8,8 +8,11 @@ from .potentials import Potential, Morse, LennardJones, PoschlTeller, PointwiseP
 from .potentials import EMO, MLR
 from .levels import LevelTable, levels
 from .exact import exact_wavefunction, compare_wkb_exact, WKBComparison
-from .observed import ObservedLevels, read_levels
+from .observed import ObservedLevels, read_levels, DataWarning
+from .lines import ObservedLines, read_lines, ObservedWidths, read_widths
+from . import units
 from .fitting import fit, FitResult
+from .born_oppenheimer import BornOppenheimerCorrection
 from .rkr import RKRTurningPoints, rkr_turning_points, rkr_potential
 from .near_dissociation import near_dissociation_fit, NearDissociationFit
 from . import plots  # figures; matplotlib itself is imported only when one is drawn

@@ -189,7 +189,7 @@ def _cmd_levels(args, out):
 
 def _cmd_check(args, out):
     from .observed import read_levels
-    obs = read_levels(args.datafile, energy_zero=args.energy_zero)
+    obs = read_levels(args.datafile, energy_zero=args.energy_zero, unit=args.unit)
     for line in obs.comments:
         print("# " + line, file=out)
     print(repr(obs), file=out)
@@ -246,10 +246,15 @@ def _cmd_fit(args, out):
     if args.output_dir is not None:
         path = cli_tools._output_path(args, os.path.basename(path) if args.output is None else path)
     _refuse_overwrite(path, args.force)
-    obs = read_levels(args.datafile, energy_zero=args.energy_zero)
+    from .lines import read_lines
+    obs = read_levels(args.datafile, energy_zero=args.energy_zero, unit=args.unit)
     pot = _build_potential(args.model, args.params)
     mu = _mu_argument(args, obs)
-    result = fit(pot, obs, mu, **_fit_kwargs(args, pot))
+    data = [obs] + [read_lines(path, unit=args.unit) for path in args.lines or []]
+    kwargs = _fit_kwargs(args, pot)
+    if args.omega:
+        kwargs["omega"] = args.omega
+    result = fit(pot, data if len(data) > 1 else obs, mu, **kwargs)
     print(result.report(), file=out)
     for label in obs.isotopologues:
         print("", file=out)
@@ -436,6 +441,8 @@ def _parser():
                        help="what the energies are measured from: minimum (term values above the potential "
                             "minimum, default), lowest (the lowest level of each isotopologue) or asymptote "
                             "(binding energies, positive)")
+        p.add_argument("--unit", choices=("cm-1", "MHz", "GHz"), default=None,
+                       help="unit of the energies and uncertainties (default cm-1, or what the file states)")
         p.add_argument("--mu", type=lambda s: _number(s, "--mu"),
                        help="reduced mass in u (data of one isotopologue)")
         p.add_argument("--mass", action="append", metavar="LABEL=MU",
@@ -462,6 +469,11 @@ def _parser():
     p.add_argument("--method", choices=("corrected", "wkb", "exact"), default="corrected",
                    help="level calculation: corrected (default: WKB with exact per-level corrections, exact-level "
                         "quality), wkb (first-order only, fast) or exact (every iteration exact)")
+    p.add_argument("--lines", action="append", metavar="FILE",
+                   help="also fit the line positions in FILE (columns v_upper, J_upper, v_lower, J_lower, wavenumber, "
+                        "uncertainty, optional isotopologue, upper_state, lower_state); repeat for several")
+    p.add_argument("--omega", type=int, default=0, metavar="OMEGA",
+                   help="electronic angular momentum of the state: centrifugal term J(J+1) - Omega^2")
     scale = p.add_mutually_exclusive_group()
     scale.add_argument("--scale-uncertainties", dest="scale_uncertainties", action="store_const", const=True,
                        default=None, help="scale parameter uncertainties by the sqrt of reduced chi-square")

@@ -18,7 +18,11 @@ import numpy as np
 from . import _core, _validate
 from . import potentials as _potentials
 from .masses import as_reduced_mass, parse_isotopologue, reduced_mass
-from .observed import read_levels
+from .observed import ObservedLevels, read_levels
+from .lines import ObservedLines, ObservedWidths
+from .design import build_design
+from .checks import check_data
+from .born_oppenheimer import BornOppenheimerCorrection
 from . import reports as _reports
 from . import corrected as _corrected
 from . import method_error as _method_error
@@ -89,13 +93,17 @@ class Parameter:
 
 # ------------------------------------------------------------------------------ fit
 def fit(potential, observed, mu=None, *, method="corrected", vary=None, bounds=None, scale_uncertainties=True,
-        max_iterations=200):
+        max_iterations=200, omega=0, born_oppenheimer=None):
     """Fit the parameters of `potential` to measured levels by weighted least squares.
 
     potential: a wkbfit potential object (Morse, LennardJones, ...); its parameter values are
         the starting point, and it is not changed (the result holds a new, fitted one).
-    observed: an ObservedLevels, or anything `read_levels` accepts (CSV path, DataFrame, dict);
-        its `energy_zero` says what the energies are measured from:
+    observed: the data: one data object or a list of them, fitted together: ObservedLevels
+        (read_levels: term values or binding energies; anything read_levels accepts is read
+        with its defaults) and ObservedLines (read_lines: line positions, with free term
+        values for levels of states that are not modelled). The distinct levels of all data
+        are computed once per model evaluation; see design.py. An ObservedLevels'
+        `energy_zero` says what its energies are measured from:
         "minimum"   calc = E_v, the term value above the potential minimum;
         "asymptote" calc = asymptote - E_v, the binding energy;
         "lowest"    calc = E_v - E_(v=0,J=0) of the same isotopologue. The fit uses the
@@ -133,6 +141,13 @@ def fit(potential, observed, mu=None, *, method="corrected", vary=None, bounds=N
         stated measurement uncertainties alone. Both covariances are kept in the result.
     max_iterations: accepted Levenberg-Marquardt steps at most; a fit that stops there returns
         its best point with status "max_iterations" and a warning.
+    born_oppenheimer: None, or a BornOppenheimerCorrection (born_oppenheimer.py): mass-scaled
+        adiabatic and non-adiabatic centrifugal correction functions for multi-isotopologue
+        data, whose coefficients (uA0, ..., tA0, ...) are fitted with the potential and appear
+        in `params`; the fitted potential is that of the reference isotopologue.
+    omega: the electronic angular momentum (Omega, or Lambda) of the fitted state, a whole
+        number >= 0: the centrifugal term is hbar^2 [J(J+1) - Omega^2]/(2 mu r^2), every level
+        needs J >= Omega, and energy_zero="lowest" means v=0, J=Omega.
 
     Returns a FitResult. Raises ValueError for bad input (naming the bad value), including
     fewer levels than varied parameters and a starting potential that does not bind a level
@@ -144,7 +159,10 @@ def fit(potential, observed, mu=None, *, method="corrected", vary=None, bounds=N
     names = list(potential.param_names)
     if not names:
         raise ValueError("%r has no adjustable parameters: nothing to fit" % (potential,))
-    obs = read_levels(observed)
+    items = list(observed) if isinstance(observed, (list, tuple)) else [observed]
+    if not items:
+        raise ValueError("no data: give one data object (read_levels, read_lines) or a list of them")
+    datasets = [_as_data(x) for x in items]
     if method not in FIT_METHODS:
         raise ValueError("method=%r is not known; use 'corrected' (the default: WKB with exact corrections), 'wkb' "
                          "(first-order WKB levels) or 'exact'" % (method,))
@@ -155,30 +173,139 @@ def fit(potential, observed, mu=None, *, method="corrected", vary=None, bounds=N
     if max_iterations < 1:
         raise ValueError("max_iterations=%r must be a positive integer" % (max_iterations,))
 
-    vary_flags = _vary_flags(potential, vary)
-    lower, upper, bounds_by_name = _bounds(potential, bounds, vary_flags)
-    masses = obs.masses_by_isotopologue(mu)
+    bob = born_oppenheimer
+    if bob is not None and not isinstance(bob, BornOppenheimerCorrection):
+        raise ValueError("born_oppenheimer=%r must be None or a BornOppenheimerCorrection" % (bob,))
+    if bob is not None and isinstance(potential, _potentials.PointwisePotential):
+        raise ValueError("Born-Oppenheimer corrections need an analytic potential model, not a PointwisePotential")
+    bob_names = list(bob.param_names) if bob is not None else []
+    vary_flags = _vary_flags(potential, vary, bob_names, bob.fixed_by_default if bob is not None else ())
+    lower, upper, bounds_by_name = _bounds(potential, bounds, vary_flags[:len(names)])
+    if bob is not None:
+        lower = np.concatenate([lower, np.full(len(bob_names), -np.inf)])
+        upper = np.concatenate([upper, np.full(len(bob_names), np.inf)])
+        bounds_by_name.update({n: (None, None) for n in bob_names})
+    omega = _omega(omega)
+    design = build_design(datasets, omega)
+    masses = _masses(datasets, mu)
+    n_vary = int(sum(vary_flags)) + len(design.extra_names)
+    if int(sum(vary_flags)) == 0:
+        raise ValueError("no parameter is varied (vary=%r): nothing to fit" % (vary,))
+    n_rows = design.n_rows
+    if n_rows < n_vary:
+        what = "level" if all(isinstance(x, ObservedLevels) for x in datasets) else "data row"
+        raise ValueError("%d fitted %s%s cannot determine %d varied parameters (%s)%s; fix some parameters "
+                         "(vary=...) or add data" % (
+                             n_rows, what, "" if n_rows == 1 else "s", n_vary,
+                             ", ".join([n for n, f in zip(names, vary_flags) if f] + design.extra_names),
+                             " (the v=0, J=0 rows define the zero of energy_zero='lowest' data and are not fitted)"
+                             if n_rows < sum(len(x) for x in datasets) else ""))
+    if len(datasets) > 1:
+        check_data(datasets, stacklevel=2)
+
+    model, params0, curve = potential._core_args()
+    if _term_values_only(datasets, bob, omega, design):
+        # one set of term values or binding energies: the engine of the corrected default fit
+        return _fit_levels_engine(potential, datasets[0], masses, method, vary_flags, lower, upper,
+                                  bounds_by_name, scale_uncertainties, max_iterations, names, int(sum(vary_flags)),
+                                  design)
+    engine_note = None
+    if method == "corrected":
+        # the refresh loop of the corrected fit runs on term values only so far: mixed data kinds get the
+        # exact levels (the accurate choice, slower), and the result says so
+        method = "exact"
+        engine_note = ("the corrected method covers one set of term values or binding energies; these data (line "
+                       "positions, several data sets, a fitted asymptote, Omega or Born-Oppenheimer terms) were "
+                       "fitted with exact levels in every iteration")
+    lv, lrot, lmu, rows = design.arrays(masses, omega)
+    bob_kwargs = {}
+    if bob is not None:
+        if bob.reference not in masses:
+            raise ValueError("the reference isotopologue %r of the Born-Oppenheimer correction is not among the data's "
+                             "isotopologues (%s)" % (bob.reference, ", ".join(repr(k) for k in masses)))
+        var, ad, na, rot_eps = bob.variants(design.level_keys, masses, omega)
+        params0 = np.concatenate([params0, bob.start])
+        bob_kwargs = dict(bob_counts=np.array(bob.counts, dtype=np.intc), bob_power=float(bob.p), level_variant=var,
+                          variant_adiabatic=ad, variant_centrifugal=na, variant_rot_eps=rot_eps)
+    try:
+        out = _core.fit_run_rows(model, params0, curve, lv, lrot, lmu, rows["level_a"], rows["coef_a"],
+                                 rows["level_b"], rows["coef_b"], rows["coef_asymptote"], rows["extra_index"],
+                                 rows["coef_extra"], rows["offset"], rows["observed"], rows["sigma"],
+                                 np.array(design.extra_start, dtype=float), np.asarray(vary_flags, dtype=np.intc),
+                                 lower, upper, max_iterations, method=_METHOD_CODES[method], **bob_kwargs)
+    except ValueError as err:
+        if len(err.args) == 2 and isinstance(err.args[1], int):
+            raise ValueError(_start_failure_message(err.args[0], design, err.args[1], potential)) from None
+        raise
+
+    fitted_potential = type(potential)(**dict(zip(names, out["params"][:len(names)].tolist()))) \
+        if not isinstance(potential, _potentials.PointwisePotential) else potential
+    np_ = len(names) + len(bob_names)
+    calc_rows, jac_rows = out["calc"], out["jacobian"]
+    # per data row, data set after data set (rows not fitted: calc 0, zero Jacobian)
+    n_all = sum(len(b.rows) for b in design.blocks)
+    calc = np.zeros(n_all)
+    jac = np.zeros((n_all, np_ + len(design.extra_names)))
+    fitted = np.zeros(n_all, dtype=bool)
+    sigma = np.zeros(n_all)
+    observed_values = np.zeros(n_all)
+    start = 0
+    for block in design.blocks:
+        k = len(block.rows)
+        sel = block.rows >= 0
+        idx = np.arange(start, start + k)
+        calc[idx[sel]] = calc_rows[block.rows[sel]]
+        jac[idx[sel]] = jac_rows[block.rows[sel]]
+        fitted[idx] = sel
+        sigma[idx] = _data_sigma(block.data)
+        observed_values[idx] = _data_values(block.data)
+        block.start = start
+        start += k
+    result = FitResult._build(
+        potential=fitted_potential, initial_potential=potential, observed=datasets[0] if len(datasets) == 1
+        else list(datasets), masses=masses, method=method,
+        vary_flags=vary_flags, bounds_by_name=bounds_by_name, calculated=calc, jacobian=jac[:, :np_], fitted_rows=fitted,
+        chi_square=float(out["chi_square"]), scale_uncertainties=bool(scale_uncertainties),
+        iterations=int(out["iterations"]), n_evaluations=int(out["n_eval"]), stop=out["stop"],
+        stop_test=int(out["test"]), predicted_decrease=float(out["predicted_decrease"]),
+        n_infeasible=int(out["n_infeasible"]), last_infeasible=out["last_infeasible"],
+        max_iterations=max_iterations, insensitive=[n for n, f in zip(names, out["insensitive"]) if f],
+        observed_values=observed_values, sigma=sigma, design=design, extra_values=out["extra"],
+        jacobian_extra=jac[:, np_:], n_level_calculations=int(out["n_level_calculations"]), omega=omega,
+        correction=bob, correction_values=out["params"][len(names):].tolist())
+    result.refreshes, result.refresh_history, result.start_notes = 0, [], []
+    if engine_note:
+        result.start_notes.append(engine_note)
+    result.fit_options = {"method": method, "vary": list(result.var_names),
+                          "bounds": {n: b for n, b in bounds_by_name.items() if b != (None, None)},
+                          "scale_uncertainties": bool(scale_uncertainties), "max_iterations": max_iterations,
+                          "omega": omega, "born_oppenheimer": bob}
+    result._warn()
+    return result
+
+
+def _term_values_only(datasets, bob, omega, design):
+    """True for one plain set of term values or binding energies (below the potential's own
+    asymptote): the data the corrected fit's refresh loop (corrected.py) runs on."""
+    if len(datasets) != 1 or type(datasets[0]) is not ObservedLevels or bob is not None or omega:
+        return False
+    obs = datasets[0]
+    return not design.extra_names and getattr(obs, "asymptote", None) is None
+
+
+def _fit_levels_engine(potential, obs, masses, method, vary_flags, lower, upper, bounds_by_name,
+                       scale_uncertainties, max_iterations, names, n_vary, design):
+    """fit() for one ObservedLevels: corrected (default), wkb or exact, with the method-error check."""
+    for block in design.blocks:  # one data set: its rows are the result's rows
+        block.start = 0
     mu_rows = np.array([masses[label] for label in obs.isotopologue], dtype=float)
     rot = (obs.J * (obs.J + 1)).astype(float)
     zero = obs.energy_zero
-    if zero not in _ENERGY_ZERO_CODES:
-        raise ValueError("energy_zero=%r of the data is not known; use one of %s" % (zero, list(_ENERGY_ZERO_CODES)))
     # rows v=0, J=0 define the zero of "lowest" data: calc is 0 by definition, so they carry no information
     fitted = np.ones(len(obs), dtype=bool)
     if zero == "lowest":
         fitted &= ~((obs.v == 0) & (obs.J == 0))
     rows = np.nonzero(fitted)[0]
-    n_vary = int(sum(vary_flags))
-    if n_vary == 0:
-        raise ValueError("no parameter is varied (vary=%r): nothing to fit" % (vary,))
-    if len(rows) < n_vary:
-        raise ValueError("%d fitted level%s cannot determine %d varied parameters (%s)%s; fix some parameters "
-                         "(vary=...) or add levels" % (
-                             len(rows), "" if len(rows) == 1 else "s", n_vary,
-                             ", ".join(n for n, f in zip(names, vary_flags) if f),
-                             " (the v=0, J=0 rows define the zero of energy_zero='lowest' data and are not fitted)"
-                             if len(rows) < len(obs) else ""))
-
     model, params0, curve = potential._core_args()
     args = dict(model=model, params=params0, curve=curve, v=obs.v[rows], rot=rot[rows], mu=mu_rows[rows],
                 energy=obs.energy[rows], sigma=obs.uncertainty[rows], energy_zero=_ENERGY_ZERO_CODES[zero],
@@ -195,7 +322,7 @@ def fit(potential, observed, mu=None, *, method="corrected", vary=None, bounds=N
     except ValueError as err:
         if len(err.args) == 2 and isinstance(err.args[1], int):
             i = rows[err.args[1]]
-            raise ValueError(_start_failure_message(err.args[0], obs, i, potential, mu_rows[i])) from None
+            raise ValueError(_start_failure_message_levels(err.args[0], obs, i, potential, mu_rows[i])) from None
         raise
 
     calc = np.zeros(len(obs))
@@ -211,7 +338,8 @@ def fit(potential, observed, mu=None, *, method="corrected", vary=None, bounds=N
         iterations=int(out["iterations"]), n_evaluations=int(out["n_eval"]), stop=out["stop"],
         stop_test=int(out["test"]), predicted_decrease=float(out["predicted_decrease"]),
         n_infeasible=int(out["n_infeasible"]), last_infeasible=out["last_infeasible"],
-        max_iterations=max_iterations, insensitive=[n for n, f in zip(names, out["insensitive"]) if f])
+        max_iterations=max_iterations, insensitive=[n for n, f in zip(names, out["insensitive"]) if f],
+        design=design)
     result.refreshes = int(out.get("refreshes", 0))
     result.refresh_history = list(out.get("history", ()))
     result.start_notes = start_notes
@@ -230,9 +358,65 @@ def fit(potential, observed, mu=None, *, method="corrected", vary=None, bounds=N
     return result
 
 
-def _vary_flags(potential, vary):
-    names = list(potential.param_names)
-    default = [n not in getattr(potential, "fixed_by_default", ()) for n in names]
+def _as_data(item):
+    if isinstance(item, (ObservedLevels, ObservedLines, ObservedWidths)):
+        return item
+    return read_levels(item)
+
+
+def _data_values(data):
+    if isinstance(data, ObservedLines):
+        return data.wavenumber
+    if isinstance(data, ObservedWidths):
+        return data.width
+    return data.energy
+
+
+def _data_sigma(data):
+    return data.uncertainty
+
+
+def _omega(omega):
+    try:
+        value = float(omega)
+    except (TypeError, ValueError):
+        raise ValueError("omega=%r must be a whole number >= 0 (the electronic angular momentum Omega or Lambda "
+                         "of the state)" % (omega,)) from None
+    if not (math.isfinite(value) and value == int(value) and value >= 0):
+        raise ValueError("omega=%r must be a whole number >= 0 (the electronic angular momentum Omega or Lambda of "
+                         "the state; half-integer Omega is not supported)" % (omega,))
+    return int(value)
+
+
+def _masses(datasets, mu):
+    """Reduced mass of every isotopologue label of every data set."""
+    labels = []
+    for d in datasets:
+        for label in d.isotopologues if hasattr(d, "isotopologues") else [None]:
+            if label not in labels:
+                labels.append(label)
+    if isinstance(mu, dict):
+        unknown = [k for k in mu if k not in labels]
+        if unknown:
+            raise ValueError("mu gives a reduced mass for %s, which is not an isotopologue of the data (%s)" % (
+                ", ".join(repr(k) for k in unknown), ", ".join("unnamed" if l is None else repr(l) for l in labels)))
+    elif mu is not None and len(labels) > 1:
+        raise ValueError("a single reduced mass mu=%r was given but the data hold %d isotopologues; give a dict "
+                         "label -> reduced mass, or mu=None to take the masses from the labels" % (mu, len(labels)))
+    out = {}
+    for d in datasets:
+        own = d.isotopologues
+        sub = {k: v for k, v in mu.items() if k in own} if isinstance(mu, dict) else mu
+        if isinstance(d, ObservedWidths):
+            continue
+        out.update(d.masses_by_isotopologue(sub))
+    return out
+
+
+def _vary_flags(potential, vary, extra_names=(), extra_fixed=()):
+    names = list(potential.param_names) + list(extra_names)
+    fixed = tuple(getattr(potential, "fixed_by_default", ())) + tuple(extra_fixed)
+    default = [n not in fixed for n in names]
     if vary is None:
         return default
     if isinstance(vary, dict):
@@ -353,7 +537,7 @@ def _quasibound_note(potential, mu, v, J):
             "and widths)" % (v, J, -cols["binding_energy"][k], barriers[int(J)]["height"], cols["width"][k]))
 
 
-def _start_failure_message(message, obs, i, potential, mu=None):
+def _start_failure_message_levels(message, obs, i, potential, mu=None):
     text = "the starting potential %r cannot compute %s: %s" % (potential, _row_description(obs, i), message)
     note = None
     if mu is not None and obs.J[i] > 0 and ("not bound" in message or "last bound level" in message or
@@ -362,6 +546,23 @@ def _start_failure_message(message, obs, i, potential, mu=None):
     if note:
         text += "; " + note
     elif "not bound" in message or "last bound level" in message or "binds no levels" in message:
+        text += ("; every level of the data must be bound by the starting potential: start from a deeper or "
+                 "wider well (larger De, or a smaller a / larger re), e.g. from a Birge-Sponer estimate of De")
+    return text
+
+
+def _start_failure_message(message, design, level, potential):
+    label, v, J = design.level_keys[level]
+    users = [o for o, r in zip(design.row_origin, range(design.n_rows))
+             if level in (design.cols["level_a"][r], design.cols["level_b"][r])]
+    lev = "%sv=%d, J=%d" % ("isotopologue %s, " % label if label is not None else "", v, J)
+    if users:
+        b, i = users[0]
+        where = ("data set %d, row %d" % (b + 1, i + 1)) if len(design.blocks) > 1 else "data row %d" % (i + 1)
+        text = "the starting potential %r cannot compute %s (%s): %s" % (potential, where, lev, message)
+    else:
+        text = "the starting potential %r cannot compute the level %s: %s" % (potential, lev, message)
+    if "not bound" in message or "last bound level" in message or "binds no levels" in message:
         text += ("; every level of the data must be bound by the starting potential: start from a deeper or "
                  "wider well (larger De, or a smaller a / larger re), e.g. from a Birge-Sponer estimate of De")
     return text
@@ -395,25 +596,47 @@ class FitResult:
     def _build(cls, *, potential, initial_potential, observed, masses, method, vary_flags, bounds_by_name,
                calculated, jacobian, fitted_rows, chi_square, scale_uncertainties, iterations, n_evaluations,
                stop, stop_test, predicted_decrease, n_infeasible, last_infeasible, max_iterations,
-               insensitive=()):
+               insensitive=(), observed_values=None, sigma=None, design=None, extra_values=(), jacobian_extra=None,
+               n_level_calculations=None, omega=0, correction=None, correction_values=()):
         self = cls.__new__(cls)
-        names = list(potential.param_names)
+        #: the Born-Oppenheimer correction fitted with the potential (None), and its coefficients
+        self.correction = correction
+        corr_names = list(correction.param_names) if correction is not None else []
+        self._correction_values = dict(zip(corr_names, [float(x) for x in correction_values]))
+        self._correction_initial = dict(zip(corr_names, correction.start)) if correction is not None else {}
+        names = list(potential.param_names) + corr_names
         self.potential = potential
         self.initial_potential = initial_potential
         self.observed = observed
+        self.data = list(observed) if isinstance(observed, list) else [observed]
         self.masses = dict(masses)
         self.method = method
-        self.energy_zero = observed.energy_zero
+        self.omega = omega
+        first = self.data[0]
+        self.energy_zero = getattr(first, "energy_zero", None) if len(self.data) == 1 else None
+        if observed_values is None:
+            observed_values, sigma = observed.energy, observed.uncertainty
+        self._observed_values = _frozen(np.asarray(observed_values, dtype=float))
+        self._sigma = _frozen(np.asarray(sigma, dtype=float))
+        self.n_level_calculations = n_level_calculations
+        self.blocks = design.blocks if design is not None else []
+        self.n_levels = len(design.level_keys) if design is not None else None
+        extra_names = list(design.extra_names) if design is not None else []
+        self.extra_names = extra_names
+        self._extra_values = np.asarray(extra_values, dtype=float)
+        self.jacobian_extra = _frozen(np.zeros((len(self._sigma), 0)) if jacobian_extra is None
+                                      else np.asarray(jacobian_extra, dtype=float))
         self.scale_uncertainties = scale_uncertainties
         self.calculated = _frozen(np.asarray(calculated, dtype=float))
         self.jacobian = _frozen(np.asarray(jacobian, dtype=float))
         self.fitted_rows = _frozen(np.asarray(fitted_rows, dtype=bool))
-        self.residuals = _frozen(observed.energy - self.calculated)
-        self.normalized_residuals = _frozen(self.residuals / observed.uncertainty)
+        self.residuals = _frozen(np.where(self.fitted_rows, self._observed_values - self.calculated,
+                                          self._observed_values - self.calculated))
+        self.normalized_residuals = _frozen(self.residuals / self._sigma)
         self.var_names = [n for n, f in zip(names, vary_flags) if f]
         self.chi_square = float(chi_square)
         n_fit = int(np.count_nonzero(self.fitted_rows))
-        self.dof = n_fit - len(self.var_names)
+        self.dof = n_fit - len(self.var_names) - len(extra_names)
         self.sqrt_reduced_chi_square = math.sqrt(self.chi_square / self.dof) if self.dof > 0 else None
         self.iterations = iterations
         self.n_evaluations = n_evaluations
@@ -426,13 +649,23 @@ class FitResult:
         return self
 
     def _analyse(self, names, vary_flags, bounds_by_name, insensitive=()):
-        """Covariance, correlations, and why any parameter is not determined."""
-        values = self.potential.params
-        initial = self.initial_potential.params
-        var_idx = [names.index(n) for n in self.var_names]
+        """Covariance, correlations, and why any parameter is not determined. The extra
+        parameters (free term values, fitted asymptotes) take part in the covariance; the
+        potential's block of it is `covariance`, the extras are in `free_parameters`."""
+        extra_names = self.extra_names
+        values = dict(self.potential.params, **self._correction_values,
+                      **dict(zip(extra_names, self._extra_values.tolist())))
+        initial = dict(self.initial_potential.params, **self._correction_initial,
+                       **dict(zip(extra_names, self._extra_values.tolist())))
+        bounds_by_name = dict(bounds_by_name, **{n: (None, None) for n in extra_names})
+        pot_var = list(self.var_names)
+        all_var = pot_var + extra_names
+        var_idx = [names.index(n) for n in pot_var]
         rows = self.fitted_rows
-        Jw = self.jacobian[rows][:, var_idx] / self.observed.uncertainty[rows][:, None]
-        nv = len(var_idx)
+        Jall = np.hstack([self.jacobian[:, var_idx], self.jacobian_extra])
+        Jw = Jall[rows] / self._sigma[rows][:, None]
+        self.var_names = all_var
+        nv = len(all_var)
         reasons = {}
 
         # 1. parameters at a bound
@@ -459,7 +692,9 @@ class FitResult:
                 break
             A = Jw[:, keep]
             A = A / np.linalg.norm(A, axis=0)
-            _, s, vt = np.linalg.svd(A, full_matrices=False)
+            # singular values and vectors of A are those of R from A = QR (cheaper for many rows)
+            _, s, vt = np.linalg.svd(np.linalg.qr(A, mode="r") if A.shape[0] > 2 * A.shape[1] else A,
+                                     full_matrices=False)
             cond = float(s[0] / s[-1]) if s[-1] > 0 else math.inf
             small = s < _RCOND_SINGULAR * s[0]
             if not np.any(small):
@@ -509,6 +744,23 @@ class FitResult:
                             "approximate there")
             self.params[name] = Parameter(name, values[name], unc, vary_flags[k], (lo, hi), initial[name],
                                           determined, note)
+        #: free term values and fitted asymptotes: name -> Parameter (value in cm-1)
+        self.free_parameters = {}
+        for name in extra_names:
+            j = self.var_names.index(name)
+            det = name not in reasons
+            self.free_parameters[name] = Parameter(name, values[name], float(sd[j]) if det else None, True,
+                                                   (None, None), None, det, reasons.get(name, ""))
+        # the potential's block: var_names, covariance and correlation keep their meaning
+        npv = len(pot_var)
+        self.covariance_full = self.covariance
+        self.covariance_full_names = list(all_var)
+        self.covariance = _frozen(np.array(self.covariance[:npv, :npv]))
+        self.covariance_unscaled = _frozen(np.array(self.covariance_unscaled[:npv, :npv]))
+        self.correlation = _frozen(np.array(self.correlation[:npv, :npv]))
+        self.var_names = pot_var
+        self.undetermined_free = [n for n in self.undetermined if n in extra_names]
+        self.undetermined = [n for n in self.undetermined if n not in extra_names]
         if self.dof == 0:
             self.dof_note = ("no degrees of freedom (as many fitted levels as varied parameters): the sqrt of "
                              "reduced chi-square is not defined and the uncertainties are not scaled")
@@ -607,7 +859,8 @@ class FitResult:
     def _gradient_covariance(self):
         """(indices of the varied determined parameters, their covariance)."""
         names = list(self.potential.param_names)
-        det = [j for j, n in enumerate(self.var_names) if n not in self.undetermined]
+        # the potential's parameters only (correction coefficients do not change the reference levels)
+        det = [j for j, n in enumerate(self.var_names) if n not in self.undetermined and n in names]
         idx = [names.index(self.var_names[j]) for j in det]
         return idx, self.covariance[np.ix_(det, det)]
 
@@ -660,21 +913,27 @@ class FitResult:
         if not (math.isfinite(Jf) and Jf == int(Jf) and Jf >= 0):
             raise ValueError("J=%r must be an integer >= 0" % (J,))
         J = int(Jf)
+        omega = int(getattr(self, "omega", 0) or 0)
+        if J < omega:
+            raise ValueError("J=%d is below Omega=%d of the fitted state: its levels have J >= Omega" % (J, omega))
         model, params, curve = self.potential._core_args()
         code = _level_code(self.method)
-        res = _core.fit_levels(model, params, curve, mass, float(J * (J + 1)), code)
+        res = _core.fit_levels(model, params, curve, mass, float(J * (J + 1) - omega * omega), code)
         E, G = res["energy"], res["jacobian"]
         asym, dA = res["asymptote"], self._asymptote_gradient()
-        if J == 0:
+        if J == omega:
             E00, G00 = (E[0], G[0]) if len(E) else (math.nan, np.full(len(dA), math.nan))
         else:
-            r0 = _core.fit_levels(model, params, curve, mass, 0.0, code)
+            r0 = _core.fit_levels(model, params, curve, mass, float(omega), code)  # v=0, J=Omega
             E00, G00 = (r0["energy"][0], r0["jacobian"][0]) if len(r0["energy"]) else \
                 (math.nan, np.full(len(dA), math.nan))
         notes = []
         if self.undetermined:
             notes.append("uncertainties leave out the undetermined parameter%s %s (held at their values)" % (
                 "s" if len(self.undetermined) > 1 else "", ", ".join(self.undetermined)))
+        if getattr(self, "correction", None) is not None:
+            notes.append("levels of the reference isotopologue's potential (%s): the Born-Oppenheimer corrections "
+                         "of other isotopologues are not applied to predictions" % self.correction.reference)
         if self.method == "wkb":
             notes.append("levels are first-order WKB levels of the fitted potential")
         else:

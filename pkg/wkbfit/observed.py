@@ -9,6 +9,13 @@ arrays into an `ObservedLevels` object. Columns:
     J             rotational quantum number (integer >= 0), optional, default 0
     isotopologue  label such as "7Li133Cs" or "1H35Cl", optional (default: one unnamed isotopologue)
 
+Files may be comma-, tab- or whitespace-separated (tables.py). Energies and uncertainties are
+in cm-1 unless `unit=` ("MHz", "GHz") or the file says otherwise (``# unit: MHz`` or a column
+name ``energy [MHz]``); they are held in cm-1 and reported back in the data's own unit.
+Columns that are not known are reported (a warning), and a column that looks like a
+rotational quantum number under another name (N, K, F) stops the reading when J is absent,
+so that such data never silently become J = 0 levels.
+
 The energy zero is stated by the caller, never guessed from the numbers:
 
     "minimum"    term values above the minimum of the potential (the zero of `levels().energy`)
@@ -19,7 +26,6 @@ Isotopologue labels are kept as text; their masses are looked up only when a fit
 (`ObservedLevels.resolve_masses`), so that a label missing from the mass table can still be
 fitted when its reduced mass is given.
 """
-import csv
 import math
 import numbers
 import os
@@ -29,8 +35,18 @@ import numpy as np
 
 from . import _validate as _limits  # (this module has a function named _validate)
 from .masses import as_reduced_mass, parse_isotopologue, reduced_mass
+from .tables import read_table
+from .units import CM1_PER_UNIT, check_unit
 
-__all__ = ["ObservedLevels", "read_levels", "ENERGY_ZEROS"]
+__all__ = ["ObservedLevels", "read_levels", "ENERGY_ZEROS", "DataWarning"]
+
+
+class DataWarning(UserWarning):
+    """Data that read correctly but look implausible; the message says what to check."""
+
+
+#: column names that hold a rotational quantum number under another name than J
+_ROTATION_LIKE = ("N", "K", "F", "j", "n_rot", "Jrot")
 
 #: the energy zeros a data set can be stated in, with their meaning
 ENERGY_ZEROS = {
@@ -53,7 +69,10 @@ class ObservedLevels:
     Build it with `read_levels`.
     """
 
-    def __init__(self, v, J, energy, uncertainty, isotopologue, energy_zero, source="", comments=()):
+    kind = "levels"
+
+    def __init__(self, v, J, energy, uncertainty, isotopologue, energy_zero, source="", comments=(), *,
+                 unit="cm-1", asymptote=None, fit_asymptote=False, default_uncertainty=None):
         self.v = _frozen(np.array(v, dtype=int))
         self.J = _frozen(np.array(J, dtype=int))
         self.energy = _frozen(np.array(energy, dtype=float))
@@ -64,6 +83,24 @@ class ObservedLevels:
         self.energy_zero = energy_zero
         self.source = source
         self.comments = tuple(comments)
+        #: the unit the data were given in (energy and uncertainty are held in cm-1)
+        self.unit = check_unit(unit)
+        #: binding energies only: the asymptote in cm-1 above the potential minimum (None: the
+        #: potential's own asymptote), and whether it is a fitted parameter
+        self.asymptote = None if asymptote is None else float(asymptote)
+        self.fit_asymptote = bool(fit_asymptote)
+        #: the uncertainty (cm-1) given to every row because the data had none (None: they had)
+        self.default_uncertainty = default_uncertainty
+
+    @property
+    def unit_factor(self):
+        """cm-1 per unit of the data."""
+        return CM1_PER_UNIT[self.unit]
+
+    @property
+    def data_kind(self):
+        """'binding energies' for energy_zero='asymptote', else 'term values'."""
+        return "binding energies" if self.energy_zero == "asymptote" else "term values"
 
     def __len__(self):
         return len(self.v)
@@ -87,7 +124,9 @@ class ObservedLevels:
         if len(idx) == 0:
             raise ValueError("no levels of isotopologue %r; the data hold %s" % (label, _names(self.isotopologues)))
         return ObservedLevels(self.v[idx], self.J[idx], self.energy[idx], self.uncertainty[idx],
-                              self.isotopologue[idx], self.energy_zero, self.source, self.comments)
+                              self.isotopologue[idx], self.energy_zero, self.source, self.comments,
+                              unit=self.unit, asymptote=self.asymptote, fit_asymptote=self.fit_asymptote,
+                              default_uncertainty=self.default_uncertainty)
 
     # -- masses ------------------------------------------------------------------------
     def masses_by_isotopologue(self, mu=None):
@@ -163,7 +202,8 @@ class ObservedLevels:
 
 
 # -- reading ------------------------------------------------------------------------------
-def read_levels(source, energy_zero=None):
+def read_levels(source, energy_zero=None, unit=None, *, default_uncertainty=None, asymptote=None,
+                fit_asymptote=False, check=True):
     """Read and validate measured levels.
 
     source: path of a CSV file (str or pathlib.Path; lines starting with '#' are comments),
@@ -171,11 +211,23 @@ def read_levels(source, energy_zero=None):
         (returned as it is).
     energy_zero: what the energies are measured from, "minimum" (the default for new data),
         "lowest" or "asymptote"; see the module documentation.
+    unit: "cm-1" (the default), "MHz" or "GHz" for the energy and uncertainty columns; a file
+        may state its unit itself (a conflicting explicit unit is an error).
+    default_uncertainty: for data without an uncertainty column only, and only when asked:
+        this one-sigma uncertainty (in `unit`) for every row; the result and reports say so.
+    asymptote, fit_asymptote: for binding energies (energy_zero="asymptote"): the asymptote
+        they are measured from, in cm-1 above the potential minimum (None: the potential's
+        own asymptote), and whether a fit adjusts it as a parameter of its own.
+    check: run the plausibility checks (`check_levels`), which warn (DataWarning) and say
+        what to do.
 
     Raises ValueError naming the row (1-based data row) and column of any bad value.
     The caller's data are never modified: the result holds read-only copies.
     """
     if isinstance(source, ObservedLevels):
+        if unit is not None and check_unit(unit) != source.unit:
+            raise ValueError("these levels were read in %s; unit=%r cannot be applied afterwards (read the data "
+                             "again)" % (source.unit, unit))
         if energy_zero is not None and energy_zero != source.energy_zero:
             raise ValueError("these levels were read with energy_zero=%r; energy_zero=%r cannot be applied "
                              "afterwards (read the data again)" % (source.energy_zero, energy_zero))
@@ -185,9 +237,9 @@ def read_levels(source, energy_zero=None):
     if energy_zero not in ENERGY_ZEROS:
         raise ValueError("energy_zero=%r is not known; use one of: %s" % (
             energy_zero, "; ".join("%r (%s)" % kv for kv in ENERGY_ZEROS.items())))
-    comments, where = (), ""
+    comments, where, units, file_unit = (), "", {}, None
     if isinstance(source, (str, os.PathLike)):
-        columns, row_names, comments = _read_csv(source)
+        columns, row_names, comments, units, file_unit = read_table(source, "levels file")
         where = os.fspath(source)
     elif _is_dataframe(source):
         columns = {str(name): source[name].tolist() for name in source.columns}
@@ -206,7 +258,65 @@ def read_levels(source, energy_zero=None):
     else:
         raise ValueError("source must be a CSV file path, a pandas DataFrame or a dict of arrays; got %s"
                          % type(source).__name__)
-    return _validate(columns, row_names, energy_zero, where, comments)
+    col_units = resolve_units(unit, units, file_unit, ("energy", "uncertainty"), where)
+    if fit_asymptote and energy_zero != "asymptote":
+        raise ValueError("fit_asymptote=True is for binding energies (energy_zero='asymptote'); these data have "
+                         "energy_zero=%r" % energy_zero)
+    if asymptote is not None and energy_zero != "asymptote":
+        raise ValueError("asymptote=%r is for binding energies (energy_zero='asymptote'); these data have "
+                         "energy_zero=%r" % (asymptote, energy_zero))
+    if asymptote is not None:
+        try:
+            asymptote = float(asymptote)
+        except (TypeError, ValueError):
+            raise ValueError("asymptote=%r must be a number (cm-1 above the potential minimum) or None" % (asymptote,)) \
+                from None
+        if not math.isfinite(asymptote):
+            raise ValueError("asymptote=%r must be a finite number (cm-1 above the potential minimum)" % asymptote)
+    default = _default_uncertainty(default_uncertainty, columns, where)
+    if default is not None:
+        columns = dict(columns)
+        columns["uncertainty"] = [default] * len(columns.get("v", []))
+    obs = _validate(columns, row_names, energy_zero, where, comments, col_units)
+    obs.asymptote = asymptote
+    obs.fit_asymptote = bool(fit_asymptote)
+    if default is not None:
+        obs.default_uncertainty = default * CM1_PER_UNIT[col_units["uncertainty"]]
+    if check:
+        from .checks import check_levels
+        check_levels(obs, stacklevel=3)
+    return obs
+
+
+def resolve_units(unit, units, file_unit, energy_columns, where):
+    """Unit of each energy column: a column's own unit, else the file's, else unit, else cm-1."""
+    prefix = "%s: " % where if where else ""
+    explicit = None if unit is None else check_unit(unit)
+    stated = dict(units)
+    out = {}
+    for col in energy_columns:
+        u = stated.get(col, file_unit)
+        if u is not None and explicit is not None and u != explicit:
+            raise ValueError("%sthe file states unit %s for column %r but unit=%r was asked; leave out unit= or "
+                             "correct the file" % (prefix, u, col, unit))
+        out[col] = u or explicit or "cm-1"
+    return out
+
+
+def _default_uncertainty(default, columns, where):
+    if default is None:
+        return None
+    prefix = "%s: " % where if where else ""
+    if "uncertainty" in columns:
+        raise ValueError("%sdefault_uncertainty=%r was given but the data have an uncertainty column; the default is "
+                         "only for data without one" % (prefix, default))
+    try:
+        x = float(default)
+    except (TypeError, ValueError):
+        raise ValueError("default_uncertainty=%r must be a number > 0 (one standard deviation)" % (default,)) from None
+    if not (math.isfinite(x) and x > 0):
+        raise ValueError("default_uncertainty=%r must be a finite number > 0 (one standard deviation)" % (default,))
+    return x
 
 
 def _is_dataframe(obj):
@@ -214,45 +324,25 @@ def _is_dataframe(obj):
     return pd is not None and isinstance(obj, pd.DataFrame)
 
 
-def _read_csv(path):
-    """(columns as lists of strings, a row description per data row, comment lines)."""
-    name = os.fspath(path)
-    try:
-        handle = open(name, newline="", encoding="utf-8-sig")  # a spreadsheet's "CSV UTF-8" starts with a BOM
-    except OSError as err:
-        raise ValueError("cannot open levels file %r: %s" % (name, err.strerror or err)) from None
-    comments, header, rows, lines = [], None, [], []
-    with handle:
-        try:
-            for line_no, row in enumerate(csv.reader(handle), start=1):
-                cells = [c.strip() for c in row]
-                if not any(cells):
-                    continue
-                if cells[0].startswith("#"):
-                    comments.append(",".join(row).lstrip()[1:].strip())
-                    continue
-                if header is None:
-                    header = cells
-                    continue
-                rows.append(cells)
-                lines.append(line_no)
-        except (csv.Error, UnicodeDecodeError) as err:
-            raise ValueError("cannot read %r as CSV: %s" % (name, err)) from None
-    if header is None:
-        raise ValueError("%r holds no header line; the first line that is not a comment must name the columns "
-                         "(v, energy, uncertainty, and optionally J, isotopologue)" % name)
-    if len(set(header)) != len(header):
-        raise ValueError("%r: duplicated column names in the header %s" % (name, header))
-    for k, cells in enumerate(rows):
-        if len(cells) != len(header):
-            raise ValueError("%s, row %d (line %d): %d values for %d columns (%s)"
-                             % (name, k + 1, lines[k], len(cells), len(header), ", ".join(header)))
-    columns = {h: [cells[j] for cells in rows] for j, h in enumerate(header)}
-    row_names = ["%s, row %d (line %d)" % (name, k + 1, lines[k]) for k in range(len(rows))]
-    return columns, row_names, comments
+def report_unknown_columns(columns, known, prefix, stacklevel=5):
+    """Warn about columns that are not used; stop when J is missing but a column looks like it."""
+    import warnings
+    unknown = [c for c in columns if c not in known]
+    missing_J = [c for c in known if (c == "J" or c.startswith("J_")) and c not in columns]
+    if missing_J:
+        suspect = [c for c in unknown if c in _ROTATION_LIKE or c.split("_")[0] in ("N", "K", "F")]
+        if suspect:
+            raise ValueError("%scolumn %r is not a column name, and the data have no %s column: if %r is the "
+                             "rotational quantum number, name the column %s; otherwise remove it (the levels would "
+                             "otherwise be read as J = 0)" % (prefix, suspect[0], missing_J[0], suspect[0],
+                                                              missing_J[0]))
+    if unknown:
+        warnings.warn("%scolumn%s %s %s not used (known columns: %s); check the spelling" % (
+            prefix, "s" if len(unknown) > 1 else "", ", ".join(repr(c) for c in unknown),
+            "is" if len(unknown) == 1 else "are", ", ".join(known)), DataWarning, stacklevel=stacklevel)
 
 
-def _validate(columns, row_names, energy_zero, where, comments):
+def _validate(columns, row_names, energy_zero, where, comments, col_units=None):
     prefix = "%s: " % where if where else ""
 
     def row_name(k):
@@ -265,6 +355,7 @@ def _validate(columns, row_names, energy_zero, where, comments):
             if close:
                 raise ValueError("%scolumn %r is not a column name; did you mean %r? (names are case-sensitive: "
                                  "%s)" % (prefix, name, close[0], ", ".join(_KNOWN)))
+    report_unknown_columns(columns, _KNOWN, prefix)
     missing = [c for c in _REQUIRED if c not in columns]
     if missing:
         raise ValueError("%smissing column%s %s: the levels need columns v, energy (cm-1), uncertainty "
@@ -281,6 +372,7 @@ def _validate(columns, row_names, energy_zero, where, comments):
 
     v = [_quantum_number(columns["v"][k], "v", row_name(k)) for k in range(n)]
     J = ([_quantum_number(columns["J"][k], "J", row_name(k)) for k in range(n)] if "J" in columns else [0] * n)
+    col_units = col_units or {"energy": "cm-1", "uncertainty": "cm-1"}
     energy = [_number(columns["energy"][k], "energy", row_name(k)) for k in range(n)]
     sigma = [_number(columns["uncertainty"][k], "uncertainty", row_name(k)) for k in range(n)]
     for k, s in enumerate(sigma):
@@ -292,6 +384,8 @@ def _validate(columns, row_names, energy_zero, where, comments):
     else:
         labels = [None] * n
     _check_energy_zero(energy, v, J, labels, energy_zero, row_name)
+    energy = [e * CM1_PER_UNIT[col_units["energy"]] for e in energy]
+    sigma = [x * CM1_PER_UNIT[col_units["uncertainty"]] for x in sigma]
 
     first = {}
     for k in range(n):
@@ -301,7 +395,8 @@ def _validate(columns, row_names, energy_zero, where, comments):
                              "(isotopologue, v, J) may appear once" % (
                                  row_name(k), "%s " % labels[k] if labels[k] else "", v[k], J[k], row_name(first[key])))
         first[key] = k
-    return ObservedLevels(v, J, energy, sigma, labels, energy_zero, source=where, comments=comments)
+    return ObservedLevels(v, J, energy, sigma, labels, energy_zero, source=where, comments=comments,
+                          unit=col_units["energy"])
 
 
 def _check_energy_zero(energy, v, J, labels, energy_zero, row_name):

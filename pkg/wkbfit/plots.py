@@ -173,26 +173,28 @@ def residuals(result, ax=None, *, against="v"):
     if against not in ("v", "energy"):
         raise ValueError("against=%r is not known; use 'v' or 'energy'" % (against,))
     ax = _axes(ax)
-    obs = result.observed
+    from .reports import result_rows
+    rows_all = result_rows(result)  # every data set's rows (lines: their lower level)
     fitted = np.asarray(result.fitted_rows, dtype=bool)
-    x_all = obs.v if against == "v" else obs.energy
+    x_all = rows_all["v"] if against == "v" else rows_all["observed"]
     y_all = result.normalized_residuals
-    kinds = getattr(obs, "kind", None)
-    kind_values = list(dict.fromkeys(kinds.tolist())) if kinds is not None else [None]
+    iso = np.array(["" if x is None else x for x in rows_all["isotopologue"]], dtype=object)
+    J = rows_all["J"]
+    kinds = np.array(rows_all["kind"], dtype=object)
+    kind_values = list(dict.fromkeys(kinds.tolist()))
     markers = "osD^vP*X"
     for s, colour in ((3, "0.93"), (2, "0.86"), (1, "0.78")):
         ax.axhspan(-s, s, color=colour, lw=0, zorder=0)
-    for k, label in enumerate(obs.isotopologues):
-        rows = np.zeros(len(obs), bool)
-        rows[obs.rows_of(label)] = True
+    for k, label in enumerate(dict.fromkeys(iso.tolist())):
+        rows = iso == label
         for m, kind in enumerate(kind_values):
-            sel = rows & fitted & ((kinds == kind) if kinds is not None else True)
+            sel = rows & fitted & (kinds == kind)
             if not np.any(sel):
                 continue
-            name = "unnamed" if label is None else label
-            if kind is not None:
+            name = label or "unnamed"
+            if len(kind_values) > 1:
                 name += " (%s)" % kind
-            for rot, face in ((obs.J == 0, _colors()[k % 10]), (obs.J > 0, "none")):
+            for rot, face in ((J == 0, _colors()[k % 10]), (J > 0, "none")):
                 part = sel & rot
                 if np.any(part):
                     ax.plot(x_all[part], y_all[part], ls="none", marker=markers[m % len(markers)],

@@ -13,7 +13,7 @@ from . import _core, _validate
 #: model name -> parameter names, from the core's model table (read once)
 MODEL_PARAMETERS = _core.models()
 
-__all__ = ["Potential", "Morse", "LennardJones", "PoschlTeller", "PointwisePotential", "EMO", "MLR"]
+__all__ = ["Potential", "Morse", "LennardJones", "PoschlTeller", "PointwisePotential", "EMO", "MLR", "damping_range"]
 
 
 def _as_r(r):
@@ -343,6 +343,63 @@ class EMO(Potential):
         return tuple(self._params[3:].tolist())
 
 
+#: damping forms of the MLR long-range terms, by name, with the core's code
+DAMPING_FORMS = {None: 0, "none": 0, "tang-toennies": 1, "douketis": 2}
+_DAMPING_NAMES = {0: None, 1: "tang-toennies", 2: "douketis"}
+#: bohr radius in angstrom (CODATA 2018)
+BOHR = 0.529177210903
+#: default damping range rho for each form, for two hydrogen atoms (the reference of both scalings):
+#: Tang-Toennies b = sqrt(2 I_A) + sqrt(2 I_B) (I in hartree, b in 1/bohr; the decay of the exchange
+#: repulsion) = 2/bohr; Douketis type rho = 1 (Douketis et al. 1982; Le Roy et al. 2011)
+DEFAULT_DAMPING_RANGE = {1: 2.0 / BOHR, 2: 1.0}
+#: first ionization energies in eV (from memory of the NIST Atomic Spectra Database values)
+IONIZATION_ENERGY_EV = {"H": 13.598434, "He": 24.587389, "Li": 5.391715, "Be": 9.322699, "Na": 5.139076,
+                        "Mg": 7.646235, "K": 4.340663, "Ca": 6.113155, "Rb": 4.177128, "Sr": 5.694867,
+                        "Cs": 3.893905, "Ba": 5.211664, "Ne": 21.564540, "Ar": 15.759610, "Kr": 13.999605,
+                        "Xe": 12.129842}
+
+
+def damping_range(damping, atom_a, atom_b):
+    """The damping range rho of an MLR for the pair of atoms (element symbols or isotopes, '7Li').
+
+    "tang-toennies": b = sqrt(2 I_A) + sqrt(2 I_B) in 1/bohr, returned in 1/angstrom (the
+        exponent of the exchange repulsion between the atoms);
+    "douketis": rho_AB = 2 rho_A rho_B/(rho_A + rho_B), rho_X = (I_X/I_H)^(2/3) (Le Roy et al.,
+        Mol. Phys. 109, 435 (2011), from memory).
+    I are first ionization energies (IONIZATION_ENERGY_EV, from memory of NIST values).
+    """
+    code = _damping_code(damping)
+    if code == 0:
+        raise ValueError("damping_range needs a damping form, 'tang-toennies' or 'douketis'")
+    energies = []
+    for atom in (atom_a, atom_b):
+        symbol = re.sub(r"^[0-9]+", "", str(atom).strip())
+        if symbol not in IONIZATION_ENERGY_EV:
+            raise ValueError("no ionization energy for %r; known: %s (or give rho=... yourself)" % (
+                atom, ", ".join(IONIZATION_ENERGY_EV)))
+        energies.append(IONIZATION_ENERGY_EV[symbol])
+    hartree_ev = 27.211386245988
+    if code == 1:
+        return sum(math.sqrt(2 * e / hartree_ev) for e in energies) / BOHR
+    ra, rb = ((e / IONIZATION_ENERGY_EV["H"]) ** (2.0 / 3.0) for e in energies)
+    return 2 * ra * rb / (ra + rb)
+
+
+def _damping_code(damping):
+    if isinstance(damping, str) or damping is None:
+        key = damping.strip().lower() if isinstance(damping, str) else None
+        if key not in DAMPING_FORMS:
+            raise ValueError("damping=%r is not known; use None, 'tang-toennies' or 'douketis'" % (damping,))
+        return DAMPING_FORMS[key]
+    try:
+        code = float(damping)
+    except (TypeError, ValueError):
+        raise ValueError("damping=%r is not known; use None, 'tang-toennies' or 'douketis'" % (damping,)) from None
+    if code not in (0, 1, 2):
+        raise ValueError("damping=%r is not known; use None, 'tang-toennies' or 'douketis'" % (damping,))
+    return int(code)
+
+
 class MLR(Potential):
     """Morse/long-range potential [Le Roy & Henderson, Mol. Phys. 105, 663 (2007); Le Roy et al.,
     J. Chem. Phys. 131, 204309 (2009)]:
@@ -358,18 +415,34 @@ class MLR(Potential):
     distance of the y variables, a distance in angstrom or the string "re" (the default), which takes
     the re given here; it is a parameter of its own and does not follow re when re changes later
     (in a fit or with_params). r_ref=None still means "re" but is deprecated.
-    u(r) is undamped: no damping functions in this version.
+    Long range with C3, C4 and damping (keywords C3, C4, damping, rho, s): u(r) = sum_m D_m(r) C_m/r^m
+    over m = 3, 4, 6, 8, 10 (C3, C4 in cm-1 angstrom^3, ^4; >= 0), with damping functions D_m:
+      damping=None             D_m = 1 (undamped; then u(re) < 2 De is required);
+      damping="tang-toennies"  D_m = 1 - exp(-rho r) sum_{k=0}^{m} (rho r)^k/k! [Tang & Toennies,
+                               J. Chem. Phys. 80, 3726 (1984)]; rho = b in 1/angstrom;
+      damping="douketis"       D_m = [1 - exp(-b(s) rho r/m - c(s) (rho r)^2/sqrt(m))]^(m+s), r in bohr
+                               [Douketis et al., J. Chem. Phys. 76, 3057 (1982), generalized by Le Roy
+                               et al., Mol. Phys. 109, 435 (2011)]; s = -1 (default) or -2; b(s), c(s)
+                               are recalled from memory (3.30, 0.423 for s = -1; 3.69, 0.378 for -2).
+    rho=None takes the documented default for two hydrogen atoms (DEFAULT_DAMPING_RANGE: 2/bohr =
+    3.78/angstrom for Tang-Toennies, the exponent sqrt(2 I_A) + sqrt(2 I_B) of the exchange repulsion;
+    1 for the Douketis form, the reference of its scaling). For other atoms use
+    `damping_range(damping, "Li", "Cs")` (from the atoms' ionization energies); heavier atoms damp
+    further out. With damping, u_LR(re) may exceed 2 De (beta_inf < 0 is allowed).
 
-    Fixed in fits by default: p, q, r_ref and the long-range coefficients C6, C8, C10 (common
-    practice holds them at theoretical values; vary them with vary=...).
+    Fixed in fits by default: p, q, r_ref, the long-range coefficients C3..C10 and the damping
+    (damping, rho, s) (common practice holds them at theoretical values; vary them with vary=...;
+    every one has an analytic dV/dp).
     """
 
-    model = "mlr"  # the family; each object uses the core's model "mlrK" for its K coefficients
-    fixed_by_default = ("C6", "C8", "C10", "p", "q", "r_ref")
+    model = "mlr"  # the family; each object uses the core's model "mlrK" (or "mlrdK") for K coefficients
+    fixed_by_default = ("C3", "C4", "C6", "C8", "C10", "p", "q", "r_ref", "damping", "rho", "s")
 
-    def __init__(self, De, re, C6, betas=None, C8=0.0, C10=0.0, p=5, q=3, r_ref="re", **coefficients):
+    def __init__(self, De, re, C6, betas=None, C8=0.0, C10=0.0, p=5, q=3, r_ref="re", *, C3=0.0, C4=0.0,
+                 damping=None, rho=None, s=-1, **coefficients):
         values = _exponent_coefficients("MLR", betas, coefficients)
-        self.model = "mlr%d" % len(values)
+        code = _damping_code(damping)
+        betas_kw = {"beta%d" % i: b for i, b in enumerate(values)}
         if r_ref is None:
             from ._warn import warn
             warn('MLR(r_ref=None) is deprecated: write r_ref="re" for the reference distance at re, or give a '
@@ -379,10 +452,31 @@ class MLR(Potential):
             if r_ref != "re":
                 raise ValueError('MLR r_ref=%r is not valid: give a distance in angstrom or the string "re"' % (r_ref,))
             r_ref = re
-        super().__init__(De=De, re=re, C6=C6, C8=C8, C10=C10, p=p, q=q, r_ref=r_ref,
-                         **{"beta%d" % i: b for i, b in enumerate(values)})
+        if code == 0 and float(C3) == 0 and float(C4) == 0:
+            self.model = "mlr%d" % len(values)
+            super().__init__(De=De, re=re, C6=C6, C8=C8, C10=C10, p=p, q=q, r_ref=r_ref, **betas_kw)
+            self.fixed_by_default = tuple(n for n in MLR.fixed_by_default if n in self.param_names)
+            return
+        if rho is None:
+            rho = DEFAULT_DAMPING_RANGE.get(code, 1.0)
+        self.model = "mlrd%d" % len(values)
+        super().__init__(De=De, re=re, C3=C3, C4=C4, C6=C6, C8=C8, C10=C10, p=p, q=q, r_ref=r_ref, damping=code,
+                         rho=rho, s=s, **betas_kw)
+
+    @property
+    def damping(self):
+        """The damping form: None, "tang-toennies" or "douketis"."""
+        if self.model.startswith("mlrd"):
+            return _DAMPING_NAMES[int(self._params[10])]
+        return None
+
+    def __getattr__(self, name):
+        # C3, C4 of an undamped MLR without them are 0; rho, s are not defined there
+        if name in ("C3", "C4") and not self.__dict__.get("model", "").startswith("mlrd"):
+            return 0.0
+        return super().__getattr__(name)
 
     @property
     def betas(self):
         """The exponent coefficients (beta0, beta1, ...), dimensionless."""
-        return tuple(self._params[8:].tolist())
+        return tuple(self._params[13 if self.model.startswith("mlrd") else 8:].tolist())

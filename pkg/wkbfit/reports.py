@@ -33,8 +33,16 @@ FORMAT_VERSION = 2
 _READABLE_VERSIONS = (1, 2)
 
 
+def _single_levels(result):
+    """True for a fit to one set of term values or binding energies (the classic report)."""
+    return len(result.data) == 1 and getattr(result.data[0], "kind", None) == "levels"
+
+
 def fit_report_text(result):
-    """A plain-text report: parameters, correlations, statistics and the residual table."""
+    """A plain-text report: parameters, free term values, correlations, statistics and the
+    residual tables, one per data set, grouped by kind."""
+    if not _single_levels(result):
+        return _mixed_report_text(result)
     obs = result.observed
     labels = obs.isotopologues
     lines = []
@@ -96,22 +104,136 @@ def fit_report_text(result):
     lines.append("")
     lines.extend(method_error_lines(result))
     lines.append("")
-    nr = result.normalized_residuals
-    n_large = int(np.count_nonzero(np.abs(nr[result.fitted_rows]) > _LARGE_RESIDUAL))
-    lines.append("Residuals (observed - calculated); '<<' marks |obs - calc|/sigma > %g (%d level%s)" % (
-        _LARGE_RESIDUAL, n_large, "" if n_large == 1 else "s"))
+    if result.free_parameters:
+        lines.extend(_free_section(result))
+        lines.append("")
+    lines.extend(_levels_table(result, obs, 0, 1.0 if obs.unit == "cm-1" else obs.unit_factor))
+    return "\n".join(lines)
+
+
+def _levels_table(result, obs, start, factor, title=None):
+    """Residual table of term values / binding energies, in the data's unit (factor cm-1 per unit)."""
+    lines = []
+    sl = slice(start, start + len(obs))
+    nr = result.normalized_residuals[sl]
+    fitted = result.fitted_rows[sl]
+    n_large = int(np.count_nonzero(np.abs(nr[fitted]) > _LARGE_RESIDUAL))
+    unit = obs.unit
+    lines.append((title or "Residuals (observed - calculated)") +
+                 "%s; '<<' marks |obs - calc|/sigma > %g (%d level%s)" % (
+                     "" if unit == "cm-1" else " [%s]" % unit, _LARGE_RESIDUAL, n_large, "" if n_large == 1 else "s"))
     lines.append("  %-12s %4s %4s %16s %10s %16s %12s %9s" % (
         "isotopologue", "v", "J", "observed", "sigma", "calculated", "obs-calc", "/sigma"))
     lines.append("  %-12s %4s %4s %16s %10s %16s %12s %9s" % (
         "", "-", "-", "[cm-1]", "[cm-1]", "[cm-1]", "[cm-1]", "-"))
     for i in range(len(obs)):
-        if not result.fitted_rows[i]:
+        if not fitted[i]:
             flag = "  zero of the data (not fitted)"
         else:
             flag = "  <<" if abs(nr[i]) > _LARGE_RESIDUAL else ""
         lines.append("  %-12s %4d %4d %16.6f %10.4g %16.6f %12.6f %9.3f%s" % (
-            obs.isotopologue[i] or "-", obs.v[i], obs.J[i], obs.energy[i], obs.uncertainty[i],
-            result.calculated[i], result.residuals[i], nr[i], flag))
+            obs.isotopologue[i] or "-", obs.v[i], obs.J[i], obs.energy[i] / factor, obs.uncertainty[i] / factor,
+            result.calculated[start + i] / factor, result.residuals[start + i] / factor, nr[i], flag))
+    if getattr(obs, "default_uncertainty", None) is not None:
+        lines.append("  (uncertainties: the default %.4g cm-1 given to every row, not measured)" % obs.default_uncertainty)
+    return lines
+
+
+def _lines_table(result, data, start, title):
+    lines = []
+    factor = data.unit_factor
+    sl = slice(start, start + len(data))
+    nr = result.normalized_residuals[sl]
+    n_large = int(np.count_nonzero(np.abs(nr) > _LARGE_RESIDUAL))
+    lines.append("%s [%s]; '<<' marks |obs - calc|/sigma > %g (%d line%s)" % (
+        title, data.unit, _LARGE_RESIDUAL, n_large, "" if n_large == 1 else "s"))
+    lines.append("  %-12s %-22s %-22s %16s %10s %16s %12s %9s" % (
+        "isotopologue", "upper", "lower", "observed", "sigma", "calculated", "obs-calc", "/sigma"))
+    for i in range(len(data)):
+        up = "%s v=%d J=%d" % (data.upper_state[i] or "", data.v_upper[i], data.J_upper[i])
+        lo = "%s v=%d J=%d" % (data.lower_state[i] or "", data.v_lower[i], data.J_lower[i])
+        lines.append("  %-12s %-22s %-22s %16.6f %10.4g %16.6f %12.6f %9.3f%s" % (
+            data.isotopologue[i] or "-", up.strip(), lo.strip(), data.wavenumber[i] / factor,
+            data.uncertainty[i] / factor, result.calculated[start + i] / factor,
+            result.residuals[start + i] / factor, nr[i], "  <<" if abs(nr[i]) > _LARGE_RESIDUAL else ""))
+    if getattr(data, "default_uncertainty", None) is not None:
+        lines.append("  (uncertainties: the default %.4g cm-1 given to every row, not measured)" %
+                     data.default_uncertainty)
+    return lines
+
+
+def _free_section(result):
+    lines = ["Free term values (levels of states that are not modelled) and fitted asymptotes, cm-1 above the "
+             "potential minimum"]
+    lines.append("  %-36s %22s %16s  %s" % ("name", "value", "1-sigma", "remarks"))
+    for name, p in result.free_parameters.items():
+        unc = "%16.6g" % p.uncertainty if p.uncertainty is not None else "%16s" % "not determined"
+        lines.append("  %-36s %22.10f %s  %s" % (name, p.value, unc, p.note))
+    return lines
+
+
+def _mixed_report_text(result):
+    data = result.data
+    kinds = [getattr(d, "data_kind", type(d).__name__) for d in data]
+    labels = list(result.masses)
+    lines = []
+    lines.append("Fit of a %s potential to %d data rows in %d data set%s (%s) of %d isotopologue%s (%s); method %s%s"
+                 % (type(result.potential).__name__, len(result.residuals), len(data), "" if len(data) == 1 else "s",
+                    ", ".join(kinds), len(labels), "" if len(labels) == 1 else "s",
+                    ", ".join("unnamed" if l is None else l for l in labels), result.method,
+                    "; Omega = %d" % result.omega if result.omega else ""))
+    lines.append("Status: %s. %s" % (result.status, result.message))
+    lines.append("Reduced masses: %s" % ", ".join(
+        "%s %.10g u" % ("unnamed" if k is None else k, m) for k, m in result.masses.items()))
+    lines.append("")
+    lines.append("Parameters")
+    lines.append("  %-6s %-6s %22s %16s %22s  %s" % ("name", "unit", "value", "1-sigma", "initial", "remarks"))
+    for name, p in result.params.items():
+        unc = "%16.6g" % p.uncertainty if p.uncertainty is not None else "%16s" % (
+            "fixed" if not p.vary else "not determined")
+        lines.append("  %-6s %-6s %22.12g %s %22.12g  %s" % (name, _UNITS.get(name, ""), p.value, unc, p.initial,
+                                                             p.note if p.note != "fixed" else ""))
+    lines.append("  Uncertainties are one standard deviation%s." % (
+        ", scaled by the dimensionless standard error %.4g" % result.standard_error
+        if result.scale_uncertainties and result.dof > 0 else " from the stated measurement uncertainties"))
+    lines.append("")
+    if result.free_parameters:
+        lines.extend(_free_section(result))
+        lines.append("")
+    corr = result._sorted_correlations()
+    lines.append("Correlations of the varied parameters, largest first")
+    for a, b, r in corr or []:
+        lines.append("  %-6s %-6s %+.6f%s" % (a, b, r, "  (strong)" if abs(r) > 0.95 else ""))
+    if not corr:
+        lines.append("  (none: fewer than two determined varied parameters)")
+    lines.append("")
+    lines.append("Fit statistics")
+    n_fit = int(np.count_nonzero(result.fitted_rows))
+    lines.append("  fitted data rows %d, varied parameters %d (%d of the potential, %d free), degrees of freedom %d"
+                 % (n_fit, len(result.var_names) + len(result.free_parameters), len(result.var_names),
+                    len(result.free_parameters), result.dof))
+    lines.append("  chi-square %.8g" % result.chi_square)
+    lines.append("  dimensionless standard error sqrt(chi2/dof) %s" % (
+        "%.6g" % result.standard_error if result.standard_error is not None else "not defined (dof = 0)"))
+    if result.n_levels is not None:
+        lines.append("  distinct levels computed per model evaluation %d; level calculations in all %s" % (
+            result.n_levels, result.n_level_calculations))
+    lines.append("  iterations %d, model evaluations %d" % (result.iterations, result.n_evaluations))
+    if result.dof_note:
+        lines.append("  " + result.dof_note)
+    # residual tables grouped by kind: term values, binding energies, line positions
+    order = ["term values", "binding energies", "line positions"]
+    for kind in order:
+        for k, block in enumerate(result.blocks):
+            if block.kind != kind:
+                continue
+            lines.append("")
+            title = "Residuals (observed - calculated) of data set %d: %s%s" % (
+                k + 1, kind, " from %s" % block.data.source if getattr(block.data, "source", "") else "")
+            if kind == "line positions":
+                lines.extend(_lines_table(result, block.data, block.start, title))
+            else:
+                lines.extend(_levels_table(result, block.data, block.start, block.factor, title))
     return "\n".join(lines)
 
 
@@ -155,6 +277,8 @@ def method_error_lines(result):
 
 def fit_report_html(result):
     e = html.escape
+    if not _single_levels(result):
+        return "<pre>%s</pre>" % e(fit_report_text(result))
     rows = []
     for name, p in result.params.items():
         unc = "%.6g" % p.uncertainty if p.uncertainty is not None else ("fixed" if not p.vary else
@@ -187,9 +311,60 @@ def fit_report_html(result):
     return title + stats + params + corr + method + resid
 
 
+def _data_set_dict(result, block):
+    """One data set of a fit: its kind, unit, columns and residuals in its own unit."""
+    d = block.data
+    f = block.factor
+    sl = slice(block.start, block.start + len(d))
+    if d.kind == "levels":
+        columns = {"v": d.v.tolist(), "J": d.J.tolist(), "energy": (d.energy / f).tolist(),
+                   "uncertainty": (d.uncertainty / f).tolist(), "isotopologue": list(d.isotopologue)}
+        extra = {"energy_zero": d.energy_zero, "asymptote": d.asymptote, "fit_asymptote": d.fit_asymptote}
+    else:
+        columns = d.to_dict()
+        columns["wavenumber"] = (d.wavenumber / f).tolist()
+        columns["uncertainty"] = (d.uncertainty / f).tolist()
+        columns["isotopologue"] = list(d.isotopologue)
+        extra = {}
+    return dict({"kind": block.kind, "unit": block.unit, "source": d.source, "columns": columns,
+                 "default_uncertainty": d.default_uncertainty,
+                 "calculated": (result.calculated[sl] / f).tolist(), "residuals": (result.residuals[sl] / f).tolist(),
+                 "normalized_residuals": result.normalized_residuals[sl].tolist(),
+                 "fitted": result.fitted_rows[sl].tolist(), "start": block.start}, **extra)
+
+
+def _data_set_from_dict(item):
+    from .lines import ObservedLines
+    from .observed import ObservedLevels
+    c = item["columns"]
+    from .units import CM1_PER_UNIT
+    f = CM1_PER_UNIT[item["unit"]]
+    labels = [x for x in c.get("isotopologue", [None] * len(c["uncertainty"]))]
+    if item["kind"] in ("term values", "binding energies"):
+        d = ObservedLevels(c["v"], c["J"], np.array(c["energy"], dtype=float) * f,
+                           np.array(c["uncertainty"], dtype=float) * f, labels, item["energy_zero"], item["source"],
+                           unit=item["unit"], asymptote=item["asymptote"], fit_asymptote=item["fit_asymptote"],
+                           default_uncertainty=item["default_uncertainty"])
+    else:
+        none = lambda col: [x or None for x in c.get(col, [None] * len(c["uncertainty"]))]
+        d = ObservedLines(c["v_upper"], c["J_upper"], c["v_lower"], c["J_lower"],
+                          np.array(c["wavenumber"], dtype=float) * f, np.array(c["uncertainty"], dtype=float) * f,
+                          labels, none("upper_state"), none("lower_state"), unit=item["unit"], source=item["source"],
+                          default_uncertainty=item["default_uncertainty"])
+    from .design import Block
+    block = Block(d, [0 if x else -1 for x in item["fitted"]], item["kind"], item["unit"], f)
+    block.start = item["start"]
+    return block
+
+
 def fit_result_to_dict(result):
     """The whole result as plain JSON-ready data (NaN and infinities as None)."""
+    single = _single_levels(result)
     return _jsonable({
+        "data_sets": [_data_set_dict(result, b) for b in result.blocks],
+        "free_parameters": [p.to_dict() for p in result.free_parameters.values()],
+        "covariance_full": result.covariance_full.tolist(), "covariance_full_names": result.covariance_full_names,
+        "n_levels": result.n_levels, "n_level_calculations": result.n_level_calculations, "omega": result.omega,
         "format": FORMAT, "version": FORMAT_VERSION,
         "potential": {"class": type(result.potential).__name__, "model": type(result.potential).model,
                       "beta_coefficient_count": len(getattr(result.potential, "betas", ())),
@@ -199,7 +374,7 @@ def fit_result_to_dict(result):
         "covariance": result.covariance.tolist(), "covariance_unscaled": result.covariance_unscaled.tolist(),
         "correlation": result.correlation.tolist(),
         "observed": dict(result.observed.to_dict(), energy_zero=result.energy_zero,
-                         isotopologue=list(result.observed.isotopologue)),
+                         isotopologue=list(result.observed.isotopologue)) if single else None,
         "masses": [[k, m] for k, m in result.masses.items()],
         "calculated": result.calculated.tolist(), "residuals": result.residuals.tolist(),
         "normalized_residuals": result.normalized_residuals.tolist(),
@@ -225,7 +400,10 @@ def fit_result_from_dict(cls, data):
         result = _fit_result_from_checked_dict(cls, data)
         _check_loaded_shapes(result)
     except ValueError as err:
-        raise ValueError("the fit result is damaged or was changed by hand: %s" % err) from None
+        text = str(err)
+        if "array element" in text or "inhomogeneous" in text or "could not convert" in text:
+            text = "an entry has the wrong type or shape (a list of numbers of one length was expected)"
+        raise ValueError("the fit result is damaged or was changed by hand: %s" % text) from None
     except (KeyError, TypeError, IndexError, AttributeError, RecursionError, OverflowError) as err:
         what = "missing entry %s" % err if isinstance(err, KeyError) else "an entry has the wrong type or shape"
         raise ValueError("the fit result is damaged or was changed by hand (%s); write it again with "
@@ -235,7 +413,8 @@ def fit_result_from_dict(cls, data):
 
 def _check_loaded_shapes(result):
     """Every array of a loaded result has the shape the data and parameters imply."""
-    n, n_var, n_par = len(result.observed), len(result.var_names), len(result.params)
+    n = sum(len(b.data) for b in result.blocks) if getattr(result, "blocks", None) else len(result.observed)
+    n_var, n_par = len(result.var_names), len(result.params)
     want = {"covariance": (n_var, n_var), "covariance_unscaled": (n_var, n_var), "correlation": (n_var, n_var),
             "calculated": (n,), "residuals": (n,), "normalized_residuals": (n,), "fitted_rows": (n,),
             "jacobian": (n, n_par)}
@@ -284,12 +463,35 @@ def _fit_result_from_checked_dict(cls, data):
     result.potential = pot_cls(**data["potential"]["params"])
     result.initial_potential = pot_cls(**data["potential"]["initial"])
     o = data["observed"]
-    result.observed = read_levels({k: o[k] for k in ("v", "J", "energy", "uncertainty", "isotopologue")},
-                                energy_zero=o["energy_zero"]) if any(x is not None for x in o["isotopologue"]) \
-        else read_levels({k: o[k] for k in ("v", "J", "energy", "uncertainty")}, energy_zero=o["energy_zero"])
+    result.blocks = [_data_set_from_dict(item) for item in data.get("data_sets", [])]
+    if o is not None:
+        result.observed = read_levels({k: o[k] for k in ("v", "J", "energy", "uncertainty", "isotopologue")},
+                                    energy_zero=o["energy_zero"], check=False) \
+            if any(x is not None for x in o["isotopologue"]) \
+            else read_levels({k: o[k] for k in ("v", "J", "energy", "uncertainty")}, energy_zero=o["energy_zero"],
+                             check=False)
+        if result.blocks:
+            result.blocks[0].data = result.observed if result.blocks[0].data.unit == "cm-1" else result.blocks[0].data
+            result.observed = result.blocks[0].data
+        result.data = [result.observed]
+    else:
+        result.data = [b.data for b in result.blocks]
+        result.observed = result.data
+    result.free_parameters = {}
+    for p in data.get("free_parameters", []):
+        result.free_parameters[p["name"]] = Parameter(p["name"], p["value"], p["uncertainty"], p["vary"],
+                                                      tuple(p["bounds"]), p["initial"], p["determined"], p["note"])
+    result.extra_names = list(result.free_parameters)
+    names_full = data.get("covariance_full_names", list(data["var_names"]))
+    result.covariance_full_names = names_full
+    result.covariance_full = _frozen(_nan_array(data.get("covariance_full", data["covariance"]),
+                                                (len(names_full),) * 2))
+    result.n_levels = data.get("n_levels")
+    result.n_level_calculations = data.get("n_level_calculations")
+    result.omega = data.get("omega", 0)
     result.masses = {k: m for k, m in data["masses"]}
     result.method = data["method"]
-    result.energy_zero = o["energy_zero"]
+    result.energy_zero = o["energy_zero"] if o is not None else None
     result.scale_uncertainties = data["scale_uncertainties"]
     result.params = {}
     for p in data["parameters"]:
@@ -301,7 +503,9 @@ def _fit_result_from_checked_dict(cls, data):
     for key in ("calculated", "residuals", "normalized_residuals"):
         setattr(result, key, _frozen(_nan_array(data[key])))
     result.fitted_rows = _frozen(np.array(data["fitted_rows"], dtype=bool))
-    result.jacobian = _frozen(_nan_array(data["jacobian"], (len(result.observed), len(result.params))))
+    result.jacobian = _frozen(_nan_array(data["jacobian"], (len(result.residuals), len(result.params))))
+    result._sigma = _frozen(np.concatenate([b.data.uncertainty for b in result.blocks])) if result.blocks else \
+        _frozen(np.asarray(result.observed.uncertainty))
     if STATISTIC_KEY not in data and _OLD_STATISTIC_KEY in data:  # a file written before the rename
         data = dict(data, **{STATISTIC_KEY: data[_OLD_STATISTIC_KEY]})
     for key in ("chi_square", "dof", STATISTIC_KEY, "covariance_scale", "condition_number", "iterations",
@@ -564,7 +768,7 @@ def observed_columns(obs):
     labels = np.array([x if x is not None else "-" for x in obs.isotopologue], dtype=object)
     cols = [("isotopologue", "", labels, "%s"), ("v", "", obs.v, "%d"), ("J", "", obs.J, "%d"),
             ("energy", "cm-1", obs.energy, "%.6f"), ("uncertainty", "cm-1", obs.uncertainty, "%.6g")]
-    kinds = getattr(obs, "kind", None)
+    kinds = row_kinds(obs)
     if kinds is not None:
         cols.insert(1, ("kind", "", np.asarray(kinds, dtype=object), "%s"))
     return cols
@@ -594,16 +798,45 @@ def residual_columns(result):
             ("fitted", "", np.asarray(result.fitted_rows, dtype=bool), "%s")]
 
 
+def row_kinds(obs):
+    """Per-row data kinds, or None: a data set's own `kind` is one string for all its rows."""
+    kinds = getattr(obs, "kind", None)
+    return None if kinds is None or isinstance(kinds, str) else kinds
+
+
+def result_rows(result):
+    """Per data row of a fit, over all its data sets: isotopologue, v, J (the lower level of a
+    line), observed value and uncertainty (cm-1), and the kind of each row."""
+    blocks = getattr(result, "blocks", None) or []
+    if not blocks:
+        obs = result.observed
+        n = len(obs)
+        return {"isotopologue": list(obs.isotopologue), "v": np.asarray(obs.v), "J": np.asarray(obs.J),
+                "observed": np.asarray(obs.energy), "uncertainty": np.asarray(obs.uncertainty),
+                "kind": [getattr(obs, "kind", "term values")] * n}
+    out = {k: [] for k in ("isotopologue", "v", "J", "observed", "uncertainty", "kind")}
+    for b in blocks:
+        d = b.data
+        lines = hasattr(d, "wavenumber")
+        out["isotopologue"] += list(d.isotopologue)
+        out["v"] += list(d.v_lower if lines else d.v)
+        out["J"] += list(d.J_lower if lines else d.J)
+        out["observed"] += list(d.wavenumber if lines else d.energy)
+        out["uncertainty"] += list(d.uncertainty)
+        out["kind"] += [b.kind] * len(d)
+    for k in ("v", "J"):
+        out[k] = np.asarray(out[k], dtype=int)
+    for k in ("observed", "uncertainty"):
+        out[k] = np.asarray(out[k], dtype=float)
+    return out
+
+
 def residual_dataframe(result):
     from ._optional import pandas
     pd = pandas()
-    obs = result.observed
-    data = {"isotopologue": list(obs.isotopologue), "v": obs.v, "J": obs.J, "observed": obs.energy,
-            "uncertainty": obs.uncertainty, "calculated": result.calculated, "residual": result.residuals,
-            "normalized_residual": result.normalized_residuals, "fitted": np.asarray(result.fitted_rows, bool)}
-    kinds = getattr(obs, "kind", None)
-    if kinds is not None:
-        data["kind"] = list(kinds)
+    rows = result_rows(result)
+    data = dict(rows, calculated=result.calculated, residual=result.residuals,
+                normalized_residual=result.normalized_residuals, fitted=np.asarray(result.fitted_rows, bool))
     return pd.DataFrame(data)
 
 
