@@ -487,6 +487,23 @@ static PyObject *py_wkb_levels(PyObject *self, PyObject *args, PyObject *kwds)
         raise_status(&err);
         goto cleanup;
     }
+    for (npy_intp k = 0; k < n_rot; k++) {
+        /* an inner wall lower than the asymptote (V(0) < De): the levels between its top and the
+           asymptote are not bound by the potential, and vD is not defined */
+        const double top = wkb_well_top(wells[k]), wall = wkb_well_bound_top(wells[k]);
+        if (!(wall < top - 1e-6 * (top - wkb_well_bottom(wells[k]))))
+            continue;
+        vD[k] = NAN;
+        if (!v_arr) {
+            value_error("the inner wall of this potential%s rises only to %.10g cm-1, below the asymptote %.10g "
+                        "cm-1: the levels above the wall top are not bound by the potential (the exact solver "
+                        "binds them only through its boundary at r = 0), so there is no complete set of levels "
+                        "and no vD. The %zu levels below the wall top can be asked for by v (v=0..%zu)",
+                        rot[k] > 0 ? " (with this rotation)" : "", wall, top, (size_t)count[k],
+                        count[k] > 0 ? (size_t)count[k] - 1 : 0);
+            goto cleanup;
+        }
+    }
     if (max_levels >= 0 && n > (size_t)max_levels) {
         /* refused before the work: millions of levels (e.g. from a huge reduced mass) take minutes */
         PyErr_Format(PyExc_ValueError,
@@ -921,6 +938,19 @@ static PyObject *py_fit_levels(PyObject *self, PyObject *args, PyObject *kwds)
     if (status) {
         raise_status(&err);
         goto cleanup;
+    }
+    if (radial) {
+        /* the exact count may exceed the WKB one (a wall lower than the asymptote binds levels only
+           through the boundary at r = 0): size the arrays by the larger of the two */
+        Py_BEGIN_ALLOW_THREADS
+        status = wkb_radial_set(radial, &pot, mu, rot, &err);
+        Py_END_ALLOW_THREADS
+        if (status) {
+            raise_status(&err);
+            goto cleanup;
+        }
+        if (wkb_radial_count(radial) > count)
+            count = wkb_radial_count(radial);
     }
     count += 2;
     npy_intp dims[2] = {(npy_intp)count, (npy_intp)np};

@@ -302,6 +302,7 @@ int wkb_well_set(wkb_well *w, const wkb_potential *pot, double mu, double rot, i
 
 double wkb_well_bottom(const wkb_well *w) { return w->bottom; }
 double wkb_well_top(const wkb_well *w) { return w->top; }
+double wkb_well_bound_top(const wkb_well *w) { return w->bound_top; }
 
 /* Counts crossings of V_J = E over the scanned monotone segments and the tail beyond. */
 static size_t count_crossings(const wkb_well *w, double E)

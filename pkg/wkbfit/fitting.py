@@ -167,6 +167,11 @@ def fit(potential, observed, mu=None, *, method="wkb", vary=None, bounds=None, s
         if len(err.args) == 2 and isinstance(err.args[1], int):
             raise ValueError(_start_failure_message(err.args[0], obs, rows[err.args[1]], potential)) from None
         raise
+    if not (np.isfinite(out["chi_square"]) and np.all(np.isfinite(out["params"])) and np.all(np.isfinite(out["calc"]))):
+        # a "converged" fit with an infinite chi-square is no answer: refuse it
+        raise ValueError("the fit ended with a non-finite chi-square (%r) or parameters %s: the data cannot be "
+                         "described from this start (check the energies, uncertainties and energy_zero, or start "
+                         "closer)" % (float(out["chi_square"]), dict(zip(names, out["params"].tolist()))))
 
     calc = np.zeros(len(obs))
     calc[rows] = out["calc"]

@@ -211,23 +211,16 @@ def _wkb_levels(potential, mu, vs, Js, langer, maslov, order=1, max_levels=_vali
     try:
         cols = _core.wkb_levels(model, params, curve, mu, rot, v_arr, m_in, m_out, order=order,
                                 max_levels=max_levels)
-    except RuntimeError as exc:
-        if order != 2:
-            raise
+    except (RuntimeError, ValueError) as exc:
         # the second-order rule fails for some level (typically close to dissociation, where it is not
         # valid): keep the levels that succeed instead of failing the whole table
-        cols = _second_order_by_level(model, params, curve, mu, rot, vs, m_in, m_out, Js, exc)
-    except ValueError as exc:
-        if len(Js) > 1 and "rotation" in str(exc):
-            # name the first J that fails
-            for J in Js:
-                try:
-                    _core.wkb_levels(model, params, curve, mu, float(J * (J + 1)), np.empty(0, np.intc), m_in, m_out)
-                except ValueError:
-                    raise ValueError("J=%d: %s" % (J, exc)) from None
-        elif Js[0] > 0:
-            raise ValueError("J=%d: %s" % (Js[0], exc)) from None
-        raise
+        cols = None
+        if order == 2 and "max_levels=" not in str(exc):
+            cols = _second_order_by_level(model, params, curve, mu, rot, vs, m_in, m_out, Js, exc)
+        if cols is None:
+            if isinstance(exc, RuntimeError):
+                raise
+            _name_failing_J(exc, Js, model, params, curve, mu, m_in, m_out)
     _check_levels(cols, Js)
     cols["J"] = np.asarray(Js)[cols["rot_index"]]
     vD = {J: (None if math.isnan(x) else float(x)) for J, x in zip(Js, np.atleast_1d(cols["vD"]))}
@@ -235,12 +228,28 @@ def _wkb_levels(potential, mu, vs, Js, langer, maslov, order=1, max_levels=_vali
                       notes=cols.get("notes", ()))
 
 
+def _name_failing_J(exc, Js, model, params, curve, mu, m_in, m_out):
+    """Re-raises a level error with the first J that fails named."""
+    if len(Js) > 1 and "rotation" in str(exc):
+        for J in Js:
+            try:
+                _core.wkb_levels(model, params, curve, mu, float(J * (J + 1)), np.empty(0, np.intc), m_in, m_out)
+            except ValueError:
+                raise ValueError("J=%d: %s" % (J, exc)) from None
+    elif Js[0] > 0:
+        raise ValueError("J=%d: %s" % (Js[0], exc)) from None
+    raise exc
+
+
 def _second_order_by_level(model, params, curve, mu, rot, vs, m_in, m_out, Js, first_error):
     """Second-order levels one at a time after a failure of the whole table: the levels whose
     second-order rule fails are left out, named in the table's notes and in a warning. A level the
     caller asked for by number (v given) is not left out silently: that raises a ValueError."""
-    first = _core.wkb_levels(model, params, curve, mu, np.atleast_1d(rot), None if vs is None else
-                             np.asarray(vs, dtype=np.intc), m_in, m_out, order=1)
+    try:
+        first = _core.wkb_levels(model, params, curve, mu, np.atleast_1d(rot), None if vs is None else
+                                 np.asarray(vs, dtype=np.intc), m_in, m_out, order=1)
+    except (RuntimeError, ValueError):
+        return None  # not a second-order failure: the first-order table fails too
     keep, failed = [], []
     rows = {k: [] for k in ("v", "energy", "binding_energy", "inner_turning_point", "outer_turning_point", "Bv",
                             "dEdv", "error", "rot_index")}
@@ -250,19 +259,20 @@ def _second_order_by_level(model, params, curve, mu, rot, vs, m_in, m_out, Js, f
         try:
             one = _core.wkb_levels(model, params, curve, mu, float(np.atleast_1d(rot)[k]),
                                    np.array([v], dtype=np.intc), m_in, m_out, order=2)
-        except RuntimeError as exc:
+        except (RuntimeError, ValueError) as exc:
             failed.append("v=%d, J=%d (%s)" % (v, Js[k], exc))
             if vs is not None:
-                raise ValueError("the second-order level v=%d, J=%d failed: %s; use order=1 for it, or leave it "
-                                 "out of v" % (v, Js[k], exc)) from None
+                raise ValueError("second order, level v=%d, J=%d: %s; use order=1 for it, or leave it out of v"
+                                 % (v, Js[k], exc)) from None
             continue
         for c in rows:
             rows[c].append(k if c == "rot_index" else one[c][0])
     cols = {c: np.asarray(x, dtype=np.intp if c == "rot_index" else float) for c, x in rows.items()}
     cols["vD"] = np.atleast_1d(first["vD"])
-    note = "second-order WKB failed for %d level(s), left out: %s" % (len(failed), "; ".join(failed))
-    warnings.warn(note, RuntimeWarning, stacklevel=4)
-    cols["notes"] = [note]
+    if failed:
+        note = "second-order WKB failed for %d level(s), left out: %s" % (len(failed), "; ".join(failed))
+        warnings.warn(note, RuntimeWarning, stacklevel=4)
+        cols["notes"] = [note]
     return cols
 
 

@@ -233,6 +233,8 @@ def _fit_result_from_checked_dict(cls, data):
     result.observed = read_levels({k: o[k] for k in ("v", "J", "energy", "uncertainty", "isotopologue")},
                                 energy_zero=o["energy_zero"]) if any(x is not None for x in o["isotopologue"]) \
         else read_levels({k: o[k] for k in ("v", "J", "energy", "uncertainty")}, energy_zero=o["energy_zero"])
+    if not all(isinstance(e, list) and len(e) == 2 and isinstance(e[0], (str, type(None))) for e in data["masses"]):
+        raise ValueError("masses must be a list of [label, reduced mass] pairs")
     result.masses = {k: m for k, m in data["masses"]}
     result.method = data["method"]
     result.energy_zero = o["energy_zero"]
@@ -246,6 +248,8 @@ def _fit_result_from_checked_dict(cls, data):
         setattr(result, key, _frozen(_nan_array(data[key], (len(result.var_names),) * 2)))
     for key in ("calculated", "residuals", "normalized_residuals"):
         setattr(result, key, _frozen(_nan_array(data[key])))
+    if not (isinstance(data["fitted_rows"], list) and all(isinstance(x, bool) for x in data["fitted_rows"])):
+        raise ValueError("fitted_rows must be a list of true/false")
     result.fitted_rows = _frozen(np.array(data["fitted_rows"], dtype=bool))
     result.jacobian = _frozen(_nan_array(data["jacobian"], (len(result.observed), len(result.params))))
     for key in ("chi_square", "dof", "standard_error", "covariance_scale", "condition_number", "iterations",

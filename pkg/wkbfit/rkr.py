@@ -120,7 +120,12 @@ def rkr_turning_points(G_coefficients, B_coefficients, mu, v, *, quadrature_poin
     B = _coefficients(B_coefficients, "B_coefficients", 0, 1)
     mu = as_reduced_mass(mu)
     vs = _quantum_numbers(v)
-    data = _core.rkr(G, B, mu, vs, _quadrature(quadrature_points))
+    try:
+        data = _core.rkr(G, B, mu, vs, _quadrature(quadrature_points))
+    except RuntimeError as exc:
+        # non-finite integrals come from the coefficients and v given: an input problem
+        raise ValueError("%s: G(v) and B(v) do not give finite RKR integrals there; use v inside the range of "
+                         "the data the expansions were fitted to" % str(exc).rstrip(".")) from None
     _validate.finite_result({k: data[k] for k in ("energy", "inner_turning_point", "outer_turning_point")},
                             "RKR turning points (G(v) and B(v) overflow: use v inside the range of the data)")
     re = math.sqrt(_core.HBAR2_OVER_2U / (mu * B[0])) if B[0] > 0 else math.nan
