@@ -31,7 +31,7 @@ import traceback
 import warnings
 
 HERE = os.path.dirname(os.path.abspath(__file__))
-PKG = os.path.join(os.path.dirname(HERE), "pkg")
+PKG = os.environ.get("WKBFIT_PKG_DIR") or os.path.join(os.path.dirname(HERE), "pkg")
 
 OUTCOMES = ("ok", "clear", "unclear", "nonfinite", "crash", "hang")
 

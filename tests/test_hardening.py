@@ -17,7 +17,7 @@ import pytest
 import wkbfit
 from wkbfit import HBAR2_OVER_2U, LennardJones, MLR, Morse, fit, levels, read_levels
 
-PKG = os.path.join(os.path.dirname(os.path.dirname(os.path.abspath(__file__))), "pkg")
+PKG = os.environ.get("WKBFIT_PKG_DIR") or os.path.join(os.path.dirname(os.path.dirname(os.path.abspath(__file__))), "pkg")
 
 
 def run_isolated(code, timeout=60):

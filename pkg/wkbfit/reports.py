@@ -196,6 +196,8 @@ def _check_loaded_shapes(result):
         x = getattr(result, key)
         if isinstance(x, bool) or not isinstance(x, int):
             raise ValueError("%s=%r must be an integer" % (key, x))
+    if result.chi_square is None or (result.scale_uncertainties and result.dof > 0 and result.standard_error is None):
+        raise ValueError("chi_square (and, for scaled uncertainties, standard_error) must be numbers")
     for key in ("chi_square", "standard_error", "covariance_scale", "condition_number", "predicted_decrease"):
         x = getattr(result, key)
         if x is not None and (isinstance(x, bool) or not isinstance(x, (int, float)) or not math.isfinite(x)):
@@ -241,6 +243,10 @@ def _fit_result_from_checked_dict(cls, data):
     result.scale_uncertainties = data["scale_uncertainties"]
     result.params = {}
     for p in data["parameters"]:
+        for what in ("value", "initial", "uncertainty"):
+            x = p[what]
+            if not (x is None and what != "value") and (isinstance(x, bool) or not isinstance(x, (int, float))):
+                raise ValueError("parameter %r: %s=%r is not a number" % (p.get("name"), what, x))
         result.params[p["name"]] = Parameter(p["name"], p["value"], p["uncertainty"], p["vary"],
                                            tuple(p["bounds"]), p["initial"], p["determined"], p["note"])
     result.var_names = list(data["var_names"])
