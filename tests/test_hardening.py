@@ -378,3 +378,50 @@ def test_rkr_energies_that_overflow_are_refused():
     # G(v) = 1e308 (v+1/2) + ... overflows to inf at v = 1.5: refused instead of returned
     with pytest.raises(ValueError, match="RKR|finite"):
         wkbfit.rkr_turning_points([1e308, -1.07, -0.0058], [0.2, -0.0019], 2.48, [1.5])
+
+
+def test_csv_reading_memory_is_a_few_times_the_file_size(tmp_path):
+    # 200 000 rows (about 7 MB): the peak memory added by read_levels stays below 5 times the file size
+    # (a list of strings per cell took about 25 times); measured in a fresh process by its peak RSS
+    path = tmp_path / "many.csv"
+    n = 200_000
+    with open(path, "w") as fh:
+        fh.write("isotopologue,v,J,energy,uncertainty\n")
+        for i in range(n):
+            fh.write("7Li133Cs,%d,%d,%.6f,0.010\n" % (i % 200, i // 200, 100.0 + (i % 200) * 50.123456 + i // 200))
+    size = os.path.getsize(path)
+    rc, out = run_isolated("""
+        import resource
+        import numpy as np
+        import wkbfit
+        np.zeros(1)
+        before = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
+        obs = wkbfit.read_levels(%r)
+        after = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
+        print("rows", len(obs), "added", after - before, "last", obs.energy[-1], obs.J[-1])
+    """ % str(path), timeout=120)
+    assert rc == 0, out
+    words = out.split()
+    assert int(words[1]) == n
+    assert int(words[3]) < 5 * size, (out, size)
+    assert float(words[5]) == pytest.approx(100.0 + 199 * 50.123456 + 999) and int(words[6]) == 999
+
+
+def test_row_limit_is_refused_at_once(tmp_path):
+    path = tmp_path / "rows.csv"
+    path.write_text("v,energy,uncertainty\n" + "".join("%d,%d.5,0.1\n" % (k, k + 1) for k in range(50)))
+    with pytest.raises(ValueError, match="max_rows=10"):
+        read_levels(str(path), max_rows=10)
+    assert len(read_levels(str(path), max_rows=50)) == 50
+    with pytest.raises(ValueError, match="max_rows=3"):
+        read_levels({"v": [0, 1, 2, 3], "energy": [1.0, 2, 3, 4], "uncertainty": [0.1] * 4}, max_rows=3)
+
+
+def test_csv_duplicates_and_bad_cells_are_named_with_their_line(tmp_path):
+    path = tmp_path / "dup.csv"
+    path.write_text("# a comment\nv,energy,uncertainty\n0,1.5,0.1\n1,3.5,0.1\n\n0,1.6,0.1\n")
+    with pytest.raises(ValueError, match=r"row 3 \(line 6\).*v=0, J=0 appears twice \(also at .*row 1 \(line 3\)\)"):
+        read_levels(str(path))
+    path.write_text("v,energy,uncertainty\n0,1.5,0.1\n\u00b2,3.5,0.1\n")
+    with pytest.raises(ValueError, match=r"row 2 \(line 3\), column 'v'"):
+        read_levels(str(path))

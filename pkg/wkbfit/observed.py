@@ -162,7 +162,7 @@ class ObservedLevels:
 
 
 # -- reading ------------------------------------------------------------------------------
-def read_levels(source, energy_zero=None):
+def read_levels(source, energy_zero=None, *, max_rows=_limits.MAX_ROWS):
     """Read and validate measured levels.
 
     source: path of a CSV file (str or pathlib.Path; lines starting with '#' are comments),
@@ -171,6 +171,7 @@ def read_levels(source, energy_zero=None):
     energy_zero: what the energies are measured from, "minimum" (the default for new data),
         "lowest" or "asymptote"; see the module documentation.
 
+    max_rows: work limit on the number of data rows (refused at once beyond it); raise it for more.
     Raises ValueError naming the row (1-based data row) and column of any bad value.
     The caller's data are never modified: the result holds read-only copies.
     """
@@ -185,9 +186,10 @@ def read_levels(source, energy_zero=None):
         raise ValueError("energy_zero=%r is not known; use one of: %s" % (
             energy_zero, "; ".join("%r (%s)" % kv for kv in ENERGY_ZEROS.items())))
     comments, where = (), ""
+    max_rows = _limits.integer(max_rows, "max_rows", 1, 2 ** 62)
     if isinstance(source, (str, os.PathLike)):
-        columns, row_names, comments = _read_csv(source)
-        where = os.fspath(source)
+        from ._levels_csv import read_csv_levels
+        return read_csv_levels(source, energy_zero, max_rows)  # streamed: memory a few times the file size
     elif _is_dataframe(source):
         columns = {str(name): source[name].tolist() for name in source.columns}
         if len(set(columns)) != len(source.columns):
@@ -205,6 +207,8 @@ def read_levels(source, energy_zero=None):
     else:
         raise ValueError("source must be a CSV file path, a pandas DataFrame or a dict of arrays; got %s"
                          % type(source).__name__)
+    n_rows = max((len(c) for c in columns.values()), default=0)
+    _limits.work_limit(n_rows, max_rows, "data rows", "max_rows", "give fewer levels")
     return _validate(columns, row_names, energy_zero, where, comments)
 
 
