@@ -1005,7 +1005,7 @@ cleanup:
 static PyObject *py_exact_levels(PyObject *self, PyObject *args, PyObject *kwds)
 {
     static char *kwlist[] = {"model", "params", "curve", "mu", "J", "v", "want_dVdp", "want_wavefunctions",
-                             "energy_tol", "min_binding", "phase_step", NULL};
+                             "energy_tol", "min_binding", "phase_step", "max_points", "max_levels", NULL};
     enum { NCOL = 10 };
     static const char *names[NCOL] = {"v", "J", "energy", "binding_energy", "inner_turning_point",
                                       "outer_turning_point", "Bv", "dEdv", "error", "grid_points"};
@@ -1013,6 +1013,7 @@ static PyObject *py_exact_levels(PyObject *self, PyObject *args, PyObject *kwds)
     PyObject *params_obj, *curve_obj, *J_obj, *v_obj = Py_None;
     double mu;
     int want_dVdp = 0, want_wf = 0;
+    Py_ssize_t max_points = -1, max_levels = -1; /* work limits; -1 keeps the defaults / no limit */
     wkb_radial_settings settings = wkb_radial_default_settings();
     PyArrayObject *J_arr = NULL, *v_arr = NULL, *dVdp = NULL, *counts = NULL;
     PyArrayObject *cols[NCOL] = {NULL};
@@ -1024,10 +1025,12 @@ static PyObject *py_exact_levels(PyObject *self, PyObject *args, PyObject *kwds)
     wkb_error err = {0};
     int status = WKB_SUCCESS;
 
-    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOdO|Oppddd", kwlist, &model_name, &params_obj, &curve_obj,
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOdO|Oppdddnn", kwlist, &model_name, &params_obj, &curve_obj,
                                      &mu, &J_obj, &v_obj, &want_dVdp, &want_wf, &settings.energy_tol,
-                                     &settings.min_binding, &settings.phase_step))
+                                     &settings.min_binding, &settings.phase_step, &max_points, &max_levels))
         return NULL;
+    if (max_points >= 0)
+        settings.max_points = (size_t)max_points;
     if (parse_potential(model_name, params_obj, curve_obj, &pot) < 0)
         return NULL;
     if (!(J_arr = as_checked_int_array(J_obj, "J", 0)))
@@ -1079,6 +1082,13 @@ static PyObject *py_exact_levels(PyObject *self, PyObject *args, PyObject *kwds)
         }
         ((npy_intp *)PyArray_DATA(counts))[j] = (npy_intp)count;
         const size_t want = vv ? nv : count;
+        if (max_levels >= 0 && n + want > (size_t)max_levels) {
+            PyErr_Format(PyExc_ValueError,
+                         "this call would compute %zu exact levels or more, more than the limit max_levels=%zd: ask "
+                         "for fewer (a list of v, fewer J values, a smaller reduced mass) or raise max_levels",
+                         n + want, max_levels);
+            goto cleanup;
+        }
         for (size_t i = 0; vv && i < nv; i++) {
             if (vv[i] < 0) {
                 PyErr_Format(PyExc_ValueError, "v=%d is invalid: vibrational quantum numbers are >= 0", vv[i]);

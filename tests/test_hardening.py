@@ -425,3 +425,14 @@ def test_csv_duplicates_and_bad_cells_are_named_with_their_line(tmp_path):
     path.write_text("v,energy,uncertainty\n0,1.5,0.1\n\u00b2,3.5,0.1\n")
     with pytest.raises(ValueError, match=r"row 2 \(line 3\), column 'v'"):
         read_levels(str(path))
+
+
+def test_exact_work_limits_name_themselves():
+    pot = Morse(De=40000.0, re=1.0, a=1.0)
+    with pytest.raises(ValueError, match="max_grid_points=1000"):
+        wkbfit.exact.exact_levels(pot, 50.0, [0], [0], max_grid_points=1000)
+    with pytest.raises(ValueError, match="max_levels=10"):
+        levels(pot, 50.0, method="exact", max_levels=10)
+    with pytest.raises(ValueError, match="max_J_values=5"):
+        levels(pot, 50.0, v=0, J=list(range(6)), max_J_values=5)
+    assert len(levels(pot, 50.0, v=[0, 1], method="exact", max_levels=2)) == 2

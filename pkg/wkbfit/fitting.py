@@ -530,13 +530,7 @@ class FitResult:
         number of bound levels, each with its uncertainty.
         """
         mass, label = self._resolve_mu(isotopologue, mu)
-        try:
-            Jf = float(J)
-        except (TypeError, ValueError):
-            raise ValueError("J=%r must be an integer >= 0" % (J,)) from None
-        if not (math.isfinite(Jf) and Jf == int(Jf) and Jf >= 0):
-            raise ValueError("J=%r must be an integer >= 0" % (J,))
-        J = int(Jf)
+        J = _validate.integer(J, "J", 0, _validate.MAX_QUANTUM_NUMBER, "an integer >= 0")
         model, params, curve = self.potential._core_args()
         code = _METHOD_CODES[self.method]
         res = _core.fit_levels(model, params, curve, mass, float(J * (J + 1)), code)

@@ -82,6 +82,8 @@ class LevelTable:
 
     def level(self, v, J=0):
         """Row index of level (v, J); ValueError if absent."""
+        v = _validate.integer(v, "v")
+        J = _validate.integer(J, "J")
         idx = np.nonzero((self.v == v) & (self.J == J))[0]
         if len(idx) == 0:
             raise ValueError("level v=%d, J=%d is not in this table (%d levels)" % (v, J, len(self)))
@@ -190,7 +192,7 @@ def levels(potential, mu, v=None, J=0, method="wkb", *, order=1, langer=False, m
         from .exact import exact_levels
         if langer:
             raise ValueError("langer=True applies to WKB only; the exact solver uses J(J+1)")
-        return exact_levels(potential, mu, vs, Js)
+        return exact_levels(potential, mu, vs, Js, max_levels=max_levels)
     raise ValueError("method=%r is not known; use 'wkb' or 'exact'" % (method,))
 
 

@@ -79,6 +79,9 @@ class ObservedLevels:
 
     def rows_of(self, label):
         """Indices (0-based) of the rows of one isotopologue."""
+        if label is not None and not isinstance(label, str):
+            raise _limits.ArgumentTypeError("isotopologue label %r must be a string (or None for unlabelled data)"
+                                            % (label,))
         return np.array([i for i, lab in enumerate(self.isotopologue) if lab == label], dtype=int)
 
     def select(self, label):

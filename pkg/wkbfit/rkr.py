@@ -97,6 +97,9 @@ def _quantum_numbers(v):
 
 
 def _quadrature(points):
+    if isinstance(points, (int, np.integer)) and not isinstance(points, (bool, np.bool_)) and \
+            not 0 <= points <= 1 << 20:
+        raise ValueError("quadrature_points=%r is invalid: use 32, 64, 96, 100, 128, 256, 512 or 1024" % (points,))
     if isinstance(points, (bool, np.bool_)) or not isinstance(points, (int, np.integer)):
         raise ValueError("quadrature_points must be an integer (32, 64, 96, 100, 128, 256, 512 or 1024), "
                          "got %r" % (points,))
