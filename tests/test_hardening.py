@@ -242,6 +242,9 @@ def _small_fit():
     lambda d: d.__setitem__("iterations", "many"),
     lambda d: d["observed"].__setitem__("v", None),
     lambda d: d.__setitem__("masses", [["x", -1.0]]),
+    lambda d: d["observed"].__setitem__("energy_zero", None),          # fuzz seed 90210, case 21772
+    lambda d: d["parameters"][0].__setitem__("bounds", ["", None]),     # fuzz seed 90210, case 26866
+    lambda d: d.__setitem__("chi_square", None),
 ])
 def test_tampered_fit_result_gives_one_clear_value_error(tamper):
     import json

@@ -240,6 +240,8 @@ def _fit_result_from_checked_dict(cls, data):
     result.masses = {k: m for k, m in data["masses"]}
     result.method = data["method"]
     result.energy_zero = o["energy_zero"]
+    if result.energy_zero not in ("minimum", "lowest", "asymptote"):
+        raise ValueError("energy_zero=%r is not one of 'minimum', 'lowest', 'asymptote'" % (result.energy_zero,))
     result.scale_uncertainties = data["scale_uncertainties"]
     result.params = {}
     for p in data["parameters"]:
@@ -247,6 +249,11 @@ def _fit_result_from_checked_dict(cls, data):
             x = p[what]
             if not (x is None and what != "value") and (isinstance(x, bool) or not isinstance(x, (int, float))):
                 raise ValueError("parameter %r: %s=%r is not a number" % (p.get("name"), what, x))
+        if not (isinstance(p["bounds"], list) and len(p["bounds"]) == 2 and all(
+                b is None or (isinstance(b, (int, float)) and not isinstance(b, bool)) for b in p["bounds"])):
+            raise ValueError("parameter %r: bounds=%r must be a pair of numbers or null" % (p.get("name"), p["bounds"]))
+        if not isinstance(p["name"], str) or not isinstance(p["note"], str):
+            raise ValueError("parameter name and note must be strings")
         result.params[p["name"]] = Parameter(p["name"], p["value"], p["uncertainty"], p["vary"],
                                            tuple(p["bounds"]), p["initial"], p["determined"], p["note"])
     result.var_names = list(data["var_names"])
