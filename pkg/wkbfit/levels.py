@@ -217,8 +217,9 @@ def _wkb_levels(potential, mu, vs, Js, langer, maslov, order=1, max_levels=_vali
         # the second-order rule fails for some level (typically close to dissociation, where it is not
         # valid): keep the levels that succeed instead of failing the whole table
         cols = None
-        if order == 2 and "max_levels=" not in str(exc):
-            cols = _second_order_by_level(model, params, curve, mu, rot, vs, m_in, m_out, Js, exc)
+        if (order == 2 or isinstance(exc, RuntimeError)) and "max_levels=" not in str(exc):
+            # (first order too: a level search that does not converge in the sweep fails alone)
+            cols = _second_order_by_level(model, params, curve, mu, rot, vs, m_in, m_out, Js, exc, order)
         if cols is None:
             if isinstance(exc, RuntimeError):
                 raise
@@ -243,36 +244,45 @@ def _name_failing_J(exc, Js, model, params, curve, mu, m_in, m_out):
     raise exc
 
 
-def _second_order_by_level(model, params, curve, mu, rot, vs, m_in, m_out, Js, first_error):
+def _second_order_by_level(model, params, curve, mu, rot, vs, m_in, m_out, Js, first_error, order=2):
     """Second-order levels one at a time after a failure of the whole table: the levels whose
     second-order rule fails are left out, named in the table's notes and in a warning. A level the
     caller asked for by number (v given) is not left out silently: that raises a ValueError."""
+    rot1 = np.atleast_1d(rot)
     try:
-        first = _core.wkb_levels(model, params, curve, mu, np.atleast_1d(rot), None if vs is None else
-                                 np.asarray(vs, dtype=np.intc), m_in, m_out, order=1)
+        if order == 2:
+            first = _core.wkb_levels(model, params, curve, mu, rot1, None if vs is None else
+                                     np.asarray(vs, dtype=np.intc), m_in, m_out, order=1)
+            pairs = list(zip(first["rot_index"].tolist(), first["v"].tolist()))
+        else:
+            first = _core.wkb_levels(model, params, curve, mu, rot1, np.empty(0, np.intc), m_in, m_out)
+            counts = np.atleast_1d(first["count"]).tolist()
+            pairs = [(k, v) for k in range(len(rot1)) for v in (range(counts[k]) if vs is None else vs)]
     except (RuntimeError, ValueError):
-        return None  # not a second-order failure: the first-order table fails too
+        return None  # not a failure of single levels: the table cannot be set up at all
     keep, failed = [], []
     rows = {k: [] for k in ("v", "energy", "binding_energy", "inner_turning_point", "outer_turning_point", "Bv",
                             "dEdv", "error", "rot_index")}
-    for i in range(len(first["v"])):
-        k = int(first["rot_index"][i])
-        v = int(first["v"][i])
+    for k, v in pairs:
+        k, v = int(k), int(v)
         try:
-            one = _core.wkb_levels(model, params, curve, mu, float(np.atleast_1d(rot)[k]),
-                                   np.array([v], dtype=np.intc), m_in, m_out, order=2)
+            one = _core.wkb_levels(model, params, curve, mu, float(rot1[k]),
+                                   np.array([v], dtype=np.intc), m_in, m_out, order=order)
         except (RuntimeError, ValueError) as exc:
             failed.append("v=%d, J=%d (%s)" % (v, Js[k], exc))
             if vs is not None:
-                raise ValueError("second order, level v=%d, J=%d: %s; use order=1 for it, or leave it out of v"
-                                 % (v, Js[k], exc)) from None
+                raise ValueError("%s, level v=%d, J=%d: %s; %s" % (
+                "second order" if order == 2 else "first-order WKB", v, Js[k], exc,
+                "use order=1 for it, or leave it out of v" if order == 2 else
+                "leave it out of v, or use method='exact'")) from None
             continue
         for c in rows:
             rows[c].append(k if c == "rot_index" else one[c][0])
     cols = {c: np.asarray(x, dtype=np.intp if c == "rot_index" else float) for c, x in rows.items()}
     cols["vD"] = np.atleast_1d(first["vD"])
     if failed:
-        note = "second-order WKB failed for %d level(s), left out: %s" % (len(failed), "; ".join(failed))
+        note = "%s WKB failed for %d level(s), left out: %s" % (
+            "second-order" if order == 2 else "first-order", len(failed), "; ".join(failed))
         warnings.warn(note, RuntimeWarning, stacklevel=4)
         cols["notes"] = [note]
     return cols
