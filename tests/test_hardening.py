@@ -463,3 +463,14 @@ def test_first_order_non_convergence_leaves_out_only_that_level():
         with pytest.raises(ValueError, match="first-order WKB, level v=%d" % missing[0]):
             levels(pot, mu, v=[missing[0]])
     assert np.all(np.diff(t.energy) > 0) and np.all(np.isfinite(t.energy))
+
+
+def test_pointwise_energies_beyond_the_working_range_are_refused():
+    # fuzz seed 8675309, case 3664: asymptote = 2**32 + 2 cm-1 made 900 000 levels and a minute of work
+    r = np.linspace(2.1, 9.0, 32)
+    V = 5000.0 * (1 - np.exp(-(r - 3.0))) ** 2
+    with pytest.raises(ValueError, match="asymptote reaches .* working range"):
+        wkbfit.PointwisePotential(r, V, asymptote=2.0 ** 32 + 2)
+    with pytest.raises(ValueError, match="V reaches"):
+        wkbfit.PointwisePotential(r, V * 1e7)
+    assert wkbfit.PointwisePotential(r, V, asymptote=5000.0).asymptote == 5000.0

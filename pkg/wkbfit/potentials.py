@@ -231,6 +231,13 @@ class PointwisePotential(Potential):
         for name, val in (("asymptote", asymptote), ("tail_power", tail_power)):
             if val is not None:
                 _validate.real(val, name, "a finite number or None (to fit it)")
+        # the working range of the analytic models' De: energies beyond it only make unbounded work
+        finite_V = np.abs(V[np.isfinite(V)])  # non-finite values are named by the core's check
+        for name, val in (("V", np.max(finite_V) if finite_V.size else 0.0),
+                          ("asymptote", 0.0 if asymptote is None else abs(float(asymptote)))):
+            if val > Potential.DE_MAX:
+                raise ValueError("%s reaches %.6g cm-1 in magnitude, outside the working range (at most %g cm-1)"
+                                 % (name, val, Potential.DE_MAX))
         try:
             self._curve_capsule, D, n, Cn = _core.pointwise_build(
                 r, V, math.nan if asymptote is None else float(asymptote),
