@@ -994,6 +994,8 @@ int wkb_fit_levels(const wkb_potential *pot, double mu, double rot, const wkb_se
         return wkb_fail(err, WKB_ENOMEM, "cannot allocate a WKB workspace");
     if ((status = wkb_well_set(w, pot, mu, rot, 1, 1, err)) || (status = wkb_level_count(w, count, vD, err)))
         goto cleanup;
+    if (vD && wkb_well_bound_top(w) < wkb_well_top(w) - 1e-6 * (wkb_well_top(w) - wkb_well_bottom(w)))
+        *vD = NAN; /* an inner wall lower than the asymptote: no action at dissociation */
     if (source) {
         /* levels of the other source, counted by asking until one is not bound */
         if ((status = source->set(source->ctx, pot, mu, rot, err)))

@@ -491,6 +491,23 @@ static PyObject *py_wkb_levels(PyObject *self, PyObject *args, PyObject *kwds)
         raise_status(&err);
         goto cleanup;
     }
+    for (npy_intp k = 0; k < n_rot; k++) {
+        /* an inner wall lower than the asymptote (V(0) < De): the levels between its top and the
+           asymptote are not bound by the potential, and vD is not defined */
+        const double top = wkb_well_top(wells[k]), wall = wkb_well_bound_top(wells[k]);
+        if (!(wall < top - 1e-6 * (top - wkb_well_bottom(wells[k]))))
+            continue;
+        vD[k] = NAN;
+        if (!v_arr) {
+            value_error("the inner wall of this potential%s rises only to %.10g cm-1, below the asymptote %.10g "
+                        "cm-1: the levels above the wall top are not bound by the potential (the exact solver "
+                        "binds them only through its boundary at r = 0), so there is no complete set of levels "
+                        "and no vD. The %zu levels below the wall top can be asked for by v (v=0..%zu)",
+                        rot[k] > 0 ? " (with this rotation)" : "", wall, top, (size_t)count[k],
+                        count[k] > 0 ? (size_t)count[k] - 1 : 0);
+            goto cleanup;
+        }
+    }
     if (max_levels >= 0 && n > (size_t)max_levels) {
         /* refused before the work: millions of levels (e.g. from a huge reduced mass) take minutes */
         PyErr_Format(PyExc_ValueError,
@@ -1478,6 +1495,19 @@ static PyObject *py_fit_levels(PyObject *self, PyObject *args, PyObject *kwds)
         raise_status(&err);
         goto cleanup;
     }
+    if (radial) {
+        /* the exact count may exceed the WKB one (a wall lower than the asymptote binds levels only
+           through the boundary at r = 0): size the arrays by the larger of the two */
+        Py_BEGIN_ALLOW_THREADS
+        status = wkb_radial_set(radial, &pot, mu, rot, &err);
+        Py_END_ALLOW_THREADS
+        if (status) {
+            raise_status(&err);
+            goto cleanup;
+        }
+        if (wkb_radial_count(radial) > count)
+            count = wkb_radial_count(radial);
+    }
     count += 2;
     npy_intp dims[2] = {(npy_intp)count, (npy_intp)np};
     if (!(energy = new_vector(dims[0])) || !(jac = (PyArrayObject *)PyArray_ZEROS(2, dims, NPY_DOUBLE, 0)) ||
@@ -1531,7 +1561,7 @@ cleanup:
 static PyObject *py_exact_levels(PyObject *self, PyObject *args, PyObject *kwds)
 {
     static char *kwlist[] = {"model", "params", "curve", "mu", "J", "v", "want_dVdp", "want_wavefunctions",
-                             "energy_tol", "min_binding", "phase_step", NULL};
+                             "energy_tol", "min_binding", "phase_step", "max_points", "max_levels", NULL};
     enum { NCOL = 10 };
     static const char *names[NCOL] = {"v", "J", "energy", "binding_energy", "inner_turning_point",
                                       "outer_turning_point", "Bv", "dEdv", "error", "grid_points"};
@@ -1539,6 +1569,7 @@ static PyObject *py_exact_levels(PyObject *self, PyObject *args, PyObject *kwds)
     PyObject *params_obj, *curve_obj, *J_obj, *v_obj = Py_None;
     double mu;
     int want_dVdp = 0, want_wf = 0;
+    Py_ssize_t max_points = -1, max_levels = -1; /* work limits; -1 keeps the defaults / no limit */
     wkb_radial_settings settings = wkb_radial_default_settings();
     PyArrayObject *J_arr = NULL, *v_arr = NULL, *dVdp = NULL, *counts = NULL;
     PyArrayObject *cols[NCOL] = {NULL};
@@ -1550,10 +1581,12 @@ static PyObject *py_exact_levels(PyObject *self, PyObject *args, PyObject *kwds)
     wkb_error err = {0};
     int status = WKB_SUCCESS;
 
-    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOdO|Oppddd", kwlist, &model_name, &params_obj, &curve_obj,
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOdO|Oppdddnn", kwlist, &model_name, &params_obj, &curve_obj,
                                      &mu, &J_obj, &v_obj, &want_dVdp, &want_wf, &settings.energy_tol,
-                                     &settings.min_binding, &settings.phase_step))
+                                     &settings.min_binding, &settings.phase_step, &max_points, &max_levels))
         return NULL;
+    if (max_points >= 0)
+        settings.max_points = (size_t)max_points;
     if (parse_potential(model_name, params_obj, curve_obj, &pot) < 0)
         return NULL;
     if (!(J_arr = as_checked_int_array(J_obj, "J", 0)))
@@ -1605,6 +1638,13 @@ static PyObject *py_exact_levels(PyObject *self, PyObject *args, PyObject *kwds)
         }
         ((npy_intp *)PyArray_DATA(counts))[j] = (npy_intp)count;
         const size_t want = vv ? nv : count;
+        if (max_levels >= 0 && n + want > (size_t)max_levels) {
+            PyErr_Format(PyExc_ValueError,
+                         "this call would compute %zu exact levels or more, more than the limit max_levels=%zd: ask "
+                         "for fewer (a list of v, fewer J values, a smaller reduced mass) or raise max_levels",
+                         n + want, max_levels);
+            goto cleanup;
+        }
         for (size_t i = 0; vv && i < nv; i++) {
             if (vv[i] < 0) {
                 PyErr_Format(PyExc_ValueError, "v=%d is invalid: vibrational quantum numbers are >= 0", vv[i]);

@@ -302,6 +302,7 @@ int wkb_well_set(wkb_well *w, const wkb_potential *pot, double mu, double rot, i
 
 double wkb_well_bottom(const wkb_well *w) { return w->bottom; }
 double wkb_well_top(const wkb_well *w) { return w->top; }
+double wkb_well_bound_top(const wkb_well *w) { return w->bound_top; }
 
 /* Counts crossings of V_J = E over the scanned monotone segments and the tail beyond. */
 static size_t count_crossings(const wkb_well *w, double E)
@@ -390,9 +391,10 @@ static int find_turning_point(const wkb_well *w, const energy_point *e, int righ
         hi = GSL_MAX(r_in, w->scan_r[out]);
     } else if (right && j == w->n_scan - 1) {
         double r = w->scan_r[j];
+        int steps = 0; /* bounded even if r_bottom is not finite: 2^200 is far beyond any orbit */
         while (kinetic(w, e, r, &pv) > 0) {
             r *= 2;
-            if (r > 1e12 * w->r_bottom)
+            if (r > 1e12 * w->r_bottom || ++steps > 200)
                 return wkb_fail(err, WKB_ENOLEVEL,
                                 "no outer turning point at E=%.12g cm-1 (binding energy %.6g cm-1): "
                                 "the orbit is not bound", e->E, e->b);
@@ -401,9 +403,10 @@ static int find_turning_point(const wkb_well *w, const energy_point *e, int righ
         hi = r;
     } else if (!right && j == 0) {
         double r = w->scan_r[0];
+        int steps = 0;
         while (kinetic(w, e, r, &pv) > 0) {
             r *= 0.5;
-            if (r < 1e-9 * w->r_bottom)
+            if (r < 1e-9 * w->r_bottom || ++steps > 200)
                 return wkb_fail(err, WKB_ENOWELL,
                                 "no inner turning point at E=%.12g cm-1: the potential wall near r=0 is "
                                 "lower than this energy", e->E);

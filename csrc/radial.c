@@ -492,8 +492,9 @@ static int build_grid(wkb_radial *w, wkb_error *err)
         }
         if (!(nd <= (double)w->set.max_points)) {
             status = wkb_fail(err, WKB_EINVAL,
-                              "the radial grid would need %.0f points (more than max_points=%zu): the well is "
-                              "very deep for this mass, or energy_tol/min_binding are very small",
+                              "the radial grid would need %.0f points (more than the limit max_grid_points=%zu): the "
+                              "well is very deep for this mass, or tolerance/min_binding are very small; ask for "
+                              "less, or raise max_grid_points",
                               nd, w->set.max_points);
             goto cleanup;
         }

@@ -271,6 +271,9 @@ int wkb_well_set(wkb_well *w, const wkb_potential *pot, double mu, double rot,
 /* Energy of the effective-potential minimum and the asymptote (cm-1). */
 double wkb_well_bottom(const wkb_well *w);
 double wkb_well_top(const wkb_well *w);
+/* Highest energy bound by the inner wall: min(asymptote, top of V_J inside the minimum). Below
+   the asymptote for a wall that never rises to it (V(0) < De): levels are counted up to here. */
+double wkb_well_bound_top(const wkb_well *w);
 
 /* Action, half period, turning points and Bv at energy E (given as binding energy
    b = asymptote - E so that energies just below threshold keep their precision).

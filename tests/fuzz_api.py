@@ -31,7 +31,7 @@ import traceback
 import warnings
 
 HERE = os.path.dirname(os.path.abspath(__file__))
-PKG = os.path.join(os.path.dirname(HERE), "pkg")
+PKG = os.environ.get("WKBFIT_PKG_DIR") or os.path.join(os.path.dirname(HERE), "pkg")
 
 OUTCOMES = ("ok", "clear", "unclear", "nonfinite", "crash", "hang")
 
@@ -210,7 +210,30 @@ def case_levels(g):
         kw["langer"] = g.pick([True, False, "yes", 1, None])
     v = None if g.chance(0.5) else g.int_list(30)
     J = 0 if g.chance(0.5) else g.int_list(40, n_max=4)
-    check_table(wkbfit.levels(pot, make_mu(g), v=v, J=J, **kw))
+    t = wkbfit.levels(pot, make_mu(g), v=v, J=J, **kw)
+    check_table(t)
+    table_methods(g, t)
+
+
+def table_methods(g, t):
+    """The LevelTable's own methods with plausible or hostile arguments."""
+    what = g.pick(["level", "text", "dict", "getitem", "html", "none", "none"])
+    if what == "level":
+        t.level(g.count(5), g.count(3))
+    elif what == "text":
+        t.to_text()
+        str(t)
+    elif what == "dict":
+        t.to_dict()
+        t.describe()
+    elif what == "getitem":
+        try:
+            t[g.pick(["energy", "v", "Bv", "nope", 3, None])]
+        except KeyError as exc:  # the mapping protocol: a missing column is a KeyError that names it
+            if "no column" not in str(exc):
+                raise
+    elif what == "html":
+        t._repr_html_()
 
 
 def case_exact(g):
@@ -236,6 +259,8 @@ def case_compare(g):
                                  order=g.pick([1, 2]))
     finite("comparison", c.difference, c.wkb_energy, c.exact_energy)
     str(c)
+    c.to_text(uncertainty=g.real(0.01, 10.0))
+    c.good_enough(g.real(0.01, 10.0))
 
 
 def case_masses(g):
@@ -246,7 +271,7 @@ def case_masses(g):
         b = g.pick(["7Li", "133Cs", "D", g.real(10.0, 10.0), g.hostile()])
         finite("reduced mass", wkbfit.reduced_mass(a, b))
     elif what == "isotope_mass":
-        wkbfit.isotope_mass(g.pick(["7Li", "1H", "D", "T", "238U", "0H", "Li", g.hostile(), "1000Cs"]))
+        (wkbfit.isotope_mass if g.chance(0.5) else wkbfit.isotope_info)(g.pick(["7Li", "1H", "D", "T", "238U", "0H", "Li", g.hostile(), "1000Cs"]))
     elif what == "parse":
         wkbfit.parse_isotopologue(g.pick(["7Li133Cs", "H2", "HD", "1H35Cl", "12C-16O", "Li2", "", "7Li 7Li",
                                           g.hostile(), "127I2", "x" * 1000]))
@@ -303,6 +328,14 @@ def case_read_levels(g):
                 fh.write(raw)
             obs = wkbfit.read_levels(path)
     finite("observed", obs.energy, obs.uncertainty)
+    what = g.pick(["select", "masses", "text", "none"])
+    if what == "select":
+        obs.select(g.pick(obs.isotopologues + [g.hostile(), "Zz"]))
+    elif what == "masses":
+        obs.masses_by_isotopologue(g.pick([None, 5.0, {"7Li133Cs": 5.0}, g.hostile(), {None: 4.0}]))
+    elif what == "text":
+        str(obs)
+        repr(obs)
 
 
 _BASE_FIT = {}

@@ -20,7 +20,7 @@ class ArgumentTypeError(TypeError, ValueError):
     ValueError too, so that code catching bad input as ValueError keeps working."""
 
 #: levels computed by one call of `levels` (all J together); raise with levels(..., max_levels=...)
-MAX_LEVELS = 1_000_000
+MAX_LEVELS = 100_000
 #: J values in one call of `levels`; raise with levels(..., max_J_values=...)
 MAX_J_VALUES = 10_000
 #: data rows read by `read_levels`; raise with read_levels(..., max_rows=...)

@@ -324,6 +324,11 @@ def _fit_levels_engine(potential, obs, masses, method, vary_flags, lower, upper,
             i = rows[err.args[1]]
             raise ValueError(_start_failure_message_levels(err.args[0], obs, i, potential, mu_rows[i])) from None
         raise
+    if not (np.isfinite(out["chi_square"]) and np.all(np.isfinite(out["params"])) and np.all(np.isfinite(out["calc"]))):
+        # a "converged" fit with an infinite chi-square is no answer: refuse it
+        raise ValueError("the fit ended with a non-finite chi-square (%r) or parameters %s: the data cannot be "
+                         "described from this start (check the energies, uncertainties and energy_zero, or start "
+                         "closer)" % (float(out["chi_square"]), dict(zip(names, out["params"].tolist()))))
 
     calc = np.zeros(len(obs))
     calc[rows] = out["calc"]
@@ -906,13 +911,7 @@ class FitResult:
         number of bound levels, each with its uncertainty.
         """
         mass, label = self._resolve_mu(isotopologue, mu)
-        try:
-            Jf = float(J)
-        except (TypeError, ValueError):
-            raise ValueError("J=%r must be an integer >= 0" % (J,)) from None
-        if not (math.isfinite(Jf) and Jf == int(Jf) and Jf >= 0):
-            raise ValueError("J=%r must be an integer >= 0" % (J,))
-        J = int(Jf)
+        J = _validate.integer(J, "J", 0, _validate.MAX_QUANTUM_NUMBER, "an integer >= 0")
         omega = int(getattr(self, "omega", 0) or 0)
         if J < omega:
             raise ValueError("J=%d is below Omega=%d of the fitted state: its levels have J >= Omega" % (J, omega))

@@ -108,6 +108,8 @@ class LevelTable:
 
     def level(self, v, J=0):
         """Row index of level (v, J); ValueError if absent."""
+        v = _validate.integer(v, "v")
+        J = _validate.integer(J, "J")
         idx = np.nonzero((self.v == v) & (self.J == J))[0]
         if len(idx) == 0:
             raise ValueError("level v=%d, J=%d is not in this table (%d levels)" % (v, J, len(self)))
@@ -231,7 +233,7 @@ def levels(potential, mu, v=None, J=0, method="wkb", *, order=1, langer=False, m
             raise ValueError("method='exact' needs the exact radial solver: import wkbfit (or wkbfit.exact) first")
         if langer:
             raise ValueError("langer=True applies to WKB only; the exact solver uses J(J+1)")
-        return exact_levels(potential, mu, vs, Js)
+        return exact_levels(potential, mu, vs, Js, max_levels=max_levels)
     raise ValueError("method=%r is not known; use 'wkb' or 'exact'" % (method,))
 
 
@@ -252,23 +254,17 @@ def _wkb_levels(potential, mu, vs, Js, langer, maslov, order=1, max_levels=_vali
     try:
         cols = _core.wkb_levels(model, params, curve, mu, rot, v_arr, m_in, m_out, order=order,
                                 max_levels=max_levels)
-    except RuntimeError as exc:
-        if order != 2:
-            raise
+    except (RuntimeError, ValueError) as exc:
         # the second-order rule fails for some level (typically close to dissociation, where it is not
         # valid): keep the levels that succeed instead of failing the whole table
-        cols = _second_order_by_level(model, params, curve, mu, rot, vs, m_in, m_out, Js, exc)
-    except ValueError as exc:
-        if len(Js) > 1 and "rotation" in str(exc):
-            # name the first J that fails
-            for J in Js:
-                try:
-                    _core.wkb_levels(model, params, curve, mu, float(J * (J + 1)), np.empty(0, np.intc), m_in, m_out)
-                except ValueError:
-                    raise ValueError("J=%d: %s" % (J, exc)) from None
-        elif Js[0] > 0:
-            raise ValueError("J=%d: %s" % (Js[0], exc)) from None
-        raise
+        cols = None
+        if (order == 2 or isinstance(exc, RuntimeError)) and "max_levels=" not in str(exc):
+            # (first order too: a level search that does not converge in the sweep fails alone)
+            cols = _second_order_by_level(model, params, curve, mu, rot, vs, m_in, m_out, Js, exc, order)
+        if cols is None:
+            if isinstance(exc, RuntimeError):
+                raise
+            _name_failing_J(exc, Js, model, params, curve, mu, m_in, m_out)
     _check_levels(cols, Js)
     cols["J"] = np.full(len(cols["v"]), Js[0]) if len(Js) == 1 else np.asarray(Js)[cols["rot_index"]]
     vD = {J: (None if math.isnan(x) else float(x)) for J, x in zip(Js, np.atleast_1d(cols["vD"]))}
@@ -278,34 +274,60 @@ def _wkb_levels(potential, mu, vs, Js, langer, maslov, order=1, max_levels=_vali
     return table
 
 
-def _second_order_by_level(model, params, curve, mu, rot, vs, m_in, m_out, Js, first_error):
+def _name_failing_J(exc, Js, model, params, curve, mu, m_in, m_out):
+    """Re-raises a level error with the first J that fails named."""
+    if len(Js) > 1 and "rotation" in str(exc):
+        for J in Js:
+            try:
+                _core.wkb_levels(model, params, curve, mu, float(J * (J + 1)), np.empty(0, np.intc), m_in, m_out)
+            except ValueError:
+                raise ValueError("J=%d: %s" % (J, exc)) from None
+    elif Js[0] > 0:
+        raise ValueError("J=%d: %s" % (Js[0], exc)) from None
+    raise exc
+
+
+def _second_order_by_level(model, params, curve, mu, rot, vs, m_in, m_out, Js, first_error, order=2):
     """Second-order levels one at a time after a failure of the whole table: the levels whose
     second-order rule fails are left out, named in the table's notes and in a warning. A level the
     caller asked for by number (v given) is not left out silently: that raises a ValueError."""
-    first = _core.wkb_levels(model, params, curve, mu, np.atleast_1d(rot), None if vs is None else
-                             np.asarray(vs, dtype=np.intc), m_in, m_out, order=1)
+    rot1 = np.atleast_1d(rot)
+    try:
+        if order == 2:
+            first = _core.wkb_levels(model, params, curve, mu, rot1, None if vs is None else
+                                     np.asarray(vs, dtype=np.intc), m_in, m_out, order=1)
+            pairs = list(zip(first["rot_index"].tolist(), first["v"].tolist()))
+        else:
+            first = _core.wkb_levels(model, params, curve, mu, rot1, np.empty(0, np.intc), m_in, m_out)
+            counts = np.atleast_1d(first["count"]).tolist()
+            pairs = [(k, v) for k in range(len(rot1)) for v in (range(counts[k]) if vs is None else vs)]
+    except (RuntimeError, ValueError):
+        return None  # not a failure of single levels: the table cannot be set up at all
     keep, failed = [], []
     rows = {k: [] for k in ("v", "energy", "binding_energy", "inner_turning_point", "outer_turning_point", "Bv",
                             "dEdv", "error", "rot_index")}
-    for i in range(len(first["v"])):
-        k = int(first["rot_index"][i])
-        v = int(first["v"][i])
+    for k, v in pairs:
+        k, v = int(k), int(v)
         try:
-            one = _core.wkb_levels(model, params, curve, mu, float(np.atleast_1d(rot)[k]),
-                                   np.array([v], dtype=np.intc), m_in, m_out, order=2)
-        except RuntimeError as exc:
+            one = _core.wkb_levels(model, params, curve, mu, float(rot1[k]),
+                                   np.array([v], dtype=np.intc), m_in, m_out, order=order)
+        except (RuntimeError, ValueError) as exc:
             failed.append("v=%d, J=%d (%s)" % (v, Js[k], exc))
             if vs is not None:
-                raise ValueError("the second-order level v=%d, J=%d failed: %s; use order=1 for it, or leave it "
-                                 "out of v" % (v, Js[k], exc)) from None
+                raise ValueError("%s, level v=%d, J=%d: %s; %s" % (
+                "second order" if order == 2 else "first-order WKB", v, Js[k], exc,
+                "use order=1 for it, or leave it out of v" if order == 2 else
+                "leave it out of v, or use method='exact'")) from None
             continue
         for c in rows:
             rows[c].append(k if c == "rot_index" else one[c][0])
     cols = {c: np.asarray(x, dtype=np.intp if c == "rot_index" else float) for c, x in rows.items()}
     cols["vD"] = np.atleast_1d(first["vD"])
-    note = "second-order WKB failed for %d level(s), left out: %s" % (len(failed), "; ".join(failed))
-    warnings.warn(note, RuntimeWarning, stacklevel=4)
-    cols["notes"] = [note]
+    if failed:
+        note = "%s WKB failed for %d level(s), left out: %s" % (
+            "second-order" if order == 2 else "first-order", len(failed), "; ".join(failed))
+        warnings.warn(note, RuntimeWarning, stacklevel=4)
+        cols["notes"] = [note]
     return cols
 
 

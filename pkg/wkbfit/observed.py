@@ -116,6 +116,9 @@ class ObservedLevels:
 
     def rows_of(self, label):
         """Indices (0-based) of the rows of one isotopologue."""
+        if label is not None and not isinstance(label, str):
+            raise _limits.ArgumentTypeError("isotopologue label %r must be a string (or None for unlabelled data)"
+                                            % (label,))
         return np.array([i for i, lab in enumerate(self.isotopologue) if lab == label], dtype=int)
 
     def select(self, label):
@@ -203,7 +206,7 @@ class ObservedLevels:
 
 # -- reading ------------------------------------------------------------------------------
 def read_levels(source, energy_zero=None, unit=None, *, default_uncertainty=None, asymptote=None,
-                fit_asymptote=False, check=True):
+                fit_asymptote=False, check=True, max_rows=_limits.MAX_ROWS):
     """Read and validate measured levels.
 
     source: path of a CSV file (str or pathlib.Path; lines starting with '#' are comments),
@@ -221,6 +224,7 @@ def read_levels(source, energy_zero=None, unit=None, *, default_uncertainty=None
     check: run the plausibility checks (`check_levels`), which warn (DataWarning) and say
         what to do.
 
+    max_rows: work limit on the number of data rows (refused at once beyond it); raise it for more.
     Raises ValueError naming the row (1-based data row) and column of any bad value.
     The caller's data are never modified: the result holds read-only copies.
     """
@@ -238,7 +242,13 @@ def read_levels(source, energy_zero=None, unit=None, *, default_uncertainty=None
         raise ValueError("energy_zero=%r is not known; use one of: %s" % (
             energy_zero, "; ".join("%r (%s)" % kv for kv in ENERGY_ZEROS.items())))
     comments, where, units, file_unit = (), "", {}, None
+    max_rows = _limits.integer(max_rows, "max_rows", 1, 2 ** 62)
     if isinstance(source, (str, os.PathLike)):
+        if unit is None and default_uncertainty is None and _plain_csv(source):
+            # a plain CSV of the standard columns: streamed, memory a few times the file size
+            from ._levels_csv import read_csv_levels
+            obs = read_csv_levels(source, energy_zero, max_rows)
+            return _finish_levels(obs, obs.energy_zero, asymptote, fit_asymptote, check)
         columns, row_names, comments, units, file_unit = read_table(source, "levels file")
         where = os.fspath(source)
     elif _is_dataframe(source):
@@ -277,15 +287,56 @@ def read_levels(source, energy_zero=None, unit=None, *, default_uncertainty=None
     if default is not None:
         columns = dict(columns)
         columns["uncertainty"] = [default] * len(columns.get("v", []))
+    n_rows = max((len(c) for c in columns.values()), default=0)
+    _limits.work_limit(n_rows, max_rows, "data rows", "max_rows", "give fewer levels")
     obs = _validate(columns, row_names, energy_zero, where, comments, col_units)
-    obs.asymptote = asymptote
-    obs.fit_asymptote = bool(fit_asymptote)
     if default is not None:
         obs.default_uncertainty = default * CM1_PER_UNIT[col_units["uncertainty"]]
+    return _finish_levels(obs, energy_zero, asymptote, fit_asymptote, check)
+
+
+def _finish_levels(obs, energy_zero, asymptote, fit_asymptote, check):
+    """The binding-energy options and the plausibility checks of read_levels."""
+    if fit_asymptote and energy_zero != "asymptote":
+        raise ValueError("fit_asymptote=True is for binding energies (energy_zero='asymptote'); these data have "
+                         "energy_zero=%r" % energy_zero)
+    if asymptote is not None:
+        if energy_zero != "asymptote":
+            raise ValueError("asymptote=%r is for binding energies (energy_zero='asymptote'); these data have "
+                             "energy_zero=%r" % (asymptote, energy_zero))
+        asymptote = _limits.real(asymptote, "asymptote", "a finite number (cm-1 above the potential minimum) or None")
+    obs.asymptote = asymptote
+    obs.fit_asymptote = bool(fit_asymptote)
     if check:
         from .checks import check_levels
-        check_levels(obs, stacklevel=3)
+        check_levels(obs, stacklevel=4)
     return obs
+
+
+_STANDARD_COLUMNS = {"v", "J", "energy", "uncertainty", "isotopologue"}
+
+
+def _plain_csv(path):
+    """True if a file is comma-separated with only the standard columns and states no unit, so that
+    the streaming reader (which knows no units) reads it the same as the general one."""
+    try:
+        with open(os.fspath(path), encoding="utf-8-sig") as fh:
+            for _ in range(10000):
+                line = fh.readline()
+                if not line:
+                    return False
+                text = line.strip()
+                if not text:
+                    continue
+                if text.startswith("#"):
+                    if "unit" in text.lower():
+                        return False
+                    continue
+                names = [c.strip() for c in text.split(",")]
+                return len(names) > 1 and set(names) <= _STANDARD_COLUMNS and len(set(names)) == len(names)
+    except (OSError, UnicodeDecodeError):
+        return False
+    return False
 
 
 def resolve_units(unit, units, file_unit, energy_columns, where):

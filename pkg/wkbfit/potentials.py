@@ -251,6 +251,13 @@ class PointwisePotential(Potential):
         if outer_tail not in self.OUTER_TAILS:
             raise ValueError("outer_tail=%r is not known; use %s" % (outer_tail, ", ".join(
                 repr(t) for t in self.OUTER_TAILS)))
+        # the working range of the analytic models' De: energies beyond it only make unbounded work
+        finite_V = np.abs(V[np.isfinite(V)])  # non-finite values are named by the core's check
+        for name, val in (("V", np.max(finite_V) if finite_V.size else 0.0),
+                          ("asymptote", 0.0 if asymptote is None else abs(float(asymptote)))):
+            if val > Potential.DE_MAX:
+                raise ValueError("%s reaches %.6g cm-1 in magnitude, outside the working range (at most %g cm-1)"
+                                 % (name, val, Potential.DE_MAX))
         try:
             self._curve_capsule, D, n, Cn, wall = _core.pointwise_build(
                 r, V, math.nan if asymptote is None else float(asymptote),

@@ -429,6 +429,8 @@ def _check_loaded_shapes(result):
         x = getattr(result, key)
         if isinstance(x, bool) or not isinstance(x, int):
             raise ValueError("%s=%r must be an integer" % (key, x))
+    if result.chi_square is None or (result.scale_uncertainties and result.dof > 0 and result.standard_error is None):
+        raise ValueError("chi_square (and, for scaled uncertainties, standard_error) must be numbers")
     for key in ("chi_square", "standard_error", "covariance_scale", "condition_number", "predicted_decrease"):
         x = getattr(result, key)
         if x is not None and (isinstance(x, bool) or not isinstance(x, (int, float)) or not math.isfinite(x)):
@@ -489,12 +491,25 @@ def _fit_result_from_checked_dict(cls, data):
     result.n_levels = data.get("n_levels")
     result.n_level_calculations = data.get("n_level_calculations")
     result.omega = data.get("omega", 0)
+    if not all(isinstance(e, list) and len(e) == 2 and isinstance(e[0], (str, type(None))) for e in data["masses"]):
+        raise ValueError("masses must be a list of [label, reduced mass] pairs")
     result.masses = {k: m for k, m in data["masses"]}
     result.method = data["method"]
     result.energy_zero = o["energy_zero"] if o is not None else None
+    if o is not None and result.energy_zero not in ("minimum", "lowest", "asymptote"):
+        raise ValueError("energy_zero=%r is not one of 'minimum', 'lowest', 'asymptote'" % (result.energy_zero,))
     result.scale_uncertainties = data["scale_uncertainties"]
     result.params = {}
     for p in data["parameters"]:
+        for what in ("value", "initial", "uncertainty"):
+            x = p[what]
+            if not (x is None and what != "value") and (isinstance(x, bool) or not isinstance(x, (int, float))):
+                raise ValueError("parameter %r: %s=%r is not a number" % (p.get("name"), what, x))
+        if not (isinstance(p["bounds"], list) and len(p["bounds"]) == 2 and all(
+                b is None or (isinstance(b, (int, float)) and not isinstance(b, bool)) for b in p["bounds"])):
+            raise ValueError("parameter %r: bounds=%r must be a pair of numbers or null" % (p.get("name"), p["bounds"]))
+        if not isinstance(p["name"], str) or not isinstance(p["note"], str):
+            raise ValueError("parameter name and note must be strings")
         result.params[p["name"]] = Parameter(p["name"], p["value"], p["uncertainty"], p["vary"],
                                            tuple(p["bounds"]), p["initial"], p["determined"], p["note"])
     result.var_names = list(data["var_names"])
@@ -502,6 +517,8 @@ def _fit_result_from_checked_dict(cls, data):
         setattr(result, key, _frozen(_nan_array(data[key], (len(result.var_names),) * 2)))
     for key in ("calculated", "residuals", "normalized_residuals"):
         setattr(result, key, _frozen(_nan_array(data[key])))
+    if not (isinstance(data["fitted_rows"], list) and all(isinstance(x, bool) for x in data["fitted_rows"])):
+        raise ValueError("fitted_rows must be a list of true/false")
     result.fitted_rows = _frozen(np.array(data["fitted_rows"], dtype=bool))
     result.jacobian = _frozen(_nan_array(data["jacobian"], (len(result.residuals), len(result.params))))
     result._sigma = _frozen(np.concatenate([b.data.uncertainty for b in result.blocks])) if result.blocks else \

@@ -108,6 +108,9 @@ def _quantum_numbers(v):
 
 
 def _quadrature(points):
+    if isinstance(points, (int, np.integer)) and not isinstance(points, (bool, np.bool_)) and \
+            not 0 <= points <= 1 << 20:
+        raise ValueError("quadrature_points=%r is invalid: use 32, 64, 96, 100, 128, 256, 512 or 1024" % (points,))
     if isinstance(points, (bool, np.bool_)) or not isinstance(points, (int, np.integer)):
         raise ValueError("quadrature_points must be an integer (32, 64, 96, 100, 128, 256, 512 or 1024), "
                          "got %r" % (points,))
@@ -131,7 +134,12 @@ def rkr_turning_points(G_coefficients, B_coefficients, mu, v, *, quadrature_poin
     B = _coefficients(B_coefficients, "B_coefficients", 0, 1)
     mu = as_reduced_mass(mu)
     vs = _quantum_numbers(v)
-    data = _core.rkr(G, B, mu, vs, _quadrature(quadrature_points))
+    try:
+        data = _core.rkr(G, B, mu, vs, _quadrature(quadrature_points))
+    except RuntimeError as exc:
+        # non-finite integrals come from the coefficients and v given: an input problem
+        raise ValueError("%s: G(v) and B(v) do not give finite RKR integrals there; use v inside the range of "
+                         "the data the expansions were fitted to" % str(exc).rstrip(".")) from None
     _validate.finite_result({k: data[k] for k in ("energy", "inner_turning_point", "outer_turning_point")},
                             "RKR turning points (G(v) and B(v) overflow: use v inside the range of the data)")
     re = math.sqrt(_core.HBAR2_OVER_2U / (mu * B[0])) if B[0] > 0 else math.nan
