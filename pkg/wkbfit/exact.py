@@ -9,7 +9,6 @@ over three steps. Every call crosses into the core once with all J values.
 gives u(r); `compare_wkb_exact` tabulates WKB minus exact level by level.
 """
 import math
-import warnings
 
 import numpy as np
 

@@ -303,7 +303,7 @@ def _second_order_by_level(model, params, curve, mu, rot, vs, m_in, m_out, Js, f
             pairs = [(k, v) for k in range(len(rot1)) for v in (range(counts[k]) if vs is None else vs)]
     except (RuntimeError, ValueError):
         return None  # not a failure of single levels: the table cannot be set up at all
-    keep, failed = [], []
+    failed = []
     rows = {k: [] for k in ("v", "energy", "binding_energy", "inner_turning_point", "outer_turning_point", "Bv",
                             "dEdv", "error", "rot_index")}
     for k, v in pairs:

@@ -24,7 +24,7 @@ import os
 
 import numpy as np
 
-from .observed import (ObservedLevels, _frozen, _is_dataframe, _label, _names, _number, _quantum_number,
+from .observed import (ObservedLevels, _frozen, columns_in_memory, _label, _names, _number, _quantum_number,
                        report_unknown_columns, resolve_units, _default_uncertainty)
 from .tables import read_table
 from .units import CM1_PER_UNIT, check_unit
@@ -148,21 +148,8 @@ def _columns_of(source, what):
     if isinstance(source, (str, os.PathLike)):
         columns, row_names, comments, units, file_unit = read_table(source, what)
         where = os.fspath(source)
-    elif _is_dataframe(source):
-        columns = {str(name): source[name].tolist() for name in source.columns}
-        row_names = None
-        where = "DataFrame"
-    elif isinstance(source, dict):
-        columns = {}
-        for name, values in source.items():
-            values = np.asarray(values, dtype=object)
-            if values.ndim != 1:
-                raise ValueError("column %r must be a 1-D array or list; got shape %s" % (name, values.shape))
-            columns[str(name)] = values.tolist()
-        row_names = None
     else:
-        raise ValueError("source must be a file path, a pandas DataFrame or a dict of arrays; got %s"
-                         % type(source).__name__)
+        columns, row_names, where = columns_in_memory(source)
     return columns, row_names, comments, units, file_unit, where
 
 

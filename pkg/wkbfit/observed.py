@@ -243,46 +243,18 @@ def read_levels(source, energy_zero=None, unit=None, *, default_uncertainty=None
             energy_zero, "; ".join("%r (%s)" % kv for kv in ENERGY_ZEROS.items())))
     comments, where, units, file_unit = (), "", {}, None
     max_rows = _limits.integer(max_rows, "max_rows", 1, 2 ** 62)
+    asymptote = _binding_options(energy_zero, asymptote, fit_asymptote)
     if isinstance(source, (str, os.PathLike)):
         if unit is None and default_uncertainty is None and _plain_csv(source):
             # a plain CSV of the standard columns: streamed, memory a few times the file size
             from ._levels_csv import read_csv_levels
             obs = read_csv_levels(source, energy_zero, max_rows)
-            return _finish_levels(obs, obs.energy_zero, asymptote, fit_asymptote, check)
+            return _finish_levels(obs, asymptote, fit_asymptote, check)
         columns, row_names, comments, units, file_unit = read_table(source, "levels file")
         where = os.fspath(source)
-    elif _is_dataframe(source):
-        columns = {str(name): source[name].tolist() for name in source.columns}
-        if len(set(columns)) != len(source.columns):
-            raise ValueError("the DataFrame has duplicated column names: %s" % list(source.columns))
-        row_names = None
-        where = "DataFrame"
-    elif isinstance(source, dict):
-        columns = {}
-        for name, values in source.items():
-            values = np.asarray(values, dtype=object)
-            if values.ndim != 1:
-                raise ValueError("column %r must be a 1-D array or list; got shape %s" % (name, values.shape))
-            columns[str(name)] = values.tolist()
-        row_names = None
     else:
-        raise ValueError("source must be a CSV file path, a pandas DataFrame or a dict of arrays; got %s"
-                         % type(source).__name__)
+        columns, row_names, where = columns_in_memory(source)
     col_units = resolve_units(unit, units, file_unit, ("energy", "uncertainty"), where)
-    if fit_asymptote and energy_zero != "asymptote":
-        raise ValueError("fit_asymptote=True is for binding energies (energy_zero='asymptote'); these data have "
-                         "energy_zero=%r" % energy_zero)
-    if asymptote is not None and energy_zero != "asymptote":
-        raise ValueError("asymptote=%r is for binding energies (energy_zero='asymptote'); these data have "
-                         "energy_zero=%r" % (asymptote, energy_zero))
-    if asymptote is not None:
-        try:
-            asymptote = float(asymptote)
-        except (TypeError, ValueError):
-            raise ValueError("asymptote=%r must be a number (cm-1 above the potential minimum) or None" % (asymptote,)) \
-                from None
-        if not math.isfinite(asymptote):
-            raise ValueError("asymptote=%r must be a finite number (cm-1 above the potential minimum)" % asymptote)
     default = _default_uncertainty(default_uncertainty, columns, where)
     if default is not None:
         columns = dict(columns)
@@ -292,19 +264,24 @@ def read_levels(source, energy_zero=None, unit=None, *, default_uncertainty=None
     obs = _validate(columns, row_names, energy_zero, where, comments, col_units)
     if default is not None:
         obs.default_uncertainty = default * CM1_PER_UNIT[col_units["uncertainty"]]
-    return _finish_levels(obs, energy_zero, asymptote, fit_asymptote, check)
+    return _finish_levels(obs, asymptote, fit_asymptote, check)
 
 
-def _finish_levels(obs, energy_zero, asymptote, fit_asymptote, check):
-    """The binding-energy options and the plausibility checks of read_levels."""
+def _binding_options(energy_zero, asymptote, fit_asymptote):
+    """The checked asymptote= (None or cm-1 above the minimum) of binding-energy data."""
     if fit_asymptote and energy_zero != "asymptote":
         raise ValueError("fit_asymptote=True is for binding energies (energy_zero='asymptote'); these data have "
                          "energy_zero=%r" % energy_zero)
-    if asymptote is not None:
-        if energy_zero != "asymptote":
-            raise ValueError("asymptote=%r is for binding energies (energy_zero='asymptote'); these data have "
-                             "energy_zero=%r" % (asymptote, energy_zero))
-        asymptote = _limits.real(asymptote, "asymptote", "a finite number (cm-1 above the potential minimum) or None")
+    if asymptote is None:
+        return None
+    if energy_zero != "asymptote":
+        raise ValueError("asymptote=%r is for binding energies (energy_zero='asymptote'); these data have "
+                         "energy_zero=%r" % (asymptote, energy_zero))
+    return _limits.real(asymptote, "asymptote", "a finite number (cm-1 above the potential minimum) or None")
+
+
+def _finish_levels(obs, asymptote, fit_asymptote, check):
+    """The checked binding-energy options on the data, then the plausibility checks of read_levels."""
     obs.asymptote = asymptote
     obs.fit_asymptote = bool(fit_asymptote)
     if check:
@@ -368,6 +345,26 @@ def _default_uncertainty(default, columns, where):
     if not (math.isfinite(x) and x > 0):
         raise ValueError("default_uncertainty=%r must be a finite number > 0 (one standard deviation)" % (default,))
     return x
+
+
+def columns_in_memory(source):
+    """(columns as lists, row names None, description) of a pandas DataFrame or a dict of arrays;
+    anything else that is not a file path is refused by name."""
+    if _is_dataframe(source):
+        columns = {str(name): source[name].tolist() for name in source.columns}
+        if len(set(columns)) != len(source.columns):
+            raise ValueError("the DataFrame has duplicated column names: %s" % list(source.columns))
+        return columns, None, "DataFrame"
+    if isinstance(source, dict):
+        columns = {}
+        for name, values in source.items():
+            values = np.asarray(values, dtype=object)
+            if values.ndim != 1:
+                raise ValueError("column %r must be a 1-D array or list; got shape %s" % (name, values.shape))
+            columns[str(name)] = values.tolist()
+        return columns, None, ""
+    raise ValueError("source must be a CSV file path, a pandas DataFrame or a dict of arrays; got %s"
+                     % type(source).__name__)
 
 
 def _is_dataframe(obj):

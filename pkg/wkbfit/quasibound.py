@@ -167,7 +167,7 @@ def _bound_levels(potential, mu, Js, method, order):
 
 def levels_with_quasibound(potential, mu, v, J, method, *, order, langer, maslov, rule, width_form):
     """What `levels(..., quasibound=True)` returns: bound and quasibound levels in one LevelTable."""
-    from .levels import LevelTable, _COLUMNS, _as_int_list, levels as _levels
+    from .levels import LevelTable, _COLUMNS, _as_int_list
     from .masses import as_reduced_mass
     from .potentials import Potential
 

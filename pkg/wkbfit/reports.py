@@ -38,6 +38,30 @@ def _single_levels(result):
     return len(result.data) == 1 and getattr(result.data[0], "kind", None) == "levels"
 
 
+def _parameter_lines(result):
+    """The parameter section of a fit report: value, 1-sigma, start and remarks per parameter."""
+    out = []
+    out.append("Parameters")
+    out.append("  %-6s %-6s %22s %16s %22s  %s" % ("name", "unit", "value", "1-sigma", "initial", "remarks"))
+    for name, p in result.params.items():
+        unit = _UNITS.get(name, "")
+        unc = "%16.6g" % p.uncertainty if p.uncertainty is not None else "%16s" % (
+            "fixed" if not p.vary else "not determined")
+        bounds = ""
+        if p.bounds != (None, None):
+            bounds = "bounds [%s, %s]" % ("-inf" if p.bounds[0] is None else "%.6g" % p.bounds[0],
+                                          "+inf" if p.bounds[1] is None else "%.6g" % p.bounds[1])
+        remark = "; ".join(x for x in (bounds, p.note if p.note != "fixed" else "") if x)
+        out.append("  %-6s %-6s %22.12g %s %22.12g  %s" % (name, unit, p.value, unc, p.initial, remark))
+    if result.scale_uncertainties and result.dof > 0:
+        out.append("  Uncertainties are one standard deviation, scaled by the %s "
+                   "%.4g (scale_uncertainties=True)." % (STATISTIC_NAME, result.sqrt_reduced_chi_square))
+    else:
+        out.append("  Uncertainties are one standard deviation from the stated measurement uncertainties "
+                   "(not scaled).")
+    return out
+
+
 def fit_report_text(result):
     """A plain-text report: parameters, free term values, correlations, statistics and the
     residual tables, one per data set, grouped by kind."""
@@ -56,24 +80,7 @@ def fit_report_text(result):
     lines.append("Reduced masses: %s" % ", ".join(
         "%s %.10g u" % ("unnamed" if k is None else k, m) for k, m in result.masses.items()))
     lines.append("")
-    lines.append("Parameters")
-    lines.append("  %-6s %-6s %22s %16s %22s  %s" % ("name", "unit", "value", "1-sigma", "initial", "remarks"))
-    for name, p in result.params.items():
-        unit = _UNITS.get(name, "")
-        unc = "%16.6g" % p.uncertainty if p.uncertainty is not None else "%16s" % (
-            "fixed" if not p.vary else "not determined")
-        bounds = ""
-        if p.bounds != (None, None):
-            bounds = "bounds [%s, %s]" % ("-inf" if p.bounds[0] is None else "%.6g" % p.bounds[0],
-                                          "+inf" if p.bounds[1] is None else "%.6g" % p.bounds[1])
-        remark = "; ".join(x for x in (bounds, p.note if p.note != "fixed" else "") if x)
-        lines.append("  %-6s %-6s %22.12g %s %22.12g  %s" % (name, unit, p.value, unc, p.initial, remark))
-    if result.scale_uncertainties and result.dof > 0:
-        lines.append("  Uncertainties are one standard deviation, scaled by the %s "
-                     "%.4g (scale_uncertainties=True)." % (STATISTIC_NAME, result.sqrt_reduced_chi_square))
-    else:
-        lines.append("  Uncertainties are one standard deviation from the stated measurement uncertainties "
-                     "(not scaled).")
+    lines.extend(_parameter_lines(result))
     lines.append("")
     corr = result._sorted_correlations()
     lines.append("Correlations of the varied parameters, largest first")
@@ -186,16 +193,7 @@ def _mixed_report_text(result):
     lines.append("Reduced masses: %s" % ", ".join(
         "%s %.10g u" % ("unnamed" if k is None else k, m) for k, m in result.masses.items()))
     lines.append("")
-    lines.append("Parameters")
-    lines.append("  %-6s %-6s %22s %16s %22s  %s" % ("name", "unit", "value", "1-sigma", "initial", "remarks"))
-    for name, p in result.params.items():
-        unc = "%16.6g" % p.uncertainty if p.uncertainty is not None else "%16s" % (
-            "fixed" if not p.vary else "not determined")
-        lines.append("  %-6s %-6s %22.12g %s %22.12g  %s" % (name, _UNITS.get(name, ""), p.value, unc, p.initial,
-                                                             p.note if p.note != "fixed" else ""))
-    lines.append("  Uncertainties are one standard deviation%s." % (
-        ", scaled by the dimensionless standard error %.4g" % result.standard_error
-        if result.scale_uncertainties and result.dof > 0 else " from the stated measurement uncertainties"))
+    lines.extend(_parameter_lines(result))
     lines.append("")
     if result.free_parameters:
         lines.extend(_free_section(result))

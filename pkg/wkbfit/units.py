@@ -4,7 +4,6 @@ A frequency nu corresponds to the wavenumber nu / c. The speed of light is exact
 (299 792 458 m/s by the definition of the metre, CODATA), so the conversions are exact
 numbers and are defined here once: 1 MHz = 1e6 / (100 c) cm-1, with c in m/s.
 """
-import math
 
 __all__ = ["SPEED_OF_LIGHT", "UNITS", "CM1_PER_UNIT", "to_wavenumber", "from_wavenumber", "check_unit"]
 
