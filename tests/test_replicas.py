@@ -219,3 +219,15 @@ def test_unconverged_fit_is_not_bootstrapped():
     assert res.status != "converged"
     with pytest.raises(ValueError, match="did not converge"):
         res.bootstrap(10)
+
+
+def test_replicas_refuse_fits_with_free_parameters():
+    # binding energies below a fitted asymptote: a free parameter besides the potential's, which
+    # replicas do not cover yet; the refusal says so (no numerical check here)
+    v = list(range(10, 20))
+    E = exact_levels(TRUE, v, 0)
+    obs = wkbfit.read_levels({"v": v, "energy": TRUE.De - E, "uncertainty": np.full(len(v), 0.01)},
+                             energy_zero="asymptote", fit_asymptote=True)
+    res = wkbfit.fit(TRUE, obs, MU, vary=["De", "a"], method="wkb")
+    with pytest.raises(ValueError, match="replicas do not cover"):
+        res.bootstrap(4, progress=False)

@@ -154,6 +154,10 @@ def bootstrap(result, n=1000, seed=1, kind="monte-carlo", executor=None, *, prog
         raise ValueError("the fit leaves %s undetermined: fix %s before bootstrapping"
                          % (", ".join(result.undetermined), "them" if len(result.undetermined) > 1 else "it"))
     obs = result.observed
+    if not isinstance(obs, ObservedLevels) or len(getattr(result, "free_parameters", {}) or {}):
+        raise ValueError("bootstrap replicas are made for fits to one set of term values or binding energies; this "
+                         "fit has several data sets or free term values (line positions), which replicas do not "
+                         "cover yet")
     label = obs.isotopologues[0] if isotopologue is None else isotopologue
     if label not in result.masses:
         raise ValueError("isotopologue=%r is not one of the fit (%s)" % (label, ", ".join(map(repr, result.masses))))
