@@ -402,6 +402,52 @@ cleanup:
     return (PyObject *)ai;
 }
 
+
+/* ---------------------------------------------------------------- matched end phases */
+
+/* The matched rule at one energy: both end phases and the continuous quantum number at binding
+   energy b, for tests and diagnostics. r_match <= 0 uses the fraction. */
+static PyObject *py_matched_phases(PyObject *self, PyObject *args, PyObject *kwds)
+{
+    static char *kwlist[] = {"model", "params", "curve", "mu", "rot", "binding", "match_fraction", "r_match_inner",
+                             "r_match_outer", NULL};
+    const char *model_name;
+    PyObject *params_obj, *curve_obj;
+    double mu, rot, binding, fraction = 0.5, rm_in = 0, rm_out = 0, vq = NAN;
+    wkb_potential pot;
+    wkb_error err = {0};
+    wkb_end_phase ph[2];
+    int status;
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOddd|ddd", kwlist, &model_name, &params_obj, &curve_obj, &mu,
+                                     &rot, &binding, &fraction, &rm_in, &rm_out))
+        return NULL;
+    if (parse_potential(model_name, params_obj, curve_obj, &pot) < 0)
+        return NULL;
+    wkb_settings settings = wkb_default_settings();
+    settings.ends = WKB_ENDS_MATCHED;
+    settings.match_fraction = fraction;
+    wkb_well *w = wkb_well_alloc(&settings);
+    if (!w)
+        return value_error("match_fraction=%g is invalid: give a value in 0.05..0.95", fraction);
+    Py_BEGIN_ALLOW_THREADS
+    status = wkb_well_set(w, &pot, mu, rot, 1, 1, &err);
+    if (!status)
+        status = wkb_matched_end_phase(w, binding, 0, rm_in, &ph[0], &err);
+    if (!status)
+        status = wkb_matched_end_phase(w, binding, 1, rm_out, &ph[1], &err);
+    if (!status && rm_in <= 0 && rm_out <= 0)
+        status = wkb_matched_quantum_number(w, binding, &vq, &err);
+    Py_END_ALLOW_THREADS
+    wkb_well_free(w);
+    if (status)
+        return raise_status(&err);
+    return Py_BuildValue("{s:d,s:d,s:d,s:d,s:d,s:d,s:d,s:d,s:d,s:n,s:n}", "psi_inner", ph[0].psi, "psi_outer",
+                         ph[1].psi, "r_match_inner", ph[0].r_match, "r_match_outer", ph[1].r_match, "r_inner",
+                         ph[0].r_turn, "r_outer", ph[1].r_turn, "action_inner", ph[0].action_to_turn,
+                         "action_outer", ph[1].action_to_turn, "v", vq, "evaluations_inner",
+                         (Py_ssize_t)ph[0].evaluations, "evaluations_outer", (Py_ssize_t)ph[1].evaluations);
+}
+
 /* ---------------------------------------------------------------- WKB levels */
 
 /* Levels for one or several rotational factors rot (J(J+1) or (J+1/2)^2) in one crossing:
@@ -410,16 +456,18 @@ cleanup:
 static PyObject *py_wkb_levels(PyObject *self, PyObject *args, PyObject *kwds)
 {
     static char *kwlist[] = {"model", "params", "curve", "mu", "rot", "v", "maslov_in", "maslov_out",
-                             "want_dVdp", "order", "max_levels", NULL};
+                             "want_dVdp", "order", "ends", "match_fraction", "nodes", "match_rule",
+                             "max_levels", NULL};
     const char *model_name;
     PyObject *params_obj, *curve_obj, *rot_obj, *v_obj = Py_None;
-    double mu;
-    int maslov_in = 1, maslov_out = 1, want_dVdp = 0, order = 1;
+    double mu, match_fraction = 0.5;
+    int maslov_in = 1, maslov_out = 1, want_dVdp = 0, order = 1, ends = WKB_ENDS_MASLOV, nodes = 0, match_rule = 0;
     Py_ssize_t max_levels = 1000000; /* work limit: levels in one call (the caller may raise it) */
+    PyArrayObject *vth_arr = NULL;
     PyArrayObject *rot_arr = NULL, *v_arr = NULL, *dVdp = NULL, *vD_arr = NULL, *count_arr = NULL, *index = NULL;
-    PyArrayObject *cols[8] = {NULL};
-    static const char *names[8] = {"v", "energy", "binding_energy", "inner_turning_point",
-                                   "outer_turning_point", "Bv", "dEdv", "error"};
+    PyArrayObject *cols[9] = {NULL};
+    static const char *names[9] = {"v", "energy", "binding_energy", "inner_turning_point",
+                                   "outer_turning_point", "Bv", "dEdv", "error", "rule"};
     PyObject *result = NULL;
     wkb_potential pot;
     wkb_well **wells = NULL; /* one set-up well per rotational factor, kept between the two passes */
@@ -429,10 +477,20 @@ static PyObject *py_wkb_levels(PyObject *self, PyObject *args, PyObject *kwds)
     npy_intp n_rot = 0;
     int status = WKB_SUCCESS;
 
-    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOdO|Oiipin", kwlist, &model_name, &params_obj, &curve_obj,
-                                     &mu, &rot_obj, &v_obj, &maslov_in, &maslov_out, &want_dVdp, &order,
-                                     &max_levels))
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOdO|Oiipiidiin", kwlist, &model_name, &params_obj, &curve_obj,
+                                     &mu, &rot_obj, &v_obj, &maslov_in, &maslov_out, &want_dVdp, &order, &ends,
+                                     &match_fraction, &nodes, &match_rule, &max_levels))
         return NULL;
+    if (nodes != 0 && (nodes < 8 || nodes > 512 || nodes % 2)) {
+        PyErr_Format(PyExc_ValueError, "nodes=%d is invalid: an even number of quadrature nodes in 8..512", nodes);
+        return NULL;
+    }
+    if (ends != WKB_ENDS_MASLOV && ends != WKB_ENDS_MATCHED) {
+        PyErr_Format(PyExc_ValueError, "ends=%d is invalid: 0 (fixed Maslov phases) or 1 (matched)", ends);
+        return NULL;
+    }
+    if (!(match_fraction >= 0.05 && match_fraction <= 0.95))
+        return value_error("match_fraction=%g is invalid: give a value in 0.05..0.95", match_fraction);
     if (order != 1 && order != 2) {
         PyErr_Format(PyExc_ValueError, "order=%d is invalid: use 1 (first-order WKB) or 2 (with the second-order term)",
                      order);
@@ -457,12 +515,22 @@ static PyObject *py_wkb_levels(PyObject *self, PyObject *args, PyObject *kwds)
         }
     }
     n_rot = PyArray_SIZE(rot_arr);
-    if (!(vD_arr = new_vector(n_rot)) ||
+    if (!(vD_arr = new_vector(n_rot)) || !(vth_arr = new_vector(n_rot)) ||
         !(count_arr = (PyArrayObject *)PyArray_SimpleNew(1, (npy_intp[]){n_rot}, NPY_INTP)))
         goto cleanup;
     {
         wkb_settings settings = wkb_default_settings();
         settings.order = order;
+        settings.ends = ends;
+        settings.match_fraction = match_fraction;
+        if (nodes)
+            settings.nodes = (size_t)nodes;
+        if (match_rule != 0 && match_rule != WKB_RULE_MATCHED && match_rule != WKB_RULE_ACROSS) {
+            PyErr_Format(PyExc_ValueError, "match_rule=%d is invalid: 0 (choose), 3 (matched) or 4 (exact phase)",
+                         match_rule);
+            goto cleanup;
+        }
+        settings.match_rule = match_rule;
         if (!(wells = calloc((size_t)n_rot + 1, sizeof *wells))) {
             PyErr_NoMemory();
             goto cleanup;
@@ -483,6 +551,9 @@ static PyObject *py_wkb_levels(PyObject *self, PyObject *args, PyObject *kwds)
         status = wkb_well_set(wells[k], &pot, mu, rot[k], maslov_in, maslov_out, &err);
         if (!status)
             status = wkb_level_count(wells[k], &c, &vD[k], &err);
+        ((double *)PyArray_DATA(vth_arr))[k] = NAN;
+        if (!status && ends == WKB_ENDS_MATCHED)
+            status = wkb_threshold_number(wells[k], (double *)PyArray_DATA(vth_arr) + k, &err);
         count[k] = (npy_intp)c;
         n += v_arr ? (size_t)PyArray_SIZE(v_arr) : c;
     }
@@ -556,28 +627,31 @@ static PyObject *py_wkb_levels(PyObject *self, PyObject *args, PyObject *kwds)
         raise_status(&err);
         goto cleanup;
     }
-    for (int c = 0; c < 8; c++) {
+    for (int c = 0; c < 9; c++) {
         if (!(cols[c] = new_vector((npy_intp)n)))
             goto cleanup;
         double *p = PyArray_DATA(cols[c]);
         for (size_t i = 0; i < n; i++) {
             const wkb_level *L = &lv[i];
-            const double vals[8] = {L->v, L->energy, L->binding, L->r_inner, L->r_outer, L->Bv, L->dEdv, L->error};
+            const double vals[9] = {L->v, L->energy, L->binding, L->r_inner, L->r_outer, L->Bv, L->dEdv, L->error,
+                                    (double)L->rule};
             p[i] = vals[c];
         }
     }
     if (!(result = PyDict_New()))
         goto cleanup;
-    for (int c = 0; c < 8; c++)
+    for (int c = 0; c < 9; c++)
         if (PyDict_SetItemString(result, names[c], (PyObject *)cols[c]) < 0)
             goto fail;
     if (PyDict_SetItemString(result, "rot_index", (PyObject *)index) < 0)
         goto fail;
     if (scalar_rot) {
         if (dict_steal(result, "vD", PyFloat_FromDouble(vD[0])) < 0 ||
+            dict_steal(result, "v_th", PyFloat_FromDouble(((double *)PyArray_DATA(vth_arr))[0])) < 0 ||
             dict_steal(result, "count", PyLong_FromSsize_t(count[0])) < 0)
             goto fail;
     } else if (PyDict_SetItemString(result, "vD", (PyObject *)vD_arr) < 0 ||
+               PyDict_SetItemString(result, "v_th", (PyObject *)vth_arr) < 0 ||
                PyDict_SetItemString(result, "count", (PyObject *)count_arr) < 0) {
         goto fail;
     }
@@ -587,12 +661,13 @@ static PyObject *py_wkb_levels(PyObject *self, PyObject *args, PyObject *kwds)
 fail:
     Py_CLEAR(result);
 cleanup:
-    for (int c = 0; c < 8; c++)
+    for (int c = 0; c < 9; c++)
         Py_XDECREF(cols[c]);
     Py_XDECREF(dVdp);
     Py_XDECREF(v_arr);
     Py_XDECREF(rot_arr);
     Py_XDECREF(vD_arr);
+    Py_XDECREF(vth_arr);
     Py_XDECREF(count_arr);
     Py_XDECREF(index);
     free(lv);
@@ -1888,10 +1963,15 @@ static PyMethodDef core_methods[] = {
     {"airy_asymptotic", (PyCFunction)(void (*)(void))py_airy_asymptotic, METH_VARARGS | METH_KEYWORDS,
      "airy_asymptotic(z, terms) -> Ai(z) from the large-|z| expansions (A&S 10.4.59 for z > 0,\n"
      "10.4.60 for z < 0) truncated after terms = 1..50 coefficients c_0..c_(terms-1)."},
+    {"matched_phases", (PyCFunction)(void (*)(void))py_matched_phases, METH_VARARGS | METH_KEYWORDS,
+     "matched_phases(model, params, curve, mu, rot, binding, match_fraction=0.5, r_match_inner=0, "
+     "r_match_outer=0) -> dict: the matched end phases psi and the continuous quantum number at one energy"},
     {"wkb_levels", (PyCFunction)(void (*)(void))py_wkb_levels, METH_VARARGS | METH_KEYWORDS,
-     "wkb_levels(model, params, curve, mu, rot, v=None, maslov_in=1, maslov_out=1, want_dVdp=False, order=1) "
-     "-> dict of level arrays (v, energy, binding_energy, turning points, Bv, dEdv, error, rot_index), vD and "
-     "count (per rot when rot is an array), [dE_dp]"},
+     "wkb_levels(model, params, curve, mu, rot, v=None, maslov_in=1, maslov_out=1, want_dVdp=False, order=1, "
+     "ends=0, match_fraction=0.5, nodes=0, match_rule=0) "
+     "-> dict of level arrays (v, energy, binding_energy, turning points, Bv, dEdv, error, rule, rot_index), vD, "
+     "v_th (ends=1 only, else NaN) and count (per rot when rot is an array), [dE_dp]; ends=1 selects matched end "
+     "phases, nodes overrides the quadrature rule, match_rule forces 3 (matched) or 4 (exact phase)"},
     {"wkb_orbits", (PyCFunction)(void (*)(void))py_wkb_orbits, METH_VARARGS | METH_KEYWORDS,
      "wkb_orbits(model, params, curve, mu, rot, binding) -> dict of arrays: action (integral k dr), "
      "half_period (d action/dE, 1/cm-1), inner/outer turning points, Bv; at binding energies asymptote - E"},

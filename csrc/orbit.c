@@ -43,6 +43,11 @@ wkb_settings wkb_default_settings(void)
     s.max_newton = 60;
     s.scan_points = 160;
     s.order = 1;
+    s.ends = WKB_ENDS_MASLOV;
+    s.match_fraction = 0.5;
+    s.match_decay = 10;
+    s.match_ode_tol = 1e-9;
+    s.match_rule = 0;
     return s;
 }
 
@@ -73,7 +78,9 @@ wkb_well *wkb_well_alloc(const wkb_settings *settings)
         return NULL;
     w->set = settings ? *settings : wkb_default_settings();
     if (w->set.nodes < 4 || w->set.nodes > 2000 || w->set.nodes % 2 || w->set.scan_points < 16 || w->set.max_newton < 1 ||
-        (w->set.order != 1 && w->set.order != 2))
+        (w->set.order != 1 && w->set.order != 2) || (w->set.ends != WKB_ENDS_MASLOV && w->set.ends != WKB_ENDS_MATCHED) ||
+        !(w->set.match_fraction >= 0.05 && w->set.match_fraction <= 0.95) || !(w->set.match_decay >= 5) ||
+        !(w->set.match_ode_tol > 0))
         goto fail;
     w->scan_r = malloc(w->set.scan_points * sizeof(double));
     w->scan_V = malloc(w->set.scan_points * sizeof(double));
@@ -117,6 +124,7 @@ void wkb_well_free(wkb_well *w)
     free(w->cache_w);
     free(w->cache_slope);
     free(w->cache_ok);
+    wkb_matched_free(w->matched);
     free(w);
 }
 
@@ -205,6 +213,7 @@ int wkb_well_set(wkb_well *w, const wkb_potential *pot, double mu, double rot, i
     w->ready = 0;
     w->have_last_tp = 0;
     w->vD_status = -1;
+    w->v_th_status = -1;
     w->count = 0;
     if (!(isfinite(mu) && mu > 0))
         return wkb_fail(err, WKB_EINVAL, "reduced mass mu=%g is invalid: it must be a finite number > 0 (u)", mu);
@@ -552,6 +561,48 @@ static int pieces_log(wkb_well *w, const energy_point *e, double ya, double yb, 
     for (size_t k = 0; k < m; k++)
         piece_log(w, e, ya + (yb - ya) * (double)k / (double)m, ya + (yb - ya) * (double)(k + 1) / (double)m, s);
     return 0;
+}
+
+/* ---- helpers shared with matched.c through well.h ---- */
+void wkb_well_effective(const wkb_well *w, double r, wkb_pot_value *pv) { effective(w, r, pv); }
+
+double wkb_well_kinetic(const wkb_well *w, double binding, double r, wkb_pot_value *pv)
+{
+    energy_point e;
+    e.b = binding;
+    e.E = w->top - binding;
+    e.top_form = binding < e.E - w->bottom;
+    return kinetic(w, &e, r, pv);
+}
+
+int wkb_well_turning_points(wkb_well *w, double binding, double *r1, double *r2, wkb_error *err)
+{
+    energy_point e;
+    int status;
+    e.b = binding;
+    e.E = w->top - binding;
+    e.top_form = binding < e.E - w->bottom;
+    if (!(binding > 0) || !isfinite(binding))
+        return wkb_fail(err, WKB_ENOLEVEL, "binding energy %.6g cm-1 is invalid: give a finite value > 0", binding);
+    if (!(e.E > w->bottom))
+        return wkb_fail(err, WKB_ENOWELL, "E=%.12g cm-1 is below the bottom of the well (%.12g cm-1)", e.E,
+                        w->bottom);
+    if (count_crossings(w, e.E) > 2)
+        return wkb_fail(err, WKB_EMULTIWELL,
+                        "at E=%.12g cm-1 the potential has more than two turning points (a second well or a "
+                        "barrier in the classically allowed region); single-well WKB does not apply", e.E);
+    if ((status = find_turning_point(w, &e, 0, r1, err)) || (status = find_turning_point(w, &e, 1, r2, err)))
+        return status;
+    return WKB_SUCCESS;
+}
+
+int wkb_well_crossing(const wkb_well *w, double binding, double lo, double hi, double *root)
+{
+    energy_point e;
+    e.b = binding;
+    e.E = w->top - binding;
+    e.top_form = binding < e.E - w->bottom;
+    return solve_in_bracket(w, &e, 0, lo, hi, root);
 }
 
 int wkb_orbit_at(wkb_well *w, double binding, wkb_orbit *orbit, double *avg_dVdp, wkb_error *err)

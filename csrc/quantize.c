@@ -26,6 +26,9 @@ static double w_exponent(const wkb_well *w)
     return n > 2 ? (n - 2) / (2 * n) : 0.5;
 }
 
+static int solve_first_order(wkb_well *w, size_t v, wkb_level *level, double *avg_dVdp, wkb_error *err);
+static int second_order_level(wkb_well *w, size_t v, wkb_level *level, double *avg_dVdp, wkb_error *err);
+
 /* Computes vD and the number of bound levels once per well set-up; sizes the level cache. */
 static int prepare(wkb_well *w, wkb_error *err)
 {
@@ -59,7 +62,11 @@ static int prepare(wkb_well *w, wkb_error *err)
         }
         w->count = w->vD > 0 ? (size_t)ceil(w->vD) : 0;
     }
-    const size_t want = GSL_MIN(w->count, CACHE_LIMIT);
+    w->count_first = w->count;
+    w->across = 0;
+    w->have_defect[0] = w->have_defect[1] = 0;
+    /* the matched rule may bind one level more than the first-order rule */
+    const size_t want = GSL_MIN(w->count + (w->set.ends == WKB_ENDS_MATCHED ? 2 : 0), CACHE_LIMIT);
     if (want > w->cache_size) {
         double *cw = realloc(w->cache_w, want * sizeof(double));
         if (cw)
@@ -77,6 +84,35 @@ static int prepare(wkb_well *w, wkb_error *err)
     if (w->cache_size)
         memset(w->cache_ok, 0, w->cache_size);
     w->vD_status = WKB_SUCCESS;
+    if (w->set.ends == WKB_ENDS_MATCHED && w->count > 0) {
+        /* is second order good enough in this well? judged on its lowest level */
+        wkb_level l1, l2;
+        wkb_error e2;
+        const int order = w->set.order;
+        w->set.order = 1;
+        int s1 = solve_first_order(w, 0, &l1, NULL, &e2);
+        w->set.order = order;
+        l2 = l1;
+        /* a point-wise curve too: the second-order term needs V'' smoother than a cubic spline's */
+        if (w->count <= WKB_ACROSS_MAX_LEVELS || w->pot.model == &wkb_model_pointwise ||
+            (!s1 && (second_order_level(w, 0, &l2, NULL, &e2) ||
+                     (l2.energy - l1.energy) * (l2.energy - l1.energy) / l2.dEdv > WKB_ACROSS_ESTIMATE)))
+            w->across = 1;
+    }
+    if (w->set.ends == WKB_ENDS_MATCHED && w->bottom < w->bound_top) {
+        /* the matched rule binds the levels below its own threshold number, not below vD */
+        double v_th;
+        int status = wkb_threshold_number(w, &v_th, &w->vD_err);
+        if (status) {
+            w->vD_status = status;
+            if (err)
+                *err = w->vD_err;
+            return status;
+        }
+        w->count = v_th > 0 ? (size_t)ceil(v_th) : 0;
+        if (w->count > w->cache_size)
+            w->count = w->cache_size; /* (cannot happen: v_th < vD + 1) */
+    }
     return WKB_SUCCESS;
 }
 
@@ -122,7 +158,57 @@ static double first_guess(const wkb_well *w, size_t v, double w_bottom)
 
 static int second_order_level(wkb_well *w, size_t v, wkb_level *level, double *avg_dVdp, wkb_error *err);
 
+/* How far the turning point r is from linear on the scale of the Airy length (WKB_MATCH_NONLINEARITY). */
+static double nonlinearity(const wkb_well *w, double r)
+{
+    wkb_pot_value p0, pa, pb;
+    wkb_well_effective(w, r, &p0);
+    const double h = 1e-4 * r;
+    wkb_well_effective(w, r + h, &pa);
+    wkb_well_effective(w, r - h, &pb);
+    const double g = fabs(p0.dV), ell = cbrt(w->eps / g), d3 = (pa.d2V - pb.d2V) / (2 * h);
+    return GSL_MAX(fabs(p0.d2V) * ell / g, sqrt(fabs(d3) / g) * ell);
+}
+
+/* With matched ends: the first-order level (where that rule binds it) starts either the second-order
+   solve (nearly linear outer turning point) or the matched solve (threshold or fast-changing region,
+   or where the second-order term finds no root). */
 static int solve_level(wkb_well *w, size_t v, wkb_level *level, double *avg_dVdp, wkb_error *err)
+{
+    if (w->set.ends != WKB_ENDS_MATCHED)
+        return solve_first_order(w, v, level, avg_dVdp, err);
+    memset(level, 0, sizeof *level);
+    level->status = WKB_ENOCONV;
+    if (v < w->count_first) {
+        const int order = w->set.order;
+        w->set.order = 1;
+        int status = solve_first_order(w, v, level, avg_dVdp, err);
+        w->set.order = order;
+        if (status && status != WKB_ENOCONV)
+            return status;
+        if (!status && !w->across && (w->rot == 0 || v + WKB_ACROSS_LAST < w->count) && !w->set.match_rule &&
+            (v < WKB_MATCH_MIN_V || nonlinearity(w, level->r_outer) <= WKB_MATCH_NONLINEARITY)) {
+            wkb_level second = *level;
+            wkb_error e2;
+            if (second_order_level(w, v, &second, avg_dVdp, &e2) == WKB_SUCCESS &&
+                (second.energy - level->energy) * (second.energy - level->energy) / second.dEdv <= WKB_ACROSS_ESTIMATE) {
+                *level = second;
+                level->rule = WKB_RULE_SECOND;
+                return level->status = WKB_SUCCESS;
+            }
+        }
+    }
+    /* the last two levels behind a centrifugal barrier (J > 0): the exact phase across the well, so that
+       the inner second-order error, which matters there (they lie well below threshold, where the
+       spacing is still finite), goes too; at J = 0 the last levels lie at threshold, where the matched
+       rule is exact to ~1e-11 cm-1 */
+    const int across = w->set.match_rule ? w->set.match_rule == WKB_RULE_ACROSS
+                                         : (w->across || (w->rot > 0 && v + WKB_ACROSS_LAST >= w->count));
+    level->rule = across ? WKB_RULE_ACROSS : WKB_RULE_MATCHED;
+    return level->status = wkb_matched_solve(w, v, across, level, err);
+}
+
+static int solve_first_order(wkb_well *w, size_t v, wkb_level *level, double *avg_dVdp, wkb_error *err)
 {
     const double alpha = w_exponent(w);
     const double target = M_PI * ((double)v + w->phase);
@@ -196,13 +282,16 @@ static int solve_level(wkb_well *w, size_t v, wkb_level *level, double *avg_dVdp
     level->dEdv = M_PI / o.half_period;
     level->Bv = o.Bv;
     level->status = converged ? WKB_SUCCESS : WKB_ENOCONV;
+    level->rule = WKB_RULE_FIRST;
     if (converged && v < w->cache_size) {
         w->cache_w[v] = wg;
         w->cache_slope[v] = slope;
         w->cache_ok[v] = 1;
     }
-    if (converged && w->set.order == 2)
+    if (converged && w->set.order == 2) {
+        level->rule = WKB_RULE_SECOND;
         return level->status = second_order_level(w, v, level, avg_dVdp, err);
+    }
     if (!converged) {
         wkb_fail(err, WKB_ENOCONV, "level v=%zu did not converge in %d iterations (last change %.3g cm-1)", v,
                  w->set.max_newton, dE);

@@ -6,6 +6,8 @@
 
 #define MAX_EXTREMA 64
 
+typedef struct wkb_matched wkb_matched; /* matched.c */
+
 struct wkb_well {
     wkb_settings set;
     wkb_potential pot;
@@ -34,6 +36,29 @@ struct wkb_well {
     size_t count, cache_size;
     double *cache_w, *cache_slope;
     char *cache_ok;
+    /* matched-end state (matched.c) */
+    wkb_matched *matched;
+    double v_th;
+    int v_th_status;
+    size_t count_first;
+    int across; /* matched ends in a well too quantal for second order: exact phase across the well */
+    /* first-order quantum number minus v at the last matched level, per rule (3, 4): it starts the next */
+    double defect[2];
+    int have_defect[2]; /* levels bound by the first-order rule (the matched count may differ) */
 };
+
+/* orbit.c helpers for matched.c: V_J and its derivatives (depth = D - V_J); the kinetic term
+   E - V_J at binding energy b in its cancellation-free form; both turning points at b; a root of the
+   kinetic term at b inside [lo, hi] (which must bracket one). */
+void wkb_well_effective(const wkb_well *w, double r, wkb_pot_value *pv);
+double wkb_well_kinetic(const wkb_well *w, double binding, double r, wkb_pot_value *pv);
+int wkb_well_turning_points(wkb_well *w, double binding, double *r1, double *r2, wkb_error *err);
+int wkb_well_crossing(const wkb_well *w, double binding, double lo, double hi, double *root);
+
+/* matched.c: per-well state of the matched-end quantization (NULL until first used) */
+void wkb_matched_free(wkb_matched *m);
+/* matched level v (started from level->binding if level->status == WKB_SUCCESS, else from a guess);
+   across: exact phase integration across the whole well instead (both ends meet at the bottom) */
+int wkb_matched_solve(wkb_well *w, size_t v, int across, wkb_level *level, wkb_error *err);
 
 #endif

@@ -232,7 +232,13 @@ typedef struct {
     int max_newton;        /* Newton iterations per level */
     size_t scan_points;    /* grid points for the well analysis */
     int order;             /* 1: first-order WKB; 2: with the second-order (Dunham) term */
+    int ends;              /* WKB_ENDS_MASLOV: fixed end phases; WKB_ENDS_MATCHED: matched.c */
+    double match_fraction; /* matched ends: join where E - V_J = match_fraction (E - V_min) (0.3..0.9) */
+    double match_decay;    /* matched ends: the exact solution starts where integral kappa dr reaches this */
+    double match_ode_tol;  /* matched ends: absolute tolerance of the phase ODE per step, radians */
+    int match_rule;        /* matched ends: 0 chooses per level; WKB_RULE_MATCHED or WKB_RULE_ACROSS forces one */
 } wkb_settings;
+enum wkb_ends { WKB_ENDS_MASLOV = 0, WKB_ENDS_MATCHED = 1 };
 wkb_settings wkb_default_settings(void);
 
 /* One classical orbit at energy E in the well. */
@@ -254,7 +260,28 @@ typedef struct {
     double dEdv;         /* pi / half_period: the local level spacing */
     double Bv;
     int status;
+    int rule;            /* enum wkb_rule: the rule that produced the level */
 } wkb_level;
+/* first order; second order with fixed end phases; matched outer end (matched.c) */
+enum wkb_rule { WKB_RULE_FIRST = 1, WKB_RULE_SECOND = 2, WKB_RULE_MATCHED = 3, WKB_RULE_ACROSS = 4 };
+/* With matched ends, a well whose lowest level has (E2 - E1)^2/(dE/dv) above this (cm-1; the size of the
+   fourth-order term when the WKB series behaves geometrically, common practice) is too quantal for
+   second order (light molecules, shallow wells): its levels come from the exact phase integrated
+   across the well (rule WKB_RULE_ACROSS). */
+#define WKB_ACROSS_ESTIMATE 1e-3
+/* ... and so is a well of at most this many levels (there every matching point lies within a wavelength
+   or two of its turning point; second order can be exact by accident, as for Morse) */
+#define WKB_ACROSS_MAX_LEVELS 12
+/* ... and so are the last this many levels of a rotating well (J > 0; with matched ends) */
+#define WKB_ACROSS_LAST 2
+/* With matched ends, a level whose outer turning point is this far from linear uses the matched rule
+   (the others keep second order, which is as accurate there and much cheaper): the larger of
+   |V''| l/|V'| and l sqrt(|V'''|/|V'|) at r_outer, l = (eps/|V'|)^(1/3) the Airy length. */
+#define WKB_MATCH_NONLINEARITY 0.5
+/* ... except for v below this: at the bottom of any well the Airy length is comparable to the orbit (the
+   measure is then O(1) for a harmonic well, which second order treats well) and the matching point lies
+   within a fraction of a wavelength of the turning point, where the matched rule is least accurate */
+#define WKB_MATCH_MIN_V 2
 
 /* A workspace for one (potential, mass, rotation) combination: allocate once, set,
    then compute any number of orbits and levels without further allocation. */
@@ -299,6 +326,37 @@ int wkb_level_at(wkb_well *w, int v, wkb_level *level, double *avg_dVdp, wkb_err
    of bound levels (may exceed capacity, then only capacity are filled). */
 int wkb_all_levels(wkb_well *w, wkb_level *levels, size_t capacity, size_t *count,
                    double *vD, wkb_error *err);
+
+/* ---------------------------------------------------------------- matched.c */
+/* Matched end phases (shared/design/physics.md section 12): at each end the radial equation
+   u'' = ((V_J - E)/eps) u is integrated exactly, in a modified Pruefer form u = R sin(phi),
+   u' = q R cos(phi), q = (F^2 + q0^4)^(1/4), F = (E - V_J)/eps, q0 = (|V_J'(r_turn)|/eps)^(1/3),
+   in x = ln r, from deep in the forbidden region (integral kappa dr = match_decay) to a matching point
+   b with E - V_J(b) = match_fraction (E - V_min); there it is joined to the second-order WKB wave
+   k^(-1/2) sin(psi), psi' = k + dk, dk = sqrt(eps)[V''/(8 w^(3/2)) + (5/32) V'^2/w^(5/2)], w = E - V_J.
+   Quantization: integral_{b_in}^{b_out} (k + dk) dr = pi (v + 1) - psi_in - psi_out, psi_end the
+   phase of the exact solution at b_end counted from its own forbidden region (3 pi/4 minus the
+   action from b to the turning point at a linear turning point, so the rule reduces to v + 1/2).
+   Selected with wkb_settings.ends = WKB_ENDS_MATCHED in wkb_level_at / wkb_all_levels.
+
+   One end at binding energy b (cm-1): end = 0 inner, 1 outer; r_match > 0 is the matching
+   point (angstrom), or <= 0 for the settings' fraction. Gives psi (radians, before the Airy
+   matching correction that the quantization applies), the matching point, the turning point, the
+   first-order action from the matching point to the turning point, and the count of potential
+   evaluations. Status: WKB_EINVAL (bad end or r_match), those of the turning-point search, WKB_ENUMERIC. */
+typedef struct {
+    double psi, r_match, r_turn, action_to_turn;
+    size_t evaluations;
+} wkb_end_phase;
+int wkb_matched_end_phase(wkb_well *w, double binding, int end, double r_match, wkb_end_phase *out,
+                          wkb_error *err);
+/* Continuous quantum number by the matched rule at binding energy b > 0 (cm-1): levels are the b
+   where it is an integer. */
+int wkb_matched_quantum_number(wkb_well *w, double binding, double *v, wkb_error *err);
+/* The quantum threshold number v_th (the continuous quantum number at the asymptote, extrapolated
+   from three tiny binding energies in kappa = sqrt(b/eps)); the matched rule binds the v < v_th.
+   Cached per wkb_well_set. */
+int wkb_threshold_number(wkb_well *w, double *v_th, wkb_error *err);
 
 /* ---------------------------------------------------------------- radial.c */
 /* The exact radial Schroedinger equation -eps u'' + [V(r) + eps J(J+1)/r^2] u = E u,

@@ -211,7 +211,7 @@ def noisy_morse_file(tmp_path, sigma=0.01, seed=7):
     rows = []
     for label in ("1H35Cl", "2H35Cl"):
         for J in (0, 3):
-            table = wkbfit.levels(pot, label, v=list(range(8)), J=J)
+            table = wkbfit.levels(pot, label, v=list(range(8)), J=J, order=1, ends="maslov")
             rows += [(label, v, J, "%.6f" % (e + rng.normal(0.0, sigma)), sigma)
                      for v, e in zip(table.v.tolist(), table.energy.tolist())]
     return write_levels(tmp_path / "hcl.csv", rows, comments=["# test data made by tests/test_cli.py"])
@@ -303,7 +303,7 @@ def test_demo_runs_the_fit(capsys, tmp_path):
 
 def test_fit_unlabelled_data_with_mu_and_predictions(capsys, tmp_path):
     mu = 0.98
-    table = wkbfit.levels(wkbfit.Morse(**MORSE_TRUE), mu, v=list(range(10)))
+    table = wkbfit.levels(wkbfit.Morse(**MORSE_TRUE), mu, v=list(range(10)), order=1, ends="maslov")
     rng = np.random.default_rng(3)
     rows = [(v, "%.6f" % (e + rng.normal(0.0, 0.02)), 0.02) for v, e in zip(table.v.tolist(), table.energy.tolist())]
     path = write_levels(tmp_path / "one.csv", rows, header="v,energy,uncertainty")

@@ -31,7 +31,7 @@ def synthetic(potential, mu, vs, Js, sigma, seed, energy_zero="minimum", label=N
     exact = np.empty(len(vs))
     for J in sorted(set(Js)):
         idx = [i for i, j in enumerate(Js) if j == J]
-        exact[idx] = wkbfit.levels(potential, mu, v=[vs[i] for i in idx], J=J).energy
+        exact[idx] = wkbfit.levels(potential, mu, v=[vs[i] for i in idx], J=J, order=1, ends="maslov").energy
     energy = exact + rng.normal(0.0, sigma, len(vs))
     data = {"v": vs, "J": Js, "energy": energy, "uncertainty": np.full(len(vs), sigma)}
     if label is not None:
@@ -92,7 +92,7 @@ def test_recovery_in_other_energy_zeros(zero):
     # (De - E) or relative to v=0, J=0, as read_levels documents.
     true = Morse(De=5875.0, re=3.67, a=0.6)
     data, exact = synthetic(true, MU_LICS, list(range(25)) * 2, [0] * 25 + [10] * 25, 0.01, 7)
-    e00 = wkbfit.levels(true, MU_LICS, v=[0]).energy[0]
+    e00 = wkbfit.levels(true, MU_LICS, v=[0], order=1, ends="maslov").energy[0]
     if zero == "asymptote":
         data["energy"] = true.De - data["energy"]
     else:
@@ -131,7 +131,7 @@ def test_analytic_jacobian_matches_finite_differences(zero):
                 scale = 1.0  # exact Morse levels do not depend on re at J = 0: only the J > 0 rows matter
             np.testing.assert_allclose(jac[:, k], fd, rtol=0, atol=1e-5 * scale, err_msg="%s %s" % (pot, name))
         # and the model values are the documented energy zero of the WKB levels themselves
-        E = np.array([wkbfit.levels(pot, m, v=[vv], J=j).energy[0] for vv, j, m in zip(v, J, mu_rows)])
+        E = np.array([wkbfit.levels(pot, m, v=[vv], J=j, order=1, ends="maslov").energy[0] for vv, j, m in zip(v, J, mu_rows)])
         if zero == "minimum":
             np.testing.assert_allclose(calc, E, rtol=0, atol=1e-9)
         elif zero == "asymptote":
@@ -228,7 +228,7 @@ def test_predictions_and_their_uncertainties():
     true, obs = morse_data(seed=3)
     result = fit(Morse(De=5600.0, re=3.6, a=0.62), obs, MU_LICS)
     pred = result.predict(mu=MU_LICS, J=4)
-    table = wkbfit.levels(result.potential, MU_LICS, J=4)
+    table = wkbfit.levels(result.potential, MU_LICS, J=4, order=1, ends="maslov")
     assert pred.n_bound == len(table)
     np.testing.assert_allclose(pred.energy, table.energy, rtol=0, atol=1e-9)
     np.testing.assert_allclose(pred.binding_energy, table.binding_energy, rtol=0, atol=1e-9)
@@ -237,15 +237,15 @@ def test_predictions_and_their_uncertainties():
     grads = []
     for name in names:
         h = 1e-6 * result.params[name].value
-        up = wkbfit.levels(result.potential.with_params(**{name: result.params[name].value + h}), MU_LICS, J=4)
-        dn = wkbfit.levels(result.potential.with_params(**{name: result.params[name].value - h}), MU_LICS, J=4)
+        up = wkbfit.levels(result.potential.with_params(**{name: result.params[name].value + h}), MU_LICS, J=4, order=1, ends="maslov")
+        dn = wkbfit.levels(result.potential.with_params(**{name: result.params[name].value - h}), MU_LICS, J=4, order=1, ends="maslov")
         n = min(len(up), len(dn), pred.n_bound)
         grads.append((up.energy[:n] - dn.energy[:n]) / (2 * h))
     G = np.array(grads).T
     sig = np.sqrt(np.einsum("ij,jk,ik->i", G, result.covariance, G))
     np.testing.assert_allclose(pred.energy_uncertainty[:len(sig)], sig, rtol=1e-3)
     # D0 = De - E(v=0, J=0); its uncertainty from the same propagation
-    E00 = wkbfit.levels(result.potential, MU_LICS, v=[0]).energy[0]
+    E00 = wkbfit.levels(result.potential, MU_LICS, v=[0], order=1, ends="maslov").energy[0]
     assert pred.D0 == pytest.approx(result.params["De"].value - E00, rel=1e-12)
     assert pred.D0_uncertainty > 0 and pred.vD_uncertainty > 0
     assert pred.n_bound_range[0] <= pred.n_bound <= pred.n_bound_range[1]

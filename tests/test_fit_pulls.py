@@ -21,7 +21,7 @@ def exact_levels(potential, mu, vs, Js):
     out = np.empty(len(vs))
     for J in sorted(set(Js)):
         idx = [i for i, j in enumerate(Js) if j == J]
-        out[idx] = wkbfit.levels(potential, mu, v=[vs[i] for i in idx], J=J).energy
+        out[idx] = wkbfit.levels(potential, mu, v=[vs[i] for i in idx], J=J, order=1, ends="maslov").energy
     return out
 
 
@@ -32,7 +32,7 @@ def run_replicas(true, start, mu, vs, Js, sigma, seed, vary=None, predict_v=None
     pulls, pred_pulls = [], []
     true_pred = None
     if predict_v is not None:
-        table = wkbfit.levels(true, mu)
+        table = wkbfit.levels(true, mu, order=1, ends="maslov")
         true_pred = (table.binding_energy[predict_v], true.De - table.energy[0])
     for _ in range(N_REPLICAS):
         obs = read_levels({"v": vs, "J": Js, "energy": exact + rng.normal(0.0, sigma, len(vs)),

@@ -132,7 +132,7 @@ def test_emo_with_one_coefficient_is_morse():
         np.testing.assert_allclose(Je[:, ke], Jm[:, km], rtol=1e-14, atol=1e-14 * 42341.9)
     assert np.all(Je[:, 2] == 0)  # p does not matter with beta0 alone
     mu = wkbfit.reduced_mass("1H", "35Cl")
-    le, lm = wkbfit.levels(emo, mu), wkbfit.levels(morse, mu)
+    le, lm = wkbfit.levels(emo, mu, order=1, ends="maslov"), wkbfit.levels(morse, mu, order=1, ends="maslov")
     assert len(le) == len(lm) and le.vD == pytest.approx(lm.vD, abs=1e-9)
     np.testing.assert_allclose(le.energy, lm.energy, rtol=0, atol=1e-8)
 
@@ -175,8 +175,8 @@ def test_levels_against_independent_dvr(pot, mu, grid, wkb1_tol, wkb2_tol):
     n = 12
     ref = sinc_dvr(pot, mu, *grid, n)
     exact = wkbfit.levels(pot, mu, v=list(range(n)), method="exact").energy
-    wkb1 = wkbfit.levels(pot, mu, v=list(range(n))).energy
-    wkb2 = wkbfit.levels(pot, mu, v=list(range(n)), order=2).energy
+    wkb1 = wkbfit.levels(pot, mu, v=list(range(n)), order=1, ends="maslov").energy
+    wkb2 = wkbfit.levels(pot, mu, v=list(range(n)), order=2, ends="maslov").energy
     np.testing.assert_allclose(exact, ref, rtol=0, atol=1e-7)
     np.testing.assert_allclose(wkb1, ref, rtol=0, atol=wkb1_tol)
     np.testing.assert_allclose(wkb2, ref, rtol=0, atol=wkb2_tol)
@@ -193,7 +193,7 @@ def test_mlr_levels_approach_dissociation_with_leroy_bernstein_law():
     pot, mu, C6 = wkbfit.MLR(De=3000.0, re=3.0, C6=2e5, betas=[0.3, 0.1, 0.05]), 10.0, 2e5
     K6 = lb_constant(mu, C6)
     H6 = K6 / 3  # H_n = ((n-2)/(2n)) K_n
-    table = wkbfit.levels(pot, mu)
+    table = wkbfit.levels(pot, mu, order=1, ends="maslov")
     last = len(table) - 1
     b, dGdv = table.binding_energy[last], table.dEdv[last]
     assert b < 0.01  # this well has a level bound by 2.4e-3 cm-1
@@ -285,7 +285,7 @@ def test_a_fit_that_varies_the_integer_p_says_why_it_cannot_move():
     # p must stay a whole number: every trial step leaves the model's domain, and the fit says so
     true = wkbfit.EMO(De=10000.0, re=1.5, betas=[1.8, 0.15], p=3)
     vs = list(range(10))
-    data = {"v": vs, "energy": wkbfit.levels(true, 7.0, v=vs).energy, "uncertainty": np.full(10, 0.01)}
+    data = {"v": vs, "energy": wkbfit.levels(true, 7.0, v=vs, order=1, ends="maslov").energy, "uncertainty": np.full(10, 0.01)}
     with pytest.warns(FitWarning, match=r"EMO parameter p=3\.0+\d+ is invalid: it must be a whole number"):
         result = wkbfit.fit(true.with_params(beta0=1.7), data, mu=7.0, vary={"p": True})
     assert result.potential.params["p"] == 3.0

@@ -313,7 +313,7 @@ def test_wkb_levels_of_sampled_morse(n, tol):
     De = we ** 2 / (4 * wexe)
     morse = wkbfit.Morse(De=De, re=re, a=a)
     r = np.linspace(re - 0.45, 4.0, n)
-    table = wkbfit.levels(wkbfit.PointwisePotential(r, morse(r)), mu)
+    table = wkbfit.levels(wkbfit.PointwisePotential(r, morse(r)), mu, order=1, ends="maslov")
     v = np.asarray(table.v)
     G = we * (v + 0.5) - wexe * (v + 0.5) ** 2
     sel = G < 0.9 * De
@@ -330,8 +330,8 @@ def test_wkb_levels_of_sampled_lennard_jones():
     mu = wkbfit.HBAR2_OVER_2U
     r = np.geomspace(0.85, 5.0, 100)
     pot = wkbfit.PointwisePotential(r, lj(r))
-    ref = wkbfit.levels(lj, mu)
-    got = wkbfit.levels(pot, mu)
+    ref = wkbfit.levels(lj, mu, order=1, ends="maslov")
+    got = wkbfit.levels(pot, mu, order=1, ends="maslov")
     assert len(got) == len(ref) == 12
     assert np.max(np.abs(got.energy - ref.energy)) <= 0.02
     assert abs(got.vD - ref.vD) <= 1e-3

@@ -195,7 +195,7 @@ def test_round_trip_wkb_levels_of_rkr_curve(B_morse):
     errs = []
     for n in (80, 160):
         pot = wkbfit.rkr_potential(G_MORSE, B_morse, MU, v=sqrt_grid(n, 21.0))
-        table = wkbfit.levels(pot, MU, v=list(range(21)))
+        table = wkbfit.levels(pot, MU, v=list(range(21)), order=1, ends="maslov")
         x = table.v + 0.5
         errs.append(np.max(np.abs(table.energy - (WE * x - WEXE * x * x))))
     assert errs[1] < 5e-5
@@ -223,7 +223,7 @@ def test_rkr_potential_points_and_default_grid():
     tp = wkbfit.rkr_turning_points(G_MORSE, B, MU, [27.0])
     assert pot.r[0] == tp.inner_turning_point[0] and pot.r[-1] == tp.outer_turning_point[0]
     assert np.array_equal(pot.V[:n], pot.V[n + 1:][::-1])
-    table = wkbfit.levels(pot, MU, v=list(range(18)))
+    table = wkbfit.levels(pot, MU, v=list(range(18)), order=1, ends="maslov")
     x = table.v + 0.5
     assert np.max(np.abs(table.energy - (WE * x - WEXE * x * x))) < 1e-5
 

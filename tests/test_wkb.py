@@ -115,7 +115,7 @@ def core_orbits(pot, mu, rot, binding):
 
 def test_morse_levels_equal_analytic_hcl():
     pot = hcl_morse()
-    t = wkbfit.levels(pot, HCL_MU)
+    t = wkbfit.levels(pot, HCL_MU, order=1, ends="maslov")
     G = HCL_WE * (t.v + 0.5) - HCL_WEXE * (t.v + 0.5) ** 2          # Morse 1929
     assert np.max(np.abs(t.energy - G)) < 1e-7
     # every bound level: v_max = floor(we/(2 wexe) - 1/2) (Morse 1929)
@@ -133,7 +133,7 @@ def test_morse_levels_equal_analytic_hcl():
 
 def test_morse_levels_unit_model():
     # De = 1000, a = 1, re = 2, eps = 1: E_v + De = -De + 2 sqrt(De)(v+1/2) - (v+1/2)^2 (Morse 1929)
-    t = wkbfit.levels(wkbfit.Morse(De=1000, re=2, a=1), C_U)
+    t = wkbfit.levels(wkbfit.Morse(De=1000, re=2, a=1), C_U, order=1, ends="maslov")
     exact = 2 * math.sqrt(1000) * (t.v + 0.5) - (t.v + 0.5) ** 2
     assert len(t) == 32
     assert np.max(np.abs(t.energy - exact)) < 1e-9
@@ -147,7 +147,7 @@ def test_harmonic_limit():
         wexe = we ** 2 / (4 * De)
         a = math.sqrt(wexe * mu / C_U)
         # a re > ln 2 keeps the Morse wall at r = 0 above the asymptote
-        t = wkbfit.levels(wkbfit.Morse(De=De, re=max(2.0, 3 / a), a=a), mu, v=list(range(11)))
+        t = wkbfit.levels(wkbfit.Morse(De=De, re=max(2.0, 3 / a), a=a), mu, v=list(range(11)), order=1, ends="maslov")
         harmonic = we * (t.v + 0.5)
         assert np.allclose(t.energy - harmonic, -wexe * (t.v + 0.5) ** 2, rtol=0, atol=1e-7 * De / 1e6)
         assert np.allclose(t.dEdv, we, rtol=25 * wexe / we)
@@ -182,7 +182,7 @@ def test_poschl_teller_levels():
     eps = C_U / mu
     U = eps * a ** 2 * lam * (lam - 1)
     pot = wkbfit.PoschlTeller(De=U, re=30.0, a=a)
-    t = wkbfit.levels(pot, mu)
+    t = wkbfit.levels(pot, mu, order=1, ends="maslov")
     n = t.v
     binding = eps * a ** 2 * (math.sqrt(lam * (lam - 1)) - n - 0.5) ** 2
     assert len(t) == math.ceil(math.sqrt(lam * (lam - 1)) - 0.5)
@@ -238,7 +238,7 @@ def mp_action(pot, mu, E):
 @pytest.mark.parametrize("De,re,mu", [(2e5, 1.0, C_U), (4000.0, 4.0, 20.0)])
 def test_last_levels_and_vD_against_mpmath(De, re, mu):
     pot = wkbfit.LennardJones(De=De, re=re)
-    t = wkbfit.levels(pot, mu)
+    t = wkbfit.levels(pot, mu, order=1, ends="maslov")
     I_top = mp_action(pot, mu, De)
     assert t.vD == pytest.approx(float(I_top / mp.pi) - 0.5, rel=1e-12, abs=1e-11)
     # the highest levels lie within 1e-6 De of the asymptote; each meets the quantization condition
@@ -271,21 +271,21 @@ def test_leroy_bernstein_limit():
 
 def test_rotation_hellmann_feynman_and_langer():
     pot, mu = hcl_morse(), HCL_MU
-    t0 = wkbfit.levels(pot, mu, v=[0, 5, 10], J=0)
-    t1 = wkbfit.levels(pot, mu, v=[0, 5, 10], J=1)
+    t0 = wkbfit.levels(pot, mu, v=[0, 5, 10], J=0, order=1, ends="maslov")
+    t1 = wkbfit.levels(pot, mu, v=[0, 5, 10], J=1, order=1, ends="maslov")
     # E(J=1) - E(J=0) = 2 Bv - 4 Dv, with Dv ~ 4 Bv^3/(dG/dv)^2 (the Kratzer relation, used per level as
     # common practice; it is good to ~10 % of Dv, i.e. ~1e-5 of Bv here)
     Dv = 4 * t0.Bv ** 3 / t0.dEdv ** 2
     assert np.allclose((t1.energy - t0.energy) / 2, t0.Bv - 2 * Dv, rtol=2e-5)
     assert not np.allclose((t1.energy - t0.energy) / 2, t0.Bv, rtol=2e-5)   # the Dv term is resolved
-    tl = wkbfit.levels(pot, mu, v=[0, 5, 10], J=0, langer=True)
+    tl = wkbfit.levels(pot, mu, v=[0, 5, 10], J=0, langer=True, order=1, ends="maslov")
     # the Langer form adds eps/(4 r^2): the levels move up by Bv/4 - Dv/16 (physics.md section 3)
     assert np.allclose(tl.energy - t0.energy, t0.Bv / 4 - Dv / 16, rtol=5e-6)
 
 
 def test_rotating_lj_levels_meet_quantization_with_scipy():
     pot, mu, J = wkbfit.LennardJones(De=2500.0, re=1.0), C_U, 3
-    t = wkbfit.levels(pot, mu, J=J)
+    t = wkbfit.levels(pot, mu, J=J, order=1, ends="maslov")
     for i in range(len(t)):
         A, T, *_ = scipy_orbit(pot, mu, J * (J + 1), t.binding_energy[i])
         assert abs(A - math.pi * (t.v[i] + 0.5)) / T < 1e-8  # energy residual, cm-1
@@ -294,25 +294,25 @@ def test_rotating_lj_levels_meet_quantization_with_scipy():
 @pytest.mark.parametrize("maslov", [(2, 1), (1, 2), (2, 2)])
 def test_maslov_indices(maslov):
     pot, mu = wkbfit.LennardJones(De=2500.0, re=1.0), C_U
-    t = wkbfit.levels(pot, mu, maslov=maslov)
+    t = wkbfit.levels(pot, mu, maslov=maslov, order=1, ends="maslov")
     phase = sum(maslov) / 4
     for i in (0, len(t) // 2, len(t) - 1):
         A, T, *_ = scipy_orbit(pot, mu, 0.0, t.binding_energy[i])
         assert abs(A - math.pi * (t.v[i] + phase)) / T < 1e-8
-    assert t.vD == pytest.approx(wkbfit.levels(pot, mu).vD + 0.5 - phase, rel=1e-12)
+    assert t.vD == pytest.approx(wkbfit.levels(pot, mu, order=1, ends="maslov").vD + 0.5 - phase, rel=1e-12)
 
 
 # ---------------------------------------------------------------- the table
 
 def test_level_table_selection_and_immutability():
     pot = hcl_morse()
-    full = wkbfit.levels(pot, HCL_MU)
-    some = wkbfit.levels(pot, HCL_MU, v=[3, 0, 7])
+    full = wkbfit.levels(pot, HCL_MU, order=1, ends="maslov")
+    some = wkbfit.levels(pot, HCL_MU, v=[3, 0, 7], order=1, ends="maslov")
     assert list(some.v) == [3, 0, 7]
     assert np.allclose(some.energy, full.energy[[3, 0, 7]], rtol=0, atol=1e-9)
     with pytest.raises(ValueError):
         full.energy[0] = 1.0
-    two = wkbfit.levels(pot, ("1H", "35Cl"), J=[0, 2])
+    two = wkbfit.levels(pot, ("1H", "35Cl"), J=[0, 2], order=1, ends="maslov")
     assert len(two) == 2 * len(full) and set(two.J) == {0, 2}
     assert "v" in full.to_text().splitlines()[1]
 
@@ -322,10 +322,10 @@ def test_level_table_selection_and_immutability():
 def test_bad_inputs_raise_clear_errors():
     pot = hcl_morse()
     with pytest.raises(ValueError, match=r"v=40 is above the last bound level \(v=27\).*binds 28 levels"):
-        wkbfit.levels(pot, HCL_MU, v=40)
+        wkbfit.levels(pot, HCL_MU, v=40, order=1, ends="maslov")
     for mu in (0, -1.0, float("nan"), float("inf")):
         with pytest.raises(ValueError, match="mu"):
-            wkbfit.levels(pot, mu)
+            wkbfit.levels(pot, mu, order=1, ends="maslov")
     with pytest.raises(ValueError, match="De=-5"):
         wkbfit.Morse(De=-5, re=1, a=1)
     with pytest.raises(ValueError, match="re=nan"):
@@ -335,18 +335,18 @@ def test_bad_inputs_raise_clear_errors():
     with pytest.raises(ValueError, match="m=2"):
         wkbfit.LennardJones(De=100, re=3, n=12, m=2)
     with pytest.raises(ValueError, match="v=-1"):
-        wkbfit.levels(pot, HCL_MU, v=-1)
+        wkbfit.levels(pot, HCL_MU, v=-1, order=1, ends="maslov")
     with pytest.raises(ValueError, match="J=-2"):
-        wkbfit.levels(pot, HCL_MU, J=-2)
+        wkbfit.levels(pot, HCL_MU, J=-2, order=1, ends="maslov")
     with pytest.raises(ValueError, match="maslov"):
-        wkbfit.levels(pot, HCL_MU, maslov=(1, 3))
+        wkbfit.levels(pot, HCL_MU, maslov=(1, 3), order=1, ends="maslov")
     with pytest.raises(ValueError, match="method"):
         wkbfit.levels(pot, HCL_MU, method="magic")
     with pytest.raises(ValueError, match="potential"):
-        wkbfit.levels("morse", HCL_MU)
+        wkbfit.levels("morse", HCL_MU, order=1, ends="maslov")
     # rotation so fast that the centrifugal term removes the well
     with pytest.raises(ValueError, match="no well"):
-        wkbfit.levels(wkbfit.LennardJones(De=100.0, re=3.0), 1.0, J=400)
+        wkbfit.levels(wkbfit.LennardJones(De=100.0, re=3.0), 1.0, J=400, order=1, ends="maslov")
 
 
 def test_second_well_is_reported():
@@ -356,7 +356,7 @@ def test_second_well_is_reported():
     V = base - 3000.0 * np.exp(-((r - 4.5) / 0.5) ** 2)
     pot = wkbfit.PointwisePotential(r, V, asymptote=5000.0, tail_power=6)
     with pytest.raises(ValueError, match="more than two turning points|barrier"):
-        wkbfit.levels(pot, 10.0)
+        wkbfit.levels(pot, 10.0, order=1, ends="maslov")
 
 
 # ---------------------------------------------------------------- second-order (Dunham) term
@@ -378,8 +378,8 @@ def test_second_order_term_against_scipy_dvr():
     pot, mu = wkbfit.LennardJones(De=2500.0, re=1.0), C_U
     exact = sinc_dvr_levels(lambda r: 2500.0 * (r ** -12.0 - 2 * r ** -6.0), 0.75, 14.0, 0.008, 11, 1.0) + 2500.0
     assert exact[0] - 2500 == pytest.approx(-2210.420515049, abs=1e-6)
-    t1 = wkbfit.levels(pot, mu, v=list(range(11)))
-    t2 = wkbfit.levels(pot, mu, v=list(range(11)), order=2)
+    t1 = wkbfit.levels(pot, mu, v=list(range(11)), order=1, ends="maslov")
+    t2 = wkbfit.levels(pot, mu, v=list(range(11)), order=2, ends="maslov")
     err1, err2 = t1.energy - exact, t2.energy - exact
     # first order is off by -0.84 .. -0.10 cm-1; the second-order term removes all but ~2e-4 .. 1e-3
     assert np.all(err1 < -0.09) and np.all(err1 > -0.85)
@@ -390,7 +390,7 @@ def test_second_order_term_against_scipy_dvr():
 
 def test_second_order_term_vanishes_for_morse():
     # the Dunham correction is zero for a Morse potential (Dunham 1932), so order 2 keeps the exact levels
-    t = wkbfit.levels(wkbfit.Morse(De=1000, re=2, a=1), C_U, v=list(range(25)), order=2)
+    t = wkbfit.levels(wkbfit.Morse(De=1000, re=2, a=1), C_U, v=list(range(25)), order=2, ends="maslov")
     exact = 2 * math.sqrt(1000) * (t.v + 0.5) - (t.v + 0.5) ** 2
     assert np.max(np.abs(t.energy - exact)) < 1e-8
 
@@ -411,12 +411,12 @@ def test_two_threads_give_the_serial_results():
     # the core keeps no global state and releases the GIL: concurrent calls must not interfere
     import threading
     pots = [(hcl_morse(), HCL_MU), (wkbfit.LennardJones(De=4000.0, re=4.0), 20.0)]
-    serial = [wkbfit.levels(p, mu, J=[0, 7]).energy for p, mu in pots]
+    serial = [wkbfit.levels(p, mu, J=[0, 7], order=1, ends="maslov").energy for p, mu in pots]
     results = [[None] * 20 for _ in pots]
 
     def work(k):
         for i in range(20):
-            results[k][i] = wkbfit.levels(pots[k][0], pots[k][1], J=[0, 7]).energy
+            results[k][i] = wkbfit.levels(pots[k][0], pots[k][1], J=[0, 7], order=1, ends="maslov").energy
 
     threads = [threading.Thread(target=work, args=(k,)) for k in range(2)]
     for t in threads:

@@ -171,15 +171,18 @@ def _cmd_levels(args, out):
     mu = args.mu if args.mu is not None else args.isotopologue
     Js = _int_list(args.J, "-J")
     vs = None if args.v is None else _int_list(args.v, "-v", _validate.MAX_LEVELS)
-    if args.method == "exact" and args.order != 1:
-        raise UserError("--order applies to --method wkb only")
-    order = {"order": args.order} if args.method == "wkb" else {}
-    table = levels(pot, mu, v=vs, J=Js if len(Js) > 1 else Js[0], method=args.method, langer=args.langer, **order)
+    rule = {}
+    if args.method == "wkb":
+        rule = dict(order=args.order, ends=args.ends, langer=args.langer)
+    elif args.order is not None or args.ends is not None or args.langer:
+        raise UserError("--order, --ends and --langer apply to --method wkb only")
+    table = levels(pot, mu, v=vs, J=Js if len(Js) > 1 else Js[0], method=args.method, **rule)
     if args.csv:
         cols = table.columns
         print(",".join(cols), file=out)
         for i in range(len(table)):
-            print(",".join(repr(getattr(table, c)[i].item()) for c in cols), file=out)
+            print(",".join(repr(getattr(table, c)[i]) if c == "rule" else repr(getattr(table, c)[i].item())
+                           for c in cols), file=out)
     else:
         if args.isotopologue is not None:
             print("isotopologue %s" % args.isotopologue, file=out)
@@ -427,11 +430,14 @@ def _parser():
                                            "(default 0)")
     p.add_argument("-v", default=None, help="vibrational level(s) to list (default: every bound level)")
     p.add_argument("--method", choices=("wkb", "exact"), default="wkb",
-                   help="wkb (first-order semiclassical, default) or exact (radial Schroedinger equation)")
-    p.add_argument("--langer", action="store_true", help="use (J+1/2)^2 for the centrifugal term (WKB only)")
+                   help="wkb (semiclassical, default) or exact (radial Schroedinger equation)")
+    p.add_argument("--order", type=int, choices=(1, 2), default=None,
+                   help="WKB order: 2 (default) with the second-order term, 1 first order (with --ends maslov)")
+    p.add_argument("--ends", choices=("matched", "maslov"), default=None,
+                   help="WKB end phases: matched (default; right up to dissociation) or maslov (fixed phases)")
+    p.add_argument("--langer", action="store_true",
+                   help="use (J+1/2)^2 for the centrifugal term (WKB with fixed end phases only)")
     p.add_argument("--csv", action="store_true", help="print comma-separated values instead of a table")
-    p.add_argument("--order", type=int, choices=(1, 2), default=1,
-                   help="WKB order: 1 (default) or 2 (with the second-order term)")
     p.set_defaults(run=_cmd_levels)
 
     def data_options(p):

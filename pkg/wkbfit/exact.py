@@ -219,19 +219,22 @@ class WKBComparison:
         return "<WKBComparison: %d levels, mu=%.8g u>" % (len(self), self.mu)
 
 
-def compare_wkb_exact(potential, mu, J=0, v=None, *, order=1, tolerance=DEFAULT_TOLERANCE):
+def compare_wkb_exact(potential, mu, J=0, v=None, *, order=None, ends=None, maslov=None, langer=False,
+                      tolerance=DEFAULT_TOLERANCE):
     """WKB minus exact energy for every level bound in both (or the levels v), at each J.
 
-    order: 1 for first-order WKB, 2 with the second-order (Dunham) term (see `levels`).
+    order, ends, maslov, langer: the WKB rule, as in `levels` (default: second order with matched ends;
+    order=1, ends="maslov" is the textbook first-order rule).
     Returns a `WKBComparison`; `str()` of it is a plain-text table, and
     `to_text(uncertainty=0.01)` marks the levels where WKB is within that uncertainty.
     """
     _check_potential(potential)
     mu = as_reduced_mass(mu)
-    wkb = _levels(potential, mu, v=v, J=J, method="wkb", order=order)
+    wkb = _levels(potential, mu, v=v, J=J, method="wkb", order=order, ends=ends, maslov=maslov, langer=langer)
     exact = exact_levels(potential, mu, None if v is None else _ints(v, "v"), _ints(J, "J"), tolerance=tolerance)
     comparison = WKBComparison(wkb, exact, potential, mu)
-    comparison.order = order
+    comparison.order = 2 if order is None else order
+    comparison.ends = wkb.method
     return comparison
 
 

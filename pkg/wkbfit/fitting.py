@@ -895,12 +895,15 @@ class FitResult:
                 grad[k] = (vals[0] - vals[1]) / (2 * h)
         return grad
 
-    def predict(self, isotopologue=None, mu=None, J=0):
+    def predict(self, isotopologue=None, mu=None, J=0, *, order=None, ends=None):
         """Every bound level of the fitted potential with propagated one-sigma uncertainties.
 
         isotopologue: a label (its fitted reduced mass, or one from the mass table); mu: a
         reduced mass in u (or a pair of isotopes); with neither, the fit's only isotopologue.
         J: rotational quantum number (integer >= 0).
+        order, ends: for a WKB fit, the level rule of the predicted energies as in `levels` (for example
+        order=2, ends="matched" for levels right up to dissociation); by default the fit's own first-order
+        rule. The uncertainties always use the first-order gradients dE/dp.
         Uncertainties come from the covariance and the Jacobian dE/dp (linear propagation), with
         each level's method error (`method_error`: |WKB - exact| for method "wkb", the exact
         solver's error estimate otherwise) added in quadrature. Levels are exact levels unless the
@@ -919,6 +922,18 @@ class FitResult:
         code = _level_code(self.method)
         res = _core.fit_levels(model, params, curve, mass, float(J * (J + 1) - omega * omega), code)
         E, G = res["energy"], res["jacobian"]
+        rule_note = None
+        if order is not None or ends is not None:
+            if self.method != "wkb":
+                raise ValueError("order= and ends= apply to a WKB fit only; this fit used method=%r"
+                                 % (self.method,))
+            from .levels import levels as _levels
+            table = _levels(self.potential, mass, J=J, order=order, ends=ends)
+            n = min(len(table), len(E))
+            E, G = np.array(table.energy[:n]), G[:n]
+            rule_note = ("levels from the %s rule of the fitted potential (%d bound; the fit's first-order rule "
+                         "binds %d); uncertainties from first-order gradients" % (table.method, len(table),
+                                                                                 len(res["energy"])))
         asym, dA = res["asymptote"], self._asymptote_gradient()
         if J == omega:
             E00, G00 = (E[0], G[0]) if len(E) else (math.nan, np.full(len(dA), math.nan))
@@ -933,7 +948,9 @@ class FitResult:
         if getattr(self, "correction", None) is not None:
             notes.append("levels of the reference isotopologue's potential (%s): the Born-Oppenheimer corrections "
                          "of other isotopologues are not applied to predictions" % self.correction.reference)
-        if self.method == "wkb":
+        if rule_note:
+            notes.append(rule_note)
+        elif self.method == "wkb":
             notes.append("levels are first-order WKB levels of the fitted potential")
         else:
             notes.append("levels are exact levels of the fitted potential (radial Schroedinger equation); vD and "

@@ -3,6 +3,7 @@
 `levels(potential, mu, v=None, J=0)` returns a `LevelTable`. The loop over levels runs in C:
 each call crosses into the core once per J value with whole arrays.
 """
+import functools
 import math
 import warnings
 
@@ -16,10 +17,15 @@ from .coverage import check_levels
 __all__ = ["LevelTable", "levels"]
 
 _COLUMNS = ("v", "J", "energy", "binding_energy", "inner_turning_point", "outer_turning_point",
-            "Bv", "dEdv", "error")
+            "Bv", "dEdv", "error", "method_error", "rule")
 
 _UNITS = {"v": "", "J": "", "energy": "cm-1", "binding_energy": "cm-1", "inner_turning_point": "A",
-          "outer_turning_point": "A", "Bv": "cm-1", "dEdv": "cm-1", "error": "cm-1"}
+          "outer_turning_point": "A", "Bv": "cm-1", "dEdv": "cm-1", "error": "cm-1", "method_error": "cm-1",
+          "rule": ""}
+
+#: the rule behind each level (the `rule` column holds these names)
+RULES = {1: "first-order", 2: "second-order", 3: "matched", 4: "exact-phase", 5: "exact"}
+_RULE_CODES = {name: code for code, name in RULES.items()}
 
 _DESCRIPTIONS = {
     "v": "vibrational quantum number",
@@ -31,6 +37,10 @@ _DESCRIPTIONS = {
     "Bv": "rotational constant: average of hbar^2/(2 mu r^2) over the level",
     "dEdv": "local level spacing dE/dv (classical vibrational quantum)",
     "error": "estimated numerical error of the energy (not the semiclassical error)",
+    "method_error": "estimated |E - E_exact| of the rule that produced the level (first order, second order, "
+                    "matched, exact), numerical error included",
+    "rule": "rule that produced the level: first-order, second-order, matched (exact outer end joined to "
+            "second-order WKB), exact-phase (exact phase across the well) or exact",
 }
 
 # Quasibound levels (levels(..., quasibound=True), quasibound.py). Bound rows: quasibound False, width 0,
@@ -63,10 +73,25 @@ class LevelTable:
     number at the dissociation limit (None where it is not defined).
     """
 
-    def __init__(self, columns, *, mu, method, potential, vD=None, notes=()):
+    def __init__(self, columns, *, mu, method, potential, vD=None, notes=(), v_th=None, method_error=None):
         n = len(columns["v"])
+        columns = dict(columns)
+        if columns.get("rule") is None:
+            columns["rule"] = np.full(n, "exact" if method == "exact" else "", dtype=object)
+        self._method_error_source = method_error if callable(method_error) else None
+        if method_error is not None and not callable(method_error):
+            columns["method_error"] = method_error
+        elif method_error is None and method == "exact" and columns.get("method_error") is None:
+            columns["method_error"] = columns.get("error")
         for name in _COLUMNS:
+            if name == "method_error" and self._method_error_source is not None:
+                continue
             col = columns.get(name)
+            if name == "rule":
+                col = np.asarray(np.full(n, "", dtype=object) if col is None else col, dtype=object)
+                col.setflags(write=False)
+                self.rule = col
+                continue
             if col is None:
                 col = np.full(n, _DEFAULTS.get(name, np.nan))
             dtype = _INT if name in ("v", "J") else np.dtype(bool) if name in _BOOL_COLUMNS else _FLOAT
@@ -80,7 +105,27 @@ class LevelTable:
         self.method = method
         self.potential = potential
         self.vD_by_J = dict(vD or {})
+        self.v_th_by_J = dict(v_th or {})
         self.notes = list(notes)
+
+    def __getattr__(self, name):
+        # method_error is computed on first use where it needs a more accurate calculation
+        if name == "method_error" and self.__dict__.get("_method_error_source") is not None:
+            col = np.asarray(self._method_error_source(self), dtype=float)
+            col.setflags(write=False)
+            self.method_error = col
+            self._method_error_source = None
+            return col
+        raise AttributeError(name)
+
+    @property
+    def v_th(self):
+        """Quantum threshold number from the matched rule at the asymptote (levels v < v_th are bound):
+        a float for a single-J table, else a dict by J; None where it was not computed (first-order or
+        second-order tables with fixed end phases, exact tables)."""
+        if len(self.v_th_by_J) == 1:
+            return next(iter(self.v_th_by_J.values()))
+        return dict(self.v_th_by_J) if self.v_th_by_J else None
 
     @property
     def vD(self):
@@ -116,7 +161,7 @@ class LevelTable:
         return int(idx[0])
 
     def to_dict(self):
-        return {c: getattr(self, c).tolist() for c in _COLUMNS}
+        return {c: list(getattr(self, c)) if c == "rule" else getattr(self, c).tolist() for c in _COLUMNS}
 
     def to_dataframe(self):
         from ._optional import pandas
@@ -179,8 +224,11 @@ def _as_int_list_unchecked(x, name):
     return out
 
 
-def levels(potential, mu, v=None, J=0, method="wkb", *, order=1, langer=False, maslov=(1, 1), quasibound=False,
-           quasibound_rule=None, width_form="uniform", max_levels=_validate.MAX_LEVELS,
+_ENDS = ("matched", "maslov")
+
+
+def levels(potential, mu, v=None, J=0, method="wkb", *, order=None, ends=None, langer=False, maslov=None,
+           quasibound=False, quasibound_rule=None, width_form="uniform", max_levels=_validate.MAX_LEVELS,
            max_J_values=_validate.MAX_J_VALUES):
     """Levels of `potential` for reduced mass `mu`.
 
@@ -188,13 +236,17 @@ def levels(potential, mu, v=None, J=0, method="wkb", *, order=1, langer=False, m
     mu: reduced mass in u, or a pair of isotope labels/masses such as ("7Li", "133Cs").
     v: None for every bound level, or an integer / list of integers.
     J: rotational quantum number(s); the centrifugal term is J(J+1) hbar^2/(2 mu r^2)
-       (or (J+1/2)^2 with langer=True, first-order WKB only).
-    method: "wkb" (semiclassical quantization; see `order` and `maslov`) or "exact"
-       (the radial Schroedinger equation solved numerically).
-    order: 1 for first-order WKB, 2 to add the second-order (Dunham) term, which removes most of the
-       first-order error except close to dissociation, where it is not valid. The number of bound
-       levels and vD are always first-order values.
-    maslov: Maslov indices (inner, outer): 1 for a smooth turning point, 2 for a hard wall.
+       (or (J+1/2)^2 with langer=True, fixed end phases only).
+    method: "wkb" (semiclassical quantization; see `order` and `ends`) or "exact"
+       (the radial Schroedinger equation solved numerically; order, ends and maslov do not apply).
+    order: 2 (default) adds the second-order (Dunham) term to first-order WKB; 1 is first order.
+    ends: "matched" (default) reads the end phases off an exact solution through the outer turning
+       region joined to second-order WKB (levels right up to dissociation; the number of bound levels is
+       then the matched count, v < v_th); second order with fixed phases is kept where the outer turning
+       point is nearly linear, and wells too quantal for second order (light molecules) get the exact
+       phase across the well. "maslov" keeps the fixed phases of `maslov` (the textbook rule with
+       order=1). Giving `maslov` or langer=True selects ends="maslov" unless ends is given.
+    maslov: Maslov indices (inner, outer) for ends="maslov": 1 for a smooth turning point, 2 for a hard wall.
     max_levels, max_J_values: work limits (levels computed, J values in one call); a call that
        would exceed one is refused at once with a ValueError. Raise them for longer work.
     quasibound: also return the levels between the asymptote and the top of the barrier of
@@ -204,11 +256,15 @@ def levels(potential, mu, v=None, J=0, method="wkb", *, order=1, langer=False, m
        is "second_order_barrier" (second order plus the barrier-phase remainder, the best on test) whatever
        `order` the bound levels use; "first_order" and "second_order" are the plain rules.
     width_form: "uniform" (ln(1 + exp(-2 theta)), default) or "kemble" (1/(1 + exp(2 theta))).
+
+    The table's `method_error` column estimates |E - E_exact| of the rule used for each level, `rule`
+    names that rule, `vD` is the first-order quantum number at dissociation and `v_th` (matched ends)
+    the quantum threshold number.
     """
     if quasibound:
         from .quasibound import levels_with_quasibound
-        return levels_with_quasibound(potential, mu, v, J, method, order=order, langer=langer, maslov=maslov,
-                                      rule=quasibound_rule, width_form=width_form)
+        return levels_with_quasibound(potential, mu, v, J, method, order=order, ends=ends, langer=langer,
+                                      maslov=maslov, rule=quasibound_rule, width_form=width_form)
     if not isinstance(potential, Potential):
         raise ValueError("potential must be a wkbfit potential object (Morse, LennardJones, ...), got %r"
                          % (potential,))
@@ -223,112 +279,213 @@ def levels(potential, mu, v=None, J=0, method="wkb", *, order=1, langer=False, m
         _validate.work_limit(len(vs) * len(Js), max_levels, "levels", "max_levels", "give fewer v or J values")
     langer = _validate.flag(langer, "langer")
     if method == "wkb":
-        order = _validate.integer(order, "order", 1, 2,
-                                  "1 (first-order WKB) or 2 (with the second-order term)")
-        maslov = _validate.maslov_pair(maslov)
-        return _wkb_levels(potential, mu, vs, Js, langer, maslov, order, max_levels)
+        if ends is None:
+            ends = "maslov" if (maslov is not None or langer) else "matched"
+        if ends not in _ENDS:
+            raise ValueError("ends=%r is invalid: use 'matched' (end phases from an exact solution, right near "
+                             "dissociation) or 'maslov' (fixed phases)" % (ends,))
+        order = 2 if order is None else _validate.integer(order, "order", 1, 2,
+                                                          "1 (first-order WKB) or 2 (with the second-order term)")
+        maslov = (1, 1) if maslov is None else _validate.maslov_pair(maslov)
+        if ends == "matched":
+            if order != 2:
+                raise ValueError("order=1 with ends='matched' is not defined: the matched rule is second order; "
+                                 "use order=2, or order=1 with ends='maslov' for the textbook rule")
+            if maslov != (1, 1):
+                raise ValueError("maslov=%r needs ends='maslov': the matched rule treats smooth turning points; "
+                                 "hard walls have fixed phases" % (maslov,))
+            if langer:
+                raise ValueError("langer=True needs ends='maslov': the matched rule uses the true J(J+1)")
+        return _wkb_levels(potential, mu, vs, Js, langer, maslov, order, ends, max_levels)
     if method == "exact":
         exact_levels = SOLVERS.get("exact")
         if exact_levels is None:
             raise ValueError("method='exact' needs the exact radial solver: import wkbfit (or wkbfit.exact) first")
+        given = [name for name, val in (("order", order), ("ends", ends), ("maslov", maslov)) if val is not None]
+        if given:
+            raise ValueError("%s= applies to method='wkb' only: the exact solver has no order or end phases "
+                             "(leave it out)" % "=, ".join(given))
         if langer:
             raise ValueError("langer=True applies to WKB only; the exact solver uses J(J+1)")
         return exact_levels(potential, mu, vs, Js, max_levels=max_levels)
     raise ValueError("method=%r is not known; use 'wkb' or 'exact'" % (method,))
 
 
-def _wkb_levels(potential, mu, vs, Js, langer, maslov, order=1, max_levels=_validate.MAX_LEVELS):
-    try:
-        m_in, m_out = (int(m) for m in maslov)
-    except (TypeError, ValueError):
-        raise ValueError("maslov must be a pair (inner, outer) of 1 (smooth) or 2 (hard wall); got %r"
-                         % (maslov,)) from None
-    if m_in not in (1, 2) or m_out not in (1, 2):
-        raise ValueError("maslov=%r is invalid: each index is 1 (smooth turning point) or 2 (hard wall)"
-                         % (maslov,))
+def _core_levels(potential, mu, vs, Js, rot, m_in, m_out, order, ends, **kw):
+    """One crossing into the core for every rotational factor in `rot`; a failure names the first J."""
     model, params, curve = potential._core_args()
-    # plain lists: the core converts them (cheaper than NumPy arrays for the common one-J call)
-    v_arr = None if vs is None else vs
-    rot = [(j + 0.5) ** 2 if langer else float(j * (j + 1)) for j in Js]
-    # one crossing into the core for every J
     try:
-        cols = _core.wkb_levels(model, params, curve, mu, rot, v_arr, m_in, m_out, order=order,
-                                max_levels=max_levels)
+        return _core.wkb_levels(model, params, curve, mu, rot, vs, m_in, m_out, order=order,
+                                ends=1 if ends == "matched" else 0, **kw)
+    except ValueError as exc:
+        if len(Js) > 1 and "rotation" in str(exc):
+            for J in Js:
+                try:
+                    _core.wkb_levels(model, params, curve, mu, float(J * (J + 1)), [], m_in, m_out)
+                except ValueError:
+                    raise ValueError("J=%d: %s" % (J, exc)) from None
+        elif Js[0] > 0 and not str(exc).startswith("J="):
+            raise ValueError("J=%d: %s" % (Js[0], exc)) from None
+        raise
+
+
+def _wkb_levels(potential, mu, vs, Js, langer, maslov, order=1, ends="maslov", max_levels=_validate.MAX_LEVELS):
+    m_in, m_out = maslov
+    # plain lists: the core converts them (cheaper than NumPy arrays for the common one-J call)
+    rot = [(j + 0.5) ** 2 if langer else float(j * (j + 1)) for j in Js]
+    try:
+        cols = _core_levels(potential, mu, vs, Js, rot, m_in, m_out, order, ends, max_levels=max_levels)
     except (RuntimeError, ValueError) as exc:
-        # the second-order rule fails for some level (typically close to dissociation, where it is not
-        # valid): keep the levels that succeed instead of failing the whole table
+        # a level search fails (typically close to dissociation, or a second-order level where that rule
+        # is not valid): keep the levels that succeed instead of failing the whole table
         cols = None
-        if (order == 2 or isinstance(exc, RuntimeError)) and "max_levels=" not in str(exc):
-            # (first order too: a level search that does not converge in the sweep fails alone)
-            cols = _second_order_by_level(model, params, curve, mu, rot, vs, m_in, m_out, Js, exc, order)
+        if "max_levels=" not in str(exc):
+            cols = _levels_one_by_one(potential, mu, rot, vs, m_in, m_out, Js, order, ends)
         if cols is None:
-            if isinstance(exc, RuntimeError):
-                raise
-            _name_failing_J(exc, Js, model, params, curve, mu, m_in, m_out)
+            raise
     _check_levels(cols, Js)
     cols["J"] = np.full(len(cols["v"]), Js[0]) if len(Js) == 1 else np.asarray(Js)[cols["rot_index"]]
+    cols["rule"] = np.array([RULES[int(c)] for c in cols.pop("rule")], dtype=object)
+    if potential.model == "pointwise" and len(cols["v"]):
+        # a piecewise cubic makes the quadrature converge only algebraically: the rule with twice the
+        # nodes bounds the error of the reported energies
+        try:
+            fine = _core_levels(potential, mu, vs, Js, rot, m_in, m_out, order, ends, nodes=64)
+        except (RuntimeError, ValueError):
+            fine = None
+        if fine is not None:
+            n = min(len(fine["energy"]), len(cols["energy"]))
+            diff = np.zeros(len(cols["energy"]))
+            diff[:n] = np.abs(fine["energy"][:n] - cols["energy"][:n])
+            cols["error"] = cols["error"] + 2 * diff
     vD = {J: (None if math.isnan(x) else float(x)) for J, x in zip(Js, np.atleast_1d(cols["vD"]))}
-    table = LevelTable(cols, mu=mu, method="wkb" if order == 1 else "wkb2", potential=potential, vD=vD,
+    v_th = None
+    if ends == "matched":
+        v_th = {J: (None if math.isnan(x) else float(x)) for J, x in zip(Js, np.atleast_1d(cols["v_th"]))}
+    method = "wkb" if (order == 1 and ends == "maslov") else "wkb2" if ends == "maslov" else "wkb-matched"
+    estimate = functools.partial(_method_error, potential=potential, mu=mu, rot=rot, Js=Js, maslov=(m_in, m_out),
+                                 langer=langer, order=order, ends=ends, cols=cols)
+    table = LevelTable(cols, mu=mu, method=method, potential=potential, vD=vD, v_th=v_th, method_error=estimate,
                        notes=cols.get("notes", ()))
     check_levels(table)  # levels reaching beyond a point-wise curve's points
     return table
 
 
-def _name_failing_J(exc, Js, model, params, curve, mu, m_in, m_out):
-    """Re-raises a level error with the first J that fails named."""
-    if len(Js) > 1 and "rotation" in str(exc):
-        for J in Js:
-            try:
-                _core.wkb_levels(model, params, curve, mu, float(J * (J + 1)), np.empty(0, np.intc), m_in, m_out)
-            except ValueError:
-                raise ValueError("J=%d: %s" % (J, exc)) from None
-    elif Js[0] > 0:
-        raise ValueError("J=%d: %s" % (Js[0], exc)) from None
-    raise exc
-
-
-def _second_order_by_level(model, params, curve, mu, rot, vs, m_in, m_out, Js, first_error, order=2):
-    """Second-order levels one at a time after a failure of the whole table: the levels whose
-    second-order rule fails are left out, named in the table's notes and in a warning. A level the
-    caller asked for by number (v given) is not left out silently: that raises a ValueError."""
-    rot1 = np.atleast_1d(rot)
+def _levels_one_by_one(potential, mu, rot, vs, m_in, m_out, Js, order, ends):
+    """The levels one at a time after a failure of the whole table: the levels whose rule fails are
+    left out, named in the table's notes and in a warning. A level the caller asked for by number (v
+    given) is not left out silently: that raises a ValueError."""
     try:
-        if order == 2:
-            first = _core.wkb_levels(model, params, curve, mu, rot1, None if vs is None else
-                                     np.asarray(vs, dtype=np.intc), m_in, m_out, order=1)
-            pairs = list(zip(first["rot_index"].tolist(), first["v"].tolist()))
-        else:
-            first = _core.wkb_levels(model, params, curve, mu, rot1, np.empty(0, np.intc), m_in, m_out)
-            counts = np.atleast_1d(first["count"]).tolist()
-            pairs = [(k, v) for k in range(len(rot1)) for v in (range(counts[k]) if vs is None else vs)]
+        first = _core_levels(potential, mu, [], Js, rot, m_in, m_out, order, ends)
     except (RuntimeError, ValueError):
         return None  # not a failure of single levels: the table cannot be set up at all
+    counts = np.atleast_1d(first["count"]).tolist()
+    pairs = [(k, v) for k in range(len(rot)) for v in (range(counts[k]) if vs is None else vs)]
     failed = []
     rows = {k: [] for k in ("v", "energy", "binding_energy", "inner_turning_point", "outer_turning_point", "Bv",
-                            "dEdv", "error", "rot_index")}
+                            "dEdv", "error", "rule", "rot_index")}
+    rule_name = "first-order WKB" if order == 1 else "second-order WKB" if ends == "maslov" else "the matched rule"
     for k, v in pairs:
-        k, v = int(k), int(v)
         try:
-            one = _core.wkb_levels(model, params, curve, mu, float(rot1[k]),
-                                   np.array([v], dtype=np.intc), m_in, m_out, order=order)
+            one = _core_levels(potential, mu, [int(v)], [Js[k]], float(rot[k]), m_in, m_out, order, ends)
         except (RuntimeError, ValueError) as exc:
             failed.append("v=%d, J=%d (%s)" % (v, Js[k], exc))
             if vs is not None:
                 raise ValueError("%s, level v=%d, J=%d: %s; %s" % (
-                "second order" if order == 2 else "first-order WKB", v, Js[k], exc,
-                "use order=1 for it, or leave it out of v" if order == 2 else
-                "leave it out of v, or use method='exact'")) from None
+                    rule_name, v, Js[k], exc, "leave it out of v, or use method='exact'")) from None
             continue
         for c in rows:
             rows[c].append(k if c == "rot_index" else one[c][0])
-    cols = {c: np.asarray(x, dtype=np.intp if c == "rot_index" else float) for c, x in rows.items()}
+    cols = {c: np.asarray(x, dtype=np.intp if c in ("rot_index", "rule") else float) for c, x in rows.items()}
+    cols["v"] = cols["v"].astype(int)
     cols["vD"] = np.atleast_1d(first["vD"])
+    if "v_th" in first:
+        cols["v_th"] = np.atleast_1d(first["v_th"])
+    cols["count"] = first["count"]
     if failed:
-        note = "%s WKB failed for %d level(s), left out: %s" % (
-            "second-order" if order == 2 else "first-order", len(failed), "; ".join(failed))
+        note = "%s failed for %d level(s), left out: %s" % (rule_name, len(failed), "; ".join(failed))
         warnings.warn(note, RuntimeWarning, stacklevel=4)
         cols["notes"] = [note]
     return cols
+
+
+def _method_error(table, *, potential, mu, rot, Js, maslov, langer, order, ends, cols):
+    """|E - E_exact| estimates (computed on first use of table.method_error).
+
+    Matched levels: twice the change when the matching point moves from f = 0.5 to f = 0.7 of the level's
+    height above the minimum (the neglected higher-order terms at the matching point), plus the inner
+    second-order part and twice the true error of the lowest matched level against the exact phase (as a
+    fraction of the spacing), plus the numerical error. Second-order levels of the matched table: the
+    largest (E2 - E1)^2/(dE/dv) over the well (the next term of a series in hbar^2 that behaves
+    geometrically, common practice) plus twice the larger true error of the lowest and highest
+    second-order levels against the exact phase. Exact-phase levels: the
+    numerical error. Fixed-phase tables (first order, second order, hard walls, Langer): the distance to
+    the matched levels of the same well plus their estimate (the matched rule is the more exact method).
+    """
+    n = len(table)
+    out = np.array(table.error, dtype=float)
+    if n == 0:
+        return out
+    if ends == "matched":
+        out = _matched_method_error(table, out, potential, mu, rot, Js, cols)
+        # an inner wall of finite height (lower than the asymptote, as for Poeschl-Teller): within a few
+        # spacings of its top (five, measured) the levels feel r -> 0, which no rule here resolves reliably
+        asymptote = float(table.energy[0] + table.binding_energy[0])
+        wall = float(potential(np.array([1e-3 * np.min(table.inner_turning_point)]))[0])
+        if wall < asymptote:
+            out[table.energy > wall - 5 * table.dEdv] = np.inf
+        return out
+    return _fixed_method_error(table, out, potential, mu, Js, maslov, langer)
+
+
+def _matched_method_error(table, out, potential, mu, rot, Js, cols):
+    rules = table.rule
+    for k, J in enumerate(Js):
+        rows = np.nonzero(cols["rot_index"] == k)[0]
+        sec = rows[rules[rows] == "second-order"]
+        inner = 0.0  # second-order phase error per unit spacing (the inner end of matched levels)
+        if len(sec):
+            first = _core_levels(potential, mu, list(table.v[sec]), [J], float(rot[k]), 1, 1, 1, "maslov")
+            # the envelope over the well: E2 - E1 passes through zero where the second-order term
+            # changes sign, the higher-order terms need not
+            rel = (table.energy[sec] - first["energy"]) ** 2 / table.dEdv[sec] ** 2
+            # anchors: the true error of the lowest and highest second-order level against the exact
+            # phase (the error grows towards the ends of the second-order range: the quantal bottom and
+            # the increasingly non-linear outer turning point), as a fraction of the spacing
+            ends_ = sec[[0, -1]]
+            anchor = _core_levels(potential, mu, list(table.v[ends_]), [J], float(rot[k]), 1, 1, 2, "matched",
+                                  match_rule=4)
+            a_err = np.abs(anchor["energy"] - table.energy[ends_])
+            inner = max(np.max(rel), np.max(a_err / table.dEdv[ends_]))
+            out[sec] += np.max(rel * table.dEdv[sec]) + 2 * np.max(a_err)
+        mat = rows[rules[rows] == "matched"]
+        if len(mat):
+            other = _core_levels(potential, mu, list(table.v[mat]), [J], float(rot[k]), 1, 1, 2, "matched",
+                                 match_fraction=0.7)
+            lowest = mat[:1]
+            anchor = _core_levels(potential, mu, list(table.v[lowest]), [J], float(rot[k]), 1, 1, 2, "matched",
+                                  match_rule=4)
+            m_rel = abs(anchor["energy"][0] - table.energy[lowest[0]]) / table.dEdv[lowest[0]]
+            out[mat] += (2 * np.abs(other["energy"] - table.energy[mat]) + inner * table.dEdv[mat]
+                         + 2 * m_rel * table.dEdv[mat])
+    return out
+
+
+def _fixed_method_error(table, out, potential, mu, Js, maslov, langer):
+    # fixed phases: compare with the matched rule where that applies (smooth ends, true J(J+1))
+    n = len(table)
+    if tuple(maslov) != (1, 1) or langer:
+        return np.full(n, np.nan)
+    ref = levels(potential, mu, v=None, J=list(Js))
+    ref_err = ref.method_error
+    for i in range(n):
+        hit = np.nonzero((ref.v == table.v[i]) & (ref.J == table.J[i]))[0]
+        if len(hit):
+            j = hit[0]
+            out[i] += abs(table.energy[i] - ref.energy[j]) + ref_err[j]
+        else:
+            out[i] = np.inf  # bound here but not by the matched rule: the level itself is spurious
+    return out
 
 
 def _check_levels(cols, Js):

@@ -127,12 +127,13 @@ def exact_resonances(potential, mu, J, energy, width, *, phase_step=0.06, r_matc
     return res
 
 
-def _bound_levels(potential, mu, Js, method, order):
+def _bound_levels(potential, mu, Js, method, order, ends=None):
     """The bound levels of every J; a J whose well lies wholly above the asymptote (high J) has none."""
     from .levels import LevelTable, _COLUMNS, levels as _levels
+    rule = dict(order=order, ends=ends) if method == "wkb" else {}
 
     def one(Jset):
-        return _levels(potential, mu, None, Jset, method, order=order)
+        return _levels(potential, mu, None, Jset, method, **rule)
 
     try:
         return one(Js), []
@@ -149,14 +150,16 @@ def _bound_levels(potential, mu, Js, method, order):
             no_well.append(J)
     if not tables:
         return LevelTable({c: [] for c in _COLUMNS}, mu=mu, method="exact" if method == "exact" else
-                          ("wkb" if order == 1 else "wkb2"), potential=potential,
+                          ("wkb" if order == 1 else "wkb2" if ends == "maslov" else "wkb-matched"), potential=potential,
                           vD={J: None for J in Js}), no_well
     cols = {c: np.concatenate([getattr(t, c) for t in tables]) for c in _COLUMNS}
-    vD = {}
+    vD, v_th = {}, {}
     for t in tables:
         vD.update(t.vD_by_J)
+        v_th.update(t.v_th_by_J)
     vD.update({J: None for J in no_well})
-    table = LevelTable(cols, mu=mu, method=tables[0].method, potential=potential, vD=vD, notes=tables[0].notes)
+    table = LevelTable(cols, mu=mu, method=tables[0].method, potential=potential, vD=vD, v_th=v_th,
+                       notes=tables[0].notes)
     counts = {}
     for t in tables:
         counts.update(getattr(t, "bound_counts", {}))
@@ -165,7 +168,7 @@ def _bound_levels(potential, mu, Js, method, order):
     return table, no_well
 
 
-def levels_with_quasibound(potential, mu, v, J, method, *, order, langer, maslov, rule, width_form):
+def levels_with_quasibound(potential, mu, v, J, method, *, order, langer, maslov, rule, width_form, ends=None):
     """What `levels(..., quasibound=True)` returns: bound and quasibound levels in one LevelTable."""
     from .levels import LevelTable, _COLUMNS, _as_int_list
     from .masses import as_reduced_mass
@@ -179,13 +182,13 @@ def levels_with_quasibound(potential, mu, v, J, method, *, order, langer, maslov
     if langer:
         raise ValueError("langer=True does not apply with quasibound=True: quasibound levels use the true "
                          "J(J+1) (and the second-order rule)")
-    if tuple(maslov) != (1, 1):
+    if maslov is not None and tuple(maslov) != (1, 1):
         raise ValueError("maslov=%r is not supported with quasibound=True: the inner-well rule has smooth turning "
                          "points at both ends (1, 1)" % (maslov,))
     mu = as_reduced_mass(mu)
     Js = _as_int_list(J, "J")
     vs = None if v is None else _as_int_list(v, "v")
-    bound, no_well = _bound_levels(potential, mu, Js, method, order)
+    bound, no_well = _bound_levels(potential, mu, Js, method, order, ends)
     # exact resonances are seeded by the best semiclassical rule, whatever `quasibound_rule` says
     qcols, barriers, notes = quasibound_columns(potential, mu, Js, rule=rule if method == "wkb" else None,
                                                 width_form=width_form)
@@ -243,7 +246,7 @@ def levels_with_quasibound(potential, mu, v, J, method, *, order, langer, maslov
         order_idx = order_idx[np.isin(cols["v"][order_idx], list(wanted))]
     cols = {name: c[order_idx] for name, c in cols.items()}
     table = LevelTable(cols, mu=mu, method=bound.method, potential=potential, vD=bound.vD_by_J,
-                       notes=list(bound.notes) + notes)
+                       v_th=bound.v_th_by_J, notes=list(bound.notes) + notes)
     table.barriers = barriers
     if hasattr(bound, "bound_counts"):
         table.bound_counts = bound.bound_counts

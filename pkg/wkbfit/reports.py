@@ -716,6 +716,8 @@ def level_table_notes(table):
     notes = ["J=%d: quantum number at dissociation vD = %s" % (
         J, "%.6f" % vD if vD is not None else "not defined (no bound levels)")
         for J, vD in sorted(table.vD_by_J.items())]
+    notes += ["J=%d: quantum threshold number (matched rule at the asymptote) v_th = %.6f" % (J, x)
+              for J, x in sorted(table.v_th_by_J.items()) if x is not None]
     return notes + list(table.notes)
 
 

@@ -1,0 +1,500 @@
+/* matched.c: quantization with matched end phases (shared/design/physics.md section 12).
+ *
+ * At each end of the orbit the phase is read off an exact solution of the radial equation through the
+ * turning region: a modified Pruefer angle phi (u = R sin phi, u' = q R cos phi, with
+ * q = (F^2 + q0^4)^(1/4) so that nothing has a pole at the turning point) is integrated in ln r from
+ * deep in the forbidden region, where the decaying solution is known, towards the well; it is joined
+ * at a matching point b in the allowed region to the second-order WKB wave k^(-1/2) sin(psi),
+ * psi' = k + dk. Between the two matching points the interior is second-order WKB, integrated
+ * directly (no turning point lies there, so the second-order term needs no finite part). Near a
+ * -C_n/r^n asymptote this gives the threshold phase pi/2 + pi/(n-2) instead of pi/2, and in a region
+ * of fast-changing curvature the phase of the true solution; at a linear turning point it reduces to
+ * the Airy value pi/2 (A&S 10.4.60) to within the fourth-order term.
+ *
+ * Rules served (chosen per level in quantize.c): the matched rule proper (outer end exact, inner side
+ * second-order WKB up to the outer matching point with the one-sided second-order term), and the
+ * exact phase across the well (both exact solutions meet at the bottom; no WKB left).
+ *
+ * Coordinates: rho = r at the outer end, rho = -r at the inner end, so that each end's forbidden
+ * region lies at large rho and one code serves both; t = -ln r (outer) or ln r (inner) increases
+ * towards the well, so d phi/dt = -r d phi/d rho.
+ */
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include <gsl/gsl_errno.h>
+#include <gsl/gsl_math.h>
+#include <gsl/gsl_odeiv2.h>
+
+#include "wkb.h"
+#include "well.h"
+
+#define WALK_FIRST_STEP 0.01 /* first step of the walk into the forbidden region, in ln r */
+#define WALK_MAX_STEP 0.25
+#define WALK_MAX_STEPS 4000
+#define MIDDLE_LOG_PIECE 0.5 /* Gauss-Legendre pieces of the interior, in ln r */
+
+typedef struct {
+    const wkb_well *w;
+    double binding, sigma, q04;
+    size_t n_eval;
+} rhs_ctx;
+
+struct wkb_matched {
+    gsl_odeiv2_system sys;
+    gsl_odeiv2_driver *drv;
+    rhs_ctx ctx;
+};
+
+void wkb_matched_free(wkb_matched *m)
+{
+    if (!m)
+        return;
+    if (m->drv)
+        gsl_odeiv2_driver_free(m->drv);
+    free(m);
+}
+
+static int pruefer_rhs(double t, const double y[], double f[], void *params)
+{
+    rhs_ctx *c = params;
+    const double r = exp(-c->sigma * t), eps = c->w->eps;
+    wkb_pot_value pv;
+    const double F = wkb_well_kinetic(c->w, c->binding, r, &pv) / eps, Fr = -pv.dV / eps;
+    c->n_eval++;
+    const double q = pow(F * F + c->q04, 0.25), q_rho = c->sigma * F * Fr / (2 * q * q * q);
+    const double s = sin(y[0]), co = cos(y[0]);
+    f[0] = -r * (q * co * co + (F / q) * s * s + (q_rho / q) * s * co);
+    return isfinite(f[0]) ? GSL_SUCCESS : GSL_EBADFUNC;
+}
+
+static int get_state(wkb_well *w, wkb_matched **out, wkb_error *err)
+{
+    if (w->matched) {
+        *out = w->matched;
+        return WKB_SUCCESS;
+    }
+    wkb_matched *m = calloc(1, sizeof *m);
+    if (!m)
+        return wkb_fail(err, WKB_ENOMEM, "out of memory for the matched-phase workspace");
+    m->sys.function = pruefer_rhs;
+    m->sys.jacobian = NULL;
+    m->sys.dimension = 1;
+    m->sys.params = &m->ctx;
+    m->drv = gsl_odeiv2_driver_alloc_y_new(&m->sys, gsl_odeiv2_step_rk8pd, 1e-3, w->set.match_ode_tol, 0.0);
+    if (!m->drv) {
+        free(m);
+        return wkb_fail(err, WKB_ENOMEM, "out of memory for the matched-phase ODE driver");
+    }
+    gsl_odeiv2_driver_set_nmax(m->drv, 200000);
+    w->matched = m;
+    *out = m;
+    return WKB_SUCCESS;
+}
+
+/* Binding energy of the matching level E - f (E - V_min). */
+static double match_binding(const wkb_well *w, double binding)
+{
+    const double E = w->top - binding;
+    return binding + w->set.match_fraction * (E - w->bottom);
+}
+
+/* Second-order local wavenumber k + dk (1/angstrom) and k, dk/dr at r, for kinetic term kin > 0. */
+static void local_wave(const wkb_well *w, double kin, const wkb_pot_value *pv, double *k, double *dkdr, double *q2)
+{
+    const double eps = w->eps;
+    *k = sqrt(kin / eps);
+    *dkdr = -pv->dV / (2 * eps * *k);
+    const double dk = sqrt(eps) * (pv->d2V / (8 * kin * sqrt(kin)) + (5.0 / 32) * pv->dV * pv->dV / (kin * kin * sqrt(kin)));
+    *q2 = *k + dk;
+}
+
+static int end_phase(wkb_well *w, double binding, int outer, double r_turn, double b, wkb_end_phase *out,
+                     wkb_error *err)
+{
+    wkb_matched *m = NULL;
+    int status = get_state(w, &m, err);
+    if (status)
+        return status;
+    const double sigma = outer ? 1.0 : -1.0, eps = w->eps;
+    wkb_pot_value pv;
+    /* walk into the forbidden region until integral kappa dr reaches match_decay */
+    double r = r_turn, acc = 0, h = WALK_FIRST_STEP;
+    size_t n_walk = 0;
+    for (int i = 0; i < WALK_MAX_STEPS && acc < w->set.match_decay; i++) {
+        const double rn = r * exp(sigma * h), rm = r * exp(0.5 * sigma * h);
+        const double kin = wkb_well_kinetic(w, binding, rm, &pv);
+        n_walk++;
+        if (!isfinite(kin))
+            break; /* the potential is not finite further in: start where it still is */
+        if (kin < 0)
+            acc += sqrt(-kin / eps) * fabs(rn - r);
+        r = rn;
+        h = GSL_MIN(1.15 * h, WALK_MAX_STEP);
+        if (!outer && r < 1e-6 * r_turn)
+            break;
+    }
+    double kin = wkb_well_kinetic(w, binding, r, &pv);
+    /* an inner wall of finite height (V finite at r = 0): the regular solution, u = 0 at r -> 0 */
+    const int regular = !outer && acc < w->set.match_decay && isfinite(kin);
+    while (!regular && !(isfinite(kin) && kin < 0) && fabs(log(r / r_turn)) > 1e-3) { /* step back to a finite point */
+        r = r * exp(-0.5 * sigma * fabs(log(r / r_turn)) * 0.1);
+        kin = wkb_well_kinetic(w, binding, r, &pv);
+    }
+    if (!regular && !(kin < 0))
+        return wkb_fail(err, WKB_ENUMERIC, "no forbidden region found beyond the %s turning point r=%.8g A",
+                        outer ? "outer" : "inner", r_turn);
+    /* start: the decaying WKB solution kappa^(-1/2) exp(-integral kappa d rho) */
+    wkb_pot_value pt;
+    wkb_well_effective(w, r_turn, &pt);
+    m->ctx.w = w;
+    m->ctx.binding = binding;
+    m->ctx.sigma = sigma;
+    m->ctx.q04 = pow(fabs(pt.dV) / eps, 4.0 / 3.0);
+    m->ctx.n_eval = 0;
+    double y[1] = {M_PI}; /* u = 0 */
+    if (!regular) {
+        const double F = kin / eps, kappa = sqrt(-F), q = pow(F * F + m->ctx.q04, 0.25);
+        const double dkappa_rho = sigma * pv.dV / (2 * eps * kappa);
+        const double z = -kappa - dkappa_rho / (2 * kappa);
+        y[0] = M_PI_2 - atan(z / q);
+    }
+    double t = -sigma * log(r);
+    const double t_b = -sigma * log(b);
+    gsl_odeiv2_driver_reset_hstart(m->drv, 1e-3 * GSL_SIGN(t_b - t));
+    int gs = gsl_odeiv2_driver_apply(m->drv, &t, t_b, y);
+    if (gs != GSL_SUCCESS || !isfinite(y[0]))
+        return wkb_fail(err, WKB_ENUMERIC,
+                        "the exact %s-end solution failed at binding energy %.6g cm-1 (GSL status %d)",
+                        outer ? "outer" : "inner", binding, gs);
+    /* join at b to k^(-1/2) sin(psi): u'/u = -k'/(2k) + q2 cot(psi) in rho */
+    const double kb = wkb_well_kinetic(w, binding, b, &pv);
+    double k, dkdr, q2;
+    local_wave(w, kb, &pv, &k, &dkdr, &q2);
+    const double Fb = kb / eps, qb = pow(Fb * Fb + m->ctx.q04, 0.25);
+    const double zb = qb * cos(y[0]) / sin(y[0]); /* u_rho/u */
+    const double x = zb + sigma * dkdr / (2 * k);
+    double psi = atan2(q2, x); /* in (0, pi) */
+    psi += M_PI * round((y[0] - psi) / M_PI);
+    out->psi = psi;
+    out->r_match = b;
+    out->r_turn = r_turn;
+    out->evaluations = m->ctx.n_eval + n_walk;
+    out->action_to_turn = NAN;
+    return WKB_SUCCESS;
+}
+
+/* Matching points and turning points at binding energy b. */
+static int match_points(wkb_well *w, double binding, double *r1, double *r2, double *b_in, double *b_out,
+                        wkb_error *err)
+{
+    int status = wkb_well_turning_points(w, binding, r1, r2, err);
+    if (status)
+        return status;
+    const double bm = match_binding(w, binding), rb = GSL_MIN(GSL_MAX(w->r_bottom, *r1), *r2);
+    if (wkb_well_crossing(w, bm, *r1, rb, b_in) || wkb_well_crossing(w, bm, rb, *r2, b_out))
+        return wkb_fail(err, WKB_ENUMERIC, "no matching points found at binding energy %.6g cm-1", binding);
+    return WKB_SUCCESS;
+}
+
+/* First-order action |integral_b^r_turn k dr| (r = r_turn - (r_turn - b) s^2 removes the square-root end). */
+static double action_to_turn(const wkb_well *w, double binding, double b, double r_turn)
+{
+    double sum = 0;
+    const double L = r_turn - b;
+    for (size_t i = 0; i < w->set.nodes; i++) {
+        const double s = w->even2_x[i], r = r_turn - L * s * s;
+        wkb_pot_value pv;
+        const double kin = wkb_well_kinetic(w, binding, r, &pv);
+        if (kin > 0)
+            sum += w->even2_w[i] * 2 * L * s * sqrt(kin / w->eps);
+    }
+    return fabs(sum);
+}
+
+/* The error of the matching itself at a linear turning point: the phase psi that the matching formula
+   reads off the exact Airy solution Ai(-z) at the point with action zeta from the turning point, minus
+   the second-order WKB phase 3 pi/4 - zeta + 5/(72 zeta) there (A&S 10.4.60 with its first correction
+   term c_1 = 5/72). It falls off as zeta^-3; subtracting it makes the rule exact to second order at a
+   linear turning point (a comparison-equation correction, with the Airy coordinate set by the action). */
+static int airy_matching_error(double zeta, double *delta, wkb_error *err)
+{
+    if (zeta > 2e3) { /* below 1e-11 rad */
+        *delta = 0;
+        return WKB_SUCCESS;
+    }
+    const double z = pow(1.5 * zeta, 2.0 / 3.0);
+    wkb_airy_values a;
+    int status = wkb_airy(-z, &a, err);
+    if (status)
+        return status;
+    const double q2 = sqrt(z) + (5.0 / 32) * pow(z, -2.5);
+    /* cot psi = (Ai'/Ai - 1/(4z))/q2 */
+    double psi = atan2(q2 * a.Ai, a.dAi - a.Ai / (4 * z));
+    const double ref = 0.75 * M_PI - zeta + 5.0 / (72 * zeta);
+    psi += 2 * M_PI * round((ref - psi) / (2 * M_PI));
+    psi += M_PI * round((ref - psi) / M_PI);
+    *delta = psi - ref;
+    return WKB_SUCCESS;
+}
+
+int wkb_matched_end_phase(wkb_well *w, double binding, int end, double r_match, wkb_end_phase *out,
+                          wkb_error *err)
+{
+    double r1, r2, b_in, b_out;
+    if (!w->ready)
+        return wkb_fail(err, WKB_EINVAL, "the well has not been set up");
+    if (end != 0 && end != 1)
+        return wkb_fail(err, WKB_EINVAL, "end=%d is invalid: 0 (inner) or 1 (outer)", end);
+    int status = match_points(w, binding, &r1, &r2, &b_in, &b_out, err);
+    if (status)
+        return status;
+    double b = end ? b_out : b_in;
+    if (r_match > 0) {
+        wkb_pot_value pv;
+        if (!(wkb_well_kinetic(w, binding, r_match, &pv) > 0) || (end && r_match < w->r_bottom) ||
+            (!end && r_match > w->r_bottom))
+            return wkb_fail(err, WKB_EINVAL,
+                            "r_match=%.8g A is invalid: it must lie in the allowed region between the bottom "
+                            "(%.8g A) and the %s turning point (%.8g A)", r_match, w->r_bottom,
+                            end ? "outer" : "inner", end ? r2 : r1);
+        b = r_match;
+    }
+    if ((status = end_phase(w, binding, end, end ? r2 : r1, b, out, err)))
+        return status;
+    out->action_to_turn = action_to_turn(w, binding, b, end ? r2 : r1);
+    return WKB_SUCCESS;
+}
+
+/* Inner turning point at binding energy b (which may lie above the asymptote), near r_guess. */
+static int inner_turn(const wkb_well *w, double binding, double r_guess, double *r1)
+{
+    wkb_pot_value pv;
+    double lo = r_guess;
+    for (int i = 0; i < 200 && !(wkb_well_kinetic(w, binding, lo, &pv) < 0); i++)
+        lo *= 0.98;
+    return wkb_well_crossing(w, binding, lo, w->r_bottom, r1);
+}
+
+/* integral_{r1}^{b} of k dr and of V_J''/sqrt(E - V_J) dr: r = r1 + (rb - r1) s^2 up to the bottom,
+   plain pieces in ln r beyond it. */
+static void inner_integrals(const wkb_well *w, double binding, double r1, double b, double *action, double *curv)
+{
+    const double rb = GSL_MIN(w->r_bottom, b), L = rb - r1, eps = w->eps;
+    double A = 0, K = 0;
+    wkb_pot_value pv;
+    for (size_t i = 0; i < w->set.nodes; i++) {
+        const double s = w->even2_x[i], r = r1 + L * s * s, wt = w->even2_w[i] * 2 * L * s;
+        const double kin = wkb_well_kinetic(w, binding, r, &pv);
+        if (kin > 0) {
+            A += wt * sqrt(kin / eps);
+            K += wt * pv.d2V / sqrt(kin);
+        }
+    }
+    if (b > rb) {
+        const double ya = log(rb), yb = log(b);
+        const size_t m = (size_t)ceil((yb - ya) / MIDDLE_LOG_PIECE);
+        for (size_t p = 0; p < m; p++) {
+            const double y0 = ya + (yb - ya) * (double)p / (double)m, Ly = (yb - ya) / (double)m;
+            for (size_t i = 0; i < w->set.nodes; i++) {
+                const double r = exp(y0 + Ly * w->gl_x[i]), wt = w->gl_w[i] * Ly * r;
+                const double kin = wkb_well_kinetic(w, binding, r, &pv);
+                A += wt * sqrt(kin / eps);
+                K += wt * pv.d2V / sqrt(kin);
+            }
+        }
+    }
+    *action = A;
+    *curv = K;
+}
+
+/* Inner side in second-order WKB up to the matching point b: pi/4 + integral_{r1}^{b} k dr + D2_in(b),
+   D2_in(b) = -(sqrt(eps)/24) d/dE integral_{r1}^{b} V''/sqrt(E - V) dr + (5/48) sqrt(eps) V'(b)/(E - V(b))^(3/2)
+   (physics.md section 12: the one-sided second-order term; d/dE at fixed b by a five-point difference). */
+static int inner_phase(const wkb_well *w, double binding, double r1, double b, double *phase, size_t *n_eval)
+{
+    const double E = w->top - binding, h = 2e-3 * (E - w->bottom), se = sqrt(w->eps);
+    double A, K, Kh[4];
+    inner_integrals(w, binding, r1, b, &A, &K);
+    const double off[4] = {2 * h, h, -h, -2 * h}; /* binding offsets: E - 2h .. E + 2h */
+    for (int k = 0; k < 4; k++) {
+        double r1k, Ak;
+        if (inner_turn(w, binding + off[k], r1, &r1k))
+            return WKB_ENUMERIC;
+        inner_integrals(w, binding + off[k], r1k, b, &Ak, &Kh[k]);
+    }
+    const double dKdE = (Kh[0] - 8 * Kh[1] + 8 * Kh[2] - Kh[3]) / (12 * h);
+    wkb_pot_value pv;
+    const double kin = wkb_well_kinetic(w, binding, b, &pv);
+    *phase = M_PI_4 + A - (se / 24) * dKdE + (5.0 / 48) * se * pv.dV / (kin * sqrt(kin));
+    *n_eval += 5 * (w->set.nodes + (b > w->r_bottom ? w->set.nodes * (size_t)ceil(log(b / w->r_bottom) / MIDDLE_LOG_PIECE) : 0));
+    return isfinite(*phase) ? WKB_SUCCESS : WKB_ENUMERIC;
+}
+
+/* Continuous quantum number at binding energy b, and the evaluation count: the inner side in
+   second-order WKB (a steep repulsive wall is a linear turning point), the outer end matched. */
+static int quantum_number(wkb_well *w, double binding, double *v, size_t *n_eval, int across, wkb_error *err)
+{
+    double r1, r2, b_in, b_out, phase_in;
+    wkb_end_phase pout;
+    int status;
+    if (across) {
+        /* exact across the whole well: both exact solutions meet at the bottom, where the same WKB
+           parametrization of both makes the rule exact up to the ODE tolerance */
+        wkb_end_phase pin;
+        if ((status = wkb_well_turning_points(w, binding, &r1, &r2, err)))
+            return status;
+        const double b = GSL_MIN(GSL_MAX(w->r_bottom, r1), r2);
+        if ((status = end_phase(w, binding, 0, r1, b, &pin, err)) || (status = end_phase(w, binding, 1, r2, b, &pout, err)))
+            return status;
+        *v = 1 - (pin.psi + pout.psi) / M_PI;
+        if (n_eval)
+            *n_eval += pin.evaluations + pout.evaluations;
+        return isfinite(*v) ? WKB_SUCCESS : wkb_fail(err, WKB_ENUMERIC, "the exact phase is not finite at "
+                                                     "binding energy %.6g cm-1", binding);
+    }
+    status = match_points(w, binding, &r1, &r2, &b_in, &b_out, err);
+    if (status)
+        return status;
+    if ((status = end_phase(w, binding, 1, r2, b_out, &pout, err)))
+        return status;
+    double delta;
+    if ((status = airy_matching_error(action_to_turn(w, binding, b_out, r2), &delta, err)))
+        return status;
+    pout.psi -= delta;
+    size_t n = pout.evaluations + w->set.nodes;
+    if (inner_phase(w, binding, r1, b_out, &phase_in, &n))
+        return wkb_fail(err, WKB_ENUMERIC, "the inner second-order phase is not finite at binding energy %.6g cm-1",
+                        binding);
+    *v = (phase_in - pout.psi) / M_PI;
+    if (n_eval)
+        *n_eval += n;
+    return isfinite(*v) ? WKB_SUCCESS : wkb_fail(err, WKB_ENUMERIC, "the matched phase is not finite at "
+                                                 "binding energy %.6g cm-1", binding);
+}
+
+int wkb_matched_quantum_number(wkb_well *w, double binding, double *v, wkb_error *err)
+{
+    if (!w->ready)
+        return wkb_fail(err, WKB_EINVAL, "the well has not been set up");
+    return quantum_number(w, binding, v, NULL, 0, err);
+}
+
+int wkb_threshold_number(wkb_well *w, double *v_th, wkb_error *err)
+{
+    if (!w->ready)
+        return wkb_fail(err, WKB_EINVAL, "the well has not been set up");
+    if (w->v_th_status >= 0) {
+        *v_th = w->v_th;
+        return w->v_th_status ? wkb_fail(err, w->v_th_status, "no threshold number for this well") : WKB_SUCCESS;
+    }
+    w->v_th = NAN;
+    if (!(w->bottom < w->bound_top)) {
+        w->v_th_status = WKB_SUCCESS;
+        *v_th = NAN;
+        return WKB_SUCCESS;
+    }
+    /* v(kappa) = v_th - c1 kappa + c2 kappa^2 + ...: three bindings with kappa in ratio 1:2:3, far below
+       any crossover energy eps/beta^2 of a realistic tail; quadratic extrapolation in kappa */
+    const double depth = w->bound_top - w->bottom, b0 = (w->top - w->bound_top) + 1e-13 * depth;
+    double vk[3];
+    for (int k = 0; k < 3; k++) {
+        int status = quantum_number(w, b0 * (k + 1) * (k + 1), &vk[k], NULL, w->across, err);
+        if (status) {
+            w->v_th_status = status;
+            return status;
+        }
+    }
+    w->v_th = 3 * vk[0] - 3 * vk[1] + vk[2];
+    w->v_th_status = WKB_SUCCESS;
+    *v_th = w->v_th;
+    return WKB_SUCCESS;
+}
+
+/* Level v by the matched rule: safeguarded secant in x = b^alpha (b the binding energy), started
+   from the first-order level in *level when it converged. */
+int wkb_matched_solve(wkb_well *w, size_t v, int across, wkb_level *level, wkb_error *err)
+{
+    const double n = w->tail_power, alpha = n > 2 ? (n - 2) / (2 * n) : 0.5;
+    const double depth = w->top - w->bottom, b_min = w->top - w->bound_top;
+    /* no point in iterating below a tenth of the phase ODE's own error, 20 tol/(dI/dE) (see below) */
+    const double ode_floor = level->status == WKB_SUCCESS && level->dEdv > 0 ? 2 * w->set.match_ode_tol * level->dEdv / M_PI : 0;
+    const double tol = w->set.energy_tol + 4e-14 * depth + ode_floor;
+    double lo = pow(b_min, alpha), hi = pow(depth, alpha); /* G(lo) > 0 (threshold side), G(hi) < 0 */
+    double x, slope;
+    if (level->status == WKB_SUCCESS && level->binding > b_min) {
+        /* the matched level sits where the first-order quantum number exceeds v by about the defect of
+           the level solved before (it changes slowly from level to level) */
+        double b0 = level->binding;
+        if (w->have_defect[across]) {
+            const double bd = b0 - w->defect[across] * level->dEdv;
+            if (bd > b_min && bd < depth)
+                b0 = bd;
+        }
+        x = pow(b0, alpha);
+        slope = -(M_PI / level->dEdv) * pow(b0, 1 - alpha) / alpha;
+    } else {
+        x = NAN;
+        slope = NAN;
+    }
+    if (!(x > lo && x < hi))
+        x = lo + 0.01 * (hi - lo);
+    double x_prev = NAN, G_prev = NAN, b = pow(x, 1 / alpha), db = INFINITY;
+    size_t n_eval = 0;
+    int converged = 0;
+    for (int it = 0; it < 60; it++) {
+        b = pow(x, 1 / alpha);
+        double vq;
+        int status = quantum_number(w, b, &vq, &n_eval, across, err);
+        if (status == WKB_ENOWELL || status == WKB_ENOLEVEL) { /* stepped out of the well: shrink towards the bracket */
+            if (b > 0.5 * depth)
+                hi = x;
+            else
+                lo = x;
+            x = 0.5 * (lo + hi);
+            continue;
+        }
+        if (status)
+            return status;
+        const double G = M_PI * (vq - (double)v);
+        if (G > 0)
+            lo = x;
+        else
+            hi = x;
+        if (isfinite(G_prev) && x != x_prev)
+            slope = (G - G_prev) / (x - x_prev);
+        double xn = (isfinite(slope) && slope < 0) ? x - G / slope : NAN;
+        if (!(xn > lo && xn < hi))
+            xn = 0.5 * (lo + hi);
+        x_prev = x;
+        G_prev = G;
+        const double bn = pow(xn, 1 / alpha);
+        db = fabs(bn - b);
+        x = xn;
+        if (db <= tol || hi - lo <= 1e-15 * hi) {
+            b = bn;
+            converged = 1;
+            break;
+        }
+    }
+    if (!converged)
+        return wkb_fail(err, WKB_ENOCONV, "the matched level v=%zu did not converge (last change %.3g cm-1)", v, db);
+    wkb_orbit o;
+    int status = wkb_orbit_at(w, b, &o, NULL, err);
+    if (status)
+        return status;
+    w->defect[across] = o.action / M_PI - w->phase - (double)v;
+    w->have_defect[across] = 1;
+    level->v = (double)v;
+    level->binding = b;
+    level->energy = w->top - b;
+    /* the phase ODE's local tolerance, accumulated over its steps (20 tolerances: measured errors stay below), through dE = dphase / (dI/dE) */
+    level->error = db + 20 * w->set.match_ode_tol / o.half_period;
+    level->r_inner = o.r_inner;
+    level->r_outer = o.r_outer;
+    level->dEdv = M_PI / o.half_period;
+    level->Bv = o.Bv;
+    level->status = WKB_SUCCESS;
+    return WKB_SUCCESS;
+}

@@ -1,0 +1,70 @@
+"""Benchmark: cost per level of the level rules over full wells, in one run.
+
+Rules timed (every bound level of each well, J = 0):
+- first order (order=1, ends="maslov"), the textbook rule and the cost unit;
+- second order with fixed end phases (order=2, ends="maslov"; "failed" where it finds no root, as it
+  does near threshold on most curves);
+- the default matched rule (order=2, ends="matched": second order where the outer turning point is
+  nearly linear, the matched outer end near threshold, the exact phase across quantal wells and for the
+  last two levels);
+- the exact radial solver (method="exact", default tolerance 1e-7 cm-1).
+Accuracy of each against the exact solver at 1e-10 cm-1 is printed beside the cost: the largest error of
+the interior levels and of the last two levels.
+
+Test wells (invented): LJ(12,6), LJ(8,4), LJ(6,3) (C6, C4, C3 tails), an MLR with C6 + C8, a light LJ.
+method_error is not timed (it is computed on first use only).
+Run: python3 tests/benchmarks/bench_matched.py  (the machine may be shared: ratios are what counts)
+"""
+import os
+import sys
+import warnings
+
+import numpy as np
+
+sys.path.insert(0, os.path.join(os.path.dirname(__file__), "..", "..", "pkg"))
+sys.path.insert(0, os.path.dirname(__file__))
+import wkbfit  # noqa: E402
+from timing import time_call  # noqa: E402
+
+WELLS = [
+    ("LJ(12,6) C6, mu=20", wkbfit.LennardJones(De=1000.0, re=3.0), 20.0),
+    ("LJ(8,4) C4, mu=10", wkbfit.LennardJones(De=2000.0, re=2.5, n=8, m=4), 10.0),
+    ("LJ(6,3) C3, mu=10", wkbfit.LennardJones(De=2000.0, re=2.5, n=6, m=3), 10.0),
+    ("MLR C6+C8, mu=100", wkbfit.MLR(De=5000.0, re=4.0, C6=1.0e7, C8=3.0e8, betas=[-0.4, 0.2]), 100.0),
+    ("LJ(12,6) light, mu=0.5", wkbfit.LennardJones(De=10000.0, re=1.2), 0.5),
+]
+
+RULES = [
+    ("first order", dict(order=1, ends="maslov")),
+    ("second order", dict(order=2, ends="maslov")),
+    ("matched (default)", dict()),
+    ("exact", dict(method="exact")),
+]
+
+
+def errors(table, ref):
+    n = min(len(table), len(ref))
+    e = np.abs(table.energy[:n] - ref.energy[:n])
+    return (np.max(e[:-2]) if n > 2 else 0.0), np.max(e[-2:])
+
+
+def main():
+    warnings.simplefilter("ignore")
+    print("%-24s %-18s %12s %10s %12s %12s" % ("well", "rule", "us/level", "x first", "interior", "last two"))
+    for name, pot, mu in WELLS:
+        ref = wkbfit.exact.exact_levels(pot, mu, tolerance=1e-10, min_binding=1e-13)
+        base = None
+        for label, kw in RULES:
+            try:
+                table = wkbfit.levels(pot, mu, **kw)
+            except (ValueError, RuntimeError) as exc:
+                print("%-24s %-18s %12s   (%s)" % (name, label, "failed", str(exc)[:60]))
+                continue
+            t = time_call(lambda: wkbfit.levels(pot, mu, **kw), min_time=0.3) / len(table)
+            base = t if base is None else base
+            e_int, e_last = errors(table, ref)
+            print("%-24s %-18s %12.1f %10.1f %12.2e %12.2e" % (name, label, 1e6 * t, t / base, e_int, e_last))
+
+
+if __name__ == "__main__":
+    main()
