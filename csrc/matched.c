@@ -390,7 +390,8 @@ int wkb_threshold_number(wkb_well *w, double *v_th, wkb_error *err)
         return w->v_th_status ? wkb_fail(err, w->v_th_status, "no threshold number for this well") : WKB_SUCCESS;
     }
     w->v_th = NAN;
-    if (!(w->bottom < w->bound_top)) {
+    /* no well, or an inner wall lower than the asymptote: no threshold of bound levels */
+    if (!(w->bottom < w->bound_top) || w->bound_top < w->top - 1e-6 * (w->top - w->bottom)) {
         w->v_th_status = WKB_SUCCESS;
         *v_th = NAN;
         return WKB_SUCCESS;
@@ -407,6 +408,11 @@ int wkb_threshold_number(wkb_well *w, double *v_th, wkb_error *err)
         }
     }
     w->v_th = 3 * vk[0] - 3 * vk[1] + vk[2];
+    /* behind a centrifugal barrier the turning points near the asymptote are ordinary ones and v_th stays
+       within a few hundredths of vD (measured); an extrapolation that lands more than 1/2 away has failed
+       (seen at the J where the last level crosses the asymptote): the first-order count is kept */
+    if (w->rot > 0 && isfinite(w->vD) && fabs(w->v_th - w->vD) > 0.5)
+        w->v_th = w->vD;
     w->v_th_status = WKB_SUCCESS;
     *v_th = w->v_th;
     return WKB_SUCCESS;

@@ -84,6 +84,9 @@ static int prepare(wkb_well *w, wkb_error *err)
     if (w->cache_size)
         memset(w->cache_ok, 0, w->cache_size);
     w->vD_status = WKB_SUCCESS;
+    w->low_wall = w->bound_top < w->top - 1e-6 * (w->top - w->bottom);
+    if (w->set.ends == WKB_ENDS_MATCHED && w->low_wall)
+        return WKB_SUCCESS;
     if (w->set.ends == WKB_ENDS_MATCHED && w->count > 0) {
         /* is second order good enough in this well? judged on its lowest level */
         wkb_level l1, l2;
@@ -175,7 +178,7 @@ static double nonlinearity(const wkb_well *w, double r)
    or where the second-order term finds no root). */
 static int solve_level(wkb_well *w, size_t v, wkb_level *level, double *avg_dVdp, wkb_error *err)
 {
-    if (w->set.ends != WKB_ENDS_MATCHED)
+    if (w->set.ends != WKB_ENDS_MATCHED || w->low_wall)
         return solve_first_order(w, v, level, avg_dVdp, err);
     memset(level, 0, sizeof *level);
     level->status = WKB_ENOCONV;

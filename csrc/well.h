@@ -41,6 +41,9 @@ struct wkb_well {
     double v_th;
     int v_th_status;
     size_t count_first;
+    /* inner wall lower than the asymptote: no threshold to match to; the levels (up to the wall top) are
+       second order with fixed phases */
+    int low_wall;
     int across; /* matched ends in a well too quantal for second order: exact phase across the well */
     /* first-order quantum number minus v at the last matched level, per rule (3, 4): it starts the next */
     double defect[2];

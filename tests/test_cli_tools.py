@@ -49,7 +49,7 @@ def test_rkr_writes_turning_points_and_a_curve_that_curve_reads(capsys, tmp_path
     assert "[cm-1]" in out and "[A]" in out
     curve = tmp_path / "out" / "rkr-curve.csv"
     status, out, err = run(capsys, "curve", curve, "--mu", MU, "-v", "0-3", "--asymptote", MORSE.De,
-                           "--tail-power", 6)
+                           "--tail-power", 6, "--order", 1)
     assert status == 0, err
     rows = [line.split() for line in out.splitlines() if line.split() and line.split()[0].isdigit()]
     energies = np.array([float(r[2]) for r in rows])

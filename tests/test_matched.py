@@ -12,6 +12,7 @@ References used as check values (each named at its test):
   coefficients c_k = Gamma(3k+1/2)/(54^k k! Gamma(k+1/2)).
 The test wells are invented (Lennard-Jones (n, m) and MLR parameters chosen for the tail power).
 """
+import re
 import math
 import warnings
 
@@ -306,7 +307,14 @@ def test_method_error_is_honest_on_every_model(name, J, rule):
     # below, keeps the estimate from being uselessly pessimistic.)
     pot, mu = _models()[name]
     ex = exact(pot, mu, J)
-    t = wkbfit.levels(pot, mu, J=J, **rule)
+    try:
+        t = wkbfit.levels(pot, mu, J=J, **rule)
+    except ValueError as exc:
+        # an inner wall lower than the asymptote (Poeschl-Teller): the complete table is refused, the
+        # levels below the wall top are asked for by v
+        assert "rises only to" in str(exc) and name == "Poeschl-Teller"
+        t = wkbfit.levels(pot, mu, J=J, v=list(range(int(re.search(r"v=0\.\.(\d+)", str(exc)).group(1)) + 1)),
+                          **rule)
     n = min(len(t), len(ex))
     assert n >= 10
     true = np.maximum(np.abs(t.energy[:n] - ex.energy[:n]) - ex.error[:n], 0)

@@ -69,9 +69,23 @@ def _mass_options(p):
 
 def _order_option(p, both=False):
     choices = ("1", "2", "both") if both else ("1", "2")
-    p.add_argument("--order", choices=choices, default="both" if both else "1",
-                   help="WKB order: 1 (first order), 2 (with the second-order term)%s (default %s)" % (
-                       ", or both" if both else "", "both" if both else "1"))
+    p.add_argument("--order", choices=choices, default="both" if both else None,
+                   help="WKB order: 1 (the textbook first-order rule, fixed end phases), 2 (with the second-order "
+                        "term; default: with matched end phases)%s" % (
+                            ", or both (default)" if both else ""))
+    p.add_argument("--ends", choices=("matched", "maslov"), default=None,
+                   help="end phases of second-order levels: matched (default; right up to dissociation) or maslov "
+                        "(fixed phases)")
+
+
+def _rule_options(args, order):
+    """levels() keywords for one --order value (None: the default rule) and --ends."""
+    kw = {} if order is None else {"order": int(order)}
+    if args.ends is not None:
+        if order is not None and int(order) == 1:
+            raise _user_error("--ends applies to --order 2 only (first order has fixed end phases)")
+        kw["ends"] = args.ends
+    return kw
 
 
 def _output_dir_option(p):
@@ -212,9 +226,13 @@ def _cmd_compare(args, out):
     mu = _mass(args)
     Js = _int_list(args.J, "-J")
     vs = None if args.v is None else _int_list(args.v, "-v")
-    orders = (1, 2) if args.order == "both" else (int(args.order),)
+    orders = ("1", "2") if args.order == "both" else (args.order,)
     for k, order in enumerate(orders):
-        comp = compare_wkb_exact(pot, mu, J=Js if len(Js) > 1 else Js[0], v=vs, order=order)
+        if args.ends is not None and order == "1" and len(orders) > 1:
+            rule = {"order": 1}
+        else:
+            rule = _rule_options(args, order)
+        comp = compare_wkb_exact(pot, mu, J=Js if len(Js) > 1 else Js[0], v=vs, **rule)
         if k:
             print("", file=out)
         print(comp.to_text(uncertainty=args.uncertainty), file=out)
@@ -229,10 +247,9 @@ def _cmd_curve(args, out):
     mu = _mass(args)
     Js = _int_list(args.J, "-J")
     vs = None if args.v is None else _int_list(args.v, "-v")
-    order = int(args.order)
-    if args.method == "exact" and order != 1:
-        raise _user_error("--order applies to --method wkb only")
-    kwargs = {"order": order} if args.method == "wkb" else {}
+    if args.method == "exact" and (args.order is not None or args.ends is not None):
+        raise _user_error("--order and --ends apply to --method wkb only")
+    kwargs = _rule_options(args, args.order) if args.method == "wkb" else {}
     table = levels(pot, mu, v=vs, J=Js if len(Js) > 1 else Js[0], method=args.method, **kwargs)
     print(repr(pot), file=out)
     print(table.to_text(), file=out)

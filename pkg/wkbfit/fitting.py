@@ -901,9 +901,9 @@ class FitResult:
         isotopologue: a label (its fitted reduced mass, or one from the mass table); mu: a
         reduced mass in u (or a pair of isotopes); with neither, the fit's only isotopologue.
         J: rotational quantum number (integer >= 0).
-        order, ends: for a WKB fit, the level rule of the predicted energies as in `levels` (for example
-        order=2, ends="matched" for levels right up to dissociation); by default the fit's own first-order
-        rule. The uncertainties always use the first-order gradients dE/dp.
+        order, ends: a semiclassical level rule for the predicted energies as in `levels` (for example
+        order=2, ends="matched"); by default the fit's own levels (exact levels unless the fit's method is
+        "wkb"). The uncertainties use the gradients dE/dp of the fit's own rule.
         Uncertainties come from the covariance and the Jacobian dE/dp (linear propagation), with
         each level's method error (`method_error`: |WKB - exact| for method "wkb", the exact
         solver's error estimate otherwise) added in quadrature. Levels are exact levels unless the
@@ -924,16 +924,13 @@ class FitResult:
         E, G = res["energy"], res["jacobian"]
         rule_note = None
         if order is not None or ends is not None:
-            if self.method != "wkb":
-                raise ValueError("order= and ends= apply to a WKB fit only; this fit used method=%r"
-                                 % (self.method,))
             from .levels import levels as _levels
             table = _levels(self.potential, mass, J=J, order=order, ends=ends)
             n = min(len(table), len(E))
             E, G = np.array(table.energy[:n]), G[:n]
-            rule_note = ("levels from the %s rule of the fitted potential (%d bound; the fit's first-order rule "
-                         "binds %d); uncertainties from first-order gradients" % (table.method, len(table),
-                                                                                 len(res["energy"])))
+            rule_note = ("levels from the %s rule of the fitted potential (%d bound; the fit's own rule "
+                         "binds %d); uncertainties from the gradients of the fit's rule" % (
+                             table.method, len(table), len(res["energy"])))
         asym, dA = res["asymptote"], self._asymptote_gradient()
         if J == omega:
             E00, G00 = (E[0], G[0]) if len(E) else (math.nan, np.full(len(dA), math.nan))
@@ -955,7 +952,8 @@ class FitResult:
         else:
             notes.append("levels are exact levels of the fitted potential (radial Schroedinger equation); vD and "
                          "its uncertainty are semiclassical (first-order WKB)")
-        merr, merr00, note = _method_error.prediction_method_errors(self.method, self.potential, mass, J, E, E00)
+        merr, merr00, note = _method_error.prediction_method_errors("wkb" if rule_note else self.method,
+                                                                    self.potential, mass, J, E, E00)
         notes.append(note)
         e_unc = np.hypot(self._propagate(G), merr)
         b_unc = np.hypot(self._propagate(dA[None, :] - G), merr)

@@ -245,7 +245,7 @@ def levels(potential, mu, v=None, J=0, method="wkb", *, order=None, ends=None, l
        then the matched count, v < v_th); second order with fixed phases is kept where the outer turning
        point is nearly linear, and wells too quantal for second order (light molecules) get the exact
        phase across the well. "maslov" keeps the fixed phases of `maslov` (the textbook rule with
-       order=1). Giving `maslov` or langer=True selects ends="maslov" unless ends is given.
+       order=1). Giving order=1, `maslov` or langer=True selects ends="maslov" unless ends is given.
     maslov: Maslov indices (inner, outer) for ends="maslov": 1 for a smooth turning point, 2 for a hard wall.
     max_levels, max_J_values: work limits (levels computed, J values in one call); a call that
        would exceed one is refused at once with a ValueError. Raise them for longer work.
@@ -280,7 +280,7 @@ def levels(potential, mu, v=None, J=0, method="wkb", *, order=None, ends=None, l
     langer = _validate.flag(langer, "langer")
     if method == "wkb":
         if ends is None:
-            ends = "maslov" if (maslov is not None or langer) else "matched"
+            ends = "maslov" if (maslov is not None or langer or order == 1) else "matched"
         if ends not in _ENDS:
             raise ValueError("ends=%r is invalid: use 'matched' (end phases from an exact solution, right near "
                              "dissociation) or 'maslov' (fixed phases)" % (ends,))
@@ -329,6 +329,10 @@ def _core_levels(potential, mu, vs, Js, rot, m_in, m_out, order, ends, **kw):
         raise
 
 
+# failures that belong to the potential or the request, not to single levels: the whole call fails
+_WHOLE_TABLE_ERRORS = ("max_levels=", "above the last bound level", "more than two turning points", "rises only to")
+
+
 def _wkb_levels(potential, mu, vs, Js, langer, maslov, order=1, ends="maslov", max_levels=_validate.MAX_LEVELS):
     m_in, m_out = maslov
     # plain lists: the core converts them (cheaper than NumPy arrays for the common one-J call)
@@ -339,9 +343,11 @@ def _wkb_levels(potential, mu, vs, Js, langer, maslov, order=1, ends="maslov", m
         # a level search fails (typically close to dissociation, or a second-order level where that rule
         # is not valid): keep the levels that succeed instead of failing the whole table
         cols = None
-        if "max_levels=" not in str(exc):
+        if (isinstance(exc, RuntimeError) or order == 2) and not any(s in str(exc) for s in _WHOLE_TABLE_ERRORS):
             cols = _levels_one_by_one(potential, mu, rot, vs, m_in, m_out, Js, order, ends)
         if cols is None:
+            if isinstance(exc, RuntimeError) and ends == "matched":
+                return _fixed_phase_fallback(potential, mu, vs, Js, langer, maslov, order, max_levels, exc)
             raise
     _check_levels(cols, Js)
     cols["J"] = np.full(len(cols["v"]), Js[0]) if len(Js) == 1 else np.asarray(Js)[cols["rot_index"]]
@@ -368,6 +374,24 @@ def _wkb_levels(potential, mu, vs, Js, langer, maslov, order=1, ends="maslov", m
     table = LevelTable(cols, mu=mu, method=method, potential=potential, vD=vD, v_th=v_th, method_error=estimate,
                        notes=cols.get("notes", ()))
     check_levels(table)  # levels reaching beyond a point-wise curve's points
+    return table
+
+
+def _fixed_phase_fallback(potential, mu, vs, Js, langer, maslov, order, max_levels, exc):
+    """Second order with fixed end phases where the matched rule cannot treat the well at all (seen on
+    wide Poeschl-Teller wells): said in a warning and the notes; method_error is not estimated (NaN)."""
+    note = ("the matched rule cannot treat this well (%s): these are second-order levels with fixed end phases, "
+            "whose method error is not estimated; compare with method='exact'" % exc)
+    try:
+        table = _wkb_levels(potential, mu, vs, Js, langer, maslov, order, "maslov", max_levels)
+    except (RuntimeError, ValueError) as exc2:
+        raise ValueError("%s; second order with fixed end phases failed too (%s): use method='exact'"
+                         % (note.split(": these")[0], exc2)) from None
+    warnings.warn(note, RuntimeWarning, stacklevel=4)
+    table.notes.append(note)
+    unknown = np.full(len(table), np.nan)
+    unknown.setflags(write=False)
+    table.method_error = unknown
     return table
 
 
@@ -476,7 +500,13 @@ def _fixed_method_error(table, out, potential, mu, Js, maslov, langer):
     n = len(table)
     if tuple(maslov) != (1, 1) or langer:
         return np.full(n, np.nan)
-    ref = levels(potential, mu, v=None, J=list(Js))
+    try:
+        ref = levels(potential, mu, v=None, J=list(Js))
+    except ValueError as exc:
+        if "rises only to" not in str(exc):
+            raise
+        # an inner wall lower than the asymptote: the reference levels by number
+        ref = levels(potential, mu, v=sorted(set(table.v.tolist())), J=list(Js))
     ref_err = ref.method_error
     for i in range(n):
         hit = np.nonzero((ref.v == table.v[i]) & (ref.J == table.J[i]))[0]

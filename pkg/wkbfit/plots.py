@@ -351,7 +351,8 @@ def wkb_vs_exact(potential, mu=None, ax=None, *, J=0, order=(1, 2), uncertainty=
     """|WKB - exact| level by level (log scale) against the data uncertainties: where is WKB good enough?
 
     potential, mu: the potential and reduced mass (u or labels); or give comparison= a WKBComparison
-    (then potential may be that object too). order: the WKB orders to compare (1, 2 or both).
+    (then potential may be that object too). order: the WKB orders to compare (1, 2 or both; 1 is the
+    textbook first-order rule, 2 the default second-order rule with matched end phases).
     uncertainty: a number (cm-1), an array per v, or an ObservedLevels whose J-matching rows give
     the uncertainty at each measured v; drawn as a second curve. Filled markers: WKB above exact,
     open: below.
@@ -366,14 +367,8 @@ def wkb_vs_exact(potential, mu=None, ax=None, *, J=0, order=(1, 2), uncertainty=
     else:
         orders = order if isinstance(order, (tuple, list)) else (order,)
         for o in orders:
-            try:
-                comparisons.append(compare_wkb_exact(potential, mu, J=J, order=o))
-            except ValueError:
-                if o == 1 or len(orders) == 1:
-                    raise
-                # the second-order term is not valid close to dissociation: compare the lower 80% only
-                n = len(comparisons[0]) if comparisons else 0
-                comparisons.append(compare_wkb_exact(potential, mu, J=J, order=o, v=list(range(int(0.8 * n)))))
+            # order 1: the textbook rule (fixed end phases); order 2: the default rule (matched end phases)
+            comparisons.append(compare_wkb_exact(potential, mu, J=J, order=o))
     ax = _axes(ax)
     for k, comp in enumerate(comparisons):
         o = getattr(comp, "order", 1)
@@ -381,7 +376,7 @@ def wkb_vs_exact(potential, mu=None, ax=None, *, J=0, order=(1, 2), uncertainty=
         pos = comp.difference >= 0
         color = _colors()[k % 10]
         ax.semilogy(comp.v, np.maximum(d, 1e-14), "-", color=color, lw=0.8,
-                    label="|WKB - exact|, order %d" % o)
+                    label="|WKB - exact|, order %d%s" % (o, ", matched ends" if comp.ends == "wkb-matched" else ""))
         ax.semilogy(comp.v[pos], np.maximum(d[pos], 1e-14), "o", color=color, ms=3)
         ax.semilogy(comp.v[~pos], np.maximum(d[~pos], 1e-14), "o", mfc="none", color=color, ms=3)
         ax.semilogy(comp.v, np.maximum(comp.exact_error, 1e-14), ":", color="0.5", lw=0.8,

@@ -739,8 +739,9 @@ def comparison_columns(comp, uncertainty=None):
 
 
 def comparison_title(comp):
-    return "WKB (order %s) versus exact levels of %r, mu = %.10g u" % (getattr(comp, "order", 1), comp.potential,
-                                                                       comp.mu)
+    rule = {"wkb": "order 1", "wkb2": "order 2, fixed end phases", "wkb-matched": "order 2, matched end phases"}
+    name = rule.get(getattr(comp, "ends", None), "order %s" % getattr(comp, "order", 1))
+    return "WKB (%s) versus exact levels of %r, mu = %.10g u" % (name, comp.potential, comp.mu)
 
 
 def comparison_notes(comp):
