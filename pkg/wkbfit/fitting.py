@@ -26,6 +26,7 @@ from .born_oppenheimer import BornOppenheimerCorrection
 from . import reports as _reports
 from . import corrected as _corrected
 from . import method_error as _method_error
+from . import width_fit as _width_fit
 from .reports import _frozen, _atomic_write
 from .potentials import Potential
 from ._warn import warn as _warn
@@ -186,6 +187,14 @@ def fit(potential, observed, mu=None, *, method="corrected", vary=None, bounds=N
         upper = np.concatenate([upper, np.full(len(bob_names), np.inf)])
         bounds_by_name.update({n: (None, None) for n in bob_names})
     omega = _omega(omega)
+    if _width_fit.applies(datasets, potential):
+        # widths or quasibound positions: one least-squares problem with quasibound levels (width_fit.py)
+        if len(datasets) > 1:
+            check_data(datasets, stacklevel=2)
+        return _width_fit.fit_with_quasibound(
+            potential, datasets, _masses(datasets, mu), method=method, vary_flags=vary_flags, lower=lower,
+            upper=upper, bounds_by_name=bounds_by_name, scale_uncertainties=scale_uncertainties,
+            max_iterations=max_iterations, omega=omega, born_oppenheimer=bob)
     design = build_design(datasets, omega)
     masses = _masses(datasets, mu)
     n_vary = int(sum(vary_flags)) + len(design.extra_names)
@@ -412,8 +421,6 @@ def _masses(datasets, mu):
     for d in datasets:
         own = d.isotopologues
         sub = {k: v for k, v in mu.items() if k in own} if isinstance(mu, dict) else mu
-        if isinstance(d, ObservedWidths):
-            continue
         out.update(d.masses_by_isotopologue(sub))
     return out
 
@@ -536,10 +543,10 @@ def _quasibound_note(potential, mu, v, J):
         return None
     k = int(hit[0])
     return ("v=%d, J=%d is a quasibound level of the starting potential (%.4f cm-1 above the asymptote, behind "
-            "the barrier of V + J(J+1) hbar^2/(2 mu r^2), whose top lies %.4f cm-1 above it; width %.3g cm-1): fits "
-            "use bound levels "
-            "only, so leave such levels out of the data (levels(..., quasibound=True) computes their positions "
-            "and widths)" % (v, J, -cols["binding_energy"][k], barriers[int(J)]["height"], cols["width"][k]))
+            "the barrier of V + J(J+1) hbar^2/(2 mu r^2), whose top lies %.4f cm-1 above it; width %.3g cm-1): a fit "
+            "treats a level as quasibound when the data put it above the asymptote (a term value above it, or a "
+            "negative binding energy) or give its width (read_widths); give it so, or leave it out "
+            "(levels(..., quasibound=True) computes positions and widths)" % (v, J, -cols["binding_energy"][k], barriers[int(J)]["height"], cols["width"][k]))
 
 
 def _start_failure_message_levels(message, obs, i, potential, mu=None):

@@ -13,8 +13,8 @@
                   level belongs to the fitted state.
 
 `read_widths(source, unit="cm-1")` reads widths (FWHM) of quasibound levels: columns v, J,
-width, uncertainty, isotopologue (optional). The fit of widths needs the quasibound-level
-calculation and is not available yet: `fit` names this when it is given widths.
+width, uncertainty, isotopologue (optional). `fit` takes them beside the positions of the same
+levels (width_fit.py): each width row is the FWHM of a quasibound level of the fitted state.
 
 Files are comma-, tab- or whitespace-separated; units as in `read_levels` (``# unit: MHz`` or
 ``wavenumber [MHz]``). Values are held in cm-1 and reported back in the data's unit.
@@ -138,6 +138,29 @@ class ObservedWidths:
     def __len__(self):
         return len(self.v)
 
+    @property
+    def isotopologues(self):
+        seen = []
+        for label in self.isotopologue:
+            if label not in seen:
+                seen.append(label)
+        return seen
+
+    @property
+    def default_uncertainty(self):  # widths always carry measured uncertainties
+        return None
+
+    def masses_by_isotopologue(self, mu=None):
+        levels = ObservedLevels(self.v, self.J, np.ones(len(self)), np.ones(len(self)), self.isotopologue, "minimum")
+        return levels.masses_by_isotopologue(mu)
+
+    def to_dict(self):
+        out = {"v": self.v.tolist(), "J": self.J.tolist(), "width": self.width.tolist(),
+               "uncertainty": self.uncertainty.tolist()}
+        if any(x is not None for x in self.isotopologue):
+            out["isotopologue"] = list(self.isotopologue)
+        return out
+
     def __repr__(self):
         return "<ObservedWidths: %d widths (FWHM), unit %s%s>" % (len(self), self.unit,
                                                                  ", from %s" % self.source if self.source else "")
@@ -245,8 +268,8 @@ def read_lines(source, unit=None, *, default_uncertainty=None, check=True):
 def read_widths(source, unit=None, *, check=True):
     """Read widths (FWHM) of quasibound levels: columns v, J, width, uncertainty, isotopologue.
 
-    unit: "cm-1" (default), "MHz" or "GHz". Returns an ObservedWidths. Fitting widths needs the
-    quasibound levels (not available yet); `fit` says so when given widths.
+    unit: "cm-1" (default), "MHz" or "GHz". Returns an ObservedWidths; `fit` fits them with the
+    positions of the quasibound levels (wkbfit.width_fit).
     """
     if isinstance(source, ObservedWidths):
         return source

@@ -111,6 +111,9 @@ def fit_report_text(result):
     lines.append("")
     lines.extend(method_error_lines(result))
     lines.append("")
+    if getattr(result, "quasibound_levels", None):
+        lines.extend(quasibound_lines(result))
+        lines.append("")
     if result.free_parameters:
         lines.extend(_free_section(result))
         lines.append("")
@@ -143,6 +146,42 @@ def _levels_table(result, obs, start, factor, title=None):
             result.calculated[start + i] / factor, result.residuals[start + i] / factor, nr[i], flag))
     if getattr(obs, "default_uncertainty", None) is not None:
         lines.append("  (uncertainties: the default %.4g cm-1 given to every row, not measured)" % obs.default_uncertainty)
+    return lines
+
+
+def _widths_table(result, data, start, factor, title):
+    """Residual table of widths (FWHM) of quasibound levels, in the data's unit."""
+    sl = slice(start, start + len(data))
+    nr = result.normalized_residuals[sl]
+    unit = "[%s]" % data.unit
+    lines = [title + "; '<<' marks |obs - calc|/sigma > %g" % _LARGE_RESIDUAL]
+    lines.append("  %-12s %4s %4s %16s %10s %16s %12s %9s %10s" % (
+        "isotopologue", "v", "J", "width", "sigma", "calculated", "obs-calc", "/sigma", "method err"))
+    lines.append("  %-12s %4s %4s %16s %10s %16s %12s %9s %10s" % ("", "-", "-", unit, unit, unit, unit, "-", unit))
+    err = getattr(result, "method_error", None)
+    for i in range(len(data)):
+        me = err[start + i] / factor if err is not None else math.nan
+        lines.append("  %-12s %4d %4d %16.8g %10.4g %16.8g %12.4g %9.3f %10.3g%s" % (
+            data.isotopologue[i] or "-", data.v[i], data.J[i], data.width[i] / factor, data.uncertainty[i] / factor,
+            result.calculated[start + i] / factor, result.residuals[start + i] / factor, nr[i], me,
+            "  <<" if abs(nr[i]) > _LARGE_RESIDUAL else ""))
+    return lines
+
+
+def quasibound_lines(result):
+    """The quasibound levels of a fit: positions and widths at the fitted point, their method errors, and the
+    semiclassical values beside them (what the semiclassical rule would have given)."""
+    q = result.quasibound_levels
+    lines = ["Quasibound levels of the fitted potential (above the asymptote, behind the centrifugal barrier), cm-1"]
+    if getattr(result, "quasibound_note", ""):
+        lines.append("  " + result.quasibound_note)
+    lines.append("  %-12s %4s %4s %16s %12s %14s %10s %14s %12s %8s" % (
+        "isotopologue", "v", "J", "energy", "above D", "width", "width err", "semicl. width", "semicl. dE", "theta"))
+    for k in range(len(q["v"])):
+        lines.append("  %-12s %4d %4d %16.6f %12.6f %14.6g %10.2g %14.6g %12.3g %8.3f" % (
+            q["isotopologue"][k] or "-", q["v"][k], q["J"][k], q["energy"][k], q["above_asymptote"][k],
+            q["width"][k], q["width_error"][k], q["semiclassical_width"][k],
+            q["semiclassical_energy"][k] - q["energy"][k], q["theta"][k]))
     return lines
 
 
@@ -219,8 +258,11 @@ def _mixed_report_text(result):
     lines.append("  iterations %d, model evaluations %d" % (result.iterations, result.n_evaluations))
     if result.dof_note:
         lines.append("  " + result.dof_note)
-    # residual tables grouped by kind: term values, binding energies, line positions
-    order = ["term values", "binding energies", "line positions"]
+    if getattr(result, "quasibound_levels", None):
+        lines.append("")
+        lines.extend(quasibound_lines(result))
+    # residual tables grouped by kind: term values, binding energies, line positions, widths
+    order = ["term values", "binding energies", "line positions", "widths"]
     for kind in order:
         for k, block in enumerate(result.blocks):
             if block.kind != kind:
@@ -230,6 +272,8 @@ def _mixed_report_text(result):
                 k + 1, kind, " from %s" % block.data.source if getattr(block.data, "source", "") else "")
             if kind == "line positions":
                 lines.extend(_lines_table(result, block.data, block.start, title))
+            elif kind == "widths":
+                lines.extend(_widths_table(result, block.data, block.start, block.factor, title))
             else:
                 lines.extend(_levels_table(result, block.data, block.start, block.factor, title))
     return "\n".join(lines)
@@ -318,6 +362,12 @@ def _data_set_dict(result, block):
         columns = {"v": d.v.tolist(), "J": d.J.tolist(), "energy": (d.energy / f).tolist(),
                    "uncertainty": (d.uncertainty / f).tolist(), "isotopologue": list(d.isotopologue)}
         extra = {"energy_zero": d.energy_zero, "asymptote": d.asymptote, "fit_asymptote": d.fit_asymptote}
+    elif d.kind == "widths":
+        columns = d.to_dict()
+        columns["width"] = (d.width / f).tolist()
+        columns["uncertainty"] = (d.uncertainty / f).tolist()
+        columns["isotopologue"] = list(d.isotopologue)
+        extra = {}
     else:
         columns = d.to_dict()
         columns["wavenumber"] = (d.wavenumber / f).tolist()
@@ -343,6 +393,11 @@ def _data_set_from_dict(item):
                            np.array(c["uncertainty"], dtype=float) * f, labels, item["energy_zero"], item["source"],
                            unit=item["unit"], asymptote=item["asymptote"], fit_asymptote=item["fit_asymptote"],
                            default_uncertainty=item["default_uncertainty"])
+    elif item["kind"] == "widths":
+        from .lines import ObservedWidths
+        d = ObservedWidths(c["v"], c["J"], np.array(c["width"], dtype=float) * f,
+                           np.array(c["uncertainty"], dtype=float) * f, labels, unit=item["unit"],
+                           source=item["source"])
     else:
         none = lambda col: [x or None for x in c.get(col, [None] * len(c["uncertainty"]))]
         d = ObservedLines(c["v_upper"], c["J_upper"], c["v_lower"], c["J_lower"],
@@ -387,6 +442,8 @@ def fit_result_to_dict(result):
         "start_notes": getattr(result, "start_notes", []),
         "method_error": None if getattr(result, "method_error", None) is None else result.method_error.tolist(),
         "method_error_note": getattr(result, "method_error_note", ""),
+        "quasibound_levels": getattr(result, "quasibound_levels", None),
+        "quasibound_note": getattr(result, "quasibound_note", ""),
     })
 
 
@@ -531,6 +588,12 @@ def _fit_result_from_checked_dict(cls, data):
     result.refreshes = data.get("refreshes", 0)
     result.refresh_history = data.get("refresh_history", [])
     result.start_notes = data.get("start_notes", [])
+    qb = data.get("quasibound_levels")
+    if qb is not None:
+        if not (isinstance(qb, dict) and all(isinstance(x, list) for x in qb.values())):
+            raise ValueError("quasibound_levels must be a dict of columns (lists)")
+        result.quasibound_levels = qb
+        result.quasibound_note = str(data.get("quasibound_note", ""))
     if isinstance(result.refreshes, bool) or not isinstance(result.refreshes, int) or result.refreshes < 0:
         raise ValueError("refreshes=%r must be a whole number >= 0" % (result.refreshes,))
     if not isinstance(result.refresh_history, list):
@@ -541,11 +604,10 @@ def _fit_result_from_checked_dict(cls, data):
         if not isinstance(data.get("method_error_note", ""), str):
             raise ValueError("method_error_note=%r must be a string" % (data.get("method_error_note"),))
         err = _frozen(_nan_array(data["method_error"]))
-        if err.shape != result.observed.uncertainty.shape:
-            raise ValueError("method_error has %d entries for %d observed levels" % (err.size,
-                                                                                     result.observed.uncertainty.size))
+        if err.shape != result._sigma.shape:  # every data row, data set after data set
+            raise ValueError("method_error has %d entries for %d observed rows" % (err.size, result._sigma.size))
         result.method_error = err
-        result.method_error_ratio = _frozen(err / result.observed.uncertainty)
+        result.method_error_ratio = _frozen(err / result._sigma)
         result.method_error_flagged = [int(i) for i in np.nonzero(result.method_error_ratio > _METHOD_FLAG)[0]]
         result.method_error_note = data.get("method_error_note", "")
     return result
@@ -839,7 +901,7 @@ def result_rows(result):
         out["isotopologue"] += list(d.isotopologue)
         out["v"] += list(d.v_lower if lines else d.v)
         out["J"] += list(d.J_lower if lines else d.J)
-        out["observed"] += list(d.wavenumber if lines else d.energy)
+        out["observed"] += list(d.wavenumber if lines else (d.width if d.kind == "widths" else d.energy))
         out["uncertainty"] += list(d.uncertainty)
         out["kind"] += [b.kind] * len(d)
     for k in ("v", "J"):
