@@ -252,14 +252,16 @@ def test_mixed_kinds_in_one_fit_and_reports(tmp_path):
     assert r.predict().n_bound > 10
 
 
-def test_widths_are_read_but_their_fit_is_a_stated_hook(tmp_path):
+def test_widths_are_read_and_refused_for_bound_levels(tmp_path):
+    # widths are fitted beside quasibound positions (tests/test_width_fit.py); these two belong to levels
+    # that the Morse start binds (J = 3, 5 has no barrier high enough to trap them), which is refused
     path = tmp_path / "widths.txt"
     path.write_text("# unit: MHz\nv J width uncertainty\n20 3 12.5 0.5\n21 5 80 2\n")
     w = read_widths(path)
     assert w.unit == "MHz"
     np.testing.assert_allclose(w.width, np.array([12.5, 80.0]) * 1e6 / (scipy.constants.c * 100), rtol=1e-15)
     cols, _ = progression(n_upper=1)
-    with pytest.raises(ValueError, match="fitting widths needs the quasibound-level calculation"):
+    with pytest.raises(ValueError, match="a width is given for v=20, J=3, which is not a quasibound level"):
         fit(START, [read_lines(cols), w], MU)
 
 

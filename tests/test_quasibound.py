@@ -354,15 +354,23 @@ def test_no_barrier_gives_no_quasibound_levels():
     assert not np.any(t.quasibound) and t.barriers[0] is None
 
 
-def test_fit_with_a_quasibound_datum_says_so():
-    # a data set holding a quasibound level: the fit cannot use it, and the message says why (not "start from
-    # a deeper well", which would not help)
+def test_fit_with_quasibound_data():
+    # term values above the asymptote (J=40, v=2, 3) are fitted as quasibound levels (wkbfit.width_fit;
+    # tests/test_width_fit.py checks the recovery); the same data measured from the lowest level do not show
+    # it by their numbers: the fit then says why it cannot use them (not "start from a deeper well", which
+    # would not help) and how to give them
     t = wkbfit.levels(LJ, MU, J=40, order=2, quasibound=True)
     obs = wkbfit.ObservedLevels(v=t.v, J=t.J, energy=t.energy, uncertainty=np.full(len(t), 0.01),
                                 isotopologue=[None] * len(t), energy_zero="minimum")
+    with pytest.warns(wkbfit.fitting.FitWarning, match=r"data set 1 \(term values\), row \d: v=\d, J=40"):
+        # first-order WKB bound levels and semiclassical quasibound ones are off by more than 0.1 sigma here
+        r = wkbfit.fit(wkbfit.LennardJones(2500.0, 1.0), obs, mu=MU, method="wkb")
+    assert r.quasibound_levels["v"] == [2, 3] and r.quasibound_levels["J"] == [40, 40]
+    low = wkbfit.ObservedLevels(v=t.v, J=t.J, energy=t.energy - 100.0, uncertainty=np.full(len(t), 0.01),
+                                isotopologue=[None] * len(t), energy_zero="lowest")
     with pytest.raises(ValueError, match=r"v=2, J=40 is a quasibound level") as info:
-        wkbfit.fit(wkbfit.LennardJones(2500.0, 1.0), obs, mu=MU)
-    assert "deeper" not in str(info.value)
+        wkbfit.fit(wkbfit.LennardJones(2500.0, 1.0), low, mu=MU)
+    assert "deeper" not in str(info.value) and "read_widths" in str(info.value)
 
 
 def test_semiclassical_against_exact_on_a_rotating_morse_curve():
