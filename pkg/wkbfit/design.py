@@ -96,17 +96,18 @@ def _level_name(key):
 
 
 def build_design(datasets, omega=0):
-    """A Design from a list of data objects (ObservedLevels, ObservedLines; ObservedWidths raise)."""
+    """A Design from a list of data objects (ObservedLevels, ObservedLines; ObservedWidths raise: width_fit
+    adds them)."""
     d = Design()
     omega = int(omega)
     for b_index, data in enumerate(datasets):
         rows = []
         if isinstance(data, ObservedWidths):
-            # hook: widths are fitted from quasibound levels (their tunnelling widths), which the
-            # level calculation does not provide yet
-            raise ValueError("data set %d holds widths of quasibound levels (%s); fitting widths needs the "
-                             "quasibound-level calculation, which this version does not have: fit the positions "
-                             "without the widths" % (b_index + 1, data.source or "widths"))
+            # widths are rows of the quasibound fit (width_fit.py), which builds its design from the other
+            # data sets and adds them; fit() routes such data there
+            raise ValueError("data set %d holds widths of quasibound levels (%s): they are fitted by "
+                             "wkbfit.width_fit (wkbfit.fit routes them there), not by the row design alone"
+                             % (b_index + 1, data.source or "widths"))
         if isinstance(data, ObservedLevels):
             _check_omega(data.J, omega, b_index, "J")
             zero = data.energy_zero
