@@ -232,3 +232,37 @@ def test_a_width_of_a_bound_level_or_a_negative_width_is_refused(data):
     ok = read_widths({"v": [3], "J": [40], "width": [1e-5], "uncertainty": [1e-6]})
     with pytest.raises(ValueError, match="Omega = 0 only"):
         fit(START, [lev, ok], mu=MU, omega=1)
+
+
+def test_lines_from_quasibound_levels_with_their_widths():
+    # line positions from the quasibound levels down to bound levels J-1 (exact levels and poles of the true
+    # curve, noise 0.05 cm-1), with the widths: the same machinery (a line is E[upper] - E[lower], the upper
+    # level a pole); De and re recovered within 3 sigma
+    rng = np.random.default_rng(8)
+    lines = {"v_upper": [], "J_upper": [], "v_lower": [], "J_lower": [], "wavenumber": []}
+    wid = {"v": [], "J": [], "width": []}
+    for J in (30, 35, 40):
+        t = wkbfit.levels(TRUE, MU, J=J, method="exact", quasibound=True)
+        low = wkbfit.levels(TRUE, MU, J=J - 1, method="exact")
+        for i in np.nonzero(np.asarray(t.quasibound, bool))[0]:
+            if not 1e-8 < t.width[i] < 1.0:
+                continue
+            for k in range(min(2, len(low))):
+                lines["v_upper"].append(int(t.v[i]))
+                lines["J_upper"].append(J)
+                lines["v_lower"].append(int(low.v[k]))
+                lines["J_lower"].append(J - 1)
+                lines["wavenumber"].append(float(t.energy[i] - low.energy[k]) + rng.normal(0, SIGMA_POSITION))
+            wid["v"].append(int(t.v[i]))
+            wid["J"].append(J)
+            wid["width"].append(float(t.width[i]) * (1 + WIDTH_FRACTION * rng.normal()))
+    lines["uncertainty"] = [SIGMA_POSITION] * len(lines["v_upper"])
+    wid["uncertainty"] = [WIDTH_FRACTION * x for x in wid["width"]]
+    start = START.with_params(n=12.0, m=6.0)  # the exponents fixed at their true values
+    r = fit(start, [wkbfit.read_lines(lines), read_widths(wid)], mu=MU, vary=["De", "re"])
+    assert r.status == "converged", r.message
+    for n in ("De", "re"):
+        p = r.params[n]
+        assert abs(p.value - TRUE.params[n]) < 3 * p.uncertainty, (n, p.value, p.uncertainty)
+    assert sorted(r.quasibound_levels["J"]) == [30, 35, 40]
+    assert "line positions" in r.report() and "widths" in r.report()

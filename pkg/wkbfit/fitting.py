@@ -191,10 +191,12 @@ def fit(potential, observed, mu=None, *, method="corrected", vary=None, bounds=N
         # widths or quasibound positions: one least-squares problem with quasibound levels (width_fit.py)
         if len(datasets) > 1:
             check_data(datasets, stacklevel=2)
-        return _width_fit.fit_with_quasibound(
+        result = _width_fit.fit_with_quasibound(
             potential, datasets, _masses(datasets, mu), method=method, vary_flags=vary_flags, lower=lower,
             upper=upper, bounds_by_name=bounds_by_name, scale_uncertainties=scale_uncertainties,
             max_iterations=max_iterations, omega=omega, born_oppenheimer=bob)
+        result._warn()  # here, so that the warnings name the caller's line
+        return result
     design = build_design(datasets, omega)
     masses = _masses(datasets, mu)
     n_vary = int(sum(vary_flags)) + len(design.extra_names)

@@ -460,8 +460,10 @@ def _check_energy_zero(energy, v, J, labels, energy_zero, row_name):
                              "energies are measured from the lowest level of each isotopologue" % (row_name(k), e))
         if energy_zero == "asymptote" and e <= 0:
             raise ValueError("%s, column 'energy': binding energy %r is not positive, so the level is not below the "
-                             "dissociation asymptote; energy_zero='asymptote' needs bound levels, asymptote - E > 0"
-                             % (row_name(k), e))
+                             "dissociation asymptote; energy_zero='asymptote' needs bound levels, asymptote - E > 0%s"
+                             % (row_name(k), e, "" if not J[k] else
+                                " (a quasibound level above the asymptote is given by its term value, "
+                                "energy_zero='minimum', and fitted as quasibound)"))
     if energy_zero == "lowest":
         for k in range(len(energy)):
             if v[k] == 0 and J[k] == 0 and energy[k] != 0:

@@ -527,7 +527,6 @@ def fit_with_quasibound(potential, datasets, masses, *, method, vary_flags, lowe
                           "bounds": {n: b for n, b in bounds_by_name.items() if b != (None, None)},
                           "scale_uncertainties": bool(scale_uncertainties), "max_iterations": max_iterations,
                           "omega": 0, "born_oppenheimer": None}
-    result._warn()
     return result
 
 
