@@ -187,7 +187,7 @@ def fit(potential, observed, mu=None, *, method="corrected", vary=None, bounds=N
         upper = np.concatenate([upper, np.full(len(bob_names), np.inf)])
         bounds_by_name.update({n: (None, None) for n in bob_names})
     omega = _omega(omega)
-    if _width_fit.applies(datasets, potential):
+    if _width_fit.applies(datasets, potential, lambda: _masses(datasets, mu)):
         # widths or quasibound positions: one least-squares problem with quasibound levels (width_fit.py)
         if len(datasets) > 1:
             check_data(datasets, stacklevel=2)

@@ -1,8 +1,8 @@
 """Fits with quasibound levels: their positions and widths (FWHM) beside the ordinary data.
 
-`fitting.fit` hands a fit here when the data hold widths (read_widths) or term values of levels
-that lie above the asymptote by the data's own numbers (J > 0: trapped behind the centrifugal
-barrier). One least-squares problem holds every row:
+`fitting.fit` hands a fit here when the data hold widths (read_widths) or term values (J > 0)
+above the starting potential's asymptote of levels that are quasibound for it (trapped behind the
+centrifugal barrier). One least-squares problem holds every row:
 
   * ordinary rows are, as in design.py, linear combinations of distinct levels (plus free term
     values and fitted asymptotes, here ordinary fit variables); a width row is the FWHM of one level;
@@ -55,22 +55,36 @@ class _Infeasible(Exception):
     """A trial point outside the model's domain (a parameter check fails, a level changed kind)."""
 
 
-def applies(datasets, potential):
-    """True when the data hold widths or term values above the asymptote (J > 0) by their own numbers."""
+def applies(datasets, potential, masses):
+    """True when the data hold widths, or term values (J > 0) above the starting potential's asymptote of
+    levels that are quasibound for it. masses: a callable giving label -> reduced mass (called only when
+    needed). A term value above the start's asymptote alone is no proof: a start too shallow for bound data
+    (which the default fit handles by bringing such levels in) shows the same numbers."""
+    if any(isinstance(d, ObservedWidths) for d in datasets):
+        return True
+    above = []
     for d in datasets:
-        if isinstance(d, ObservedWidths):
+        if type(d) is ObservedLevels and len(d) and d.energy_zero == "minimum":
+            try:
+                D = potential.asymptote
+            except (AttributeError, ValueError):
+                return False
+            sel = np.nonzero((np.asarray(d.energy) > D) & (np.asarray(d.J) > 0))[0]
+            above += [(d.isotopologue[i], int(d.v[i]), int(d.J[i])) for i in sel]
+    if not above or isinstance(potential, _potentials.PointwisePotential):
+        return False
+    mu = masses()
+    model, params, curve = potential._core_args()
+    for label in {k[0] for k in above}:
+        Js = np.unique([k[2] for k in above if k[0] == label])
+        try:
+            res = _core.quasibound_levels(model, params, curve, float(mu[label]), (Js * (Js + 1.0)).astype(float))
+        except ValueError:
+            continue
+        found = set(zip(Js[res["rot_index"].astype(int)].tolist(), res["v"].astype(int).tolist())) \
+            if len(res["v"]) else set()
+        if any((k[2], k[1]) in found for k in above if k[0] == label):
             return True
-        if type(d) is ObservedLevels and len(d):
-            J = np.asarray(d.J)
-            if d.energy_zero == "minimum":
-                try:
-                    D = potential.asymptote
-                except (AttributeError, ValueError):
-                    continue
-                if np.any((np.asarray(d.energy) > D) & (J > 0)):
-                    return True
-            elif d.energy_zero == "asymptote" and np.any((np.asarray(d.energy) < 0) & (J > 0)):
-                return True
     return False
 
 
