@@ -895,95 +895,30 @@ class FitResult:
                 grad[k] = (vals[0] - vals[1]) / (2 * h)
         return grad
 
-    def predict(self, isotopologue=None, mu=None, J=0, *, order=None, ends=None):
-        """Every bound level of the fitted potential with propagated one-sigma uncertainties.
+    def predict(self, isotopologue=None, mu=None, J=0, *, order=None, ends=None, quasibound=False):
+        """Every bound level of the fitted potential, up to the last, with propagated one-sigma uncertainties.
 
         isotopologue: a label (its fitted reduced mass, or one from the mass table); mu: a
         reduced mass in u (or a pair of isotopes); with neither, the fit's only isotopologue.
         J: rotational quantum number (integer >= 0).
         order, ends: a semiclassical level rule for the predicted energies as in `levels` (for example
-        order=2, ends="matched"); by default the fit's own levels (exact levels unless the fit's method is
-        "wkb"). The uncertainties use the gradients dE/dp of the fit's own rule.
-        Uncertainties come from the covariance and the Jacobian dE/dp (linear propagation), with
-        each level's method error (`method_error`: |WKB - exact| for method "wkb", the exact
-        solver's error estimate otherwise) added in quadrature. Levels are exact levels unless the
-        fit's method is "wkb". For J = 0 and exact levels, v_th (the quantum threshold number, with
-        v_th_uncertainty; wkbfit.near_dissociation.threshold_number); quasibound levels are not computed
-        yet (quasibound None): they come with the matched-end-phase levels.
-        Returns a Prediction: levels, binding energies, spacings dG(v+1/2), D0, vD and the
-        number of bound levels, each with its uncertainty.
+        order=2, ends="matched"); by default the fit's own accurate levels: exact levels (methods
+        "corrected" and "exact"), first-order WKB levels for a "wkb" fit.
+        quasibound: also predict the quasibound levels behind the barrier of V_J (pred.quasibound, a
+        QuasiboundPrediction: positions, FWHM widths, lifetimes, with uncertainties): exact resonance
+        poles for accurate fits (each standard deviation costs one exact resonance search per
+        principal axis of the covariance, ~0.1-1 s), the semiclassical rule for a "wkb" fit.
+        Returns a Prediction: levels, binding energies, spacings dG(v+1/2), D0, the quantum threshold
+        number v_th (levels v < v_th are bound; matched rule), vD (the quantum number at dissociation of
+        the accurate levels: v_th + 1/(2(n-2)) at J = 0 for a -C_n/r^n tail, physics.md 4c; first-order
+        WKB for a "wkb" fit; `vD_first_order` always) and the number of bound levels with its range
+        `n_bound_range` for v_th -+ one sd, each with its uncertainty. Uncertainties: linear propagation
+        of the covariance with analytic gradients (levels, D0), or central differences of the accurate
+        quantity one sd along each principal axis of the covariance (v_th, vD, quasibound levels); each
+        level's method error (`method_error`) in quadrature. See wkbfit.predictions.
         """
-        mass, label = self._resolve_mu(isotopologue, mu)
-        J = _validate.integer(J, "J", 0, _validate.MAX_QUANTUM_NUMBER, "an integer >= 0")
-        omega = int(getattr(self, "omega", 0) or 0)
-        if J < omega:
-            raise ValueError("J=%d is below Omega=%d of the fitted state: its levels have J >= Omega" % (J, omega))
-        model, params, curve = self.potential._core_args()
-        code = _level_code(self.method)
-        res = _core.fit_levels(model, params, curve, mass, float(J * (J + 1) - omega * omega), code)
-        E, G = res["energy"], res["jacobian"]
-        rule_note = None
-        if order is not None or ends is not None:
-            from .levels import levels as _levels
-            table = _levels(self.potential, mass, J=J, order=order, ends=ends)
-            n = min(len(table), len(E))
-            E, G = np.array(table.energy[:n]), G[:n]
-            rule_note = ("levels from the %s rule of the fitted potential (%d bound; the fit's own rule "
-                         "binds %d); uncertainties from the gradients of the fit's rule" % (
-                             table.method, len(table), len(res["energy"])))
-        asym, dA = res["asymptote"], self._asymptote_gradient()
-        if J == omega:
-            E00, G00 = (E[0], G[0]) if len(E) else (math.nan, np.full(len(dA), math.nan))
-        else:
-            r0 = _core.fit_levels(model, params, curve, mass, float(omega), code)  # v=0, J=Omega
-            E00, G00 = (r0["energy"][0], r0["jacobian"][0]) if len(r0["energy"]) else \
-                (math.nan, np.full(len(dA), math.nan))
-        notes = []
-        if self.undetermined:
-            notes.append("uncertainties leave out the undetermined parameter%s %s (held at their values)" % (
-                "s" if len(self.undetermined) > 1 else "", ", ".join(self.undetermined)))
-        if getattr(self, "correction", None) is not None:
-            notes.append("levels of the reference isotopologue's potential (%s): the Born-Oppenheimer corrections "
-                         "of other isotopologues are not applied to predictions" % self.correction.reference)
-        if rule_note:
-            notes.append(rule_note)
-        elif self.method == "wkb":
-            notes.append("levels are first-order WKB levels of the fitted potential")
-        else:
-            notes.append("levels are exact levels of the fitted potential (radial Schroedinger equation); vD and "
-                         "its uncertainty are semiclassical (first-order WKB)")
-        merr, merr00, note = _method_error.prediction_method_errors("wkb" if rule_note else self.method,
-                                                                    self.potential, mass, J, E, E00)
-        notes.append(note)
-        e_unc = np.hypot(self._propagate(G), merr)
-        b_unc = np.hypot(self._propagate(dA[None, :] - G), merr)
-        if len(E) > 1:
-            spacing = np.diff(E)
-            s_unc = np.hypot(self._propagate(np.diff(G, axis=0)), np.hypot(merr[1:], merr[:-1]))
-        else:
-            spacing, s_unc = np.zeros(0), np.zeros(0)
-        D0 = asym - E00
-        D0_unc = float(np.hypot(self._propagate((dA - G00)[None, :])[0], merr00)) if np.isfinite(D0) else math.nan
-        vD = res["vD"]
-        dvD = res["dvD_dp"]
-        if np.all(np.isfinite(dvD[self._gradient_covariance()[0]])):
-            vD_unc = float(self._propagate(dvD[None, :])[0])
-        else:
-            vD_unc = math.nan
-            notes.append("the uncertainty of vD could not be computed (a perturbed potential is invalid)")
-        pred = Prediction(E, e_unc, asym - E, b_unc, spacing, s_unc, J=J, mu=mass, isotopologue=label,
-                          D0=D0, D0_uncertainty=D0_unc, vD=vD, vD_uncertainty=vD_unc, potential=self.potential,
-                          method=self.method, notes=notes)
-        pred.method_error = _frozen(merr)
-        # the quantum threshold number (J = 0 series of exact levels); quasibound levels come with the
-        # matched-end-phase levels (hook: pred.quasibound)
-        pred.v_th, pred.v_th_uncertainty, pred.quasibound = None, None, None
-        if J == 0 and self.method != "wkb" and math.isfinite(vD):
-            from .near_dissociation import threshold_number
-            pred.v_th, pred.v_th_uncertainty, note = threshold_number(self.potential, mass, asym - E, b_unc, vD,
-                                                                     vD_unc)
-            pred.notes.append(note)
-        return pred
+        from .predictions import predict
+        return predict(self, isotopologue, mu, J, order=order, ends=ends, quasibound=quasibound)
 
     # -- replicas -----------------------------------------------------------------------
     def bootstrap(self, n=1000, seed=1, kind="monte-carlo", executor=None, **options):
