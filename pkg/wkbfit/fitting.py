@@ -120,7 +120,10 @@ def fit(potential, observed, mu=None, *, method="corrected", vary=None, bounds=N
         held fixed during a run and refreshed by one exact evaluation until the exact problem's
         Gauss-Newton step is below 1e-3 standard deviation (wkbfit.corrected); parameters,
         uncertainties and residuals are those of the exact-levels fit. `refreshes` counts the
-        exact evaluations.
+        exact evaluations. Every data kind uses it: one set of term values or binding energies
+        (corrected.run_corrected), and line positions, several data sets, free term values, fitted
+        asymptotes, Omega and Born-Oppenheimer terms (per-row corrections, then chord Gauss-Newton
+        steps of the exact problem: corrected.run_corrected_rows).
         "wkb": first-order WKB levels only (fast; biased where WKB is not exact, which the
         method-error check after the fit detects and warns about).
         "exact": levels of the radial Schroedinger equation in every iteration, with the Jacobian
@@ -209,14 +212,6 @@ def fit(potential, observed, mu=None, *, method="corrected", vary=None, bounds=N
         return _fit_levels_engine(potential, datasets[0], masses, method, vary_flags, lower, upper,
                                   bounds_by_name, scale_uncertainties, max_iterations, names, int(sum(vary_flags)),
                                   design)
-    engine_note = None
-    if method == "corrected":
-        # the refresh loop of the corrected fit runs on term values only so far: mixed data kinds get the
-        # exact levels (the accurate choice, slower), and the result says so
-        method = "exact"
-        engine_note = ("the corrected method covers one set of term values or binding energies; these data (line "
-                       "positions, several data sets, a fitted asymptote, Omega or Born-Oppenheimer terms) were "
-                       "fitted with exact levels in every iteration")
     lv, lrot, lmu, rows = design.arrays(masses, omega)
     bob_kwargs = {}
     if bob is not None:
@@ -227,12 +222,22 @@ def fit(potential, observed, mu=None, *, method="corrected", vary=None, bounds=N
         params0 = np.concatenate([params0, bob.start])
         bob_kwargs = dict(bob_counts=np.array(bob.counts, dtype=np.intc), bob_power=float(bob.p), level_variant=var,
                           variant_adiabatic=ad, variant_centrifugal=na, variant_rot_eps=rot_eps)
+    extra_start = np.array(design.extra_start, dtype=float)
+    vary_c = np.asarray(vary_flags, dtype=np.intc)
+
+    def run_rows(p, extra, offset, code, iterations):
+        return _core.fit_run_rows(model, params0 if p is None else p, curve, lv, lrot, lmu, rows["level_a"],
+                                  rows["coef_a"], rows["level_b"], rows["coef_b"], rows["coef_asymptote"],
+                                  rows["extra_index"], rows["coef_extra"], rows["offset"] + offset, rows["observed"],
+                                  rows["sigma"], extra_start if extra is None else extra, vary_c, lower, upper,
+                                  max_iterations if iterations < 0 else iterations, method=code, **bob_kwargs)
     try:
-        out = _core.fit_run_rows(model, params0, curve, lv, lrot, lmu, rows["level_a"], rows["coef_a"],
-                                 rows["level_b"], rows["coef_b"], rows["coef_asymptote"], rows["extra_index"],
-                                 rows["coef_extra"], rows["offset"], rows["observed"], rows["sigma"],
-                                 np.array(design.extra_start, dtype=float), np.asarray(vary_flags, dtype=np.intc),
-                                 lower, upper, max_iterations, method=_METHOD_CODES[method], **bob_kwargs)
+        if method == "corrected":
+            # WKB iterations with per-row exact corrections on the row engine (corrected.run_corrected_rows)
+            ev = _corrected.RowEvaluator(run_rows, model, curve, lv, lrot, lmu, rows, bob is None, omega)
+            out = _corrected.run_corrected_rows(ev, len(params0), vary_flags, -1)
+        else:
+            out = run_rows(None, None, 0.0, _METHOD_CODES[method], -1)
     except ValueError as err:
         if len(err.args) == 2 and isinstance(err.args[1], int):
             raise ValueError(_start_failure_message(err.args[0], design, err.args[1], potential)) from None
@@ -273,9 +278,14 @@ def fit(potential, observed, mu=None, *, method="corrected", vary=None, bounds=N
         observed_values=observed_values, sigma=sigma, design=design, extra_values=out["extra"],
         jacobian_extra=jac[:, np_:], n_level_calculations=int(out["n_level_calculations"]), omega=omega,
         correction=bob, correction_values=out["params"][len(names):].tolist())
-    result.refreshes, result.refresh_history, result.start_notes = 0, [], []
-    if engine_note:
-        result.start_notes.append(engine_note)
+    result.refreshes = int(out.get("refreshes", 0))
+    result.refresh_history = list(out.get("history", ()))
+    result.start_notes = []
+    if method == "corrected" and not out["converged_refreshes"]:
+        result.status = "max_iterations"
+        result.message = ("the exact corrections did not become self-consistent in %d refreshes (last exact "
+                          "Gauss-Newton step %.3g standard deviations)"
+                          % (result.refreshes, result.refresh_history[-1]["step_sd"]))
     result.fit_options = {"method": method, "vary": list(result.var_names),
                           "bounds": {n: b for n, b in bounds_by_name.items() if b != (None, None)},
                           "scale_uncertainties": bool(scale_uncertainties), "max_iterations": max_iterations,
