@@ -227,12 +227,14 @@ class RowEvaluator:
             out[has] += c * per_level[level[has]]
         return out
 
-    def corrections(self, p):
-        """Per row: E_exact - E_wkb of its levels at p (levels only), cm-1."""
+    def corrections(self, p, loose=False):
+        """Per row: E_exact - E_wkb of its levels at p (levels only), cm-1. loose: to 1e-2 of the smallest
+        uncertainty (the first refresh, whose error the exact evaluation after it measures and removes)."""
+        tol = min(1e-3, max(self.tol, 1e-2 * float(np.min(self.rows["sigma"])))) if loose else self.tol
         if self.omega:
-            ex, _ = _core.fit_evaluate(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, _EXACT, self.tol)
+            ex, _ = _core.fit_evaluate(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, _EXACT, tol)
         else:
-            ex, _ = exact_calc(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, self.tol)
+            ex, _ = exact_calc(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, tol)
         wkb, _ = _core.fit_evaluate(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, _WKB)
         return self._combine(ex - wkb)
 
@@ -278,7 +280,7 @@ def run_corrected_rows(ev, n_params, vary, max_iterations, *, tolerance=ROWS_STE
     done = False
     if out["stop"] == "converged":
         p, e = out["params"], out["extra"]
-        offset = ev.corrections(p) if ev.plain else ev.exact(p, e)[0] - out["calc"]
+        offset = ev.corrections(p, loose=True) if ev.plain else ev.exact(p, e)[0] - out["calc"]
         refreshes += 1
         jacobians += 0 if ev.plain else 1
         history.append({"kind": "levels" if ev.plain else "levels and Jacobian", "step_sd": math.nan,
