@@ -1052,8 +1052,12 @@ class Prediction:
             " (%d to %d within one standard deviation of vD)" % (lo, hi) if (lo, hi) != (self.n_bound,) * 2 else ""))
 
     def to_text(self, last=None):
-        """A plain-text table; last=N shows only the N levels nearest dissociation."""
-        return _reports.prediction_text(self, last)
+        """A plain-text table; last=N shows only the N levels nearest dissociation. Quasibound levels
+        (predict(..., quasibound=True)) follow in their own table."""
+        text = _reports.prediction_text(self, last)
+        if getattr(self, "quasibound", None) is not None and len(self.quasibound):
+            text += "\n\n" + self.quasibound.to_text()
+        return text
 
     def __str__(self):
         return self.to_text()

@@ -38,11 +38,15 @@ def lines(n, seed=1):
         if (label, J) not in cache:
             cache[(label, J)] = wkbfit.levels(TRUE, MASSES[label], J=J, method="exact").energy
         return cache[(label, J)][v]
-    for _ in range(n):
+    seen = set()
+    while len(seen) < n:
         label = str(rng.choice(list(MASSES)))
         Jl, vl = int(rng.integers(0, 31)), int(rng.integers(0, 8))
         vu = int(rng.integers(vl + 1, 70))
         Ju = Jl + 1 if Jl == 0 or rng.random() < 0.5 else Jl - 1
+        if (label, vu, Ju, vl, Jl) in seen:
+            continue  # each transition once
+        seen.add((label, vu, Ju, vl, Jl))
         for key, val in (("isotopologue", label), ("v_upper", vu), ("J_upper", Ju), ("v_lower", vl),
                          ("J_lower", Jl), ("wavenumber", E(label, vu, Ju) - E(label, vl, Jl))):
             cols[key].append(val)
