@@ -283,8 +283,12 @@ def run_corrected_rows(ev, n_params, vary, max_iterations, *, tolerance=ROWS_STE
         offset = ev.corrections(p, loose=True) if ev.plain else ev.exact(p, e)[0] - out["calc"]
         refreshes += 1
         jacobians += 0 if ev.plain else 1
-        history.append({"kind": "levels" if ev.plain else "levels and Jacobian", "step_sd": math.nan,
-                        "chi_square": math.nan})
+        # the exact problem's Gauss-Newton step there, with the WKB Jacobian (as run_corrected reports it)
+        var0 = [k for k in range(n_params) if vary[k] and not out["insensitive"][k]] + \
+            list(range(n_params, n_params + len(e)))
+        step0, sd0, chi0 = _gauss_newton(out["calc"] + offset, out["jacobian"], observed, sigma, var0)
+        history.append({"kind": "levels" if ev.plain else "levels and Jacobian",
+                        "step_sd": float(np.max(np.abs(step0) / sd0)) if var0 else 0.0, "chi_square": chi0})
         out = ev.run(p, e, offset, _WKB, max_iterations)
         iterations += out["iterations"]
         n_eval += out["n_eval"]
