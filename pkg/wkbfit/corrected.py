@@ -238,12 +238,13 @@ class RowEvaluator:
         wkb, _ = _core.fit_evaluate(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, _WKB)
         return self._combine(ex - wkb)
 
-    def exact(self, p, e):
-        """(calc, jacobian [rows, params + extras], extras, level calculations) of the exact rows at p."""
+    def exact(self, p, e, wkb=None):
+        """(calc, jacobian [rows, params + extras], extras, level calculations) of the exact rows at p.
+        wkb: None, or the WKB rows at (p, e) already known (calc without offset, jacobian, extra)."""
         if not self.plain:
             ex = self.run(p, e, self.zero, _EXACT, 0)
             return ex["calc"], ex["jacobian"], np.asarray(ex["extra"], dtype=float), ex["n_level_calculations"]
-        wk = self.run(p, e, self.zero, _WKB, 0)
+        wk = self.run(p, e, self.zero, _WKB, 0) if wkb is None else wkb
         E_ex, J_ex = _core.fit_evaluate(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, _EXACT, self.tol)
         E_w, J_w = _core.fit_evaluate(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, _WKB)
         jac = np.array(wk["jacobian"], dtype=float)
@@ -294,7 +295,9 @@ def run_corrected_rows(ev, n_params, vary, max_iterations, *, tolerance=ROWS_STE
         n_eval += out["n_eval"]
     if out["stop"] == "converged":
         var = [k for k in range(n_params) if vary[k] and not out["insensitive"][k]]
-        calc, jac, e, n_levels = ev.exact(out["params"], out["extra"])
+        # the WKB rows at the run's end are known: its calc less the corrections, with its extras
+        calc, jac, e, n_levels = ev.exact(out["params"], out["extra"], {
+            "calc": out["calc"] - offset, "jacobian": out["jacobian"], "extra": out["extra"]})
         var += list(range(n_params, n_params + len(e)))
         p = np.array(out["params"], dtype=float)
         refreshes += 1
