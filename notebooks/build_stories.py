@@ -168,11 +168,15 @@ ax = plots.wkb_vs_exact(fits["exact"].potential, observed.masses_by_isotopologue
     ("md", """\
 ## vD and D0
 
-With one-sigma uncertainties from the fit's covariance (linear propagation):"""),
+With one-sigma uncertainties from the fit's covariance (linear propagation; v_th and vD by differences along
+the covariance's principal axes). v_th is the quantum threshold number (levels v < v_th are bound); vD the
+quantum number at dissociation of the accurate levels, v_th + 1/8 for a C6 tail:"""),
     ("code", """\
 p = fits["exact"].predict()
-print("vD = %.4f +/- %.4f (invented truth: first-order vD %.4f); bound levels %d (truth %d)"
-      % (p.vD, p.vD_uncertainty, wkbfit.levels(invented_truth, label).vD, p.n_bound, len(exact)))
+truth_table = wkbfit.levels(invented_truth, label)   # matched rule: the truth's threshold number v_th
+print("v_th = %.4f +/- %.4f, vD = v_th + 1/8 = %.4f +/- %.4f (invented truth: v_th %.4f, vD %.4f); bound levels %d "
+      "(truth %d)" % (p.v_th, p.v_th_uncertainty, p.vD, p.vD_uncertainty, truth_table.v_th, truth_table.v_th + 0.125,
+                      p.n_bound, len(exact)))
 print("D0 = %.4f +/- %.4f cm-1 (invented truth %.4f cm-1)" % (p.D0, p.D0_uncertainty, exact.binding_energy[0]))"""),
     ("md", "*Reminder: every number above is invented.*"),
 ]

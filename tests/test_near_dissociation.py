@@ -146,16 +146,22 @@ def test_long_range_tail_read_off_the_models():
 
 
 def test_predictions_give_v_th():
-    # physics.md 4c: v_th = vD - 1/8 for a C6 tail. Exact levels of MLR_C6 (noise-free, sigma 1e-6) fitted by
-    # the default method: the prediction's v_th (from the threshold law at the last level, bound by
-    # 0.03 E_beta) agrees with vD - 1/8 of the fitted potential within 3e-3 (as in the threshold test).
+    # physics.md 4c: v_th = vD - 1/8 for a C6 tail, and the quadratic threshold law v_th - v = bbar kappa/pi at the
+    # last level. Exact levels of MLR_C6 (noise-free, sigma 1e-3) fitted by the default method: the prediction's
+    # v_th (matched rule) agrees with the threshold law applied to the fitted potential's last EXACT level (bound
+    # by 0.03 E_beta; O(kappa) error ~3e-3 there, as in the threshold test), and vD = v_th + 1/8.
+    from wkbfit.near_dissociation import threshold_number
     mu = 39.945
     table = wkbfit.levels(MLR_C6, mu, v=list(range(0, 90, 6)), method="exact")
     obs = wkbfit.read_levels({"v": table.v, "energy": table.energy, "uncertainty": np.full(len(table), 1e-3)})
     result = wkbfit.fit(MLR_C6.with_params(De=5990.0), obs, mu=mu)
     pred = result.predict()
-    assert "threshold law" in " ".join(pred.notes)
-    assert pred.v_th == pytest.approx(pred.vD - 0.125, abs=3e-3)
+    assert "matched rule" in " ".join(pred.notes)
+    exact = wkbfit.levels(result.potential, mu, method="exact")
+    ref, _, note = threshold_number(result.potential, mu, exact.binding_energy, np.zeros(len(exact)), 0.0, 0.0)
+    assert "quadratic threshold law" in note
+    assert pred.v_th == pytest.approx(ref, abs=3e-3)
+    assert pred.v_th == pytest.approx(pred.vD - 0.125, abs=1e-12)
     assert "v_th = " in pred.summary() and pred.v_th_uncertainty > 0
     with pytest.warns(wkbfit.fitting.FitWarning, match="wkb levels"):
         wkb = wkbfit.fit(MLR_C6.with_params(De=5990.0), obs, mu=mu, method="wkb")

@@ -307,13 +307,20 @@ def _demo_near_dissociation(demo, obs, result, true):
             "%+.4f cm-1 (%+.1f sd)" % (D[0] - true.De, (D[0] - true.De) / D[1]) if D[1] else "(fixed)",
             100 * (C6[0] / true.params["C6"] - 1), (C6[0] - true.params["C6"]) / C6[1]))
     pred = result.predict(isotopologue=label)
-    lines.append("From the potential fit: De = %.4f +/- %.4f cm-1, D0 = %.4f +/- %.4f cm-1, vD = %.4f +/- %.4f (WKB); "
-                 "v_th = vD - 1/8 = %.4f (physics.md 4c)" % (
+    lines.append("From the potential fit: De = %.4f +/- %.4f cm-1, D0 = %.4f +/- %.4f cm-1, v_th = %.4f +/- %.4f "
+                 "(matched rule), vD = v_th + 1/8 = %.4f +/- %.4f (physics.md 4c), %d bound levels" % (
                      result.params["De"].value, result.params["De"].uncertainty, pred.D0, pred.D0_uncertainty,
-                     pred.vD, pred.vD_uncertainty, pred.vD - 0.125))
-    true_vD = levels(true, mu).vD
-    lines.append("The truth (known only because the data are invented): De = %.4f cm-1, C6 = %.6g cm-1 A^6, vD = %.4f "
-                 "(WKB), v_th = %.4f" % (true.De, true.params["C6"], true_vD, true_vD - 0.125))
+                     pred.v_th, pred.v_th_uncertainty, pred.vD, pred.vD_uncertainty, pred.n_bound)
+                 if pred.v_th is not None else
+                 "From the potential fit: De = %.4f +/- %.4f cm-1, D0 = %.4f +/- %.4f cm-1, vD = %.4f +/- %.4f "
+                 "(first-order WKB), %d bound levels" % (
+                     result.params["De"].value, result.params["De"].uncertainty, pred.D0, pred.D0_uncertainty,
+                     pred.vD, pred.vD_uncertainty, pred.n_bound))
+    true_table = levels(true, mu)
+    true_exact = levels(true, mu, method="exact")
+    lines.append("The truth (known only because the data are invented): De = %.4f cm-1, C6 = %.6g cm-1 A^6, v_th = %.4f "
+                 "(matched rule; vD = %.4f), %d bound exact levels" % (
+                     true.De, true.params["C6"], true_table.v_th, true_table.v_th + 0.125, len(true_exact)))
     lines.append("Near-dissociation expansion against the truth: " + "; ".join(against) + ". Levels bound by up to "
                  "~100 cm-1 reach in to ~7 A, where this MLR's tail is not yet C6/r^6 alone: the expansion's few terms "
                  "absorb that, biasing C6; the potential fit, which uses the whole curve, does not.")

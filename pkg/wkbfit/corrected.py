@@ -25,7 +25,8 @@ import numpy as np
 
 from . import _core
 
-__all__ = ["run_corrected", "run_with_unbound_rows", "LINEAR_STEP", "REMAINDER_SD", "MAX_REFRESHES"]
+__all__ = ["run_corrected", "run_corrected_rows", "RowEvaluator", "run_with_unbound_rows", "LINEAR_STEP", "REMAINDER_SD",
+           "ROWS_STEP", "MAX_REFRESHES"]
 
 #: the exact Gauss-Newton step is taken (and the fit ends) when it is below LINEAR_STEP standard
 #: deviations for every parameter and the correction for its second-order remainder (estimated
@@ -37,6 +38,11 @@ REMAINDER_SD = 0.1
 FIRST_RUN_DECREASE = 1e-3
 #: exact refreshes at most (each one exact evaluation)
 MAX_REFRESHES = 12
+#: the row engine (line positions, several data sets, free term values, Born-Oppenheimer terms) iterates chord
+#: Gauss-Newton steps of the exact problem until the step is below ROWS_STEP standard deviations for every
+#: parameter; that last step is taken linearly: its second-order remainder scales as the square of the step
+#: and is < 0.1 sd for 30-sd steps (measured by run_corrected's remainder check), so < 1e-5 sd here
+ROWS_STEP = 0.1
 
 _WKB, _EXACT = 0, 1
 
@@ -189,6 +195,141 @@ def run_corrected(args, *, tolerance=LINEAR_STEP, max_refreshes=MAX_REFRESHES):
     out.update(iterations=iterations, n_eval=n_eval, refreshes=refreshes, exact_jacobians=jacobians,
                history=history, remainder=remainder, converged_refreshes=done or out["stop"] != "converged",
                level_tolerance=tol_levels)
+    return out
+
+
+class RowEvaluator:
+    """Exact and first-order WKB evaluations of the row engine's rows at (params, extras).
+
+    run(params, extra, offset, method, max_iterations): a call of _core.fit_run_rows (max_iterations=0
+    evaluates the rows and their Jacobian without a step; the extras are re-solved linearly there).
+    For plain levels (no Born-Oppenheimer variants) the exact rows are the WKB rows plus the combination of
+    per-level E_exact - E_wkb (and the same for the Jacobian), with the exact levels computed to the
+    tolerance the data need (exact_tolerance) by one fit_evaluate over the distinct levels: ~1/4 of the
+    row engine's own exact evaluation, which converges every level to the solver's default accuracy.
+    Levels only (no derivatives) use exact_calc (one solver call per (mu, J)) when Omega = 0.
+    """
+
+    def __init__(self, run, model, curve, lv, lrot, lmu, rows, plain, omega):
+        self.run, self.model, self.curve = run, model, curve
+        self.lv, self.lrot, self.lmu, self.rows = lv, lrot, lmu, rows
+        self.plain, self.omega = plain, omega
+        self.tol = exact_tolerance(rows["sigma"])
+        self.zero = np.zeros(len(rows["observed"]))
+
+    def _combine(self, per_level):
+        """Rows from per-level values (vector or matrix): sum of coef * value over the row's levels."""
+        r = self.rows
+        out = np.zeros((len(r["observed"]),) + per_level.shape[1:])
+        for level, coef in ((r["level_a"], r["coef_a"]), (r["level_b"], r["coef_b"])):
+            has = level >= 0
+            c = coef[has] if per_level.ndim == 1 else coef[has][:, None]
+            out[has] += c * per_level[level[has]]
+        return out
+
+    def corrections(self, p, loose=False):
+        """Per row: E_exact - E_wkb of its levels at p (levels only), cm-1. loose: to 1e-2 of the smallest
+        uncertainty (the first refresh, whose error the exact evaluation after it measures and removes)."""
+        tol = min(1e-3, max(self.tol, 1e-2 * float(np.min(self.rows["sigma"])))) if loose else self.tol
+        if self.omega:
+            ex, _ = _core.fit_evaluate(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, _EXACT, tol)
+        else:
+            ex, _ = exact_calc(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, tol)
+        wkb, _ = _core.fit_evaluate(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, _WKB)
+        return self._combine(ex - wkb)
+
+    def exact(self, p, e, wkb=None):
+        """(calc, jacobian [rows, params + extras], extras, level calculations) of the exact rows at p.
+        wkb: None, or the WKB rows at (p, e) already known (calc without offset, jacobian, extra)."""
+        if not self.plain:
+            ex = self.run(p, e, self.zero, _EXACT, 0)
+            return ex["calc"], ex["jacobian"], np.asarray(ex["extra"], dtype=float), ex["n_level_calculations"]
+        wk = self.run(p, e, self.zero, _WKB, 0) if wkb is None else wkb
+        E_ex, J_ex = _core.fit_evaluate(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, _EXACT, self.tol)
+        E_w, J_w = _core.fit_evaluate(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, _WKB)
+        jac = np.array(wk["jacobian"], dtype=float)
+        jac[:, :J_ex.shape[1]] += self._combine(J_ex - J_w)
+        return wk["calc"] + self._combine(E_ex - E_w), jac, np.asarray(wk["extra"], dtype=float), len(self.lv)
+
+    def levels(self, p, e):
+        """(calc, extras) of the exact rows at p from exact levels only (plain levels), else from exact()."""
+        if not self.plain:
+            calc, _, e_new, _ = self.exact(p, e)
+            return calc, e_new
+        wk = self.run(p, e, self.corrections(p), _WKB, 0)
+        return wk["calc"], np.asarray(wk["extra"], dtype=float)
+
+
+def run_corrected_rows(ev, n_params, vary, max_iterations, *, tolerance=ROWS_STEP, max_refreshes=MAX_REFRESHES):
+    """The corrected fit on the row engine (_core.fit_run_rows: rows are linear combinations of levels,
+    plus free term values or fitted asymptotes, the "extras"). ev: a RowEvaluator; vary: flags of the
+    model's parameters (the extras are always varied).
+
+    1. a first-order WKB run; 2. per-row corrections E_exact - E_wkb at its point and a WKB run with
+    them fixed in the rows' offset (the WKB Jacobian leaves this a few sd from the exact minimum);
+    3. one exact evaluation with the exact Jacobian J, then chord Gauss-Newton steps of the exact
+    problem with J held, the exact rows at each new point from exact levels only, until the step is
+    below `tolerance` sd for every parameter (extras included); that last step is taken linearly.
+    The covariance comes from J (evaluated within a few sd of the end: its change there is ~1e-5).
+    Returns the final dict (params, extra, calc, jacobian exact) plus refreshes (exact evaluations),
+    exact_jacobians, iterations, n_eval, history, converged_refreshes.
+    """
+    observed, sigma = np.asarray(ev.rows["observed"], dtype=float), np.asarray(ev.rows["sigma"], dtype=float)
+    out = ev.run(None, None, ev.zero, _WKB, max_iterations)
+    iterations, n_eval, history = out["iterations"], out["n_eval"], []
+    refreshes = jacobians = 0
+    done = False
+    if out["stop"] == "converged":
+        p, e = out["params"], out["extra"]
+        offset = ev.corrections(p, loose=True) if ev.plain else ev.exact(p, e)[0] - out["calc"]
+        refreshes += 1
+        jacobians += 0 if ev.plain else 1
+        # the exact problem's Gauss-Newton step there, with the WKB Jacobian (as run_corrected reports it)
+        var0 = [k for k in range(n_params) if vary[k] and not out["insensitive"][k]] + \
+            list(range(n_params, n_params + len(e)))
+        step0, sd0, chi0 = _gauss_newton(out["calc"] + offset, out["jacobian"], observed, sigma, var0)
+        history.append({"kind": "levels" if ev.plain else "levels and Jacobian",
+                        "step_sd": float(np.max(np.abs(step0) / sd0)) if var0 else 0.0, "chi_square": chi0})
+        out = ev.run(p, e, offset, _WKB, max_iterations)
+        iterations += out["iterations"]
+        n_eval += out["n_eval"]
+    if out["stop"] == "converged":
+        var = [k for k in range(n_params) if vary[k] and not out["insensitive"][k]]
+        # the WKB rows at the run's end are known: its calc less the corrections, with its extras
+        calc, jac, e, n_levels = ev.exact(out["params"], out["extra"], {
+            "calc": out["calc"] - offset, "jacobian": out["jacobian"], "extra": out["extra"]})
+        var += list(range(n_params, n_params + len(e)))
+        p = np.array(out["params"], dtype=float)
+        refreshes += 1
+        jacobians += 1
+        kind = "levels and Jacobian"
+        while True:
+            step, sd, chi2 = _gauss_newton(calc, jac, observed, sigma, var)
+            worst = float(np.max(np.abs(step) / sd)) if var else 0.0
+            history.append({"kind": kind, "step_sd": worst, "chi_square": chi2})
+            full = np.zeros(n_params + len(e))
+            full[var] = step
+            if worst < tolerance:
+                done = True
+                calc = calc + jac @ full
+                p, e = p + full[:n_params], e + full[n_params:]
+                break
+            if refreshes >= max_refreshes:
+                break
+            p, e = p + full[:n_params], e + full[n_params:]
+            try:
+                calc, e = ev.levels(p, e)
+            except ValueError:
+                break  # the step leaves the model's domain: stop at the last point (not self-consistent)
+            refreshes += 1
+            kind = "levels"
+        r = (calc - observed) / sigma
+        out = dict(out)
+        out.update(params=p, extra=e, calc=calc, jacobian=jac, chi_square=float(r @ r),
+                   n_level_calculations=out["n_level_calculations"] + n_levels)
+    out = dict(out)
+    out.update(iterations=iterations, n_eval=n_eval, refreshes=refreshes, exact_jacobians=jacobians,
+               history=history, converged_refreshes=done or out["stop"] != "converged")
     return out
 
 

@@ -121,7 +121,10 @@ def fit(potential, observed, mu=None, *, method="corrected", vary=None, bounds=N
         held fixed during a run and refreshed by one exact evaluation until the exact problem's
         Gauss-Newton step is below 1e-3 standard deviation (wkbfit.corrected); parameters,
         uncertainties and residuals are those of the exact-levels fit. `refreshes` counts the
-        exact evaluations.
+        exact evaluations. Every data kind uses it: one set of term values or binding energies
+        (corrected.run_corrected), and line positions, several data sets, free term values, fitted
+        asymptotes, Omega and Born-Oppenheimer terms (per-row corrections, then chord Gauss-Newton
+        steps of the exact problem: corrected.run_corrected_rows).
         "wkb": first-order WKB levels only (fast; biased where WKB is not exact, which the
         method-error check after the fit detects and warns about).
         "exact": levels of the radial Schroedinger equation in every iteration, with the Jacobian
@@ -220,14 +223,6 @@ def fit(potential, observed, mu=None, *, method="corrected", vary=None, bounds=N
         return _fit_levels_engine(potential, datasets[0], masses, method, vary_flags, lower, upper,
                                   bounds_by_name, scale_uncertainties, max_iterations, names, int(sum(vary_flags)),
                                   design)
-    engine_note = None
-    if method == "corrected":
-        # the refresh loop of the corrected fit runs on term values only so far: mixed data kinds get the
-        # exact levels (the accurate choice, slower), and the result says so
-        method = "exact"
-        engine_note = ("the corrected method covers one set of term values or binding energies; these data (line "
-                       "positions, several data sets, a fitted asymptote, Omega or Born-Oppenheimer terms) were "
-                       "fitted with exact levels in every iteration")
     lv, lrot, lmu, rows = design.arrays(masses, omega)
     bob_kwargs = {}
     if bob is not None:
@@ -238,12 +233,22 @@ def fit(potential, observed, mu=None, *, method="corrected", vary=None, bounds=N
         params0 = np.concatenate([params0, bob.start])
         bob_kwargs = dict(bob_counts=np.array(bob.counts, dtype=np.intc), bob_power=float(bob.p), level_variant=var,
                           variant_adiabatic=ad, variant_centrifugal=na, variant_rot_eps=rot_eps)
+    extra_start = np.array(design.extra_start, dtype=float)
+    vary_c = np.asarray(vary_flags, dtype=np.intc)
+
+    def run_rows(p, extra, offset, code, iterations):
+        return _core.fit_run_rows(model, params0 if p is None else p, curve, lv, lrot, lmu, rows["level_a"],
+                                  rows["coef_a"], rows["level_b"], rows["coef_b"], rows["coef_asymptote"],
+                                  rows["extra_index"], rows["coef_extra"], rows["offset"] + offset, rows["observed"],
+                                  rows["sigma"], extra_start if extra is None else extra, vary_c, lower, upper,
+                                  max_iterations if iterations < 0 else iterations, method=code, **bob_kwargs)
     try:
-        out = _core.fit_run_rows(model, params0, curve, lv, lrot, lmu, rows["level_a"], rows["coef_a"],
-                                 rows["level_b"], rows["coef_b"], rows["coef_asymptote"], rows["extra_index"],
-                                 rows["coef_extra"], rows["offset"], rows["observed"], rows["sigma"],
-                                 np.array(design.extra_start, dtype=float), np.asarray(vary_flags, dtype=np.intc),
-                                 lower, upper, max_iterations, method=_METHOD_CODES[method], **bob_kwargs)
+        if method == "corrected":
+            # WKB iterations with per-row exact corrections on the row engine (corrected.run_corrected_rows)
+            ev = _corrected.RowEvaluator(run_rows, model, curve, lv, lrot, lmu, rows, bob is None, omega)
+            out = _corrected.run_corrected_rows(ev, len(params0), vary_flags, -1)
+        else:
+            out = run_rows(None, None, 0.0, _METHOD_CODES[method], -1)
     except ValueError as err:
         if len(err.args) == 2 and isinstance(err.args[1], int):
             raise ValueError(_start_failure_message(err.args[0], design, err.args[1], potential)) from None
@@ -284,9 +289,14 @@ def fit(potential, observed, mu=None, *, method="corrected", vary=None, bounds=N
         observed_values=observed_values, sigma=sigma, design=design, extra_values=out["extra"],
         jacobian_extra=jac[:, np_:], n_level_calculations=int(out["n_level_calculations"]), omega=omega,
         correction=bob, correction_values=out["params"][len(names):].tolist())
-    result.refreshes, result.refresh_history, result.start_notes = 0, [], []
-    if engine_note:
-        result.start_notes.append(engine_note)
+    result.refreshes = int(out.get("refreshes", 0))
+    result.refresh_history = list(out.get("history", ()))
+    result.start_notes = []
+    if method == "corrected" and not out["converged_refreshes"]:
+        result.status = "max_iterations"
+        result.message = ("the exact corrections did not become self-consistent in %d refreshes (last exact "
+                          "Gauss-Newton step %.3g standard deviations)"
+                          % (result.refreshes, result.refresh_history[-1]["step_sd"]))
     result.fit_options = {"method": method, "vary": list(result.var_names),
                           "bounds": {n: b for n, b in bounds_by_name.items() if b != (None, None)},
                           "scale_uncertainties": bool(scale_uncertainties), "max_iterations": max_iterations,
@@ -904,95 +914,30 @@ class FitResult:
                 grad[k] = (vals[0] - vals[1]) / (2 * h)
         return grad
 
-    def predict(self, isotopologue=None, mu=None, J=0, *, order=None, ends=None):
-        """Every bound level of the fitted potential with propagated one-sigma uncertainties.
+    def predict(self, isotopologue=None, mu=None, J=0, *, order=None, ends=None, quasibound=False):
+        """Every bound level of the fitted potential, up to the last, with propagated one-sigma uncertainties.
 
         isotopologue: a label (its fitted reduced mass, or one from the mass table); mu: a
         reduced mass in u (or a pair of isotopes); with neither, the fit's only isotopologue.
         J: rotational quantum number (integer >= 0).
         order, ends: a semiclassical level rule for the predicted energies as in `levels` (for example
-        order=2, ends="matched"); by default the fit's own levels (exact levels unless the fit's method is
-        "wkb"). The uncertainties use the gradients dE/dp of the fit's own rule.
-        Uncertainties come from the covariance and the Jacobian dE/dp (linear propagation), with
-        each level's method error (`method_error`: |WKB - exact| for method "wkb", the exact
-        solver's error estimate otherwise) added in quadrature. Levels are exact levels unless the
-        fit's method is "wkb". For J = 0 and exact levels, v_th (the quantum threshold number, with
-        v_th_uncertainty; wkbfit.near_dissociation.threshold_number); quasibound levels are not computed
-        yet (quasibound None): they come with the matched-end-phase levels.
-        Returns a Prediction: levels, binding energies, spacings dG(v+1/2), D0, vD and the
-        number of bound levels, each with its uncertainty.
+        order=2, ends="matched"); by default the fit's own accurate levels: exact levels (methods
+        "corrected" and "exact"), first-order WKB levels for a "wkb" fit.
+        quasibound: also predict the quasibound levels behind the barrier of V_J (pred.quasibound, a
+        QuasiboundPrediction: positions, FWHM widths, lifetimes, with uncertainties): exact resonance
+        poles for accurate fits (each standard deviation costs one exact resonance search per
+        principal axis of the covariance, ~0.1-1 s), the semiclassical rule for a "wkb" fit.
+        Returns a Prediction: levels, binding energies, spacings dG(v+1/2), D0, the quantum threshold
+        number v_th (levels v < v_th are bound; matched rule), vD (the quantum number at dissociation of
+        the accurate levels: v_th + 1/(2(n-2)) at J = 0 for a -C_n/r^n tail, physics.md 4c; first-order
+        WKB for a "wkb" fit; `vD_first_order` always) and the number of bound levels with its range
+        `n_bound_range` for v_th -+ one sd, each with its uncertainty. Uncertainties: linear propagation
+        of the covariance with analytic gradients (levels, D0), or central differences of the accurate
+        quantity one sd along each principal axis of the covariance (v_th, vD, quasibound levels); each
+        level's method error (`method_error`) in quadrature. See wkbfit.predictions.
         """
-        mass, label = self._resolve_mu(isotopologue, mu)
-        J = _validate.integer(J, "J", 0, _validate.MAX_QUANTUM_NUMBER, "an integer >= 0")
-        omega = int(getattr(self, "omega", 0) or 0)
-        if J < omega:
-            raise ValueError("J=%d is below Omega=%d of the fitted state: its levels have J >= Omega" % (J, omega))
-        model, params, curve = self.potential._core_args()
-        code = _level_code(self.method)
-        res = _core.fit_levels(model, params, curve, mass, float(J * (J + 1) - omega * omega), code)
-        E, G = res["energy"], res["jacobian"]
-        rule_note = None
-        if order is not None or ends is not None:
-            from .levels import levels as _levels
-            table = _levels(self.potential, mass, J=J, order=order, ends=ends)
-            n = min(len(table), len(E))
-            E, G = np.array(table.energy[:n]), G[:n]
-            rule_note = ("levels from the %s rule of the fitted potential (%d bound; the fit's own rule "
-                         "binds %d); uncertainties from the gradients of the fit's rule" % (
-                             table.method, len(table), len(res["energy"])))
-        asym, dA = res["asymptote"], self._asymptote_gradient()
-        if J == omega:
-            E00, G00 = (E[0], G[0]) if len(E) else (math.nan, np.full(len(dA), math.nan))
-        else:
-            r0 = _core.fit_levels(model, params, curve, mass, float(omega), code)  # v=0, J=Omega
-            E00, G00 = (r0["energy"][0], r0["jacobian"][0]) if len(r0["energy"]) else \
-                (math.nan, np.full(len(dA), math.nan))
-        notes = []
-        if self.undetermined:
-            notes.append("uncertainties leave out the undetermined parameter%s %s (held at their values)" % (
-                "s" if len(self.undetermined) > 1 else "", ", ".join(self.undetermined)))
-        if getattr(self, "correction", None) is not None:
-            notes.append("levels of the reference isotopologue's potential (%s): the Born-Oppenheimer corrections "
-                         "of other isotopologues are not applied to predictions" % self.correction.reference)
-        if rule_note:
-            notes.append(rule_note)
-        elif self.method == "wkb":
-            notes.append("levels are first-order WKB levels of the fitted potential")
-        else:
-            notes.append("levels are exact levels of the fitted potential (radial Schroedinger equation); vD and "
-                         "its uncertainty are semiclassical (first-order WKB)")
-        merr, merr00, note = _method_error.prediction_method_errors("wkb" if rule_note else self.method,
-                                                                    self.potential, mass, J, E, E00)
-        notes.append(note)
-        e_unc = np.hypot(self._propagate(G), merr)
-        b_unc = np.hypot(self._propagate(dA[None, :] - G), merr)
-        if len(E) > 1:
-            spacing = np.diff(E)
-            s_unc = np.hypot(self._propagate(np.diff(G, axis=0)), np.hypot(merr[1:], merr[:-1]))
-        else:
-            spacing, s_unc = np.zeros(0), np.zeros(0)
-        D0 = asym - E00
-        D0_unc = float(np.hypot(self._propagate((dA - G00)[None, :])[0], merr00)) if np.isfinite(D0) else math.nan
-        vD = res["vD"]
-        dvD = res["dvD_dp"]
-        if np.all(np.isfinite(dvD[self._gradient_covariance()[0]])):
-            vD_unc = float(self._propagate(dvD[None, :])[0])
-        else:
-            vD_unc = math.nan
-            notes.append("the uncertainty of vD could not be computed (a perturbed potential is invalid)")
-        pred = Prediction(E, e_unc, asym - E, b_unc, spacing, s_unc, J=J, mu=mass, isotopologue=label,
-                          D0=D0, D0_uncertainty=D0_unc, vD=vD, vD_uncertainty=vD_unc, potential=self.potential,
-                          method=self.method, notes=notes)
-        pred.method_error = _frozen(merr)
-        # the quantum threshold number (J = 0 series of exact levels); quasibound levels come with the
-        # matched-end-phase levels (hook: pred.quasibound)
-        pred.v_th, pred.v_th_uncertainty, pred.quasibound = None, None, None
-        if J == 0 and self.method != "wkb" and math.isfinite(vD):
-            from .near_dissociation import threshold_number
-            pred.v_th, pred.v_th_uncertainty, note = threshold_number(self.potential, mass, asym - E, b_unc, vD,
-                                                                     vD_unc)
-            pred.notes.append(note)
-        return pred
+        from .predictions import predict
+        return predict(self, isotopologue, mu, J, order=order, ends=ends, quasibound=quasibound)
 
     # -- replicas -----------------------------------------------------------------------
     def bootstrap(self, n=1000, seed=1, kind="monte-carlo", executor=None, **options):
@@ -1116,8 +1061,12 @@ class Prediction:
             " (%d to %d within one standard deviation of vD)" % (lo, hi) if (lo, hi) != (self.n_bound,) * 2 else ""))
 
     def to_text(self, last=None):
-        """A plain-text table; last=N shows only the N levels nearest dissociation."""
-        return _reports.prediction_text(self, last)
+        """A plain-text table; last=N shows only the N levels nearest dissociation. Quasibound levels
+        (predict(..., quasibound=True)) follow in their own table."""
+        text = _reports.prediction_text(self, last)
+        if getattr(self, "quasibound", None) is not None and len(self.quasibound):
+            text += "\n\n" + self.quasibound.to_text()
+        return text
 
     def __str__(self):
         return self.to_text()
