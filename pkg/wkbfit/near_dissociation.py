@@ -140,6 +140,45 @@ class NearDissociationFit:
     def __str__(self):
         return self.table()
 
+    def __repr__(self):
+        return "<NearDissociationFit n=%g: D = %s cm-1, vD = %s, v_th = %s>" % (
+            self.tail_power, _pm(self.D, 6), _pm(self.vD, 4), _pm(self.v_th, 4))
+
+    def law_rows(self):
+        """One dict per law fitted: law, levels, D, vD, v_th, C_n (each with its uncertainty; NaN where the law
+        has no such parameter) and the sqrt of reduced chi-square."""
+        rows = []
+        for fit in (self.lb, self.expansion, self.threshold):
+            if fit is None:
+                continue
+            row = {"law": fit.law, "levels": len(fit.rows)}
+            for name in ("D", "vD", "v_th", "C_n"):
+                row[name], row[name + "_uncertainty"] = fit.params.get(name, (math.nan, math.nan))
+            row["sqrt_reduced_chi_square"] = fit.standard_error if fit.standard_error is not None else math.nan
+            rows.append(row)
+        return rows
+
+    def to_dataframe(self):
+        """The laws fitted, one row each (law_rows), as a pandas DataFrame; units: D cm-1, C_n cm-1 A^n."""
+        from ._optional import pandas
+        return pandas().DataFrame(self.law_rows())
+
+    def _repr_html_(self):
+        from .reports import html_table
+        rows = self.law_rows()
+        col = lambda k: np.array([r[k] for r in rows])  # noqa: E731
+        n = self.tail_power
+        cols = [("law", "", np.array([r["law"] for r in rows], dtype=object), "%s"), ("levels", "", col("levels"), "%d"),
+                ("D", "cm-1", col("D"), "%.6f"), ("+/-", "cm-1", col("D_uncertainty"), "%.2g"),
+                ("vD", "", col("vD"), "%.4f"), ("+/-", "", col("vD_uncertainty"), "%.2g"),
+                ("v_th", "", col("v_th"), "%.4f"), ("+/-", "", col("v_th_uncertainty"), "%.2g"),
+                ("C_n", "cm-1 A^%g" % n, col("C_n"), "%.6g"), ("+/-", "cm-1 A^%g" % n, col("C_n_uncertainty"), "%.2g"),
+                ("sqrt of reduced chi-square", "", col("sqrt_reduced_chi_square"), "%.3f")]
+        return html_table(cols, "Near-dissociation fits (tail -C%g/r^%g; %s)" % (
+            n, n, "asymptote fixed" if self.asymptote_fixed else "asymptote fitted"), notes=[
+            "summary: D = %s cm-1, vD = %s, v_th = %s (%s); E_beta = %.3g cm-1" % (
+                _pm(self.D, 6), _pm(self.vD, 4), _pm(self.v_th, 4), self.v_th_source, self.E_beta)] + self.notes)
+
 
 def _pm(pair, digits):
     if pair is None:
