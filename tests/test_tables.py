@@ -131,3 +131,15 @@ def test_levels_and_exact_import_each_other_in_one_direction_only():
 
     assert "exact" not in imported("levels") and "levels" in imported("exact")
     assert wkbfit.levels(LJ, 20.0, v=[0], method="exact").method == "exact"  # the dispatch still works
+
+
+def test_near_dissociation_table_has_units_line_and_aligned_columns(objects):
+    import re
+    near = objects["near_dissociation"]
+    lines = near.table().splitlines()
+    k = next(i for i, line in enumerate(lines) if "[cm-1]" in line)
+    assert "sqrt of reduced chi-square" in lines[k - 1]
+    ends = [m.end() for m in re.finditer(r"\S+", lines[k])]
+    laws = [f for f in (near.lb, near.expansion, near.threshold) if f is not None]
+    for row in lines[k + 1:k + 1 + len(laws)]:
+        assert [m.end() for m in re.finditer(r"\S+", row)] == ends, (lines[k], row)

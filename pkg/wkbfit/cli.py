@@ -312,13 +312,17 @@ def _demo_near_dissociation(demo, obs, result, true):
             "%+.4f cm-1 (%+.1f sd)" % (D[0] - true.De, (D[0] - true.De) / D[1]) if D[1] else "(fixed)",
             100 * (C6[0] / true.params["C6"] - 1), (C6[0] - true.params["C6"]) / C6[1]))
     pred = result.predict(isotopologue=label)
-    lines.append("From the potential fit: De = %.4f +/- %.4f cm-1, D0 = %.4f +/- %.4f cm-1, vD = %.4f +/- %.4f (WKB); "
-                 "v_th = vD - 1/8 = %.4f (physics.md 4c)" % (
-                     result.params["De"].value, result.params["De"].uncertainty, pred.D0, pred.D0_uncertainty,
-                     pred.vD, pred.vD_uncertainty, pred.vD - 0.125))
-    true_vD = levels(true, mu).vD
+    if pred.v_th is not None:
+        v_th = "v_th = %.4f +/- %.4f (the quantum threshold number)" % (pred.v_th, pred.v_th_uncertainty)
+    else:  # a first-order WKB fit: no threshold number of its own
+        v_th = "v_th = vD - 1/8 = %.4f (physics.md 4c)" % (pred.vD - 0.125)
+    lines.append("From the potential fit: De = %.4f +/- %.4f cm-1, D0 = %.4f +/- %.4f cm-1, vD = %.4f +/- %.4f "
+                 "(first-order WKB); %s" % (result.params["De"].value, result.params["De"].uncertainty, pred.D0,
+                                            pred.D0_uncertainty, pred.vD, pred.vD_uncertainty, v_th))
+    truth = levels(true, mu)  # the default rule: second order, matched end phases
     lines.append("The truth (known only because the data are invented): De = %.4f cm-1, C6 = %.6g cm-1 A^6, vD = %.4f "
-                 "(WKB), v_th = %.4f" % (true.De, true.params["C6"], true_vD, true_vD - 0.125))
+                 "(first-order WKB), v_th = %.4f (matched rule at the asymptote)" % (
+                     true.De, true.params["C6"], levels(true, mu, order=1).vD, truth.v_th))
     lines.append("Near-dissociation expansion against the truth: " + "; ".join(against) + ". Levels bound by up to "
                  "~100 cm-1 reach in to ~7 A, where this MLR's tail is not yet C6/r^6 alone: the expansion's few terms "
                  "absorb that, biasing C6; the potential fit, which uses the whole curve, does not.")

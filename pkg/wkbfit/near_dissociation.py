@@ -115,21 +115,24 @@ class NearDissociationFit:
         self.notes = list(notes)
 
     def table(self):
-        """A plain-text table of the three laws."""
+        """A plain-text table of the laws fitted (a line of names, a line of units, aligned columns), the
+        summary and the notes."""
+        from .reports import text_table
+        rows = self.law_rows()
+        n = self.tail_power
+
+        def pm(name, digits):
+            return ["-" if not math.isfinite(r[name]) else _pm((r[name], r[name + "_uncertainty"]), digits)
+                    for r in rows]
+        table = text_table([
+            ("law", "", [r["law"] for r in rows], "%s"), ("levels", "", [r["levels"] for r in rows], "%d"),
+            ("D", "cm-1", pm("D", 6), "%s"), ("vD", "", pm("vD", 4), "%s"), ("v_th", "", pm("v_th", 4), "%s"),
+            ("C_n", "cm-1 A^%g" % n, ["-" if not math.isfinite(r["C_n"]) else "%.5g+/-%.2g" % (
+                r["C_n"], r["C_n_uncertainty"]) for r in rows], "%s"),
+            ("sqrt of reduced chi-square", "", [r["sqrt_reduced_chi_square"] for r in rows], "%.3f")])
         lines = ["Near-dissociation fits (tail -C%d/r^%d; %s)" % (
-            self.tail_power, self.tail_power, "asymptote fixed" if self.asymptote_fixed else "asymptote fitted"),
-            "  %-16s %5s %20s %16s %16s %14s %8s" % ("law", "levels", "D [cm-1]", "vD", "v_th", "C_n", "sqrt(chi2/dof)")]
-        for fit in (self.lb, self.expansion, self.threshold):
-            if fit is None:
-                continue
-            D = fit.params["D"]
-            vD = fit.params.get("vD")
-            vth = fit.params.get("v_th")
-            Cn = fit.params.get("C_n", (math.nan, math.nan))
-            se = "%8.3f" % fit.standard_error if fit.standard_error is not None else "%8s" % "-"
-            lines.append("  %-16s %5d %20s %16s %16s %14s %s" % (
-                fit.law, len(fit.rows), _pm(D, 6), _pm(vD, 4) if vD else "-", _pm(vth, 4) if vth else "-",
-                "%.5g+/-%.2g" % Cn if math.isfinite(Cn[0]) else "-", se))
+            n, n, "asymptote fixed" if self.asymptote_fixed else "asymptote fitted")]
+        lines.extend("  " + line for line in table.splitlines())
         lines.append("  summary: D = %s cm-1, vD = %s, v_th = %s (%s), C_n = %s; E_beta = %.3g cm-1" % (
             _pm(self.D, 6), _pm(self.vD, 4), _pm(self.v_th, 4), self.v_th_source,
             "%.6g +/- %.2g" % self.C_n if math.isfinite(self.C_n[0]) else "-", self.E_beta))
