@@ -333,3 +333,17 @@ def test_replicas_corner_ellipses_are_the_covariance(replica_result):
             r_lin = sub[0, 1] / math.sqrt(sub[0, 0] * sub[1, 1])
             r_rep = np.corrcoef(rep.values[names[j]], rep.values[names[i]])[0, 1]
             assert abs(np.arctanh(min(r_rep, 1 - 1e-12)) - np.arctanh(min(r_lin, 1 - 1e-12))) < 4 / math.sqrt(147)
+
+
+def test_potential_draws_the_rule_asked_for():
+    lj = wkbfit.LennardJones(De=1000.0, re=4.0, n=12, m=6)
+    for rule in ({"order": 1}, {"order": 2, "ends": "maslov"}, {}):
+        ax = plots.potential(lj, 20.0, **rule)
+        table = wkbfit.levels(lj, 20.0, **rule)
+        E = np.array([s[0, 1] for s in ax.collections[0].get_segments()])
+        assert np.array_equal(E, table.energy)
+    # the first-order levels differ from the default ones near dissociation (by more than 1e-3 cm-1 at the top)
+    first = np.array([s[0, 1] for s in plots.potential(lj, 20.0, order=1).collections[0].get_segments()])
+    default = wkbfit.levels(lj, 20.0).energy
+    n = min(len(first), len(default))
+    assert np.max(np.abs(first[:n] - default[:n])) > 1e-3
