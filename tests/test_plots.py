@@ -153,6 +153,12 @@ def test_near_dissociation_straight_line_for_a_pure_inverse_power_tail(lj_fit):
     assert np.allclose(x, pred.v[-6:]) and np.allclose(y, pred.binding_energy[-6:] ** alpha)
     # vD marked where it was predicted
     assert any(np.allclose(line.get_xdata(), pred.vD) for line in ax.lines)
+    # and the quantum threshold number v_th of the prediction, which agrees with the matched rule's number at
+    # the asymptote of the same potential (an independent route: the exact phase through the outer region)
+    (vth,) = [line for line in ax.lines if line.get_label().startswith("v_th = ")]
+    assert np.allclose(vth.get_xdata(), pred.v_th)
+    matched = wkbfit.levels(lj_fit.potential, lj_fit.masses["7Li133Cs"])
+    assert abs(pred.v_th - matched.v_th) < max(pred.v_th_uncertainty, 2e-3)
     # a Morse potential with exponent 1/2: sqrt(D - E) = sqrt(De) - (we/(2 sqrt(De))) (v + 1/2), linear in v
     ax = plots.near_dissociation(_morse_prediction(), n=None)
     x, y = ax.containers[0].lines[0].get_data()

@@ -314,8 +314,9 @@ def near_dissociation(source, ax=None, *, isotopologue=None, n=None, last=None):
     so this is a straight line reaching zero at vD. For an exponential tail (Morse, EMO, Poeschl-Teller)
     the exponent 1/2 is used, for which the Morse levels lie exactly on a line. source: a FitResult
     (measured levels as points, fitted ones with error bars) or a Prediction. n: the tail power
-    (default: that of the potential). last: draw only the last `last` levels. vD and its one-sigma
-    range are marked.
+    (default: that of the potential). last: draw only the last `last` levels. vD (first-order WKB)
+    and its one-sigma range are marked, and the quantum threshold number v_th where the prediction
+    has one (exact levels at J = 0).
     """
     pred, result = _prediction_of(source, isotopologue)
     n = tail_power(pred.potential) if n is None else float(n)
@@ -350,6 +351,10 @@ def near_dissociation(source, ax=None, *, isotopologue=None, n=None, last=None):
         ax.axvline(pred.vD, color="C3", lw=1, label="vD = %.3f +/- %.3f" % (pred.vD, pred.vD_uncertainty))
         if math.isfinite(pred.vD_uncertainty):
             ax.axvspan(pred.vD - pred.vD_uncertainty, pred.vD + pred.vD_uncertainty, color="C3", alpha=0.15, lw=0)
+    v_th = getattr(pred, "v_th", None)
+    if v_th is not None and math.isfinite(v_th):
+        ax.axvline(v_th, color="C2", lw=1, ls="-.", label="v_th = %.3f +/- %.3f (quantum threshold number)" % (
+            v_th, pred.v_th_uncertainty if pred.v_th_uncertainty is not None else math.nan))
     power = "1/2" if n is None else "(n-2)/(2n) = %.4g" % alpha
     ax.set_xlabel(V_LABEL)
     ax.set_ylabel("(D - E)$^{%s}$ [(cm$^{-1}$)$^{%s}$]" % ("1/2" if n is None else "%.3g" % alpha,
