@@ -353,3 +353,29 @@ def test_potential_draws_the_rule_asked_for():
     default = wkbfit.levels(lj, 20.0).energy
     n = min(len(first), len(default))
     assert np.max(np.abs(first[:n] - default[:n])) > 1e-3
+
+
+def test_near_dissociation_fit_plot_draws_its_levels_and_laws():
+    """The last 8 exact levels of a Lennard-Jones (12, 6) well: the levels as points, each law at the levels it
+    was fitted to (observed minus its residuals), vD and v_th where the fit put them."""
+    lj = wkbfit.LennardJones(De=4000.0, re=4.0, n=12, m=6)
+    t = wkbfit.levels(lj, 20.0, method="exact")
+    last = np.arange(len(t) - 8, len(t))
+    nd = wkbfit.near_dissociation_fit(t.v[last], t.energy[last], np.full(8, 1e-4), 6, mu=20.0)
+    ax = nd.plot()
+    assert has_units(ax)
+    alpha = (6 - 2) / 12
+    x, y = ax.containers[0].lines[0].get_data()
+    assert np.array_equal(x, t.v[last]) and np.allclose(y, (nd.D[0] - t.energy[last]) ** alpha, rtol=1e-12)
+    for law in (nd.lb, nd.expansion):
+        (line,) = [ln for ln in ax.lines if ln.get_label().startswith(law.law + " law")]
+        calc = t.energy[last][law.rows] - law.residuals
+        assert np.allclose(line.get_ydata(), (law.params["D"][0] - calc) ** alpha, rtol=1e-12)
+    # the better law passes through the points within their error bars here (sqrt of reduced chi-square ~1)
+    (expansion,) = [ln for ln in ax.lines if ln.get_label().startswith(nd.expansion.law)]
+    assert nd.expansion.standard_error < 2
+    assert any(np.allclose(ln.get_xdata(), nd.vD[0]) for ln in ax.lines)
+    assert any(np.allclose(ln.get_xdata(), nd.v_th[0]) for ln in ax.lines if ln.get_label().startswith("v_th"))
+    # and vD against the exact levels of the same well: first-order WKB's number at dissociation, which the
+    # expansion estimates from the last levels to within 0.02 (observed 0.01; the LB range has few terms)
+    assert abs(nd.vD[0] - wkbfit.levels(lj, 20.0, order=1).vD) < 0.02

@@ -143,6 +143,11 @@ class NearDissociationFit:
     def __str__(self):
         return self.table()
 
+    def plot(self, ax=None, **options):
+        """The near-dissociation plot of the levels fitted and each law (wkbfit.plots.near_dissociation)."""
+        from .plots import near_dissociation
+        return near_dissociation(self, ax, **options)
+
     def __repr__(self):
         return "<NearDissociationFit n=%g: D = %s cm-1, vD = %s, v_th = %s>" % (
             self.tail_power, _pm(self.D, 6), _pm(self.vD, 4), _pm(self.v_th, 4))
@@ -438,8 +443,11 @@ def near_dissociation_fit(v, energy, uncertainty, tail_power=6, asymptote=None, 
         notes.append("mu not given: C_n and the threshold law need the reduced mass")
     if energy_zero == "asymptote":
         notes.append("binding-energy data: D is the asymptote in the data's zero (0 = the nominal threshold)")
-    return NearDissociationFit(int(n) if n == int(n) else n, mu, lb, expansion, threshold, asymptote is not None,
-                               notes)
+    result = NearDissociationFit(int(n) if n == int(n) else n, mu, lb, expansion, threshold, asymptote is not None,
+                                 notes)
+    # the levels fitted, in the fits' zero (binding-energy data: minus the binding energy), for figures
+    result.v, result.energy, result.uncertainty = v, E, s
+    return result
 
 
 # ------------------------------------------------------------------------------ predictions

@@ -313,11 +313,15 @@ def near_dissociation(source, ax=None, *, isotopologue=None, n=None, last=None):
     For a -C_n/r^n tail the binding energy goes as (vD - v)^(2n/(n-2)) near the limit (LeRoy-Bernstein),
     so this is a straight line reaching zero at vD. For an exponential tail (Morse, EMO, Poeschl-Teller)
     the exponent 1/2 is used, for which the Morse levels lie exactly on a line. source: a FitResult
-    (measured levels as points, fitted ones with error bars) or a Prediction. n: the tail power
+    (measured levels as points, fitted ones with error bars), a Prediction, or a NearDissociationFit
+    (its levels, and each law at the levels it was fitted to, against the summary D). n: the tail power
     (default: that of the potential). last: draw only the last `last` levels. vD (first-order WKB)
     and its one-sigma range are marked, and the quantum threshold number v_th where the prediction
     has one (exact levels at J = 0).
     """
+    from .near_dissociation import NearDissociationFit
+    if isinstance(source, NearDissociationFit):
+        return _near_dissociation_laws(source, ax, last)
     pred, result = _prediction_of(source, isotopologue)
     n = tail_power(pred.potential) if n is None else float(n)
     if n is not None and not n > 2:
@@ -360,6 +364,44 @@ def near_dissociation(source, ax=None, *, isotopologue=None, n=None, last=None):
     ax.set_ylabel("(D - E)$^{%s}$ [(cm$^{-1}$)$^{%s}$]" % ("1/2" if n is None else "%.3g" % alpha,
                                                             "1/2" if n is None else "%.3g" % alpha))
     ax.set_title("near dissociation: exponent %s%s" % (power, "" if n is None else ", n = %g" % n))
+    ax.set_ylim(bottom=0)
+    ax.legend(fontsize="small")
+    return ax
+
+
+def _near_dissociation_laws(nd, ax, last):
+    """The near-dissociation plot of a NearDissociationFit: its levels and each law fitted to them."""
+    n = float(nd.tail_power)
+    alpha = (n - 2) / (2 * n)
+    ax = _axes(ax)
+    order = np.argsort(nd.v)
+    if last is not None:
+        order = order[-int(last):]
+    v, E, s = nd.v[order], nd.energy[order], nd.uncertainty[order]
+    D = nd.D[0]
+    b = D - E
+    ok = b > 0
+    ax.errorbar(v[ok], b[ok] ** alpha, yerr=alpha * b[ok] ** (alpha - 1) * s[ok], fmt="o", color="C1", ms=4,
+                capsize=2, label="levels fitted (binding energy below the summary D)")
+    for k, law in enumerate(f for f in (nd.lb, nd.expansion, nd.threshold) if f is not None):
+        rows = np.asarray(law.rows, dtype=int)
+        keep = np.isin(rows, order)
+        rows, resid = rows[keep], law.residuals[keep]
+        calc = nd.energy[rows] - resid  # the law's energies at the levels it was fitted to
+        bl = law.params["D"][0] - calc if "D" in law.params else D - calc
+        good = bl > 0
+        idx = np.argsort(nd.v[rows][good])
+        ax.plot(nd.v[rows][good][idx], bl[good][idx] ** alpha, "-", color="C%d" % (k + 4), lw=1,
+                label="%s law (sqrt of reduced chi-square %s)" % (
+                    law.law, "%.3g" % law.standard_error if law.standard_error is not None else "-"))
+    vD, svD = nd.vD
+    ax.axvline(vD, color="C3", lw=1, label="vD = %.3f +/- %.3f" % (vD, svD))
+    ax.axvspan(vD - svD, vD + svD, color="C3", alpha=0.15, lw=0)
+    ax.axvline(nd.v_th[0], color="C2", lw=1, ls="-.", label="v_th = %.3f +/- %.3f (%s)" % (
+        nd.v_th[0], nd.v_th[1], nd.v_th_source))
+    ax.set_xlabel(V_LABEL)
+    ax.set_ylabel("(D - E)$^{%.3g}$ [(cm$^{-1}$)$^{%.3g}$]" % (alpha, alpha))
+    ax.set_title("near-dissociation fits: exponent (n-2)/(2n) = %.4g, n = %g" % (alpha, n))
     ax.set_ylim(bottom=0)
     ax.legend(fontsize="small")
     return ax
