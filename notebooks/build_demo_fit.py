@@ -60,8 +60,8 @@ import warnings
 with warnings.catch_warnings(record=True) as caught:
     warnings.simplefilter("always")
     first_order = wkbfit.fit(start, observed, vary=list(demo.DEMO_VARY), method="wkb")
-print("first-order WKB: sqrt(chi2/dof) = %.2f, %d levels with method error > 0.1 sigma"
-      % (first_order.standard_error, len(first_order.method_error_flagged)))
+print("first-order WKB: sqrt of reduced chi-square %.2f, %d levels with method error > 0.1 sigma"
+      % (first_order.sqrt_reduced_chi_square, len(first_order.method_error_flagged)))
 print("warning:", str(caught[0].message)[:300], "...")"""),
     ("code", """\
 result  # the HTML view"""),

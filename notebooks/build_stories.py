@@ -58,8 +58,9 @@ observed"""),
     ("md", """\
 ## The fit
 
-An EMO with three exponent coefficients; `p` stays fixed (its default). First-order WKB levels in every
-iteration."""),
+An EMO with three exponent coefficients; `p` stays fixed (its default). The default method ("corrected") runs
+its iterations on first-order WKB levels plus per-level exact corrections, so that parameters and uncertainties
+are those of a fit to exact levels (radial Schroedinger equation) at semiclassical cost."""),
     ("code", """\
 start = wkbfit.EMO(De=5000.0, re=3.1, betas=[0.9, 0.0, 0.0], p=3)
 result = wkbfit.fit(start, observed)
@@ -79,11 +80,14 @@ plots.correlation(result, ax=axes[2])
 fig.tight_layout()"""),
     ("md", """\
 The sqrt of reduced chi-square says whether the residuals match the stated uncertainties (about 1 if they
-do). A semiclassical model meeting exact levels leaves a small systematic part; the exact-level fit removes it:"""),
+do). Plain first-order WKB levels (method="wkb") meeting exact levels leave a systematic part, which the fit
+absorbs into its parameters; the default fit and the fit with exact levels in every iteration agree:"""),
     ("code", """\
+wkb_fit = wkbfit.fit(start, observed, method="wkb")
 exact_fit = wkbfit.fit(start, observed, method="exact")
-print("sqrt of reduced chi-square: WKB fit %.3f, exact fit %.3f"
-      % (result.sqrt_reduced_chi_square, exact_fit.sqrt_reduced_chi_square))
+for name, fit in (("first-order WKB", wkb_fit), ("default (corrected)", result), ("exact", exact_fit)):
+    print("%-20s sqrt of reduced chi-square %.3f, De = %.3f +/- %.3f cm-1" % (
+        name, fit.sqrt_reduced_chi_square, fit.params["De"].value, fit.params["De"].uncertainty))
 exact_fit.to_dataframe().head()"""),
     ("md", """\
 ## Predictions
@@ -109,13 +113,14 @@ print("beyond it, v = 30..%d:      largest |truth - prediction|/sigma = %.2f" % 
 
 NEAR_DISSOCIATION = [
     ("md", """\
-# Near dissociation: the last levels, vD and D0
+# Near dissociation: the last levels, vD, v_th and D0
 
 """ + INVENTED + """
 
 The scenario: an invented state with a -C6/r^6 dispersion tail (an MLR potential), measured as binding
 energies below the atomic limit up to v = 38 of its 47 bound levels. The questions: where are the last
-levels, how many are there (vD), and how deep is the well from v = 0 (D0)? Units: cm-1, angstrom, u."""),
+levels, how many are there (vD and the threshold number v_th), and how deep is the well from v = 0 (D0)?
+Units: cm-1, angstrom, u."""),
     ("code", SETUP),
     ("code", """\
 invented_truth = wkbfit.MLR(De=3100.0, re=3.9, C6=1.6e7, betas=[-0.3, 0.1, 0.05], p=5, q=3)   # INVENTED
@@ -131,14 +136,15 @@ observed   # binding energies below the limit; the HTML view folds the middle ro
     ("md", """\
 ## Fit with the long-range coefficient held at its (invented) theoretical value
 
-C6 stays fixed, as the MLR defaults say; De, re and the betas vary. Once with first-order WKB levels and once
-with exact levels."""),
+C6 stays fixed, as the MLR defaults say; De, re and the betas vary; r_ref="re" puts the reference distance
+of the MLR exponent at the starting re (3.92 A), where it stays while re is fitted. Once with plain first-order WKB levels (method="wkb") and once with the default
+method, which has the quality of a fit to exact levels."""),
     ("code", """\
 start = wkbfit.MLR(De=3000.0, re=3.92, C6=1.6e7, betas=[-0.2, 0.0, 0.0], p=5, q=3, r_ref="re")
-fits = {"wkb": wkbfit.fit(start, observed), "exact": wkbfit.fit(start, observed, method="exact")}
+fits = {"wkb": wkbfit.fit(start, observed, method="wkb"), "corrected": wkbfit.fit(start, observed)}
 for method, fit in fits.items():
-    print("%-5s %s, sqrt of reduced chi-square %.3f" % (method, fit.status, fit.sqrt_reduced_chi_square))
-    print("      " + fit.predict().summary())"""),
+    print("%-9s %s, sqrt of reduced chi-square %.3f" % (method, fit.status, fit.sqrt_reduced_chi_square))
+    print("          " + fit.predict().summary())"""),
     ("md", """\
 ## The last levels
 
@@ -146,33 +152,66 @@ For a -C_n/r^n tail the binding energy of the last levels goes as (vD - v)^(2n/(
 (D - E)^((n-2)/(2n)) is a straight line in v that reaches zero at vD: the near-dissociation plot."""),
     ("code", """\
 fig, axes = plt.subplots(1, 2, figsize=(13, 4.5))
-plots.near_dissociation(fits["exact"], ax=axes[0])
-plots.near_dissociation(fits["exact"], ax=axes[1], last=10)
+plots.near_dissociation(fits["corrected"], ax=axes[0])
+plots.near_dissociation(fits["corrected"], ax=axes[1], last=10)
 fig.tight_layout()"""),
     ("code", """\
-print(fits["exact"].predict().to_text(last=6))"""),
+print(fits["corrected"].predict().to_text(last=6))"""),
     ("md", """\
-## Threshold behaviour: the semiclassical levels there
+## Threshold behaviour: which semiclassical rule reaches dissociation?
 
-Against the invented truth: the exact-level fit predicts the last levels within its uncertainties, while
-first-order WKB levels of a well-fitted potential miss the threshold levels by more than their uncertainty
-(first-order WKB is not exact near a -C6/r^6 limit). The figure shows where WKB stops being good enough."""),
+The predictions above are exact levels of the fitted potential. Against them, the textbook first-order rule
+misses the last levels by more than their uncertainty, while the default rule of `levels` (second order with
+matched end phases: the exact solution through the outer turning region joined to second-order WKB) follows
+the exact levels right up to dissociation. Its quantum number at the asymptote is the threshold number v_th."""),
+    ("code", """\
+potential, mu = fits["corrected"].potential, observed.masses_by_isotopologue()[label]
+exact_levels = wkbfit.levels(potential, mu, method="exact")
+for name, rule in (("first order", {"order": 1}), ("second order, matched ends", {})):
+    table = wkbfit.levels(potential, mu, **rule)
+    n = min(len(table), len(exact_levels))
+    print("%-27s %d bound levels; largest |WKB - exact| over the last 8: %.1e cm-1" % (
+        name, len(table), np.max(np.abs(table.energy[n - 8:n] - exact_levels.energy[n - 8:n]))))
+matched = wkbfit.levels(potential, mu)
+print("v_th = %.4f (matched rule at the asymptote); first-order vD = %.4f" % (
+    matched.v_th, wkbfit.levels(potential, mu, order=1).vD))
+ax = plots.wkb_vs_exact(potential, mu, uncertainty=0.01)"""),
+    ("md", """\
+## Against the invented truth
+
+Because the data are invented we can ask how far each fit's last levels are from the truth, in units of their
+linearly propagated uncertainties:"""),
     ("code", """\
 for method, fit in fits.items():
     p = fit.predict()
     n = min(p.n_bound, len(exact))
     last = slice(n - 5, n)
-    print("%-5s last 5 levels: (truth - prediction)/sigma =" % method,
-          np.round((exact.binding_energy[last] - p.binding_energy[last]) / p.binding_uncertainty[last], 1))
-ax = plots.wkb_vs_exact(fits["exact"].potential, observed.masses_by_isotopologue()[label], uncertainty=0.01)"""),
+    print("%-9s last 5 levels: (truth - prediction)/sigma =" % method,
+          np.round((exact.binding_energy[last] - p.binding_energy[last]) / p.binding_uncertainty[last], 1))"""),
     ("md", """\
-## vD and D0
+Is the linear propagation of the covariance right this close to the limit, where the levels depend on the
+parameters least linearly? Refitting Monte-Carlo replicas of the data (the fitted levels plus noise of the
+stated size) tells: each histogram is the spread of the replicas, the red curve the Gaussian the covariance
+matrix promises. Where the histogram is wider, the column sd/cov of the table says by how much, and the
+replica spread is the better uncertainty."""),
+    ("code", """\
+replicas = fits["corrected"].bootstrap(100, seed=2, progress=False)
+top = replicas.names[-1]   # the binding energy of the last level
+axes = replicas.plot(names=["De", "D0", "vD", top])
+replicas"""),
+    ("code", """\
+p = fits["corrected"].predict()
+v_top = int(top[5:-1])
+print("%s: truth - prediction = %.2e cm-1; linear sigma %.2e, replica sd %.2e cm-1" % (
+    top, exact.binding_energy[v_top] - p.binding_energy[v_top], p.binding_uncertainty[v_top], replicas.std[top]))"""),
+    ("md", """\
+## vD, v_th and D0
 
 With one-sigma uncertainties from the fit's covariance (linear propagation; v_th and vD by differences along
-the covariance's principal axes). v_th is the quantum threshold number (levels v < v_th are bound); vD the
-quantum number at dissociation of the accurate levels, v_th + 1/8 for a C6 tail:"""),
+the covariance's principal axes; the replicas above say how much wider the honest ones are). v_th is the
+quantum threshold number (levels v < v_th are bound); vD the quantum number at dissociation of the accurate
+levels, v_th + 1/8 for a C6 tail:"""),
     ("code", """\
-p = fits["exact"].predict()
 truth_table = wkbfit.levels(invented_truth, label)   # matched rule: the truth's threshold number v_th
 print("v_th = %.4f +/- %.4f, vD = v_th + 1/8 = %.4f +/- %.4f (invented truth: v_th %.4f, vD %.4f); bound levels %d "
       "(truth %d)" % (p.v_th, p.v_th_uncertainty, p.vD, p.vD_uncertainty, truth_table.v_th, truth_table.v_th + 0.125,
@@ -189,8 +228,8 @@ RKR_TO_POTENTIAL = [
 
 The scenario: an invented light molecule (reduced mass 1.5 u) with measured term values v = 0..12, which the
 invented laboratory has also summarised as Dunham-type constants. RKR turns the constants into a curve; its
-WKB levels give the constants back, but its exact levels do not quite (RKR is a first-order semiclassical
-inversion). A potential fitted directly to the levels, with exact levels, removes that error.
+first-order WKB levels give the constants back, but its exact levels do not quite (RKR inverts the first-order
+semiclassical rule). A potential fitted directly to the levels, with exact levels, removes that error.
 Units: cm-1, angstrom, u."""),
     ("code", SETUP),
     ("code", """\
@@ -212,13 +251,16 @@ turning_points"""),
 
 Fractional v near the bottom (where r - re grows like sqrt(v + 1/2)), a -C6/r^6 tail towards an assumed
 asymptote beyond the last point. The upper levels' wavefunctions reach past the curve's points, which the
-warning names level by level."""),
+warning names level by level. The textbook first-order WKB levels of the curve return G(v); the comparison
+below is the default second-order rule against the exact levels of the same curve, which agree far inside the
+data uncertainty: what separates the exact levels from G(v) is the first-order rule that RKR inverts, not the
+curve's construction."""),
     ("code", """\
 s = np.linspace(0.0, np.sqrt(12.5), 97)[1:]
 curve = wkbfit.rkr_potential(Y_G[1:], Y_B, mu, v=s * s - 0.5, asymptote=29000.0, tail_power=6)
 G = np.polynomial.polynomial.polyval(x, np.r_[0.0, Y_G[1:]])
-wkb = wkbfit.levels(curve, mu, v=list(range(13)))
-print("WKB levels of the RKR curve minus G(v): largest %.1e cm-1" % np.max(np.abs(wkb.energy - G)))
+wkb = wkbfit.levels(curve, mu, v=list(range(13)), order=1)   # the textbook first-order rule, which RKR inverts
+print("first-order WKB levels of the RKR curve minus G(v): largest %.1e cm-1" % np.max(np.abs(wkb.energy - G)))
 comparison = wkbfit.compare_wkb_exact(curve, mu, v=list(range(13)))
 print(comparison.to_text(uncertainty=0.02))"""),
     ("md", """\

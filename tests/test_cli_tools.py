@@ -129,3 +129,148 @@ def test_curve_inner_wall_option_and_compare_on_a_curve_file(capsys, tmp_path):
     assert status == 0, err
     comp = wkbfit.compare_wkb_exact(wkbfit.PointwisePotential(r, V, asymptote=0.0, tail_power=6), 5.0, v=[0, 1, 2])
     assert "%.8f" % comp.exact_energy[2] in out
+
+
+# -- --order/--ends of fit, demo and predict; --quasibound of levels and curve ---------------------------------
+def _table_rows(text):
+    """{v: [fields]} of the numeric rows of a printed table (first field an integer v)."""
+    return {int(f[0]): f for f in (line.split() for line in text.splitlines()) if f and f[0].isdigit()}
+
+
+@pytest.fixture(scope="module")
+def lj_data(tmp_path_factory):
+    """Exact levels v=0-9 of a Lennard-Jones (12, 6) well with seeded 0.01 cm-1 noise (mu = 20 u)."""
+    lj = wkbfit.LennardJones(De=4000.0, re=4.0, n=12, m=6)
+    t = wkbfit.levels(lj, 20.0, v=list(range(10)), method="exact")
+    rng = np.random.default_rng(11)
+    path = tmp_path_factory.mktemp("lj") / "levels.csv"
+    path.write_text("v,energy,uncertainty\n" + "".join(
+        "%d,%.6f,0.01\n" % (v, e) for v, e in zip(t.v, t.energy + rng.normal(0, 0.01, len(t)))))
+    return path
+
+
+def test_fit_order_one_is_the_first_order_wkb_fit(capsys, tmp_path, lj_data):
+    args = ["fit", lj_data, "lennard-jones", "De=3950", "re=4.01", "--mu", 20]
+    status, out1, err = run(capsys, *args, "--order", 1, "-o", tmp_path / "o1.json", "--near", 4)
+    assert status == 0, err
+    status, outw, err = run(capsys, *args, "--method", "wkb", "-o", tmp_path / "w.json", "--near", 4)
+    assert status == 0, err
+    r1, rw = (wkbfit.FitResult.load_json(tmp_path / n) for n in ("o1.json", "w.json"))
+    assert r1.method == "wkb" and r1.values == rw.values
+    # the predictions printed are the fitted potential's first-order levels (the textbook rule)
+    first = wkbfit.levels(r1.potential, 20.0, order=1)
+    rows = _table_rows(out1.split("Predicted levels near dissociation")[1])
+    assert len(rows) == 4 and all(float(rows[v][1]) == pytest.approx(first.energy[v], abs=1e-6) for v in rows)
+
+
+def test_fit_order_two_prints_second_order_levels_of_the_fit(capsys, tmp_path, lj_data):
+    args = ["fit", lj_data, "lennard-jones", "De=3950", "re=4.01", "--mu", 20, "--near", 5]
+    status, out, err = run(capsys, *args, "--order", 2, "-o", tmp_path / "m.json")
+    assert status == 0, err
+    result = wkbfit.FitResult.load_json(tmp_path / "m.json")
+    assert result.method == "corrected"  # the fit keeps its method; --order 2 is the rule of the predictions
+    rows = _table_rows(out.split("Predicted levels near dissociation")[1].split("fit result written")[0])
+    matched = wkbfit.levels(result.potential, 20.0, order=2, ends="matched")
+    exact = wkbfit.levels(result.potential, 20.0, method="exact")
+    assert len(rows) == 5 and max(rows) == len(exact) - 1
+    for v, fields in rows.items():
+        assert float(fields[1]) == pytest.approx(matched.energy[v], abs=1e-6)
+        # second order with matched ends against the exact solver, right up to dissociation (the target of the
+        # matched rule, 1e-4 cm-1; the table prints 6 decimals)
+        assert abs(float(fields[1]) - exact.energy[v]) < 1e-4
+    assert "wkb-matched rule" in out
+    status, out, err = run(capsys, *args, "--order", 2, "--ends", "maslov", "-o", tmp_path / "f.json",
+                           "--predict", 21.0)
+    assert status == 0, err
+    fixed = wkbfit.levels(result.potential, 21.0, order=2, ends="maslov")
+    rows = _table_rows(out.split("reduced mass 21 u")[1])
+    assert all(float(rows[v][1]) == pytest.approx(fixed.energy[v], abs=2e-6) for v in rows)
+
+
+@pytest.mark.parametrize("extra, words", [
+    (["--order", 1, "--method", "exact"], "contradicts --method exact"),
+    (["--order", 2, "--method", "wkb"], "first-order WKB levels only"),
+    (["--ends", "maslov"], "needs --order 2"),
+    (["--order", 1, "--ends", "matched"], "--order 2 only"),
+])
+def test_fit_and_demo_order_contradictions_are_named(capsys, tmp_path, lj_data, extra, words):
+    status, _, err = run(capsys, "fit", lj_data, "lennard-jones", "De=3950", "re=4.01", "--mu", 20,
+                         "-o", tmp_path / "x.json", *extra)
+    assert status == cli.EXIT_USAGE and words in err and not (tmp_path / "x.json").exists()
+    status, _, err = run(capsys, "demo", *extra)
+    assert status == cli.EXIT_USAGE and words in err
+
+
+def test_demo_order_two(capsys):
+    status, out, err = run(capsys, "demo", "--order", 2, "--near", 3)
+    assert status == 0, err
+    assert "predicted levels by the second-order rule, matched end phases" in out
+    assert out.count("levels from the wkb-matched rule of the fitted potential") == 2  # both isotopologues
+
+
+def test_predict_order_and_ends(capsys, tmp_path, lj_data):
+    status, _, err = run(capsys, "fit", lj_data, "lennard-jones", "De=3950", "re=4.01", "--mu", 20,
+                         "-o", tmp_path / "fit.json")
+    assert status == 0, err
+    result = wkbfit.FitResult.load_json(tmp_path / "fit.json")
+    for extra, kw in (([], {}), (["--order", 1], {"order": 1}), (["--order", 2, "--ends", "maslov"],
+                                                                  {"order": 2, "ends": "maslov"})):
+        status, out, err = run(capsys, "predict", tmp_path / "fit.json", "--near", 3, *extra)
+        assert status == 0, err
+        pred = result.predict(**kw)
+        rows = _table_rows(out)
+        assert sorted(rows) == list(range(pred.n_bound - 3, pred.n_bound))
+        assert all(float(rows[v][1]) == pytest.approx(pred.energy[v], abs=1e-6) for v in rows)
+    status, _, err = run(capsys, "predict", tmp_path / "fit.json", "--order", 1, "--ends", "matched")
+    assert status == cli.EXIT_USAGE and "--order 2 only" in err
+
+
+def _barrier_top(pot, mu, J):
+    """Top of V + J(J+1) hbar^2/(2 mu r^2) outside the well, from a dense grid (independent of the core)."""
+    r = np.linspace(pot.params["re"] * 1.2, pot.params["re"] * 8, 200001)
+    VJ = pot(r) + J * (J + 1) * wkbfit.HBAR2_OVER_2U / (mu * r * r)
+    return float(VJ.max())
+
+
+def test_levels_quasibound_lists_widths_and_theta(capsys):
+    lj = wkbfit.LennardJones(De=1000.0, re=4.0, n=12, m=6)
+    status, out, err = run(capsys, "levels", "lennard-jones", "De=1000", "re=4", "--mu", 20, "-J", 30,
+                           "--quasibound")
+    assert status == 0, err
+    header = out.splitlines()[1].split()
+    assert {"width", "theta", "quasibound"} <= set(header) and "[cm-1]" in out.splitlines()[2]
+    rows = _table_rows(out)
+    table = wkbfit.levels(lj, 20.0, J=30, quasibound=True)
+    assert sorted(rows) == table.v.tolist()
+    top = _barrier_top(lj, 20.0, 30)
+    quasi = [v for v, f in rows.items() if f[-1] == "yes"]
+    assert quasi == table.v[table.quasibound].tolist() and len(quasi) == 2
+    for v in quasi:
+        E = float(rows[v][2])
+        # a quasibound level lies between the asymptote and the barrier top (definition of a shape resonance)
+        assert lj.asymptote < E < top
+        assert float(rows[v][header.index("width")]) == pytest.approx(table.width[v], rel=1e-3)
+        assert float(rows[v][header.index("theta")]) == pytest.approx(table.theta[v], rel=1e-3)
+    assert all(float(f[2]) < lj.asymptote for v, f in rows.items() if v not in quasi)
+    # the exact solver's resonances (complex-energy poles) on the same command line
+    status, out, err = run(capsys, "levels", "lennard-jones", "De=1000", "re=4", "--mu", 20, "-J", 30,
+                           "--quasibound", "--method", "exact")
+    assert status == 0, err
+    exact = wkbfit.levels(lj, 20.0, J=30, quasibound=True, method="exact")
+    assert [v for v, f in _table_rows(out).items() if f[-1] == "yes"] == exact.v[exact.quasibound].tolist()
+
+
+def test_curve_quasibound(capsys, tmp_path):
+    lj = wkbfit.LennardJones(De=1000.0, re=4.0, n=12, m=6)
+    r = np.linspace(3.3, 30.0, 800)
+    path = tmp_path / "lj.txt"
+    path.write_text("r V\n" + "".join("%.10f %.10f\n" % (x, y) for x, y in zip(r, lj(r))))
+    status, out, err = run(capsys, "curve", path, "--mu", 20, "-J", 30, "--quasibound", "--asymptote", 1000,
+                           "--tail-power", 6)
+    assert status == 0, err
+    rows = _table_rows(out)
+    quasi = [v for v, f in rows.items() if f[-1] == "yes"]
+    model = wkbfit.levels(lj, 20.0, J=30, quasibound=True)
+    # the curve at 800 points is the model to spline accuracy: the same quasibound levels, positions to 1e-3 cm-1
+    assert quasi == model.v[model.quasibound].tolist()
+    assert all(abs(float(rows[v][2]) - model.energy[v]) < 1e-3 for v in quasi)

@@ -153,6 +153,12 @@ def test_near_dissociation_straight_line_for_a_pure_inverse_power_tail(lj_fit):
     assert np.allclose(x, pred.v[-6:]) and np.allclose(y, pred.binding_energy[-6:] ** alpha)
     # vD marked where it was predicted
     assert any(np.allclose(line.get_xdata(), pred.vD) for line in ax.lines)
+    # and the quantum threshold number v_th of the prediction, which agrees with the matched rule's number at
+    # the asymptote of the same potential (an independent route: the exact phase through the outer region)
+    (vth,) = [line for line in ax.lines if line.get_label().startswith("v_th = ")]
+    assert np.allclose(vth.get_xdata(), pred.v_th)
+    matched = wkbfit.levels(lj_fit.potential, lj_fit.masses["7Li133Cs"])
+    assert abs(pred.v_th - matched.v_th) < max(pred.v_th_uncertainty, 2e-3)
     # a Morse potential with exponent 1/2: sqrt(D - E) = sqrt(De) - (we/(2 sqrt(De))) (v + 1/2), linear in v
     ax = plots.near_dissociation(_morse_prediction(), n=None)
     x, y = ax.containers[0].lines[0].get_data()
@@ -225,3 +231,151 @@ def test_wkb_vs_exact_near_dissociation_covers_every_level():
     assert len(second.get_xdata()) == len(first.get_xdata()) > 10
     assert np.max(second.get_ydata()) < 1e-4
     assert np.max(first.get_ydata()) > 1e-3  # the textbook rule is visibly worse near dissociation
+
+
+# -- quasibound levels in the potential figure ------------------------------------------------------------------
+def test_potential_draws_real_quasibound_levels_on_the_effective_curve():
+    lj = wkbfit.LennardJones(De=1000.0, re=4.0, n=12, m=6)
+    mu, J = 20.0, 30
+    ax = plots.potential(lj, mu, J=J)
+    assert has_units(ax)
+    table = wkbfit.levels(lj, mu, J=J, quasibound=True)
+    assert np.count_nonzero(table.quasibound) == 2  # this mass and J hold two shape resonances
+    bound, quasi = ax.collections
+    assert quasi.get_linestyle()[0][1] is not None  # dashed
+    E_q = np.array([s[0, 1] for s in quasi.get_segments()])
+    assert np.allclose(E_q, table.energy[table.quasibound], rtol=0, atol=1e-9)
+    assert np.all(E_q > lj.asymptote)  # above the asymptote: held only by the barrier
+    # every segment ends on the effective curve V + J(J+1) hbar^2/(2 mu r^2): its ends are turning points
+    for coll in (bound, quasi):
+        for seg in coll.get_segments():
+            (r1, E), (r2, _) = seg
+            for r in (r1, r2):
+                VJ = float(lj(np.array([r]))[0]) + J * (J + 1) * HBAR2_OVER_2U / (mu * r * r)
+                assert abs(VJ - E) < 1e-6 * lj.De
+    (curve,) = [line for line in ax.lines if line.get_label().startswith("V_J(r), J = 30")]
+    r, VJ = curve.get_data()
+    assert np.allclose(VJ, lj(r) + J * (J + 1) * HBAR2_OVER_2U / (mu * r * r), rtol=1e-12)
+    # J = 0: no barrier, no quasibound set; quasibound=False leaves them out at J > 0
+    assert len(plots.potential(lj, mu).collections) == 1
+    assert len(plots.potential(lj, mu, J=J, quasibound=False).collections) == 1
+
+
+# -- bootstrap replicas ---------------------------------------------------------------------------------------
+@pytest.fixture(scope="module")
+def replica_result():
+    """150 Monte-Carlo replicas of a Lennard-Jones fit to its own exact levels with seeded noise."""
+    lj = wkbfit.LennardJones(De=4000.0, re=4.0, n=12, m=6)
+    t = wkbfit.levels(lj, 20.0, v=list(range(12)), method="exact")
+    rng = np.random.default_rng(3)
+    obs = wkbfit.read_levels({"v": t.v, "J": t.J, "energy": t.energy + rng.normal(0, 0.01, len(t)),
+                              "uncertainty": np.full(len(t), 0.01)})
+    result = wkbfit.fit(wkbfit.LennardJones(De=3950.0, re=4.01, n=12, m=6), obs, 20.0)
+    return result.bootstrap(150, seed=4, progress=False)
+
+
+def _bars(ax):
+    heights = np.array([p.get_height() for p in ax.patches])
+    edges = np.array([p.get_x() for p in ax.patches] + [ax.patches[-1].get_x() + ax.patches[-1].get_width()])
+    return heights, edges
+
+
+def test_replicas_histograms_against_the_covariance_gaussian(replica_result):
+    from scipy.stats import norm
+    rep = replica_result
+    axes = rep.plot()
+    names = ["De", "re", "D0", "vD"]
+    assert len(axes) == len(names)
+    for ax, name in zip(axes, names):
+        assert has_units(ax) and ax.get_xlabel().startswith(name)
+        heights, edges = _bars(ax)
+        # the bars are the replica values, binned (numpy.histogram of the same edges)
+        assert np.array_equal(heights, np.histogram(rep.values[name], bins=edges)[0])
+        assert heights.sum() == rep.n_converged == 150
+        (gauss,) = [line for line in ax.lines if line.get_label().startswith("covariance")]
+        x, y = gauss.get_data()
+        sd = rep.covariance_sd[name]
+        # the Gaussian of the covariance matrix as expected counts per bin (scipy.stats.norm as reference)
+        assert np.allclose(y, 150 * (edges[1] - edges[0]) * norm.pdf(x, rep.central[name], sd), rtol=1e-10)
+        if name in rep.fit_result.var_names:
+            k = rep.fit_result.var_names.index(name)
+            assert sd == pytest.approx(math.sqrt(rep.fit_result.covariance[k, k]), rel=1e-12)
+    # one name into one given Axes
+    fig, ax = plt.subplots()
+    assert rep.plot(ax, names=["vD"]) is ax
+    with pytest.raises(ValueError, match="not followed"):
+        plots.replicas(rep, names=["C6"])
+    with pytest.raises(ValueError, match="2 Axes given, 4 needed"):
+        plots.replicas(rep, ax=list(plt.subplots(1, 2)[1]), names=["De", "re"], corner=True)
+    with pytest.raises(TypeError, match="ReplicaResult"):
+        plots.replicas(rep.fit_result)
+
+
+def test_replicas_corner_ellipses_are_the_covariance(replica_result):
+    rep = replica_result
+    names = ["De", "re", "D0", "vD"]
+    axes = rep.plot(corner=True, names=names)
+    assert axes.shape == (4, 4) and not axes[0, 1].get_visible()
+    C = plots.linear_covariance(rep, names)
+    # the parameter block is the fit's covariance; the diagonal the replica result's covariance sd
+    assert np.allclose(C[:2, :2], rep.fit_result.covariance, rtol=1e-12)
+    assert np.allclose(np.sqrt(np.diag(C)), [rep.covariance_sd[k] for k in names], rtol=1e-12)
+    for i in range(4):
+        for j in range(i):
+            ax = axes[i, j]
+            assert has_units(ax)
+            (points,) = [line for line in ax.lines if line.get_label() == "replicas"]
+            assert np.array_equal(points.get_xdata(), rep.values[names[j]])
+            assert np.array_equal(points.get_ydata(), rep.values[names[i]])
+            sub = C[np.ix_([j, i], [j, i])]
+            inv = np.linalg.inv(sub)
+            m = np.array([rep.central[names[j]], rep.central[names[i]]])
+            for s in (1, 2):
+                (ell,) = [line for line in ax.lines if line.get_label() == "covariance, %d sigma" % s]
+                d = np.vstack(ell.get_data()) - m[:, None]
+                assert np.allclose(np.einsum("in,ij,jn->n", d, inv, d), s * s, rtol=1e-6)
+            # the linear covariance describes the replicas: correlations agree within 4 standard errors
+            # (Fisher z, se = 1/sqrt(n - 3)); observed differences ~0.02 in z
+            r_lin = sub[0, 1] / math.sqrt(sub[0, 0] * sub[1, 1])
+            r_rep = np.corrcoef(rep.values[names[j]], rep.values[names[i]])[0, 1]
+            assert abs(np.arctanh(min(r_rep, 1 - 1e-12)) - np.arctanh(min(r_lin, 1 - 1e-12))) < 4 / math.sqrt(147)
+
+
+def test_potential_draws_the_rule_asked_for():
+    lj = wkbfit.LennardJones(De=1000.0, re=4.0, n=12, m=6)
+    for rule in ({"order": 1}, {"order": 2, "ends": "maslov"}, {}):
+        ax = plots.potential(lj, 20.0, **rule)
+        table = wkbfit.levels(lj, 20.0, **rule)
+        E = np.array([s[0, 1] for s in ax.collections[0].get_segments()])
+        assert np.array_equal(E, table.energy)
+    # the first-order levels differ from the default ones near dissociation (by more than 1e-3 cm-1 at the top)
+    first = np.array([s[0, 1] for s in plots.potential(lj, 20.0, order=1).collections[0].get_segments()])
+    default = wkbfit.levels(lj, 20.0).energy
+    n = min(len(first), len(default))
+    assert np.max(np.abs(first[:n] - default[:n])) > 1e-3
+
+
+def test_near_dissociation_fit_plot_draws_its_levels_and_laws():
+    """The last 8 exact levels of a Lennard-Jones (12, 6) well: the levels as points, each law at the levels it
+    was fitted to (observed minus its residuals), vD and v_th where the fit put them."""
+    lj = wkbfit.LennardJones(De=4000.0, re=4.0, n=12, m=6)
+    t = wkbfit.levels(lj, 20.0, method="exact")
+    last = np.arange(len(t) - 8, len(t))
+    nd = wkbfit.near_dissociation_fit(t.v[last], t.energy[last], np.full(8, 1e-4), 6, mu=20.0)
+    ax = nd.plot()
+    assert has_units(ax)
+    alpha = (6 - 2) / 12
+    x, y = ax.containers[0].lines[0].get_data()
+    assert np.array_equal(x, t.v[last]) and np.allclose(y, (nd.D[0] - t.energy[last]) ** alpha, rtol=1e-12)
+    for law in (nd.lb, nd.expansion):
+        (line,) = [ln for ln in ax.lines if ln.get_label().startswith(law.law + " law")]
+        calc = t.energy[last][law.rows] - law.residuals
+        assert np.allclose(line.get_ydata(), (law.params["D"][0] - calc) ** alpha, rtol=1e-12)
+    # the better law passes through the points within their error bars here (sqrt of reduced chi-square ~1)
+    (expansion,) = [ln for ln in ax.lines if ln.get_label().startswith(nd.expansion.law)]
+    assert nd.expansion.standard_error < 2
+    assert any(np.allclose(ln.get_xdata(), nd.vD[0]) for ln in ax.lines)
+    assert any(np.allclose(ln.get_xdata(), nd.v_th[0]) for ln in ax.lines if ln.get_label().startswith("v_th"))
+    # and vD against the exact levels of the same well: first-order WKB's number at dissociation, which the
+    # expansion estimates from the last levels to within 0.02 (observed 0.01; the LB range has few terms)
+    assert abs(nd.vD[0] - wkbfit.levels(lj, 20.0, order=1).vD) < 0.02

@@ -21,8 +21,16 @@ def objects():
             "uncertainty": np.full(15, 0.01)}
     obs = wkbfit.read_levels(data)
     result = wkbfit.fit(wkbfit.LennardJones(De=3950.0, re=4.01, n=12, m=6), obs, mu=20.0, vary=["De", "re"])
+    # line positions v'=1 -> v''=0..19 (term-value differences of the table, J = 0) and widths of two levels
+    lines = wkbfit.read_lines({"v_upper": [20] * 20, "J_upper": [0] * 20, "v_lower": list(range(20)),
+                               "J_lower": [0] * 20, "wavenumber": table.energy[20] - table.energy[:20],
+                               "uncertainty": [0.002] * 20, "upper_state": ["A"] * 20}, check=False)
+    widths = wkbfit.read_widths({"v": [25, 26], "J": [30, 30], "width": [1e-6, 3e-3], "uncertainty": [1e-7, 1e-4]},
+                                check=False)
+    last = np.arange(len(table) - 8, len(table))
+    near = wkbfit.near_dissociation_fit(table.v[last], table.energy[last], np.full(8, 1e-4), 6, mu=20.0)
     return {"levels": table, "comparison": comp, "rkr": tp, "observed": obs, "fit": result,
-            "prediction": result.predict()}
+            "prediction": result.predict(), "lines": lines, "widths": widths, "near_dissociation": near}
 
 
 COLUMNS = {  # object -> (dataframe column, attribute) pairs that must agree exactly
@@ -32,6 +40,8 @@ COLUMNS = {  # object -> (dataframe column, attribute) pairs that must agree exa
     "rkr": [(c, c) for c in wkbfit.RKRTurningPoints.columns],
     "observed": [(c, c) for c in ("v", "J", "energy", "uncertainty")],
     "prediction": [(c, c) for c in ("v", "energy", "energy_uncertainty", "binding_energy", "binding_uncertainty")],
+    "lines": [(c, c) for c in ("v_upper", "J_upper", "v_lower", "J_lower", "wavenumber", "uncertainty")],
+    "widths": [(c, c) for c in ("v", "J", "width", "uncertainty")],
 }
 
 
@@ -42,6 +52,19 @@ def test_to_dataframe_round_trips(objects, name):
     assert len(df) == len(obj)
     for col, attr in COLUMNS[name]:
         np.testing.assert_array_equal(df[col].to_numpy(), np.asarray(getattr(obj, attr)))
+
+
+def test_near_dissociation_dataframe_holds_each_law(objects):
+    near = objects["near_dissociation"]
+    df = near.to_dataframe()
+    laws = [f for f in (near.lb, near.expansion, near.threshold) if f is not None]
+    assert df["law"].tolist() == [f.law for f in laws]
+    for k, f in enumerate(laws):
+        assert df["levels"][k] == len(f.rows)
+        for name in ("D", "vD"):
+            assert (df[name][k], df[name + "_uncertainty"][k]) == f.params[name]
+        assert df["sqrt_reduced_chi_square"][k] == f.standard_error
+    assert "sqrt of reduced chi-square" in near._repr_html_()
 
 
 def test_fit_residual_and_parameter_dataframes(objects):
@@ -57,18 +80,20 @@ def test_fit_residual_and_parameter_dataframes(objects):
     assert p.loc["De", "uncertainty"] == result.params["De"].uncertainty and p.loc["De", "unit"] == "cm-1"
 
 
-@pytest.mark.parametrize("name", ["levels", "comparison", "rkr", "observed", "prediction", "fit"])
+@pytest.mark.parametrize("name", ["levels", "comparison", "rkr", "observed", "prediction", "fit", "lines", "widths",
+                                  "near_dissociation"])
 def test_html_has_units_and_folds_long_tables(objects, name):
     obj = objects[name]
     text = obj._repr_html_()
     assert "[cm-1]" in text
     if name == "rkr":
         assert "[A]" in text
-    if len(getattr(obj, "observed", obj)) > 14:  # folded: head and tail shown, the rest collapsed into <details>
+    if name != "near_dissociation" and len(getattr(obj, "observed", obj)) > 14:  # folded: head and tail shown, the rest collapsed into <details>
         assert "rows folded" in text and "<details>" in text
 
 
-@pytest.mark.parametrize("name", ["levels", "comparison", "rkr", "observed", "prediction", "fit"])
+@pytest.mark.parametrize("name", ["levels", "comparison", "rkr", "observed", "prediction", "fit", "lines", "widths",
+                                  "near_dissociation"])
 def test_repr_is_one_short_line(objects, name):
     text = repr(objects[name])
     assert "\n" not in text and len(text) < 400
@@ -106,3 +131,16 @@ def test_levels_and_exact_import_each_other_in_one_direction_only():
 
     assert "exact" not in imported("levels") and "levels" in imported("exact")
     assert wkbfit.levels(LJ, 20.0, v=[0], method="exact").method == "exact"  # the dispatch still works
+
+
+def test_near_dissociation_table_has_units_line_and_aligned_columns(objects):
+    import re
+    near = objects["near_dissociation"]
+    lines = near.table().splitlines()
+    k = next(i for i, line in enumerate(lines) if "[cm-1]" in line)
+    assert "sqrt of reduced chi-square" in lines[k - 1]
+    units = re.sub(r"\[[^\]]*\]", lambda m: m.group(0).replace(" ", "_"), lines[k])  # '[cm-1 A^6]': one field
+    ends = [m.end() for m in re.finditer(r"\S+", units)]
+    laws = [f for f in (near.lb, near.expansion, near.threshold) if f is not None]
+    for row in lines[k + 1:k + 1 + len(laws)]:
+        assert [m.end() for m in re.finditer(r"\S+", row)] == ends, (lines[k], row)

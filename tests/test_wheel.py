@@ -22,10 +22,13 @@ SMOKE = textwrap.dedent("""
     import wkbfit
     assert os.path.realpath(wkbfit.__file__).startswith(os.path.realpath(sys.prefix)), wkbfit.__file__
     # Morse levels [P. M. Morse, Phys. Rev. 34, 57 (1929)]: G(v) = we (v+1/2) - wexe (v+1/2)^2,
-    # we = 2 a sqrt(De C/mu), wexe = a^2 C/mu with C = hbar^2/(2u); first-order WKB is exact for Morse
+    # we = 2 a sqrt(De C/mu), wexe = a^2 C/mu with C = hbar^2/(2u); the textbook first-order WKB rule
+    # (order=1) is exact for Morse, and so is the default rule low in the well (checked below as well)
     De, re, a, mu = 42341.9, 1.27455, 1.75194, 0.979592539
     C = wkbfit.HBAR2_OVER_2U / mu
-    table = wkbfit.levels(wkbfit.Morse(De=De, re=re, a=a), mu, v=[0, 3, 10])
+    table = wkbfit.levels(wkbfit.Morse(De=De, re=re, a=a), mu, v=[0, 3, 10], order=1)
+    default = wkbfit.levels(wkbfit.Morse(De=De, re=re, a=a), mu, v=[0, 3, 10])
+    assert max(abs(default.energy - table.energy)) < 1e-6, default.energy - table.energy
     for v, E in zip(table.v, table.energy):
         x = v + 0.5
         expected = 2 * a * math.sqrt(De * C) * x - a * a * C * x * x

@@ -1,10 +1,11 @@
 """The wkbfit command line.
 
     wkbfit levels MODEL NAME=VALUE ... (--mu MU | --isotopologue LABEL) [-J J] [-v V] [--method wkb|exact]
+                [--order 1|2] [--ends matched|maslov] [--quasibound]
     wkbfit check DATAFILE [--energy-zero ZERO]
     wkbfit fit DATAFILE MODEL NAME=VALUE ... [--mu MU | --mass LABEL=MU ...] [--fix NAME] [--vary NAME] [-o JSON]
-                [--replicas N [--scheduler ADDRESS]]
-    wkbfit demo
+                [--order 1|2 [--ends matched|maslov]] [--replicas N [--scheduler ADDRESS]]
+    wkbfit demo [--method M] [--order 1|2 [--ends matched|maslov]]
     wkbfit rkr | compare | curve | predict   (see wkbfit.cli_tools)
 
 User errors (bad numbers, unreadable files, unknown names) print one line to stderr and exit with status 2
@@ -176,6 +177,8 @@ def _cmd_levels(args, out):
         rule = dict(order=args.order, ends=args.ends, langer=args.langer)
     elif args.order is not None or args.ends is not None or args.langer:
         raise UserError("--order, --ends and --langer apply to --method wkb only")
+    if args.quasibound:
+        rule["quasibound"] = True
     table = levels(pot, mu, v=vs, J=Js if len(Js) > 1 else Js[0], method=args.method, **rule)
     if args.csv:
         cols = table.columns
@@ -231,7 +234,8 @@ def _fit_kwargs(args, pot):
     both = set(args.fix or []) & set(args.vary or [])
     if both:
         raise UserError("parameter %s is both fixed and varied" % ", ".join(sorted(both)))
-    kwargs = {"method": args.method}
+    method, _ = cli_tools.fit_rule(args)
+    kwargs = {"method": method}
     if args.fix or args.vary:
         vary = {n: (n not in getattr(pot, "fixed_by_default", ())) for n in names}
         vary.update({n: False for n in args.fix or []})
@@ -257,16 +261,17 @@ def _cmd_fit(args, out):
     kwargs = _fit_kwargs(args, pot)
     if args.omega:
         kwargs["omega"] = args.omega
+    _, rule = cli_tools.fit_rule(args)
     result = fit(pot, data if len(data) > 1 else obs, mu, **kwargs)
     print(result.report(), file=out)
     for label in obs.isotopologues:
         print("", file=out)
-        pred = result.predict(isotopologue=label) if label is not None else result.predict()
+        pred = result.predict(isotopologue=label, **rule) if label is not None else result.predict(**rule)
         print(_format_prediction(pred, "isotopologue %s" % label if label else "the fitted reduced mass",
                                  args.near), file=out)
     for target in args.predict or []:
         print("", file=out)
-        print(_prediction_text(result, target, args.near), file=out)
+        print(_prediction_text(result, target, args.near, rule), file=out)
     if args.replicas:
         print("", file=out)
         print(_replicas_text(result, args), file=out)
@@ -349,13 +354,15 @@ def _fit_ok(result):
     return bool(result.success)
 
 
-def _prediction_text(result, target, near):
-    """Predicted levels near dissociation for an isotopologue label or a reduced mass in u."""
+def _prediction_text(result, target, near, rule=None):
+    """Predicted levels near dissociation for an isotopologue label or a reduced mass in u (rule: the
+    predict() keywords order, ends of --order/--ends)."""
+    rule = rule or {}
     try:
         mu = float(target)
     except ValueError:
-        return _format_prediction(result.predict(isotopologue=target), "isotopologue %s" % target, near)
-    return _format_prediction(result.predict(mu=mu), "reduced mass %.10g u" % mu, near)
+        return _format_prediction(result.predict(isotopologue=target, **rule), "isotopologue %s" % target, near)
+    return _format_prediction(result.predict(mu=mu, **rule), "reduced mass %.10g u" % mu, near)
 
 
 def _format_prediction(pred, title, near):
@@ -378,13 +385,15 @@ def _cmd_demo(args, out):
     print("%r" % obs, file=out)
     start = demo.demo_start_potential()
     vary = {n: n in demo.DEMO_VARY for n in start.param_names}
-    print("\nFitting %s with %s varied, starting from %r (method %s)\n" % (
-        type(start).__name__, ", ".join(demo.DEMO_VARY), start, args.method), file=out)
-    result = fit(start, obs, None, method=args.method, vary=vary)
+    method, rule = cli_tools.fit_rule(args)
+    print("\nFitting %s with %s varied, starting from %r (method %s%s)\n" % (
+        type(start).__name__, ", ".join(demo.DEMO_VARY), start, method,
+        "; predicted levels by the second-order rule, %s end phases" % rule["ends"] if rule else ""), file=out)
+    result = fit(start, obs, None, method=method, vary=vary)
     print(result.report(), file=out)
     true = demo.demo_true_potential()
     for label in obs.isotopologues:
-        pred = result.predict(isotopologue=label)
+        pred = result.predict(isotopologue=label, **rule)
         print("", file=out)
         print(_format_prediction(pred, "isotopologue %s (INVENTED state)" % label, args.near), file=out)
         # the invented scenario knows its truth: compare the predictions with it (exact levels)
@@ -444,6 +453,7 @@ def _parser():
                    help="WKB end phases: matched (default; right up to dissociation) or maslov (fixed phases)")
     p.add_argument("--langer", action="store_true",
                    help="use (J+1/2)^2 for the centrifugal term (WKB with fixed end phases only)")
+    cli_tools._quasibound_option(p)
     p.add_argument("--csv", action="store_true", help="print comma-separated values instead of a table")
     p.set_defaults(run=_cmd_levels)
 
@@ -479,9 +489,10 @@ def _parser():
     p.add_argument("--fix", action="append", metavar="NAME", help="keep this parameter at its starting value")
     p.add_argument("--vary", action="append", metavar="NAME",
                    help="vary this parameter (for one fixed by default, such as the Lennard-Jones n and m)")
-    p.add_argument("--method", choices=("corrected", "wkb", "exact"), default="corrected",
+    p.add_argument("--method", choices=("corrected", "wkb", "exact"), default=None,
                    help="level calculation: corrected (default: WKB with exact per-level corrections, exact-level "
                         "quality), wkb (first-order only, fast) or exact (every iteration exact)")
+    cli_tools._fit_order_options(p)
     p.add_argument("--lines", action="append", metavar="FILE",
                    help="also fit the line positions in FILE (columns v_upper, J_upper, v_lower, J_lower, wavenumber, "
                         "uncertainty, optional isotopologue, upper_state, lower_state); repeat for several")
@@ -526,9 +537,10 @@ def _parser():
                                    "state of LiCs (two isotopologues), fit a Lennard-Jones potential, print the "
                                    "report and the predicted levels near dissociation. The data are made up, "
                                    "not measurements.")
-    p.add_argument("--method", choices=("corrected", "wkb", "exact"), default="corrected",
+    p.add_argument("--method", choices=("corrected", "wkb", "exact"), default=None,
                    help="level calculation: corrected (default: WKB with exact per-level corrections, exact-level "
                         "quality), wkb (first-order only, fast) or exact (every iteration exact)")
+    cli_tools._fit_order_options(p)
     p.add_argument("--near", type=_positive_int, default=10, metavar="N",
                    help="number of levels nearest dissociation to print (default 10)")
     p.add_argument("-o", "--output", metavar="JSON", help="also write the fit result as JSON (an existing file is "

@@ -5,8 +5,9 @@
     wkbfit compare (MODEL NAME=VALUE ... | --curve FILE) (--mu MU | -i LABEL) [--order 1|2|both] [--uncertainty U]
         WKB against exact levels, level by level
     wkbfit curve FILE (--mu MU | -i LABEL) [--method wkb|exact] [--order 1|2] [--asymptote D] [--tail-power n]
+                [--quasibound]
         levels of a curve given at points (columns r [A], V [cm-1])
-    wkbfit predict FIT.json [-i LABEL | --mu MU] [-J J] [--near N]
+    wkbfit predict FIT.json [-i LABEL | --mu MU] [-J J] [--near N] [--order 1|2] [--ends matched|maslov]
         predicted levels from a saved fit result
 
 Units: energies cm-1, distances angstrom, masses u.
@@ -67,11 +68,13 @@ def _mass_options(p):
                    help="isotopologue label such as 7Li133Cs (masses from the mass table)")
 
 
-def _order_option(p, both=False):
+def _order_option(p, both=False, predict=False):
     choices = ("1", "2", "both") if both else ("1", "2")
     p.add_argument("--order", choices=choices, default="both" if both else None,
                    help="WKB order: 1 (the textbook first-order rule, fixed end phases), 2 (with the second-order "
-                        "term; default: with matched end phases)%s" % (
+                        "term; %s)%s" % (
+                            "with matched end phases unless --ends maslov; default: the fit's own levels, exact "
+                            "unless the fit's method was wkb" if predict else "default: with matched end phases",
                             ", or both (default)" if both else ""))
     p.add_argument("--ends", choices=("matched", "maslov"), default=None,
                    help="end phases of second-order levels: matched (default; right up to dissociation) or maslov "
@@ -86,6 +89,51 @@ def _rule_options(args, order):
             raise _user_error("--ends applies to --order 2 only (first order has fixed end phases)")
         kw["ends"] = args.ends
     return kw
+
+
+def _fit_order_options(p):
+    """--order and --ends of 'fit' and 'demo': the level rule of the fit and of its predicted levels."""
+    p.add_argument("--order", choices=("1", "2"), default=None,
+                   help="WKB order of the levels, as in 'wkbfit levels': 1 fits and predicts with first-order WKB "
+                        "levels (the textbook rule, fixed end phases; the same as --method wkb); 2 keeps the fit's "
+                        "--method (corrected by default, exact-level quality, more accurate than any WKB order) "
+                        "and prints the predicted levels of the fitted potential by the second-order rule "
+                        "(default: the fit's own levels)")
+    p.add_argument("--ends", choices=("matched", "maslov"), default=None,
+                   help="end phases of second-order predicted levels: matched (default with --order 2; right up to "
+                        "dissociation) or maslov (fixed phases)")
+
+
+def fit_rule(args):
+    """(fit method, predict() keywords) from --method, --order and --ends of 'fit' or 'demo'.
+
+    --order 1 is the first-order WKB fit (method "wkb", whose own predicted levels are first order);
+    --order 2 keeps the method and asks the predictions for the second-order rule; the fit engine
+    itself iterates on first-order WKB or exact-quality levels only."""
+    order, ends, method = args.order, args.ends, args.method
+    if order is None:
+        if ends is not None:
+            raise _user_error("--ends %s needs --order 2 (the end phases of second-order levels)" % ends)
+        return method or "corrected", {}
+    if order == "1":
+        if ends is not None:
+            raise _user_error("--ends applies to --order 2 only (first order has fixed end phases)")
+        if method not in (None, "wkb"):
+            raise _user_error("--order 1 is the first-order WKB fit (--method wkb); it contradicts --method %s: "
+                              "drop one of them" % method)
+        return "wkb", {}
+    if method == "wkb":
+        raise _user_error("--order 2 with --method wkb: the fit iterates on first-order WKB levels only; use "
+                          "--order 1 for a first-order fit, or --method corrected (the default, exact-level "
+                          "quality) with --order 2 for second-order predicted levels")
+    return method or "corrected", {"order": 2, "ends": ends or "matched"}
+
+
+def _quasibound_option(p):
+    p.add_argument("--quasibound", action="store_true",
+                   help="also list the quasibound levels (shape resonances between the asymptote and the top of the "
+                        "centrifugal barrier, J > 0), with their width (FWHM, cm-1) and barrier penetration "
+                        "integral theta")
 
 
 def _output_dir_option(p):
@@ -250,6 +298,8 @@ def _cmd_curve(args, out):
     if args.method == "exact" and (args.order is not None or args.ends is not None):
         raise _user_error("--order and --ends apply to --method wkb only")
     kwargs = _rule_options(args, args.order) if args.method == "wkb" else {}
+    if args.quasibound:
+        kwargs["quasibound"] = True
     table = levels(pot, mu, v=vs, J=Js if len(Js) > 1 else Js[0], method=args.method, **kwargs)
     print(repr(pot), file=out)
     print(table.to_text(), file=out)
@@ -267,12 +317,13 @@ def _cmd_predict(args, out):
     for k, label in enumerate(labels):
         if k:
             print("", file=out)
+        rule = _rule_options(args, args.order)
         if args.mu is not None:
-            pred = result.predict(mu=args.mu, J=args.J)
+            pred = result.predict(mu=args.mu, J=args.J, **rule)
         elif label is None:
-            pred = result.predict(J=args.J)
+            pred = result.predict(J=args.J, **rule)
         else:
-            pred = result.predict(isotopologue=label, J=args.J)
+            pred = result.predict(isotopologue=label, J=args.J, **rule)
         print(pred.to_text(last=args.near), file=out)
     return 0
 
@@ -344,6 +395,7 @@ def add_subcommands(sub, models_help, model_names):
     p.add_argument("-v", default=None, help="vibrational level(s) (default: every bound level)")
     p.add_argument("--method", choices=("wkb", "exact"), default="wkb", help="level calculation (default wkb)")
     _order_option(p)
+    _quasibound_option(p)
     p.set_defaults(run=_cmd_curve)
 
     p = sub.add_parser("predict", help="predicted levels from a saved fit result",
@@ -354,4 +406,5 @@ def add_subcommands(sub, models_help, model_names):
     p.add_argument("-J", type=int, default=0, help="rotational quantum number (default 0)")
     p.add_argument("--near", type=_positive_int, default=None, metavar="N",
                    help="print only the N levels nearest dissociation (default: all)")
+    _order_option(p, predict=True)
     p.set_defaults(run=_cmd_predict)

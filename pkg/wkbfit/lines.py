@@ -104,6 +104,25 @@ class ObservedLines:
                                 np.ones(len(self)), self.isotopologue, "minimum")
         return levels.masses_by_isotopologue(mu)
 
+    def _columns(self):
+        """(name, unit, values, format) columns for the text and HTML tables (reports.html_table)."""
+        cols = [(name, "", np.array(["-" if x is None else x for x in getattr(self, name)], dtype=object), "%s")
+                for name in ("isotopologue", "upper_state", "lower_state")
+                if any(x is not None for x in getattr(self, name))]
+        return cols + [("v_upper", "", self.v_upper, "%d"), ("J_upper", "", self.J_upper, "%d"),
+                       ("v_lower", "", self.v_lower, "%d"), ("J_lower", "", self.J_lower, "%d"),
+                       ("wavenumber", "cm-1", self.wavenumber, "%.6f"), ("uncertainty", "cm-1", self.uncertainty, "%.4g")]
+
+    def to_dataframe(self):
+        """The lines as a pandas DataFrame (wavenumbers and uncertainties in cm-1; '' for the fitted state)."""
+        from ._optional import pandas
+        return pandas().DataFrame(self.to_dict())
+
+    def _repr_html_(self):
+        from .reports import html_table
+        return html_table(self._columns(), "%d line positions (given in %s, shown in cm-1)%s" % (
+            len(self), self.unit, ", from %s" % self.source if self.source else ""))
+
     def __repr__(self):
         free = sum(1 for i in range(len(self)) if self.upper_state[i] or self.lower_state[i])
         return "<ObservedLines: %d lines, isotopologues %s%s, unit %s%s>" % (
@@ -160,6 +179,21 @@ class ObservedWidths:
         if any(x is not None for x in self.isotopologue):
             out["isotopologue"] = list(self.isotopologue)
         return out
+
+    def to_dataframe(self):
+        """The widths as a pandas DataFrame (FWHM and uncertainty in cm-1)."""
+        from ._optional import pandas
+        return pandas().DataFrame(self.to_dict())
+
+    def _repr_html_(self):
+        from .reports import html_table
+        cols = [("v", "", self.v, "%d"), ("J", "", self.J, "%d"), ("width (FWHM)", "cm-1", self.width, "%.6g"),
+                ("uncertainty", "cm-1", self.uncertainty, "%.3g")]
+        if any(x is not None for x in self.isotopologue):
+            cols.insert(0, ("isotopologue", "", np.array(["-" if x is None else x for x in self.isotopologue],
+                                                         dtype=object), "%s"))
+        return html_table(cols, "%d widths of quasibound levels (given in %s, shown in cm-1)%s" % (
+            len(self), self.unit, ", from %s" % self.source if self.source else ""))
 
     def __repr__(self):
         return "<ObservedWidths: %d widths (FWHM), unit %s%s>" % (len(self), self.unit,

@@ -115,21 +115,24 @@ class NearDissociationFit:
         self.notes = list(notes)
 
     def table(self):
-        """A plain-text table of the three laws."""
+        """A plain-text table of the laws fitted (a line of names, a line of units, aligned columns), the
+        summary and the notes."""
+        from .reports import text_table
+        rows = self.law_rows()
+        n = self.tail_power
+
+        def pm(name, digits):
+            return ["-" if not math.isfinite(r[name]) else _pm((r[name], r[name + "_uncertainty"]), digits)
+                    for r in rows]
+        table = text_table([
+            ("law", "", [r["law"] for r in rows], "%s"), ("levels", "", [r["levels"] for r in rows], "%d"),
+            ("D", "cm-1", pm("D", 6), "%s"), ("vD", "", pm("vD", 4), "%s"), ("v_th", "", pm("v_th", 4), "%s"),
+            ("C_n", "cm-1 A^%g" % n, ["-" if not math.isfinite(r["C_n"]) else "%.5g+/-%.2g" % (
+                r["C_n"], r["C_n_uncertainty"]) for r in rows], "%s"),
+            ("sqrt of reduced chi-square", "", [r["sqrt_reduced_chi_square"] for r in rows], "%.3f")])
         lines = ["Near-dissociation fits (tail -C%d/r^%d; %s)" % (
-            self.tail_power, self.tail_power, "asymptote fixed" if self.asymptote_fixed else "asymptote fitted"),
-            "  %-16s %5s %20s %16s %16s %14s %8s" % ("law", "levels", "D [cm-1]", "vD", "v_th", "C_n", "sqrt(chi2/dof)")]
-        for fit in (self.lb, self.expansion, self.threshold):
-            if fit is None:
-                continue
-            D = fit.params["D"]
-            vD = fit.params.get("vD")
-            vth = fit.params.get("v_th")
-            Cn = fit.params.get("C_n", (math.nan, math.nan))
-            se = "%8.3f" % fit.standard_error if fit.standard_error is not None else "%8s" % "-"
-            lines.append("  %-16s %5d %20s %16s %16s %14s %s" % (
-                fit.law, len(fit.rows), _pm(D, 6), _pm(vD, 4) if vD else "-", _pm(vth, 4) if vth else "-",
-                "%.5g+/-%.2g" % Cn if math.isfinite(Cn[0]) else "-", se))
+            n, n, "asymptote fixed" if self.asymptote_fixed else "asymptote fitted")]
+        lines.extend("  " + line for line in table.splitlines())
         lines.append("  summary: D = %s cm-1, vD = %s, v_th = %s (%s), C_n = %s; E_beta = %.3g cm-1" % (
             _pm(self.D, 6), _pm(self.vD, 4), _pm(self.v_th, 4), self.v_th_source,
             "%.6g +/- %.2g" % self.C_n if math.isfinite(self.C_n[0]) else "-", self.E_beta))
@@ -139,6 +142,50 @@ class NearDissociationFit:
 
     def __str__(self):
         return self.table()
+
+    def plot(self, ax=None, **options):
+        """The near-dissociation plot of the levels fitted and each law (wkbfit.plots.near_dissociation)."""
+        from .plots import near_dissociation
+        return near_dissociation(self, ax, **options)
+
+    def __repr__(self):
+        return "<NearDissociationFit n=%g: D = %s cm-1, vD = %s, v_th = %s>" % (
+            self.tail_power, _pm(self.D, 6), _pm(self.vD, 4), _pm(self.v_th, 4))
+
+    def law_rows(self):
+        """One dict per law fitted: law, levels, D, vD, v_th, C_n (each with its uncertainty; NaN where the law
+        has no such parameter) and the sqrt of reduced chi-square."""
+        rows = []
+        for fit in (self.lb, self.expansion, self.threshold):
+            if fit is None:
+                continue
+            row = {"law": fit.law, "levels": len(fit.rows)}
+            for name in ("D", "vD", "v_th", "C_n"):
+                row[name], row[name + "_uncertainty"] = fit.params.get(name, (math.nan, math.nan))
+            row["sqrt_reduced_chi_square"] = fit.standard_error if fit.standard_error is not None else math.nan
+            rows.append(row)
+        return rows
+
+    def to_dataframe(self):
+        """The laws fitted, one row each (law_rows), as a pandas DataFrame; units: D cm-1, C_n cm-1 A^n."""
+        from ._optional import pandas
+        return pandas().DataFrame(self.law_rows())
+
+    def _repr_html_(self):
+        from .reports import html_table
+        rows = self.law_rows()
+        col = lambda k: np.array([r[k] for r in rows])  # noqa: E731
+        n = self.tail_power
+        cols = [("law", "", np.array([r["law"] for r in rows], dtype=object), "%s"), ("levels", "", col("levels"), "%d"),
+                ("D", "cm-1", col("D"), "%.6f"), ("+/-", "cm-1", col("D_uncertainty"), "%.2g"),
+                ("vD", "", col("vD"), "%.4f"), ("+/-", "", col("vD_uncertainty"), "%.2g"),
+                ("v_th", "", col("v_th"), "%.4f"), ("+/-", "", col("v_th_uncertainty"), "%.2g"),
+                ("C_n", "cm-1 A^%g" % n, col("C_n"), "%.6g"), ("+/-", "cm-1 A^%g" % n, col("C_n_uncertainty"), "%.2g"),
+                ("sqrt of reduced chi-square", "", col("sqrt_reduced_chi_square"), "%.3f")]
+        return html_table(cols, "Near-dissociation fits (tail -C%g/r^%g; %s)" % (
+            n, n, "asymptote fixed" if self.asymptote_fixed else "asymptote fitted"), notes=[
+            "summary: D = %s cm-1, vD = %s, v_th = %s (%s); E_beta = %.3g cm-1" % (
+                _pm(self.D, 6), _pm(self.vD, 4), _pm(self.v_th, 4), self.v_th_source, self.E_beta)] + self.notes)
 
 
 def _pm(pair, digits):
@@ -396,8 +443,11 @@ def near_dissociation_fit(v, energy, uncertainty, tail_power=6, asymptote=None, 
         notes.append("mu not given: C_n and the threshold law need the reduced mass")
     if energy_zero == "asymptote":
         notes.append("binding-energy data: D is the asymptote in the data's zero (0 = the nominal threshold)")
-    return NearDissociationFit(int(n) if n == int(n) else n, mu, lb, expansion, threshold, asymptote is not None,
-                               notes)
+    result = NearDissociationFit(int(n) if n == int(n) else n, mu, lb, expansion, threshold, asymptote is not None,
+                                 notes)
+    # the levels fitted, in the fits' zero (binding-energy data: minus the binding energy), for figures
+    result.v, result.energy, result.uncertainty = v, E, s
+    return result
 
 
 # ------------------------------------------------------------------------------ predictions

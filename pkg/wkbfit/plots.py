@@ -11,15 +11,18 @@ objects given (no smoothing, no resampling of measured data).
     wkb_vs_exact(pot, mu)         |WKB - exact| level by level against the data uncertainties
     correlation(result)           the correlation matrix of the varied parameters
     rkr_curve(turning_points)     RKR turning points against a model curve
+    replicas(replica_result)      bootstrap / Monte-Carlo replicas: histograms (or a corner plot) of the
+                                  parameters and predictions with the covariance matrix's Gaussian
 
 Units: energies cm-1, distances angstrom.
 """
 import math
+import re
 
 import numpy as np
 
 __all__ = ["potential", "residuals", "birge_sponer", "near_dissociation", "wkb_vs_exact", "correlation",
-           "rkr_curve", "ENERGY_LABEL", "R_LABEL"]
+           "rkr_curve", "replicas", "linear_covariance", "ENERGY_LABEL", "R_LABEL"]
 
 R_LABEL = "r [Å]"
 ENERGY_LABEL = "energy [cm$^{-1}$]"
@@ -71,17 +74,25 @@ def _is_isotope_pair(items):
     return True
 
 
-def potential(potential, mu=None, ax=None, *, J=0, levels=None, r=None, energy_max=None, order=1):
+def potential(potential, mu=None, ax=None, *, J=0, levels=None, r=None, energy_max=None, order=None, ends=None,
+              quasibound=None):
     """The potential curve V(r) and, for each reduced mass, its levels between their turning points.
 
     potential: a wkbfit Potential. mu: None (the curve only), a reduced mass in u, an isotopologue
     label ("7Li133Cs"), a list of labels, or a dict label -> reduced mass for several
-    isotopologues (one colour each). J: the rotational quantum number of the levels drawn.
+    isotopologues (one colour each). J: the rotational quantum number of the levels drawn; for
+    J > 0 the effective curve V(r) + J(J+1) hbar^2/(2 mu r^2) of each mass is drawn too (dashed,
+    labelled "V_J(r), ..."), on which the turning points lie.
+    order, ends: the level rule as in `levels` (default: its default, second order with matched
+    end phases). quasibound: also draw the quasibound levels behind the centrifugal barrier,
+    dashed (default: when J > 0, where they can exist; levels(..., quasibound=True)).
     levels: a LevelTable (or a dict label -> LevelTable) to draw instead of computing levels.
     Levels marked quasibound (a boolean `quasibound` column, where the table has one) are drawn
-    dashed. r: the distances of the curve (default: from the inner wall at about 1.3 well depths
-    to 3 re, or past the last level's outer turning point). energy_max: top of the energy axis.
-    Returns the Axes; the curve is the line labelled "V(r)", each set of levels a LineCollection.
+    dashed between the inner wall and the barrier's inner side. r: the distances of the curve
+    (default: from the inner wall at about 1.3 well depths to 3 re, or past the last level's outer
+    turning point). energy_max: top of the energy axis.
+    Returns the Axes; the curve is the line labelled "V(r)", each set of levels a LineCollection
+    (bound ones first, then the quasibound ones of the same mass).
     """
     from .levels import levels as compute_levels
     from .potentials import Potential
@@ -96,9 +107,11 @@ def potential(potential, mu=None, ax=None, *, J=0, levels=None, r=None, energy_m
                 raise TypeError("levels must be a LevelTable or a dict label -> LevelTable, got %r" % (table,))
             tables.append((label if label is not None else "mu = %.6g u" % table.mu, table))
     else:
+        rule = {k: x for k, x in (("order", order), ("ends", ends)) if x is not None}
+        if quasibound if quasibound is not None else J > 0:
+            rule["quasibound"] = True
         for label, m in _masses_argument(mu):
-            tables.append((label, compute_levels(potential, m, J=J, order=order) if order != 1
-                           else compute_levels(potential, m, J=J)))
+            tables.append((label, compute_levels(potential, m, J=J, **rule)))
     ax = _axes(ax)
     D = potential.asymptote
     V_min = _curve_minimum(potential)
@@ -107,12 +120,23 @@ def potential(potential, mu=None, ax=None, *, J=0, levels=None, r=None, energy_m
         r = _default_r(potential, tables, V_min, depth)
     r = np.asarray(r, dtype=float)
     V = potential(r)
-    top = energy_max if energy_max is not None else V_min + 1.15 * depth
+    top = energy_max
+    if top is None:
+        highest = [float(np.max(t.energy)) for _, t in tables if len(t)]
+        top = max([V_min + 1.15 * depth] + [E + 0.05 * depth for E in highest])
     shown = V <= top + 0.5 * depth
     ax.plot(r[shown], V[shown], color="k", lw=1.5, label="V(r)")
     ax.axhline(D, color="0.6", lw=0.8, ls=":", label="asymptote %.6g cm$^{-1}$" % D)
     for k, (label, table) in enumerate(tables):
-        _levels_into(ax, label, table, _colors()[k % 10])
+        color = _colors()[k % 10]
+        J_table = sorted(set(np.asarray(table.J).tolist())) if hasattr(table, "J") else [J]
+        if len(J_table) == 1 and J_table[0] > 0:
+            from ._core import HBAR2_OVER_2U
+            Jt = J_table[0]
+            VJ = V + Jt * (Jt + 1) * HBAR2_OVER_2U / (float(table.mu) * r * r)
+            ok = VJ <= top + 0.5 * depth
+            ax.plot(r[ok], VJ[ok], color=color, lw=0.8, ls="--", label="V_J(r), J = %d, %s" % (Jt, label))
+        _levels_into(ax, label, table, color)
     ax.set_ylim(V_min - 0.05 * depth, top)
     ax.set_xlim(r[0], r[-1])
     ax.set_xlabel(R_LABEL)
@@ -289,10 +313,15 @@ def near_dissociation(source, ax=None, *, isotopologue=None, n=None, last=None):
     For a -C_n/r^n tail the binding energy goes as (vD - v)^(2n/(n-2)) near the limit (LeRoy-Bernstein),
     so this is a straight line reaching zero at vD. For an exponential tail (Morse, EMO, Poeschl-Teller)
     the exponent 1/2 is used, for which the Morse levels lie exactly on a line. source: a FitResult
-    (measured levels as points, fitted ones with error bars) or a Prediction. n: the tail power
-    (default: that of the potential). last: draw only the last `last` levels. vD and its one-sigma
-    range are marked.
+    (measured levels as points, fitted ones with error bars), a Prediction, or a NearDissociationFit
+    (its levels, and each law at the levels it was fitted to, against the summary D). n: the tail power
+    (default: that of the potential). last: draw only the last `last` levels. vD (first-order WKB)
+    and its one-sigma range are marked, and the quantum threshold number v_th where the prediction
+    has one (exact levels at J = 0).
     """
+    from .near_dissociation import NearDissociationFit
+    if isinstance(source, NearDissociationFit):
+        return _near_dissociation_laws(source, ax, last)
     pred, result = _prediction_of(source, isotopologue)
     n = tail_power(pred.potential) if n is None else float(n)
     if n is not None and not n > 2:
@@ -326,11 +355,53 @@ def near_dissociation(source, ax=None, *, isotopologue=None, n=None, last=None):
         ax.axvline(pred.vD, color="C3", lw=1, label="vD = %.3f +/- %.3f" % (pred.vD, pred.vD_uncertainty))
         if math.isfinite(pred.vD_uncertainty):
             ax.axvspan(pred.vD - pred.vD_uncertainty, pred.vD + pred.vD_uncertainty, color="C3", alpha=0.15, lw=0)
+    v_th = getattr(pred, "v_th", None)
+    if v_th is not None and math.isfinite(v_th):
+        ax.axvline(v_th, color="C2", lw=1, ls="-.", label="v_th = %.3f +/- %.3f (quantum threshold number)" % (
+            v_th, pred.v_th_uncertainty if pred.v_th_uncertainty is not None else math.nan))
     power = "1/2" if n is None else "(n-2)/(2n) = %.4g" % alpha
     ax.set_xlabel(V_LABEL)
     ax.set_ylabel("(D - E)$^{%s}$ [(cm$^{-1}$)$^{%s}$]" % ("1/2" if n is None else "%.3g" % alpha,
                                                             "1/2" if n is None else "%.3g" % alpha))
     ax.set_title("near dissociation: exponent %s%s" % (power, "" if n is None else ", n = %g" % n))
+    ax.set_ylim(bottom=0)
+    ax.legend(fontsize="small")
+    return ax
+
+
+def _near_dissociation_laws(nd, ax, last):
+    """The near-dissociation plot of a NearDissociationFit: its levels and each law fitted to them."""
+    n = float(nd.tail_power)
+    alpha = (n - 2) / (2 * n)
+    ax = _axes(ax)
+    order = np.argsort(nd.v)
+    if last is not None:
+        order = order[-int(last):]
+    v, E, s = nd.v[order], nd.energy[order], nd.uncertainty[order]
+    D = nd.D[0]
+    b = D - E
+    ok = b > 0
+    ax.errorbar(v[ok], b[ok] ** alpha, yerr=alpha * b[ok] ** (alpha - 1) * s[ok], fmt="o", color="C1", ms=4,
+                capsize=2, label="levels fitted (binding energy below the summary D)")
+    for k, law in enumerate(f for f in (nd.lb, nd.expansion, nd.threshold) if f is not None):
+        rows = np.asarray(law.rows, dtype=int)
+        keep = np.isin(rows, order)
+        rows, resid = rows[keep], law.residuals[keep]
+        calc = nd.energy[rows] - resid  # the law's energies at the levels it was fitted to
+        bl = law.params["D"][0] - calc if "D" in law.params else D - calc
+        good = bl > 0
+        idx = np.argsort(nd.v[rows][good])
+        ax.plot(nd.v[rows][good][idx], bl[good][idx] ** alpha, "-", color="C%d" % (k + 4), lw=1,
+                label="%s law (sqrt of reduced chi-square %s)" % (
+                    law.law, "%.3g" % law.standard_error if law.standard_error is not None else "-"))
+    vD, svD = nd.vD
+    ax.axvline(vD, color="C3", lw=1, label="vD = %.3f +/- %.3f" % (vD, svD))
+    ax.axvspan(vD - svD, vD + svD, color="C3", alpha=0.15, lw=0)
+    ax.axvline(nd.v_th[0], color="C2", lw=1, ls="-.", label="v_th = %.3f +/- %.3f (%s)" % (
+        nd.v_th[0], nd.v_th[1], nd.v_th_source))
+    ax.set_xlabel(V_LABEL)
+    ax.set_ylabel("(D - E)$^{%.3g}$ [(cm$^{-1}$)$^{%.3g}$]" % (alpha, alpha))
+    ax.set_title("near-dissociation fits: exponent (n-2)/(2n) = %.4g, n = %g" % (alpha, n))
     ax.set_ylim(bottom=0)
     ax.legend(fontsize="small")
     return ax
@@ -440,3 +511,165 @@ def rkr_curve(turning_points, potential=None, ax=None, *, r=None):
     ax.set_title("RKR curve, mu = %.6g u" % tp.mu)
     ax.legend(fontsize="small")
     return ax
+
+
+# ------------------------------------------------------------------------------------ replicas
+def _unit_label(name, unit):
+    """'De [cm$^{-1}$]', 're [Å]', 'vD (dimensionless)' for a quantity name and a unit of reports._UNITS."""
+    if not unit:
+        return "%s (dimensionless)" % name
+    text = unit.replace("cm-1", "cm$^{-1}$").replace("1/A", "Å$^{-1}$")
+    text = re.sub(r"\bA\^(\d+)", r"Å$^{\1}$", text)
+    text = re.sub(r"(?<![\w$])A(?![\w$])", "Å", text)
+    return "%s [%s]" % (name, text)
+
+
+def _default_replica_names(rep):
+    return [k for k in rep.names if k in rep.fit_result.var_names or k in ("D0", "vD")]
+
+
+def linear_covariance(rep, names):
+    """The covariance matrix of the quantities `names` of a ReplicaResult by linear propagation of the
+    fit's covariance: parameters directly, D0, vD and Eb(v=...) through their parameter gradients
+    (those of FitResult.predict); the diagonal is the replica result's covariance_sd squared (which
+    also holds a level's method error). Rows of quantities without a covariance (chi_square,
+    n_bound) are NaN."""
+    from . import _core
+    from .fitting import _level_code
+    res = rep.fit_result
+    idx, cov = res._gradient_covariance()
+    pnames = list(res.potential.param_names)
+    model, params, curve = res.potential._core_args()
+    mass = res.masses[rep.isotopologue] if rep.isotopologue in res.masses else next(iter(res.masses.values()))
+    core = _core.fit_levels(model, params, curve, mass, 0.0, _level_code(res.method))
+    G, dA = core["jacobian"], res._asymptote_gradient()
+    grads = []
+    for k in names:
+        g = np.full(len(pnames), math.nan)
+        if k in pnames:
+            g = np.zeros(len(pnames))
+            g[pnames.index(k)] = 1.0
+        elif k == "D0" and len(G):
+            g = dA - G[0]
+        elif k == "vD":
+            g = np.asarray(core["dvD_dp"], dtype=float)
+        elif k.startswith("Eb(v=") and int(k[5:-1]) < len(G):
+            g = dA - G[int(k[5:-1])]
+        grads.append(g[idx])
+    g = np.array(grads)
+    C = g @ cov @ g.T
+    sd_lin = np.sqrt(np.abs(np.diag(C)))
+    sd = np.array([rep.covariance_sd.get(k) if rep.covariance_sd.get(k) is not None else math.nan for k in names],
+                  dtype=float)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        corr = C / np.outer(sd_lin, sd_lin)
+    return corr * np.outer(sd, sd)
+
+
+def _gaussian_counts(x, centre, sd, n, width):
+    """Expected counts per bin of width `width` of n draws from N(centre, sd) at x."""
+    return n * width * np.exp(-0.5 * ((x - centre) / sd) ** 2) / (sd * math.sqrt(2 * math.pi))
+
+
+def _replica_histogram(ax, rep, name, bins):
+    from .replicas import _unit
+    x = rep.values[name]
+    x = x[np.isfinite(x)]
+    counts, edges, _ = ax.hist(x, bins=bins, color="C0", alpha=0.6, label="%d replicas" % len(x))
+    centre, sd = rep.central[name], rep.covariance_sd.get(name)
+    if sd is not None and math.isfinite(sd) and sd > 0 and len(x):
+        lo, hi = min(edges[0], centre - 4 * sd), max(edges[-1], centre + 4 * sd)
+        grid = np.linspace(lo, hi, 400)
+        ax.plot(grid, _gaussian_counts(grid, centre, sd, len(x), edges[1] - edges[0]), "-", color="C3", lw=1.2,
+                label="covariance: N(fit, %.3g)" % sd)
+    ax.axvline(centre, color="k", lw=0.8, label="fit")
+    ax.set_xlabel(_unit_label(name, _unit(rep.fit_result, name)))
+    ax.set_ylabel("replicas (count, dimensionless)")
+    return ax
+
+
+def _ellipse(mean, C, k):
+    """Points of the k-sigma ellipse (x - m)^T C^-1 (x - m) = k^2 of a 2 x 2 covariance."""
+    w, U = np.linalg.eigh(C)
+    t = np.linspace(0, 2 * math.pi, 181)
+    circle = np.vstack([np.cos(t), np.sin(t)]) * k * np.sqrt(np.maximum(w, 0.0))[:, None]
+    pts = U @ circle
+    return mean[0] + pts[0], mean[1] + pts[1]
+
+
+def replicas(replica_result, ax=None, *, names=None, corner=False, bins=None):
+    """The replicas of a fit (FitResult.bootstrap): one histogram per quantity, or a corner plot.
+
+    names: the quantities (default: the varied parameters, D0 and vD). Each histogram carries the
+    Gaussian of the fit's covariance matrix, N(fit value, covariance sd), as expected counts per bin:
+    where the two agree, the linear propagation of the covariance describes the fit. corner=True:
+    a lower-triangle grid with the histograms on the diagonal and, below it, the replicas of each
+    pair as points with the covariance's 1- and 2-sigma ellipses (linear_covariance).
+    ax: one Axes (one name), a sequence of Axes (one per name; corner: n x n), or None (a new
+    figure). bins: histogram bins (default: about sqrt(replicas), 8 to 30). Returns the Axes: one
+    Axes for one name, else a NumPy array of them (n, or n x n).
+    """
+    from .replicas import ReplicaResult
+    if not isinstance(replica_result, ReplicaResult):
+        raise TypeError("give the ReplicaResult of FitResult.bootstrap, got %r" % (replica_result,))
+    rep = replica_result
+    names = _default_replica_names(rep) if names is None else list(names)
+    unknown = [k for k in names if k not in rep.names]
+    if unknown or not names:
+        raise ValueError("names=%r: not followed by these replicas; choose from %s" % (
+            unknown or names, ", ".join(rep.names)))
+    if rep.n_converged < 2:
+        raise ValueError("%d converged replicas: too few for a figure (n_failed %d; see .failures)"
+                         % (rep.n_converged, rep.n_failed))
+    k = len(names)
+    if bins is None:
+        bins = int(min(30, max(8, round(math.sqrt(rep.n_converged)))))
+    new_figure = ax is None
+    if ax is None:
+        plt = _pyplot()
+        shape = (k, k) if corner else (1, k)
+        fig, axes = plt.subplots(*shape, figsize=(3.2 * shape[1], 2.8 * shape[0] + 0.4), squeeze=False)
+        axes = axes if corner else axes[0]
+    else:
+        axes = np.array(ax, dtype=object) if isinstance(ax, (list, tuple, np.ndarray)) else np.array([ax], object)
+        need = (k, k) if corner else (k,)
+        if axes.size != int(np.prod(need)):
+            raise ValueError("ax: %d Axes given, %d needed for %d quantities%s" % (
+                axes.size, int(np.prod(need)), k, " in a corner plot" if corner else ""))
+        axes = axes.reshape(need)
+    if not corner:
+        for a, name in zip(axes, names):
+            _replica_histogram(a, rep, name, bins)
+        axes[0].legend(fontsize="x-small")
+        axes[0].figure.suptitle("%s replicas: spread against the covariance matrix" % rep.kind)
+        if new_figure:
+            axes[0].figure.tight_layout()
+        return axes[0] if k == 1 else axes
+    C = linear_covariance(rep, names)
+    for i in range(k):
+        for j in range(k):
+            a = axes[i, j]
+            if j > i:
+                a.set_visible(False)
+                continue
+            if i == j:
+                _replica_histogram(a, rep, names[i], bins)
+                continue
+            x, y = rep.values[names[j]], rep.values[names[i]]
+            ok = np.isfinite(x) & np.isfinite(y)
+            a.plot(x[ok], y[ok], ".", color="C0", ms=2, alpha=0.5, label="replicas")
+            sub = C[np.ix_([j, i], [j, i])]
+            if np.all(np.isfinite(sub)):
+                m = np.array([rep.central[names[j]], rep.central[names[i]]])
+                for s, style in ((1, "-"), (2, "--")):
+                    a.plot(*_ellipse(m, sub, s), style, color="C3", lw=1, label="covariance, %d sigma" % s)
+            from .replicas import _unit
+            a.set_xlabel(_unit_label(names[j], _unit(rep.fit_result, names[j])))
+            a.set_ylabel(_unit_label(names[i], _unit(rep.fit_result, names[i])))
+    axes[0, 0].legend(fontsize="x-small")
+    if k > 1:
+        axes[1, 0].legend(fontsize="x-small")
+    axes[0, 0].figure.suptitle("%s replicas against the covariance matrix" % rep.kind)
+    if new_figure:
+        axes[0, 0].figure.tight_layout()
+    return axes

@@ -275,6 +275,11 @@ class ReplicaResult:
     def _repr_html_(self):
         return _html(self)
 
+    def plot(self, ax=None, **options):
+        """Histograms (or corner=True, a corner plot) against the covariance matrix: wkbfit.plots.replicas."""
+        from .plots import replicas
+        return replicas(self, ax, **options)
+
 
 def _unit(res, name):
     if name in ("chi_square", "vD", "n_bound"):
