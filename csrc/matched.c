@@ -63,7 +63,7 @@ static int pruefer_rhs(double t, const double y[], double f[], void *params)
     wkb_pot_value pv;
     const double F = wkb_well_kinetic(c->w, c->binding, r, &pv) / eps, Fr = -pv.dV / eps;
     c->n_eval++;
-    const double q = pow(F * F + c->q04, 0.25), q_rho = c->sigma * F * Fr / (2 * q * q * q);
+    const double q = sqrt(sqrt(F * F + c->q04)), q_rho = c->sigma * F * Fr / (2 * q * q * q);
     const double s = sin(y[0]), co = cos(y[0]);
     f[0] = -r * (q * co * co + (F / q) * s * s + (q_rho / q) * s * co);
     return isfinite(f[0]) ? GSL_SUCCESS : GSL_EBADFUNC;
@@ -155,7 +155,7 @@ static int end_phase(wkb_well *w, double binding, int outer, double r_turn, doub
     m->ctx.n_eval = 0;
     double y[1] = {M_PI}; /* u = 0 */
     if (!regular) {
-        const double F = kin / eps, kappa = sqrt(-F), q = pow(F * F + m->ctx.q04, 0.25);
+        const double F = kin / eps, kappa = sqrt(-F), q = sqrt(sqrt(F * F + m->ctx.q04));
         const double dkappa_rho = sigma * pv.dV / (2 * eps * kappa);
         const double z = -kappa - dkappa_rho / (2 * kappa);
         y[0] = M_PI_2 - atan(z / q);
@@ -172,7 +172,7 @@ static int end_phase(wkb_well *w, double binding, int outer, double r_turn, doub
     const double kb = wkb_well_kinetic(w, binding, b, &pv);
     double k, dkdr, q2;
     local_wave(w, kb, &pv, &k, &dkdr, &q2);
-    const double Fb = kb / eps, qb = pow(Fb * Fb + m->ctx.q04, 0.25);
+    const double Fb = kb / eps, qb = sqrt(sqrt(Fb * Fb + m->ctx.q04));
     const double zb = qb * cos(y[0]) / sin(y[0]); /* u_rho/u */
     const double x = zb + sigma * dkdr / (2 * k);
     double psi = atan2(q2, x); /* in (0, pi) */
@@ -419,7 +419,9 @@ int wkb_threshold_number(wkb_well *w, double *v_th, wkb_error *err)
 }
 
 /* Level v by the matched rule: safeguarded secant in x = b^alpha (b the binding energy), started
-   from the first-order level in *level when it converged. */
+   from the first-order level in *level when it converged, shifted by the phase defect (matched minus
+   first-order quantum number) extrapolated from the levels solved before: it changes slowly from level
+   to level, so the start is within ~1e-5 of the level in v and two phase evaluations suffice. */
 int wkb_matched_solve(wkb_well *w, size_t v, int across, wkb_level *level, wkb_error *err)
 {
     const double n = w->tail_power, alpha = n > 2 ? (n - 2) / (2 * n) : 0.5;
@@ -430,11 +432,15 @@ int wkb_matched_solve(wkb_well *w, size_t v, int across, wkb_level *level, wkb_e
     double lo = pow(b_min, alpha), hi = pow(depth, alpha); /* G(lo) > 0 (threshold side), G(hi) < 0 */
     double x, slope;
     if (level->status == WKB_SUCCESS && level->binding > b_min) {
-        /* the matched level sits where the first-order quantum number exceeds v by about the defect of
-           the level solved before (it changes slowly from level to level) */
+        /* the matched level sits where the first-order quantum number exceeds v by the defect */
         double b0 = level->binding;
-        if (w->have_defect[across]) {
-            const double bd = b0 - w->defect[across] * level->dEdv;
+        const int known = w->have_defect[across];
+        if (known) {
+            double d = w->defect[across];
+            /* linear in v through the last two, when they are this level's two predecessors */
+            if (known > 1 && w->defect_v[across] + 1 == v)
+                d = 2 * w->defect[across] - w->defect_before[across];
+            const double bd = b0 - d * level->dEdv;
             if (bd > b_min && bd < depth)
                 b0 = bd;
         }
@@ -446,7 +452,7 @@ int wkb_matched_solve(wkb_well *w, size_t v, int across, wkb_level *level, wkb_e
     }
     if (!(x > lo && x < hi))
         x = lo + 0.01 * (hi - lo);
-    double x_prev = NAN, G_prev = NAN, b = pow(x, 1 / alpha), db = INFINITY;
+    double x_prev = NAN, G_prev = NAN, b = pow(x, 1 / alpha), db = INFINITY, db_prev = NAN;
     size_t n_eval = 0;
     int converged = 0;
     for (int it = 0; it < 60; it++) {
@@ -459,6 +465,7 @@ int wkb_matched_solve(wkb_well *w, size_t v, int across, wkb_level *level, wkb_e
             else
                 lo = x;
             x = 0.5 * (lo + hi);
+            db_prev = NAN;
             continue;
         }
         if (status)
@@ -471,18 +478,26 @@ int wkb_matched_solve(wkb_well *w, size_t v, int across, wkb_level *level, wkb_e
         if (isfinite(G_prev) && x != x_prev)
             slope = (G - G_prev) / (x - x_prev);
         double xn = (isfinite(slope) && slope < 0) ? x - G / slope : NAN;
-        if (!(xn > lo && xn < hi))
+        int secant = 1;
+        if (!(xn > lo && xn < hi)) {
             xn = 0.5 * (lo + hi);
+            secant = 0;
+        }
         x_prev = x;
         G_prev = G;
         const double bn = pow(xn, 1 / alpha);
         db = fabs(bn - b);
         x = xn;
-        if (db <= tol || hi - lo <= 1e-15 * hi) {
+        /* the secant converges superlinearly: the error left after this step is about
+           step^2 / previous step (10 times that is kept as the bound) */
+        const double predicted = secant && isfinite(db_prev) && db_prev > 0 ? 10 * db * db / db_prev : INFINITY;
+        if (db <= tol || predicted <= tol || hi - lo <= 1e-15 * hi) {
             b = bn;
+            db = GSL_MIN(db, predicted);
             converged = 1;
             break;
         }
+        db_prev = secant ? db : NAN;
     }
     if (!converged)
         return wkb_fail(err, WKB_ENOCONV, "the matched level v=%zu did not converge (last change %.3g cm-1)", v, db);
@@ -490,8 +505,11 @@ int wkb_matched_solve(wkb_well *w, size_t v, int across, wkb_level *level, wkb_e
     int status = wkb_orbit_at(w, b, &o, NULL, err);
     if (status)
         return status;
-    w->defect[across] = o.action / M_PI - w->phase - (double)v;
-    w->have_defect[across] = 1;
+    const double defect = o.action / M_PI - w->phase - (double)v;
+    w->defect_before[across] = w->have_defect[across] && w->defect_v[across] + 1 == v ? w->defect[across] : NAN;
+    w->have_defect[across] = isfinite(w->defect_before[across]) ? 2 : 1;
+    w->defect[across] = defect;
+    w->defect_v[across] = v;
     level->v = (double)v;
     level->binding = b;
     level->energy = w->top - b;

@@ -413,7 +413,7 @@ static PyObject *py_matched_phases(PyObject *self, PyObject *args, PyObject *kwd
                              "r_match_outer", NULL};
     const char *model_name;
     PyObject *params_obj, *curve_obj;
-    double mu, rot, binding, fraction = 0.5, rm_in = 0, rm_out = 0, vq = NAN;
+    double mu, rot, binding, fraction = WKB_MATCH_FRACTION, rm_in = 0, rm_out = 0, vq = NAN;
     wkb_potential pot;
     wkb_error err = {0};
     wkb_end_phase ph[2];
@@ -460,7 +460,7 @@ static PyObject *py_wkb_levels(PyObject *self, PyObject *args, PyObject *kwds)
                              "max_levels", NULL};
     const char *model_name;
     PyObject *params_obj, *curve_obj, *rot_obj, *v_obj = Py_None;
-    double mu, match_fraction = 0.5;
+    double mu, match_fraction = WKB_MATCH_FRACTION;
     int maslov_in = 1, maslov_out = 1, want_dVdp = 0, order = 1, ends = WKB_ENDS_MASLOV, nodes = 0, match_rule = 0;
     Py_ssize_t max_levels = 1000000; /* work limit: levels in one call (the caller may raise it) */
     PyArrayObject *vth_arr = NULL;
@@ -1964,11 +1964,11 @@ static PyMethodDef core_methods[] = {
      "airy_asymptotic(z, terms) -> Ai(z) from the large-|z| expansions (A&S 10.4.59 for z > 0,\n"
      "10.4.60 for z < 0) truncated after terms = 1..50 coefficients c_0..c_(terms-1)."},
     {"matched_phases", (PyCFunction)(void (*)(void))py_matched_phases, METH_VARARGS | METH_KEYWORDS,
-     "matched_phases(model, params, curve, mu, rot, binding, match_fraction=0.5, r_match_inner=0, "
+     "matched_phases(model, params, curve, mu, rot, binding, match_fraction=0.2, r_match_inner=0, "
      "r_match_outer=0) -> dict: the matched end phases psi and the continuous quantum number at one energy"},
     {"wkb_levels", (PyCFunction)(void (*)(void))py_wkb_levels, METH_VARARGS | METH_KEYWORDS,
      "wkb_levels(model, params, curve, mu, rot, v=None, maslov_in=1, maslov_out=1, want_dVdp=False, order=1, "
-     "ends=0, match_fraction=0.5, nodes=0, match_rule=0) "
+     "ends=0, match_fraction=0.2, nodes=0, match_rule=0) "
      "-> dict of level arrays (v, energy, binding_energy, turning points, Bv, dEdv, error, rule, rot_index), vD, "
      "v_th (ends=1 only, else NaN) and count (per rot when rot is an array), [dE_dp]; ends=1 selects matched end "
      "phases, nodes overrides the quadrature rule, match_rule forces 3 (matched) or 4 (exact phase)"},

@@ -306,15 +306,17 @@ static int solve_first_order(wkb_well *w, size_t v, wkb_level *level, double *av
      I(E) - (sqrt(eps)/24) dK/dE = pi (v + phase),  K(E) = integral V_J''(r) dr / sqrt(E - V_J)
    [Dunham, Phys. Rev. 41, 713 (1932); this integrated-by-parts form and its coefficient are derived in
    shared/design/physics.md section 2]. dK/dE is a five-point central difference with a step of 1% of the
-   level spacing, kept inside the well; the three-point difference bounds its error. The term is not
-   valid close to dissociation, where the outer turning point stops being linear. */
+   level spacing, kept inside the well; the three-point difference bounds its error. The same five values
+   give d2K/dE2 and d3K/dE3, which carry dK/dE to the Newton iterates within the stencil (+-2h): those need
+   one orbit each (the action) instead of a new stencil; the last Taylor term bounds that error. The term
+   is not valid close to dissociation, where the outer turning point stops being linear. */
 static int second_order_level(wkb_well *w, size_t v, wkb_level *level, double *avg_dVdp, wkb_error *err)
 {
     const double target = M_PI * ((double)v + w->phase);
     const double coef = sqrt(w->eps) / 24;
     const double b_min = w->top - w->bound_top, depth = w->top - w->bottom;
     const double tol = w->set.energy_tol + 4e-14 * depth;
-    double b = level->binding, dE = INFINITY, fd_error = 0;
+    double b = level->binding, dE = INFINITY, fd_error = 0, taylor_error = 0;
     wkb_orbit o = {0};
     int status, converged = 0;
     for (int it = 0; it < 30 && !converged; it++) {
@@ -330,19 +332,47 @@ static int second_order_level(wkb_well *w, size_t v, wkb_level *level, double *a
                 return status;
             K[k] = ok.curvature_integral;
         }
+        const double K0 = o.curvature_integral;
         const double dK5 = (K[0] - 8 * K[1] + 8 * K[2] - K[3]) / (12 * h);
         const double dK3 = (K[2] - K[1]) / (2 * h);
+        const double d2K = (-K[0] + 16 * K[1] - 30 * K0 + 16 * K[2] - K[3]) / (12 * h * h);
+        const double d3K = (-K[0] + 2 * K[1] - 2 * K[2] + K[3]) / (2 * h * h * h);
         fd_error = coef * fabs(dK5 - dK3) / o.half_period;
         const double F = o.action - coef * dK5 - target;
         double bn = b + F / o.half_period;
         bn = GSL_MAX(GSL_MIN(bn, depth), b_min);
         dE = fabs(bn - b);
-        b = bn;
+        taylor_error = 0;
         converged = dE <= tol + fd_error;
+        /* Newton on the action alone, dK/dE carried by its Taylor series about b */
+        const double T0 = o.half_period;
+        for (int j = 0; j < 4 && !converged && fabs(bn - b) <= 2 * h; j++) {
+            wkb_orbit on;
+            if ((status = wkb_orbit_at(w, bn, &on, avg_dVdp, err)))
+                return status;
+            const double e = b - bn; /* energy offset from the stencil's centre */
+            const double dK = dK5 + d2K * e + 0.5 * d3K * e * e;
+            taylor_error = coef * fabs(0.5 * d3K * e * e) / on.half_period;
+            const double Fn = on.action - coef * dK - target;
+            double bn2 = GSL_MAX(GSL_MIN(bn + Fn / on.half_period, depth), b_min);
+            const double step = fabs(bn2 - bn);
+            /* the error left after this Newton step: (I''/2I') step^2, I'' from the two half periods */
+            const double d2I = e != 0 ? (on.half_period - T0) / e : 0;
+            const double predicted = fabs(d2I / (2 * on.half_period)) * step * step;
+            o = on;
+            b = bn;
+            bn = bn2;
+            dE = step;
+            if (step <= tol + fd_error + taylor_error || 10 * predicted <= tol) {
+                dE = step <= tol + fd_error + taylor_error ? step : 10 * predicted;
+                converged = 1;
+            }
+        }
+        b = bn;
     }
     level->binding = b;
     level->energy = w->top - b;
-    level->error += dE + fd_error;
+    level->error += dE + fd_error + taylor_error;
     level->r_inner = o.r_inner;
     level->r_outer = o.r_outer;
     level->dEdv = M_PI / o.half_period;

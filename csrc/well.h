@@ -46,8 +46,10 @@ struct wkb_well {
     int low_wall;
     int across; /* matched ends in a well too quantal for second order: exact phase across the well */
     /* first-order quantum number minus v at the last matched level, per rule (3, 4): it starts the next */
-    double defect[2];
-    int have_defect[2]; /* levels bound by the first-order rule (the matched count may differ) */
+    double defect[2], defect_before[2]; /* the last two, at levels defect_v[.] and defect_v[.] - 1 */
+    size_t defect_v[2];
+    int have_defect[2]; /* how many of the two are known (levels bound by the first-order rule; the matched
+                           count may differ) */
 };
 
 /* orbit.c helpers for matched.c: V_J and its derivatives (depth = D - V_J); the kinetic term
