@@ -64,7 +64,7 @@ static int prepare(wkb_well *w, wkb_error *err)
     }
     w->count_first = w->count;
     w->across = 0;
-    w->have_defect[0] = w->have_defect[1] = 0;
+    w->defect_n = 0;
     /* the matched rule may bind one level more than the first-order rule */
     const size_t want = GSL_MIN(w->count + (w->set.ends == WKB_ENDS_MATCHED ? 2 : 0), CACHE_LIMIT);
     if (want > w->cache_size) {
@@ -195,6 +195,8 @@ static int solve_level(wkb_well *w, size_t v, wkb_level *level, double *avg_dVdp
             wkb_error e2;
             if (second_order_level(w, v, &second, avg_dVdp, &e2) == WKB_SUCCESS &&
                 (second.energy - level->energy) * (second.energy - level->energy) / second.dEdv <= WKB_ACROSS_ESTIMATE) {
+                if (second.dEdv > 0)
+                    wkb_matched_note_defect(w, v, second.binding, (level->binding - second.binding) / second.dEdv);
                 *level = second;
                 level->rule = WKB_RULE_SECOND;
                 return level->status = WKB_SUCCESS;
