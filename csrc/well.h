@@ -63,9 +63,10 @@ int wkb_well_crossing(const wkb_well *w, double binding, double lo, double hi, d
 
 /* matched.c: per-well state of the matched-end quantization (NULL until first used) */
 void wkb_matched_free(wkb_matched *m);
-/* matched level v (started from level->binding if level->status == WKB_SUCCESS, else from a guess);
-   across: exact phase integration across the whole well instead (both ends meet at the bottom) */
-int wkb_matched_solve(wkb_well *w, size_t v, int across, wkb_level *level, wkb_error *err);
+/* matched level v (started from level->binding if level->status == WKB_SUCCESS, else from a guess;
+   second_start: that is the second-order level, else the first-order one); across: exact phase
+   integration across the whole well instead (both ends meet at the bottom) */
+int wkb_matched_solve(wkb_well *w, size_t v, int across, int second_start, wkb_level *level, wkb_error *err);
 /* records the defect of level v at binding b (levels solved out of order clear the record) */
 void wkb_matched_note_defect(wkb_well *w, size_t v, double binding, double defect);
 
