@@ -189,7 +189,7 @@ static int solve_level(wkb_well *w, size_t v, wkb_level *level, double *avg_dVdp
         w->set.order = order;
         if (status && status != WKB_ENOCONV)
             return status;
-        if (!status && !w->across && (w->rot == 0 || v + WKB_ACROSS_LAST < w->count) && !w->set.match_rule &&
+        if (!status && !w->across && v + WKB_ACROSS_LAST < w->count && !w->set.match_rule &&
             (v < WKB_MATCH_MIN_V || nonlinearity(w, level->r_outer) <= WKB_MATCH_NONLINEARITY)) {
             wkb_level second = *level;
             wkb_error e2;

@@ -277,7 +277,7 @@ enum wkb_rule { WKB_RULE_FIRST = 1, WKB_RULE_SECOND = 2, WKB_RULE_MATCHED = 3, W
 /* With matched ends, a level whose outer turning point is this far from linear uses the matched rule
    (the others keep second order, which is as accurate there and much cheaper): the larger of
    |V''| l/|V'| and l sqrt(|V'''|/|V'|) at r_outer, l = (eps/|V'|)^(1/3) the Airy length. */
-#define WKB_MATCH_NONLINEARITY 0.5
+#define WKB_MATCH_NONLINEARITY 1.0
 /* ... except for v below this: at the bottom of any well the Airy length is comparable to the orbit (the
    measure is then O(1) for a harmonic well, which second order treats well) and the matching point lies
    within a fraction of a wavelength of the turning point, where the matched rule is least accurate */
