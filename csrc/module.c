@@ -1964,11 +1964,11 @@ static PyMethodDef core_methods[] = {
      "airy_asymptotic(z, terms) -> Ai(z) from the large-|z| expansions (A&S 10.4.59 for z > 0,\n"
      "10.4.60 for z < 0) truncated after terms = 1..50 coefficients c_0..c_(terms-1)."},
     {"matched_phases", (PyCFunction)(void (*)(void))py_matched_phases, METH_VARARGS | METH_KEYWORDS,
-     "matched_phases(model, params, curve, mu, rot, binding, match_fraction=0.2, r_match_inner=0, "
+     "matched_phases(model, params, curve, mu, rot, binding, match_fraction=0.5, r_match_inner=0, "
      "r_match_outer=0) -> dict: the matched end phases psi and the continuous quantum number at one energy"},
     {"wkb_levels", (PyCFunction)(void (*)(void))py_wkb_levels, METH_VARARGS | METH_KEYWORDS,
      "wkb_levels(model, params, curve, mu, rot, v=None, maslov_in=1, maslov_out=1, want_dVdp=False, order=1, "
-     "ends=0, match_fraction=0.2, nodes=0, match_rule=0) "
+     "ends=0, match_fraction=0.5, nodes=0, match_rule=0) "
      "-> dict of level arrays (v, energy, binding_energy, turning points, Bv, dEdv, error, rule, rot_index), vD, "
      "v_th (ends=1 only, else NaN) and count (per rot when rot is an array), [dE_dp]; ends=1 selects matched end "
      "phases, nodes overrides the quadrature rule, match_rule forces 3 (matched) or 4 (exact phase)"},

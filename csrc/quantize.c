@@ -189,8 +189,10 @@ static int solve_level(wkb_well *w, size_t v, wkb_level *level, double *avg_dVdp
         w->set.order = order;
         if (status && status != WKB_ENOCONV)
             return status;
-        if (!status && !w->across && v + WKB_ACROSS_LAST < w->count && !w->set.match_rule &&
-            (v < WKB_MATCH_MIN_V || nonlinearity(w, level->r_outer) <= WKB_MATCH_NONLINEARITY)) {
+        const int last = v + WKB_ACROSS_LAST >= w->count;
+        if (!status && !w->across && (w->rot == 0 || !last) && !w->set.match_rule &&
+            (v < WKB_MATCH_MIN_V ||
+             nonlinearity(w, level->r_outer) <= (last ? WKB_MATCH_NONLINEARITY_LAST : WKB_MATCH_NONLINEARITY))) {
             wkb_level second = *level;
             wkb_error e2;
             if (second_order_level(w, v, &second, avg_dVdp, &e2) == WKB_SUCCESS &&
@@ -359,7 +361,8 @@ static int second_order_level(wkb_well *w, size_t v, wkb_level *level, double *a
         converged = dE <= tol + fd_error;
         /* Newton on the action alone, dK/dE carried by its Taylor series about b */
         const double T0 = o.half_period;
-        for (int j = 0; j < 4 && !converged && fabs(bn - b) <= 2 * h; j++) {
+        const int stencil_ok = isfinite(dK5) && isfinite(d2K) && isfinite(d3K) && isfinite(fd_error) && h > 0;
+        for (int j = 0; j < 4 && stencil_ok && !converged && fabs(bn - b) <= 2 * h; j++) {
             wkb_orbit on;
             if ((status = wkb_orbit_at(w, bn, &on, avg_dVdp, err)))
                 return status;
@@ -376,6 +379,8 @@ static int second_order_level(wkb_well *w, size_t v, wkb_level *level, double *a
             b = bn;
             bn = bn2;
             dE = step;
+            if (!isfinite(taylor_error) || !isfinite(step))
+                break;
             if (step <= tol + fd_error + taylor_error || 10 * predicted <= tol) {
                 dE = step <= tol + fd_error + taylor_error ? step : 10 * predicted;
                 converged = 1;

@@ -272,8 +272,7 @@ enum wkb_rule { WKB_RULE_FIRST = 1, WKB_RULE_SECOND = 2, WKB_RULE_MATCHED = 3, W
 /* ... and so is a well of at most this many levels (there every matching point lies within a wavelength
    or two of its turning point; second order can be exact by accident, as for Morse) */
 #define WKB_ACROSS_MAX_LEVELS 12
-/* ... and so are the last this many levels of a rotating well (J > 0; with matched ends); at J = 0 they
-   take the matched rule: never second order, which misses the 1e-6 cm-1 target there */
+/* ... and so are the last this many levels of a rotating well (J > 0; with matched ends) */
 #define WKB_ACROSS_LAST 2
 /* With matched ends, a level whose outer turning point is this far from linear uses the matched rule
    (the others keep second order, which is within 1e-4 cm-1 there and much cheaper): the larger of
@@ -282,16 +281,19 @@ enum wkb_rule { WKB_RULE_FIRST = 1, WKB_RULE_SECOND = 2, WKB_RULE_MATCHED = 3, W
    second-order level is then the third last of the C6 well, 2.8e-5 cm-1 off (1.2e-5 at 0.5); 2.0
    changed nothing more (measured). */
 #define WKB_MATCH_NONLINEARITY 1.0
+/* ... and for the last two levels at J = 0 this (second order misses 1e-6 cm-1 there on C6 and C4 tails
+   at 1.0, and is exact for Morse, whose exponential tail keeps the measure below this) */
+#define WKB_MATCH_NONLINEARITY_LAST 0.5
 /* ... except for v below this: at the bottom of any well the Airy length is comparable to the orbit (the
    measure is then O(1) for a harmonic well, which second order treats well) and the matching point lies
    within a fraction of a wavelength of the turning point, where the matched rule is least accurate */
 #define WKB_MATCH_MIN_V 2
 /* The default matching level of the matched rule: E - V_J(b) = this fraction of E - V_min. The exact
-   phase ODE, whose cost grows with the number of wavelengths between b and the outer turning point, is
-   about 1.3x cheaper than at 0.5 near threshold (0.1 was a further 15% cheaper but put the last level of
-   a C6 well 5e-10 cm-1 off, 2e-5 of its binding energy); measured on LJ(12,6), (8,4), (6,3) and MLR C6+C8 wells
-   (mu 0.5-100 u, J = 0 and 10), every level stays as accurate as at 0.5 (tests/test_matched.py) */
-#define WKB_MATCH_FRACTION 0.2
+   phase ODE costs less the closer b lies to the outer turning point (0.2: 1.3x fewer ODE steps near
+   threshold, measured), but at 0.2 the last two levels of a light Morse well (HCl, mu = 0.98 u) are
+   1.7e-5 and 8.9e-6 cm-1 off, 6.6e-6 and 8.7e-7 at 0.5, and at 0.1 the last C6 level 5e-10 (2e-5 of its
+   binding energy): 0.5 is kept */
+#define WKB_MATCH_FRACTION 0.5
 
 /* A workspace for one (potential, mass, rotation) combination: allocate once, set,
    then compute any number of orbits and levels without further allocation. */
