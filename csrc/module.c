@@ -413,7 +413,7 @@ static PyObject *py_matched_phases(PyObject *self, PyObject *args, PyObject *kwd
                              "r_match_outer", NULL};
     const char *model_name;
     PyObject *params_obj, *curve_obj;
-    double mu, rot, binding, fraction = 0.5, rm_in = 0, rm_out = 0, vq = NAN;
+    double mu, rot, binding, fraction = WKB_MATCH_FRACTION, rm_in = 0, rm_out = 0, vq = NAN;
     wkb_potential pot;
     wkb_error err = {0};
     wkb_end_phase ph[2];
@@ -460,7 +460,7 @@ static PyObject *py_wkb_levels(PyObject *self, PyObject *args, PyObject *kwds)
                              "max_levels", NULL};
     const char *model_name;
     PyObject *params_obj, *curve_obj, *rot_obj, *v_obj = Py_None;
-    double mu, match_fraction = 0.5;
+    double mu, match_fraction = WKB_MATCH_FRACTION;
     int maslov_in = 1, maslov_out = 1, want_dVdp = 0, order = 1, ends = WKB_ENDS_MASLOV, nodes = 0, match_rule = 0;
     Py_ssize_t max_levels = 1000000; /* work limit: levels in one call (the caller may raise it) */
     PyArrayObject *vth_arr = NULL;

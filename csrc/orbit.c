@@ -44,7 +44,7 @@ wkb_settings wkb_default_settings(void)
     s.scan_points = 160;
     s.order = 1;
     s.ends = WKB_ENDS_MASLOV;
-    s.match_fraction = 0.5;
+    s.match_fraction = WKB_MATCH_FRACTION;
     s.match_decay = 10;
     s.match_ode_tol = 1e-9;
     s.match_rule = 0;

@@ -64,7 +64,7 @@ static int prepare(wkb_well *w, wkb_error *err)
     }
     w->count_first = w->count;
     w->across = 0;
-    w->have_defect[0] = w->have_defect[1] = 0;
+    w->defect_n = 0;
     /* the matched rule may bind one level more than the first-order rule */
     const size_t want = GSL_MIN(w->count + (w->set.ends == WKB_ENDS_MATCHED ? 2 : 0), CACHE_LIMIT);
     if (want > w->cache_size) {
@@ -189,16 +189,31 @@ static int solve_level(wkb_well *w, size_t v, wkb_level *level, double *avg_dVdp
         w->set.order = order;
         if (status && status != WKB_ENOCONV)
             return status;
-        if (!status && !w->across && (w->rot == 0 || v + WKB_ACROSS_LAST < w->count) && !w->set.match_rule &&
-            (v < WKB_MATCH_MIN_V || nonlinearity(w, level->r_outer) <= WKB_MATCH_NONLINEARITY)) {
+        const int last = v + WKB_ACROSS_LAST >= w->count;
+        if (!status && !w->across && (w->rot == 0 || !last) && !w->set.match_rule &&
+            (v < WKB_MATCH_MIN_V ||
+             nonlinearity(w, level->r_outer) <= (last ? WKB_MATCH_NONLINEARITY_LAST : WKB_MATCH_NONLINEARITY))) {
             wkb_level second = *level;
             wkb_error e2;
             if (second_order_level(w, v, &second, avg_dVdp, &e2) == WKB_SUCCESS &&
                 (second.energy - level->energy) * (second.energy - level->energy) / second.dEdv <= WKB_ACROSS_ESTIMATE) {
+                if (second.dEdv > 0)
+                    wkb_matched_note_defect(w, v, second.binding, (level->binding - second.binding) / second.dEdv);
                 *level = second;
                 level->rule = WKB_RULE_SECOND;
                 return level->status = WKB_SUCCESS;
             }
+        }
+    }
+    /* a well too quantal for second order: its second-order level still starts the exact-phase solve
+       closer (~1e-5 in v, measured at mu = 0.5 u) than the extrapolated defect (~1e-3) */
+    int second_start = 0;
+    if (w->across && !w->set.match_rule && level->status == WKB_SUCCESS) {
+        wkb_level second = *level;
+        wkb_error e2;
+        if (second_order_level(w, v, &second, NULL, &e2) == WKB_SUCCESS) {
+            *level = second;
+            second_start = 1;
         }
     }
     /* the last two levels behind a centrifugal barrier (J > 0): the exact phase across the well, so that
@@ -208,7 +223,7 @@ static int solve_level(wkb_well *w, size_t v, wkb_level *level, double *avg_dVdp
     const int across = w->set.match_rule ? w->set.match_rule == WKB_RULE_ACROSS
                                          : (w->across || (w->rot > 0 && v + WKB_ACROSS_LAST >= w->count));
     level->rule = across ? WKB_RULE_ACROSS : WKB_RULE_MATCHED;
-    return level->status = wkb_matched_solve(w, v, across, level, err);
+    return level->status = wkb_matched_solve(w, v, across, second_start, level, err);
 }
 
 static int solve_first_order(wkb_well *w, size_t v, wkb_level *level, double *avg_dVdp, wkb_error *err)
@@ -306,15 +321,17 @@ static int solve_first_order(wkb_well *w, size_t v, wkb_level *level, double *av
      I(E) - (sqrt(eps)/24) dK/dE = pi (v + phase),  K(E) = integral V_J''(r) dr / sqrt(E - V_J)
    [Dunham, Phys. Rev. 41, 713 (1932); this integrated-by-parts form and its coefficient are derived in
    shared/design/physics.md section 2]. dK/dE is a five-point central difference with a step of 1% of the
-   level spacing, kept inside the well; the three-point difference bounds its error. The term is not
-   valid close to dissociation, where the outer turning point stops being linear. */
+   level spacing, kept inside the well; the three-point difference bounds its error. The same five values
+   give d2K/dE2 and d3K/dE3, which carry dK/dE to the Newton iterates within the stencil (+-2h): those need
+   one orbit each (the action) instead of a new stencil; the last Taylor term bounds that error. The term
+   is not valid close to dissociation, where the outer turning point stops being linear. */
 static int second_order_level(wkb_well *w, size_t v, wkb_level *level, double *avg_dVdp, wkb_error *err)
 {
     const double target = M_PI * ((double)v + w->phase);
     const double coef = sqrt(w->eps) / 24;
     const double b_min = w->top - w->bound_top, depth = w->top - w->bottom;
     const double tol = w->set.energy_tol + 4e-14 * depth;
-    double b = level->binding, dE = INFINITY, fd_error = 0;
+    double b = level->binding, dE = INFINITY, fd_error = 0, taylor_error = 0;
     wkb_orbit o = {0};
     int status, converged = 0;
     for (int it = 0; it < 30 && !converged; it++) {
@@ -330,19 +347,50 @@ static int second_order_level(wkb_well *w, size_t v, wkb_level *level, double *a
                 return status;
             K[k] = ok.curvature_integral;
         }
+        const double K0 = o.curvature_integral;
         const double dK5 = (K[0] - 8 * K[1] + 8 * K[2] - K[3]) / (12 * h);
         const double dK3 = (K[2] - K[1]) / (2 * h);
+        const double d2K = (-K[0] + 16 * K[1] - 30 * K0 + 16 * K[2] - K[3]) / (12 * h * h);
+        const double d3K = (-K[0] + 2 * K[1] - 2 * K[2] + K[3]) / (2 * h * h * h);
         fd_error = coef * fabs(dK5 - dK3) / o.half_period;
         const double F = o.action - coef * dK5 - target;
         double bn = b + F / o.half_period;
         bn = GSL_MAX(GSL_MIN(bn, depth), b_min);
         dE = fabs(bn - b);
-        b = bn;
+        taylor_error = 0;
         converged = dE <= tol + fd_error;
+        /* Newton on the action alone, dK/dE carried by its Taylor series about b */
+        const double T0 = o.half_period;
+        const int stencil_ok = isfinite(dK5) && isfinite(d2K) && isfinite(d3K) && isfinite(fd_error) && h > 0;
+        for (int j = 0; j < 4 && stencil_ok && !converged && fabs(bn - b) <= 2 * h; j++) {
+            wkb_orbit on;
+            if ((status = wkb_orbit_at(w, bn, &on, avg_dVdp, err)))
+                return status;
+            const double e = b - bn; /* energy offset from the stencil's centre */
+            const double dK = dK5 + d2K * e + 0.5 * d3K * e * e;
+            taylor_error = coef * fabs(0.5 * d3K * e * e) / on.half_period;
+            const double Fn = on.action - coef * dK - target;
+            double bn2 = GSL_MAX(GSL_MIN(bn + Fn / on.half_period, depth), b_min);
+            const double step = fabs(bn2 - bn);
+            /* the error left after this Newton step: (I''/2I') step^2, I'' from the two half periods */
+            const double d2I = e != 0 ? (on.half_period - T0) / e : 0;
+            const double predicted = fabs(d2I / (2 * on.half_period)) * step * step;
+            o = on;
+            b = bn;
+            bn = bn2;
+            dE = step;
+            if (!isfinite(taylor_error) || !isfinite(step))
+                break;
+            if (step <= tol + fd_error + taylor_error || 10 * predicted <= tol) {
+                dE = step <= tol + fd_error + taylor_error ? step : 10 * predicted;
+                converged = 1;
+            }
+        }
+        b = bn;
     }
     level->binding = b;
     level->energy = w->top - b;
-    level->error += dE + fd_error;
+    level->error += dE + fd_error + taylor_error;
     level->r_inner = o.r_inner;
     level->r_outer = o.r_outer;
     level->dEdv = M_PI / o.half_period;

@@ -7,6 +7,7 @@
 #define MAX_EXTREMA 64
 
 typedef struct wkb_matched wkb_matched; /* matched.c */
+#define WKB_DEFECT_NODES 3
 
 struct wkb_well {
     wkb_settings set;
@@ -38,16 +39,18 @@ struct wkb_well {
     char *cache_ok;
     /* matched-end state (matched.c) */
     wkb_matched *matched;
-    double v_th;
+    double v_th, v_th_slope; /* slope: d v / d sqrt(b) at the asymptote (J = 0) */
     int v_th_status;
     size_t count_first;
     /* inner wall lower than the asymptote: no threshold to match to; the levels (up to the wall top) are
        second order with fixed phases */
     int low_wall;
     int across; /* matched ends in a well too quantal for second order: exact phase across the well */
-    /* first-order quantum number minus v at the last matched level, per rule (3, 4): it starts the next */
-    double defect[2];
-    int have_defect[2]; /* levels bound by the first-order rule (the matched count may differ) */
+    /* the phase defect D = v1(E_v) - v (first-order quantum number at the level minus v) of the last
+       DEFECT_NODES levels solved in order, in x = b^alpha: they extrapolate the start of the next matched
+       level (matched.c) */
+    double defect_x[WKB_DEFECT_NODES], defect_D[WKB_DEFECT_NODES];
+    size_t defect_n, defect_next_v;
 };
 
 /* orbit.c helpers for matched.c: V_J and its derivatives (depth = D - V_J); the kinetic term
@@ -60,8 +63,11 @@ int wkb_well_crossing(const wkb_well *w, double binding, double lo, double hi, d
 
 /* matched.c: per-well state of the matched-end quantization (NULL until first used) */
 void wkb_matched_free(wkb_matched *m);
-/* matched level v (started from level->binding if level->status == WKB_SUCCESS, else from a guess);
-   across: exact phase integration across the whole well instead (both ends meet at the bottom) */
-int wkb_matched_solve(wkb_well *w, size_t v, int across, wkb_level *level, wkb_error *err);
+/* matched level v (started from level->binding if level->status == WKB_SUCCESS, else from a guess;
+   second_start: that is the second-order level, else the first-order one); across: exact phase
+   integration across the whole well instead (both ends meet at the bottom) */
+int wkb_matched_solve(wkb_well *w, size_t v, int across, int second_start, wkb_level *level, wkb_error *err);
+/* records the defect of level v at binding b (levels solved out of order clear the record) */
+void wkb_matched_note_defect(wkb_well *w, size_t v, double binding, double defect);
 
 #endif

@@ -436,7 +436,7 @@ def _levels_one_by_one(potential, mu, rot, vs, m_in, m_out, Js, order, ends):
 def _method_error(table, *, potential, mu, rot, Js, maslov, langer, order, ends, cols):
     """|E - E_exact| estimates (computed on first use of table.method_error).
 
-    Matched levels: twice the change when the matching point moves from f = 0.5 to f = 0.7 of the level's
+    Matched levels: twice the change when the matching point moves from f = 0.5 (the default) to f = 0.7 of the level's
     height above the minimum (the neglected higher-order terms at the matching point), plus the inner
     second-order part and twice the true error of the lowest matched level against the exact phase (as a
     fraction of the spacing), plus the numerical error. Second-order levels of the matched table: the

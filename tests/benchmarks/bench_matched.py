@@ -1,15 +1,18 @@
 """Benchmark: cost per level of the level rules over full wells, in one run.
 
-Rules timed (every bound level of each well, J = 0):
+Rules timed (every bound level of each well, at J = 0 and J = 10), all through wkbfit.levels():
 - first order (order=1, ends="maslov"), the textbook rule and the cost unit;
 - second order with fixed end phases (order=2, ends="maslov"; "failed" where it finds no root, as it
   does near threshold on most curves);
 - the default matched rule (order=2, ends="matched": second order where the outer turning point is
   nearly linear, the matched outer end near threshold, the exact phase across quantal wells and for the
-  last two levels);
-- the exact radial solver (method="exact", default tolerance 1e-7 cm-1).
-Accuracy of each against the exact solver at 1e-10 cm-1 is printed beside the cost: the largest error of
-the interior levels and of the last two levels.
+  last two levels at J > 0);
+- the exact radial solver (method="exact", default tolerance 1e-7 cm-1), the baseline a careful user
+  would otherwise run for levels right up to threshold.
+Each rule is timed in interleaved rounds (so that a shared machine's load falls on all of them alike);
+the median round is reported, with the ratio to first order ("x first") and to the exact solver
+("x exact"); then the C core alone for first order and the matched default. Accuracy of each against the exact solver at 1e-10 cm-1 is printed beside the cost: the
+largest error of the interior levels and of the last two levels.
 
 Test wells (invented): LJ(12,6), LJ(8,4), LJ(6,3) (C6, C4, C3 tails), an MLR with C6 + C8, a light LJ.
 method_error is not timed (it is computed on first use only).
@@ -24,6 +27,7 @@ import numpy as np
 sys.path.insert(0, os.path.join(os.path.dirname(__file__), "..", "..", "pkg"))
 sys.path.insert(0, os.path.dirname(__file__))
 import wkbfit  # noqa: E402
+from wkbfit import _core  # noqa: E402
 from timing import time_call  # noqa: E402
 
 WELLS = [
@@ -42,6 +46,9 @@ RULES = [
 ]
 
 
+ROUNDS = 5
+
+
 def errors(table, ref):
     n = min(len(table), len(ref))
     e = np.abs(table.energy[:n] - ref.energy[:n])
@@ -50,20 +57,40 @@ def errors(table, ref):
 
 def main():
     warnings.simplefilter("ignore")
-    print("%-24s %-18s %12s %10s %12s %12s" % ("well", "rule", "us/level", "x first", "interior", "last two"))
+    print("%-24s %3s %-18s %5s %10s %8s %8s %10s %10s" % ("well", "J", "rule", "n", "us/level", "x first",
+                                                         "x exact", "interior", "last two"))
     for name, pot, mu in WELLS:
-        ref = wkbfit.exact.exact_levels(pot, mu, tolerance=1e-10, min_binding=1e-13)
-        base = None
-        for label, kw in RULES:
-            try:
-                table = wkbfit.levels(pot, mu, **kw)
-            except (ValueError, RuntimeError) as exc:
-                print("%-24s %-18s %12s   (%s)" % (name, label, "failed", str(exc)[:60]))
-                continue
-            t = time_call(lambda: wkbfit.levels(pot, mu, **kw), min_time=0.3) / len(table)
-            base = t if base is None else base
-            e_int, e_last = errors(table, ref)
-            print("%-24s %-18s %12.1f %10.1f %12.2e %12.2e" % (name, label, 1e6 * t, t / base, e_int, e_last))
+        for J in (0, 10):
+            ref = wkbfit.exact.exact_levels(pot, mu, Js=[J], tolerance=1e-10, min_binding=1e-13)
+            ok = []
+            for label, kw in RULES:
+                try:
+                    table = wkbfit.levels(pot, mu, J=J, **kw)
+                except (ValueError, RuntimeError) as exc:
+                    print("%-24s %3d %-18s %5s %10s   (%s)" % (name, J, label, "", "failed", str(exc)[:50]))
+                    continue
+                ok.append((label, kw, table))
+            times = {label: [] for label, _, _ in ok}
+            for _ in range(ROUNDS):
+                for label, kw, table in ok:
+                    times[label].append(time_call(lambda: wkbfit.levels(pot, mu, J=J, **kw), min_time=0.1) / len(table))
+            t = {label: float(np.median(v)) for label, v in times.items()}
+            for label, kw, table in ok:
+                e_int, e_last = errors(table, ref)
+                print("%-24s %3d %-18s %5d %10.1f %8.1f %8.2f %10.2e %10.2e" % (
+                    name, J, label, len(table), 1e6 * t[label], t[label] / t["first order"],
+                    t[label] / t["exact"], e_int, e_last))
+            # the C core alone (no Python layer, whose fixed cost per call flatters the slower rules)
+            model, params, curve = pot._core_args()
+            core = {}
+            for label, order, ends in (("first order", 1, 0), ("matched (default)", 2, 1)):
+                call = lambda: _core.wkb_levels(model, params, curve, mu, float(J * (J + 1)), None, 1, 1,
+                                                order=order, ends=ends)
+                n = len(call()["v"])
+                core[label] = float(np.median([time_call(call, min_time=0.1) for _ in range(ROUNDS)])) / n
+            print("%-24s %3d %-18s %5s %10.1f %8.1f   (C core only: matched / first order)" % (
+                name, J, "core matched", "", 1e6 * core["matched (default)"],
+                core["matched (default)"] / core["first order"]))
 
 
 if __name__ == "__main__":
