@@ -64,4 +64,8 @@ void wkb_matched_free(wkb_matched *m);
    across: exact phase integration across the whole well instead (both ends meet at the bottom) */
 int wkb_matched_solve(wkb_well *w, size_t v, int across, wkb_level *level, wkb_error *err);
 
+/* action_interpolant.c: levels 0..n-1 of a first-order well with fixed phases from an interpolant of the
+   action; 0 when done, nonzero when it declines (the caller then solves the levels directly) */
+int wkb_interpolant_levels(wkb_well *w, wkb_level *levels, size_t n);
+
 #endif
