@@ -289,11 +289,6 @@ int wkb_interpolant_levels(wkb_well *w, wkb_level *levels, size_t n)
         w->last_tp[0] = L->r_inner; /* Newton for the next level's turning points starts here */
         w->last_tp[1] = L->r_outer;
         w->have_last_tp = 1;
-        if (v < w->cache_size) { /* first guesses of later single-level calls */
-            w->cache_w[v] = wv;
-            w->cache_slope[v] = 1 / dIdw;
-            w->cache_ok[v] = 1;
-        }
     }
 
     /* the check: the top and a middle level against direct orbits */
@@ -308,6 +303,14 @@ int wkb_interpolant_levels(wkb_well *w, wkb_level *levels, size_t n)
         if (!(off <= INTERP_CHECK_FACTOR * tol))
             return 1;
         L->error = GSL_MAX(L->error, off + floor_error);
+    }
+    /* accepted: the levels become the first guesses and brackets of later single-level calls (only
+       now, so that a declined run leaves the direct sweep no inaccurate brackets) */
+    for (size_t v = 0; v < n && v < w->cache_size; v++) {
+        const double b = levels[v].binding, half_period = M_PI / levels[v].dEdv;
+        w->cache_w[v] = pow(b, alpha);
+        w->cache_slope[v] = -alpha / (half_period * pow(b, 1 - alpha)); /* dw/dI */
+        w->cache_ok[v] = 1;
     }
     return 0;
 }
