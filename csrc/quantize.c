@@ -295,6 +295,16 @@ static int solve_first_order(wkb_well *w, size_t v, wkb_level *level, double *av
     level->binding = bn;
     level->energy = w->top - bn;
     level->error = converged ? error : dE;
+    if (converged && bn != b) {
+        /* the last orbit was one Newton step away: the turning points of the level's own energy
+           (Newton from those of that orbit, a few potential evaluations) */
+        wkb_error e_tp;
+        double r1, r2;
+        if (wkb_well_turning_points(w, bn, &r1, &r2, &e_tp) == WKB_SUCCESS) {
+            o.r_inner = r1;
+            o.r_outer = r2;
+        }
+    }
     level->r_inner = o.r_inner;
     level->r_outer = o.r_outer;
     level->dEdv = M_PI / o.half_period;
@@ -438,6 +448,8 @@ int wkb_all_levels(wkb_well *w, wkb_level *levels, size_t capacity, size_t *coun
     if (vD)
         *vD = w->vD;
     const size_t n = GSL_MIN(capacity, w->count);
+    if (w->set.order == 1 && w->set.ends == WKB_ENDS_MASLOV && wkb_interpolant_levels(w, levels, n) == 0)
+        return WKB_SUCCESS; /* a few orbits instead of one or two per level (action_interpolant.c) */
     for (size_t v = 0; v < n; v++)
         if ((status = solve_level(w, v, &levels[v], NULL, err)))
             return status;

@@ -70,4 +70,8 @@ int wkb_matched_solve(wkb_well *w, size_t v, int across, int second_start, wkb_l
 /* records the defect of level v at binding b (levels solved out of order clear the record) */
 void wkb_matched_note_defect(wkb_well *w, size_t v, double binding, double defect);
 
+/* action_interpolant.c: levels 0..n-1 of a first-order well with fixed phases from an interpolant of the
+   action; 0 when done, nonzero when it declines (the caller then solves the levels directly) */
+int wkb_interpolant_levels(wkb_well *w, wkb_level *levels, size_t n);
+
 #endif

@@ -129,6 +129,28 @@ def test_dask_local_cluster_gives_the_same_numbers(morse_fit):
     assert [r["candidate"] for r in scan_serial.rows] == [r["candidate"] for r in scan_dask.rows]
 
 
+def test_dask_client_reused_for_several_runs(morse_fit):
+    # one client, several runs: each run scatters its data under a key of its own and releases only
+    # that, so a second bootstrap and a scan after it find their data (in-process workers: quick)
+    distributed = pytest.importorskip("distributed", reason="dask.distributed is not installed (pip install "
+                                      "'wkbfit[dask]'); the Dask executor cannot be tested")
+    serial = morse_fit.bootstrap(12, seed=4, executor="serial", progress=False)
+    candidates = [wkbfit.Morse(De=5800.0, re=3.66, a=0.605), wkbfit.LennardJones(De=5800.0, re=3.67)]
+    obs = morse_data(3)
+    scan_serial = wkbfit.scan_models(obs, candidates, MU, executor="serial")
+    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=False, dashboard_address=None) \
+            as cluster, distributed.Client(cluster) as client:
+        runs = [morse_fit.bootstrap(12, seed=4, executor=client, progress=False) for _ in range(2)]
+        scan = wkbfit.scan_models(obs, candidates, MU, executor=client)
+        third = morse_fit.bootstrap(12, seed=4, executor=client, progress=False)
+        assert not client.who_has()  # nothing left behind on the workers
+    for run in runs + [third]:
+        assert run.n_failed == 0
+        for k in serial.names:
+            assert np.array_equal(serial.values[k], run.values[k])
+    assert [r["chi2"] for r in scan_serial.rows] == [r["chi2"] for r in scan.rows]
+
+
 def test_failed_replicas_are_counted_and_reported():
     # 25 J = 0 levels and a single J = 10 level: re rests on that one level, which a resample
     # leaves out with probability (1 - 1/26)^26 = 36 %; those replicas fail as undetermined
