@@ -249,6 +249,8 @@ def _small_fit():
     lambda d: d["observed"].__setitem__("energy_zero", None),          # fuzz seed 90210, case 21772
     lambda d: d["parameters"][0].__setitem__("bounds", ["", None]),     # fuzz seed 90210, case 26866
     lambda d: d.__setitem__("chi_square", None),
+    lambda d: d.__setitem__("refresh_history", d["refresh_history"] + [10 ** 20]),  # fuzz seed 777, case 3557
+    lambda d: d.__setitem__("refresh_history", [{"kind": "levels", "step_sd": "small"}]),
 ])
 def test_tampered_fit_result_gives_one_clear_value_error(tamper):
     import json
@@ -480,3 +482,43 @@ def test_pointwise_energies_beyond_the_working_range_are_refused():
     with pytest.raises(ValueError, match="V reaches"):
         wkbfit.PointwisePotential(r, V * 1e7)
     assert wkbfit.PointwisePotential(r, V, asymptote=5000.0).asymptote == 5000.0
+
+
+def test_exact_work_is_bounded_up_front():
+    # fuzz seed 777, case 5291: a fit wandered to this Morse curve (inner wall 0.034 De, below the asymptote),
+    # whose exact solver binds 8873 levels through the boundary at r = 0 on grids of up to 800 000 points;
+    # predict() then ran for minutes with the GIL released. Now the work (levels x grid points) is refused at
+    # once, by name, for the levels of a table and for the fit's all-levels path alike.
+    code = """
+        import time, wkbfit
+        from wkbfit import _core
+        pot = wkbfit.Morse(De=1249731.223, re=2.8347592, a=0.05982947474)
+        t0 = time.monotonic()
+        for call in (lambda: wkbfit.levels(pot, 5.0, method="exact"),
+                     lambda: _core.fit_levels(*pot._core_args(), 5.0, 0.0, 1)):
+            try:
+                call()
+            except ValueError as exc:
+                assert "max_grid_work=1e+09" in str(exc), exc
+            else:
+                raise AssertionError("not refused")
+        print("seconds %.1f" % (time.monotonic() - t0))
+    """
+    rc, out = run_isolated(code, timeout=60)
+    assert rc == 0, out
+    assert float(out.split("seconds")[1]) < 20, out
+    pot = Morse(De=5000.0, re=3.0, a=1.0)
+    with pytest.raises(ValueError, match="max_grid_work=1e\\+04.*wkbfit.exact.exact_levels"):
+        wkbfit.exact.exact_levels(pot, 5.0, None, [0], max_grid_work=10 ** 4)
+    with pytest.raises(ValueError, match="max_grid_work"):
+        wkbfit.exact.exact_levels(pot, 5.0, None, [0], max_grid_work="lots")
+    assert len(wkbfit.exact.exact_levels(pot, 5.0, None, [0], max_grid_work=10 ** 8)) == 39  # under the limit
+
+
+def test_comparison_text_names_a_bad_uncertainty():
+    # fuzz seed 4242, case 5582: to_text(uncertainty=object()) raised NumPy's float() message
+    c = wkbfit.compare_wkb_exact(Morse(De=5000.0, re=3.0, a=1.0), 5.0, v=[0, 1])
+    for bad in (object(), "x", [[0.1, 0.2, 0.3]], -1.0):
+        with pytest.raises((ValueError, TypeError), match="uncertainty"):
+            c.to_text(uncertainty=bad)
+    assert "within 0.01" in c.to_text(uncertainty=0.01)
