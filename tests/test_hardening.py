@@ -522,3 +522,29 @@ def test_comparison_text_names_a_bad_uncertainty():
         with pytest.raises((ValueError, TypeError), match="uncertainty"):
             c.to_text(uncertainty=bad)
     assert "within 0.01" in c.to_text(uncertainty=0.01)
+
+
+@pytest.mark.parametrize("bound", [(None, 1e300), (-1e300, 1e300), (-1e300, None)])
+def test_fit_bounds_too_far_to_resolve_the_start_are_named(bound):
+    # a bound of 1e300 against De = 5100 left p = hi - exp(u) to round-off (hi - lo overflows for both):
+    # the fit stopped with GSL's "solver could not start: input domain error" (a RuntimeError)
+    data = {"v": [0, 1, 2, 3, 4], "J": [0] * 5, "uncertainty": [0.01] * 5}
+    data["energy"] = levels(Morse(De=5000.0, re=3.0, a=1.0), 5.0, v=data["v"]).energy.tolist()
+    with pytest.raises(ValueError, match="bounds .* of parameter De are too far from its starting value 5100"):
+        fit(Morse(De=5100.0, re=3.0, a=1.02), data, mu=5.0, vary=["De", "a"], bounds={"De": bound}, method="wkb")
+    # bounds that leave the start resolved still fit (one of them 1e300 away from the value)
+    for fine in ((1000.0, 1e300), (None, 1e9), (0.0, None)):
+        r = fit(Morse(De=5100.0, re=3.0, a=1.02), data, mu=5.0, vary=["De", "a"], bounds={"De": fine}, method="wkb")
+        assert r.values["De"] == pytest.approx(5000.0, abs=1e-3), fine
+
+
+def test_exact_solver_unresolved_structure_is_a_value_error():
+    # fuzz seed 31337, case 18159: a fit wandered to this EMO curve (beta -> 2e-4 at large r: V comes back
+    # down by ~0.1 cm-1 near 35 000 A, a faint outer well); predict(J=3) raised RuntimeError "Numerov step
+    # too large ... lower phase_step" (a setting the caller cannot give). Now a ValueError that says why.
+    pot = wkbfit.EMO(De=39794.43645, re=53.04880532, p=2, betas=[0.480497699, 42.23182304, -42.71220663])
+    with pytest.raises(ValueError, match="Numerov step is too large at r=.* second well"):
+        levels(pot, 5.0, J=3, method="exact")
+    from wkbfit import _core
+    with pytest.raises(ValueError, match="Numerov step is too large"):
+        _core.fit_levels(*pot._core_args(), 5.0, 12.0, 1)
