@@ -31,7 +31,8 @@ import traceback
 import warnings
 
 HERE = os.path.dirname(os.path.abspath(__file__))
-PKG = os.environ.get("WKBFIT_PKG_DIR") or os.path.join(os.path.dirname(HERE), "pkg")
+# absolute: the CLI cases and the tests start child processes in other directories
+PKG = os.path.abspath(os.environ.get("WKBFIT_PKG_DIR") or os.path.join(os.path.dirname(HERE), "pkg"))
 
 OUTCOMES = ("ok", "clear", "unclear", "nonfinite", "crash", "hang")
 

@@ -17,7 +17,9 @@ import pytest
 import wkbfit
 from wkbfit import HBAR2_OVER_2U, LennardJones, MLR, Morse, fit, levels, read_levels
 
-PKG = os.environ.get("WKBFIT_PKG_DIR") or os.path.join(os.path.dirname(os.path.dirname(os.path.abspath(__file__))), "pkg")
+# absolute: the CLI tests run their child processes in a temporary directory
+PKG = os.path.abspath(os.environ.get("WKBFIT_PKG_DIR") or
+                      os.path.join(os.path.dirname(os.path.dirname(os.path.abspath(__file__))), "pkg"))
 
 
 def run_isolated(code, timeout=60):
