@@ -22,11 +22,12 @@ PKG = os.path.abspath(os.environ.get("WKBFIT_PKG_DIR") or
                       os.path.join(os.path.dirname(os.path.dirname(os.path.abspath(__file__))), "pkg"))
 
 
-def run_isolated(code, timeout=60):
+def run_isolated(code, timeout=60, env=None):
     """Runs `code` in a fresh interpreter on this tree's package; returns (returncode, output)."""
     prog = "import sys; sys.path.insert(0, %r)\n" % PKG + textwrap.dedent(code)
     try:
-        done = subprocess.run([sys.executable, "-c", prog], capture_output=True, text=True, timeout=timeout)
+        done = subprocess.run([sys.executable, "-c", prog], capture_output=True, text=True, timeout=timeout,
+                              env=env)
     except subprocess.TimeoutExpired:
         pytest.fail("the call did not finish within %d s (a hang):\n%s" % (timeout, code))
     return done.returncode, done.stdout + done.stderr
@@ -403,6 +404,12 @@ def test_csv_reading_memory_is_a_few_times_the_file_size(tmp_path):
         for i in range(n):
             fh.write("7Li133Cs,%d,%d,%.6f,0.010\n" % (i % 200, i // 200, 100.0 + (i % 200) * 50.123456 + i // 200))
     size = os.path.getsize(path)
+    env, limit = None, 5
+    if "libasan" in os.environ.get("LD_PRELOAD", ""):
+        # under make sanitize: ASan keeps freed blocks in a quarantine (256 MB) instead of reusing them, and
+        # adds red zones and shadow memory; without the quarantine the same reading measured 4.5x
+        env = dict(os.environ, ASAN_OPTIONS=os.environ.get("ASAN_OPTIONS", "") + ":quarantine_size_mb=0")
+        limit = 8
     rc, out = run_isolated("""
         import resource
         import numpy as np
@@ -412,11 +419,11 @@ def test_csv_reading_memory_is_a_few_times_the_file_size(tmp_path):
         obs = wkbfit.read_levels(%r)
         after = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
         print("rows", len(obs), "added", after - before, "last", obs.energy[-1], obs.J[-1])
-    """ % str(path), timeout=120)
+    """ % str(path), timeout=120, env=env)
     assert rc == 0, out
     words = out.split()
     assert int(words[1]) == n
-    assert int(words[3]) < 5 * size, (out, size)
+    assert int(words[3]) < limit * size, (out, size)
     assert float(words[5]) == pytest.approx(100.0 + 199 * 50.123456 + 999) and int(words[6]) == 999
 
 
