@@ -26,7 +26,7 @@ sanitize: setup
 	@rm -rf $(SAN_DIR) && mkdir -p $(SAN_DIR)/pkg && cp -r pkg/wkbfit $(SAN_DIR)/pkg/ && rm -f $(SAN_DIR)/pkg/wkbfit/_core*.so
 	@$(LOCK) env $(QUIET) CFLAGS="$(SAN_FLAGS)" LDFLAGS="-fsanitize=address,undefined,float-cast-overflow" \
 	  $(PYTHON) setup.py -q build_ext --build-lib $(SAN_DIR)/pkg --build-temp $(SAN_DIR)/tmp
-	WKBFIT_PKG_DIR=$(SAN_DIR)/pkg LD_PRELOAD="$$(gcc -print-file-name=libasan.so) $$(gcc -print-file-name=libstdc++.so)" \
+	WKBFIT_PKG_DIR=$(CURDIR)/$(SAN_DIR)/pkg LD_PRELOAD="$$(gcc -print-file-name=libasan.so) $$(gcc -print-file-name=libstdc++.so)" \
 	  ASAN_OPTIONS=detect_leaks=0:abort_on_error=1 UBSAN_OPTIONS=print_stacktrace=1:halt_on_error=1 \
 	  $(PYTHON) -m pytest -q -p no:cacheprovider tests
 

@@ -647,6 +647,20 @@ static int check_spec(const wkb_potential *start, const wkb_fit_spec *spec, size
             return wkb_fail(err, WKB_EINVAL,
                             "the starting value %s=%.10g is not strictly inside its bounds (%g, %g)",
                             m->param_names[k], p, lo, hi);
+        {
+            /* a bound far beyond the value (1e300 against 5000) leaves p = hi - exp(u) to round-off (the
+               transform resolves p only to ~1e-16 of the bounds), and hi - lo can overflow: the transform
+               must give the start back to 1e-8 of itself (of the bounds' span for a start at 0) */
+            double dpdu;
+            const double u = to_internal(p, lo, hi), back = to_external(u, lo, hi, &dpdu);
+            const double scale = p != 0 ? fabs(p) : (isfinite(lo) && isfinite(hi) ? 1e-4 * (hi - lo) : 0);
+            if (!isfinite(u) || !isfinite(back) || !isfinite(dpdu) || dpdu == 0 ||
+                !(fabs(back - p) <= 1e-8 * scale))
+                return wkb_fail(err, WKB_EINVAL,
+                                "bounds (%g, %g) of parameter %s are too far from its starting value %.10g for the "
+                                "bounded-parameter transform to resolve it (round-off): give bounds nearer the "
+                                "value, or none", lo, hi, m->param_names[k], p);
+        }
         var[(*nv)++] = k;
     }
     if (*nv == 0 && n_extra == 0)

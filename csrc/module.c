@@ -1537,12 +1537,27 @@ cleanup:
     return result;
 }
 
+/* Work limit of the exact solver, in level-points: levels to solve times the points of their radial
+   grid (the work of one level is about proportional to its grid). About 1.5e7 level-points per second
+   were measured on one core (a Morse well, 50 to 2000 levels), so the default stops a call before
+   it would run for about a minute; exact_levels(max_grid_work=...) raises it. */
+#define WKB_MAX_EXACT_WORK 1e9
+
+static int exact_work_refused(double work, double limit, const char *how)
+{
+    if (!(limit >= 0) || work <= limit)
+        return 0;
+    value_error("the exact levels asked for need about %.3g level-points (levels times the points of their radial "
+                "grid), more than the work limit max_grid_work=%.3g: %s", work, limit, how);
+    return 1;
+}
+
 static PyObject *py_fit_levels(PyObject *self, PyObject *args, PyObject *kwds)
 {
-    static char *kwlist[] = {"model", "params", "curve", "mu", "rot", "method", NULL};
+    static char *kwlist[] = {"model", "params", "curve", "mu", "rot", "method", "max_work", NULL};
     const char *model_name;
     PyObject *params_obj, *curve_obj, *result = NULL;
-    double mu, rot;
+    double mu, rot, max_work = WKB_MAX_EXACT_WORK;
     int status, method = 0;
     wkb_radial *radial = NULL;
     wkb_level_source source_store;
@@ -1553,8 +1568,8 @@ static PyObject *py_fit_levels(PyObject *self, PyObject *args, PyObject *kwds)
     double vD = NAN;
     PyArrayObject *energy = NULL, *jac = NULL, *dvD = NULL;
 
-    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOdd|i", kwlist, &model_name, &params_obj, &curve_obj, &mu, &rot,
-                                     &method))
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOdd|id", kwlist, &model_name, &params_obj, &curve_obj, &mu, &rot,
+                                     &method, &max_work))
         return NULL;
     if (parse_potential(model_name, params_obj, curve_obj, &pot) < 0)
         return NULL;
@@ -1582,6 +1597,11 @@ static PyObject *py_fit_levels(PyObject *self, PyObject *args, PyObject *kwds)
         }
         if (wkb_radial_count(radial) > count)
             count = wkb_radial_count(radial);
+        if (exact_work_refused((double)count * (double)wkb_radial_grid_size(radial), max_work,
+                               "the potential binds very many exact levels for this reduced mass (its parameters "
+                               "may be far from a physical curve, or its inner wall lower than the asymptote, "
+                               "which binds levels only through the boundary at r = 0)"))
+            goto cleanup;
     }
     count += 2;
     npy_intp dims[2] = {(npy_intp)count, (npy_intp)np};
@@ -1636,7 +1656,7 @@ cleanup:
 static PyObject *py_exact_levels(PyObject *self, PyObject *args, PyObject *kwds)
 {
     static char *kwlist[] = {"model", "params", "curve", "mu", "J", "v", "want_dVdp", "want_wavefunctions",
-                             "energy_tol", "min_binding", "phase_step", "max_points", "max_levels", NULL};
+                             "energy_tol", "min_binding", "phase_step", "max_points", "max_levels", "max_work", NULL};
     enum { NCOL = 10 };
     static const char *names[NCOL] = {"v", "J", "energy", "binding_energy", "inner_turning_point",
                                       "outer_turning_point", "Bv", "dEdv", "error", "grid_points"};
@@ -1645,6 +1665,7 @@ static PyObject *py_exact_levels(PyObject *self, PyObject *args, PyObject *kwds)
     double mu;
     int want_dVdp = 0, want_wf = 0;
     Py_ssize_t max_points = -1, max_levels = -1; /* work limits; -1 keeps the defaults / no limit */
+    double max_work = WKB_MAX_EXACT_WORK, work = 0;  /* level-points so far (a negative limit: none) */
     wkb_radial_settings settings = wkb_radial_default_settings();
     PyArrayObject *J_arr = NULL, *v_arr = NULL, *dVdp = NULL, *counts = NULL;
     PyArrayObject *cols[NCOL] = {NULL};
@@ -1656,9 +1677,10 @@ static PyObject *py_exact_levels(PyObject *self, PyObject *args, PyObject *kwds)
     wkb_error err = {0};
     int status = WKB_SUCCESS;
 
-    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOdO|Oppdddnn", kwlist, &model_name, &params_obj, &curve_obj,
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOdO|Oppdddnnd", kwlist, &model_name, &params_obj, &curve_obj,
                                      &mu, &J_obj, &v_obj, &want_dVdp, &want_wf, &settings.energy_tol,
-                                     &settings.min_binding, &settings.phase_step, &max_points, &max_levels))
+                                     &settings.min_binding, &settings.phase_step, &max_points, &max_levels,
+                                     &max_work))
         return NULL;
     if (max_points >= 0)
         settings.max_points = (size_t)max_points;
@@ -1720,6 +1742,10 @@ static PyObject *py_exact_levels(PyObject *self, PyObject *args, PyObject *kwds)
                          n + want, max_levels);
             goto cleanup;
         }
+        work += (double)want * (double)wkb_radial_grid_size(ws);
+        if (exact_work_refused(work, max_work,
+                               "ask for fewer (a list of v, fewer J values) or raise it (wkbfit.exact.exact_levels)"))
+            goto cleanup;
         for (size_t i = 0; vv && i < nv; i++) {
             if (vv[i] < 0) {
                 PyErr_Format(PyExc_ValueError, "v=%d is invalid: vibrational quantum numbers are >= 0", vv[i]);
@@ -2026,6 +2052,8 @@ static int core_exec(PyObject *m)
         return -1;
     wkb_init_library();
     if (PyModule_AddObject(m, "HBAR2_OVER_2U", PyFloat_FromDouble(WKB_HBAR2_OVER_2U)) < 0)
+        return -1;
+    if (PyModule_AddObject(m, "MAX_EXACT_WORK", PyFloat_FromDouble(WKB_MAX_EXACT_WORK)) < 0)
         return -1;
     if (PyModule_AddStringConstant(m, "GSL_VERSION", GSL_VERSION) < 0)
         return -1;

@@ -383,7 +383,7 @@ static int build_grid(wkb_radial *w, wkb_error *err)
         while (ns < RADIAL_SCAN_MAX) {
             const double d = depth_j(w, r);
             if (isnan(d)) {
-                status = wkb_fail(err, WKB_ENUMERIC, "the potential is not a number at r=%g A", r);
+                status = wkb_fail(err, WKB_EINVAL, "the potential is not a number at r=%g A", r);
                 goto cleanup;
             }
             rs_scan[ns] = r;
@@ -634,11 +634,19 @@ static int find_range(const wkb_radial *w, double b, radial_range *rg, wkb_error
     rg->m = m;
     rg->b = b;
     if (rg->ie < rg->is + 8)
-        return wkb_fail(err, WKB_ENUMERIC,
-                        "the radial grid is too coarse for binding energy %g cm-1 (J(J+1)=%g); lower phase_step",
-                        b, w->rot);
+        return wkb_fail(err, WKB_EINVAL,
+                        "the exact solver's radial grid is too coarse for binding energy %g cm-1 (J(J+1)=%g): the "
+                        "potential has structure finer than the grid chosen for it (a narrow well or barrier); "
+                        "it is outside the range the exact solver handles", b, w->rot);
     return WKB_SUCCESS;
 }
+
+/* A potential with structure the grid does not resolve is an input the solver cannot treat (a
+   ValueError for the caller), not a numerical accident. */
+#define RADIAL_UNRESOLVED                                                                                   \
+    "the exact solver's Numerov step is too large at r=%g A (T=%g, binding energy %g cm-1): the potential "  \
+    "has a barrier or second well there that the grid chosen for it does not resolve; it is outside the "    \
+    "range the exact solver handles"
 
 /* Outward from is to m and inward from ie to m on the grid of stride st at binding b. */
 static int sweep(wkb_radial *w, double b, const radial_range *rg, size_t st, radial_sweep *out,
@@ -656,9 +664,7 @@ static int sweep(wkb_radial *w, double b, const radial_range *rg, size_t st, rad
     for (size_t i = is + st; i < m; i += st) {
         const double T = s2 * (qt[i] + b * wt[i]);
         if (!(T < 0.99))
-            return wkb_fail(err, WKB_ENUMERIC,
-                            "Numerov step too large at r=%g A (T=%g): a barrier inside the well is not resolved; "
-                            "lower phase_step", w->r[i], T);
+            return wkb_fail(err, WKB_EINVAL, RADIAL_UNRESOLVED, w->r[i], T, b);
         const double inv = 1 / (1 - T), U = 12 * inv - 10;
         const double wi = f * inv;
         S_out += wt[i] * wi * wi;
@@ -685,8 +691,7 @@ static int sweep(wkb_radial *w, double b, const radial_range *rg, size_t st, rad
         F[i] = g;
         const double T = s2 * (qt[i] + b * wt[i]);
         if (!(T < 0.99))
-            return wkb_fail(err, WKB_ENUMERIC,
-                            "Numerov step too large at r=%g A (T=%g); lower phase_step", w->r[i], T);
+            return wkb_fail(err, WKB_EINVAL, RADIAL_UNRESOLVED, w->r[i], T, b);
         const double inv = 1 / (1 - T), U = 12 * inv - 10;
         const double wi = g * inv;
         S_in += wt[i] * wi * wi;

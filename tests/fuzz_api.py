@@ -31,7 +31,8 @@ import traceback
 import warnings
 
 HERE = os.path.dirname(os.path.abspath(__file__))
-PKG = os.environ.get("WKBFIT_PKG_DIR") or os.path.join(os.path.dirname(HERE), "pkg")
+# absolute: the CLI cases and the tests start child processes in other directories
+PKG = os.path.abspath(os.environ.get("WKBFIT_PKG_DIR") or os.path.join(os.path.dirname(HERE), "pkg"))
 
 OUTCOMES = ("ok", "clear", "unclear", "nonfinite", "crash", "hang")
 
@@ -599,6 +600,8 @@ def run(seed, count, timeout=30.0, start=0, log=None):
                 if current is None:
                     raise RuntimeError("the fuzz worker did not start: %s" % _tail(errors))
                 results["hang"].append((current, "no answer within %.0f s" % timeout))
+                if log is not None:
+                    print("case %d: hang (no answer within %.0f s)" % (current, timeout), file=log, flush=True)
                 i = current + 1
                 break
             line = pending.pop(0)
@@ -607,6 +610,8 @@ def run(seed, count, timeout=30.0, start=0, log=None):
                 err = _tail(errors)
                 if current is not None:
                     results["crash"].append((current, "worker died with status %s: %s" % (rc, err[-500:])))
+                    if log is not None:
+                        print("case %d: crash (status %s)" % (current, rc), file=log, flush=True)
                     i = current + 1
                 elif rc != 0:
                     raise RuntimeError("the fuzz worker failed: %s" % err[-2000:])

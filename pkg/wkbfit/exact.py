@@ -68,20 +68,26 @@ def _ints_unchecked(x, name):
 
 #: work limit: points of the exact solver's radial grid; raise with exact_levels(..., max_grid_points=...)
 MAX_GRID_POINTS = 2_000_000
+#: work limit: levels times the points of their radial grid (about a minute of work at the default);
+#: raise with exact_levels(..., max_grid_work=...)
+MAX_GRID_WORK = _core.MAX_EXACT_WORK
 
 
 def _core_call(potential, mu, vs, Js, tolerance, min_binding, max_grid_points=MAX_GRID_POINTS,
-               max_levels=_validate.MAX_LEVELS, **flags):
+               max_levels=_validate.MAX_LEVELS, max_grid_work=MAX_GRID_WORK, **flags):
     model, params, curve = potential._core_args()
     return _core.exact_levels(model, params, curve, float(mu), np.asarray(Js, dtype=np.intc),
                               None if vs is None else np.asarray(vs, dtype=np.intc),
                               energy_tol=tolerance, min_binding=min_binding,
                               max_points=_validate.integer(max_grid_points, "max_grid_points", 1000, 2 ** 40),
-                              max_levels=_validate.integer(max_levels, "max_levels", 1, 2 ** 62), **flags)
+                              max_levels=_validate.integer(max_levels, "max_levels", 1, 2 ** 62),
+                              max_work=float(_validate.integer(max_grid_work, "max_grid_work", 1000, 10 ** 300)),
+                              **flags)
 
 
 def exact_levels(potential, mu, vs=None, Js=(0,), *, tolerance=DEFAULT_TOLERANCE,
-                 min_binding=DEFAULT_MIN_BINDING, max_grid_points=MAX_GRID_POINTS, max_levels=_validate.MAX_LEVELS):
+                 min_binding=DEFAULT_MIN_BINDING, max_grid_points=MAX_GRID_POINTS, max_levels=_validate.MAX_LEVELS,
+                 max_grid_work=MAX_GRID_WORK):
     """Exact levels as a `LevelTable` (method "exact").
 
     potential: a Potential; mu: reduced mass in u (or isotope labels, see `as_reduced_mass`);
@@ -89,7 +95,8 @@ def exact_levels(potential, mu, vs=None, Js=(0,), *, tolerance=DEFAULT_TOLERANCE
     tolerance: target accuracy of every level in cm-1; the `error` column holds the
     estimated numerical error of each energy (Richardson extrapolation + truncation).
     min_binding: levels bound by less than this (cm-1) may be missed or carry a larger error.
-    max_grid_points, max_levels: work limits (grid points per J, levels in the call), refused at once.
+    max_grid_points, max_levels, max_grid_work: work limits (grid points per J, levels in the call,
+    levels times their grid points), refused at once.
     Raises ValueError for bad input, a v above the last bound level, or no well.
     """
     _check_potential(potential)
@@ -99,7 +106,7 @@ def exact_levels(potential, mu, vs=None, Js=(0,), *, tolerance=DEFAULT_TOLERANCE
     tolerance = _positive("tolerance", tolerance)
     min_binding = _positive("min_binding", min_binding)
     pointwise = isinstance(potential, PointwisePotential)  # wavefunctions to check the reach beyond the points
-    res = _core_call(potential, mu, vs, Js, tolerance, min_binding, max_grid_points, max_levels, **({"want_wavefunctions": True} if pointwise else {}))
+    res = _core_call(potential, mu, vs, Js, tolerance, min_binding, max_grid_points, max_levels, max_grid_work, **({"want_wavefunctions": True} if pointwise else {}))
     cols = {c: res[c] for c in ("v", "J", "energy", "binding_energy", "inner_turning_point",
                                 "outer_turning_point", "Bv", "dEdv", "error")}
     counts = {J: int(c) for J, c in zip(Js, res["count"].tolist())}

@@ -288,7 +288,8 @@ def method_error_lines(result):
         lines.append("  first-order WKB iterations with per-level exact corrections: %d exact evaluation%s, %d "
                      "Levenberg-Marquardt iterations; exact Gauss-Newton step at each (standard deviations): %s" % (
                          refreshes, "" if refreshes == 1 else "s", result.iterations,
-                         ", ".join("%.2g (%s)" % (h["step_sd"], h.get("kind", "")) for h in hist)))
+                         ", ".join("%s (%s)" % ("-" if h.get("step_sd") is None else "%.2g" % h["step_sd"], h.get("kind", ""))
+                                   for h in hist)))
     for note in getattr(result, "start_notes", ()):
         lines.append("  start: " + note)
     err = getattr(result, "method_error", None)
@@ -596,8 +597,9 @@ def _fit_result_from_checked_dict(cls, data):
         result.quasibound_note = str(data.get("quasibound_note", ""))
     if isinstance(result.refreshes, bool) or not isinstance(result.refreshes, int) or result.refreshes < 0:
         raise ValueError("refreshes=%r must be a whole number >= 0" % (result.refreshes,))
-    if not isinstance(result.refresh_history, list):
-        raise ValueError("refresh_history=%r must be a list" % (result.refresh_history,))
+    if not (isinstance(result.refresh_history, list) and all(_is_refresh_entry(h) for h in result.refresh_history)):
+        raise ValueError("refresh_history=%r must be a list of {'kind': text, 'step_sd': number, 'chi_square': "
+                         "number} entries" % (result.refresh_history,))
     if not (isinstance(result.start_notes, list) and all(isinstance(x, str) for x in result.start_notes)):
         raise ValueError("start_notes=%r must be a list of strings" % (result.start_notes,))
     if data.get("method_error") is not None:
@@ -611,6 +613,14 @@ def _fit_result_from_checked_dict(cls, data):
         result.method_error_flagged = [int(i) for i in np.nonzero(result.method_error_ratio > _METHOD_FLAG)[0]]
         result.method_error_note = data.get("method_error_note", "")
     return result
+
+
+def _is_refresh_entry(h):
+    """One entry of the default fit's refresh history as the JSON form writes it."""
+    def number(x):
+        return x is None or (isinstance(x, (int, float)) and not isinstance(x, bool))
+    return isinstance(h, dict) and isinstance(h.get("kind", ""), str) and number(h.get("step_sd")) and \
+        number(h.get("chi_square"))
 
 
 def prediction_text(prediction, last=None):
@@ -796,7 +806,9 @@ def comparison_columns(comp, uncertainty=None):
             ("exact", "cm-1", comp.exact_energy, "%.8f"), ("WKB-exact", "cm-1", comp.difference, "%.3e"),
             ("exact error", "cm-1", comp.exact_error, "%.1e"), ("binding", "cm-1", comp.binding_energy, "%.8g")]
     if uncertainty is not None:
-        cols.append(("within %.3g" % float(np.max(uncertainty)), "", comp.good_enough(uncertainty), "%s"))
+        within = comp.good_enough(uncertainty)  # checks the uncertainty before it is printed
+        u = np.asarray(uncertainty, dtype=float)
+        cols.append(("within %.3g" % float(np.max(u)) if u.size else "within", "", within, "%s"))
     return cols
 
 
