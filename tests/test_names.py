@@ -141,3 +141,16 @@ def test_pointwise_wall_options_by_name():
     assert np.array_equal(exp_wall(inside), pow_wall(inside))
     with pytest.raises(ValueError, match="inner_wall='hard'"):
         wkbfit.PointwisePotential(r, V, inner_wall="hard")
+
+
+def test_mixed_data_report_uses_the_own_name():
+    # the report of a fit to line positions (the report for several data kinds) says the statistic's name too
+    lj = wkbfit.LennardJones(De=4000.0, re=4.0, n=12, m=6)
+    t = wkbfit.levels(lj, 20.0, v=list(range(8)), method="exact")
+    lines = wkbfit.read_lines({"v_upper": t.v[1:], "J_upper": np.zeros(7, int), "v_lower": np.zeros(7, int),
+                               "J_lower": np.zeros(7, int), "wavenumber": t.energy[1:] - t.energy[0],
+                               "uncertainty": np.full(7, 0.01)})
+    res = wkbfit.fit(wkbfit.LennardJones(De=3950.0, re=4.01, n=12, m=6), lines, mu=20.0, vary=["De", "re"])
+    text = res.report()
+    assert_clean(text, "the mixed-data fit report")
+    assert "sqrt of reduced chi-square" in text

@@ -182,7 +182,7 @@ class ModelScan:
                 k = len(res.var_names)
                 aic, bic = information_criteria(res.chi_square, N, k)
                 row.update(k=k, N=N, chi2=res.chi_square, dof=res.dof,
-                           sigma=res.standard_error if res.standard_error is not None else math.nan,
+                           sigma=res.sqrt_reduced_chi_square if res.sqrt_reduced_chi_square is not None else math.nan,
                            aic=aic, bic=bic, D0=o.get("D0", math.nan), vD=o.get("vD", math.nan),
                            n_bound=o.get("n_bound", 0))
             row["_binding"] = o.get("binding", np.zeros(0))

@@ -63,15 +63,21 @@ class LawFit:
 
     law: "LeRoy-Bernstein", "expansion" or "threshold"; rows: indices of the levels used;
     params: dict name -> (value, one-sigma uncertainty; 0 for a fixed value); residuals
-    (observed - law, cm-1, for the rows used), chi_square, dof, standard_error; note.
+    (observed - law, cm-1, for the rows used), chi_square, dof, sqrt_reduced_chi_square (None when
+    dof = 0); note.
     """
 
     def __init__(self, law, rows, params, residuals, chi_square, dof, note=""):
         self.law, self.rows, self.params = law, np.asarray(rows), params
         self.residuals = np.asarray(residuals)
         self.chi_square, self.dof = float(chi_square), int(dof)
-        self.standard_error = math.sqrt(chi_square / dof) if dof > 0 else None
+        self.sqrt_reduced_chi_square = math.sqrt(chi_square / dof) if dof > 0 else None
         self.note = note
+
+    @property
+    def standard_error(self):
+        """The earlier name of `sqrt_reduced_chi_square` (kept for code written against it)."""
+        return self.sqrt_reduced_chi_square
 
     def value(self, name):
         return self.params[name][0]
@@ -162,7 +168,8 @@ class NearDissociationFit:
             row = {"law": fit.law, "levels": len(fit.rows)}
             for name in ("D", "vD", "v_th", "C_n"):
                 row[name], row[name + "_uncertainty"] = fit.params.get(name, (math.nan, math.nan))
-            row["sqrt_reduced_chi_square"] = fit.standard_error if fit.standard_error is not None else math.nan
+            row["sqrt_reduced_chi_square"] = (fit.sqrt_reduced_chi_square if fit.sqrt_reduced_chi_square is not None
+                                              else math.nan)
             rows.append(row)
         return rows
 

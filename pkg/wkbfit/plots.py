@@ -393,7 +393,7 @@ def _near_dissociation_laws(nd, ax, last):
         idx = np.argsort(nd.v[rows][good])
         ax.plot(nd.v[rows][good][idx], bl[good][idx] ** alpha, "-", color="C%d" % (k + 4), lw=1,
                 label="%s law (sqrt of reduced chi-square %s)" % (
-                    law.law, "%.3g" % law.standard_error if law.standard_error is not None else "-"))
+                    law.law, "%.3g" % law.sqrt_reduced_chi_square if law.sqrt_reduced_chi_square is not None else "-"))
     vD, svD = nd.vD
     ax.axvline(vD, color="C3", lw=1, label="vD = %.3f +/- %.3f" % (vD, svD))
     ax.axvspan(vD - svD, vD + svD, color="C3", alpha=0.15, lw=0)

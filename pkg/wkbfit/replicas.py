@@ -177,7 +177,8 @@ def bootstrap(result, n=1000, seed=1, kind="monte-carlo", executor=None, *, prog
     n_bound = int(central["n_bound"])
     v_top = list(range(max(0, n_bound - n_top_levels), n_bound))
     central = prediction_values(result, label, v_top)
-    noise_scale = result.standard_error if (result.scale_uncertainties and result.standard_error) else 1.0
+    noise_scale = (result.sqrt_reduced_chi_square if (result.scale_uncertainties and result.sqrt_reduced_chi_square)
+                   else 1.0)
     shared = {
         "v": np.array(obs.v), "J": np.array(obs.J), "energy": np.array(obs.energy),
         "uncertainty": np.array(obs.uncertainty), "isotopologue": np.array(obs.isotopologue),

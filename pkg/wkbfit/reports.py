@@ -250,8 +250,9 @@ def _mixed_report_text(result):
                  % (n_fit, len(result.var_names) + len(result.free_parameters), len(result.var_names),
                     len(result.free_parameters), result.dof))
     lines.append("  chi-square %.8g" % result.chi_square)
-    lines.append("  dimensionless standard error sqrt(chi2/dof) %s" % (
-        "%.6g" % result.standard_error if result.standard_error is not None else "not defined (dof = 0)"))
+    lines.append("  sqrt of reduced chi-square sqrt(chi2/dof) %s" % (
+        "%.6g" % result.sqrt_reduced_chi_square if result.sqrt_reduced_chi_square is not None
+        else "not defined (dof = 0)"))
     if result.n_levels is not None:
         lines.append("  distinct levels computed per model evaluation %d; level calculations in all %s" % (
             result.n_levels, result.n_level_calculations))
@@ -485,9 +486,10 @@ def _check_loaded_shapes(result):
         x = getattr(result, key)
         if isinstance(x, bool) or not isinstance(x, int):
             raise ValueError("%s=%r must be an integer" % (key, x))
-    if result.chi_square is None or (result.scale_uncertainties and result.dof > 0 and result.standard_error is None):
-        raise ValueError("chi_square (and, for scaled uncertainties, standard_error) must be numbers")
-    for key in ("chi_square", "standard_error", "covariance_scale", "condition_number", "predicted_decrease"):
+    if result.chi_square is None or (result.scale_uncertainties and result.dof > 0 and
+                                     result.sqrt_reduced_chi_square is None):
+        raise ValueError("chi_square (and, for scaled uncertainties, sqrt_reduced_chi_square) must be numbers")
+    for key in ("chi_square", "sqrt_reduced_chi_square", "covariance_scale", "condition_number", "predicted_decrease"):
         x = getattr(result, key)
         if x is not None and (isinstance(x, bool) or not isinstance(x, (int, float)) or not math.isfinite(x)):
             raise ValueError("%s=%r must be a finite number or null" % (key, x))
