@@ -9,6 +9,7 @@ import numpy as np
 from . import _validate
 from .masses import as_reduced_mass, parse_isotopologue, reduced_mass
 from . import reports as _reports
+from . import result_json as _result_json
 from .reports import _frozen, _atomic_write
 from ._warn import warn as _warn
 
@@ -443,7 +444,7 @@ class FitResult:
     # -- JSON -------------------------------------------------------------------------
     def to_dict(self):
         """The whole result as plain JSON-ready data (NaN and infinities as None)."""
-        return _reports.fit_result_to_dict(self)
+        return _result_json.fit_result_to_dict(self)
 
     def to_json(self, indent=1):
         return json.dumps(self.to_dict(), indent=indent, allow_nan=False)
@@ -474,7 +475,7 @@ class FitResult:
 
     @classmethod
     def from_dict(cls, data):
-        return _reports.fit_result_from_dict(cls, data)
+        return _result_json.fit_result_from_dict(cls, data)
 
 # ------------------------------------------------------------------------------ predictions
 class Prediction:
