@@ -311,6 +311,14 @@ def run_corrected_rows(ev, n_params, vary, max_iterations, *, tolerance=ROWS_STE
             full[var] = step
             if worst < tolerance:
                 done = True
+                # the step is taken linearly; its second-order remainder, estimated from the WKB rows
+                # (they share the exact rows' curvature to first order), is the rows' method error
+                try:
+                    w0 = ev.run(p, e, ev.zero, _WKB, 0)
+                    w1 = ev.run(p + full[:n_params], e + full[n_params:], ev.zero, _WKB, 0)
+                    remainder = np.asarray(w1["calc"]) - np.asarray(w0["calc"]) - np.asarray(w0["jacobian"]) @ full
+                except ValueError:
+                    remainder = np.full(len(calc), np.nan)
                 calc = calc + jac @ full
                 p, e = p + full[:n_params], e + full[n_params:]
                 break
@@ -329,7 +337,8 @@ def run_corrected_rows(ev, n_params, vary, max_iterations, *, tolerance=ROWS_STE
                    n_level_calculations=out["n_level_calculations"] + n_levels)
     out = dict(out)
     out.update(iterations=iterations, n_eval=n_eval, refreshes=refreshes, exact_jacobians=jacobians,
-               history=history, converged_refreshes=done or out["stop"] != "converged")
+               history=history, converged_refreshes=done or out["stop"] != "converged",
+               remainder=remainder if done else np.full(len(observed), np.nan), level_tolerance=ev.tol)
     return out
 
 

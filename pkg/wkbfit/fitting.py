@@ -184,10 +184,11 @@ def fit(potential, observed, mu=None, *, method="corrected", vary=None, bounds=N
                                   rows["extra_index"], rows["coef_extra"], rows["offset"] + offset, rows["observed"],
                                   rows["sigma"], extra_start if extra is None else extra, vary_c, lower, upper,
                                   max_iterations if iterations < 0 else iterations, method=code, **bob_kwargs)
+    # the exact rows of any method's check after the fit come from the same evaluator
+    ev = _corrected.RowEvaluator(run_rows, model, curve, lv, lrot, lmu, rows, bob is None, omega)
     try:
         if method == "corrected":
             # WKB iterations with per-row exact corrections on the row engine (corrected.run_corrected_rows)
-            ev = _corrected.RowEvaluator(run_rows, model, curve, lv, lrot, lmu, rows, bob is None, omega)
             out = _corrected.run_corrected_rows(ev, len(params0), vary_flags, -1)
         else:
             out = run_rows(None, None, 0.0, _METHOD_CODES[method], -1)
@@ -243,6 +244,7 @@ def fit(potential, observed, mu=None, *, method="corrected", vary=None, bounds=N
                           "bounds": {n: b for n, b in bounds_by_name.items() if b != (None, None)},
                           "scale_uncertainties": bool(scale_uncertainties), "max_iterations": max_iterations,
                           "omega": omega, "born_oppenheimer": bob}
+    _method_error.attach_rows(result, design, ev, out)
     result._warn()
     return result
 

@@ -126,3 +126,82 @@ def _frozen(arr):
     arr = np.array(arr, copy=True)
     arr.setflags(write=False)
     return arr
+
+
+# ---- fits on the row engine (lines, several data sets, free term values, fitted asymptotes, ...) ----------
+
+def _row_name(data, i):
+    label = data.isotopologue[i] if getattr(data, "isotopologue", None) is not None else None
+    iso = "%s " % label if label is not None else ""
+    if hasattr(data, "v_upper"):
+        return "%sline v=%d J=%d - v=%d J=%d" % (iso, data.v_upper[i], data.J_upper[i], data.v_lower[i],
+                                                 data.J_lower[i])
+    return "%sv=%d J=%d" % (iso, data.v[i], data.J[i])
+
+
+def design_row_errors(method, ev, out):
+    """Per design row of a row-engine fit: (method error in cm-1, note). ev: the fit's
+    corrected.RowEvaluator; out: the fit's final dict (params, extra, calc; for "corrected" also
+    remainder and level_tolerance)."""
+    rows = ev.rows
+    # the exact levels' target accuracy carried into each row (|coef| of its one or two levels)
+    tol = ev.tol * np.hypot(np.where(rows["level_a"] >= 0, rows["coef_a"], 0.0),
+                            np.where(rows["level_b"] >= 0, rows["coef_b"], 0.0))
+    if method == "corrected":
+        return (np.hypot(np.abs(np.asarray(out["remainder"], dtype=float)), tol),
+                "method error = the second-order remainder of the final exact Gauss-Newton step (after %d exact "
+                "evaluations), with the exact levels' target accuracy %.1e cm-1 in quadrature"
+                % (out["refreshes"], ev.tol))
+    p, e = np.asarray(out["params"], dtype=float), np.asarray(out["extra"], dtype=float)
+    try:
+        if method == "wkb":
+            exact_rows = ev.levels(p, e)[0] if ev.plain else ev.exact(p, e)[0]
+            return (np.hypot(np.asarray(out["calc"]) - exact_rows, tol),
+                    "method error = |first-order WKB - exact| of each data row at the fitted parameters")
+        if ev.plain and not ev.omega:
+            from .corrected import exact_calc
+            _, level_err = exact_calc(ev.model, p, ev.curve, ev.lv, ev.lrot, ev.lmu, 0, ev.tol)
+            return (np.abs(ev._combine(level_err)),
+                    "method error = the exact solver's error estimate, combined over each row's levels")
+    except ValueError as err:
+        return (np.full(len(rows["observed"]), math.nan),
+                "method error not available: the exact levels of the fitted potential could not be computed (%s)"
+                % err)
+    return (np.full(len(rows["observed"]), math.nan),
+            "method error not estimated per row for exact fits with Omega or Born-Oppenheimer terms (the exact "
+            "levels are converged to the solver's default accuracy)")
+
+
+def attach_rows(result, design, ev, out):
+    """The method-error check of a row-engine fit: sets the same attributes as `attach`, with one
+    entry per data row of all data sets (NaN for rows not fitted), and names flagged rows by data set."""
+    err_rows, note = design_row_errors(result.method, ev, out)
+    n_all = sum(len(b.rows) for b in design.blocks)
+    err = np.full(n_all, math.nan)
+    sigma = np.asarray(result._sigma, dtype=float)  # uncertainties of all data rows, cm-1
+    names = [""] * n_all
+    for k, block in enumerate(design.blocks):
+        sel = np.nonzero(block.rows >= 0)[0]
+        err[block.start + sel] = err_rows[block.rows[sel]]
+        for i in range(len(block.rows)):
+            names[block.start + i] = "data set %d: %s" % (k + 1, _row_name(block.data, i))
+    with np.errstate(invalid="ignore", divide="ignore"):
+        ratio = err / sigma
+    flagged = [int(i) for i in np.nonzero(ratio > FLAG_FRACTION)[0]]
+    result.method_error = _frozen(err)
+    result.method_error_ratio = _frozen(ratio)
+    result.method_error_flagged = flagged
+    result.method_error_note = note
+    result.method_error_row_names = names
+    result.method_error_warning = ""
+    if flagged:
+        worst = int(np.nanargmax(ratio))
+        listed = ", ".join(names[i] for i in flagged[:12]) + (" and %d more" % (len(flagged) - 12)
+                                                              if len(flagged) > 12 else "")
+        result.method_error_warning = (
+            "the %s calculation of %d data row%s is off by more than %g of their uncertainty (largest %.3g sigma, "
+            "%.3g cm-1 at %s): %s. %s" % (
+                result.method, len(flagged), "" if len(flagged) == 1 else "s", FLAG_FRACTION, ratio[worst],
+                err[worst], names[worst], listed,
+                "Use a more exact method (method='corrected', the default, or 'exact')" if result.method == "wkb"
+                else "Use method='exact' for these data"))

@@ -253,6 +253,9 @@ def _mixed_report_text(result):
     if getattr(result, "quasibound_levels", None):
         lines.append("")
         lines.extend(quasibound_lines(result))
+    if getattr(result, "method_error_row_names", None) is not None:
+        lines.append("")
+        lines.extend(method_error_lines(result))
     # residual tables grouped by kind: term values, binding energies, line positions, widths
     order = ["term values", "binding energies", "line positions", "widths"]
     for kind in order:
@@ -294,7 +297,18 @@ def method_error_lines(result):
         return lines
     lines.append("  largest method error %.3g cm-1, %.3g of its level's uncertainty; levels above %g sigma: %d" % (
         float(np.nanmax(err)), float(np.nanmax(ratio)), _METHOD_FLAG, len(result.method_error_flagged)))
-    if result.method_error_flagged:
+    names = getattr(result, "method_error_row_names", None)
+    if result.method_error_flagged and names is not None:
+        # several data sets or kinds: rows named by data set
+        lines.append("  %-44s %12s %10s %9s" % ("data row", "method err", "sigma", "/sigma"))
+        for i in result.method_error_flagged[:20]:
+            lines.append("  %-44s %12.4g %10.4g %9.3f" % (names[i], err[i], result._sigma[i],
+                                                         result.method_error_ratio[i]))
+        if len(result.method_error_flagged) > 20:
+            lines.append("  ... and %d more" % (len(result.method_error_flagged) - 20))
+        lines.append("  These rows are computed less accurately than they were measured: fit with a more exact "
+                     "method (method='corrected', the default, or 'exact').")
+    elif result.method_error_flagged:
         obs = result.observed
         lines.append("  %-12s %4s %4s %12s %10s %9s" % ("isotopologue", "v", "J", "method err", "sigma", "/sigma"))
         for i in result.method_error_flagged[:20]:
@@ -306,7 +320,8 @@ def method_error_lines(result):
         lines.append("  These levels are computed less accurately than they were measured: fit with a more exact "
                      "method (method='corrected', the default, or 'exact').")
     else:
-        lines.append("  every level is computed to better than %g of its uncertainty" % _METHOD_FLAG)
+        lines.append("  every %s is computed to better than %g of its uncertainty" % (
+            "data row" if names is not None else "level", _METHOD_FLAG))
     return lines
 
 

@@ -107,6 +107,7 @@ def fit_result_to_dict(result):
         "start_notes": getattr(result, "start_notes", []),
         "method_error": None if getattr(result, "method_error", None) is None else result.method_error.tolist(),
         "method_error_note": getattr(result, "method_error_note", ""),
+        "method_error_row_names": getattr(result, "method_error_row_names", None),
         "quasibound_levels": getattr(result, "quasibound_levels", None),
         "quasibound_note": getattr(result, "quasibound_note", ""),
     })
@@ -277,6 +278,11 @@ def _fit_result_from_checked_dict(cls, data):
         result.method_error_ratio = _frozen(err / result._sigma)
         result.method_error_flagged = [int(i) for i in np.nonzero(result.method_error_ratio > _METHOD_FLAG)[0]]
         result.method_error_note = data.get("method_error_note", "")
+        names = data.get("method_error_row_names")
+        if names is not None:
+            if not (isinstance(names, list) and len(names) == err.size and all(isinstance(x, str) for x in names)):
+                raise ValueError("method_error_row_names must be a list of %d strings (one per data row)" % err.size)
+            result.method_error_row_names = names
     return result
 
 
