@@ -575,6 +575,19 @@ double wkb_well_kinetic(const wkb_well *w, double binding, double r, wkb_pot_val
     return kinetic(w, &e, r, pv);
 }
 
+/* E inside the well and only two turning points there (single-well WKB applies) */
+static int check_single_well(const wkb_well *w, double E, wkb_error *err)
+{
+    if (!(E > w->bottom))
+        return wkb_fail(err, WKB_ENOWELL, "E=%.12g cm-1 is below the bottom of the well (%.12g cm-1)", E,
+                        w->bottom);
+    if (count_crossings(w, E) > 2)
+        return wkb_fail(err, WKB_EMULTIWELL,
+                        "at E=%.12g cm-1 the potential has more than two turning points (a second well or a "
+                        "barrier in the classically allowed region); single-well WKB does not apply", E);
+    return WKB_SUCCESS;
+}
+
 int wkb_well_turning_points(wkb_well *w, double binding, double *r1, double *r2, wkb_error *err)
 {
     energy_point e;
@@ -584,13 +597,8 @@ int wkb_well_turning_points(wkb_well *w, double binding, double *r1, double *r2,
     e.top_form = binding < e.E - w->bottom;
     if (!(binding > 0) || !isfinite(binding))
         return wkb_fail(err, WKB_ENOLEVEL, "binding energy %.6g cm-1 is invalid: give a finite value > 0", binding);
-    if (!(e.E > w->bottom))
-        return wkb_fail(err, WKB_ENOWELL, "E=%.12g cm-1 is below the bottom of the well (%.12g cm-1)", e.E,
-                        w->bottom);
-    if (count_crossings(w, e.E) > 2)
-        return wkb_fail(err, WKB_EMULTIWELL,
-                        "at E=%.12g cm-1 the potential has more than two turning points (a second well or a "
-                        "barrier in the classically allowed region); single-well WKB does not apply", e.E);
+    if ((status = check_single_well(w, e.E, err)))
+        return status;
     if ((status = find_turning_point(w, &e, 0, r1, err)) || (status = find_turning_point(w, &e, 1, r2, err)))
         return status;
     return WKB_SUCCESS;
@@ -617,13 +625,8 @@ int wkb_orbit_at(wkb_well *w, double binding, wkb_orbit *orbit, double *avg_dVdp
     if (!(binding >= 0) || !isfinite(binding))
         return wkb_fail(err, WKB_ENOLEVEL,
                         "E=%.12g cm-1 is above the dissociation asymptote %.12g cm-1: no bound orbit", e.E, w->top);
-    if (!(e.E > w->bottom))
-        return wkb_fail(err, WKB_ENOWELL, "E=%.12g cm-1 is below the bottom of the well (%.12g cm-1)", e.E,
-                        w->bottom);
-    if (count_crossings(w, e.E) > 2)
-        return wkb_fail(err, WKB_EMULTIWELL,
-                        "at E=%.12g cm-1 the potential has more than two turning points (a second well or a "
-                        "barrier in the classically allowed region); single-well WKB does not apply", e.E);
+    if ((status = check_single_well(w, e.E, err)))
+        return status;
 
     const int infinite = binding == 0 && w->rot == 0;
     double r1, r2 = INFINITY;

@@ -24,8 +24,8 @@ import os
 
 import numpy as np
 
-from .observed import (ObservedLevels, _frozen, columns_in_memory, _label, _names, _number, _quantum_number,
-                       report_unknown_columns, resolve_units, _default_uncertainty)
+from .observed import (ObservedLevels, _frozen, distinct_labels, columns_in_memory, _label, _names, _number,
+                       _quantum_number, report_unknown_columns, resolve_units, _default_uncertainty)
 from .tables import read_table
 from .units import CM1_PER_UNIT, check_unit
 
@@ -78,11 +78,7 @@ class ObservedLines:
 
     @property
     def isotopologues(self):
-        seen = []
-        for label in self.isotopologue:
-            if label not in seen:
-                seen.append(label)
-        return seen
+        return distinct_labels(self.isotopologue)
 
     def keys(self):
         """One (isotopologue, upper_state, v', J', lower_state, v'', J'') per row."""
@@ -159,11 +155,7 @@ class ObservedWidths:
 
     @property
     def isotopologues(self):
-        seen = []
-        for label in self.isotopologue:
-            if label not in seen:
-                seen.append(label)
-        return seen
+        return distinct_labels(self.isotopologue)
 
     @property
     def default_uncertainty(self):  # widths always carry measured uncertainties

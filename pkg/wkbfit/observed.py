@@ -60,6 +60,15 @@ _OPTIONAL = ("J", "isotopologue")
 _KNOWN = _REQUIRED + _OPTIONAL
 
 
+
+def distinct_labels(labels):
+    """The distinct isotopologue labels in order of first appearance (None for unlabelled rows)."""
+    seen = []
+    for label in labels:
+        if label not in seen:
+            seen.append(label)
+    return seen
+
 class ObservedLevels:
     """Validated measured levels: read-only NumPy arrays of equal length.
 
@@ -108,11 +117,7 @@ class ObservedLevels:
     @property
     def isotopologues(self):
         """The distinct labels, in order of first appearance (None for unlabelled data)."""
-        seen = []
-        for label in self.isotopologue:
-            if label not in seen:
-                seen.append(label)
-        return seen
+        return distinct_labels(self.isotopologue)
 
     def rows_of(self, label):
         """Indices (0-based) of the rows of one isotopologue."""
