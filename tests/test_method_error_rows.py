@@ -59,3 +59,14 @@ def test_exact_fit_of_lines_reports_the_solver_error():
     # the round trip through JSON keeps the check
     again = wkbfit.FitResult.from_dict(res.to_dict())
     np.testing.assert_allclose(again.method_error, res.method_error, rtol=0, atol=0)
+
+
+def test_method_error_warnings_point_at_the_callers_line():
+    # both engines (term values, lines): the FitWarning names this file, not a line inside wkbfit
+    t = wkbfit.levels(LJ, MU, v=list(range(10)), method="exact")
+    levels = {"v": t.v, "energy": t.energy, "uncertainty": np.full(len(t), SIGMA)}
+    start = wkbfit.LennardJones(De=3950.0, re=4.01, n=12, m=6)
+    for data in (levels, _lines()):
+        with pytest.warns(FitWarning, match="more exact method") as record:
+            wkbfit.fit(start, data, mu=MU, method="wkb", vary=["De", "re"])
+        assert all(w.filename == __file__ for w in record if issubclass(w.category, FitWarning))

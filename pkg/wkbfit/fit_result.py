@@ -3,7 +3,6 @@ reports.py), Prediction, Parameter and FitWarning. fitting.fit builds it; fittin
 import json
 import math
 import os
-import warnings
 import numpy as np
 
 from . import _validate
@@ -269,11 +268,11 @@ class FitResult:
             self.dof_note = ""
 
     def _warn(self):
+        # every warning names the user's line, however deep in the package the fit ended
         if getattr(self, "start_notes", ()):
-            warnings.warn("the starting potential did not bind every level: " + "; ".join(self.start_notes),
-                          FitWarning, stacklevel=3)
+            _warn("the starting potential did not bind every level: " + "; ".join(self.start_notes), FitWarning)
         if getattr(self, "method_error_warning", ""):
-            warnings.warn(self.method_error_warning, FitWarning, stacklevel=3)
+            _warn(self.method_error_warning, FitWarning)
         if self.status != "converged":
             _warn("the fit did not converge: %s; the result holds the best point reached" % self.message,
                   FitWarning)
