@@ -5,7 +5,6 @@ each call crosses into the core once per J value with whole arrays.
 """
 import functools
 import math
-import warnings
 
 import numpy as np
 
@@ -13,6 +12,7 @@ from . import _core, _validate
 from .masses import as_reduced_mass
 from .potentials import Potential
 from .coverage import check_levels
+from ._warn import warn as _warn
 
 __all__ = ["LevelTable", "levels"]
 
@@ -25,7 +25,6 @@ _UNITS = {"v": "", "J": "", "energy": "cm-1", "binding_energy": "cm-1", "inner_t
 
 #: the rule behind each level (the `rule` column holds these names)
 RULES = {1: "first-order", 2: "second-order", 3: "matched", 4: "exact-phase", 5: "exact"}
-_RULE_CODES = {name: code for code, name in RULES.items()}
 
 _DESCRIPTIONS = {
     "v": "vibrational quantum number",
@@ -87,8 +86,8 @@ class LevelTable:
             if name == "method_error" and self._method_error_source is not None:
                 continue
             col = columns.get(name)
-            if name == "rule":
-                col = np.asarray(np.full(n, "", dtype=object) if col is None else col, dtype=object)
+            if name == "rule":  # names of the rules (set above where missing)
+                col = np.asarray(col, dtype=object)
                 col.setflags(write=False)
                 self.rule = col
                 continue
@@ -387,7 +386,7 @@ def _fixed_phase_fallback(potential, mu, vs, Js, langer, maslov, order, max_leve
     except (RuntimeError, ValueError) as exc2:
         raise ValueError("%s; second order with fixed end phases failed too (%s): use method='exact'"
                          % (note.split(": these")[0], exc2)) from None
-    warnings.warn(note, RuntimeWarning, stacklevel=4)
+    _warn(note, RuntimeWarning)
     table.notes.append(note)
     unknown = np.full(len(table), np.nan)
     unknown.setflags(write=False)
@@ -428,7 +427,7 @@ def _levels_one_by_one(potential, mu, rot, vs, m_in, m_out, Js, order, ends):
     cols["count"] = first["count"]
     if failed:
         note = "%s failed for %d level(s), left out: %s" % (rule_name, len(failed), "; ".join(failed))
-        warnings.warn(note, RuntimeWarning, stacklevel=4)
+        _warn(note, RuntimeWarning)
         cols["notes"] = [note]
     return cols
 

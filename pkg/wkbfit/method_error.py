@@ -60,25 +60,36 @@ def attach(result, rows, out, args=None):
     err_rows, note = row_method_errors(result.method, args, out)
     err = np.full(len(obs), math.nan)
     err[rows] = err_rows
-    ratio = err / obs.uncertainty
+    _set_check(result, err, obs.uncertainty, note, [level_name(obs, i) for i in range(len(obs))])
+
+
+def _set_check(result, err, sigma, note, names):
+    """The check's attributes on result: method_error, method_error_ratio, method_error_flagged, its
+    note, and method_error_warning naming the flagged rows by `names` (empty when nothing is flagged)."""
+    with np.errstate(invalid="ignore", divide="ignore"):
+        ratio = err / sigma
     flagged = [int(i) for i in np.nonzero(ratio > FLAG_FRACTION)[0]]
     result.method_error = _frozen(err)
     result.method_error_ratio = _frozen(ratio)
     result.method_error_flagged = flagged
     result.method_error_note = note
     result.method_error_warning = ""
-    if flagged:
-        worst = int(np.nanargmax(ratio))
+    if not flagged:
+        return
+    worst = int(np.nanargmax(ratio))
+    listed = ", ".join(names[i] for i in flagged[:12]) + (
+        " and %d more" % (len(flagged) - 12) if len(flagged) > 12 else "")
+    many = "" if len(flagged) == 1 else "s"
+    if result.method == "wkb":
         result.method_error_warning = (
             "the %s levels of %d data row%s are off by more than %g of their uncertainty (largest %.3g sigma, "
             "%.3g cm-1 at %s): %s. Use a more exact method (method='corrected', the default, or 'exact')"
-            % (result.method, len(flagged), "" if len(flagged) == 1 else "s", FLAG_FRACTION, ratio[worst],
-               err[worst], level_name(obs, worst), level_list(obs, flagged))
-            if result.method == "wkb" else
+            % (result.method, len(flagged), many, FLAG_FRACTION, ratio[worst], err[worst], names[worst], listed))
+    else:
+        result.method_error_warning = (
             "the %s levels of %d data row%s carry a method error above %g of their uncertainty (largest %.3g sigma "
             "at %s): %s. Use method='exact' for these data" % (
-                result.method, len(flagged), "" if len(flagged) == 1 else "s", FLAG_FRACTION, ratio[worst],
-                level_name(obs, worst), level_list(obs, flagged)))
+                result.method, len(flagged), many, FLAG_FRACTION, ratio[worst], names[worst], listed))
 
 
 def prediction_method_errors(method, potential, mu, J, energy, E00):
@@ -115,13 +126,6 @@ def level_name(obs, i):
     return "%sv=%d J=%d" % ("%s " % label if label is not None else "", obs.v[i], obs.J[i])
 
 
-def level_list(obs, idx, limit=12):
-    text = ", ".join(level_name(obs, i) for i in idx[:limit])
-    if len(idx) > limit:
-        text += " and %d more" % (len(idx) - limit)
-    return text
-
-
 def _frozen(arr):
     arr = np.array(arr, copy=True)
     arr.setflags(write=False)
@@ -131,12 +135,11 @@ def _frozen(arr):
 # ---- fits on the row engine (lines, several data sets, free term values, fitted asymptotes, ...) ----------
 
 def _row_name(data, i):
-    label = data.isotopologue[i] if getattr(data, "isotopologue", None) is not None else None
-    iso = "%s " % label if label is not None else ""
-    if hasattr(data, "v_upper"):
-        return "%sline v=%d J=%d - v=%d J=%d" % (iso, data.v_upper[i], data.J_upper[i], data.v_lower[i],
-                                                 data.J_lower[i])
-    return "%sv=%d J=%d" % (iso, data.v[i], data.J[i])
+    if not hasattr(data, "v_upper"):
+        return level_name(data, i)
+    label = data.isotopologue[i]
+    return "%sline v=%d J=%d - v=%d J=%d" % ("%s " % label if label is not None else "", data.v_upper[i],
+                                             data.J_upper[i], data.v_lower[i], data.J_lower[i])
 
 
 def design_row_errors(method, ev, out):
@@ -178,30 +181,11 @@ def attach_rows(result, design, ev, out):
     err_rows, note = design_row_errors(result.method, ev, out)
     n_all = sum(len(b.rows) for b in design.blocks)
     err = np.full(n_all, math.nan)
-    sigma = np.asarray(result._sigma, dtype=float)  # uncertainties of all data rows, cm-1
     names = [""] * n_all
     for k, block in enumerate(design.blocks):
         sel = np.nonzero(block.rows >= 0)[0]
         err[block.start + sel] = err_rows[block.rows[sel]]
         for i in range(len(block.rows)):
             names[block.start + i] = "data set %d: %s" % (k + 1, _row_name(block.data, i))
-    with np.errstate(invalid="ignore", divide="ignore"):
-        ratio = err / sigma
-    flagged = [int(i) for i in np.nonzero(ratio > FLAG_FRACTION)[0]]
-    result.method_error = _frozen(err)
-    result.method_error_ratio = _frozen(ratio)
-    result.method_error_flagged = flagged
-    result.method_error_note = note
+    _set_check(result, err, np.asarray(result._sigma, dtype=float), note, names)
     result.method_error_row_names = names
-    result.method_error_warning = ""
-    if flagged:
-        worst = int(np.nanargmax(ratio))
-        listed = ", ".join(names[i] for i in flagged[:12]) + (" and %d more" % (len(flagged) - 12)
-                                                              if len(flagged) > 12 else "")
-        result.method_error_warning = (
-            "the %s calculation of %d data row%s is off by more than %g of their uncertainty (largest %.3g sigma, "
-            "%.3g cm-1 at %s): %s. %s" % (
-                result.method, len(flagged), "" if len(flagged) == 1 else "s", FLAG_FRACTION, ratio[worst],
-                err[worst], names[worst], listed,
-                "Use a more exact method (method='corrected', the default, or 'exact')" if result.method == "wkb"
-                else "Use method='exact' for these data"))
