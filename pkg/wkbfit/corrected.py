@@ -151,7 +151,8 @@ def run_corrected(args, *, tolerance=LINEAR_STEP, max_refreshes=MAX_REFRESHES):
             calc_ex, _ = exact_calc(model, p, curve, v, rot, mu, zero, tol_levels)
             refreshes += 1
             step, sd, chi2 = _gauss_newton(calc_ex, out["jacobian"], energy, sigma, var)
-            history.append({"kind": "levels", "step_sd": float(np.max(np.abs(step) / sd)), "chi_square": chi2})
+            history.append({"kind": "levels", "step_sd": float(np.max(np.abs(step) / sd)) if var else 0.0,
+                            "chi_square": chi2})
         else:
             calc_ex, jac_ex = _core.fit_evaluate(model, p, curve, v, rot, mu, zero, _EXACT, tol_levels)
             refreshes += 1

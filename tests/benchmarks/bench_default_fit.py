@@ -52,7 +52,7 @@ def data(n_levels, seed=1):
     return wkbfit.read_levels(cols)
 
 
-def timed(method, obs, repeats):
+def timed(method, obs, repeats, masses=MASSES):
     """Best CPU time of this process over `repeats` runs (the machine is shared: CPU time of the one
     computing thread is far less disturbed by other jobs than wall time)."""
     best = None
@@ -60,10 +60,24 @@ def timed(method, obs, repeats):
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
             t0 = time.process_time()
-            result = wkbfit.fit(START, obs, MASSES, method=method)
+            result = wkbfit.fit(START, obs, masses, method=method)
             dt = time.process_time() - t0
         best = dt if best is None else min(best, dt)
     return best, result
+
+
+def three_fits(obs, masses=MASSES):
+    """Default, exact and first-order fits of obs, each timed: (times, results, largest |default - exact|/sd
+    over the parameters, largest relative difference of the uncertainties)."""
+    repeats = 3 if len(obs) < 1000 else 1
+    td, rd = timed("corrected", obs, repeats, masses)
+    te, re_ = timed("exact", obs, repeats, masses)
+    tw, rw = timed("wkb", obs, repeats, masses)
+    if repeats == 1:  # once more after the exact fit, so that a burst of load hits both alike
+        td = min(td, timed("corrected", obs, 1, masses)[0])
+    dp = max(abs(rd.params[k].value - re_.params[k].value) / re_.params[k].uncertainty for k in rd.var_names)
+    dsd = max(abs(rd.params[k].uncertainty / re_.params[k].uncertainty - 1) for k in rd.var_names)
+    return (td, te, tw), (rd, re_, rw), dp, dsd
 
 
 def main(sizes):
@@ -73,14 +87,7 @@ def main(sizes):
         "max dp/sd", "max dsd"))
     for n in sizes:
         obs = data(n)
-        repeats = 3 if n < 1000 else 1
-        td, rd = timed("corrected", obs, repeats)
-        te, re_ = timed("exact", obs, repeats)
-        tw, rw = timed("wkb", obs, repeats)
-        if repeats == 1:  # once more after the exact fit, so that a burst of load hits both alike
-            td = min(td, timed("corrected", obs, 1)[0])
-        dp = max(abs(rd.params[k].value - re_.params[k].value) / re_.params[k].uncertainty for k in rd.var_names)
-        dsd = max(abs(rd.params[k].uncertainty / re_.params[k].uncertainty - 1) for k in rd.var_names)
+        (td, te, tw), (rd, re_, rw), dp, dsd = three_fits(obs)
         print("%6d %9.3f %9.3f %9.3f %7d %7d %9d %9.3f %12.3f %10.2e %9.2e" % (
             len(obs), td, te, tw, rd.iterations, re_.iterations, rd.refreshes, td / te, tw / te, dp, dsd))
         print("       first-order WKB: sqrt(chi2/dof) %.2f, %d of %d levels with method error > 0.1 sigma; default: "

@@ -16,16 +16,13 @@ Run: python3 tests/benchmarks/bench_default_fit_rows.py [sizes...]
 """
 import os
 import sys
-import time
-import warnings
 
 import numpy as np
 
 sys.path.insert(0, os.path.join(os.path.dirname(__file__), "..", "..", "pkg"))
 import wkbfit  # noqa: E402
+from bench_default_fit import START, TRUE, three_fits  # noqa: E402  (same curve, start and timing)
 
-TRUE = wkbfit.MLR(De=6000.0, re=3.6, C6=1.5e7, betas=[-0.5, 0.1], r_ref=3.6)
-START = TRUE.with_params(De=5900.0, re=3.62, beta0=-0.47, beta1=0.08)
 MASSES = {"iso-a": 40.0, "iso-b": 41.0}
 
 
@@ -55,18 +52,6 @@ def lines(n, seed=1):
     return wkbfit.read_lines(cols)
 
 
-def timed(method, obs, repeats):
-    best = None
-    for _ in range(repeats):
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore")
-            t0 = time.process_time()
-            result = wkbfit.fit(START, obs, MASSES, method=method)
-            dt = time.process_time() - t0
-        best = dt if best is None else min(best, dt)
-    return best, result
-
-
 def main(sizes):
     print("machine: %d cores (may be shared with other jobs); times are CPU seconds of this process" % os.cpu_count())
     print("%6s %9s %9s %9s %7s %7s %9s %9s %10s %10s %9s" % (
@@ -74,14 +59,7 @@ def main(sizes):
         "max dp/sd", "max dsd"))
     for n in sizes:
         obs = lines(n)
-        repeats = 3 if n < 1000 else 1
-        td, rd = timed("corrected", obs, repeats)
-        te, re_ = timed("exact", obs, repeats)
-        tw, rw = timed("wkb", obs, repeats)
-        if repeats == 1:
-            td = min(td, timed("corrected", obs, 1)[0])
-        dp = max(abs(rd.params[k].value - re_.params[k].value) / re_.params[k].uncertainty for k in rd.var_names)
-        dsd = max(abs(rd.params[k].uncertainty / re_.params[k].uncertainty - 1) for k in rd.var_names)
+        (td, te, tw), (rd, re_, rw), dp, dsd = three_fits(obs, MASSES)
         print("%6d %9.3f %9.3f %9.3f %7d %7d %9d %9.3f %10.3f %10.2e %9.2e" % (
             n, td, te, tw, rd.iterations, re_.iterations, rd.refreshes, td / te, tw / te, dp, dsd))
         wdp = max(abs(rw.params[k].value - re_.params[k].value) / re_.params[k].uncertainty for k in rw.var_names)
