@@ -21,7 +21,7 @@ import numpy as np
 
 sys.path.insert(0, os.path.join(os.path.dirname(__file__), "..", "..", "pkg"))
 import wkbfit  # noqa: E402
-from bench_default_fit import START, TRUE, three_fits  # noqa: E402  (same curve, start and timing)
+from bench_default_fit import TRUE, three_fits  # noqa: E402  (same curve, start and timing)
 
 MASSES = {"iso-a": 40.0, "iso-b": 41.0}
 
