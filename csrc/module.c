@@ -741,21 +741,21 @@ cleanup:
 
 /* ------------------------------------------------- quasibound levels (quasibound.c, resonance.c) */
 
-#define QB_NCOL 15
+#define QB_NCOL 16
 static PyObject *py_quasibound_levels(PyObject *self, PyObject *args, PyObject *kwds)
 {
     static char *kwlist[] = {"model", "params", "curve", "mu", "rot", "order", "width_form", "barrier_phase",
-                             "width_phase", NULL};
+                             "width_phase", "complex_position", NULL};
     static const char *names[QB_NCOL] = {"v", "rot_index", "energy", "above_asymptote", "width", "theta", "dEdv",
                                          "Bv", "error", "inner_turning_point", "outer_turning_point",
                                          "barrier_turning_point", "order", "dtheta_dE",
-                                         "width_spacing"};
+                                         "width_spacing", "complex_root"};
     static const char *range_names[7] = {"barrier_found", "barrier_top", "barrier_height", "barrier_r", "v_first",
                                          "v_top", "first_order_fallback"};
     const char *model_name;
     PyObject *params_obj, *curve_obj, *rot_obj, *result = NULL;
     double mu;
-    int order = 2, width_form = WKB_WIDTH_UNIFORM, barrier_phase = 1, width_phase = 1;
+    int order = 2, width_form = WKB_WIDTH_UNIFORM, barrier_phase = 1, width_phase = 1, complex_position = 1;
     PyArrayObject *rot_arr = NULL, *cols[QB_NCOL] = {NULL}, *rcols[7] = {NULL};
     wkb_potential pot;
     wkb_qb *q = NULL;
@@ -764,8 +764,9 @@ static PyObject *py_quasibound_levels(PyObject *self, PyObject *args, PyObject *
     int status = WKB_SUCCESS;
     size_t total = 0;
 
-    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOdO|iipp", kwlist, &model_name, &params_obj, &curve_obj, &mu,
-                                     &rot_obj, &order, &width_form, &barrier_phase, &width_phase))
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOdO|iippp", kwlist, &model_name, &params_obj, &curve_obj, &mu,
+                                     &rot_obj, &order, &width_form, &barrier_phase, &width_phase,
+                                     &complex_position))
         return NULL;
     if (parse_potential(model_name, params_obj, curve_obj, &pot) < 0)
         return NULL;
@@ -778,6 +779,7 @@ static PyObject *py_quasibound_levels(PyObject *self, PyObject *args, PyObject *
     settings.width_form = width_form;
     settings.barrier_phase = barrier_phase;
     settings.width_phase = width_phase;
+    settings.complex_position = complex_position;
     if (!(q = wkb_qb_alloc(&settings))) {
         value_error("order=%d / width_form=%d are invalid (order 1 or 2; width form 0 uniform, 1 Kemble)", order,
                     width_form);
@@ -836,7 +838,7 @@ static PyObject *py_quasibound_levels(PyObject *self, PyObject *args, PyObject *
                 const wkb_qb_level *L = &lv[row + i];
                 const double vals[QB_NCOL] = {L->v, (double)k, L->energy, L->above_asymptote, L->width, L->theta,
                                               L->dEdv, L->Bv, L->error, L->r1, L->r2, L->r3, L->order,
-                                              L->dtheta_dE, L->width_spacing};
+                                              L->dtheta_dE, L->width_spacing, L->complex_root};
                 for (int cc = 0; cc < QB_NCOL; cc++)
                     out[cc][row + i] = vals[cc];
             }
@@ -873,12 +875,12 @@ cleanup:
 static PyObject *py_barrier_integrals(PyObject *self, PyObject *args, PyObject *kwds)
 {
     static char *kwlist[] = {"model", "params", "curve", "mu", "rot", "energy", NULL};
-    static const char *names[7] = {"theta", "dtheta_dE", "action", "half_period", "inner_turning_point",
-                                   "outer_turning_point", "barrier_turning_point"};
+    static const char *names[8] = {"theta", "dtheta_dE", "action", "half_period", "inner_turning_point",
+                                   "outer_turning_point", "barrier_turning_point", "curvature_integral"};
     const char *model_name;
     PyObject *params_obj, *curve_obj, *E_obj, *result = NULL;
     double mu, rot;
-    PyArrayObject *E_arr = NULL, *cols[7] = {NULL};
+    PyArrayObject *E_arr = NULL, *cols[8] = {NULL};
     wkb_potential pot;
     wkb_qb *q = NULL;
     wkb_error err = {0};
@@ -896,21 +898,22 @@ static PyObject *py_barrier_integrals(PyObject *self, PyObject *args, PyObject *
         PyErr_NoMemory();
         goto cleanup;
     }
-    for (int c = 0; c < 7; c++)
+    for (int c = 0; c < 8; c++)
         if (!(cols[c] = new_vector(n)))
             goto cleanup;
     {
         const double *E = PyArray_DATA(E_arr);
-        double *out[7];
-        for (int c = 0; c < 7; c++)
+        double *out[8];
+        for (int c = 0; c < 8; c++)
             out[c] = PyArray_DATA(cols[c]);
         Py_BEGIN_ALLOW_THREADS
         status = wkb_qb_set(q, &pot, mu, rot, &err);
         for (npy_intp i = 0; i < n && !status; i++) {
             wkb_qb_orbit_values o;
             status = wkb_qb_orbit(q, E[i] - wkb_qb_barrier(q)->asymptote, &o, &err);
-            const double vals[7] = {o.theta, o.dtheta_dE, o.action, o.half_period, o.r1, o.r2, o.r3};
-            for (int c = 0; c < 7; c++)
+            const double vals[8] = {o.theta, o.dtheta_dE, o.action, o.half_period, o.r1, o.r2, o.r3,
+                                     o.curvature_integral};
+            for (int c = 0; c < 8; c++)
                 out[c][i] = vals[c];
         }
         Py_END_ALLOW_THREADS
@@ -921,13 +924,13 @@ static PyObject *py_barrier_integrals(PyObject *self, PyObject *args, PyObject *
     }
     if (!(result = PyDict_New()))
         goto cleanup;
-    for (int c = 0; c < 7; c++)
+    for (int c = 0; c < 8; c++)
         if (PyDict_SetItemString(result, names[c], (PyObject *)cols[c]) < 0) {
             Py_CLEAR(result);
             break;
         }
 cleanup:
-    for (int c = 0; c < 7; c++)
+    for (int c = 0; c < 8; c++)
         Py_XDECREF(cols[c]);
     Py_XDECREF(E_arr);
     wkb_qb_free(q);
@@ -2002,9 +2005,10 @@ static PyMethodDef core_methods[] = {
      "wkb_orbits(model, params, curve, mu, rot, binding) -> dict of arrays: action (integral k dr), "
      "half_period (d action/dE, 1/cm-1), inner/outer turning points, Bv; at binding energies asymptote - E"},
     {"quasibound_levels", (PyCFunction)(void (*)(void))py_quasibound_levels, METH_VARARGS | METH_KEYWORDS,
-     "quasibound_levels(model, params, curve, mu, rot, order=2, width_form=0, barrier_phase=True, width_phase=True)"},
+     "quasibound_levels(model, params, curve, mu, rot, order=2, width_form=0, barrier_phase=True, width_phase=True, "
+     "complex_position=True)"},
     {"barrier_integrals", (PyCFunction)(void (*)(void))py_barrier_integrals, METH_VARARGS | METH_KEYWORDS,
-     "barrier_integrals(model, params, curve, mu, rot, energy) -> theta, dtheta_dE, action, ... at each E"},
+     "barrier_integrals(model, params, curve, mu, rot, energy) -> theta, dtheta_dE, action, ..., curvature_integral at each E"},
     {"resonances", (PyCFunction)(void (*)(void))py_resonances, METH_VARARGS | METH_KEYWORDS,
      "resonances(model, params, curve, mu, J, energy, width, phase_step=, r_match=) -> dict of columns"},
     {"fit_evaluate", (PyCFunction)(void (*)(void))py_fit_evaluate, METH_VARARGS | METH_KEYWORDS,

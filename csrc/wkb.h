@@ -626,6 +626,8 @@ typedef struct {
     int width_form;     /* enum wkb_width_form */
     int barrier_phase;  /* order 2: add the barrier-phase remainder (wkb_barrier_phase_remainder) */
     int width_phase;    /* width spacing pi/(dI/dE - dphi/dE / 2) instead of pi/(dI/dE) */
+    int complex_position; /* order 2 with barrier phase: the position as the real part of the complex root of
+                             the rule with the barrier's decay term (quasibound.c); 0: the real-energy root */
 } wkb_qb_settings;
 wkb_qb_settings wkb_qb_default_settings(void);
 
@@ -658,6 +660,7 @@ double wkb_barrier_phase_slope(double theta);
 
 typedef struct {
     int v, order;              /* order: the position rule that converged (1 or 2) */
+    int complex_root;          /* 1: the position is the real part of the complex root (complex_position) */
     double energy, above_asymptote; /* E and E - D, cm-1 */
     double width, theta, dEdv, Bv, error; /* width: FWHM cm-1; error: numerical error of E */
     double dtheta_dE, width_spacing; /* width_spacing: the level spacing in the width formula, cm-1 */
