@@ -138,6 +138,17 @@ def test_prior_prototype_widths():
 
 
 # ---------------------------------------------------------------- semiclassical against exact, by theta
+class RealRootTable:
+    """The default rule's real-energy root (complex_position off), with the table methods used below."""
+
+    def __init__(self, J):
+        res = _core.quasibound_levels(*LJ._core_args(), MU, np.array([J * (J + 1.0)]), complex_position=False)
+        self.v, self.energy = res["v"].astype(int), res["energy"]
+
+    def level(self, v, J):
+        return int(np.nonzero(self.v == v)[0][0])
+
+
 def _all_resonances():
     rows = []
     for J in range(30, 56):
@@ -146,6 +157,7 @@ def _all_resonances():
             ex = wkbfit.levels(LJ, MU, J=J, method="exact", quasibound=True)
         scs = {rule: wkbfit.levels(LJ, MU, J=J, order=2, quasibound=True, quasibound_rule=rule)
                for rule in ("second_order_barrier", "second_order", "first_order")}
+        scs["real_root"] = RealRootTable(J)
         kem = wkbfit.levels(LJ, MU, J=J, order=2, quasibound=True, width_form="kemble")
         for i in np.nonzero(ex.quasibound)[0]:
             k = scs["second_order_barrier"].level(ex.v[i], J)
@@ -163,23 +175,60 @@ def resonances():
 
 
 def test_semiclassical_positions_by_theta(resonances):
-    """Default rule (second order + barrier-phase remainder) against the exact poles. Measured on this
-    curve; the issue's targets are 1e-3 cm-1 for theta >= 4 and 5e-3 for theta >= 1: met for theta >= 5
-    (<= 9.1e-4); 4 <= theta < 5 reaches 1.6e-3, 2 <= theta < 4 5.6e-3 (one level of a two-level well at
-    J = 55; the others <= 3.3e-3), and 1 <= theta < 2 only 0.09 cm-1 (the second-order term fails near the
-    barrier top: the matched rule is needed there)."""
+    """Default rule (second order + barrier-phase remainder, the real part of the complex root with the
+    barrier's decay term) against the exact poles. Measured on this curve (a light, quantal well of 1-6
+    levels per J); the issue's targets are 1e-3 cm-1 for theta >= 4 and 5e-3 for theta >= 1: met for
+    theta >= 5 (<= 9.1e-4); 4 <= theta < 5 reaches 1.5e-3, 2 <= theta < 4 4.0e-3 (met), 1 <= theta < 2
+    8.2e-3 and 0.5 <= theta < 1 8.8e-3 (the real-energy root alone: 0.086 and 0.28). What remains for
+    theta < 5 is the inner-well rule's own higher-order error at the barrier side, not the decay: the MLR
+    and heavier-mass wells below meet every target."""
     assert len(resonances) > 40
-    bands = [(5, np.inf, 1e-3), (4, 5, 2e-3), (2, 4, 6e-3), (1, 2, 0.1)]
+    bands = [(5, np.inf, 1e-3), (4, 5, 2e-3), (2, 4, 5e-3), (1, 2, 1e-2), (0.5, 1, 1.2e-2)]
     for lo, hi, tol in bands:
         sel = [r for r in resonances if lo <= r["theta"] < hi]
         assert sel, (lo, hi)
         worst = max(abs(r["dE"]["second_order_barrier"]) for r in sel)
         assert worst < tol, (lo, hi, worst)
+    # the complex root is what brings theta 0.5-2 from 0.09-0.3 cm-1 to 1e-2: the real-energy root is
+    # > 0.03 cm-1 off there
+    sel = [r for r in resonances if 0.5 <= r["theta"] < 2]
+    assert max(abs(r["dE"]["real_root"]) for r in sel) > 0.03
     # the remainder is what reaches 1e-3 at theta >= 5: plain second order is 5-20x worse there ...
     sel = [r for r in resonances if 5 <= r["theta"] < 12]
     assert max(abs(r["dE"]["second_order"]) for r in sel) > 5e-3
     # ... and first order (true J(J+1), no Langer change) is off by 0.02-3 cm-1
     assert min(abs(r["dE"]["first_order"]) for r in resonances if r["theta"] < 15) > 0.01
+
+
+def _position_and_width_errors(potential, mu, Js):
+    """(theta, position error, width ratio - 1) of every resolved exact resonance of the given J."""
+    out = []
+    for J in Js:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", RuntimeWarning)
+            ex = wkbfit.levels(potential, mu, J=J, method="exact", quasibound=True)
+        sc2 = wkbfit.levels(potential, mu, J=J, quasibound=True)
+        for i in np.nonzero(ex.quasibound & (ex.width > 100 * ex.width_error))[0]:
+            k = sc2.level(ex.v[i], J)
+            out.append((sc2.theta[k], sc2.energy[k] - ex.energy[i], sc2.width[k] / ex.width[i] - 1))
+    return np.array(out)
+
+
+@pytest.mark.parametrize("name,potential,mu,Js", [
+    # an MLR with a C6 tail (mu = 30 u) at J = 70-196, and the LJ test curve at four times the mass
+    ("MLR", wkbfit.MLR(De=3000.0, re=3.0, C6=2e5, betas=[0.3, 0.1, 0.05]), 30.0, range(70, 200, 6)),
+    ("LJ, 4 mu", LJ, 4 * MU, range(60, 112, 3)),
+])
+def test_semiclassical_positions_meet_the_targets_on_other_wells(name, potential, mu, Js):
+    """The issue's targets against the exact poles on wells of 4-9 quasibound levels per J. Measured:
+    MLR <= 2.8e-4 cm-1 for theta >= 4, <= 1.6e-3 for theta >= 1 (1.3e-3 at theta 0.5-1), widths within
+    2.3 %; LJ at 4 mu <= 2.8e-4, <= 1.8e-3 (1.8e-3), widths within 2.5 %."""
+    rows = _position_and_width_errors(potential, mu, Js)
+    assert len(rows) > 30 and np.any((rows[:, 0] >= 1) & (rows[:, 0] < 2))
+    for lo, tol in ((4, 1e-3), (1, 5e-3), (0.5, 5e-3)):
+        sel = rows[:, 0] >= lo
+        assert np.max(np.abs(rows[sel, 1])) < tol, (name, lo, np.max(np.abs(rows[sel, 1])))
+    assert np.max(np.abs(rows[rows[:, 0] >= 0.5, 2])) < 0.06
 
 
 def test_semiclassical_widths_by_theta(resonances):
@@ -375,8 +424,9 @@ def test_fit_with_quasibound_data():
 
 def test_semiclassical_against_exact_on_a_rotating_morse_curve():
     """A second curve (exponential tail; Morse De = 3000 cm-1, re = 2 A, a = 1.2/A, mu = 7 u): the default
-    rule and widths against the exact poles. Measured at J = 40-80: positions <= 3.4e-4 cm-1 for theta >= 2,
-    0.033 at theta = 0.7-1.5; widths within 1.1 % for theta >= 1 and 2.8 % at theta = 0.7. (At J = 84-88,
+    rule and widths against the exact poles. Measured at J = 40-80: positions <= 2.8e-4 cm-1 for theta >= 2,
+    <= 5.3e-4 at theta = 0.7-1.5 (the real-energy root alone: 0.033); widths within 1.1 % for theta >= 1
+    and 2.8 % at theta = 0.7. (At J = 84-88,
     where the well keeps only 1-3 levels, v = 0 widths come out up to 7 % low: the classical spacing is a
     poor measure of a well that holds one level.)"""
     morse = wkbfit.Morse(De=3000.0, re=2.0, a=1.2)
@@ -389,7 +439,7 @@ def test_semiclassical_against_exact_on_a_rotating_morse_curve():
         for i in np.nonzero(ex.quasibound & (ex.width > 100 * ex.width_error))[0]:
             k = sc2.level(ex.v[i], J)
             th, dE, ratio = sc2.theta[k], sc2.energy[k] - ex.energy[i], sc2.width[k] / ex.width[i]
-            assert abs(dE) < (3e-4 if th >= 2 else 0.05), (J, ex.v[i], th, dE)
+            assert abs(dE) < (3e-4 if th >= 2 else 1e-3), (J, ex.v[i], th, dE)
             assert abs(ratio - 1) < (0.015 if th >= 1 else 0.04), (J, ex.v[i], th, ratio)
             seen += 1
     assert seen >= 12
