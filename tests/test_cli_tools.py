@@ -260,6 +260,42 @@ def test_levels_quasibound_lists_widths_and_theta(capsys):
     assert [v for v, f in _table_rows(out).items() if f[-1] == "yes"] == exact.v[exact.quasibound].tolist()
 
 
+def test_compare_quasibound_lists_positions_and_widths(capsys):
+    # compare --quasibound: a second table, the quasibound levels semiclassical against the exact poles
+    # (those are checked against an independent SciPy phase-shift computation in test_quasibound.py)
+    lj = wkbfit.LennardJones(De=1000.0, re=4.0, n=12, m=6)
+    status, out, err = run(capsys, "compare", "lennard-jones", "De=1000", "re=4", "--mu", 20, "-J", 30, "--order",
+                           2, "--quasibound")
+    assert status == 0, err
+    part = out.split("Quasibound levels")[1]
+    header = part.splitlines()[1].split()
+    assert header == ["v", "J", "theta", "E_wkb", "E_exact", "wkb-exact", "exact_error", "width_wkb",
+                      "width_exact", "width_ratio"]
+    rows = _table_rows(part)
+    sc = wkbfit.levels(lj, 20.0, J=30, quasibound=True)
+    ex = wkbfit.levels(lj, 20.0, J=30, quasibound=True, method="exact")
+    assert sorted(rows) == sc.v[sc.quasibound].tolist() == ex.v[ex.quasibound].tolist() == [25, 26]
+    top = _barrier_top(lj, 20.0, 30)
+    for v, f in rows.items():
+        i, k = sc.level(v, 30), ex.level(v, 30)
+        assert float(f[3]) == pytest.approx(sc.energy[i], abs=1e-6)
+        assert float(f[4]) == pytest.approx(ex.energy[k], abs=1e-6)
+        assert float(f[5]) == pytest.approx(sc.energy[i] - ex.energy[k], rel=1e-2, abs=1e-9)
+        assert lj.asymptote < float(f[4]) < top
+        # the semiclassical targets (theta >= 1): 5e-3 cm-1 in position, 6 % in width
+        assert float(f[2]) >= 1 and abs(float(f[5])) < 5e-3
+        if f[-1] != "-":
+            assert float(f[-1]) == pytest.approx(sc.width[i] / ex.width[k], rel=1e-3)
+            assert abs(float(f[-1]) - 1) < 0.06
+    # v = 25 (theta = 31) is too narrow for the exact width: no ratio, and a note says why
+    assert rows[25][-1] == "-" and "too narrow" in part and rows[26][-1] != "-"
+    # no barrier at J = 0: the table says there is nothing to compare
+    status, out, err = run(capsys, "compare", "lennard-jones", "De=1000", "re=4", "--mu", 20, "-J", 0,
+                           "--order", 2, "--quasibound")
+    assert status == 0, err
+    assert "no level is quasibound in both calculations at J = 0" in out
+
+
 def test_curve_quasibound(capsys, tmp_path):
     lj = wkbfit.LennardJones(De=1000.0, re=4.0, n=12, m=6)
     r = np.linspace(3.3, 30.0, 800)

@@ -3,7 +3,8 @@
     wkbfit rkr --G Y10,Y20,... --B Y01,Y11,... (--mu MU | -i LABEL) [-v V] [--output-dir DIR]
         RKR turning points from Dunham-type constants; writes the turning points and the curve (r, V)
     wkbfit compare (MODEL NAME=VALUE ... | --curve FILE) (--mu MU | -i LABEL) [--order 1|2|both] [--uncertainty U]
-        WKB against exact levels, level by level
+                [--quasibound]
+        WKB against exact levels, level by level (and quasibound positions and widths)
     wkbfit curve FILE (--mu MU | -i LABEL) [--method wkb|exact] [--order 1|2] [--asymptote D] [--tail-power n]
                 [--quasibound]
         levels of a curve given at points (columns r [A], V [cm-1])
@@ -284,7 +285,26 @@ def _cmd_compare(args, out):
         if k:
             print("", file=out)
         print(comp.to_text(uncertainty=args.uncertainty), file=out)
+    if args.quasibound:
+        print("", file=out)
+        print(_quasibound_comparison_text(pot, mu, Js, vs), file=out)
     return 0
+
+
+def _quasibound_comparison_text(pot, mu, Js, vs):
+    """The quasibound levels, semiclassical (the default rule) against the exact poles."""
+    from .quasibound import compare_quasibound
+    from .reports import text_table
+    c, notes = compare_quasibound(pot, mu, Js, vs)
+    columns = [("v", "", c["v"], "%d"), ("J", "", c["J"], "%d"), ("theta", "", c["theta"], "%.4f"),
+               ("E_wkb", "cm-1", c["wkb_energy"], "%.6f"), ("E_exact", "cm-1", c["exact_energy"], "%.6f"),
+               ("wkb-exact", "cm-1", c["difference"], "%.2e"), ("exact_error", "cm-1", c["exact_error"], "%.1e"),
+               ("width_wkb", "cm-1", c["wkb_width"], "%.4e"), ("width_exact", "cm-1", c["exact_width"], "%.4e"),
+               ("width_ratio", "", c["width_ratio"], "%.4f")]
+    if not len(c["v"]):
+        notes = ["no level is quasibound in both calculations at J = %s" % ", ".join(map(str, Js))] + notes
+    return text_table(columns, "Quasibound levels of %r, mu = %.10g u: semiclassical against exact "
+                      "(complex-energy poles)" % (pot, mu), notes)
 
 
 # -- curve -----------------------------------------------------------------------------------
@@ -380,6 +400,9 @@ def add_subcommands(sub, models_help, model_names):
     _order_option(p, both=True)
     p.add_argument("--uncertainty", type=lambda s: _number(s, "--uncertainty"), default=None,
                    help="a data uncertainty in cm-1: a last column says whether WKB is within it")
+    p.add_argument("--quasibound", action="store_true",
+                   help="also compare the quasibound levels (shape resonances between the asymptote and the top of "
+                        "the centrifugal barrier, J > 0): semiclassical against exact positions and widths")
     p.set_defaults(run=_cmd_compare)
 
     p = sub.add_parser("curve", help="levels of a curve given at points",

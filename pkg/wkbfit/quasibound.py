@@ -24,7 +24,8 @@ import numpy as np
 
 from . import _core
 
-__all__ = ["RULES", "WIDTH_FORMS", "LIFETIME_CONSTANT", "lifetime", "quasibound_columns", "exact_resonances"]
+__all__ = ["RULES", "WIDTH_FORMS", "LIFETIME_CONSTANT", "lifetime", "quasibound_columns", "exact_resonances",
+           "compare_quasibound"]
 
 #: speed of light, cm/s (exact by the SI definition of the metre)
 SPEED_OF_LIGHT_CM_PER_S = 29979245800.0
@@ -253,3 +254,43 @@ def levels_with_quasibound(potential, mu, v, J, method, *, order, langer, maslov
     if hasattr(bound, "bound_counts"):
         table.bound_counts = bound.bound_counts
     return table
+
+
+def compare_quasibound(potential, mu, J, v=None, *, rule=None, width_form="uniform"):
+    """Semiclassical quasibound levels against the exact resonances, level by level.
+
+    Returns (columns, notes): columns holds NumPy arrays v, J, theta, wkb_energy, exact_energy,
+    difference (semiclassical - exact, cm-1), exact_error, wkb_width, exact_width, width_ratio
+    (semiclassical / exact; NaN where the exact width is not resolved) and exact_width_error, one row per
+    level quasibound in both (and in v, if given); notes name the levels only one of them finds.
+    """
+    from .levels import levels as _levels, _as_int_list
+    Js = _as_int_list(J, "J")
+    wanted = None if v is None else set(_as_int_list(v, "v"))
+    sc = _levels(potential, mu, J=Js, quasibound=True, quasibound_rule=rule, width_form=width_form)
+    ex = _levels(potential, mu, J=Js, quasibound=True, method="exact")
+
+    def rows(t):
+        return {(int(t.v[i]), int(t.J[i])): i for i in np.nonzero(t.quasibound & ~t.above_barrier)[0]
+                if wanted is None or int(t.v[i]) in wanted}
+    rs, re_ = rows(sc), rows(ex)
+    common = sorted(set(rs) & set(re_), key=lambda k: (k[1], k[0]))
+    i_s = np.array([rs[k] for k in common], dtype=int)
+    i_e = np.array([re_[k] for k in common], dtype=int)
+    cols = {"v": sc.v[i_s], "J": sc.J[i_s], "theta": sc.theta[i_s], "wkb_energy": sc.energy[i_s],
+            "exact_energy": ex.energy[i_e], "difference": sc.energy[i_s] - ex.energy[i_e],
+            "exact_error": ex.error[i_e], "wkb_width": sc.width[i_s], "exact_width": ex.width[i_e],
+            "exact_width_error": ex.width_error[i_e]}
+    # widths below ten times their error estimate (theta > ~15: the double-precision limit) have no ratio
+    resolved = cols["exact_width"] > 10 * cols["exact_width_error"]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        cols["width_ratio"] = np.where(resolved, cols["wkb_width"] / cols["exact_width"], np.nan)
+    notes = []
+    if not np.all(resolved):
+        notes.append("width_ratio '-': the exact width is below ten times its error estimate (too narrow to "
+                     "resolve in double precision)")
+    for label, only in (("semiclassical", sorted(set(rs) - set(re_))), ("exact", sorted(set(re_) - set(rs)))):
+        if only:
+            notes.append("quasibound in the %s calculation only: %s"
+                         % (label, ", ".join("v=%d J=%d" % k for k in only)))
+    return cols, notes
