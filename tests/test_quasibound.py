@@ -475,3 +475,27 @@ def test_exact_error_estimates_are_honest_and_within_target():
     assert np.all(np.abs(a["width"] - b["width"]) <= 2 * a["width_error"] + 1e-16)
     wide = a["width"] >= 1e-10
     assert np.all(a["width_error"][wide] < 1e-3 * a["width"][wide])
+
+
+def test_method_error_of_quasibound_levels_is_honest(resonances):
+    """method_error of semiclassical quasibound rows: |E - E_exact| + the exact pole's estimate, from the
+    exact resonance seeded by the level (the more exact method). True error (against the default exact
+    poles of the resonances fixture) <= 2x the estimate; bound rows keep the bound table's estimate."""
+    seen = 0
+    for J in (33, 40, 45, 50, 55):
+        t = wkbfit.levels(LJ, MU, J=J, quasibound=True)
+        bound = wkbfit.levels(LJ, MU, J=J) if J <= 50 else None
+        q = np.nonzero(t.quasibound)[0]
+        assert np.all(np.isfinite(t.method_error)) and np.all(t.method_error > 0)
+        assert all(r.startswith("quasibound-") for r in t.rule[q])
+        for i in q:
+            ref = [r for r in resonances if r["J"] == J and r["v"] == t.v[i]]
+            if ref:
+                true = abs(t.energy[i] - ref[0]["E"])
+                assert true <= 2 * t.method_error[i] + 1e-9, (J, t.v[i], true, t.method_error[i])
+                assert t.method_error[i] < 10 * true + 1e-6  # not uselessly pessimistic
+                seen += 1
+        if bound is not None:
+            n = len(bound)
+            np.testing.assert_allclose(t.method_error[:n], bound.method_error, rtol=1e-12)
+    assert seen >= 8

@@ -18,6 +18,7 @@ Exact (method="exact"), in C (csrc/resonance.c): complex-energy (Siegert) poles 
 outgoing-wave condition, seeded by the semiclassical levels, with error estimates from the grid step and
 the matching radius.
 """
+import functools
 import math
 
 import numpy as np
@@ -171,6 +172,27 @@ def _bound_levels(potential, mu, Js, method, order, ends=None):
     return table, no_well
 
 
+def _method_error(table, *, bound, source, qcols, potential, mu):
+    """method_error of a semiclassical table with quasibound rows (computed on first use): bound rows from
+    the bound table's own estimate; quasibound rows |E - E_exact| + the exact pole's error estimate,
+    against the exact resonance found from the semiclassical level (the more exact method, as for
+    fixed-phase bound levels), inf where that search fails or lands on another level."""
+    out = np.full(len(source), np.inf)
+    b = source >= 0
+    if np.any(b):
+        out[b] = np.asarray(bound.method_error)[source[b]]
+    qi = -1 - source[~b]
+    if len(qi):
+        try:
+            res = exact_resonances(potential, mu, qcols["J"][qi], qcols["energy"][qi], qcols["width"][qi])
+        except (ValueError, RuntimeError):
+            return out
+        dE = np.abs(qcols["energy"][qi] - res["energy"])
+        same = (dE < 0.5 * qcols["dEdv"][qi]) & np.isfinite(res["energy_error"])
+        out[np.nonzero(~b)[0][same]] = dE[same] + res["energy_error"][same]
+    return out
+
+
 def levels_with_quasibound(potential, mu, v, J, method, *, order, langer, maslov, rule, width_form, ends=None):
     """What `levels(..., quasibound=True)` returns: bound and quasibound levels in one LevelTable."""
     from .levels import LevelTable, _COLUMNS, _as_int_list
@@ -229,12 +251,18 @@ def levels_with_quasibound(potential, mu, v, J, method, *, order, langer, maslov
     for J in no_well:
         notes.append("J=%d: the well of V_J lies above the asymptote: no bound levels" % J)
     qcols["lifetime"] = lifetime(qcols["width"])
+    qcols["rule"] = np.full(n_q, "exact" if method == "exact" else "quasibound-" + _rule(rule).replace("_", "-"),
+                            dtype=object)
     cols = {}
     for name in _COLUMNS:
+        if name == "method_error":
+            continue  # computed on first use (below), not forced here
         b = getattr(bound, name)
         q = qcols.get(name)
         q = np.full(n_q, np.nan) if q is None else np.asarray(q)
         cols[name] = np.concatenate([b, q[keep]])
+    # where each row comes from: >= 0 a row of `bound`, -1 - i the quasibound row i
+    source = np.concatenate([np.arange(len(bound)), -1 - np.nonzero(keep)[0]])
     order_idx = np.lexsort((cols["v"], cols["J"]))
     if vs is not None:
         wanted = set(vs)
@@ -248,8 +276,13 @@ def levels_with_quasibound(potential, mu, v, J, method, *, order, langer, maslov
                                 "V_J has no barrier above the asymptote"))
         order_idx = order_idx[np.isin(cols["v"][order_idx], list(wanted))]
     cols = {name: c[order_idx] for name, c in cols.items()}
+    source = source[order_idx]
+    estimate = None
+    if method == "wkb":
+        estimate = functools.partial(_method_error, bound=bound, source=source, qcols=qcols, potential=potential,
+                                     mu=mu)
     table = LevelTable(cols, mu=mu, method=bound.method, potential=potential, vD=bound.vD_by_J,
-                       v_th=bound.v_th_by_J, notes=list(bound.notes) + notes)
+                       v_th=bound.v_th_by_J, notes=list(bound.notes) + notes, method_error=estimate)
     table.barriers = barriers
     if hasattr(bound, "bound_counts"):
         table.bound_counts = bound.bound_counts
