@@ -8,6 +8,7 @@ Prints, from one run:
   time per level;
 - wkbfit exact resonance poles (Siegert, extended-precision Numerov, Richardson over 3 steps, a second
   matching radius for the error estimate): time per level;
+- the cost of the complex-root position against the real-energy root (ratio, same run);
 - the SciPy baseline at matched accuracy for the exact widths (1e-6 cm-1 in position, 1e-3 in width): the
   phase shift from solve_ivp (DOP853, rtol 1e-12) at real energies, vectorized over the energy grid, with a
   Breit-Wigner fit, as tests/test_quasibound.py does it; time per resonance and the ratio.
@@ -66,6 +67,22 @@ def main():
     t_sp = float(np.mean(done))
     print("SciPy phase-shift baseline:       %.0f ms per resonance" % (1e3 * t_sp))
     print("ratio SciPy / wkbfit exact: %.1f;  SciPy / wkbfit semiclassical: %.0f" % (t_sp / t_ex, t_sp / t_sc))
+    complex_position_cost()
+
+
+def complex_position_cost():
+    """The complex-root position (theta < 8: a 7-point stencil of the second-order rule) against the
+    real-energy root, semiclassical quasibound levels only, J = 30-55 of the same curve."""
+    from wkbfit import _core
+    rot = np.array([J * (J + 1.0) for J in range(30, 56)])
+    args = LJ._core_args()
+    res = _core.quasibound_levels(*args, MU, rot)
+    n, n_c = len(res["v"]), int(np.sum(res["complex_root"]))
+    t_on = time_call(lambda: _core.quasibound_levels(*args, MU, rot)) / n
+    t_off = time_call(lambda: _core.quasibound_levels(*args, MU, rot, complex_position=False)) / n
+    print("quasibound positions, J = 30-55 (%d levels, %d by the complex root): %.3f ms per level with the "
+          "complex root, %.3f ms with the real root only; ratio %.2f" % (n, n_c, 1e3 * t_on, 1e3 * t_off,
+                                                                     t_on / t_off))
 
 
 if __name__ == "__main__":
