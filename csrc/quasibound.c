@@ -11,7 +11,9 @@
  *   K(E) = integral_{r1}^{r2} V_J''/sqrt(E - V_J) dr
  * (Dunham; physics.md sections 2 and 10), dK/dE by a five-point difference, where rem is the part of the
  * parabolic-barrier phase that the second-order term does not already hold (wkb_barrier_phase_remainder;
- * barrier_phase = 0 leaves it out).
+ * barrier_phase = 0 leaves it out). For theta < 8 the position is the real part of the complex root of
+ * that rule with the barrier's decay term (i/4) ln(1 + exp(-2 theta)) added (complex_position; see
+ * complex_position() below), which is the pole the exact resonance is.
  * Width (FWHM): Gamma = (s / 2 pi) T(theta) with the barrier penetration integral
  *   theta = integral_{r2}^{r3} sqrt((V_J - E)/eps) dr,
  * the spacing s = pi/(dI/dE - dphi/dE / 2) (phi the parabolic-barrier phase; s = dE/dv = pi/(dI/dE) with
