@@ -544,15 +544,26 @@ static PyObject *py_wkb_levels(PyObject *self, PyObject *args, PyObject *kwds)
     const double *rot = PyArray_DATA(rot_arr);
     double *vD = PyArray_DATA(vD_arr);
     npy_intp *count = PyArray_DATA(count_arr);
+    /* levels asked for by number: below v_end (the matched rule then skips its threshold work when
+       they all lie deep in the well; v_th is NaN and the caller computes it when asked) */
+    size_t v_end = 0;
+    if (v_arr) {
+        const int *vv = PyArray_DATA(v_arr);
+        for (npy_intp i = 0; i < PyArray_SIZE(v_arr); i++)
+            if ((size_t)vv[i] + 1 > v_end)
+                v_end = (size_t)vv[i] + 1;
+    }
     /* first pass: the number of levels of each well */
     Py_BEGIN_ALLOW_THREADS
     for (npy_intp k = 0; k < n_rot && !status; k++) {
         size_t c = 0;
         status = wkb_well_set(wells[k], &pot, mu, rot[k], maslov_in, maslov_out, &err);
         if (!status)
+            wkb_well_request_below(wells[k], v_end);
+        if (!status)
             status = wkb_level_count(wells[k], &c, &vD[k], &err);
         ((double *)PyArray_DATA(vth_arr))[k] = NAN;
-        if (!status && ends == WKB_ENDS_MATCHED)
+        if (!status && ends == WKB_ENDS_MATCHED && !wkb_threshold_deferred(wells[k]))
             status = wkb_threshold_number(wells[k], (double *)PyArray_DATA(vth_arr) + k, &err);
         count[k] = (npy_intp)c;
         n += v_arr ? (size_t)PyArray_SIZE(v_arr) : c;

@@ -215,6 +215,7 @@ int wkb_well_set(wkb_well *w, const wkb_potential *pot, double mu, double rot, i
     w->vD_status = -1;
     w->v_th_status = -1;
     w->count = 0;
+    w->requested_v_end = 0;
     if (!(isfinite(mu) && mu > 0))
         return wkb_fail(err, WKB_EINVAL, "reduced mass mu=%g is invalid: it must be a finite number > 0 (u)", mu);
     if (!(isfinite(rot) && rot >= 0))

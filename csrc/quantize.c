@@ -65,6 +65,8 @@ static int prepare(wkb_well *w, wkb_error *err)
     w->count_first = w->count;
     w->across = 0;
     w->defect_n = 0;
+    w->threshold_deferred = 0;
+    w->prep_first0_status = w->prep_second0_status = -1;
     /* the matched rule may bind one level more than the first-order rule */
     const size_t want = GSL_MIN(w->count + (w->set.ends == WKB_ENDS_MATCHED ? 2 : 0), CACHE_LIMIT);
     if (want > w->cache_size) {
@@ -96,13 +98,22 @@ static int prepare(wkb_well *w, wkb_error *err)
         int s1 = solve_first_order(w, 0, &l1, NULL, &e2);
         w->set.order = order;
         l2 = l1;
+        int s2 = -1;
         /* a point-wise curve too: the second-order term needs V'' smoother than a cubic spline's */
         if (w->count <= WKB_ACROSS_MAX_LEVELS || w->pot.model == &wkb_model_pointwise ||
-            (!s1 && (second_order_level(w, 0, &l2, NULL, &e2) ||
+            (!s1 && ((s2 = second_order_level(w, 0, &l2, NULL, &e2)) ||
                      (l2.energy - l1.energy) * (l2.energy - l1.energy) / l2.dEdv > WKB_ACROSS_ESTIMATE)))
             w->across = 1;
+        if (s1 == WKB_SUCCESS && s2 == WKB_SUCCESS) { /* kept for a request of v = 0 (solve_level) */
+            w->prep_first0 = l1;
+            w->prep_second0 = l2;
+            w->prep_first0_status = w->prep_second0_status = WKB_SUCCESS;
+        }
     }
-    if (w->set.ends == WKB_ENDS_MATCHED && w->bottom < w->bound_top) {
+    if (w->set.ends == WKB_ENDS_MATCHED && w->bottom < w->bound_top && w->requested_v_end > 0 &&
+        w->requested_v_end + WKB_LAZY_THRESHOLD_MARGIN <= w->count_first) {
+        w->threshold_deferred = 1; /* only deep levels wanted: the first-order count bounds them */
+    } else if (w->set.ends == WKB_ENDS_MATCHED && w->bottom < w->bound_top) {
         /* the matched rule binds the levels below its own threshold number, not below vD */
         double v_th;
         int status = wkb_threshold_number(w, &v_th, &w->vD_err);
@@ -129,6 +140,16 @@ int wkb_level_count(wkb_well *w, size_t *count, double *vD, wkb_error *err)
     if (vD)
         *vD = w->vD;
     return WKB_SUCCESS;
+}
+
+void wkb_well_request_below(wkb_well *w, size_t v_end)
+{
+    w->requested_v_end = v_end;
+}
+
+int wkb_threshold_deferred(const wkb_well *w)
+{
+    return w->threshold_deferred;
 }
 
 int wkb_v_dissociation(wkb_well *w, double *vD, wkb_error *err)
@@ -183,10 +204,18 @@ static int solve_level(wkb_well *w, size_t v, wkb_level *level, double *avg_dVdp
     memset(level, 0, sizeof *level);
     level->status = WKB_ENOCONV;
     if (v < w->count_first) {
-        const int order = w->set.order;
-        w->set.order = 1;
-        int status = solve_first_order(w, v, level, avg_dVdp, err);
-        w->set.order = order;
+        /* level 0 without derivatives: prepare has solved it already, at first order and (where the
+           well is not too quantal) at second order */
+        const int reuse0 = v == 0 && !avg_dVdp && w->prep_first0_status == WKB_SUCCESS;
+        int status = WKB_SUCCESS;
+        if (reuse0) {
+            *level = w->prep_first0;
+        } else {
+            const int order = w->set.order;
+            w->set.order = 1;
+            status = solve_first_order(w, v, level, avg_dVdp, err);
+            w->set.order = order;
+        }
         if (status && status != WKB_ENOCONV)
             return status;
         const int last = v + WKB_ACROSS_LAST >= w->count;
@@ -195,7 +224,14 @@ static int solve_level(wkb_well *w, size_t v, wkb_level *level, double *avg_dVdp
              nonlinearity(w, level->r_outer) <= (last ? WKB_MATCH_NONLINEARITY_LAST : WKB_MATCH_NONLINEARITY))) {
             wkb_level second = *level;
             wkb_error e2;
-            if (second_order_level(w, v, &second, avg_dVdp, &e2) == WKB_SUCCESS &&
+            int s2;
+            if (reuse0 && w->prep_second0_status == WKB_SUCCESS) {
+                second = w->prep_second0;
+                s2 = WKB_SUCCESS;
+            } else {
+                s2 = second_order_level(w, v, &second, avg_dVdp, &e2);
+            }
+            if (s2 == WKB_SUCCESS &&
                 (second.energy - level->energy) * (second.energy - level->energy) / second.dEdv <= WKB_ACROSS_ESTIMATE) {
                 if (second.dEdv > 0)
                     wkb_matched_note_defect(w, v, second.binding, (level->binding - second.binding) / second.dEdv);

@@ -51,6 +51,14 @@ struct wkb_well {
        level (matched.c) */
     double defect_x[WKB_DEFECT_NODES], defect_D[WKB_DEFECT_NODES];
     size_t defect_n, defect_next_v;
+    /* quantize.c: levels v < requested_v_end only (0: any; reset by wkb_well_set); threshold_deferred:
+       prepare skipped the threshold number for that reason */
+    size_t requested_v_end;
+    int threshold_deferred;
+    /* the first- and second-order level v = 0 that prepare solved to judge the well (reused by the
+       first request for v = 0 without parameter derivatives); status of each, -1 when not solved */
+    wkb_level prep_first0, prep_second0;
+    int prep_first0_status, prep_second0_status;
 };
 
 /* orbit.c helpers for matched.c: V_J and its derivatives (depth = D - V_J); the kinetic term

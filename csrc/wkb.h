@@ -327,6 +327,17 @@ int wkb_orbit_at(wkb_well *w, double binding, wkb_orbit *orbit, double *avg_dVdp
 int wkb_v_dissociation(wkb_well *w, double *vD, wkb_error *err);
 /* Number of bound levels (those with v < vD) and vD; either pointer may be NULL. */
 int wkb_level_count(wkb_well *w, size_t *count, double *vD, wkb_error *err);
+/* Announces (after wkb_well_set, before the first level) that only levels v < v_end will be asked for.
+   With matched ends, when they all lie at least WKB_LAZY_THRESHOLD_MARGIN below the first-order count
+   the quantum threshold number is not computed (its three threshold solves cost far more than a deep
+   level): the count is then the first-order one, and wkb_threshold_deferred() says so. v_end = 0: no
+   promise (the default). */
+void wkb_well_request_below(wkb_well *w, size_t v_end);
+int wkb_threshold_deferred(const wkb_well *w);
+/* The margin: the matched count differs from the first-order one by less than one level (v_th within 1
+   of vD: the threshold phase adds at most 1/(n-2) - 1/2 to the count), and the rule of a level depends
+   on the count only for the last WKB_ACROSS_LAST levels; two more levels of safety. */
+#define WKB_LAZY_THRESHOLD_MARGIN (WKB_ACROSS_LAST + 3)
 
 /* Level with quantum number v (0, 1, ...). avg_dVdp as above, may be NULL: it then holds
    dE_v/dp_k, since for first-order WKB dE/dp = <dV/dp> over the orbit. Levels already solved

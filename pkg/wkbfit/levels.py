@@ -25,6 +25,7 @@ _UNITS = {"v": "", "J": "", "energy": "cm-1", "binding_energy": "cm-1", "inner_t
 
 #: the rule behind each level (the `rule` column holds these names)
 RULES = {1: "first-order", 2: "second-order", 3: "matched", 4: "exact-phase", 5: "exact"}
+_RULE_NAMES = np.array([""] + [RULES[k] for k in range(1, 6)], dtype=object)  # indexed by the core's codes
 
 _DESCRIPTIONS = {
     "v": "vibrational quantum number",
@@ -62,6 +63,27 @@ _DESCRIPTIONS.update({
 
 
 _INT, _FLOAT = np.dtype(int), np.dtype(float)
+#: (name, dtype) of every column but rule (object names)
+_COLUMN_TYPES = tuple((c, _INT if c in ("v", "J") else np.dtype(bool) if c in _BOOL_COLUMNS else _FLOAT)
+                      for c in _COLUMNS if c != "rule")
+
+
+@functools.lru_cache(maxsize=64)
+def _default_columns(n, names):
+    """Read-only columns of n rows holding the default of each name (NaN where none), shared by the
+    tables of the same length (rows of one block: a small table's construction is mostly such columns;
+    read-only, and a view of a read-only block cannot be made writable, so sharing them is safe)."""
+    out = []
+    for dtype, group in ((_FLOAT, [c for c in names if c not in _BOOL_COLUMNS and c not in ("v", "J")]),
+                         (np.dtype(bool), [c for c in names if c in _BOOL_COLUMNS]),
+                         (_INT, [c for c in names if c in ("v", "J")])):
+        block = np.empty((len(group), n), dtype=dtype)
+        for i, c in enumerate(group):
+            block[i] = _DEFAULTS.get(c, np.nan) if dtype == _FLOAT else _DEFAULTS.get(c, 0)
+        block.setflags(write=False)
+        out += list(zip(group, block))
+    by_name = dict(out)
+    return tuple(by_name[c] for c in names)
 
 
 class LevelTable:
@@ -75,6 +97,10 @@ class LevelTable:
     def __init__(self, columns, *, mu, method, potential, vD=None, notes=(), v_th=None, method_error=None):
         n = len(columns["v"])
         columns = dict(columns)
+        # absent columns with a constant default (the quasibound ones of a bound table)
+        missing = tuple(c for c in _COLUMNS if c != "rule" and c != "method_error" and columns.get(c) is None)
+        if missing:
+            columns.update(zip(missing, _default_columns(n, missing)))
         if columns.get("rule") is None:
             columns["rule"] = np.full(n, "exact" if method == "exact" else "", dtype=object)
         self._method_error_source = method_error if callable(method_error) else None
@@ -82,29 +108,31 @@ class LevelTable:
             columns["method_error"] = method_error
         elif method_error is None and method == "exact" and columns.get("method_error") is None:
             columns["method_error"] = columns.get("error")
-        for name in _COLUMNS:
+        rule = np.asarray(columns["rule"], dtype=object)  # names of the rules (set above where missing)
+        rule.setflags(write=False)
+        attrs = self.__dict__
+        attrs["rule"] = rule
+        for name, dtype in _COLUMN_TYPES:
             if name == "method_error" and self._method_error_source is not None:
                 continue
             col = columns.get(name)
-            if name == "rule":  # names of the rules (set above where missing)
-                col = np.asarray(col, dtype=object)
-                col.setflags(write=False)
-                self.rule = col
-                continue
             if col is None:
                 col = np.full(n, _DEFAULTS.get(name, np.nan))
-            dtype = _INT if name in ("v", "J") else np.dtype(bool) if name in _BOOL_COLUMNS else _FLOAT
             if type(col) is not np.ndarray or col.dtype != dtype:
                 col = np.asarray(col, dtype=dtype)
             if len(col) != n:
                 raise ValueError("column %s has %d rows, expected %d" % (name, len(col), n))
             col.setflags(write=False)
-            setattr(self, name, col)
+            attrs[name] = col
         self.mu = float(mu)
         self.method = method
         self.potential = potential
         self.vD_by_J = dict(vD or {})
-        self.v_th_by_J = dict(v_th or {})
+        # v_th: a dict by J, or a function of the table giving it, called on first use (a table of deep
+        # levels asked for by v skips the threshold work, the costliest part of a small matched call)
+        self._v_th_source = v_th if callable(v_th) else None
+        if self._v_th_source is None:
+            self.v_th_by_J = dict(v_th or {})
         self.notes = list(notes)
 
     def __getattr__(self, name):
@@ -115,13 +143,19 @@ class LevelTable:
             self.method_error = col
             self._method_error_source = None
             return col
+        if name == "v_th_by_J" and self.__dict__.get("_v_th_source") is not None:
+            self.v_th_by_J = dict(self._v_th_source(self))
+            self._v_th_source = None
+            return self.v_th_by_J
         raise AttributeError(name)
 
     @property
     def v_th(self):
         """Quantum threshold number from the matched rule at the asymptote (levels v < v_th are bound):
         a float for a single-J table, else a dict by J; None where it was not computed (first-order or
-        second-order tables with fixed end phases, exact tables)."""
+        second-order tables with fixed end phases, exact tables) or is not defined (no threshold of bound
+        levels: an inner wall below the asymptote). A matched table of levels asked for by v, all deep in
+        the well, computes it here on first use (the threshold work is most of such a call's cost)."""
         if len(self.v_th_by_J) == 1:
             return next(iter(self.v_th_by_J.values()))
         return dict(self.v_th_by_J) if self.v_th_by_J else None
@@ -201,6 +235,8 @@ def _as_int_list(x, name):
     # the common case first: a list of plain non-negative ints in range needs no NumPy round trip
     if type(x) is list and x and all(type(e) is int and 0 <= e <= _validate.MAX_LEVELS for e in x):
         return list(x)
+    if type(x) is int and 0 <= x <= _validate.MAX_LEVELS:
+        return [x]
     return _validate.integer_list(x, name)
 
 
@@ -267,9 +303,13 @@ def levels(potential, mu, v=None, J=0, method="wkb", *, order=None, ends=None, l
     if not isinstance(potential, Potential):
         raise ValueError("potential must be a wkbfit potential object (Morse, LennardJones, ...), got %r"
                          % (potential,))
-    mu = as_reduced_mass(mu)
-    max_levels = _validate.integer(max_levels, "max_levels", 1, 2 ** 62)
-    max_J_values = _validate.integer(max_J_values, "max_J_values", 1, 2 ** 62)
+    # the common small call (a float mass, default limits) skips the general checks: same outcome
+    lo_mu, hi_mu = _validate.MU_RANGE
+    mu = float(mu) if type(mu) is float and lo_mu <= mu <= hi_mu else as_reduced_mass(mu)
+    if max_levels is not _validate.MAX_LEVELS:
+        max_levels = _validate.integer(max_levels, "max_levels", 1, 2 ** 62)
+    if max_J_values is not _validate.MAX_J_VALUES:
+        max_J_values = _validate.integer(max_J_values, "max_J_values", 1, 2 ** 62)
     if not isinstance(J, (int, np.integer)) and hasattr(J, "__len__"):
         _validate.work_limit(len(J), max_J_values, "J values", "max_J_values", "give fewer J values")
     Js = _as_int_list(J, "J")
@@ -350,7 +390,7 @@ def _wkb_levels(potential, mu, vs, Js, langer, maslov, order=1, ends="maslov", m
             raise
     _check_levels(cols, Js)
     cols["J"] = np.full(len(cols["v"]), Js[0]) if len(Js) == 1 else np.asarray(Js)[cols["rot_index"]]
-    cols["rule"] = np.array([RULES[int(c)] for c in cols.pop("rule")], dtype=object)
+    cols["rule"] = _RULE_NAMES[cols.pop("rule").astype(np.intp)]
     if potential.model == "pointwise" and len(cols["v"]):
         # a piecewise cubic makes the quadrature converge only algebraically: the rule with twice the
         # nodes bounds the error of the reported energies
@@ -363,17 +403,36 @@ def _wkb_levels(potential, mu, vs, Js, langer, maslov, order=1, ends="maslov", m
             diff = np.zeros(len(cols["energy"]))
             diff[:n] = np.abs(fine["energy"][:n] - cols["energy"][:n])
             cols["error"] = cols["error"] + 2 * diff
-    vD = {J: (None if math.isnan(x) else float(x)) for J, x in zip(Js, np.atleast_1d(cols["vD"]))}
+    vD = {J: (None if math.isnan(x) else float(x)) for J, x in zip(Js, np.atleast_1d(cols["vD"]).tolist())}
     v_th = None
     if ends == "matched":
-        v_th = {J: (None if math.isnan(x) else float(x)) for J, x in zip(Js, np.atleast_1d(cols["v_th"]))}
+        v_th = {J: (None if math.isnan(x) else float(x)) for J, x in zip(Js, np.atleast_1d(cols["v_th"]).tolist())}
+        if vs is not None and None in v_th.values():
+            # levels asked for by v, all deep in the well: the core skipped the threshold number (NaN);
+            # it is computed when table.v_th is first asked for (None there too where it is not defined)
+            v_th = functools.partial(_threshold_numbers, potential=potential, mu=mu, rot=rot, Js=Js, known=v_th)
     method = "wkb" if (order == 1 and ends == "maslov") else "wkb2" if ends == "maslov" else "wkb-matched"
     estimate = functools.partial(_method_error, potential=potential, mu=mu, rot=rot, Js=Js, maslov=(m_in, m_out),
                                  langer=langer, order=order, ends=ends, cols=cols)
     table = LevelTable(cols, mu=mu, method=method, potential=potential, vD=vD, v_th=v_th, method_error=estimate,
                        notes=cols.get("notes", ()))
-    check_levels(table)  # levels reaching beyond a point-wise curve's points
+    if potential.model == "pointwise":
+        check_levels(table)  # levels reaching beyond a point-wise curve's points
     return table
+
+
+def _threshold_numbers(table, *, potential, mu, rot, Js, known):
+    """v_th by J for the J whose threshold number the core skipped: one call with no levels asked for."""
+    todo = [k for k, J in enumerate(Js) if known[J] is None]
+    out = dict(known)
+    try:
+        cols = _core_levels(potential, mu, [], [Js[k] for k in todo], [rot[k] for k in todo], 1, 1, 2, "matched")
+    except (RuntimeError, ValueError) as exc:  # the levels stand; only the threshold number is missing
+        table.notes.append("the quantum threshold number v_th could not be computed (%s): it is None" % exc)
+        return out
+    for k, x in zip(todo, np.atleast_1d(cols["v_th"]).tolist()):
+        out[Js[k]] = None if math.isnan(x) else float(x)
+    return out
 
 
 def _fixed_phase_fallback(potential, mu, vs, Js, langer, maslov, order, max_levels, exc):
@@ -520,10 +579,13 @@ def _fixed_method_error(table, out, potential, mu, Js, maslov, langer):
 def _check_levels(cols, Js):
     """Every result finite, and within one J the energies rise strictly with v: a repeated or
     falling energy means an unseen second well or barrier, never a valid answer."""
-    _validate.finite_result({c: cols[c] for c in ("energy", "binding_energy", "inner_turning_point", "Bv",
-                                                    "dEdv", "error")}, "levels")
+    names = ("energy", "binding_energy", "inner_turning_point", "Bv", "dEdv", "error")
+    if not np.isfinite(np.concatenate([cols[c] for c in names])).all():  # one test; the names on failure
+        _validate.finite_result({c: cols[c] for c in names}, "levels")
     rot_index, v, E = cols["rot_index"], cols["v"], cols["energy"]
-    for k in np.unique(rot_index):
+    if len(v) < 2:
+        return
+    for k in (range(1) if len(Js) == 1 else np.unique(rot_index)):
         rows = np.flatnonzero(rot_index == k)
         order = np.argsort(v[rows], kind="stable")
         vk, Ek = v[rows][order], E[rows][order]
