@@ -138,7 +138,7 @@ static double coefficient_tail(const double *f, int N, int stride, double *c)
    well, whose action is linear in w, a short piece), the piece is kept at that degree after 7 orbits;
    where its tail promises no convergence at 16 either (geometric convergence squares the relative error
    when the degree doubles), the piece is refined after 7 orbits instead of 15. */
-static int build_piece(wkb_well *w, double alpha, const node *a, const node *b, double tol, piece *p,
+static int build_piece(wkb_well *w, double alpha, const node *a, const node *b, double tol, int top, piece *p,
                        size_t *n_orbits)
 {
     const int N = INTERP_N, H = INTERP_N / 2;
@@ -180,10 +180,12 @@ static int build_piece(wkb_well *w, double alpha, const node *a, const node *b, 
             p->err_E = tail_I;
             return 0;
         }
-        /* the 8-node screen: hopeless at 16 too */
+        /* the 8-node screen: hopeless at 16 too (for a piece reaching the threshold, unless 16 nodes are
+           predicted to converge: splitting it is cheap there, as its top part goes to the direct solver) */
         const double scale_I = (fabs(cI[0]) + fabs(cI[1])) * max_dEdI, scale_B = fabs(cB[0]) + fabs(cB[1]);
-        if (pass == 0 && (tail_I * tail_I / scale_I > INTERP_HOPELESS * tol ||
-                          tail_B * tail_B / scale_B > INTERP_HOPELESS * INTERP_BV_REL * bmax))
+        const double hopeless = top ? 1 : INTERP_HOPELESS;
+        if (pass == 0 && (tail_I * tail_I / scale_I > hopeless * tol ||
+                          tail_B * tail_B / scale_B > hopeless * INTERP_BV_REL * bmax))
             break;
     }
     p->err_E = INFINITY;
@@ -293,12 +295,12 @@ static int polished_turning_points(const wkb_well *w, double b, wkb_level *L)
 int wkb_interpolant_levels(wkb_well *w, wkb_level *levels, size_t n, size_t *done)
 {
     *done = 0;
-    if (w->set.order != 1 || w->set.ends != WKB_ENDS_MASLOV || w->low_wall || n < INTERP_MIN_LEVELS ||
+    if (w->set.order != 1 || w->set.ends != WKB_ENDS_MASLOV || w->low_wall || n < INTERP_MIN_LEVELS || w->rot != 0 ||
         w->pot.model == &wkb_model_pointwise || w->count_first != w->count || n > w->count)
         return 1;
     const double alpha = w_exponent_of(w), depth = w->top - w->bottom;
     const double tol = INTERP_TOL + 4e-14 * depth, floor_error = 1e-14 * depth;
-    const size_t budget = n; /* orbits: a direct sweep needs one to two per level */
+    const size_t budget = n / 2 + INTERP_N; /* orbits: a direct sweep needs about one per level */
     size_t n_orbits = 0, n_pieces = 0;
 
     /* pieces, ordered by w; a stack of pending intervals (top end first). The levels above I_direct (the
@@ -338,7 +340,8 @@ int wkb_interpolant_levels(wkb_well *w, wkb_level *levels, size_t n, size_t *don
         }
         piece p;
         p.err_E = INFINITY;
-        if (!(top && split_top) && (build_piece(w, alpha, &lo_node, &hi_node, tol, &p, &n_orbits) || n_orbits > budget))
+        if (!(top && split_top) && (n_orbits + INTERP_N > budget ||
+                                    build_piece(w, alpha, &lo_node, &hi_node, tol, top, &p, &n_orbits)))
             DECLINE;
         split_top |= top;
         if (p.err_E <= tol) {
