@@ -1,22 +1,27 @@
 /* action_interpolant.c: all first-order levels of a well from an interpolant of the action.
  *
- * The action I (and the orbit average Bv) is a smooth function of w = b^alpha across the whole well
- * (b the binding energy, alpha as in quantize.c): analytic in E at the bottom, and near threshold a
- * series in w (LeRoy-Bernstein) for a pure -C_n/r^n tail. So 15 orbits at Chebyshev-Lobatto nodes in
- * w give I(w) to rounding, and every level is then a root of a polynomial, I(w_v) = pi (v + phase):
- * a few floating-point operations instead of one or two orbits. Where one series is not enough the
- * interval is bisected, within an orbit budget of a third of the levels.
+ * The action I (and the orbit average Bv) is a smooth function of w = b^alpha across the well (b the
+ * binding energy, alpha as in quantize.c): analytic in E at the bottom, and near threshold a series in
+ * w (LeRoy-Bernstein) for a pure -C_n/r^n tail. So 9 or 17 orbits at Chebyshev-Lobatto nodes in w give
+ * I(w) to rounding on a piece of the well, and every level there is a root of a polynomial,
+ * I(w_v) = pi (v + phase): a few floating-point operations instead of about one orbit.
+ * Pieces: one piece across the whole well is tried over a pure power tail (Lennard-Jones converges).
+ * Where the threshold end is singular (Bv ~ 1/ln^2 b under an exponential tail; MLR and EMO tails
+ * that are not pure powers) the highest piece is split at INTERP_TOP_SPLIT of its w range from the
+ * top, so that the pieces shrink geometrically towards w = 0, until the highest holds at most
+ * INTERP_DIRECT_LEVELS levels: those few are left to the direct solver (quantize.c), which starts
+ * them from the interpolated levels below (about one orbit each). Other pieces that fail are halved.
+ * All within an orbit budget of half the levels (plus one piece); beyond it the run declines.
  *
  * Accuracy (stated: INTERP_TOL + 4e-14 of the depth in energy, Bv to INTERP_BV_REL of its largest
  * value): a piece is accepted when its last two Chebyshev coefficients, turned into energy by the
- * largest dE/dI on the piece, are below that; then the highest and a middle level are checked
- * against direct orbits. The 8-node rule inside the 16-node one screens a piece first: where even 16
- * nodes cannot converge (an exponential tail makes Bv logarithmic near threshold; MLR and EMO tails
- * are not pure powers), it gives up after 7 orbits. Anything that fails declines, and the caller
- * solves the levels directly: rotating wells (the barrier top just above the asymptote is a
- * singularity close to w = 0) and wells of fewer than INTERP_MIN_LEVELS levels are not tried.
- * Turning points come from the potential at each level's energy (Newton from the previous level's),
- * not from the interpolant (they have a square-root end at the bottom).
+ * largest dE/dI on the piece, are below that, first with the 8-interval rule (its even nodes), else
+ * with the 16-interval one; then the highest and a middle interpolated level are checked against
+ * direct orbits. Where the 8-interval tail promises no convergence at 16 either, the piece is split
+ * after 7 orbits. Anything that fails declines, and the caller solves the levels directly: rotating
+ * wells, point-wise curves and wells of fewer than INTERP_MIN_LEVELS levels are not tried.
+ * Turning points come from the potential at each level's energy (Newton from their extrapolation
+ * over the levels below), not from the interpolant (they have a square-root end at the bottom).
  * [Chebyshev-Lobatto interpolation and the coefficient-tail test: L. N. Trefethen, Approximation
  * Theory and Approximation Practice (SIAM 2013), chapters 3 and 8, from memory.]
  */
@@ -31,19 +36,11 @@
 #define INTERP_N 16            /* Lobatto intervals per piece: 17 nodes */
 #define INTERP_MAX_PIECES 24
 #define INTERP_MIN_LEVELS 20   /* below this a direct sweep (one to two orbits a level) is as cheap */
-#ifndef INTERP_TOP_SPLIT
 #define INTERP_TOP_SPLIT 0.33   /* a highest piece is split at this fraction of its w range from the top */
-#endif
 #define INTERP_DIRECT_LEVELS 12 /* a highest piece that fails with at most this many levels: direct */
 #define INTERP_CHECK_FACTOR 5  /* a check may be off by this many tolerances before the run declines */
 #define INTERP_BV_REL 1e-9     /* relative accuracy asked of the Bv series */
 #define INTERP_HOPELESS 1e3    /* the 8-node screen: give up where 16 nodes would still miss by this factor */
-#ifdef INTERP_DEBUG
-#include <stdio.h>
-#define DECLINE do { fprintf(stderr, "declined at line %d (%zu orbits, %zu pieces)\n", __LINE__, n_orbits, n_pieces); return 1; } while (0)
-#else
-#define DECLINE return 1
-#endif
 #define INTERP_TOL 1e-9        /* cm-1, plus the direct solver's 4e-14 of the depth: the stated accuracy */
 
 typedef struct {
@@ -106,14 +103,8 @@ static void derivative_coefficients(const double *c, int N, double *d)
 }
 
 /* an orbit at w as a node; nonzero if the orbit fails */
-#ifdef INTERP_DEBUG
-long interp_debug_orbits;
-#endif
 static int orbit_node(wkb_well *w, double alpha, double wv, node *nd, size_t *n_orbits)
 {
-#ifdef INTERP_DEBUG
-    interp_debug_orbits++;
-#endif
     wkb_orbit o;
     wkb_error e;
     ++*n_orbits;
@@ -168,10 +159,6 @@ static int build_piece(wkb_well *w, double alpha, const node *a, const node *b, 
         double cI[INTERP_N + 1], cB[INTERP_N + 1];
         const double tail_I = coefficient_tail(fI, degree, stride, cI) * max_dEdI;
         const double tail_B = coefficient_tail(fB, degree, stride, cB);
-#ifdef INTERP_DEBUG
-        fprintf(stderr, "  piece w %.4g..%.4g (%.1f levels) deg %d: tail_I %.2e (tol %.1e) tail_B %.2e (want %.1e)\n", a->w, b->w,
-                (a->I - b->I) / M_PI, degree, tail_I, tol, tail_B, INTERP_BV_REL * bmax);
-#endif
         if (tail_I <= tol && tail_B <= INTERP_BV_REL * bmax) { /* converged at this degree */
             p->degree = degree;
             memcpy(p->c, cI, (size_t)(degree + 1) * sizeof(double));
@@ -228,9 +215,7 @@ static double solve_on_piece(const piece *p, double target, double x0, double *d
         x = -1 + 2 * (p->Ia - target) / (p->Ia - p->Ib);
     if (!(x > -1 && x < 1))
         x = 0;
-    int it_used = 0;
     for (int it = 0; it < 50; it++) {
-        it_used = it + 1;
         double F;
         clenshaw_both(p, x, &F, &dF);
         F -= target;
@@ -249,9 +234,6 @@ static double solve_on_piece(const piece *p, double target, double x0, double *d
         if (hi - lo <= 1e-15)
             break;
     }
-#ifdef INTERP_DEBUG
-    fprintf(stderr, "solve target %.6f: %d iterations\n", target, it_used);
-#endif
     *dIdx = dF;
     return x;
 }
@@ -284,7 +266,7 @@ static int polished_turning_points(const wkb_well *w, double b, wkb_level *L)
 {
     const double g1 = 3 * (L[-1].r_inner - L[-2].r_inner) + L[-3].r_inner;
     const double g2 = 3 * (L[-1].r_outer - L[-2].r_outer) + L[-3].r_outer;
-    double r1, r2;
+    double r1 = 0, r2 = 0;
     if (!polish(w, b, g1, 0, w->r_bottom, &r1) || !polish(w, b, g2, w->r_bottom, INFINITY, &r2))
         return 0;
     L->r_inner = r1;
@@ -319,7 +301,7 @@ int wkb_interpolant_levels(wkb_well *w, wkb_level *levels, size_t n, size_t *don
         top_node.Bv = 0;
         top_node.inv_dEdI = 0;
     } else if (orbit_node(w, alpha, pow(w->top - w->bound_top, alpha), &top_node, &n_orbits)) {
-        DECLINE;
+        return 1;
     }
     lo_node = top_node;
     bottom_node(w, alpha, &pending[n_pending++]);
@@ -342,26 +324,26 @@ int wkb_interpolant_levels(wkb_well *w, wkb_level *levels, size_t n, size_t *don
         p.err_E = INFINITY;
         if (!(top && split_top) && (n_orbits + INTERP_N > budget ||
                                     build_piece(w, alpha, &lo_node, &hi_node, tol, top, &p, &n_orbits)))
-            DECLINE;
+            return 1;
         split_top |= top;
         if (p.err_E <= tol) {
             if (n_pieces == INTERP_MAX_PIECES)
-                DECLINE;
+                return 1;
             pieces[n_pieces++] = p;
             lo_node = hi_node;
             n_pending--;
             continue;
         }
         if (n_pending + n_pieces >= INTERP_MAX_PIECES || n_orbits + INTERP_N / 2 > budget)
-            DECLINE; /* another piece would not fit the budget: decline now */
+            return 1; /* another piece would not fit the budget: decline now */
         node mid;
         const double split = top ? INTERP_TOP_SPLIT : 0.5;
         if (orbit_node(w, alpha, lo_node.w + split * (hi_node.w - lo_node.w), &mid, &n_orbits))
-            DECLINE;
+            return 1;
         pending[n_pending++] = mid;
     }
     if (n_pieces == 0)
-        DECLINE;
+        return 1;
     const double I_direct = pieces[0].Ia; /* (the top of the well where no level is direct) */
 
     /* the levels, from the bottom piece up (v = 0 lies on the last piece) */
@@ -379,7 +361,7 @@ int wkb_interpolant_levels(wkb_well *w, wkb_level *levels, size_t n, size_t *don
         }
         const piece *p = &pieces[k];
         if (!(target <= p->Ia && target >= p->Ib))
-            DECLINE;
+            return 1;
         double dIdx;
         const double x = solve_on_piece(p, target, x_guess, &dIdx), half = 0.5 * (p->wb - p->wa);
         const double wv = 0.5 * (p->wa + p->wb) + half * x;
@@ -401,18 +383,18 @@ int wkb_interpolant_levels(wkb_well *w, wkb_level *levels, size_t n, size_t *don
         L->status = WKB_SUCCESS;
         L->rule = WKB_RULE_FIRST;
         if (!(half_period > 0) || !isfinite(L->Bv))
-            DECLINE;
+            return 1;
         wkb_error e;
         if (!(v >= 3 && w->n_ext == 1 && polished_turning_points(w, b, levels + v)) &&
             wkb_well_turning_points(w, b, &L->r_inner, &L->r_outer, &e))
-            DECLINE;
+            return 1;
         w->last_tp[0] = L->r_inner; /* Newton for the next level's turning points starts here */
         w->last_tp[1] = L->r_outer;
         w->have_last_tp = 1;
         m = v + 1;
     }
     if (m < 2)
-        DECLINE;
+        return 1;
 
     /* the check: the highest interpolated and a middle level against direct orbits */
     const size_t checks[2] = {m - 1, m / 2};
@@ -421,10 +403,10 @@ int wkb_interpolant_levels(wkb_well *w, wkb_level *levels, size_t n, size_t *don
         wkb_orbit o;
         wkb_error e;
         if (wkb_orbit_at(w, L->binding, &o, NULL, &e))
-            DECLINE;
+            return 1;
         const double off = fabs(o.action - M_PI * (L->v + w->phase)) / o.half_period;
         if (!(off <= INTERP_CHECK_FACTOR * tol))
-            DECLINE;
+            return 1;
         L->error = GSL_MAX(L->error, off + floor_error);
     }
     /* accepted: the levels become the first guesses and brackets of later single-level calls and of the
