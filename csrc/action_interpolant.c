@@ -11,7 +11,7 @@
  * top, so that the pieces shrink geometrically towards w = 0, until the highest holds at most
  * INTERP_DIRECT_LEVELS levels: those few are left to the direct solver (quantize.c), which starts
  * them from the interpolated levels below (about one orbit each). Other pieces that fail are halved.
- * All within an orbit budget of half the levels (plus one piece); beyond it the run declines.
+ * All within an orbit budget of half the levels; a piece that would exceed it declines the run.
  *
  * Accuracy (stated: INTERP_TOL + 4e-14 of the depth in energy, Bv to INTERP_BV_REL of its largest
  * value): a piece is accepted when its last two Chebyshev coefficients, turned into energy by the
@@ -35,7 +35,7 @@
 
 #define INTERP_N 16            /* Lobatto intervals per piece: 17 nodes */
 #define INTERP_MAX_PIECES 24
-#define INTERP_MIN_LEVELS 20   /* below this a direct sweep (one to two orbits a level) is as cheap */
+#define INTERP_MIN_LEVELS 40   /* below this a direct sweep (about one orbit a level) is as cheap */
 #define INTERP_TOP_SPLIT 0.33   /* a highest piece is split at this fraction of its w range from the top */
 #define INTERP_DIRECT_LEVELS 12 /* a highest piece that fails with at most this many levels: direct */
 #define INTERP_CHECK_FACTOR 5  /* a check may be off by this many tolerances before the run declines */
@@ -282,7 +282,7 @@ int wkb_interpolant_levels(wkb_well *w, wkb_level *levels, size_t n, size_t *don
         return 1;
     const double alpha = w_exponent_of(w), depth = w->top - w->bottom;
     const double tol = INTERP_TOL + 4e-14 * depth, floor_error = 1e-14 * depth;
-    const size_t budget = n / 2 + INTERP_N; /* orbits: a direct sweep needs about one per level */
+    const size_t budget = n / 2; /* orbits: a direct sweep needs about one per level */
     size_t n_orbits = 0, n_pieces = 0;
 
     /* pieces, ordered by w; a stack of pending intervals (top end first). The levels above I_direct (the

@@ -38,7 +38,7 @@ CASES = {
                                                                  np.linspace(1.6, 9.0, 60))), 20.0),
 }
 # wells where the interpolant must be taken (not decline): most of their levels are interpolated
-INTERPOLATED = ("LJ(12,6), 66 levels", "LJ(10,6)", "Morse, 90 levels", "EMO", "Morse, 27 levels")
+INTERPOLATED = ("LJ(12,6), 66 levels", "LJ(10,6)", "Morse, 90 levels", "EMO", "MLR, C3 C4 C6 Douketis damped")
 
 
 def both(pot, mu, J=0):
