@@ -76,15 +76,25 @@ static double clenshaw(const double *c, int n, double x)
 
 /* coefficients of the interpolant through f_k at x_k = cos(pi k/N), k = 0..N (DCT-I); stride: f_k is
    f[k * stride] (stride 2 on the 16-node values gives the 8-node interpolant) */
+/* cos(pi m / INTERP_N), m = 0 .. 2 INTERP_N - 1: the nodes and the DCT-I (computing them each time cost
+   as much as an orbit per piece) */
+static const double cos_table[2 * INTERP_N] = {
+    1.0, 0.9807852804032304, 0.9238795325112867, 0.8314696123025452,
+    0.7071067811865476, 0.5555702330196023, 0.38268343236508984, 0.19509032201612833,
+    6.123233995736766e-17, -0.1950903220161282, -0.3826834323650897, -0.555570233019602,
+    -0.7071067811865475, -0.8314696123025453, -0.9238795325112867, -0.9807852804032304,
+    -1.0, -0.9807852804032304, -0.9238795325112868, -0.8314696123025455,
+    -0.7071067811865477, -0.5555702330196022, -0.38268343236509034, -0.19509032201612866,
+    -1.8369701987210297e-16, 0.1950903220161283, 0.38268343236509, 0.5555702330196018,
+    0.7071067811865474, 0.8314696123025452, 0.9238795325112865, 0.9807852804032303};
+
 static void lobatto_coefficients(const double *f, int N, int stride, double *c)
 {
-    double cs[2 * INTERP_N];
-    for (int m = 0; m < 2 * N; m++)
-        cs[m] = cos(M_PI * m / N);
+    const int scale = INTERP_N / N; /* N = INTERP_N or INTERP_N / 2 */
     for (int j = 0; j <= N; j++) {
         double s = 0;
         for (int k = 0; k <= N; k++) {
-            const double t = f[k * stride] * cs[j * k % (2 * N)];
+            const double t = f[k * stride] * cos_table[(j * k % (2 * N)) * scale];
             s += (k == 0 || k == N) ? 0.5 * t : t;
         }
         c[j] = 2 * s / N;
@@ -141,7 +151,7 @@ static int build_piece(wkb_well *w, double alpha, const node *a, const node *b, 
     p->Ib = b->I;
     for (int pass = 0; pass < 2; pass++) {
         for (int k = pass; k <= N; k += 2) {
-            const double x = cos(M_PI * k / N); /* k = 0: x = 1, the w_b end */
+            const double x = cos_table[k]; /* cos(pi k/N); k = 0: x = 1, the w_b end */
             node nd;
             if (k == 0) {
                 nd = *b;
