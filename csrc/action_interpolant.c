@@ -112,13 +112,23 @@ static void derivative_coefficients(const double *c, int N, double *d)
     d[0] *= 0.5;
 }
 
+/* b = w^(1/alpha), by multiplication for the common exponents (a -C_6/r^6 or an exponential tail) */
+static double binding_of(double wv, double alpha)
+{
+    if (alpha == 0.5)
+        return wv * wv;
+    if (alpha == 1.0 / 3)
+        return wv * wv * wv;
+    return pow(wv, 1 / alpha);
+}
+
 /* an orbit at w as a node; nonzero if the orbit fails */
 static int orbit_node(wkb_well *w, double alpha, double wv, node *nd, size_t *n_orbits)
 {
     wkb_orbit o;
     wkb_error e;
     ++*n_orbits;
-    if (wkb_orbit_at(w, pow(wv, 1 / alpha), &o, NULL, &e))
+    if (wkb_orbit_at(w, binding_of(wv, alpha), &o, NULL, &e))
         return 1;
     nd->w = wv;
     nd->I = o.action;
@@ -380,8 +390,8 @@ int wkb_interpolant_levels(wkb_well *w, wkb_level *levels, size_t n, size_t *don
         x_prev[1] = x_prev[0];
         x_prev[0] = x;
         n_on_piece++;
-        const double b = pow(wv, 1 / alpha), dIdw = dIdx / half;
-        const double half_period = -dIdw * alpha * pow(b, alpha - 1); /* dI/dE = -dI/dw dw/db */
+        const double b = binding_of(wv, alpha), dIdw = dIdx / half;
+        const double half_period = -dIdw * alpha * wv / b; /* dI/dE = -dI/dw dw/db, dw/db = alpha w/b */
         wkb_level *L = &levels[v];
         memset(L, 0, sizeof *L);
         L->v = (double)v;
@@ -401,6 +411,10 @@ int wkb_interpolant_levels(wkb_well *w, wkb_level *levels, size_t n, size_t *don
         w->last_tp[0] = L->r_inner; /* Newton for the next level's turning points starts here */
         w->last_tp[1] = L->r_outer;
         w->have_last_tp = 1;
+        if (v < w->cache_size) { /* w and dw/dI of the level, valid (cache_ok) only once accepted */
+            w->cache_w[v] = wv;
+            w->cache_slope[v] = 1 / dIdw;
+        }
         m = v + 1;
     }
     if (m < 2)
@@ -422,12 +436,8 @@ int wkb_interpolant_levels(wkb_well *w, wkb_level *levels, size_t n, size_t *don
     /* accepted: the levels become the first guesses and brackets of later single-level calls and of the
        direct levels above I_direct (only now, so that a declined run leaves the direct sweep no
        inaccurate brackets) */
-    for (size_t v = 0; v < m && v < w->cache_size; v++) {
-        const double b = levels[v].binding, half_period = M_PI / levels[v].dEdv;
-        w->cache_w[v] = pow(b, alpha);
-        w->cache_slope[v] = -alpha / (half_period * pow(b, 1 - alpha)); /* dw/dI */
+    for (size_t v = 0; v < m && v < w->cache_size; v++)
         w->cache_ok[v] = 1;
-    }
     *done = m;
     return 0;
 }
