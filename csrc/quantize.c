@@ -484,9 +484,10 @@ int wkb_all_levels(wkb_well *w, wkb_level *levels, size_t capacity, size_t *coun
     if (vD)
         *vD = w->vD;
     const size_t n = GSL_MIN(capacity, w->count);
-    if (w->set.order == 1 && w->set.ends == WKB_ENDS_MASLOV && wkb_interpolant_levels(w, levels, n) == 0)
-        return WKB_SUCCESS; /* a few orbits instead of one or two per level (action_interpolant.c) */
-    for (size_t v = 0; v < n; v++)
+    size_t done = 0; /* a few orbits instead of one or two per level (action_interpolant.c) */
+    if (w->set.order == 1 && w->set.ends == WKB_ENDS_MASLOV && wkb_interpolant_levels(w, levels, n, &done))
+        done = 0;
+    for (size_t v = done; v < n; v++)
         if ((status = solve_level(w, v, &levels[v], NULL, err)))
             return status;
     return WKB_SUCCESS;

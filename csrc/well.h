@@ -78,8 +78,9 @@ int wkb_matched_solve(wkb_well *w, size_t v, int across, int second_start, wkb_l
 /* records the defect of level v at binding b (levels solved out of order clear the record) */
 void wkb_matched_note_defect(wkb_well *w, size_t v, double binding, double defect);
 
-/* action_interpolant.c: levels 0..n-1 of a first-order well with fixed phases from an interpolant of the
-   action; 0 when done, nonzero when it declines (the caller then solves the levels directly) */
-int wkb_interpolant_levels(wkb_well *w, wkb_level *levels, size_t n);
+/* action_interpolant.c: levels 0..*done-1 of the n of a first-order well with fixed phases from an
+   interpolant of the action (the caller solves levels *done..n-1 directly, seeded by these); 0 when done,
+   nonzero when it declines (*done = 0: the caller then solves every level directly) */
+int wkb_interpolant_levels(wkb_well *w, wkb_level *levels, size_t n, size_t *done);
 
 #endif

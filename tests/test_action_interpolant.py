@@ -2,7 +2,9 @@
 
 levels(pot, mu, order=1, ends="maslov") without a list of v takes the interpolant path for
 non-rotating wells of >= 40 levels; a list of v always takes the direct per-level solver, which
-is the reference here (its own accuracy: 1e-11 cm-1 + 4e-14 of the depth). The stated accuracy
+is the reference here (its own accuracy: 1e-11 cm-1 + 4e-14 of the depth); the highest few levels
+of a well whose threshold end no series fits (exponential tails, MLR and EMO) are direct levels in
+either path. The stated accuracy
 of the interpolant path: energies within 1e-9 cm-1 + 4e-14 of the depth of the direct levels, and
 the `error` column covers the difference; dE/dv within 1e-6 relative or 1e-7 cm-1 (a derivative of the
 interpolant), Bv within 1e-8 relative or 3e-8 of Bv(v=0). Wells where the interpolant declines (a tail that is not a
@@ -26,7 +28,17 @@ CASES = {
     "EMO": (wkbfit.EMO(De=3000.0, re=3.0, betas=[1.0, 0.1]), 30.0),
     "MLR": (wkbfit.MLR(De=3000.0, re=3.0, C6=2e5, betas=[0.3, 0.1, 0.05]), 30.0),
     "MLR, deep": (wkbfit.MLR(De=12000.0, re=3.0, C6=6e5, betas=[0.2, 0.05]), 40.0),
+    # the benchmark's Morse well (27 levels; H35Cl-like constants, an invented well)
+    "Morse, 27 levels": (wkbfit.Morse(De=2990.946 ** 2 / (4 * 52.8186), re=1.27455,
+                                      a=math.sqrt(52.8186 * 0.979592539 / wkbfit.HBAR2_OVER_2U)), 0.979592539),
+    "MLR, C3 C4 C6 Douketis damped": (wkbfit.MLR(De=5000.0, re=3.2, C6=2e6, C3=3e5, C4=1e5, C8=0.0,
+                                                 betas=[0.2, 0.1], p=5, damping="douketis", s=-2, rho=0.8), 30.0),
+    "point-wise (Morse samples)": (wkbfit.PointwisePotential(np.linspace(1.6, 9.0, 60),
+                                                             wkbfit.Morse(De=9000.0, re=2.5, a=0.9)(
+                                                                 np.linspace(1.6, 9.0, 60))), 20.0),
 }
+# wells where the interpolant must be taken (not decline): most of their levels are interpolated
+INTERPOLATED = ("LJ(12,6), 66 levels", "LJ(10,6)", "Morse, 90 levels", "EMO", "MLR, C3 C4 C6 Douketis damped")
 
 
 def both(pot, mu, J=0):
@@ -39,18 +51,52 @@ def both(pot, mu, J=0):
 def test_all_levels_match_the_direct_solver(name):
     pot, mu = CASES[name]
     fast, direct = both(pot, mu)
-    depth = fast.energy[0] + fast.binding_energy[0] - pot(np.array([pot.params["re"]]))[0]
+    depth = fast.energy[0] + fast.binding_energy[0] - np.min(pot(np.linspace(0.5 * fast.inner_turning_point[0],
+                                                                              fast.outer_turning_point[0], 2001)))
     tol = 1e-9 + 4e-14 * depth
     diff = np.abs(fast.energy - direct.energy)
     assert len(fast) == len(direct) and np.max(diff) <= tol, (name, np.max(diff))
     assert np.all(diff <= fast.error + direct.error + 1e-12)
     assert np.allclose(fast.dEdv, direct.dEdv, rtol=1e-6, atol=1e-7)
-    assert np.allclose(fast.Bv, direct.Bv, rtol=1e-8, atol=3e-8 * direct.Bv[0])
+    # Bv: an interpolated level's against an orbit at its own energy; a direct level's (the highest few
+    # of a well, which the interpolant leaves to the direct solver) is the direct sweep's own, that of
+    # its last orbit, up to one Newton step away from the final energy (1e-5 relative near threshold)
+    model, params, curve = pot._core_args()
+    Bv = wkbfit._core.wkb_orbits(model, params, curve, mu, 0.0, fast.binding_energy)["Bv"]
+    # (those differ from the direct path's in the last Newton step, their seeds being the interpolated
+    # levels: they are held to ten times the direct path's own Bv error)
+    close = np.isclose(fast.Bv, Bv, rtol=1e-8, atol=3e-8 * Bv[0])
+    assert np.all(close | (np.abs(fast.Bv - Bv) <= 10 * np.abs(direct.Bv - Bv))), name
     # the turning points are those of the level's energy: V(r) = E there (the direct sweep reports
     # those of its last orbit, up to one Newton step away from the final energy)
     for col in ("inner_turning_point", "outer_turning_point"):
         r = getattr(fast, col)
         assert np.max(np.abs(pot(r) - fast.energy)) <= 1e-10 * depth, col
+
+@pytest.mark.parametrize("name", INTERPOLATED)
+def test_the_interpolant_is_taken(name):
+    # interpolated levels differ from the direct ones in the last digits; the direct solver's are
+    # bit-identical to themselves. Most levels must come from the interpolant (all but the few highest
+    # next to an exponential or not purely inverse-power threshold, which the direct solver takes).
+    pot, mu = CASES[name]
+    fast, direct = both(pot, mu)
+    differs = (fast.energy != direct.energy) | (fast.dEdv != direct.dEdv) | (fast.Bv != direct.Bv)
+    assert np.count_nonzero(differs) >= len(fast) // 2, name
+
+
+def test_morse_levels_against_the_analytic_formula():
+    # first-order WKB is exact for the Morse potential: E_v - V(re) = we (v + 1/2) - wexe (v + 1/2)^2 with
+    # we = 2 a sqrt(De eps), wexe = a^2 eps, eps = hbar^2/(2 mu) (Morse, Phys. Rev. 34, 57 (1929); the WKB
+    # result is textbook, from memory). Interpolated levels and the direct ones above them alike.
+    for name in ("Morse, 90 levels", "Morse, 27 levels"):
+        pot, mu = CASES[name]
+        t = wkbfit.levels(pot, mu, order=1, ends="maslov")
+        De, a = pot.params["De"], pot.params["a"]
+        eps = wkbfit.HBAR2_OVER_2U / mu
+        x = t.v + 0.5
+        exact = 2 * a * math.sqrt(De * eps) * x - a * a * eps * x * x
+        assert np.max(np.abs(t.energy - pot(np.array([pot.params["re"]]))[0] - exact)) <= 1e-9 + 4e-14 * De, name
+
 
 def test_rotating_and_small_wells_are_the_direct_levels():
     # the interpolant declines (rotation; fewer than 40 levels): the sweep is the direct one
