@@ -56,36 +56,111 @@ class _Infeasible(Exception):
 
 
 def applies(datasets, potential, masses):
-    """True when the data hold widths, or term values (J > 0) above the starting potential's asymptote of
-    levels that are quasibound for it. masses: a callable giving label -> reduced mass (called only when
-    needed). A term value above the start's asymptote alone is no proof: a start too shallow for bound data
-    (which the default fit handles by bringing such levels in) shows the same numbers."""
+    """True when the data hold widths, or positions of levels (J > 0) that are quasibound for the starting
+    potential and that the data put above its asymptote. masses: a callable giving label -> reduced mass
+    (called only when needed).
+
+    Where the data place a level: a term value above the minimum is its position; a term value above the
+    lowest level ('lowest') plus the start's lowest level; a line to (or from) a level the start binds, that
+    level's start term value plus (minus) the wavenumber. A level the data do not place (a line to a free term
+    value, or between two levels the start does not bind) counts when the start holds it quasibound: the
+    ordinary fit could not compute it anyway. A position below the start's asymptote is no sign of a
+    quasibound level: a start too shallow for bound data (which the default fit handles by bringing such
+    levels in, or refuses with the advice to start deeper) shows the same levels."""
     if any(isinstance(d, ObservedWidths) for d in datasets):
         return True
-    above = []
-    for d in datasets:
-        if type(d) is ObservedLevels and len(d) and d.energy_zero == "minimum":
-            try:
-                D = potential.asymptote
-            except (AttributeError, ValueError):
-                return False
-            sel = np.nonzero((np.asarray(d.energy) > D) & (np.asarray(d.J) > 0))[0]
-            above += [(d.isotopologue[i], int(d.v[i]), int(d.J[i])) for i in sel]
-    if not above or isinstance(potential, _potentials.PointwisePotential):
+    if isinstance(potential, _potentials.PointwisePotential):
         return False
+    return bool(quasibound_candidates(datasets, potential, masses))
+
+
+def quasibound_candidates(datasets, potential, masses):
+    """The level keys (isotopologue, v, J) of the data that applies() routes to the quasibound fit."""
+    try:
+        D = float(potential.asymptote)
+    except (AttributeError, ValueError):
+        return []
+    placed, unplaced, line_levels = [], [], set()
+    lowest = [d for d in datasets if type(d) is ObservedLevels and d.energy_zero == "lowest" and len(d)
+              and np.any(np.asarray(d.J) > 0)]
+    E00 = _start_levels(potential, masses, {(label, 0, 0) for d in lowest for label in d.isotopologue}) \
+        if lowest else {}
+    for d in datasets:
+        if type(d) is ObservedLevels and d.energy_zero in ("minimum", "lowest"):
+            for i in np.nonzero(np.asarray(d.J) > 0)[0]:
+                label = d.isotopologue[i]
+                base = 0.0 if d.energy_zero == "minimum" else E00.get((label, 0, 0), math.nan)
+                if float(d.energy[i]) + base > D:
+                    placed.append(((label, int(d.v[i]), int(d.J[i])), None, 0.0, float(d.energy[i]) + base))
+        elif isinstance(d, ObservedLines):
+            for i in range(len(d)):
+                label = d.isotopologue[i]
+                up = (label, int(d.v_upper[i]), int(d.J_upper[i])) if d.upper_state[i] is None else None
+                lo = (label, int(d.v_lower[i]), int(d.J_lower[i])) if d.lower_state[i] is None else None
+                w = float(d.wavenumber[i])
+                for key, other, sign in ((up, lo, 1.0), (lo, up, -1.0)):
+                    if key is not None and key[2] > 0:
+                        line_levels.add(key)
+                        (placed if other is not None else unplaced).append((key, other, sign * w, math.nan))
+    keys = {c[0] for c in placed} | {c[0] for c in unplaced}
+    if not keys:
+        return []
+    found = _start_quasibound(potential, masses, keys)
+    if not found:
+        return []
+    # lines: the start's term values of the other levels (the bound ones; the others give no place)
+    others = {c[1] for c in placed if c[1] is not None and c[0] in found and c[1] not in found}
+    E_other = _start_levels(potential, masses, others) if others else {}
+    out = set()
+    for key, other, shift, value in placed:
+        if key not in found:
+            continue
+        if other is None:
+            if value > D:
+                out.add(key)
+        elif other in found or other not in E_other:
+            out.add(key)  # the line joins two levels the start does not bind: not placed
+        elif E_other[other] + shift > D:
+            out.add(key)
+    out.update(c[0] for c in unplaced if c[0] in found)
+    return sorted(out, key=lambda k: (str(k[0]), k[2], k[1]))
+
+
+def _start_quasibound(potential, masses, keys):
+    """The keys among `keys` that are semiclassical quasibound levels of the potential (one core call per
+    isotopologue over the distinct J)."""
     mu = masses()
     model, params, curve = potential._core_args()
-    for label in {k[0] for k in above}:
-        Js = np.unique([k[2] for k in above if k[0] == label])
+    found = set()
+    for label in {k[0] for k in keys}:
+        Js = np.unique([k[2] for k in keys if k[0] == label])
         try:
             res = _core.quasibound_levels(model, params, curve, float(mu[label]), (Js * (Js + 1.0)).astype(float))
         except ValueError:
             continue
-        found = set(zip(Js[res["rot_index"].astype(int)].tolist(), res["v"].astype(int).tolist())) \
-            if len(res["v"]) else set()
-        if any((k[2], k[1]) in found for k in above if k[0] == label):
-            return True
-    return False
+        if len(res["v"]):
+            have = set(zip(Js[res["rot_index"].astype(int)].tolist(), res["v"].astype(int).tolist()))
+            found.update(k for k in keys if k[0] == label and (k[2], k[1]) in have)
+    return found
+
+
+def _start_levels(potential, masses, keys):
+    """First-order WKB term values of the bound levels among `keys` (key -> cm-1 above the minimum); levels the
+    potential does not bind are left out. Used only to place levels against the asymptote, for which
+    first-order accuracy is ample."""
+    mu = masses()
+    model, params, curve = potential._core_args()
+    out = {}
+    for key in keys:
+        J = float(key[2])
+        try:
+            calc, _ = _core.fit_evaluate(model, params, curve, np.array([key[1]], dtype=np.intc),
+                                         np.array([J * (J + 1)]), np.array([float(mu[key[0]])]), energy_zero=0,
+                                         method=0)
+        except ValueError:
+            continue
+        out[key] = float(calc[0])
+    return out
 
 
 def _level_name(key):
