@@ -85,7 +85,8 @@ def accurate_threshold(potential, mu, rot):
     from .near_dissociation import long_range_tail
     model, params, curve = potential._core_args()
     try:
-        res = _core.wkb_levels(model, params, curve, float(mu), [float(rot)], [0], 1, 1, order=2, ends=1)
+        # no level asked for: a request of deep levels only would let the core skip the threshold
+        res = _core.wkb_levels(model, params, curve, float(mu), [float(rot)], [], 1, 1, order=2, ends=1)
         v_th = float(np.atleast_1d(res["v_th"])[0])
     except (ValueError, RuntimeError):
         return math.nan, math.nan
