@@ -16,23 +16,16 @@ import pytest
 
 import wkbfit
 from wkbfit import _core
+from test_matched import _models as matched_models
 
 
 def _models():
-    r = np.linspace(1.2, 12.0, 120)
-    morse = wkbfit.Morse(De=5000.0, re=2.0, a=1.5)
-    lj_r = np.geomspace(1.9, 20.0, 300)
-    lj = wkbfit.LennardJones(De=3000.0, re=2.5)
-    return {
-        "Morse": (morse, 10.0),
-        "Lennard-Jones": (lj, 5.0),
-        "LJ(6,3) C3": (wkbfit.LennardJones(De=2000.0, re=2.5, n=6, m=3), 10.0),
-        "EMO": (wkbfit.EMO(De=5000.0, re=2.0, betas=[1.5, 0.1]), 10.0),
-        "MLR": (wkbfit.MLR(De=5000.0, re=4.0, C6=1.0e7, C8=3.0e8, betas=[-0.4, 0.2]), 30.0),
-        "LJ light (exact phase across the well)": (wkbfit.LennardJones(De=10000.0, re=1.2), 0.5),
-        "point-wise Morse": (wkbfit.PointwisePotential(r, morse(r), asymptote=5000.0), 10.0),
-        "point-wise LJ": (wkbfit.PointwisePotential(lj_r, lj(lj_r), asymptote=3000.0, tail_power=6), 5.0),
-    }
+    # the wells of the method-error tests (tests/test_matched.py) plus a C3-tail and a light well
+    models = matched_models()
+    del models["Poeschl-Teller"]  # its inner wall tops out below the asymptote: no full table to compare with
+    models["LJ(6,3) C3"] = (wkbfit.LennardJones(De=2000.0, re=2.5, n=6, m=3), 10.0)
+    models["LJ light (exact phase across the well)"] = (wkbfit.LennardJones(De=10000.0, re=1.2), 0.5)
+    return models
 
 
 MODELS = _models()
