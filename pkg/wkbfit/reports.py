@@ -127,11 +127,13 @@ def _levels_table(result, obs, start, factor, title=None):
         "isotopologue", "v", "J", "observed", "sigma", "calculated", "obs-calc", "/sigma"))
     lines.append("  %-12s %4s %4s %16s %10s %16s %12s %9s" % (
         "", "-", "-", "[cm-1]", "[cm-1]", "[cm-1]", "[cm-1]", "-"))
+    quasibound = _quasibound_rows(result)
     for i in range(len(obs)):
         if not fitted[i]:
             flag = "  zero of the data (not fitted)"
         else:
             flag = "  <<" if abs(nr[i]) > _LARGE_RESIDUAL else ""
+        flag += QUASIBOUND_MARK if start + i in quasibound else ""
         lines.append("  %-12s %4d %4d %16.6f %10.4g %16.6f %12.6f %9.3f%s" % (
             obs.isotopologue[i] or "-", obs.v[i], obs.J[i], obs.energy[i] / factor, obs.uncertainty[i] / factor,
             result.calculated[start + i] / factor, result.residuals[start + i] / factor, nr[i], flag))
@@ -166,14 +168,38 @@ def quasibound_lines(result):
     lines = ["Quasibound levels of the fitted potential (above the asymptote, behind the centrifugal barrier), cm-1"]
     if getattr(result, "quasibound_note", ""):
         lines.append("  " + result.quasibound_note)
-    lines.append("  %-12s %4s %4s %16s %12s %14s %10s %14s %12s %8s" % (
-        "isotopologue", "v", "J", "energy", "above D", "width", "width err", "semicl. width", "semicl. dE", "theta"))
+    if q.get("rows") is not None:
+        lines.append("  the residual tables mark the data rows that use these levels '%s'" % QUASIBOUND_MARK.strip())
+    rows = q.get("rows")  # results saved before the rows were named have none
+    blocks = getattr(result, "blocks", None) or []
+    lines.append("  %-12s %4s %4s %16s %12s %14s %10s %14s %12s %8s%s" % (
+        "isotopologue", "v", "J", "energy", "above D", "width", "width err", "semicl. width", "semicl. dE", "theta",
+        "  data rows (%s)" % ("set/row" if len(blocks) > 1 else "row") if rows is not None else ""))
     for k in range(len(q["v"])):
-        lines.append("  %-12s %4d %4d %16.6f %12.6f %14.6g %10.2g %14.6g %12.3g %8.3f" % (
+        lines.append("  %-12s %4d %4d %16.6f %12.6f %14.6g %10.2g %14.6g %12.3g %8.3f%s" % (
             q["isotopologue"][k] or "-", q["v"][k], q["J"][k], q["energy"][k], q["above_asymptote"][k],
             q["width"][k], q["width_error"][k], q["semiclassical_width"][k],
-            q["semiclassical_energy"][k] - q["energy"][k], q["theta"][k]))
+            q["semiclassical_energy"][k] - q["energy"][k], q["theta"][k],
+            "  " + ", ".join(_row_label(blocks, g) for g in rows[k]) if rows is not None else ""))
     return lines
+
+
+def _row_label(blocks, g):
+    """'set/row' (1-based) of the row g over all data sets; 'row' alone for one data set."""
+    for k, block in enumerate(blocks):
+        if block.start <= g < block.start + len(block.data):
+            return "%d" % (g - block.start + 1) if len(blocks) == 1 else "%d/%d" % (k + 1, g - block.start + 1)
+    return "%d" % (g + 1)
+
+
+def _quasibound_rows(result):
+    """The rows (over all data sets) that use a quasibound level of the fit."""
+    q = getattr(result, "quasibound_levels", None) or {}
+    return {int(g) for rows in q.get("rows") or () for g in rows}
+
+
+#: the mark of a residual-table row that uses a quasibound level
+QUASIBOUND_MARK = "  quasibound"
 
 
 def _lines_table(result, data, start, title):
@@ -186,13 +212,15 @@ def _lines_table(result, data, start, title):
         title, data.unit, _LARGE_RESIDUAL, n_large, "" if n_large == 1 else "s"))
     lines.append("  %-12s %-22s %-22s %16s %10s %16s %12s %9s" % (
         "isotopologue", "upper", "lower", "observed", "sigma", "calculated", "obs-calc", "/sigma"))
+    quasibound = _quasibound_rows(result)
     for i in range(len(data)):
         up = "%s v=%d J=%d" % (data.upper_state[i] or "", data.v_upper[i], data.J_upper[i])
         lo = "%s v=%d J=%d" % (data.lower_state[i] or "", data.v_lower[i], data.J_lower[i])
         lines.append("  %-12s %-22s %-22s %16.6f %10.4g %16.6f %12.6f %9.3f%s" % (
             data.isotopologue[i] or "-", up.strip(), lo.strip(), data.wavenumber[i] / factor,
             data.uncertainty[i] / factor, result.calculated[start + i] / factor,
-            result.residuals[start + i] / factor, nr[i], "  <<" if abs(nr[i]) > _LARGE_RESIDUAL else ""))
+            result.residuals[start + i] / factor, nr[i], ("  <<" if abs(nr[i]) > _LARGE_RESIDUAL else "") +
+            (QUASIBOUND_MARK if start + i in quasibound else "")))
     if getattr(data, "default_uncertainty", None) is not None:
         lines.append("  (uncertainties: the default %.4g cm-1 given to every row, not measured)" %
                      data.default_uncertainty)

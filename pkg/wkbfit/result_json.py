@@ -259,6 +259,10 @@ def _fit_result_from_checked_dict(cls, data):
     if qb is not None:
         if not (isinstance(qb, dict) and all(isinstance(x, list) for x in qb.values())):
             raise ValueError("quasibound_levels must be a dict of columns (lists)")
+        n_rows = len(result.residuals)
+        if "rows" in qb and not all(isinstance(r, list) and all(
+                isinstance(g, int) and not isinstance(g, bool) and 0 <= g < n_rows for g in r) for r in qb["rows"]):
+            raise ValueError("quasibound_levels['rows'] must hold lists of data row indices (0 to %d)" % (n_rows - 1))
         result.quasibound_levels = qb
         result.quasibound_note = str(data.get("quasibound_note", ""))
     if isinstance(result.refreshes, bool) or not isinstance(result.refreshes, int) or result.refreshes < 0:

@@ -1,8 +1,10 @@
 """Fits with quasibound levels: their positions and widths (FWHM) beside the ordinary data.
 
-`fitting.fit` hands a fit here when the data hold widths (read_widths) or term values (J > 0)
-above the starting potential's asymptote of levels that are quasibound for it (trapped behind the
-centrifugal barrier). One least-squares problem holds every row:
+`fitting.fit` hands a fit here when the data hold widths (read_widths), or positions of levels (J > 0)
+that are quasibound for the starting potential (trapped behind the centrifugal barrier) and that the
+data put above its asymptote: term values (energy zero 'minimum' or 'lowest') or line positions to or
+from such levels (see `applies`). Without widths the quasibound levels are fitted by their positions
+only. One least-squares problem holds every row:
 
   * ordinary rows are, as in design.py, linear combinations of distinct levels (plus free term
     values and fitted asymptotes, here ordinary fit variables); a width row is the FWHM of one level;
@@ -13,10 +15,9 @@ centrifugal barrier). One least-squares problem holds every row:
     bound levels, and an exact resonance costs ~20-60 ms, so the loop's own cost is negligible
     beside the levels.
 
-Level methods: "exact" (and the default "corrected", which covers only term values of bound
-levels) uses exact bound levels and the exact complex-energy poles (resonance.c) for quasibound
-levels; "wkb" uses first-order WKB bound levels and the semiclassical quasibound rule (positions
-by the inner-well rule, widths (s/2pi) ln(1 + exp(-2 theta))). Semiclassical widths are off by
+Level methods: "exact" (and the default "corrected", which covers only bound levels) uses exact
+bound levels and the exact complex-energy poles (resonance.c) for quasibound levels; "wkb" uses first-order WKB bound levels and the semiclassical
+quasibound rule (positions by the inner-well rule, widths (s/2pi) ln(1 + exp(-2 theta))). Semiclassical widths are off by
 ~1-3 % where theta >= 1 (tests/test_quasibound.py), more than a tenth of a typical measured width
 uncertainty, which is why exact poles are the default. After the fit every row's method error
 (the exact solver's estimate, or |semiclassical - exact| for "wkb") is compared with its
@@ -514,7 +515,7 @@ def fit_with_quasibound(potential, datasets, masses, *, method, vary_flags, lowe
     engine_note = None
     if method == "corrected":
         method = "exact"
-        engine_note = ("the corrected method covers bound term values only; these data (quasibound positions or "
+        engine_note = ("the corrected method covers bound levels only; these data (quasibound positions or "
                        "widths) were fitted with exact levels and exact resonance poles in every iteration")
     names = list(potential.param_names)
     ordinary = [d for d in datasets if not isinstance(d, ObservedWidths)]
@@ -718,9 +719,29 @@ def _attach_quasibound(result, model, out, design, width_rows):
             "semiclassical_energy": (semi["energy"][idx] if semi is not None else np.zeros(0)).tolist(),
             "semiclassical_width": (semi["width"][idx] if semi is not None else np.zeros(0)).tolist(),
             "theta": (semi["theta"][idx] if semi is not None else np.zeros(0)).tolist(),
-            "above_asymptote": (E[idx] - result.potential.asymptote).tolist()}
+            "above_asymptote": (E[idx] - result.potential.asymptote).tolist(),
+            "rows": _rows_of_levels(model, design, idx)}
     result.quasibound_levels = cols
+    if not width_rows and len(idx):
+        note += "; no widths given: the quasibound levels are fitted by their positions only"
     result.quasibound_note = note
+
+
+def _rows_of_levels(model, design, idx):
+    """For each level in idx, the data rows (indices in the user's order, over all data sets) that use it."""
+    user_row = np.full(model.n_rows, -1)
+    for block in design.blocks:
+        sel = np.nonzero(block.rows >= 0)[0]
+        user_row[block.rows[sel]] = block.start + sel
+    r, n = model.rows, model.n_design
+    out = []
+    for i in idx:
+        used = np.zeros(model.n_rows, dtype=bool)
+        if n:
+            used[:n] = (r["level_a"] == i) | (r["level_b"] == i)
+        used[n:] = model.width_level == i
+        out.append(sorted(int(x) for x in user_row[used]))
+    return out
 
 
 def _row_name(design, row):
