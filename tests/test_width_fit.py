@@ -266,3 +266,56 @@ def test_lines_from_quasibound_levels_with_their_widths():
         assert abs(p.value - TRUE.params[n]) < 3 * p.uncertainty, (n, p.value, p.uncertainty)
     assert sorted(r.quasibound_levels["J"]) == [30, 35, 40]
     assert "line positions" in r.report() and "widths" in r.report()
+
+
+def _lines_and_lowest_terms(seed=8):
+    """Exact-solver data of the module's scenario without widths: 'lowest' term values (J = 0, v = 0-3 and the
+    quasibound levels at J = 30, 35, 40) and lines from each quasibound level to the two lowest levels of J - 1."""
+    rng = np.random.default_rng(seed)
+    s = SIGMA_POSITION
+    lines = {"v_upper": [], "J_upper": [], "v_lower": [], "J_lower": [], "wavenumber": []}
+    bound = wkbfit.levels(TRUE, MU, J=0, method="exact")
+    e00 = bound.energy[0]
+    terms = {"v": list(range(4)), "J": [0] * 4,
+             "energy": [bound.energy[v] - e00 + (rng.normal(0, s) if v else 0.0) for v in range(4)]}
+    for J in (30, 35, 40):
+        t = wkbfit.levels(TRUE, MU, J=J, method="exact", quasibound=True)
+        low = wkbfit.levels(TRUE, MU, J=J - 1, method="exact")
+        for i in np.nonzero(np.asarray(t.quasibound, bool))[0]:
+            if not 1e-8 < t.width[i] < 1.0:
+                continue
+            terms["v"].append(int(t.v[i]))
+            terms["J"].append(J)
+            terms["energy"].append(t.energy[i] - e00 + rng.normal(0, s))
+            for k in range(2):
+                lines["v_upper"].append(int(t.v[i]))
+                lines["J_upper"].append(J)
+                lines["v_lower"].append(int(low.v[k]))
+                lines["J_lower"].append(J - 1)
+                lines["wavenumber"].append(float(t.energy[i] - low.energy[k]) + rng.normal(0, s))
+    lines["uncertainty"] = [s] * len(lines["v_upper"])
+    terms["uncertainty"] = [s] * len(terms["v"])
+    return wkbfit.read_lines(lines), read_levels(terms, energy_zero="lowest")
+
+
+@pytest.mark.parametrize("which", ["lines", "lowest"])
+def test_lines_and_lowest_term_values_without_widths_reach_the_quasibound_fit(which):
+    # Without widths, lines to quasibound levels and term values measured from the lowest level used to be
+    # refused with advice that could not help ('start from a deeper well' / 'give it so'); they are fitted by
+    # their positions, recover the truth within 3 sigma (common practice), and the report names the rows.
+    lines, terms = _lines_and_lowest_terms()
+    data = lines if which == "lines" else terms
+    start = START.with_params(n=12.0, m=6.0)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", FitWarning)
+        r = fit(start, [data], mu=MU, vary=["De", "re"])
+    assert r.status == "converged"
+    assert r.quasibound_levels["J"] and set(r.quasibound_levels["J"]) <= {30, 35, 40}
+    assert all(len(rows) >= 1 for rows in r.quasibound_levels["rows"])  # each level names the data rows using it
+    for name in ("De", "re"):
+        p = r.params[name]
+        assert abs(p.value - TRUE.params[name]) < 3 * p.uncertainty, name
+    report = r.report()
+    assert "quasibound" in report and "positions only" in report
+    back = wkbfit.FitResult.load_json(r.to_json())
+    assert back.report() == report
