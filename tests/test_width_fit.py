@@ -234,6 +234,27 @@ def test_a_width_of_a_bound_level_or_a_negative_width_is_refused(data):
         fit(START, [lev, ok], mu=MU, omega=1)
 
 
+def _resonances(Js=(30, 35, 40)):
+    """(J, v, energy, width, exact levels of J - 1) of each quasibound level of TRUE (exact poles) whose width
+    is resolvable (1e-8 to 1 cm-1)."""
+    for J in Js:
+        t = wkbfit.levels(TRUE, MU, J=J, method="exact", quasibound=True)
+        low = wkbfit.levels(TRUE, MU, J=J - 1, method="exact")
+        for i in np.nonzero(np.asarray(t.quasibound, bool))[0]:
+            if 1e-8 < t.width[i] < 1.0:
+                yield J, int(t.v[i]), float(t.energy[i]), float(t.width[i]), low
+
+
+def _add_lines(lines, J, v, energy, low, rng):
+    """Lines from the quasibound level (v, J) down to the two lowest levels of J - 1, with noise."""
+    for k in range(min(2, len(low))):
+        lines["v_upper"].append(v)
+        lines["J_upper"].append(J)
+        lines["v_lower"].append(int(low.v[k]))
+        lines["J_lower"].append(J - 1)
+        lines["wavenumber"].append(energy - float(low.energy[k]) + rng.normal(0, SIGMA_POSITION))
+
+
 def test_lines_from_quasibound_levels_with_their_widths():
     # line positions from the quasibound levels down to bound levels J-1 (exact levels and poles of the true
     # curve, noise 0.05 cm-1), with the widths: the same machinery (a line is E[upper] - E[lower], the upper
@@ -241,21 +262,11 @@ def test_lines_from_quasibound_levels_with_their_widths():
     rng = np.random.default_rng(8)
     lines = {"v_upper": [], "J_upper": [], "v_lower": [], "J_lower": [], "wavenumber": []}
     wid = {"v": [], "J": [], "width": []}
-    for J in (30, 35, 40):
-        t = wkbfit.levels(TRUE, MU, J=J, method="exact", quasibound=True)
-        low = wkbfit.levels(TRUE, MU, J=J - 1, method="exact")
-        for i in np.nonzero(np.asarray(t.quasibound, bool))[0]:
-            if not 1e-8 < t.width[i] < 1.0:
-                continue
-            for k in range(min(2, len(low))):
-                lines["v_upper"].append(int(t.v[i]))
-                lines["J_upper"].append(J)
-                lines["v_lower"].append(int(low.v[k]))
-                lines["J_lower"].append(J - 1)
-                lines["wavenumber"].append(float(t.energy[i] - low.energy[k]) + rng.normal(0, SIGMA_POSITION))
-            wid["v"].append(int(t.v[i]))
-            wid["J"].append(J)
-            wid["width"].append(float(t.width[i]) * (1 + WIDTH_FRACTION * rng.normal()))
+    for J, v, energy, width, low in _resonances():
+        _add_lines(lines, J, v, energy, low, rng)
+        wid["v"].append(v)
+        wid["J"].append(J)
+        wid["width"].append(width * (1 + WIDTH_FRACTION * rng.normal()))
     lines["uncertainty"] = [SIGMA_POSITION] * len(lines["v_upper"])
     wid["uncertainty"] = [WIDTH_FRACTION * x for x in wid["width"]]
     start = START.with_params(n=12.0, m=6.0)  # the exponents fixed at their true values
@@ -278,21 +289,11 @@ def _lines_and_lowest_terms(seed=8):
     e00 = bound.energy[0]
     terms = {"v": list(range(4)), "J": [0] * 4,
              "energy": [bound.energy[v] - e00 + (rng.normal(0, s) if v else 0.0) for v in range(4)]}
-    for J in (30, 35, 40):
-        t = wkbfit.levels(TRUE, MU, J=J, method="exact", quasibound=True)
-        low = wkbfit.levels(TRUE, MU, J=J - 1, method="exact")
-        for i in np.nonzero(np.asarray(t.quasibound, bool))[0]:
-            if not 1e-8 < t.width[i] < 1.0:
-                continue
-            terms["v"].append(int(t.v[i]))
-            terms["J"].append(J)
-            terms["energy"].append(t.energy[i] - e00 + rng.normal(0, s))
-            for k in range(2):
-                lines["v_upper"].append(int(t.v[i]))
-                lines["J_upper"].append(J)
-                lines["v_lower"].append(int(low.v[k]))
-                lines["J_lower"].append(J - 1)
-                lines["wavenumber"].append(float(t.energy[i] - low.energy[k]) + rng.normal(0, s))
+    for J, v, energy, _, low in _resonances():
+        terms["v"].append(v)
+        terms["J"].append(J)
+        terms["energy"].append(energy - e00 + rng.normal(0, s))
+        _add_lines(lines, J, v, energy, low, rng)
     lines["uncertainty"] = [s] * len(lines["v_upper"])
     terms["uncertainty"] = [s] * len(terms["v"])
     return wkbfit.read_lines(lines), read_levels(terms, energy_zero="lowest")
