@@ -16,10 +16,10 @@ only. One least-squares problem holds every row:
     beside the levels.
 
 Level methods: "exact" (and the default "corrected", which covers only bound levels) uses exact
-bound levels and the exact complex-energy poles (resonance.c) for quasibound levels; "wkb" uses first-order WKB bound levels and the semiclassical
-quasibound rule (positions by the inner-well rule, widths (s/2pi) ln(1 + exp(-2 theta))). Semiclassical widths are off by
-~1-3 % where theta >= 1 (tests/test_quasibound.py), more than a tenth of a typical measured width
-uncertainty, which is why exact poles are the default. After the fit every row's method error
+bound levels and the exact complex-energy poles (resonance.c) for quasibound levels; "wkb" uses
+first-order WKB bound levels and the semiclassical quasibound rule (positions by the inner-well rule,
+widths (s/2pi) ln(1 + exp(-2 theta))). Semiclassical widths are off by ~1-3 % where theta >= 1
+(tests/test_quasibound.py), more than a tenth of a typical measured width uncertainty, which is why exact poles are the default. After the fit every row's method error
 (the exact solver's estimate, or |semiclassical - exact| for "wkb") is compared with its
 uncertainty, as method_error.py does for levels, and rows above 0.1 sigma are named in a warning.
 
@@ -151,16 +151,24 @@ def _start_levels(potential, masses, keys):
     first-order accuracy is ample."""
     mu = masses()
     model, params, curve = potential._core_args()
+    keys = list(keys)
+
+    def evaluate(batch):
+        rot = np.array([k[2] * (k[2] + 1.0) for k in batch])
+        calc, _ = _core.fit_evaluate(model, params, curve, np.array([k[1] for k in batch], dtype=np.intc), rot,
+                                     np.array([float(mu[k[0]]) for k in batch]), energy_zero=0, method=0)
+        return dict(zip(batch, np.asarray(calc, dtype=float).tolist()))
+
+    try:  # one core call; level by level only when some level is not bound
+        return evaluate(keys)
+    except ValueError:
+        pass
     out = {}
     for key in keys:
-        J = float(key[2])
         try:
-            calc, _ = _core.fit_evaluate(model, params, curve, np.array([key[1]], dtype=np.intc),
-                                         np.array([J * (J + 1)]), np.array([float(mu[key[0]])]), energy_zero=0,
-                                         method=0)
+            out.update(evaluate([key]))
         except ValueError:
             continue
-        out[key] = float(calc[0])
     return out
 
 
