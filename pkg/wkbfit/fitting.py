@@ -500,8 +500,8 @@ def _quasibound_note(potential, mu, v, J):
     k = int(hit[0])
     return ("v=%d, J=%d is a quasibound level of the starting potential (%.4f cm-1 above the asymptote, behind "
             "the barrier of V + J(J+1) hbar^2/(2 mu r^2), whose top lies %.4f cm-1 above it; width %.3g cm-1): a fit "
-            "treats a level as quasibound when the data put it above the asymptote (a term value above it, or a "
-            "negative binding energy) or give its width (read_widths); give it so, or leave it out "
+            "treats a level as quasibound when the data give its width (read_widths), put it above the asymptote "
+            "(a term value above it), or reach it by a line (read_lines); give it so, or leave it out "
             "(levels(..., quasibound=True) computes positions and widths)" % (v, J, -cols["binding_energy"][k], barriers[int(J)]["height"], cols["width"][k]))
 
 
