@@ -288,9 +288,13 @@ def levels(potential, mu, v=None, J=0, method="wkb", *, order=None, ends=None, l
        V + J(J+1) hbar^2/(2 mu r^2) (columns quasibound, width, theta, lifetime; see wkbfit.quasibound).
        With method="exact" these are exact resonance poles with error estimates (error, width_error).
     quasibound_rule: position rule of semiclassical quasibound levels (wkbfit.quasibound.RULES); None
-       is "second_order_barrier" (second order plus the barrier-phase remainder, the best on test) whatever
-       `order` the bound levels use; "first_order" and "second_order" are the plain rules.
-    width_form: "uniform" (ln(1 + exp(-2 theta)), default) or "kemble" (1/(1 + exp(2 theta))).
+       is "barrier_matched" (levels with theta < 8: the pole of the radial equation integrated exactly
+       through the barrier and joined beyond it to an outgoing second-order WKB wave, position and width;
+       the others: "second_order_barrier", second order plus the barrier-phase remainder) whatever `order`
+       the bound levels use; "first_order" and "second_order" are the plain rules. The `rule` column
+       names the one behind each row.
+    width_form: "uniform" (ln(1 + exp(-2 theta)), default) or "kemble" (1/(1 + exp(2 theta))), for the
+       widths the barrier-penetration formula gives (not those of barrier-matched rows).
 
     The table's `method_error` column estimates |E - E_exact| of the rule used for each level, `rule`
     names that rule, `vD` is the first-order quantum number at dissociation and `v_th` (matched ends)
