@@ -23,6 +23,13 @@
  * change when R is moved inwards (the outer matching error).
  * Riccati-Hankel functions by upward recurrence h_{l+1} = (2l+1)/z h_l - h_{l-1} (stable for the
  * dominant outgoing solution), h_0 = -i e^{iz}, h_1 = -(1 + i/z) e^{iz} (DLMF 10.47, 10.49).
+ *
+ * The barrier-matched rule (wkb_res_barrier_matched, quasibound.c's position for broad levels) is the same
+ * shooting with the outer end moved in to R = r3 + a few A (r3 the outer turning point beyond the barrier)
+ * and the Hankel wave replaced by the second-order outgoing WKB wave there: the difficult part (the well
+ * and the barrier, where the semiclassical rule has a ~1e-4 rad phase error on light wells) is integrated
+ * exactly, the slowly varying outside is WKB. Its error estimate: Richardson as above and the change when
+ * joined at half the distance beyond r3.
  */
 #include <complex.h>
 #include <math.h>
