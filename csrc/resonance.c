@@ -326,6 +326,10 @@ static void pole_result(double complex pole, double complex pole_alt, double com
     /* + the rounding floor of the extended-precision recurrence (measured: widths reproduce to ~1e-18 |E - D|
        across steps and radii) */
     out->width_error = 2 * GSL_MAX(fabs(cimag(err_h)), fabs(cimag(pole - pole_alt))) + 5e-18 * fabs(creal(pole));
+    /* a width below the secant's resolution (it stops at steps of 2e-16 |E - D| in Im E) is rounding: a
+       negative one there (seen at theta >~ 40, true width ~1e-50) says its error is at least |width| */
+    if (out->width < 0 && -out->width < 1e-15 * fabs(creal(pole)))
+        out->width_error = GSL_MAX(out->width_error, -out->width);
     out->r_match = R;
     out->grid_points = n + 1;
     out->iterations = iterations;

@@ -592,3 +592,19 @@ def test_method_error_of_quasibound_levels_is_honest(resonances):
             n = len(bound)
             np.testing.assert_allclose(t.method_error[:n], bound.method_error, rtol=1e-12)
     assert seen >= 8
+
+
+def test_exact_width_at_the_rounding_floor_is_not_refused():
+    # a resonance 6.4 cm-1 above the asymptote behind a thick barrier (the semiclassical width ~1e-55 cm-1):
+    # its pole's width is rounding (a few 1e-16 cm-1) and came out negative beyond 3x its error estimate on
+    # this curve (found by a width fit's finite differences); it is reported with width_error >= |width|
+    re_ = 1.0000095801785671
+    pot = wkbfit.LennardJones(2499.877221739073, re_ + 1e-5 * re_, n=11.997014239400622, m=6.001461852621119)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        t = wkbfit.levels(pot, MU, J=35, method="exact", quasibound=True)
+    sc = wkbfit.levels(pot, MU, J=35, quasibound=True)
+    q = np.nonzero(t.quasibound)[0]
+    k = q[np.argmin(t.energy[q])]
+    assert sc.width[sc.level(t.v[k], 35)] < 1e-40
+    assert abs(t.width[k]) <= t.width_error[k] < 1e-15
