@@ -40,7 +40,9 @@ _DESCRIPTIONS = {
     "method_error": "estimated |E - E_exact| of the rule that produced the level (first order, second order, "
                     "matched, exact), numerical error included",
     "rule": "rule that produced the level: first-order, second-order, matched (exact outer end joined to "
-            "second-order WKB), exact-phase (exact phase across the well) or exact",
+            "second-order WKB), exact-phase (exact phase across the well) or exact; quasibound rows: "
+            "quasibound-barrier-matched (exact through the barrier, joined beyond it to second-order WKB) or "
+            "quasibound-<quasibound_rule>",
 }
 
 # Quasibound levels (levels(..., quasibound=True), quasibound.py). Bound rows: quasibound False, width 0,
