@@ -14,6 +14,11 @@
  * barrier_phase = 0 leaves it out). For theta < 8 the position is the real part of the complex root of
  * that rule with the barrier's decay term (i/4) ln(1 + exp(-2 theta)) added (complex_position; see
  * complex_position() below), which is the pole the exact resonance is.
+ * Barrier-matched (theta < barrier_match_theta, 8 by default): that root seeds the pole of the radial
+ * equation integrated exactly from inside the inner wall through the barrier and joined beyond r3 to the
+ * second-order outgoing WKB wave (wkb_res_barrier_matched in resonance.c), which gives the position, the
+ * width and the error instead: on a light well the inner-well rule has a ~1e-4 rad phase error on the
+ * barrier side (up to 8e-3 cm-1 at theta 1-2), the barrier-matched pole is within 1e-6 cm-1 of the exact one.
  * Width (FWHM): Gamma = (s / 2 pi) T(theta) with the barrier penetration integral
  *   theta = integral_{r2}^{r3} sqrt((V_J - E)/eps) dr,
  * the spacing s = pi/(dI/dE - dphi/dE / 2) (phi the parabolic-barrier phase; s = dE/dv = pi/(dI/dE) with
