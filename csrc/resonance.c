@@ -105,6 +105,7 @@ typedef struct {
     double U[3], dU[3], d2U[3];                                          /* at R - stride h */
     double Un[3][JOIN_NODES], dUn[3][JOIN_NODES], d2Un[3][JOIN_NODES], wn[3]; /* nodes; wn: half the step */
     double UR, dUR, d2UR;                                                /* at R */
+    double lead;                                                         /* R - r3 */
 } wkb_join;
 
 typedef struct {
@@ -134,9 +135,10 @@ static void effective_values(const wkb_potential *pot, double er, double r, doub
 }
 
 /* U, U', U'' on the join points of matching index n (see wkb_join) */
-static int join_setup(const wkb_potential *pot, double er, double r0, double h, size_t n, wkb_join *j)
+static int join_setup(const wkb_potential *pot, double er, double r0, double h, size_t n, double r3, wkb_join *j)
 {
     const double R = r0 + h * (double)n;
+    j->lead = R - r3;
     effective_values(pot, er, R, &j->UR, &j->dUR, &j->d2UR);
     for (int s = 0; s < 3; s++) {
         const double step = h * (double)(1 << s), a = R - step;
@@ -155,8 +157,11 @@ static double complex wkb_q(double complex e, double eps, double U, double dU, d
     return csqrt(W + d2U / (4 * eps * W) + (5.0 / 16) * dU * dU / (eps * eps * W * W));
 }
 
-/* The outgoing (p) and incoming (m) WKB waves at R (N) and R - stride h (M), both relative to their value
-   at R times q(R)^(1/2): pN = mN = 1, pM = sqrt(q(R)/q(R - stride h)) exp(-/+ i Phi), Phi = int q dr. */
+/* The outgoing (p) and incoming (m) WKB waves at R (N) and R - stride h (M), up to a constant factor:
+   pN = exp(i k (R - r3)), pM = pN sqrt(q(R)/q(R - stride h)) exp(-i Phi), Phi = int q dr over the step, m
+   with -i. The factor exp(+-i k (R - r3)), k at U(R), stands for the phase from r3 to R: it takes out the
+   fast energy dependence of that phase, so that the matching function varies on the scale of the width
+   (as the Hankel waves' exp(2ikR) does; without it the secant fails for joins many wavelengths out). */
 static void join_waves(const wkb_join *j, double eps, size_t stride, double complex e, double complex *pN,
                        double complex *pM, double complex *mN, double complex *mM)
 {
@@ -167,9 +172,11 @@ static void join_waves(const wkb_join *j, double eps, size_t stride, double comp
     phase *= j->wn[s];
     const double complex amp = csqrt(wkb_q(e, eps, j->UR, j->dUR, j->d2UR) / wkb_q(e, eps, j->U[s], j->dU[s],
                                                                                        j->d2U[s]));
-    *pN = *mN = 1;
-    *pM = amp * cexp(-I * phase);
-    *mM = amp * cexp(I * phase);
+    const double complex lead = cexp(I * csqrt((e - j->UR) / eps) * j->lead);
+    *pN = lead;
+    *mN = 1 / lead;
+    *pM = lead * amp * cexp(-I * phase);
+    *mM = amp * cexp(I * phase) / lead;
 }
 
 static double complex match(const shooting *s, size_t stride, double complex E)
@@ -445,7 +452,7 @@ int wkb_res_barrier_matched(wkb_res *w, const wkb_potential *pot, double mu, dou
     if ((status = fill_grid(w, pot, er, eps, r0, R, w->set.phase_step / k_max * (narrow ? 1.0 : 0.5), &n, &h, err)))
         return status;
     wkb_join join;
-    if (join_setup(pot, er, r0, h, n, &join))
+    if (join_setup(pot, er, r0, h, n, r3, &join))
         return wkb_fail(err, WKB_ENUMERIC, "the potential is not finite at r=%g A", R);
     shooting s = {w->f, r0, h, eps, 0, n, 0, narrow, &join};
     const double complex guess = (energy_guess - D) - 0.5 * I * width_guess;
@@ -459,7 +466,7 @@ int wkb_res_barrier_matched(wkb_res *w, const wkb_potential *pot, double mu, dou
     /* the join error: the same pole joined at half the distance beyond r3 (a larger WKB error, so the
        difference bounds the error at R) */
     const size_t n2 = (size_t)((r3 + 0.5 * join_distance - r0) / h / 4) * 4;
-    if (join_setup(pot, er, r0, h, n2, &join))
+    if (join_setup(pot, er, r0, h, n2, r3, &join))
         return wkb_fail(err, WKB_ENUMERIC, "the potential is not finite at r=%g A", r0 + h * (double)n2);
     if ((status = pole_at(&s, n2, pole, 1e-3 * delta + 1e-9, w->set.max_iter, max_step, &pole_alt, &err_h2,
                           &iterations)))

@@ -608,3 +608,26 @@ def test_exact_width_at_the_rounding_floor_is_not_refused():
     k = q[np.argmin(t.energy[q])]
     assert sc.width[sc.level(t.v[k], 35)] < 1e-40
     assert abs(t.width[k]) <= t.width_error[k] < 1e-15
+
+
+@pytest.mark.parametrize("name,potential,mu,J", [
+    # a hydrogen-like mass (0.5 u) on a deep MLR: theta = 0.07, a width of 800 cm-1 (the complex root alone is
+    # 130 cm-1 off); a level 0.06 cm-1 below the top of a low barrier on an LJ well at 4 u, where the join
+    # lies three wavelengths (37 A) beyond r3: theta = 0.19 (the complex root: 0.035 cm-1 off, width 44 % off,
+    # beyond the 25 % target)
+    ("MLR 0.5 u", wkbfit.MLR(De=38000.0, re=0.74, C6=6e3, betas=[1.0, 0.2, 0.05]), 0.5, 31),
+    ("LJ 4 u", wkbfit.LennardJones(1000.0, 3.0), 4.0, 7),
+])
+def test_barrier_matched_near_the_barrier_top(name, potential, mu, J):
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        ex = wkbfit.levels(potential, mu, J=J, method="exact", quasibound=True)
+    sc = wkbfit.levels(potential, mu, J=J, quasibound=True)
+    q = np.nonzero(sc.quasibound & (sc.theta < 0.2))[0]
+    assert len(q) == 1
+    k = q[0]
+    i = ex.level(sc.v[k], J)
+    assert sc.rule[k] == "quasibound-barrier-matched"
+    dE = abs(sc.energy[k] - ex.energy[i])
+    assert dE <= 2 * (sc.error[k] + ex.error[i]) and dE < 1e-3, (name, dE, sc.error[k], ex.error[i])
+    assert abs(sc.width[k] / ex.width[i] - 1) < 1e-4
