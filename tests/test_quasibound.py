@@ -571,10 +571,12 @@ def test_exact_error_estimates_are_honest_and_within_target():
 
 
 def test_method_error_of_quasibound_levels_is_honest(resonances):
-    """method_error of semiclassical quasibound rows: |E - E_exact| + the exact pole's estimate, from the
-    exact resonance seeded by the level (the more exact method). True error (against the default exact
-    poles of the resonances fixture) <= 2x the estimate; bound rows keep the bound table's estimate."""
-    seen = 0
+    """method_error of semiclassical quasibound rows: barrier-matched rows (theta < 8) their own error
+    estimate; the others |E - E_exact| + the exact pole's estimate, from the exact resonance seeded by the
+    level (the more exact method). True error (against the default exact poles of the resonances fixture,
+    whose own error is added) <= 2x the estimate; bound rows keep the bound table's estimate. Measured on the
+    barrier-matched rows: median true/estimate 0.45, largest 0.79 (over the four test wells)."""
+    seen, ratios = 0, []
     for J in (33, 40, 45, 50, 55):
         t = wkbfit.levels(LJ, MU, J=J, quasibound=True)
         bound = wkbfit.levels(LJ, MU, J=J) if J <= 50 else None
@@ -587,11 +589,15 @@ def test_method_error_of_quasibound_levels_is_honest(resonances):
                 true = abs(t.energy[i] - ref[0]["E"])
                 assert true <= 2 * t.method_error[i] + 1e-9, (J, t.v[i], true, t.method_error[i])
                 assert t.method_error[i] < 10 * true + 1e-6  # not uselessly pessimistic
+                if t.rule[i] == "quasibound-barrier-matched":
+                    assert t.method_error[i] == t.error[i]
+                    ratios.append(true / (t.method_error[i] + ref[0]["E_err"]))
                 seen += 1
         if bound is not None:
             n = len(bound)
             np.testing.assert_allclose(t.method_error[:n], bound.method_error, rtol=1e-12)
-    assert seen >= 8
+    assert seen >= 8 and len(ratios) >= 4
+    assert max(ratios) <= 1 and 0.05 < np.median(ratios)  # honest, and not uselessly pessimistic
 
 
 def test_exact_width_at_the_rounding_floor_is_not_refused():

@@ -198,14 +198,20 @@ def _bound_levels(potential, mu, Js, method, order, ends=None):
 
 def _method_error(table, *, bound, source, qcols, potential, mu):
     """method_error of a semiclassical table with quasibound rows (computed on first use): bound rows from
-    the bound table's own estimate; quasibound rows |E - E_exact| + the exact pole's error estimate,
+    the bound table's own estimate; barrier-matched rows their own error (the step and join estimate of a
+    pole that is exact through the barrier: true error <= 0.8 of it on the test wells, median 0.45,
+    tests/test_quasibound.py); the other quasibound rows |E - E_exact| + the exact pole's error estimate,
     against the exact resonance found from the semiclassical level (the more exact method, as for
     fixed-phase bound levels), inf where that search fails or lands on another level."""
     out = np.full(len(source), np.inf)
     b = source >= 0
     if np.any(b):
         out[b] = np.asarray(bound.method_error)[source[b]]
+    rows = np.nonzero(~b)[0]
     qi = -1 - source[~b]
+    matched = qcols["rule"][qi] == "quasibound-barrier-matched"
+    out[rows[matched]] = qcols["error"][qi[matched]]
+    rows, qi = rows[~matched], qi[~matched]
     if len(qi):
         try:
             res = exact_resonances(potential, mu, qcols["J"][qi], qcols["energy"][qi], qcols["width"][qi])
@@ -213,7 +219,7 @@ def _method_error(table, *, bound, source, qcols, potential, mu):
             return out
         dE = np.abs(qcols["energy"][qi] - res["energy"])
         same = (dE < 0.5 * qcols["dEdv"][qi]) & np.isfinite(res["energy_error"])
-        out[np.nonzero(~b)[0][same]] = dE[same] + res["energy_error"][same]
+        out[rows[same]] = dE[same] + res["energy_error"][same]
     return out
 
 
