@@ -74,8 +74,9 @@ def quasibound_columns(potential, mu, Js, *, rule=None, width_form="uniform"):
     Returns (columns, barriers, notes): columns has v, J, energy, binding_energy (negative: D - E),
     inner_turning_point, outer_turning_point (the barrier's inner side), Bv, dEdv, error, width, theta,
     barrier_turning_point (r3), position_order, rule (per row: "quasibound-barrier-matched" where the
-    barrier-matched pole made it, else "quasibound-" + the rule's name); barriers maps J -> dict(top, height,
-    r_top) or None.
+    barrier-matched pole made it, else "quasibound-" + the rule's name); barriers maps J -> dict(top,
+    height, r_top) or None. error is the numerical error of the rule; on barrier-matched rows the step and
+    join error of the pole, which bounds |E - E_exact| there.
     """
     rule = _rule(rule)
     if width_form not in WIDTH_FORMS:
