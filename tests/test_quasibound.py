@@ -7,7 +7,8 @@ References, each independent of the code under test:
 - exact widths and positions: an independent SciPy computation written here (scipy.integrate.solve_ivp at
   real energies, the scattering phase shift from Riccati-Bessel functions of scipy.special, a Breit-Wigner
   fit of delta(E) with scipy.optimize.curve_fit);
-- semiclassical positions and widths: the exact poles (a more exact method), as a function of theta;
+- semiclassical positions and widths: the exact poles (a more exact method), as a function of theta; the
+  barrier-matched rows (the default for theta < 8) also against the SciPy phase-shift reference;
 - inverted parabolic barrier: T = 1/(1 + exp(2 theta)) is exact there (Kemble, Phys. Rev. 48, 549 (1935),
   from memory), checked here by a SciPy integration through a pure parabola; the core's theta against
   pi (V_b - E)/(hbar omega_b) near the barrier top and against scipy.integrate.quad;
