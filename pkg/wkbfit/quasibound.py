@@ -48,6 +48,7 @@ RULES = {
     "second_order": (2, False, 0.0),            # I - (sqrt(eps)/24) dK/dE = pi (v + 1/2)
     "second_order_barrier": (2, True, 0.0),     # ... + (phi + pi/(24 theta))/2, the complex root for theta < 8
     "barrier_matched": (2, True, BARRIER_MATCH_THETA),  # the default: the barrier-matched pole for theta < 8
+    "barrier_matched_all": (2, True, math.inf),  # ... for every level (theta >= 8 too: ~2-3x the cost there)
 }
 WIDTH_FORMS = {"uniform": 0, "kemble": 1}
 
@@ -97,7 +98,7 @@ def quasibound_columns(potential, mu, Js, *, rule=None, width_form="uniform"):
         "error": res["error"], "width": res["width"], "theta": res["theta"],
         "barrier_turning_point": res["barrier_turning_point"], "position_order": res["order"].astype(int),
         "rule": np.where(res["barrier_matched"] > 0, "quasibound-barrier-matched",
-                         "quasibound-" + ("second_order_barrier" if rule == "barrier_matched" else rule).replace(
+                         "quasibound-" + ("second_order_barrier" if match_theta > 0 else rule).replace(
                              "_", "-")).astype(object),
     }
     barriers, notes = {}, []
