@@ -752,22 +752,25 @@ cleanup:
 
 /* ------------------------------------------------- quasibound levels (quasibound.c, resonance.c) */
 
-#define QB_NCOL 16
+#define QB_NCOL 17
+#define QB_NRANGE 8
 static PyObject *py_quasibound_levels(PyObject *self, PyObject *args, PyObject *kwds)
 {
     static char *kwlist[] = {"model", "params", "curve", "mu", "rot", "order", "width_form", "barrier_phase",
-                             "width_phase", "complex_position", NULL};
+                             "width_phase", "complex_position", "barrier_match_theta", "join_distance", NULL};
     static const char *names[QB_NCOL] = {"v", "rot_index", "energy", "above_asymptote", "width", "theta", "dEdv",
                                          "Bv", "error", "inner_turning_point", "outer_turning_point",
                                          "barrier_turning_point", "order", "dtheta_dE",
-                                         "width_spacing", "complex_root"};
-    static const char *range_names[7] = {"barrier_found", "barrier_top", "barrier_height", "barrier_r", "v_first",
-                                         "v_top", "first_order_fallback"};
+                                         "width_spacing", "complex_root", "barrier_matched"};
+    static const char *range_names[QB_NRANGE] = {"barrier_found", "barrier_top", "barrier_height", "barrier_r",
+                                                 "v_first", "v_top", "first_order_fallback",
+                                                 "barrier_match_fallback"};
     const char *model_name;
     PyObject *params_obj, *curve_obj, *rot_obj, *result = NULL;
     double mu;
     int order = 2, width_form = WKB_WIDTH_UNIFORM, barrier_phase = 1, width_phase = 1, complex_position = 1;
-    PyArrayObject *rot_arr = NULL, *cols[QB_NCOL] = {NULL}, *rcols[7] = {NULL};
+    PyArrayObject *rot_arr = NULL, *cols[QB_NCOL] = {NULL}, *rcols[QB_NRANGE] = {NULL};
+    wkb_qb_settings settings = wkb_qb_default_settings();
     wkb_potential pot;
     wkb_qb *q = NULL;
     wkb_qb_level *lv = NULL;
@@ -775,17 +778,21 @@ static PyObject *py_quasibound_levels(PyObject *self, PyObject *args, PyObject *
     int status = WKB_SUCCESS;
     size_t total = 0;
 
-    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOdO|iippp", kwlist, &model_name, &params_obj, &curve_obj, &mu,
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOdO|iipppdd", kwlist, &model_name, &params_obj, &curve_obj, &mu,
                                      &rot_obj, &order, &width_form, &barrier_phase, &width_phase,
-                                     &complex_position))
+                                     &complex_position, &settings.barrier_match_theta, &settings.join_distance))
         return NULL;
+    if (!(settings.barrier_match_theta >= 0) || !(isfinite(settings.join_distance) && settings.join_distance > 0)) {
+        value_error("barrier_match_theta=%g / join_distance=%g are invalid (theta >= 0, inf allowed; distance a "
+                    "finite number > 0, A)", settings.barrier_match_theta, settings.join_distance);
+        return NULL;
+    }
     if (parse_potential(model_name, params_obj, curve_obj, &pot) < 0)
         return NULL;
     if (!(rot_arr = as_double_array(rot_obj, "rot", 1)))
         return NULL;
     const npy_intp n_rot = PyArray_SIZE(rot_arr);
     const double *rot = PyArray_DATA(rot_arr);
-    wkb_qb_settings settings = wkb_qb_default_settings();
     settings.order = order;
     settings.width_form = width_form;
     settings.barrier_phase = barrier_phase;
@@ -796,12 +803,12 @@ static PyObject *py_quasibound_levels(PyObject *self, PyObject *args, PyObject *
                     width_form);
         goto cleanup;
     }
-    for (int c = 0; c < 7; c++)
+    for (int c = 0; c < QB_NRANGE; c++)
         if (!(rcols[c] = new_vector(n_rot)))
             goto cleanup;
     {
-        double *rc[7];
-        for (int c = 0; c < 7; c++)
+        double *rc[QB_NRANGE];
+        for (int c = 0; c < QB_NRANGE; c++)
             rc[c] = PyArray_DATA(rcols[c]);
         /* first pass: how many levels each J has */
         Py_BEGIN_ALLOW_THREADS
@@ -845,11 +852,13 @@ static PyObject *py_quasibound_levels(PyObject *self, PyObject *args, PyObject *
             rc[4][k] = range.v_first;
             rc[5][k] = range.v_top;
             rc[6][k] = (double)range.n_first_order_fallback;
+            rc[7][k] = (double)range.n_barrier_match_fallback;
             for (size_t i = 0; i < c && row + i < total; i++) {
                 const wkb_qb_level *L = &lv[row + i];
                 const double vals[QB_NCOL] = {L->v, (double)k, L->energy, L->above_asymptote, L->width, L->theta,
                                               L->dEdv, L->Bv, L->error, L->r1, L->r2, L->r3, L->order,
-                                              L->dtheta_dE, L->width_spacing, L->complex_root};
+                                              L->dtheta_dE, L->width_spacing, L->complex_root,
+                                              L->barrier_matched};
                 for (int cc = 0; cc < QB_NCOL; cc++)
                     out[cc][row + i] = vals[cc];
             }
@@ -866,7 +875,7 @@ static PyObject *py_quasibound_levels(PyObject *self, PyObject *args, PyObject *
     for (int c = 0; c < QB_NCOL; c++)
         if (PyDict_SetItemString(result, names[c], (PyObject *)cols[c]) < 0)
             goto fail;
-    for (int c = 0; c < 7; c++)
+    for (int c = 0; c < QB_NRANGE; c++)
         if (PyDict_SetItemString(result, range_names[c], (PyObject *)rcols[c]) < 0)
             goto fail;
     goto cleanup;
@@ -875,7 +884,7 @@ fail:
 cleanup:
     for (int c = 0; c < QB_NCOL; c++)
         Py_XDECREF(cols[c]);
-    for (int c = 0; c < 7; c++)
+    for (int c = 0; c < QB_NRANGE; c++)
         Py_XDECREF(rcols[c]);
     Py_XDECREF(rot_arr);
     free(lv);
@@ -2017,7 +2026,7 @@ static PyMethodDef core_methods[] = {
      "half_period (d action/dE, 1/cm-1), inner/outer turning points, Bv; at binding energies asymptote - E"},
     {"quasibound_levels", (PyCFunction)(void (*)(void))py_quasibound_levels, METH_VARARGS | METH_KEYWORDS,
      "quasibound_levels(model, params, curve, mu, rot, order=2, width_form=0, barrier_phase=True, width_phase=True, "
-     "complex_position=True)"},
+     "complex_position=True, barrier_match_theta=<default>, join_distance=4.0)"},
     {"barrier_integrals", (PyCFunction)(void (*)(void))py_barrier_integrals, METH_VARARGS | METH_KEYWORDS,
      "barrier_integrals(model, params, curve, mu, rot, energy) -> theta, dtheta_dE, action, ..., curvature_integral at each E"},
     {"resonances", (PyCFunction)(void (*)(void))py_resonances, METH_VARARGS | METH_KEYWORDS,

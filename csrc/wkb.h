@@ -639,6 +639,9 @@ typedef struct {
     int width_phase;    /* width spacing pi/(dI/dE - dphi/dE / 2) instead of pi/(dI/dE) */
     int complex_position; /* order 2 with barrier phase: the position as the real part of the complex root of
                              the rule with the barrier's decay term (quasibound.c); 0: the real-energy root */
+    double barrier_match_theta; /* levels with theta below this: position and width from the barrier-matched
+                                   pole (wkb_res_barrier_matched); 0: never */
+    double join_distance;       /* A beyond r3 where the barrier-matched rule joins the outgoing WKB wave */
 } wkb_qb_settings;
 wkb_qb_settings wkb_qb_default_settings(void);
 
@@ -672,6 +675,7 @@ double wkb_barrier_phase_slope(double theta);
 typedef struct {
     int v, order;              /* order: the position rule that converged (1 or 2) */
     int complex_root;          /* 1: the position is the real part of the complex root (complex_position) */
+    int barrier_matched;       /* 1: position, width and error from the barrier-matched pole */
     double energy, above_asymptote; /* E and E - D, cm-1 */
     double width, theta, dEdv, Bv, error; /* width: FWHM cm-1; error: numerical error of E */
     double dtheta_dE, width_spacing; /* width_spacing: the level spacing in the width formula, cm-1 */
@@ -682,6 +686,7 @@ typedef struct {
     wkb_barrier barrier;
     double v_first, v_top;     /* first-order quantum numbers at the asymptote and at the barrier top */
     size_t n_first_order_fallback; /* levels where the second-order rule found no root */
+    size_t n_barrier_match_fallback; /* levels meant for the barrier-matched rule where it failed */
 } wkb_qb_range;
 
 typedef struct wkb_qb wkb_qb;
@@ -727,5 +732,13 @@ void wkb_res_free(wkb_res *w);
    barrier), WKB_ENOCONV, WKB_ENUMERIC, WKB_ENOMEM. */
 int wkb_res_find(wkb_res *w, const wkb_potential *pot, double mu, int J, double energy_guess, double width_guess,
                  wkb_resonance *out, wkb_error *err);
+/* The barrier-matched pole (quasibound.c's rule for broad levels): the same regular solution from inside the
+   inner wall through the barrier, joined at R = r3 + join_distance (r3 the outer turning point beyond the
+   barrier, A) to the second-order outgoing WKB wave instead of the exact outgoing wave far out; any
+   rot = J(J+1) >= 0, bar from wkb_barrier_find at that rot. energy_error, width_error: the Richardson step
+   error and the change when joined at r3 + join_distance/2. Status as wkb_res_find. */
+int wkb_res_barrier_matched(wkb_res *w, const wkb_potential *pot, double mu, double rot, const wkb_barrier *bar,
+                            double r3, double energy_guess, double width_guess, double join_distance,
+                            wkb_resonance *out, wkb_error *err);
 
 #endif

@@ -7,7 +7,8 @@ References, each independent of the code under test:
 - exact widths and positions: an independent SciPy computation written here (scipy.integrate.solve_ivp at
   real energies, the scattering phase shift from Riccati-Bessel functions of scipy.special, a Breit-Wigner
   fit of delta(E) with scipy.optimize.curve_fit);
-- semiclassical positions and widths: the exact poles (a more exact method), as a function of theta;
+- semiclassical positions and widths: the exact poles (a more exact method), as a function of theta; the
+  barrier-matched rows (the default for theta < 8) also against the SciPy phase-shift reference;
 - inverted parabolic barrier: T = 1/(1 + exp(2 theta)) is exact there (Kemble, Phys. Rev. 48, 549 (1935),
   from memory), checked here by a SciPy integration through a pure parabola; the core's theta against
   pi (V_b - E)/(hbar omega_b) near the barrier top and against scipy.integrate.quad;
@@ -117,6 +118,11 @@ def test_exact_resonances_against_scipy_phase_shift(J, v):
     # the stated error estimates cover the true differences
     assert ex.error[0] < 1e-6
     assert ex.width_error[0] < 1e-3 * ex.width[0]
+    # the default semiclassical rows (the barrier-matched pole for theta < 8) against the same reference
+    if sc2.theta[0] < 8:
+        assert sc2.rule[0] == "quasibound-barrier-matched"
+        assert abs(sc2.energy[0] - DE - e_ref) < 1e-6
+        assert abs(sc2.width[0] / g_ref - 1) < 1e-3
 
 
 def test_broad_exact_resonance_against_scipy_phase_shift():
@@ -127,6 +133,10 @@ def test_broad_exact_resonance_against_scipy_phase_shift():
     assert 0.2 < ex.width[0] < 0.4
     assert abs(ex.energy[0] - DE - e_ref) < 2e-4
     assert abs(ex.width[0] / g_ref - 1) < 1e-4
+    # the default semiclassical row is barrier-matched here, and as close to the reference as the pole
+    assert sc2.rule[0] == "quasibound-barrier-matched"
+    assert abs(sc2.energy[0] - DE - e_ref) < 2e-4 and abs(sc2.energy[0] - ex.energy[0]) < 1e-6
+    assert abs(sc2.width[0] / g_ref - 1) < 1e-4
 
 
 def test_prior_prototype_widths():
@@ -139,10 +149,12 @@ def test_prior_prototype_widths():
 
 # ---------------------------------------------------------------- semiclassical against exact, by theta
 class RealRootTable:
-    """The default rule's real-energy root (complex_position off), with the table methods used below."""
+    """The second_order_barrier rule's real-energy root (complex_position and the barrier-matched pole off),
+    with the table methods used below."""
 
     def __init__(self, J):
-        res = _core.quasibound_levels(*LJ._core_args(), MU, np.array([J * (J + 1.0)]), complex_position=False)
+        res = _core.quasibound_levels(*LJ._core_args(), MU, np.array([J * (J + 1.0)]), complex_position=False,
+                                      barrier_match_theta=0.0)
         self.v, self.energy = res["v"].astype(int), res["energy"]
 
     def level(self, v, J):
@@ -156,16 +168,23 @@ def _all_resonances():
             warnings.simplefilter("ignore", RuntimeWarning)
             ex = wkbfit.levels(LJ, MU, J=J, method="exact", quasibound=True)
         scs = {rule: wkbfit.levels(LJ, MU, J=J, order=2, quasibound=True, quasibound_rule=rule)
-               for rule in ("second_order_barrier", "second_order", "first_order")}
+               for rule in ("barrier_matched", "second_order_barrier", "second_order", "first_order")}
         scs["real_root"] = RealRootTable(J)
-        kem = wkbfit.levels(LJ, MU, J=J, order=2, quasibound=True, width_form="kemble")
+        kem = wkbfit.levels(LJ, MU, J=J, order=2, quasibound=True, width_form="kemble",
+                            quasibound_rule="second_order_barrier")
+        default = wkbfit.levels(LJ, MU, J=J, order=2, quasibound=True)
         for i in np.nonzero(ex.quasibound)[0]:
             k = scs["second_order_barrier"].level(ex.v[i], J)
+            d = default.level(ex.v[i], J)
             rows.append(dict(J=J, v=ex.v[i], theta=scs["second_order_barrier"].theta[k],
-                             E=ex.energy[i], G=ex.width[i], G_err=ex.width_error[i],
+                             E=ex.energy[i], G=ex.width[i], G_err=ex.width_error[i], E_err=ex.error[i],
                              dE={r: t.energy[t.level(ex.v[i], J)] - ex.energy[i] for r, t in scs.items()},
                              ratio=scs["second_order_barrier"].width[k] / ex.width[i],
-                             kemble=kem.width[kem.level(ex.v[i], J)] / ex.width[i]))
+                             kemble=kem.width[kem.level(ex.v[i], J)] / ex.width[i],
+                             default=dict(dE=default.energy[d] - ex.energy[i], ratio=default.width[d] / ex.width[i],
+                                          error=default.error[d], rule=default.rule[d],
+                                          matched=scs["barrier_matched"].energy[scs["barrier_matched"].level(
+                                              ex.v[i], J)] == default.energy[d])))
     return rows
 
 
@@ -174,14 +193,41 @@ def resonances():
     return _all_resonances()
 
 
+def test_barrier_matched_positions_and_widths_by_theta(resonances):
+    """The default rule against the exact poles on the light well, where the complex root alone misses the
+    targets (below): theta < 8 rows come from the barrier-matched pole (the radial equation integrated
+    exactly through the barrier, joined 4 A beyond r3 to the second-order outgoing WKB wave). Measured:
+    positions within 1.7e-7 cm-1 (theta 0.2-8), widths within 1.1e-7 relative; rows with theta >= 8 keep the
+    complex root (<= 3.2e-4 cm-1). The stated error covers the true one (|dE| <= 2 error; median
+    |dE|/error 0.46, measured)."""
+    low = [r for r in resonances if r["theta"] < 8]
+    high = [r for r in resonances if r["theta"] >= 8]
+    assert len(low) > 15 and len(high) > 15
+    assert all(r["default"]["rule"] == "quasibound-barrier-matched" for r in low)
+    assert all(r["default"]["rule"] == "quasibound-second-order-barrier" for r in high)
+    assert all(r["default"]["matched"] for r in resonances)  # None is quasibound_rule="barrier_matched"
+    # the issue's targets (1e-3 cm-1 for theta >= 4, 5e-3 for theta >= 1, widths 6 % / 25 %), met with room
+    for lo, tol, wtol in ((4, 1e-3, 0.06), (1, 5e-3, 0.06), (0.1, 5e-3, 0.25)):
+        sel = [r for r in resonances if r["theta"] >= lo and r["G"] > 100 * r["G_err"]]
+        assert max(abs(r["default"]["dE"]) for r in sel) < tol
+        assert max(abs(r["default"]["ratio"] - 1) for r in sel) < wtol
+    # what the barrier-matched rows reach: the exact poles' own accuracy (1e-6 cm-1, 1e-3 in width)
+    assert max(abs(r["default"]["dE"]) for r in low) < 1e-6
+    assert max(abs(r["default"]["ratio"] - 1) for r in low) < 1e-5
+    # honest error estimates (the exact pole's own error estimate added)
+    ratios = [abs(r["default"]["dE"]) / (r["default"]["error"] + r["E_err"]) for r in low]
+    assert max(ratios) <= 2
+
+
 def test_semiclassical_positions_by_theta(resonances):
-    """Default rule (second order + barrier-phase remainder, the real part of the complex root with the
-    barrier's decay term) against the exact poles. Measured on this curve (a light, quantal well of 1-6
+    """The second_order_barrier rule (second order + barrier-phase remainder, the real part of the complex
+    root with the barrier's decay term; the default for theta >= 8) against the exact poles. Measured on this curve (a light, quantal well of 1-6
     levels per J); the issue's targets are 1e-3 cm-1 for theta >= 4 and 5e-3 for theta >= 1: met for
     theta >= 5 (<= 9.1e-4); 4 <= theta < 5 reaches 1.5e-3, 2 <= theta < 4 4.0e-3 (met), 1 <= theta < 2
     8.2e-3 and 0.5 <= theta < 1 8.8e-3 (the real-energy root alone: 0.086 and 0.28). What remains for
     theta < 5 is the inner-well rule's own higher-order error at the barrier side, not the decay: the MLR
-    and heavier-mass wells below meet every target."""
+    and heavier-mass wells below meet every target. Hence the default takes the barrier-matched pole for
+    theta < 8 (test above)."""
     assert len(resonances) > 40
     bands = [(5, np.inf, 1e-3), (4, 5, 2e-3), (2, 4, 5e-3), (1, 2, 1e-2), (0.5, 1, 1.2e-2)]
     for lo, hi, tol in bands:
@@ -201,7 +247,8 @@ def test_semiclassical_positions_by_theta(resonances):
 
 
 def _position_and_width_errors(potential, mu, Js):
-    """(theta, position error, width ratio - 1) of every resolved exact resonance of the given J."""
+    """(theta, position error, width ratio - 1, barrier-matched (1/0), error estimate) of every resolved
+    exact resonance of the given J."""
     out = []
     for J in Js:
         with warnings.catch_warnings():
@@ -210,7 +257,8 @@ def _position_and_width_errors(potential, mu, Js):
         sc2 = wkbfit.levels(potential, mu, J=J, quasibound=True)
         for i in np.nonzero(ex.quasibound & (ex.width > 100 * ex.width_error))[0]:
             k = sc2.level(ex.v[i], J)
-            out.append((sc2.theta[k], sc2.energy[k] - ex.energy[i], sc2.width[k] / ex.width[i] - 1))
+            out.append((sc2.theta[k], sc2.energy[k] - ex.energy[i], sc2.width[k] / ex.width[i] - 1,
+                        sc2.rule[k] == "quasibound-barrier-matched", sc2.error[k] + ex.error[i]))
     return np.array(out)
 
 
@@ -220,19 +268,26 @@ def _position_and_width_errors(potential, mu, Js):
     ("LJ, 4 mu", LJ, 4 * MU, range(60, 112, 3)),
 ])
 def test_semiclassical_positions_meet_the_targets_on_other_wells(name, potential, mu, Js):
-    """The issue's targets against the exact poles on wells of 4-9 quasibound levels per J. Measured:
-    MLR <= 2.8e-4 cm-1 for theta >= 4, <= 1.6e-3 for theta >= 1 (1.3e-3 at theta 0.5-1), widths within
-    2.3 %; LJ at 4 mu <= 2.8e-4, <= 1.8e-3 (1.8e-3), widths within 2.5 %."""
+    """The issue's targets against the exact poles on wells of 4-9 quasibound levels per J. Measured with
+    the complex root alone (the default before the barrier-matched rule): MLR <= 2.8e-4 cm-1 for theta >= 4,
+    <= 1.6e-3 for theta >= 1 (1.3e-3 at theta 0.5-1), widths within 2.3 %; LJ at 4 mu <= 2.8e-4, <= 1.8e-3
+    (1.8e-3), widths within 2.5 %. With the default (barrier-matched for theta < 8): those rows within
+    1.1e-7 cm-1 (MLR) and 1.0e-7 (LJ 4 mu), widths within 1.5e-7 relative; theta >= 8 as before."""
     rows = _position_and_width_errors(potential, mu, Js)
     assert len(rows) > 30 and np.any((rows[:, 0] >= 1) & (rows[:, 0] < 2))
     for lo, tol in ((4, 1e-3), (1, 5e-3), (0.5, 5e-3)):
         sel = rows[:, 0] >= lo
         assert np.max(np.abs(rows[sel, 1])) < tol, (name, lo, np.max(np.abs(rows[sel, 1])))
     assert np.max(np.abs(rows[rows[:, 0] >= 0.5, 2])) < 0.06
+    bm = rows[:, 3] > 0
+    np.testing.assert_array_equal(bm, rows[:, 0] < 8)
+    assert np.max(np.abs(rows[bm, 1])) < 1e-6 and np.max(np.abs(rows[bm, 2])) < 1e-5
+    assert np.all(np.abs(rows[bm, 1]) <= 2 * rows[bm, 4])  # the stated error covers the true one
 
 
 def test_semiclassical_widths_by_theta(resonances):
-    """Uniform ln form with the barrier-phase spacing, at the default position, against exact widths:
+    """Uniform ln form with the barrier-phase spacing, at the second_order_barrier position (the formula
+    behind the default rule's widths for theta >= 8), against exact widths:
     targets 6 % for theta >= 1 and 25 % for theta >= 0.1 (measured: <= 5.2 % and <= 11.1 %; the 5 % are v = 0
     of the shallow wells at J >= 53, <= 2.4 % elsewhere; the lowest theta on this curve is 0.22). The Kemble
     form with the same spacing is 11-13 % low near the top."""
@@ -285,7 +340,8 @@ def test_kemble_transmission_exact_for_parabolic_barrier(delta):
     assert abs(t_num - t_num2) < 1e-4 * t_num  # converged in L
     assert abs(t_num / (1 / (1 + math.exp(2 * theta))) - 1) < 1e-3
     # the core's Kemble-form widths use exactly this T(theta): width * 2 pi / spacing = T
-    t = wkbfit.levels(LJ, MU, J=45, order=2, quasibound=True, width_form="kemble")
+    t = wkbfit.levels(LJ, MU, J=45, order=2, quasibound=True, width_form="kemble",
+                      quasibound_rule="second_order_barrier")
     q = np.nonzero(t.quasibound)[0]
     spacing = _core.quasibound_levels(*LJ._core_args(), MU, np.array([45 * 46.0]), width_form=1)["width_spacing"]
     np.testing.assert_allclose(t.width[q] * 2 * np.pi / spacing, 1 / (1 + np.exp(2 * t.theta[q])), rtol=1e-12)
@@ -326,8 +382,10 @@ def test_theta_against_scipy_quad(e):
 def test_barrier_phase_remainder_matches_loggamma():
     # the remainder rem = phi(-theta/pi) + pi/(24 theta) enters the default rule as +rem/2. Check it through the
     # quantization: with and without it, the level moves by rem/2 / (dI/dE) (to first order)
-    t1 = _core.quasibound_levels(*LJ._core_args(), MU, np.array([40 * 41.0]), order=2, barrier_phase=True)
-    t0 = _core.quasibound_levels(*LJ._core_args(), MU, np.array([40 * 41.0]), order=2, barrier_phase=False)
+    t1 = _core.quasibound_levels(*LJ._core_args(), MU, np.array([40 * 41.0]), order=2, barrier_phase=True,
+                                 barrier_match_theta=0.0)
+    t0 = _core.quasibound_levels(*LJ._core_args(), MU, np.array([40 * 41.0]), order=2, barrier_phase=False,
+                                 barrier_match_theta=0.0)
     th = t0["theta"]
     eps_ = -th / np.pi
     phi = np.array([loggamma(0.5 + 1j * x).imag for x in eps_]) - eps_ * np.log(np.abs(eps_)) + eps_
@@ -442,9 +500,43 @@ def test_semiclassical_against_exact_on_a_rotating_morse_curve():
             k = sc2.level(ex.v[i], J)
             th, dE, ratio = sc2.theta[k], sc2.energy[k] - ex.energy[i], sc2.width[k] / ex.width[i]
             assert abs(dE) < (3e-4 if th >= 2 else 1e-3), (J, ex.v[i], th, dE)
+            if th < 8:  # the barrier-matched pole (measured within 5.7e-7 cm-1, widths 1e-5)
+                assert sc2.rule[k] == "quasibound-barrier-matched" and abs(dE) < 1e-6 and abs(ratio - 1) < 3e-5
             assert abs(ratio - 1) < (0.015 if th >= 1 else 0.04), (J, ex.v[i], th, ratio)
             seen += 1
     assert seen >= 12
+
+
+def test_barrier_matched_join_converges_and_its_error_is_honest(resonances):
+    """The join of the barrier-matched rule: the closer to r3 the join, the larger the WKB error (measured
+    ~d^-3.5 on this well); at 1.5 A beyond r3 (too close on purpose) the error estimate still covers the
+    true error against the exact poles, and 4 A (the default) is closer to them than 1.5 A (measured: at
+    most 1.4e-5 and 1.7e-7 cm-1 off over the 25 levels with theta < 8)."""
+    ref = {(r["J"], r["v"]): r for r in resonances if r["theta"] < 8}
+    errs = {}
+    for d in (1.5, 4.0):
+        for J in range(30, 56):
+            res = _core.quasibound_levels(*LJ._core_args(), MU, np.array([J * (J + 1.0)]), join_distance=d)
+            for i in np.nonzero(res["barrier_matched"] > 0)[0]:
+                r = ref[(J, int(res["v"][i]))]
+                true = abs(res["energy"][i] - r["E"])
+                assert true <= 2 * (res["error"][i] + r["E_err"]), (d, J, true, res["error"][i])
+                errs.setdefault(d, []).append(true)
+    assert len(errs[1.5]) == len(errs[4.0]) >= 20
+    assert max(errs[4.0]) < 1e-6 and max(errs[4.0]) < max(errs[1.5])
+
+
+def test_barrier_matched_bad_settings():
+    for kw in (dict(join_distance=0.0), dict(join_distance=-2.0), dict(join_distance=float("nan")),
+               dict(join_distance=float("inf")), dict(barrier_match_theta=-1.0),
+               dict(barrier_match_theta=float("nan"))):
+        with pytest.raises(ValueError, match="barrier_match_theta=.* / join_distance=.* are invalid"):
+            _core.quasibound_levels(*LJ._core_args(), MU, np.array([40 * 41.0]), **kw)
+    # theta 0 switches it off: the complex root alone, as quasibound_rule="second_order_barrier" gives
+    off = _core.quasibound_levels(*LJ._core_args(), MU, np.array([40 * 41.0]), barrier_match_theta=0.0)
+    t = wkbfit.levels(LJ, MU, J=40, quasibound=True, quasibound_rule="second_order_barrier")
+    assert not np.any(off["barrier_matched"]) and np.all(t.rule[t.quasibound] == "quasibound-second-order-barrier")
+    np.testing.assert_array_equal(t.energy[t.quasibound], off["energy"])
 
 
 def test_exact_resonances_bad_input():
@@ -480,10 +572,12 @@ def test_exact_error_estimates_are_honest_and_within_target():
 
 
 def test_method_error_of_quasibound_levels_is_honest(resonances):
-    """method_error of semiclassical quasibound rows: |E - E_exact| + the exact pole's estimate, from the
-    exact resonance seeded by the level (the more exact method). True error (against the default exact
-    poles of the resonances fixture) <= 2x the estimate; bound rows keep the bound table's estimate."""
-    seen = 0
+    """method_error of semiclassical quasibound rows: barrier-matched rows (theta < 8) their own error
+    estimate; the others |E - E_exact| + the exact pole's estimate, from the exact resonance seeded by the
+    level (the more exact method). True error (against the default exact poles of the resonances fixture,
+    whose own error is added) <= 2x the estimate; bound rows keep the bound table's estimate. Measured on the
+    barrier-matched rows: median true/estimate 0.45, largest 0.79 (over the four test wells)."""
+    seen, ratios = 0, []
     for J in (33, 40, 45, 50, 55):
         t = wkbfit.levels(LJ, MU, J=J, quasibound=True)
         bound = wkbfit.levels(LJ, MU, J=J) if J <= 50 else None
@@ -496,8 +590,74 @@ def test_method_error_of_quasibound_levels_is_honest(resonances):
                 true = abs(t.energy[i] - ref[0]["E"])
                 assert true <= 2 * t.method_error[i] + 1e-9, (J, t.v[i], true, t.method_error[i])
                 assert t.method_error[i] < 10 * true + 1e-6  # not uselessly pessimistic
+                if t.rule[i] == "quasibound-barrier-matched":
+                    assert t.method_error[i] == t.error[i]
+                    ratios.append(true / (t.method_error[i] + ref[0]["E_err"]))
                 seen += 1
         if bound is not None:
             n = len(bound)
             np.testing.assert_allclose(t.method_error[:n], bound.method_error, rtol=1e-12)
-    assert seen >= 8
+    assert seen >= 8 and len(ratios) >= 4
+    assert max(ratios) <= 1 and 0.05 < np.median(ratios)  # honest, and not uselessly pessimistic
+
+
+def test_exact_width_at_the_rounding_floor_is_not_refused():
+    # a resonance 6.4 cm-1 above the asymptote behind a thick barrier (the semiclassical width ~1e-55 cm-1):
+    # its pole's width is rounding (a few 1e-16 cm-1) and came out negative beyond 3x its error estimate on
+    # this curve (found by a width fit's finite differences); it is reported with width_error >= |width|
+    re_ = 1.0000095801785671
+    pot = wkbfit.LennardJones(2499.877221739073, re_ + 1e-5 * re_, n=11.997014239400622, m=6.001461852621119)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        t = wkbfit.levels(pot, MU, J=35, method="exact", quasibound=True)
+    sc = wkbfit.levels(pot, MU, J=35, quasibound=True)
+    q = np.nonzero(t.quasibound)[0]
+    k = q[np.argmin(t.energy[q])]
+    assert sc.width[sc.level(t.v[k], 35)] < 1e-40
+    assert abs(t.width[k]) <= t.width_error[k] < 1e-15
+
+
+@pytest.mark.parametrize("name,potential,mu,J", [
+    # a hydrogen-like mass (0.5 u) on a deep MLR: theta = 0.07, a width of 800 cm-1 (the complex root alone is
+    # 130 cm-1 off); a level 0.06 cm-1 below the top of a low barrier on an LJ well at 4 u, where the join
+    # lies three wavelengths (37 A) beyond r3: theta = 0.19 (the complex root: 0.035 cm-1 off, width 44 % off,
+    # beyond the 25 % target)
+    ("MLR 0.5 u", wkbfit.MLR(De=38000.0, re=0.74, C6=6e3, betas=[1.0, 0.2, 0.05]), 0.5, 31),
+    ("LJ 4 u", wkbfit.LennardJones(1000.0, 3.0), 4.0, 7),
+])
+def test_barrier_matched_near_the_barrier_top(name, potential, mu, J):
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        ex = wkbfit.levels(potential, mu, J=J, method="exact", quasibound=True)
+    sc = wkbfit.levels(potential, mu, J=J, quasibound=True)
+    q = np.nonzero(sc.quasibound & (sc.theta < 0.2))[0]
+    assert len(q) == 1
+    k = q[0]
+    i = ex.level(sc.v[k], J)
+    assert sc.rule[k] == "quasibound-barrier-matched"
+    dE = abs(sc.energy[k] - ex.energy[i])
+    assert dE <= 2 * (sc.error[k] + ex.error[i]) and dE < 1e-3, (name, dE, sc.error[k], ex.error[i])
+    assert abs(sc.width[k] / ex.width[i] - 1) < 1e-4
+
+
+def test_barrier_matched_for_every_level(resonances):
+    """quasibound_rule="barrier_matched_all": the pole for theta >= 8 too. Measured on the light well: every
+    row within 8.7e-7 cm-1 of the exact poles, resolved widths within 3e-6 (the formula: up to 5.2 % at
+    theta 13-19); widths the pole does not resolve (theta >~ 15) keep the barrier-penetration formula."""
+    ref = {(r["J"], r["v"]): r for r in resonances}
+    seen = 0
+    formula = 0
+    for J in (33, 38, 44, 45, 47, 49, 50, 51, 55):
+        t = wkbfit.levels(LJ, MU, J=J, quasibound=True, quasibound_rule="barrier_matched_all")
+        f = wkbfit.levels(LJ, MU, J=J, quasibound=True, quasibound_rule="second_order_barrier")
+        for i in np.nonzero(t.quasibound)[0]:
+            r = ref[(J, int(t.v[i]))]
+            assert t.rule[i] == "quasibound-barrier-matched"
+            assert abs(t.energy[i] - r["E"]) < 1e-6 and abs(t.energy[i] - r["E"]) <= 2 * (t.error[i] + r["E_err"])
+            if r["G"] > 1e4 * r["G_err"]:
+                assert abs(t.width[i] / r["G"] - 1) < 1e-4
+                seen += r["theta"] >= 8
+            elif r["theta"] > 20:
+                assert t.width[i] == f.width[f.level(t.v[i], J)]
+                formula += 1
+    assert seen >= 6 and formula >= 1

@@ -40,7 +40,9 @@ _DESCRIPTIONS = {
     "method_error": "estimated |E - E_exact| of the rule that produced the level (first order, second order, "
                     "matched, exact), numerical error included",
     "rule": "rule that produced the level: first-order, second-order, matched (exact outer end joined to "
-            "second-order WKB), exact-phase (exact phase across the well) or exact",
+            "second-order WKB), exact-phase (exact phase across the well) or exact; quasibound rows: "
+            "quasibound-barrier-matched (exact through the barrier, joined beyond it to second-order WKB) or "
+            "quasibound-<quasibound_rule>",
 }
 
 # Quasibound levels (levels(..., quasibound=True), quasibound.py). Bound rows: quasibound False, width 0,
@@ -288,9 +290,14 @@ def levels(potential, mu, v=None, J=0, method="wkb", *, order=None, ends=None, l
        V + J(J+1) hbar^2/(2 mu r^2) (columns quasibound, width, theta, lifetime; see wkbfit.quasibound).
        With method="exact" these are exact resonance poles with error estimates (error, width_error).
     quasibound_rule: position rule of semiclassical quasibound levels (wkbfit.quasibound.RULES); None
-       is "second_order_barrier" (second order plus the barrier-phase remainder, the best on test) whatever
-       `order` the bound levels use; "first_order" and "second_order" are the plain rules.
-    width_form: "uniform" (ln(1 + exp(-2 theta)), default) or "kemble" (1/(1 + exp(2 theta))).
+       is "barrier_matched" (levels with theta < 8: the pole of the radial equation integrated exactly
+       through the barrier and joined beyond it to an outgoing second-order WKB wave, position and width;
+       the others: "second_order_barrier", second order plus the barrier-phase remainder) whatever `order`
+       the bound levels use; "barrier_matched_all" takes the pole for every level (widths at theta >= 8
+       within 1e-5 instead of ~5 %, at 2-3x the cost of those rows); "first_order" and "second_order" are
+       the plain rules. The `rule` column names the one behind each row.
+    width_form: "uniform" (ln(1 + exp(-2 theta)), default) or "kemble" (1/(1 + exp(2 theta))), for the
+       widths the barrier-penetration formula gives (not those of barrier-matched rows).
 
     The table's `method_error` column estimates |E - E_exact| of the rule used for each level, `rule`
     names that rule, `vD` is the first-order quantum number at dissociation and `v_th` (matched ends)

@@ -9,6 +9,9 @@ Prints, from one run:
 - wkbfit exact resonance poles (Siegert, extended-precision Numerov, Richardson over 3 steps, a second
   matching radius for the error estimate): time per level;
 - the cost of the complex-root position against the real-energy root (ratio, same run);
+- the cost of the barrier-matched rule (the default for theta < 8; also applied to every level) against the
+  complex root alone and against the exact poles, per level, on the light LJ well and a Morse well (ratios,
+  same run);
 - the SciPy baseline at matched accuracy for the exact widths (1e-6 cm-1 in position, 1e-3 in width): the
   phase shift from solve_ivp (DOP853, rtol 1e-12) at real energies, vectorized over the energy grid, with a
   Breit-Wigner fit, as tests/test_quasibound.py does it; time per resonance and the ratio.
@@ -76,14 +79,40 @@ def complex_position_cost():
     from wkbfit import _core
     rot = np.array([J * (J + 1.0) for J in range(30, 56)])
     args = LJ._core_args()
-    res = _core.quasibound_levels(*args, MU, rot)
+    res = _core.quasibound_levels(*args, MU, rot, barrier_match_theta=0.0)
     n, n_c = len(res["v"]), int(np.sum(res["complex_root"]))
-    t_on = time_call(lambda: _core.quasibound_levels(*args, MU, rot)) / n
-    t_off = time_call(lambda: _core.quasibound_levels(*args, MU, rot, complex_position=False)) / n
+    t_on = time_call(lambda: _core.quasibound_levels(*args, MU, rot, barrier_match_theta=0.0)) / n
+    t_off = time_call(lambda: _core.quasibound_levels(*args, MU, rot, complex_position=False,
+                                                      barrier_match_theta=0.0)) / n
     print("quasibound positions, J = 30-55 (%d levels, %d by the complex root): %.3f ms per level with the "
           "complex root, %.3f ms with the real root only; ratio %.2f" % (n, n_c, 1e3 * t_on, 1e3 * t_off,
                                                                      t_on / t_off))
 
 
+
+def barrier_matched_cost():
+    """Per quasibound level: the complex root alone (barrier_match_theta=0), the default (barrier-matched for
+    theta < 8), the barrier-matched pole for every level, and the exact poles seeded by the complex root."""
+    from wkbfit import _core
+    wells = [("LJ light, J 30-55", LJ, MU, range(30, 56)),
+             ("Morse mu 7, J 40-80", wkbfit.Morse(De=3000.0, re=2.0, a=1.2), 7.0, range(40, 84, 4))]
+    for name, pot, mu, Js in wells:
+        Js = np.array(list(Js))
+        rot, args = Js * (Js + 1.0), pot._core_args()
+        res = _core.quasibound_levels(*args, mu, rot, barrier_match_theta=0.0)
+        n, n_low = len(res["v"]), int(np.sum(res["theta"] < 8))
+        J_of = Js[res["rot_index"].astype(int)]
+        t_cx = time_call(lambda: _core.quasibound_levels(*args, mu, rot, barrier_match_theta=0.0)) / n
+        t_def = time_call(lambda: _core.quasibound_levels(*args, mu, rot)) / n
+        t_all = time_call(lambda: _core.quasibound_levels(*args, mu, rot, barrier_match_theta=np.inf)) / n
+        t_ex = time_call(lambda: exact_resonances(pot, mu, J_of, res["energy"], res["width"]), min_time=1.0) / n
+        print("%s (%d levels, %d with theta < 8), ms per level: complex root %.3f, default %.3f, "
+              "barrier-matched everywhere %.3f, exact %.2f; ratios default/complex %.2f, everywhere/complex %.2f, "
+              "exact/default %.1f, exact/everywhere %.1f"
+              % (name, n, n_low, 1e3 * t_cx, 1e3 * t_def, 1e3 * t_all, 1e3 * t_ex, t_def / t_cx, t_all / t_cx,
+                 t_ex / t_def, t_ex / t_all))
+
+
 if __name__ == "__main__":
     main()
+    barrier_matched_cost()
