@@ -139,8 +139,15 @@ def _check_int(x, name, low):
     return int(x)
 
 
+REFITS = {
+    "linearised": "first-order refits with the central fit's exact corrections, linear in the parameters, checked "
+                  "by exact refreshes (replicas_linear.py)",
+    "full": "every replica refitted through wkbfit.fit with the fit's own settings",
+}
+
+
 def bootstrap(result, n=1000, seed=1, kind="monte-carlo", executor=None, *, progress=None, isotopologue=None,
-              n_top_levels=3):
+              n_top_levels=3, refit=None, check_tolerance=None):
     """Refit n replicas of the data of `result`; see the module documentation.
 
     n: number of replicas (>= 2); seed: integer >= 0; kind: "monte-carlo" (default) or
@@ -157,6 +164,15 @@ def bootstrap(result, n=1000, seed=1, kind="monte-carlo", executor=None, *, prog
     n = _check_int(n, "n", 2)
     seed = _check_int(seed, "seed", 0)
     n_top_levels = _check_int(n_top_levels, "n_top_levels", 0)
+    if refit is not None and refit not in REFITS:
+        raise ValueError("refit=%r is not known; use None (the default), %s" % (
+            refit, " or ".join("%r (%s)" % kv for kv in REFITS.items())))
+    from . import replicas_linear
+    if check_tolerance is None:
+        check_tolerance = replicas_linear.TOLERANCE
+    if isinstance(check_tolerance, bool) or not isinstance(check_tolerance, (int, float)) or \
+            not (0 < check_tolerance < math.inf):
+        raise ValueError("check_tolerance=%r must be a positive number of standard deviations" % (check_tolerance,))
     if kind not in KINDS:
         raise ValueError("kind=%r is not known; use %s" % (kind, " or ".join("%r (%s)" % kv for kv in KINDS.items())))
     if result.status != "converged":
@@ -187,12 +203,31 @@ def bootstrap(result, n=1000, seed=1, kind="monte-carlo", executor=None, *, prog
         "settings": fit_settings(result), "names": list(result.var_names), "kind": kind, "seed": seed,
         "noise_scale": float(noise_scale), "isotopologue_label": label, "v_top": v_top,
     }
+    why_not = replicas_linear.eligible(result)
+    if refit == "linearised" and why_not:
+        raise ValueError("refit='linearised' is not available for this fit (%s); use refit='full'" % why_not)
+    method_check = {"refit": "full", "notes": [why_not] if why_not and refit is None else []}
+    out = None
     with warnings.catch_warnings():  # the pool's threads share this thread's filters
         from .fitting import FitWarning
         warnings.simplefilter("ignore", FitWarning)
-        out = run_chunks(_replica_task, shared, range(n), executor, progress, desc="replicas")
+        if refit != "full" and not why_not:
+            shared["fast"] = replicas_linear.prepare(result, label, v_top)
+            out = run_chunks(replicas_linear.fast_chunk, shared, range(n), executor, progress, desc="replicas",
+                             batched=True)
+            method_check = replicas_linear.check(result, shared, out, tolerance=check_tolerance)
+            del shared["fast"]
+            if not method_check["passed"]:
+                # the linearised corrections are not good enough here: the full refits
+                method_check["notes"].append("linearised replicas failed the exact check (%s): every replica was "
+                                             "refitted the full way" % method_check["reason"])
+                method_check["refit"] = "full"
+                out = None
+        if out is None:
+            out = run_chunks(_replica_task, shared, range(n), executor, progress, desc="replicas")
     return ReplicaResult(result, out, kind=kind, seed=seed, executor=describe_executor(executor),
-                         central_predictions=central, isotopologue=label, noise_scale=noise_scale)
+                         central_predictions=central, isotopologue=label, noise_scale=noise_scale,
+                         method_check=method_check)
 
 
 class ReplicaResult:
@@ -208,8 +243,10 @@ class ReplicaResult:
     """
 
     def __init__(self, fit_result, outcomes, *, kind, seed, executor, central_predictions, isotopologue,
-                 noise_scale):
+                 noise_scale, method_check=None):
         self.fit_result = fit_result
+        self.method_check = dict(method_check or {"refit": "full", "notes": []})
+        self.refit = self.method_check["refit"]
         self.kind, self.seed, self.executor = kind, seed, executor
         self.isotopologue = isotopologue
         self.noise_scale = float(noise_scale)
