@@ -1333,9 +1333,10 @@ static PyObject *py_fit_replicas(PyObject *self, PyObject *args, PyObject *kwds)
     wkb_replica_outcome *outcomes = NULL;
     PyArrayObject *vary = NULL, *lower = NULL, *upper = NULL, *energies = NULL, *counts = NULL, *smu = NULL,
                   *srot = NULL, *sv = NULL, *shift = NULL, *slope = NULL, *params = NULL, *pred = NULL;
-    PyArrayObject *cols[8] = {NULL};
-    static const char *col_names[8] = {"status", "stop", "chi_square", "iterations", "pred_count", "vD",
-                                       "asymptote", "extrapolated"};
+    enum { NCOLS = 9 };
+    PyArrayObject *cols[NCOLS] = {NULL};
+    static const char *col_names[NCOLS] = {"status", "stop", "chi_square", "iterations", "pred_count", "vD",
+                                           "asymptote", "extrapolated", "insensitive"};
 
     if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOOOOOiOOOO|OOOOOOdnn", kwlist, &model_name, &params_obj,
                                      &curve_obj, &v_obj, &rot_obj, &mu_obj, &sigma_obj, &energy_zero, &vary_obj,
@@ -1414,7 +1415,7 @@ static PyObject *py_fit_replicas(PyObject *self, PyObject *args, PyObject *kwds)
         raise_status(&err);
         goto cleanup;
     }
-    for (int c = 0; c < 8; c++)
+    for (int c = 0; c < NCOLS; c++)
         if (!(cols[c] = new_vector(n_rep)))
             goto cleanup;
     PyObject *messages = PyList_New(n_rep);
@@ -1422,10 +1423,10 @@ static PyObject *py_fit_replicas(PyObject *self, PyObject *args, PyObject *kwds)
         goto cleanup;
     for (npy_intp r = 0; r < n_rep; r++) {
         const wkb_replica_outcome *o = outcomes + r;
-        const double vals[8] = {o->status ? o->status : (o->pred_status ? -o->pred_status : 0), o->stop,
-                                o->chi_square, (double)o->iterations, (double)o->pred_count, o->vD, o->asymptote,
-                                (double)(o->extrapolated_fit + o->extrapolated_pred)};
-        for (int c = 0; c < 8; c++)
+        const double vals[NCOLS] = {o->status ? o->status : (o->pred_status ? -o->pred_status : 0), o->stop,
+                                    o->chi_square, (double)o->iterations, (double)o->pred_count, o->vD, o->asymptote,
+                                    (double)(o->extrapolated_fit + o->extrapolated_pred), o->insensitive};
+        for (int c = 0; c < NCOLS; c++)
             ((double *)PyArray_DATA(cols[c]))[r] = vals[c];
         PyObject *msg = PyUnicode_FromString(o->status || o->pred_status ? o->error.message : "");
         if (!msg) {
@@ -1442,7 +1443,7 @@ static PyObject *py_fit_replicas(PyObject *self, PyObject *args, PyObject *kwds)
         PyDict_SetItemString(result, "params", (PyObject *)params) < 0 ||
         PyDict_SetItemString(result, "pred_energy", (PyObject *)pred) < 0)
         goto fail;
-    for (int c = 0; c < 8; c++)
+    for (int c = 0; c < NCOLS; c++)
         if (PyDict_SetItemString(result, col_names[c], (PyObject *)cols[c]) < 0)
             goto fail;
     goto cleanup;
@@ -1463,7 +1464,7 @@ cleanup:
     Py_XDECREF(slope);
     Py_XDECREF(params);
     Py_XDECREF(pred);
-    for (int c = 0; c < 8; c++)
+    for (int c = 0; c < NCOLS; c++)
         Py_XDECREF(cols[c]);
     return result;
 }

@@ -68,13 +68,13 @@ static int shifted_level(void *ctx, int v, double *energy, double *dEdp, wkb_err
     if (status)
         return status;
     double E = level.energy;
+    int beyond = 0;
     if (s->hi > s->lo) {
         /* the entry of v, else the nearest one below it (levels above the table use its top) */
         size_t e = s->lo;
         for (size_t i = s->lo; i < s->hi && t->v[i] <= v; i++)
             e = i;
-        if (t->v[e] != v && s->extrapolated)
-            (*s->extrapolated)++;
+        beyond = t->v[e] != v;
         E += t->shift[e];
         if (t->slope) {
             const double *row = t->slope + e * s->np;
@@ -83,11 +83,13 @@ static int shifted_level(void *ctx, int v, double *energy, double *dEdp, wkb_err
                 grad[k] += row[k];
             }
         }
-    } else if (s->extrapolated) {
-        (*s->extrapolated)++; /* a group without any correction: plain first-order WKB */
+    } else {
+        beyond = 1; /* a group without any correction: plain first-order WKB */
     }
     if (!(E < s->asymptote))
         return wkb_fail(err, WKB_ENOLEVEL, "level v=%d is not bound once its exact correction is added", v);
+    if (beyond && s->extrapolated)
+        (*s->extrapolated)++;
     *energy = E;
     if (dEdp)
         memcpy(dEdp, grad, s->np * sizeof *grad);

@@ -218,7 +218,7 @@ def fast_chunk(shared, chunk):
     energies = np.array([d[0] for d in data])
     counts = None if shared["kind"] == "monte-carlo" else np.array([d[1] for d in data])
     out = run_core(fast, energies, counts)
-    singular = _singular(fast, counts) if counts is not None else np.zeros(len(chunk), dtype=bool)
+    undetermined = _undetermined(fast, counts) if counts is not None else [""] * len(chunk)
     names, var, p0 = fast["var_names"], fast["var"], fast["p0"]
     results = []
     for j, i in enumerate(chunk):
@@ -232,8 +232,8 @@ def fast_chunk(shared, chunk):
         p = out["params"][j]
         at_bound = [n for n, k in zip(names, var) for b in (fast["lower"][k], fast["upper"][k])
                     if np.isfinite(b) and abs(p[k] - b) <= 1e-6 * max(abs(p0[k] - b), 1e-300)]
-        if singular[j] or at_bound:
-            why = ", ".join(at_bound) if at_bound else "a combination of %s" % ", ".join(names)
+        why = ", ".join(at_bound) or undetermined[j] or (", ".join(names) if out["insensitive"][j] else "")
+        if why:
             results.append((i, "undetermined parameters %s" % why, None))
             continue
         if status < 0:
@@ -257,18 +257,24 @@ def _predictions(out, j, v_top):
     return vals
 
 
-def _singular(fast, counts):
-    """Per replica: the normal matrix of the central Jacobian with the replica's row counts is
-    numerically singular (the full path's test 3, fit_result.py, on the central Jacobian)."""
-    from .fit_result import _RCOND_SINGULAR
+def _undetermined(fast, counts):
+    """Per replica: the varied parameters no drawn row depends on, else those of a numerically
+    singular normal matrix (the full path's tests 2 and 3, fit_result.py), on the central
+    Jacobian with the replica's row counts; '' when all are determined."""
+    from .fit_result import _RCOND_SINGULAR, _SENSITIVITY_ZERO
     A = fast["jacobian_w"]  # rows x varied, weighted by 1/sigma
     N = np.einsum("ri,ij,ik->rjk", counts, A, A)
     d = np.sqrt(np.einsum("rjj->rj", N))
+    sens = d * np.maximum(np.abs(fast["p0"][fast["var"]]), 1e-300)
+    insensitive = ~(sens > _SENSITIVITY_ZERO * np.max(sens, axis=1)[:, None])
     d[d == 0] = 1.0
     Nn = N / d[:, :, None] / d[:, None, :]
     ev = np.linalg.eigvalsh(Nn)
     s = np.sqrt(np.clip(ev, 0, None))
-    return s[:, 0] < _RCOND_SINGULAR * s[:, -1]
+    singular = s[:, 0] < _RCOND_SINGULAR * s[:, -1]
+    names = fast["var_names"]
+    return [", ".join(n for n, f in zip(names, ins) if f) if ins.any() else
+            ("a combination of %s" % ", ".join(names) if sing else "") for ins, sing in zip(insensitive, singular)]
 
 
 def check(result, shared, outcomes, n_check=N_CHECK, tolerance=TOLERANCE):
