@@ -239,7 +239,11 @@ class ReplicaResult:
     ddof=1), intervals (name -> {probability: (low, high)} percentile intervals);
     central: the values of the fit itself; covariance_sd: name -> one-sigma uncertainty from the
     covariance matrix (linear propagation for the predictions; None where there is none);
-    samples: a pandas DataFrame, one row per converged replica.
+    samples: a pandas DataFrame, one row per converged replica;
+    refit: "linearised" or "full" (how the replicas were refitted); method_check: for linearised
+    refits, the exact check (replicas_linear.check: the replicas checked, parameter_error_sd and
+    prediction_error_sd, the largest errors found, in standard deviations; slope_effect_sd, how far
+    frozen corrections would have moved them; passed; notes), for full refits {"refit": "full", ...}.
     """
 
     def __init__(self, fit_result, outcomes, *, kind, seed, executor, central_predictions, isotopologue,
@@ -356,7 +360,22 @@ def _header(r):
             else ""))
     lines.append("predictions for isotopologue %s at J = 0; Eb = asymptote - E, binding energy" % (
         r.isotopologue if r.isotopologue is not None else "(unnamed)"))
+    lines.append(_method_line(r.method_check))
+    lines.extend("note: %s" % note for note in r.method_check.get("notes", ()) if note)
     return lines
+
+
+def _method_line(check):
+    """One line on how the replicas were refitted and, for linearised refits, their exact check."""
+    if check["refit"] != "linearised":
+        return "refits: %s" % REFITS["full"]
+    if not check.get("checked"):
+        return "refits: linearised (first-order WKB refits, no exact corrections to check)"
+    return ("refits: linearised (first-order WKB + the central fit's exact corrections, linear in the parameters); "
+            "exact check of the %d replicas farthest from the centre: parameters within %.2g sd, predictions "
+            "within %.2g sd of the exact problem (tolerance %.2g sd); frozen corrections would move them %.2g sd"
+            % (len(check["checked"]), check["parameter_error_sd"], check["prediction_error_sd"],
+               check["tolerance"], check["slope_effect_sd"]))
 
 
 def _text(r):
