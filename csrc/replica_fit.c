@@ -70,11 +70,11 @@ static int shifted_level(void *ctx, int v, double *energy, double *dEdp, wkb_err
     double E = level.energy;
     int beyond = 0;
     if (s->hi > s->lo) {
-        /* the entry of v, else the nearest one below it (levels above the table use its top) */
+        /* the entry of v, else the nearest one below it (levels above the table use its top one) */
         size_t e = s->lo;
         for (size_t i = s->lo; i < s->hi && t->v[i] <= v; i++)
             e = i;
-        beyond = t->v[e] != v;
+        beyond = v > t->v[s->hi - 1];
         E += t->shift[e];
         if (t->slope) {
             const double *row = t->slope + e * s->np;

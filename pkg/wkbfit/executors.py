@@ -30,7 +30,7 @@ import concurrent.futures
 import math
 import os
 
-__all__ = ["run_chunks", "describe_executor", "PROGRESS_MIN_ITEMS"]
+__all__ = ["run_chunks", "local_map", "describe_executor", "PROGRESS_MIN_ITEMS"]
 
 #: runs with fewer items than this show no progress bar unless asked (progress=True)
 PROGRESS_MIN_ITEMS = 200
@@ -154,6 +154,18 @@ def run_chunks(task, shared, items, executor=None, progress=None, desc="", batch
     finally:
         if bar is not None:
             bar.close()
+
+
+def local_map(fn, items, executor=None):
+    """[fn(item) for item in items] on threads of this process (serially for executor="serial"),
+    for the few core calls that prepare or check a run (the core releases the GIL)."""
+    _check_executor(executor)
+    items = list(items)
+    if executor == "serial" or len(items) < 2:
+        return [fn(item) for item in items]
+    workers = executor if isinstance(executor, int) and not isinstance(executor, bool) else n_cores()
+    with concurrent.futures.ThreadPoolExecutor(max_workers=min(workers, len(items))) as pool:
+        return list(pool.map(fn, items))
 
 
 def _run_pool(runner, pool, task, shared, items, workers, bar):

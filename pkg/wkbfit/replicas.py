@@ -34,7 +34,7 @@ import warnings
 
 import numpy as np
 
-from .executors import describe_executor, run_chunks
+from .executors import _check_executor as check_executor, describe_executor, run_chunks
 from .observed import ObservedLevels
 
 __all__ = ["bootstrap", "ReplicaResult", "KINDS"]
@@ -59,10 +59,11 @@ def fit_settings(result):
             "max_iterations": getattr(result, "max_iterations", 200)}
 
 
-def prediction_values(result, isotopologue, v_top):
+def prediction_values(result, isotopologue, v_top, n_top=None):
     """The predictions of one fit (J = 0), as a dict of floats: the values of result.predict,
     computed directly by the core (without the uncertainty propagation) for the methods the
-    core runs itself, else through result.predict."""
+    core runs itself, else through result.predict. n_top: follow the top n_top bound levels
+    instead of the levels v_top."""
     from . import _core
     from .fitting import _METHOD_CODES, _level_code
     if result.method in _METHOD_CODES or result.method == "corrected":
@@ -86,6 +87,8 @@ def prediction_values(result, isotopologue, v_top):
         pred = result.predict(isotopologue=isotopologue)
         E, asym, vD = pred.energy, pred.energy[0] + pred.binding_energy[0] if pred.n_bound else math.nan, pred.vD
     out = {"D0": asym - E[0] if len(E) else math.nan, "vD": vD, "n_bound": float(len(E))}
+    if n_top is not None:
+        v_top = range(max(0, len(E) - n_top), len(E))
     for v in v_top:
         out["Eb(v=%d)" % v] = float(asym - E[v]) if v < len(E) else math.nan
     return out
@@ -175,6 +178,7 @@ def bootstrap(result, n=1000, seed=1, kind="monte-carlo", executor=None, *, prog
         raise ValueError("check_tolerance=%r must be a positive number of standard deviations" % (check_tolerance,))
     if kind not in KINDS:
         raise ValueError("kind=%r is not known; use %s" % (kind, " or ".join("%r (%s)" % kv for kv in KINDS.items())))
+    check_executor(executor)  # before any work on threads
     if result.status != "converged":
         raise ValueError("the fit did not converge (%s): replicas would start from a point that is not the "
                          "minimum; refit until it converges, then bootstrap" % result.message)
@@ -189,10 +193,9 @@ def bootstrap(result, n=1000, seed=1, kind="monte-carlo", executor=None, *, prog
     label = obs.isotopologues[0] if isotopologue is None else isotopologue
     if label not in result.masses:
         raise ValueError("isotopologue=%r is not one of the fit (%s)" % (label, ", ".join(map(repr, result.masses))))
-    central = prediction_values(result, label, [])
-    n_bound = int(central["n_bound"])
-    v_top = list(range(max(0, n_bound - n_top_levels), n_bound))
-    central = prediction_values(result, label, v_top)
+    central = prediction_values(result, label, None, n_top=n_top_levels)
+    v_top = [int(k[5:-1]) for k in central if k.startswith("Eb(v=")]
+    covariance_prediction = result.predict(isotopologue=label)  # once: the check and the table use it
     noise_scale = (result.sqrt_reduced_chi_square if (result.scale_uncertainties and result.sqrt_reduced_chi_square)
                    else 1.0)
     shared = {
@@ -212,10 +215,11 @@ def bootstrap(result, n=1000, seed=1, kind="monte-carlo", executor=None, *, prog
         from .fitting import FitWarning
         warnings.simplefilter("ignore", FitWarning)
         if refit != "full" and not why_not:
-            shared["fast"] = replicas_linear.prepare(result, label, v_top)
+            shared["fast"] = replicas_linear.prepare(result, label, v_top, executor)
             out = run_chunks(replicas_linear.fast_chunk, shared, range(n), executor, progress, desc="replicas",
                              batched=True)
-            method_check = replicas_linear.check(result, shared, out, tolerance=check_tolerance)
+            method_check = replicas_linear.check(result, shared, out, covariance_prediction, executor,
+                                                 tolerance=check_tolerance)
             del shared["fast"]
             if not method_check["passed"]:
                 # the linearised corrections are not good enough here: the full refits
@@ -227,7 +231,7 @@ def bootstrap(result, n=1000, seed=1, kind="monte-carlo", executor=None, *, prog
             out = run_chunks(_replica_task, shared, range(n), executor, progress, desc="replicas")
     return ReplicaResult(result, out, kind=kind, seed=seed, executor=describe_executor(executor),
                          central_predictions=central, isotopologue=label, noise_scale=noise_scale,
-                         method_check=method_check)
+                         method_check=method_check, covariance_prediction=covariance_prediction)
 
 
 class ReplicaResult:
@@ -247,7 +251,7 @@ class ReplicaResult:
     """
 
     def __init__(self, fit_result, outcomes, *, kind, seed, executor, central_predictions, isotopologue,
-                 noise_scale, method_check=None):
+                 noise_scale, method_check=None, covariance_prediction=None):
         self.fit_result = fit_result
         self.method_check = dict(method_check or {"refit": "full", "notes": []})
         self.refit = self.method_check["refit"]
@@ -265,7 +269,7 @@ class ReplicaResult:
         self.central = dict(fit_result.values)
         self.central["chi_square"] = fit_result.chi_square
         self.central.update(central_predictions)
-        self.covariance_sd = self._covariance_sd(fit_result, central_predictions)
+        self.covariance_sd = self._covariance_sd(fit_result, central_predictions, covariance_prediction)
         self.mean, self.std, self.intervals, self.n_finite = {}, {}, {}, {}
         for k in self.names:
             x = self.values[k]
@@ -276,10 +280,11 @@ class ReplicaResult:
             self.intervals[k] = {p: tuple(float(q) for q in np.percentile(x, [50 * (1 - p), 50 * (1 + p)]))
                                  if len(x) else (math.nan, math.nan) for p in INTERVALS}
 
-    def _covariance_sd(self, res, central):
+    def _covariance_sd(self, res, central, pred=None):
         out = {n: res.params[n].uncertainty for n in res.var_names}
         out["chi_square"] = None
-        pred = res.predict(isotopologue=self.isotopologue)
+        if pred is None:
+            pred = res.predict(isotopologue=self.isotopologue)
         out["D0"], out["vD"], out["n_bound"] = pred.D0_uncertainty, pred.vD_uncertainty, None
         for k in central:
             if k.startswith("Eb(v="):

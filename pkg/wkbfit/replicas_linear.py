@@ -83,7 +83,24 @@ def _bounds(result, names):
     return lower, upper
 
 
-def _term_values(model, p, curve, keys, pred_mu, n_pred, exact, tol):
+def exact_selected(model, p, curve, mu, vs, tol):
+    """({v: (term value, binding energy)} of the levels vs at J = 0 that are bound, exact count)."""
+    J0 = np.array([0], dtype=np.intc)
+    vs = np.asarray(vs, dtype=np.intc)
+    try:
+        res = _core.exact_levels(model, p, curve, float(mu), J0, vs, energy_tol=tol)
+    except ValueError:  # a top level not bound here: ask for the bound ones
+        count = int(_core.exact_levels(model, p, curve, float(mu), J0, vs[:1], energy_tol=tol)["count"][0])
+        vs = vs[vs < count]
+        res = _core.exact_levels(model, p, curve, float(mu), J0, vs, energy_tol=tol) if len(vs) else None
+    out = {}
+    if res is not None:
+        out = {int(v): (float(e), float(b)) for v, e, b in zip(res["v"], res["energy"], res["binding_energy"])}
+        count = int(res["count"][0])
+    return out, count
+
+
+def _term_values(model, p, curve, keys, pred_mu, exact, tol):
     """Term values (cm-1 above the minimum) of the table's levels at p: exact or first-order WKB;
     NaN for a prediction level that is not bound there."""
     out = np.full(len(keys["v"]), np.nan)
@@ -93,20 +110,22 @@ def _term_values(model, p, curve, keys, pred_mu, n_pred, exact, tol):
         out[data] = exact_calc(model, p, curve, kv, krot, kmu, 0, tol)[0]
     else:
         out[data] = _core.fit_evaluate(model, p, curve, kv, krot, kmu, 0, 0)[0]
-    if n_pred:
+    sel = np.nonzero(keys["pred"])[0]
+    if len(sel):
         if exact:
-            E = np.asarray(_core.exact_levels(model, p, curve, float(pred_mu), np.array([0], dtype=np.intc), None,
-                                              energy_tol=tol)["energy"])
+            levels, _ = exact_selected(model, p, curve, pred_mu, keys["v"][sel], tol)
+            E = {v: e for v, (e, b) in levels.items()}
         else:
-            E = np.asarray(_core.fit_levels(model, p, curve, float(pred_mu), 0.0, 0)["energy"])
-        sel = np.nonzero(keys["pred"])[0]
-        got = keys["v"][sel] < len(E)
-        out[sel[got]] = E[keys["v"][sel[got]]]
+            wk = np.asarray(_core.fit_levels(model, p, curve, float(pred_mu), 0.0, 0)["energy"])
+            E = dict(enumerate(wk.tolist()))
+        out[sel] = [E.get(int(v), np.nan) for v in keys["v"][sel]]
     return out
 
 
-def prepare(result, label, v_top):
-    """The shared data of the fast replicas (a dict of arrays and numbers, picklable)."""
+def prepare(result, label, v_top, executor=None):
+    """The shared data of the fast replicas (a dict of arrays and numbers, picklable). The
+    n_vary + 1 exact evaluations run on threads of this process unless executor is "serial"."""
+    from .executors import local_map
     obs = result.observed
     names = list(result.potential.param_names)
     var = [names.index(n) for n in result.var_names]
@@ -123,16 +142,17 @@ def prepare(result, label, v_top):
     tol = exact_tolerance(sigma)
 
     # the table of corrected levels: the data's levels, each reduced mass's v=0, J=0 for the zero
-    # "lowest", and (corrected) the J = 0 levels of the predictions up to the central exact count
+    # "lowest", and (corrected) the J = 0 levels the predictions report: v = 0 (D0), the top levels
+    # followed and the top bound level (the count). Levels in between take the correction of the
+    # nearest entry below: they are reported by none of the predictions, and lie so far below the
+    # asymptote that such a correction cannot change whether they are bound.
     n_pred = 0
     if corrected:
-        n_pred = int(_core.exact_levels(model, p0, curve, pred_mu, np.array([0], dtype=np.intc), None,
-                                        energy_tol=tol)["count"][0])
-    tab = {(m, r, int(x)) for m, r, x in zip(mu_rows.tolist(), rot.tolist(), v.tolist())}
-    data_keys = set(tab)
+        n_pred = exact_selected(model, p0, curve, pred_mu, [0], tol)[1]
+    data_keys = {(m, r, int(x)) for m, r, x in zip(mu_rows.tolist(), rot.tolist(), v.tolist())}
     if zero == _ENERGY_ZERO_CODES["lowest"]:
         data_keys |= {(m, 0.0, 0) for m in set(mu_rows.tolist())}
-    pred_keys = {(pred_mu, 0.0, x) for x in range(n_pred)}
+    pred_keys = {(pred_mu, 0.0, x) for x in sorted({0, n_pred - 1} | set(v_top)) if 0 <= x < n_pred}
     allk = sorted(data_keys | pred_keys)
     keys = {"mu": np.array([k[0] for k in allk], dtype=float), "rot": np.array([k[1] for k in allk], dtype=float),
             "v": np.array([k[2] for k in allk], dtype=np.intc)}
@@ -143,27 +163,31 @@ def prepare(result, label, v_top):
     notes = []
     if corrected:
         def corrections(p):
-            return (_term_values(model, p, curve, keys, pred_mu, n_pred, True, tol)
-                    - _term_values(model, p, curve, keys, pred_mu, n_pred, False, tol))
-        shift = corrections(p0)
-        n_wkb = int(np.count_nonzero(np.isfinite(shift[keys["pred"]])))
-        if np.any(~np.isfinite(shift[~keys["pred_only"]])):
-            raise ValueError("a level of the data has no first-order WKB counterpart at the central fit")
-        if n_wkb < n_pred:
-            notes.append("the exact solver binds %d levels at J = 0, the first-order core %d: the top %d cannot "
-                         "be corrected (the fast predictions count at most %d)" % (n_pred, n_wkb, n_pred - n_wkb,
-                                                                                  n_wkb))
-            shift[~np.isfinite(shift)] = 0.0
-        slope = np.zeros((len(shift), len(names)))
-        n_missing = 0
+            return (_term_values(model, p, curve, keys, pred_mu, True, tol)
+                    - _term_values(model, p, curve, keys, pred_mu, False, tol))
+        steps = []
         for k, name in zip(var, result.var_names):
             h = float(result.params[name].uncertainty or 0) or 1e-6 * max(abs(p0[k]), 1.0)
             step = np.zeros(len(names))
             step[k] = h
-            col = (corrections(p0 + step) - shift) / h
+            steps.append(step)
+        got = local_map(corrections, [p0] + [p0 + st for st in steps], executor)
+        shift = got[0]
+        if np.any(~np.isfinite(shift[~keys["pred_only"]])):
+            raise ValueError("a level of the data has no first-order WKB counterpart at the central fit")
+        n_wkb = prediction_count(model, p0, curve, pred_mu)
+        if n_wkb < n_pred:
+            notes.append("the exact solver binds %d levels at J = 0, the first-order core %d: the fast predictions "
+                         "count at most %d (the exact check compares the counts)" % (n_pred, n_wkb, n_wkb))
+            shift[~np.isfinite(shift)] = 0.0
+        slope = np.zeros((len(shift), len(names)))
+        n_missing = 0
+        for k, st, up in zip(var, steps, got[1:]):
+            h = st[k]
+            col = (up - shift) / h
             bad = ~np.isfinite(col)
             if np.any(bad):  # a top level unbound one sd up: the other side
-                back = (shift - corrections(p0 - step)) / h
+                back = (shift - corrections(p0 - st)) / h
                 col[bad] = back[bad]
                 bad = ~np.isfinite(col)
                 n_missing += int(np.count_nonzero(bad))
@@ -277,8 +301,45 @@ def _undetermined(fast, counts):
             ("a combination of %s" % ", ".join(names) if sing else "") for ins, sing in zip(insensitive, singular)]
 
 
-def check(result, shared, outcomes, n_check=N_CHECK, tolerance=TOLERANCE):
-    """The exact refresh of the n_check replicas farthest from the centre; returns the check dict."""
+def _check_one(result, shared, i, vals, d2, sd, pred_sd):
+    """The exact refresh of replica i (fast values vals): one dict of the check."""
+    fast = shared["fast"]
+    var = fast["var"]
+    model, curve = fast["model"], fast["curve"]
+    tol = exact_tolerance(fast["sigma"])
+    energies, counts = replica_data(shared, fast, i)
+    p = fast["p0"].copy()
+    p[var] = [vals[n] for n in fast["var_names"]]
+    # the exact problem's Gauss-Newton step at the fast point (central exact Jacobian): the distance
+    # from the replica's exact minimum, to first order in that (small) distance
+    calc = exact_calc(model, p, curve, fast["v"], fast["rot"], fast["mu"], fast["energy_zero"], tol)[0]
+    w = np.sqrt(counts) if counts is not None else np.ones(len(calc))
+    r = (calc - energies) / fast["sigma"] * w
+    step = np.linalg.lstsq(fast["jacobian_w"] * w[:, None], -r, rcond=None)[0]
+    err_p = float(np.max(np.abs(step) / sd))
+    # exact predictions at the fast point against the fast ones
+    levels, count = exact_selected(model, p, curve, fast["pred_mu"], [0] + list(fast["v_top"]), tol)
+    exact_pred = {"D0": levels[0][1] if 0 in levels else math.nan}
+    for v in fast["v_top"]:
+        exact_pred["Eb(v=%d)" % v] = levels[v][1] if v in levels else math.nan
+    errs = []
+    for k, x in exact_pred.items():
+        if math.isfinite(vals[k]) and math.isfinite(x):
+            errs.append(abs(vals[k] - x) / pred_sd[k] if pred_sd[k] else 0.0)
+        elif math.isfinite(vals[k]) != math.isfinite(x):
+            errs.append(math.inf)  # bound in one and not in the other
+    # the slopes' share: the same replica with frozen corrections
+    single = run_core(fast, energies[None, :], None if counts is None else counts[None, :], slope=False)
+    eff = float(np.max(np.abs(single["params"][0][var] - p[var]) / sd)) if single["status"][0] <= 0 else math.nan
+    return {"replica": int(i), "distance_sd": float(math.sqrt(max(d2, 0))), "parameter_error_sd": err_p,
+            "prediction_error_sd": max(errs) if errs else 0.0, "n_bound_fast": int(vals["n_bound"]),
+            "n_bound_exact": int(count), "slope_effect_sd": eff}
+
+
+def check(result, shared, outcomes, pred, executor=None, n_check=N_CHECK, tolerance=TOLERANCE):
+    """The exact refresh of the n_check replicas farthest from the centre; returns the check dict.
+    pred: result.predict() for the isotopologue of the predictions (their covariance uncertainties)."""
+    from .executors import local_map
     fast = shared["fast"]
     info = {"refit": "linearised", "tolerance": tolerance, "notes": list(fast["notes"]), "checked": [],
             "parameter_error_sd": 0.0, "prediction_error_sd": 0.0, "slope_effect_sd": 0.0, "n_bound_mismatch": 0,
@@ -286,54 +347,26 @@ def check(result, shared, outcomes, n_check=N_CHECK, tolerance=TOLERANCE):
     if fast["shift"] is None:
         info["notes"].append("method wkb: the replicas are the same first-order problem; no check needed")
         return info
-    names, var = fast["var_names"], fast["var"]
+    names = fast["var_names"]
     sd = np.array([result.params[n].uncertainty for n in names], dtype=float)
     ok = [(i, vals) for i, reason, vals in outcomes if reason is None]
     if not ok:
         return info
     P = np.array([[vals[n] for n in names] for _, vals in ok])
-    cov = np.asarray(result.covariance, dtype=float)
     dp = P - np.array([result.values[n] for n in names])
-    d2 = np.einsum("ij,jk,ik->i", dp, np.linalg.pinv(cov), dp)
+    d2 = np.einsum("ij,jk,ik->i", dp, np.linalg.pinv(np.asarray(result.covariance, dtype=float)), dp)
     pick = np.argsort(-d2, kind="stable")[:n_check]
-    A = fast["jacobian_w"]
-    pred = result.predict(isotopologue=shared["isotopologue_label"])
     pred_sd = {"D0": pred.D0_uncertainty}
     for v in fast["v_top"]:
         pred_sd["Eb(v=%d)" % v] = float(pred.binding_uncertainty[v])
-    model, curve = fast["model"], fast["curve"]
-    tol = exact_tolerance(fast["sigma"])
-    for j in pick:
-        i, vals = ok[j]
-        energies, counts = replica_data(shared, fast, i)
-        p = fast["p0"].copy()
-        p[var] = P[j]
-        calc = exact_calc(model, p, curve, fast["v"], fast["rot"], fast["mu"], fast["energy_zero"], tol)[0]
-        w = np.sqrt(counts) if counts is not None else np.ones(len(calc))
-        r = (calc - energies) / fast["sigma"] * w
-        step = np.linalg.lstsq(A * w[:, None], -r, rcond=None)[0]
-        err_p = float(np.max(np.abs(step) / sd))
-        # exact predictions at the fast point against the fast ones
-        ex = _core.exact_levels(model, p, curve, fast["pred_mu"], np.array([0], dtype=np.intc), None, energy_tol=tol)
-        Eex = np.asarray(ex["binding_energy"])  # asymptote - E, without cancellation
-        exact_pred = {"D0": float(Eex[0]) if len(Eex) else math.nan}
-        for v in fast["v_top"]:
-            exact_pred["Eb(v=%d)" % v] = float(Eex[v]) if v < len(Eex) else math.nan
-        err_q = max((abs(vals[k] - exact_pred[k]) / pred_sd[k]) if (pred_sd[k] and math.isfinite(vals[k])
-                    and math.isfinite(exact_pred[k])) else (0.0 if math.isfinite(vals[k]) == math.isfinite(
-                        exact_pred[k]) else math.inf) for k in exact_pred)
-        mismatch = int(vals["n_bound"] != len(Eex))
-        # the slopes' share: the same replica with frozen corrections
-        single = run_core(fast, energies[None, :], None if counts is None else counts[None, :], slope=False)
-        eff = float(np.max(np.abs(single["params"][0][var] - P[j]) / sd)) if single["status"][0] <= 0 else math.nan
-        info["checked"].append({"replica": int(i), "distance_sd": float(math.sqrt(max(d2[j], 0))),
-                                "parameter_error_sd": err_p, "prediction_error_sd": err_q,
-                                "n_bound_fast": int(vals["n_bound"]), "n_bound_exact": int(len(Eex)),
-                                "slope_effect_sd": eff})
-        info["parameter_error_sd"] = max(info["parameter_error_sd"], err_p)
-        info["prediction_error_sd"] = max(info["prediction_error_sd"], err_q)
+    info["checked"] = local_map(lambda j: _check_one(result, shared, ok[j][0], ok[j][1], d2[j], sd, pred_sd),
+                                pick, executor)
+    for c in info["checked"]:
+        info["parameter_error_sd"] = max(info["parameter_error_sd"], c["parameter_error_sd"])
+        info["prediction_error_sd"] = max(info["prediction_error_sd"], c["prediction_error_sd"])
+        eff = c["slope_effect_sd"]
         info["slope_effect_sd"] = max(info["slope_effect_sd"], eff) if math.isfinite(eff) else math.nan
-        info["n_bound_mismatch"] += mismatch
+        info["n_bound_mismatch"] += int(c["n_bound_fast"] != c["n_bound_exact"])
     info["extrapolated_levels"] = int(sum(vals.get("_extrapolated", 0) for _, vals in ok))
     if info["parameter_error_sd"] > tolerance:
         info["passed"], info["reason"] = False, "parameter error %.3g sd above the tolerance %.3g sd" % (
