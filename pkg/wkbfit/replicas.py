@@ -29,6 +29,7 @@ Predictions of every replica (for one isotopologue at J = 0): D0 (asymptote minu
 vD, the number of bound levels, and the binding energies of the levels nearest dissociation
 (the top `n_top_levels` of the central fit, NaN in a replica that does not bind one).
 """
+import concurrent.futures
 import math
 import warnings
 
@@ -195,7 +196,28 @@ def bootstrap(result, n=1000, seed=1, kind="monte-carlo", executor=None, *, prog
         raise ValueError("isotopologue=%r is not one of the fit (%s)" % (label, ", ".join(map(repr, result.masses))))
     central = prediction_values(result, label, None, n_top=n_top_levels)
     v_top = [int(k[5:-1]) for k in central if k.startswith("Eb(v=")]
-    covariance_prediction = result.predict(isotopologue=label)  # once: the check and the table use it
+    # the covariance side of the table (once: the check uses it too), computed beside the replicas on a
+    # thread of its own (the core releases the GIL) unless the run is serial
+    side = concurrent.futures.ThreadPoolExecutor(1) if executor != "serial" else None
+    try:
+        return _bootstrap(result, n, seed, kind, executor, progress, label, central, v_top, refit, check_tolerance,
+                          side.submit(result.predict, isotopologue=label) if side else None)
+    finally:
+        if side:
+            side.shutdown(wait=True)
+
+
+def _bootstrap(result, n, seed, kind, executor, progress, label, central, v_top, refit, check_tolerance,
+               prediction_future):
+    from . import replicas_linear
+    obs = result.observed
+    cached = []
+
+    def covariance_prediction():
+        if not cached:
+            cached.append(prediction_future.result() if prediction_future else result.predict(isotopologue=label))
+        return cached[0]
+
     noise_scale = (result.sqrt_reduced_chi_square if (result.scale_uncertainties and result.sqrt_reduced_chi_square)
                    else 1.0)
     shared = {
@@ -218,7 +240,7 @@ def bootstrap(result, n=1000, seed=1, kind="monte-carlo", executor=None, *, prog
             shared["fast"] = replicas_linear.prepare(result, label, v_top, executor)
             out = run_chunks(replicas_linear.fast_chunk, shared, range(n), executor, progress, desc="replicas",
                              batched=True)
-            method_check = replicas_linear.check(result, shared, out, covariance_prediction, executor,
+            method_check = replicas_linear.check(result, shared, out, covariance_prediction(), executor,
                                                  tolerance=check_tolerance)
             del shared["fast"]
             if not method_check["passed"]:
@@ -231,7 +253,7 @@ def bootstrap(result, n=1000, seed=1, kind="monte-carlo", executor=None, *, prog
             out = run_chunks(_replica_task, shared, range(n), executor, progress, desc="replicas")
     return ReplicaResult(result, out, kind=kind, seed=seed, executor=describe_executor(executor),
                          central_predictions=central, isotopologue=label, noise_scale=noise_scale,
-                         method_check=method_check, covariance_prediction=covariance_prediction)
+                         method_check=method_check, covariance_prediction=covariance_prediction())
 
 
 class ReplicaResult:
