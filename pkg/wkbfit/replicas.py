@@ -1,9 +1,20 @@
 """Bootstrap and Monte-Carlo replicas of a fit: the spread of the parameters and predictions.
 
 `bootstrap(result, n=1000, seed=1, kind="monte-carlo", executor=None)` (also
-`FitResult.bootstrap`) refits n replicas of the data through `wkbfit.fit` itself, with the
-result's own settings (method, varied parameters, bounds, uncertainty scaling, iteration
-limit), each starting from the fitted potential, and returns a `ReplicaResult`.
+`FitResult.bootstrap`) refits n replicas of the data, each starting from the fitted potential
+with the result's own settings (varied parameters, bounds, iteration limit), and returns a
+`ReplicaResult`. Two ways to refit (`refit=`):
+
+  "linearised"   the default for fits with exact corrections (method "corrected", the default
+                 fit) and first-order fits to one set of term values or binding energies:
+                 replicas_linear.py. Each replica is a first-order WKB fit whose levels carry
+                 the central fit's exact corrections E_exact - E_wkb, linear in the parameters
+                 (their slopes from n_vary + 1 exact evaluations, once), fitted in the C core a
+                 chunk of replicas per call with the GIL released. An exact refresh of the
+                 replicas farthest from the centre measures the method's error at run time
+                 (ReplicaResult.method_check); above `check_tolerance` (1e-2 sd) every replica
+                 is refitted the full way instead, and the result says so.
+  "full"         every replica through `wkbfit.fit` itself (the only way for other fits).
 
 Kinds of replica (the default is "monte-carlo"):
 

@@ -198,7 +198,8 @@ def prepare(result, label, v_top, executor=None):
                          % n_missing)
     lower, upper = _bounds(result, names)
     return {
-        "model": model, "p0": np.asarray(p0, dtype=float), "curve": curve, "v": v, "rot": rot, "mu": mu_rows,
+        # the potential rather than its core arguments: a point-wise curve is a capsule, which cannot be pickled
+        "potential": result.potential, "model": model, "p0": np.asarray(p0, dtype=float), "v": v, "rot": rot, "mu": mu_rows,
         "sigma": sigma, "energy_zero": zero, "vary": np.array([n in result.var_names for n in names], dtype=np.intc),
         "lower": lower, "upper": upper, "max_iterations": int(getattr(result, "max_iterations", 200)),
         "keys": keys, "shift": shift, "slope": slope, "pred_mu": pred_mu,
@@ -229,7 +230,7 @@ def run_core(fast, energies, counts, slope=True):
     table = {} if f["shift"] is None else dict(
         shift_mu=keys["mu"], shift_rot=keys["rot"], shift_v=keys["v"], shift=f["shift"],
         slope=f["slope"] if slope else None)
-    return _core.fit_replicas(f["model"], f["p0"], f["curve"], f["v"], f["rot"], f["mu"], f["sigma"],
+    return _core.fit_replicas(f["model"], f["p0"], f["potential"]._core_args()[2], f["v"], f["rot"], f["mu"], f["sigma"],
                               f["energy_zero"], f["vary"], f["lower"], f["upper"], energies,
                               counts=counts, pred_mu=f["pred_mu"], pred_capacity=f["pred_capacity"],
                               max_iterations=f["max_iterations"], **table)
@@ -305,7 +306,7 @@ def _check_one(result, shared, i, vals, d2, sd, pred_sd):
     """The exact refresh of replica i (fast values vals): one dict of the check."""
     fast = shared["fast"]
     var = fast["var"]
-    model, curve = fast["model"], fast["curve"]
+    model, curve = fast["model"], fast["potential"]._core_args()[2]
     tol = exact_tolerance(fast["sigma"])
     energies, counts = replica_data(shared, fast, i)
     p = fast["p0"].copy()
