@@ -371,3 +371,48 @@ def test_core_replica_fits_refuse_bad_arrays(morse_fit):
     E[1, 0] = np.nan
     out = _core.fit_replicas(energies=E, **base)
     assert out["status"][0] == 0 and out["status"][1] > 0 and out["message"][1]
+
+
+@pytest.mark.parametrize("zero, n_iso", [("asymptote", 1), ("lowest", 1), ("minimum", 2)])
+def test_linearised_replicas_every_energy_zero(zero, n_iso):
+    # the linearised path corrects levels, then forms the data's rows (binding energies, differences
+    # from v=0, J=0, several reduced masses): the same replicas as full refits within 1e-2 sd
+    mus = (MU, 1.2 * MU)[:n_iso]
+    rows = {"v": [], "J": [], "energy": [], "isotopologue": []}
+    for k, mu in enumerate(mus):
+        E00 = wkbfit.levels(TRUE, mu, v=[0], method="exact").energy[0]
+        for J in (0, 10):
+            E = wkbfit.levels(TRUE, mu, v=list(range(20)), J=J, method="exact").energy
+            rows["energy"] += list({"minimum": E, "asymptote": TRUE.De - E, "lowest": E - E00}[zero])
+            rows["v"] += list(range(20))
+            rows["J"] += [J] * 20
+            rows["isotopologue"] += ["X%d" % k] * 20
+    n = len(rows["v"])
+    rows["energy"] = np.array(rows["energy"]) + np.random.default_rng(3).normal(0, 0.01, n)
+    rows["uncertainty"] = np.full(n, 0.01)
+    if zero == "lowest":
+        rows["energy"][0] = 0.0
+    res = wkbfit.fit(wkbfit.Morse(De=5800.0, re=3.66, a=0.605), wkbfit.read_levels(rows, energy_zero=zero),
+                     {"X%d" % k: mu for k, mu in enumerate(mus)})
+    for kind in ("monte-carlo", "resample"):
+        fast = res.bootstrap(20, seed=2, kind=kind, executor="serial", progress=False)
+        full = res.bootstrap(20, seed=2, kind=kind, executor="serial", progress=False, refit="full")
+        assert fast.refit == "linearised" and fast.n_failed == full.n_failed == 0
+        for name in res.var_names:
+            assert np.max(np.abs(fast.values[name] - full.values[name])) < 1e-2 * res.params[name].uncertainty
+        for name in ["D0"] + [k for k in fast.names if k.startswith("Eb(")]:
+            assert np.max(np.abs(fast.values[name] - full.values[name])) < 1e-2 * fast.covariance_sd[name]
+        assert np.array_equal(fast.values["n_bound"], full.values["n_bound"])
+
+
+def test_linearised_replicas_of_a_first_order_fit():
+    # method "wkb": no corrections; the core refits the same first-order problem as wkbfit.fit does
+    # (both converge to the Levenberg-Marquardt tolerance: agreement far inside 1e-6 sd)
+    res = wkbfit.fit(wkbfit.Morse(De=5800.0, re=3.66, a=0.605), morse_data(3), MU, method="wkb")
+    fast = res.bootstrap(30, seed=4, kind="resample", executor="serial", progress=False)
+    full = res.bootstrap(30, seed=4, kind="resample", executor="serial", progress=False, refit="full")
+    assert fast.refit == "linearised" and not fast.method_check["checked"]
+    for name in res.var_names:
+        assert np.max(np.abs(fast.values[name] - full.values[name])) < 1e-6 * res.params[name].uncertainty
+    for name in fast.names:
+        assert np.allclose(fast.values[name], full.values[name], rtol=1e-9, atol=1e-9 * (1 + abs(fast.mean[name]))), name
