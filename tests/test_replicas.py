@@ -416,3 +416,28 @@ def test_linearised_replicas_of_a_first_order_fit():
         assert np.max(np.abs(fast.values[name] - full.values[name])) < 1e-6 * res.params[name].uncertainty
     for name in fast.names:
         assert np.allclose(fast.values[name], full.values[name], rtol=1e-9, atol=1e-9 * (1 + abs(fast.mean[name]))), name
+
+
+def test_check_catches_a_level_at_threshold():
+    # a light Lennard-Jones well whose last level is bound by ~1e-8 cm-1 (De = 3049 cm-1, mu = 1 u; the
+    # level appears at De ~ 3048.94, found with the exact solver): replicas differ in whether it is
+    # bound, which the linearised corrections of that level cannot decide reliably. The exact check
+    # finds a replica whose count differs from the exact one and every replica is refitted the full
+    # way: the result is that of refit="full", and says why.
+    true = wkbfit.LennardJones(De=3049.0, re=3.0)
+    vs, Js, E = [], [], []
+    for J in (0, 3):
+        vs += list(range(7))
+        Js += [J] * 7
+        E += wkbfit.levels(true, 1.0, v=list(range(7)), J=J, method="exact").energy.tolist()
+    rng = np.random.default_rng(5)
+    obs = wkbfit.read_levels({"v": vs, "J": Js, "energy": np.array(E) + rng.normal(0, 0.01, len(E)),
+                              "uncertainty": np.full(len(E), 0.01)})
+    res = wkbfit.fit(wkbfit.LennardJones(De=3040.0, re=3.01), obs, 1.0)
+    reps = res.bootstrap(200, seed=1, executor="serial", progress=False)
+    full = res.bootstrap(200, seed=1, executor="serial", progress=False, refit="full")
+    assert len(np.unique(full.values["n_bound"])) == 2  # the premise: the count changes between replicas
+    assert reps.refit == "full" and not reps.method_check["passed"]
+    assert reps.method_check["n_bound_mismatch"] >= 1
+    for k in full.names:
+        assert np.array_equal(reps.values[k], full.values[k], equal_nan=True)

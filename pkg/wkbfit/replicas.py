@@ -410,10 +410,12 @@ def _method_line(check):
     if not check.get("checked"):
         return "refits: linearised (first-order WKB refits, no exact corrections to check)"
     return ("refits: linearised (first-order WKB + the central fit's exact corrections, linear in the parameters); "
-            "exact check of the %d replicas farthest from the centre: parameters within %.2g sd, predictions "
+            "exact check of %d replicas (the farthest from the centre): parameters within %.2g sd, predictions "
             "within %.2g sd of the exact problem (tolerance %.2g sd); frozen corrections would move them %.2g sd"
             % (len(check["checked"]), check["parameter_error_sd"], check["prediction_error_sd"],
-               check["tolerance"], check["slope_effect_sd"]))
+               check["tolerance"], check["slope_effect_sd"])
+            + ("; %d predicted levels lay above the central exact count and took its top level's correction"
+               % check["extrapolated_levels"] if check.get("extrapolated_levels") else ""))
 
 
 def _text(r):

@@ -26,10 +26,12 @@ count takes the top level's correction, counted as "extrapolated"); D0, the bind
 of the top levels, the number of bound levels; vD is the first-order one, as in the full path.
 
 The run-time check ("exact refresh"): the n_check replicas farthest from the centre (in the
-Mahalanobis distance of the central covariance) get exact levels at their fast point; the
+Mahalanobis distance of the central covariance), and as many of those whose number of bound
+levels differs from the centre's, get exact levels at their fast point; the
 exact problem's Gauss-Newton step there (with the central exact Jacobian) is the fast method's
 parameter error, in standard deviations, and exact predictions at that point give the error of
-the predicted D0 and binding energies in units of their covariance uncertainties. If either is
+the predicted D0 and binding energies in units of their covariance uncertainties (beyond the
+exact levels' own tolerance, exact_tolerance(sigma), which no comparison can resolve). If either is
 above `tolerance` (default 1e-2 sd), or the number of bound levels differs, all replicas are
 refitted the full way (replicas.py) and the check says why. The check is kept in
 ReplicaResult.method_check.
@@ -326,7 +328,9 @@ def _check_one(result, shared, i, vals, d2, sd, pred_sd):
     errs = []
     for k, x in exact_pred.items():
         if math.isfinite(vals[k]) and math.isfinite(x):
-            errs.append(abs(vals[k] - x) / pred_sd[k] if pred_sd[k] else 0.0)
+            # differences within the exact levels' own tolerance cannot be resolved: they count as none
+            miss = max(0.0, abs(vals[k] - x) - tol)
+            errs.append(miss / pred_sd[k] if pred_sd[k] else (math.inf if miss else 0.0))
         elif math.isfinite(vals[k]) != math.isfinite(x):
             errs.append(math.inf)  # bound in one and not in the other
     # the slopes' share: the same replica with frozen corrections
@@ -356,7 +360,12 @@ def check(result, shared, outcomes, pred, executor=None, n_check=N_CHECK, tolera
     P = np.array([[vals[n] for n in names] for _, vals in ok])
     dp = P - np.array([result.values[n] for n in names])
     d2 = np.einsum("ij,jk,ik->i", dp, np.linalg.pinv(np.asarray(result.covariance, dtype=float)), dp)
-    pick = np.argsort(-d2, kind="stable")[:n_check]
+    order = np.argsort(-d2, kind="stable")
+    pick = list(order[:n_check])
+    # and the farthest replicas whose number of bound levels differs from the centre's, where the
+    # corrections of the top levels decide the count
+    n0 = fast["n_pred"]
+    pick += [j for j in order[n_check:] if ok[j][1]["n_bound"] != n0][:n_check]
     pred_sd = {"D0": pred.D0_uncertainty}
     for v in fast["v_top"]:
         pred_sd["Eb(v=%d)" % v] = float(pred.binding_uncertainty[v])
