@@ -441,3 +441,20 @@ def test_check_catches_a_level_at_threshold():
     assert reps.method_check["n_bound_mismatch"] >= 1
     for k in full.names:
         assert np.array_equal(reps.values[k], full.values[k], equal_nan=True)
+
+
+def test_fits_the_linearised_path_does_not_cover():
+    # Omega > 0: the rows' centrifugal term is J(J+1) - Omega^2, which the linearised path does not
+    # model: it refuses such fits (bootstrap then refits in full; its J = 0 predictions do not exist
+    # for Omega > 0 yet, so only the refusal is checked here)
+    from wkbfit import replicas_linear
+    vs = list(range(12)) * 2
+    Js = [1] * 12 + [5] * 12
+    rng = np.random.default_rng(2)
+    E = np.concatenate([wkbfit.levels(TRUE, MU, v=list(range(12)), J=J).energy for J in (1, 5)])
+    obs = wkbfit.read_levels({"v": vs, "J": Js, "energy": E + rng.normal(0, 0.01, 24),
+                              "uncertainty": np.full(24, 0.01)})
+    res = wkbfit.fit(wkbfit.Morse(De=5800.0, re=3.66, a=0.605), obs, MU, method="wkb", omega=1)
+    assert "Omega" in replicas_linear.eligible(res)
+    assert "method 'exact'" in replicas_linear.eligible(
+        wkbfit.fit(TRUE, morse_data(4, Js=(0,), nv=8), MU, vary=["De", "a"], method="exact"))

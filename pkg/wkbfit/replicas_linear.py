@@ -11,7 +11,12 @@ once per bootstrap; a secant over the range the replicas actually move). The Jac
 refit includes D, so each replica lands on the minimum of this linearised problem. Why that is
 close to the exact refit: the replicas stay within a few standard deviations of p0, over which
 the corrections change by D (p - p0) plus a second-order remainder; the remainder is what the
-run-time check below measures. (Measured on the test wells: within 1e-3 sd of full refits.)
+run-time check below measures. Measured against full refits of the same replicas
+(tests/test_replicas.py): largest parameter difference 1e-6 sd (Morse, 50 levels), 4e-6 sd (a
+light Lennard-Jones well), 2.4e-3 sd (an MLR well); replica standard deviations within 1e-4.
+D is always used (it costs nothing per replica): the check also reports how far frozen
+corrections (D = 0) would move the checked replicas, slope_effect_sd, measured 1e-5 sd (Morse),
+7e-3 sd (light Lennard-Jones) and 7e-2 sd (MLR), above the 1e-3 sd below which freezing would do.
 
 Replica fits run in the C core, a chunk of replicas per call with the GIL released
 (_core.fit_replicas, csrc/replica_fit.c); the replicas' energies (Monte-Carlo) or row counts
@@ -19,11 +24,13 @@ Replica fits run in the C core, a chunk of replicas per call with the GIL releas
 chi-square as the drawn rows) are built in NumPy from default_rng([seed, i]), the same draws as
 the full path, so one seed gives the same numbers on every executor and chunking.
 
-Predictions (one isotopologue, J = 0): the same corrected levels: every bound level
-of the replica's potential, counted until a corrected level is not below the asymptote, with
-the corrections of the central fit's exact levels at J = 0 (a level above the central exact
-count takes the top level's correction, counted as "extrapolated"); D0, the binding energies
-of the top levels, the number of bound levels; vD is the first-order one, as in the full path.
+Predictions (one isotopologue, J = 0): the same corrected levels: every first-order bound level
+of the replica's potential, counted until a corrected level is not below the asymptote. The table
+holds the exact corrections (and slopes) of the levels the predictions report: v = 0 (D0), the
+top levels followed, the top bound level (the count); levels in between take the correction of
+the entry below them (they are reported by nothing, and lie too deep for it to change whether
+they are bound), a level above the central exact count takes the top one's (counted as
+"extrapolated" in the check). vD is the first-order one, as in the full path.
 
 The run-time check ("exact refresh"): the n_check replicas farthest from the centre (in the
 Mahalanobis distance of the central covariance), and as many of those whose number of bound
@@ -66,8 +73,10 @@ def eligible(result):
     obs = result.observed
     if type(obs) is not ObservedLevels or getattr(obs, "asymptote", None) is not None:
         return "data other than one set of term values or binding energies"
-    if getattr(result, "born_oppenheimer", None) is not None:
+    if getattr(result, "correction", None) is not None:
         return "Born-Oppenheimer terms"
+    if getattr(result, "omega", 0):
+        return "Omega > 0 (a centrifugal term J(J+1) - Omega^2)"
     if not result.var_names:
         return "no varied parameter"
     return ""
