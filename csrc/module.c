@@ -1316,14 +1316,14 @@ static PyObject *py_fit_replicas(PyObject *self, PyObject *args, PyObject *kwds)
 {
     static char *kwlist[] = {"model", "params", "curve", "v", "rot", "mu", "sigma", "energy_zero", "vary", "lower",
                              "upper", "energies", "counts", "shift_mu", "shift_rot", "shift_v", "shift", "slope",
-                             "pred_mu", "pred_capacity", "max_iterations", NULL};
+                             "pred_mu", "pred_v", "max_iterations", NULL};
     const char *model_name;
     PyObject *params_obj, *curve_obj, *v_obj, *rot_obj, *mu_obj, *sigma_obj, *vary_obj, *lower_obj, *upper_obj,
         *energies_obj, *counts_obj = Py_None, *smu_obj = Py_None, *srot_obj = Py_None, *sv_obj = Py_None,
-        *shift_obj = Py_None, *slope_obj = Py_None, *result = NULL;
+        *shift_obj = Py_None, *slope_obj = Py_None, *pred_v_obj = Py_None, *result = NULL;
     int energy_zero, status;
     double pred_mu = 0;
-    Py_ssize_t pred_capacity = 0, max_iterations = -1;
+    Py_ssize_t max_iterations = -1;
     wkb_fit_settings settings = wkb_fit_default_settings();
     fit_arrays a = {0};
     wkb_fit_data data;
@@ -1332,29 +1332,31 @@ static PyObject *py_fit_replicas(PyObject *self, PyObject *args, PyObject *kwds)
     wkb_error err = {0};
     wkb_replica_outcome *outcomes = NULL;
     PyArrayObject *vary = NULL, *lower = NULL, *upper = NULL, *energies = NULL, *counts = NULL, *smu = NULL,
-                  *srot = NULL, *sv = NULL, *shift = NULL, *slope = NULL, *params = NULL, *pred = NULL;
+                  *srot = NULL, *sv = NULL, *shift = NULL, *slope = NULL, *params = NULL, *pred = NULL,
+                  *pred_v = NULL;
     enum { NCOLS = 9 };
     PyArrayObject *cols[NCOLS] = {NULL};
     static const char *col_names[NCOLS] = {"status", "stop", "chi_square", "iterations", "pred_count", "vD",
                                            "asymptote", "extrapolated", "insensitive"};
 
-    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOOOOOiOOOO|OOOOOOdnn", kwlist, &model_name, &params_obj,
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOOOOOiOOOO|OOOOOOdOn", kwlist, &model_name, &params_obj,
                                      &curve_obj, &v_obj, &rot_obj, &mu_obj, &sigma_obj, &energy_zero, &vary_obj,
                                      &lower_obj, &upper_obj, &energies_obj, &counts_obj, &smu_obj, &srot_obj,
-                                     &sv_obj, &shift_obj, &slope_obj, &pred_mu, &pred_capacity, &max_iterations))
+                                     &sv_obj, &shift_obj, &slope_obj, &pred_mu, &pred_v_obj, &max_iterations))
         return NULL;
     if (max_iterations >= 0)
         settings.max_iterations = (size_t)max_iterations;
-    if (pred_capacity < 0 || pred_capacity > 100000) {
-        PyErr_Format(PyExc_ValueError, "pred_capacity=%zd must be between 0 and 100000", pred_capacity);
-        return NULL;
-    }
-    if (pred_capacity && !(isfinite(pred_mu) && pred_mu > 0)) {
-        PyErr_Format(PyExc_ValueError, "pred_mu=%g must be a positive reduced mass (u)", pred_mu);
-        return NULL;
-    }
     if (parse_potential(model_name, params_obj, curve_obj, &pot) < 0)
         return NULL;
+    if (pred_v_obj != Py_None) {
+        if (!(pred_v = as_checked_int_array(pred_v_obj, "pred_v", 0)))
+            return NULL;
+        if (PyArray_SIZE(pred_v) && !(isfinite(pred_mu) && pred_mu > 0)) {
+            PyErr_Format(PyExc_ValueError, "pred_mu=%g must be a positive reduced mass (u)", pred_mu);
+            goto cleanup;
+        }
+    }
+    const npy_intp n_pred_v = pred_v ? PyArray_SIZE(pred_v) : 0;
     if (parse_fit_arrays(v_obj, rot_obj, mu_obj, NULL, sigma_obj, energy_zero, &a, &data) < 0)
         goto cleanup;
     const size_t np = pot.model->n_params, n = data.n;
@@ -1395,7 +1397,7 @@ static PyObject *py_fit_replicas(PyObject *self, PyObject *args, PyObject *kwds)
         shifts.slope = slope ? PyArray_DATA(slope) : NULL;
         shifts.p0 = pot.p; /* the corrections were made at the start (the central fit) */
     }
-    npy_intp pdims[2] = {n_rep, (npy_intp)np}, edims[2] = {n_rep, pred_capacity};
+    npy_intp pdims[2] = {n_rep, (npy_intp)np}, edims[2] = {n_rep, n_pred_v};
     if (!(params = (PyArrayObject *)PyArray_ZEROS(2, pdims, NPY_DOUBLE, 0)) ||
         !(pred = (PyArrayObject *)PyArray_ZEROS(2, edims, NPY_DOUBLE, 0)))
         goto cleanup;
@@ -1407,8 +1409,9 @@ static PyObject *py_fit_replicas(PyObject *self, PyObject *args, PyObject *kwds)
         const double *pe = PyArray_DATA(energies), *pc = counts ? PyArray_DATA(counts) : NULL;
         double *pp = PyArray_DATA(params), *pr = PyArray_DATA(pred);
         Py_BEGIN_ALLOW_THREADS
+        const int *pv = pred_v ? PyArray_DATA(pred_v) : NULL;
         status = wkb_fit_replicas(&pot, &data, &spec, &settings, have_shifts ? &shifts : NULL, (size_t)n_rep, pe, pc,
-                                  pred_mu, (size_t)pred_capacity, outcomes, pp, pr, &err);
+                                  pred_mu, pv, (size_t)n_pred_v, outcomes, pp, pr, &err);
         Py_END_ALLOW_THREADS
     }
     if (status) {
@@ -1464,6 +1467,7 @@ cleanup:
     Py_XDECREF(slope);
     Py_XDECREF(params);
     Py_XDECREF(pred);
+    Py_XDECREF(pred_v);
     for (int c = 0; c < NCOLS; c++)
         Py_XDECREF(cols[c]);
     return result;
@@ -2204,8 +2208,8 @@ static PyMethodDef core_methods[] = {
      "ValueError(message, row index)"},
     {"fit_replicas", (PyCFunction)(void (*)(void))py_fit_replicas, METH_VARARGS | METH_KEYWORDS,
      "fit_replicas(model, params, curve, v, rot, mu, sigma, energy_zero, vary, lower, upper, energies[n_rep, n],\n"
-     "counts=None, shift_mu, shift_rot, shift_v, shift, slope=None, pred_mu=0, pred_capacity=0, max_iterations=-1)\n"
-     "-> dict (params[n_rep, n_params], pred_energy[n_rep, pred_capacity], status, stop, chi_square, iterations,\n"
+     "counts=None, shift_mu, shift_rot, shift_v, shift, slope=None, pred_mu=0, pred_v=None, max_iterations=-1)\n"
+     "-> dict (params[n_rep, n_params], pred_energy[n_rep, len(pred_v)], status, stop, chi_square, iterations,\n"
      "pred_count, vD, asymptote, extrapolated, message): one first-order fit per replica from params, levels\n"
      "corrected by shift + slope (p - params) (replica_fit.c); status < 0: the predictions failed"},
     {"fit_run_rows", (PyCFunction)(void (*)(void))py_fit_run_rows, METH_VARARGS | METH_KEYWORDS,

@@ -8,8 +8,8 @@
  * with shift_v = E_exact,v - E_wkb,v at the central fit p0 and slope_v its finite-difference
  * derivative (both made by the caller, replicas.py). The Jacobian gets slope_v too, so each
  * replica's minimum is the minimum of the linearised problem. The same source gives the
- * replica's predictions: its bound levels at one reduced mass and J = 0, counted until a corrected
- * level is not below the asymptote.
+ * replica's predictions at one reduced mass and J = 0: the number of bound corrected levels and
+ * the levels asked for (see predict below).
  *
  * A replica depends only on its own data: the results never depend on how the caller splits the
  * replicas into calls. Nothing here touches Python; the caller releases the GIL around a call.
@@ -96,6 +96,42 @@ static int shifted_level(void *ctx, int v, double *energy, double *dEdp, wkb_err
     return WKB_SUCCESS;
 }
 
+/* The predictions of one replica at (mu, J = 0): the corrected levels want[n_want] (NaN for those
+   not bound), the number of bound corrected levels and the first-order vD. Only the top levels and
+   those asked for are computed: the count is one more than the highest first-order level whose
+   corrected energy lies below the asymptote, every level under it being bound (the corrections
+   are far smaller than the binding energies there). */
+static int predict(shifted_source *s, const wkb_potential *pot, double mu, const int *want, size_t n_want,
+                   double *E, size_t *count, double *vD, wkb_error *err)
+{
+    int status = shifted_set(s, pot, mu, 0.0, err);
+    size_t n = 0;
+    if (status || (status = wkb_level_count(s->well, &n, vD, err)))
+        return status;
+    const double top = wkb_well_top(s->well);
+    if (wkb_well_bound_top(s->well) < top - 1e-6 * (top - wkb_well_bottom(s->well)))
+        *vD = NAN; /* an inner wall lower than the asymptote: no action at dissociation (as wkb_fit_levels) */
+    for (; n > 0; n--) {
+        double e;
+        wkb_error e2 = {0};
+        status = shifted_level(s, (int)(n - 1), &e, NULL, &e2);
+        if (status == WKB_SUCCESS)
+            break;
+        if (status != WKB_ENOLEVEL) {
+            if (err)
+                *err = e2;
+            return status;
+        }
+    }
+    *count = n;
+    for (size_t k = 0; k < n_want; k++) {
+        E[k] = NAN;
+        if (want[k] >= 0 && (size_t)want[k] < n && (status = shifted_level(s, want[k], &E[k], NULL, err)))
+            return status;
+    }
+    return WKB_SUCCESS;
+}
+
 static int check_shifts(const wkb_level_shifts *t, size_t np, wkb_error *err)
 {
     if (!t->mu || !t->rot || !t->v || !t->shift || !t->p0)
@@ -116,12 +152,13 @@ static int check_shifts(const wkb_level_shifts *t, size_t np, wkb_error *err)
 
 int wkb_fit_replicas(const wkb_potential *start, const wkb_fit_data *data, const wkb_fit_spec *spec,
                      const wkb_fit_settings *settings, const wkb_level_shifts *shifts, size_t n_rep,
-                     const double *energy, const double *count, double pred_mu, size_t pred_capacity,
-                     wkb_replica_outcome *outcomes, double *params, double *pred_energy, wkb_error *err)
+                     const double *energy, const double *count, double pred_mu, const int *pred_v,
+                     size_t n_pred_v, wkb_replica_outcome *outcomes, double *params, double *pred_energy,
+                     wkb_error *err)
 {
     const size_t n = data->n, np = start->model->n_params;
     int *v = NULL;
-    double *rot = NULL, *mu = NULL, *E = NULL, *sigma = NULL, *calc = NULL, *jac = NULL, *pgrad = NULL;
+    double *rot = NULL, *mu = NULL, *E = NULL, *sigma = NULL, *calc = NULL, *jac = NULL;
     shifted_source ctx;
     wkb_level_source source = {&ctx, shifted_set, shifted_level};
     int status = WKB_SUCCESS;
@@ -143,9 +180,8 @@ int wkb_fit_replicas(const wkb_potential *start, const wkb_fit_data *data, const
     sigma = malloc(n * sizeof *sigma);
     calc = malloc(n * sizeof *calc);
     jac = malloc(n * np * sizeof *jac);
-    pgrad = malloc((pred_capacity ? pred_capacity : 1) * np * sizeof *pgrad);
     ctx.well = wkb_well_alloc(&settings->levels);
-    if (!v || !rot || !mu || !E || !sigma || !calc || !jac || !pgrad || !ctx.well) {
+    if (!v || !rot || !mu || !E || !sigma || !calc || !jac || !ctx.well) {
         status = wkb_fail(err, WKB_ENOMEM, "out of memory for replica fits of %zu levels", n);
         goto cleanup;
     }
@@ -178,15 +214,15 @@ int wkb_fit_replicas(const wkb_potential *start, const wkb_fit_data *data, const
         for (size_t k = 0; k < np; k++)
             o->insensitive |= out.insensitive[k];
         o->extrapolated_fit = extrapolated;
-        if (o->status || !pred_capacity)
+        if (o->status || !n_pred_v)
             continue;
-        /* predictions: the bound levels at pred_mu, J = 0, with the same corrections */
+        /* predictions at pred_mu, J = 0, with the same corrections */
         wkb_potential q;
         extrapolated = 0;
         int st = wkb_potential_init(&q, start->model, out.params, start->curve, &o->error);
         if (!st)
-            st = wkb_fit_levels(&q, pred_mu, 0.0, &settings->levels, &source, pred_capacity,
-                                pred_energy + r * pred_capacity, pgrad, &o->pred_count, &o->vD, NULL, &o->error);
+            st = predict(&ctx, &q, pred_mu, pred_v, n_pred_v, pred_energy + r * n_pred_v, &o->pred_count, &o->vD,
+                         &o->error);
         o->pred_status = st;
         o->asymptote = wkb_potential_asymptote(&q);
         o->extrapolated_pred = extrapolated;
@@ -200,6 +236,5 @@ cleanup:
     free(sigma);
     free(calc);
     free(jac);
-    free(pgrad);
     return status;
 }

@@ -621,13 +621,16 @@ typedef struct {
    energy_zero; energy and offset unused) with replica r's energies energy[r][n] and row counts
    count[r][n] (NULL: every row once; a row drawn c times has sigma/sqrt(c), c = 0 leaves it out),
    levels corrected by shifts (NULL: plain first-order WKB). params[r][n_params] receive the fitted
-   point; with pred_capacity > 0, pred_energy[r][pred_capacity] the corrected bound levels at
-   (pred_mu, J = 0) (outcome pred_count of them, the WKB vD). Per-replica statuses in outcomes[n_rep].
+   point; with n_pred_v > 0, pred_energy[r][n_pred_v] the corrected levels v = pred_v[] at
+   (pred_mu, J = 0) (NaN where not bound), outcome pred_count the number of bound corrected levels
+   there (every level below the highest bound one counts as bound), vD the first-order one.
+   Per-replica statuses in outcomes[n_rep].
    Status: WKB_EINVAL (bad table or arrays), WKB_ENOMEM; otherwise WKB_SUCCESS. */
 int wkb_fit_replicas(const wkb_potential *start, const wkb_fit_data *data, const wkb_fit_spec *spec,
                      const wkb_fit_settings *settings, const wkb_level_shifts *shifts, size_t n_rep,
-                     const double *energy, const double *count, double pred_mu, size_t pred_capacity,
-                     wkb_replica_outcome *outcomes, double *params, double *pred_energy, wkb_error *err);
+                     const double *energy, const double *count, double pred_mu, const int *pred_v,
+                     size_t n_pred_v, wkb_replica_outcome *outcomes, double *params, double *pred_energy,
+                     wkb_error *err);
 
 /* ---------------------------------------------------------------- rkr.c */
 #define WKB_RKR_MAX_TERMS 32       /* coefficients per Dunham expansion */

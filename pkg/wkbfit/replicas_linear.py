@@ -62,8 +62,6 @@ __all__ = ["eligible", "prepare", "fast_chunk", "check", "TOLERANCE", "N_CHECK"]
 TOLERANCE = 1e-2
 #: replicas checked with an exact refresh (the farthest from the centre)
 N_CHECK = 3
-#: extra slots for predicted levels beyond the central count (replicas may bind a few more)
-_EXTRA_LEVELS = 8
 
 
 def eligible(result):
@@ -214,7 +212,7 @@ def prepare(result, label, v_top, executor=None):
         "sigma": sigma, "energy_zero": zero, "vary": np.array([n in result.var_names for n in names], dtype=np.intc),
         "lower": lower, "upper": upper, "max_iterations": int(getattr(result, "max_iterations", 200)),
         "keys": keys, "shift": shift, "slope": slope, "pred_mu": pred_mu,
-        "pred_capacity": (n_pred or int(prediction_count(model, p0, curve, pred_mu))) + _EXTRA_LEVELS,
+        "pred_v": np.array([0] + list(v_top), dtype=np.intc),
         "n_pred": n_pred, "notes": notes, "names": names, "var": var, "var_names": list(result.var_names),
         "v_top": list(v_top), "fitted_energy": np.asarray(obs.energy, dtype=float)[rows],
         "calculated": np.asarray(result.calculated, dtype=float)[rows], "rows": rows, "n_all_rows": len(obs),
@@ -243,7 +241,7 @@ def run_core(fast, energies, counts, slope=True):
         slope=f["slope"] if slope else None)
     return _core.fit_replicas(f["model"], f["p0"], f["potential"]._core_args()[2], f["v"], f["rot"], f["mu"], f["sigma"],
                               f["energy_zero"], f["vary"], f["lower"], f["upper"], energies,
-                              counts=counts, pred_mu=f["pred_mu"], pred_capacity=f["pred_capacity"],
+                              counts=counts, pred_mu=f["pred_mu"], pred_v=f["pred_v"],
                               max_iterations=f["max_iterations"], **table)
 
 
@@ -284,12 +282,13 @@ def fast_chunk(shared, chunk):
 
 
 def _predictions(out, j, v_top):
+    """The predictions of replica j of a core call made with pred_v = [0] + v_top."""
     nb = int(out["pred_count"][j])
     E = out["pred_energy"][j]
     asym = float(out["asymptote"][j])
     vals = {"D0": asym - float(E[0]) if nb else math.nan, "vD": float(out["vD"][j]), "n_bound": float(nb)}
-    for v in v_top:
-        vals["Eb(v=%d)" % v] = asym - float(E[v]) if v < min(nb, E.shape[0]) else math.nan
+    for k, v in enumerate(v_top):
+        vals["Eb(v=%d)" % v] = asym - float(E[k + 1]) if v < nb else math.nan
     return vals
 
 
