@@ -8,6 +8,7 @@ Prints, from one run:
     with the largest difference from the full refits of the same replicas in standard deviations;
   * two threads against one on the same replicas (target >= 1.8x), beside two processes against
     one (two forked processes each running half the replicas serially): the machine's own ceiling;
+    for the linearised refits (1000 replicas) and for the full refits (N_FULL replicas);
   * the same bootstrap on a distributed.LocalCluster with 2 worker processes, and its overhead per
     task, (wall time - serial time / 2) / tasks;
   * a 20-candidate MLR model scan of a 500-level data set (target <= 2 s).
