@@ -205,6 +205,9 @@ def bootstrap(result, n=1000, seed=1, kind="monte-carlo", executor=None, *, prog
     label = obs.isotopologues[0] if isotopologue is None else isotopologue
     if label not in result.masses:
         raise ValueError("isotopologue=%r is not one of the fit (%s)" % (label, ", ".join(map(repr, result.masses))))
+    if refit == "linearised" and replicas_linear.eligible(result):
+        raise ValueError("refit='linearised' is not available for this fit (%s); use refit='full'"
+                         % replicas_linear.eligible(result))
     central = prediction_values(result, label, None, n_top=n_top_levels)
     v_top = [int(k[5:-1]) for k in central if k.startswith("Eb(v=")]
     # the covariance side of the table (once: the check uses it too), computed beside the replicas on a
@@ -240,8 +243,6 @@ def _bootstrap(result, n, seed, kind, executor, progress, label, central, v_top,
         "noise_scale": float(noise_scale), "isotopologue_label": label, "v_top": v_top,
     }
     why_not = replicas_linear.eligible(result)
-    if refit == "linearised" and why_not:
-        raise ValueError("refit='linearised' is not available for this fit (%s); use refit='full'" % why_not)
     method_check = {"refit": "full", "notes": [why_not] if why_not and refit is None else []}
     out = None
     with warnings.catch_warnings():  # the pool's threads share this thread's filters
