@@ -164,8 +164,8 @@ int wkb_fit_replicas(const wkb_potential *start, const wkb_fit_data *data, const
     int status = WKB_SUCCESS;
 
     memset(&ctx, 0, sizeof ctx);
-    if (!data->v || !data->rot || !data->mu || !data->sigma || !energy)
-        return wkb_fail(err, WKB_EINVAL, "replica fits need v, rot, mu, sigma and the replicas' energies");
+    if (n == 0 || !data->v || !data->rot || !data->mu || !data->sigma || !energy)
+        return wkb_fail(err, WKB_EINVAL, "replica fits need levels (v, rot, mu, sigma) and the replicas' energies");
     if (shifts && (status = check_shifts(shifts, np, err)))
         return status;
     static const wkb_level_shifts none = {0, NULL, NULL, NULL, NULL, NULL, NULL};
@@ -188,8 +188,9 @@ int wkb_fit_replicas(const wkb_potential *start, const wkb_fit_data *data, const
     for (size_t r = 0; r < n_rep; r++) {
         wkb_replica_outcome *o = outcomes + r;
         memset(o, 0, sizeof *o);
-        o->pred_count = 0;
-        o->vD = NAN;
+        o->vD = o->asymptote = NAN;
+        for (size_t k = 0; k < n_pred_v; k++)
+            pred_energy[r * n_pred_v + k] = NAN;
         /* the replica's rows: those drawn at least once, each weighted by its count */
         size_t m = 0;
         for (size_t i = 0; i < n; i++) {
@@ -220,11 +221,11 @@ int wkb_fit_replicas(const wkb_potential *start, const wkb_fit_data *data, const
         wkb_potential q;
         extrapolated = 0;
         int st = wkb_potential_init(&q, start->model, out.params, start->curve, &o->error);
+        o->asymptote = st ? NAN : wkb_potential_asymptote(&q);
         if (!st)
             st = predict(&ctx, &q, pred_mu, pred_v, n_pred_v, pred_energy + r * n_pred_v, &o->pred_count, &o->vD,
                          &o->error);
         o->pred_status = st;
-        o->asymptote = wkb_potential_asymptote(&q);
         o->extrapolated_pred = extrapolated;
     }
 cleanup:
