@@ -415,7 +415,8 @@ def test_linearised_replicas_of_a_first_order_fit():
     for name in res.var_names:
         assert np.max(np.abs(fast.values[name] - full.values[name])) < 1e-6 * res.params[name].uncertainty
     for name in fast.names:
-        assert np.allclose(fast.values[name], full.values[name], rtol=1e-9, atol=1e-9 * (1 + abs(fast.mean[name]))), name
+        atol = 1e-9 * (1 + abs(fast.mean[name]))
+        assert np.allclose(fast.values[name], full.values[name], rtol=1e-9, atol=atol), name
 
 
 def test_check_catches_a_level_at_threshold():

@@ -208,14 +208,15 @@ def prepare(result, label, v_top, executor=None):
     lower, upper = _bounds(result, names)
     return {
         # the potential rather than its core arguments: a point-wise curve is a capsule, which cannot be pickled
-        "potential": result.potential, "model": model, "p0": np.asarray(p0, dtype=float), "v": v, "rot": rot, "mu": mu_rows,
+        "potential": result.potential, "model": model, "p0": np.asarray(p0, dtype=float), "v": v, "rot": rot,
+        "mu": mu_rows,
         "sigma": sigma, "energy_zero": zero, "vary": np.array([n in result.var_names for n in names], dtype=np.intc),
         "lower": lower, "upper": upper, "max_iterations": int(getattr(result, "max_iterations", 200)),
         "keys": keys, "shift": shift, "slope": slope, "pred_mu": pred_mu,
         "pred_v": np.array([0] + list(v_top), dtype=np.intc),
         "n_pred": n_pred, "notes": notes, "names": names, "var": var, "var_names": list(result.var_names),
         "v_top": list(v_top), "fitted_energy": np.asarray(obs.energy, dtype=float)[rows],
-        "calculated": np.asarray(result.calculated, dtype=float)[rows], "rows": rows, "n_all_rows": len(obs),
+        "calculated": np.asarray(result.calculated, dtype=float)[rows], "rows": rows,
         "jacobian_w": np.asarray(result.jacobian, dtype=float)[rows][:, var] / sigma[:, None],
     }
 
@@ -234,12 +235,15 @@ def replica_data(shared, fast, i):
 
 
 def run_core(fast, energies, counts, slope=True):
+    """One core call: the replicas with energies[r] (and row counts[r], or None); slope=False
+    freezes the corrections at the centre (the check's measure of what the slopes do)."""
     f = fast
     keys = f["keys"]
     table = {} if f["shift"] is None else dict(
         shift_mu=keys["mu"], shift_rot=keys["rot"], shift_v=keys["v"], shift=f["shift"],
         slope=f["slope"] if slope else None)
-    return _core.fit_replicas(f["model"], f["p0"], f["potential"]._core_args()[2], f["v"], f["rot"], f["mu"], f["sigma"],
+    curve = f["potential"]._core_args()[2]
+    return _core.fit_replicas(f["model"], f["p0"], curve, f["v"], f["rot"], f["mu"], f["sigma"],
                               f["energy_zero"], f["vary"], f["lower"], f["upper"], energies,
                               counts=counts, pred_mu=f["pred_mu"], pred_v=f["pred_v"],
                               max_iterations=f["max_iterations"], **table)
