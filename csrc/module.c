@@ -1307,6 +1307,181 @@ cleanup:
     return result;
 }
 
+/* ---------------------------------------------------------------- replica fits (replica_fit.c) */
+
+/* A 2-dimensional C double array of shape (rows, cols); NULL with a ValueError. */
+static PyArrayObject *as_matrix(PyObject *obj, const char *what, npy_intp rows, npy_intp cols)
+{
+    PyArrayObject *a = as_double_array(obj, what, 2);
+    if (a && ((rows >= 0 && PyArray_DIM(a, 0) != rows) || PyArray_DIM(a, 1) != cols)) {
+        PyErr_Format(PyExc_ValueError, "%s must have shape (%zd, %zd), got (%zd, %zd)", what, (Py_ssize_t)rows,
+                     (Py_ssize_t)cols, (Py_ssize_t)PyArray_DIM(a, 0), (Py_ssize_t)PyArray_DIM(a, 1));
+        Py_CLEAR(a);
+    }
+    return a;
+}
+
+static PyObject *py_fit_replicas(PyObject *self, PyObject *args, PyObject *kwds)
+{
+    static char *kwlist[] = {"model", "params", "curve", "v", "rot", "mu", "sigma", "energy_zero", "vary", "lower",
+                             "upper", "energies", "counts", "shift_mu", "shift_rot", "shift_v", "shift", "slope",
+                             "pred_mu", "pred_v", "max_iterations", NULL};
+    const char *model_name;
+    PyObject *params_obj, *curve_obj, *v_obj, *rot_obj, *mu_obj, *sigma_obj, *vary_obj, *lower_obj, *upper_obj,
+        *energies_obj, *counts_obj = Py_None, *smu_obj = Py_None, *srot_obj = Py_None, *sv_obj = Py_None,
+        *shift_obj = Py_None, *slope_obj = Py_None, *pred_v_obj = Py_None, *result = NULL;
+    int energy_zero, status;
+    double pred_mu = 0;
+    Py_ssize_t max_iterations = -1;
+    wkb_fit_settings settings = wkb_fit_default_settings();
+    fit_arrays a = {0};
+    wkb_fit_data data;
+    wkb_fit_spec spec;
+    wkb_potential pot;
+    wkb_error err = {0};
+    wkb_replica_outcome *outcomes = NULL;
+    PyArrayObject *vary = NULL, *lower = NULL, *upper = NULL, *energies = NULL, *counts = NULL, *smu = NULL,
+                  *srot = NULL, *sv = NULL, *shift = NULL, *slope = NULL, *params = NULL, *pred = NULL,
+                  *pred_v = NULL;
+    enum { NCOLS = 9 };
+    PyArrayObject *cols[NCOLS] = {NULL};
+    static const char *col_names[NCOLS] = {"status", "stop", "chi_square", "iterations", "pred_count", "vD",
+                                           "asymptote", "extrapolated", "insensitive"};
+
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOOOOOiOOOO|OOOOOOdOn", kwlist, &model_name, &params_obj,
+                                     &curve_obj, &v_obj, &rot_obj, &mu_obj, &sigma_obj, &energy_zero, &vary_obj,
+                                     &lower_obj, &upper_obj, &energies_obj, &counts_obj, &smu_obj, &srot_obj,
+                                     &sv_obj, &shift_obj, &slope_obj, &pred_mu, &pred_v_obj, &max_iterations))
+        return NULL;
+    if (max_iterations >= 0)
+        settings.max_iterations = (size_t)max_iterations;
+    if (parse_potential(model_name, params_obj, curve_obj, &pot) < 0)
+        return NULL;
+    if (pred_v_obj != Py_None) {
+        if (!(pred_v = as_checked_int_array(pred_v_obj, "pred_v", 0)))
+            return NULL;
+        if (PyArray_SIZE(pred_v) && !(isfinite(pred_mu) && pred_mu > 0)) {
+            PyErr_Format(PyExc_ValueError, "pred_mu=%g must be a positive reduced mass (u)", pred_mu);
+            goto cleanup;
+        }
+    }
+    const npy_intp n_pred_v = pred_v ? PyArray_SIZE(pred_v) : 0;
+    if (parse_fit_arrays(v_obj, rot_obj, mu_obj, NULL, sigma_obj, energy_zero, &a, &data) < 0)
+        goto cleanup;
+    const size_t np = pot.model->n_params, n = data.n;
+    if (!(vary = (PyArrayObject *)PyArray_FROM_OTF(vary_obj, NPY_INT, NPY_ARRAY_IN_ARRAY | NPY_ARRAY_FORCECAST)) ||
+        !(lower = as_double_array(lower_obj, "lower", 1)) || !(upper = as_double_array(upper_obj, "upper", 1)))
+        goto cleanup;
+    if ((size_t)PyArray_SIZE(vary) != np || (size_t)PyArray_SIZE(lower) != np || (size_t)PyArray_SIZE(upper) != np) {
+        PyErr_Format(PyExc_ValueError, "vary, lower and upper need %zu entries (one per parameter)", np);
+        goto cleanup;
+    }
+    memset(&spec, 0, sizeof spec);
+    for (size_t k = 0; k < np; k++) {
+        spec.vary[k] = ((const int *)PyArray_DATA(vary))[k] != 0;
+        spec.lower[k] = ((const double *)PyArray_DATA(lower))[k];
+        spec.upper[k] = ((const double *)PyArray_DATA(upper))[k];
+    }
+    if (!(energies = as_matrix(energies_obj, "energies", -1, (npy_intp)n)))
+        goto cleanup;
+    const npy_intp n_rep = PyArray_DIM(energies, 0);
+    if (counts_obj != Py_None && !(counts = as_matrix(counts_obj, "counts", n_rep, (npy_intp)n)))
+        goto cleanup;
+    wkb_level_shifts shifts = {0};
+    const int have_shifts = shift_obj != Py_None;
+    if (have_shifts) {
+        if (!(smu = as_double_array(smu_obj, "shift_mu", 1)) || !(srot = as_double_array(srot_obj, "shift_rot", 1)) ||
+            !(sv = as_checked_int_array(sv_obj, "shift_v", 0)) || !(shift = as_double_array(shift_obj, "shift", 1)))
+            goto cleanup;
+        const npy_intp ns = PyArray_SIZE(shift);
+        if (PyArray_SIZE(smu) != ns || PyArray_SIZE(srot) != ns || PyArray_SIZE(sv) != ns) {
+            PyErr_SetString(PyExc_ValueError, "shift_mu, shift_rot, shift_v and shift need one entry per level");
+            goto cleanup;
+        }
+        if (slope_obj != Py_None && !(slope = as_matrix(slope_obj, "slope", ns, (npy_intp)np)))
+            goto cleanup;
+        shifts.n = (size_t)ns;
+        shifts.mu = PyArray_DATA(smu), shifts.rot = PyArray_DATA(srot), shifts.v = PyArray_DATA(sv);
+        shifts.shift = PyArray_DATA(shift);
+        shifts.slope = slope ? PyArray_DATA(slope) : NULL;
+        shifts.p0 = pot.p; /* the corrections were made at the start (the central fit) */
+    }
+    npy_intp pdims[2] = {n_rep, (npy_intp)np}, edims[2] = {n_rep, n_pred_v};
+    if (!(params = (PyArrayObject *)PyArray_ZEROS(2, pdims, NPY_DOUBLE, 0)) ||
+        !(pred = (PyArrayObject *)PyArray_ZEROS(2, edims, NPY_DOUBLE, 0)))
+        goto cleanup;
+    if (!(outcomes = calloc(n_rep ? (size_t)n_rep : 1, sizeof *outcomes))) {
+        PyErr_NoMemory();
+        goto cleanup;
+    }
+    {
+        const double *pe = PyArray_DATA(energies), *pc = counts ? PyArray_DATA(counts) : NULL;
+        double *pp = PyArray_DATA(params), *pr = PyArray_DATA(pred);
+        Py_BEGIN_ALLOW_THREADS
+        const int *pv = pred_v ? PyArray_DATA(pred_v) : NULL;
+        status = wkb_fit_replicas(&pot, &data, &spec, &settings, have_shifts ? &shifts : NULL, (size_t)n_rep, pe, pc,
+                                  pred_mu, pv, (size_t)n_pred_v, outcomes, pp, pr, &err);
+        Py_END_ALLOW_THREADS
+    }
+    if (status) {
+        raise_status(&err);
+        goto cleanup;
+    }
+    for (int c = 0; c < NCOLS; c++)
+        if (!(cols[c] = new_vector(n_rep)))
+            goto cleanup;
+    PyObject *messages = PyList_New(n_rep);
+    if (!messages)
+        goto cleanup;
+    for (npy_intp r = 0; r < n_rep; r++) {
+        const wkb_replica_outcome *o = outcomes + r;
+        const double vals[NCOLS] = {o->status ? o->status : (o->pred_status ? -o->pred_status : 0), o->stop,
+                                    o->chi_square, (double)o->iterations, (double)o->pred_count, o->vD, o->asymptote,
+                                    (double)(o->extrapolated_fit + o->extrapolated_pred), o->insensitive};
+        for (int c = 0; c < NCOLS; c++)
+            ((double *)PyArray_DATA(cols[c]))[r] = vals[c];
+        PyObject *msg = PyUnicode_FromString(o->status || o->pred_status ? o->error.message : "");
+        if (!msg) {
+            Py_DECREF(messages);
+            goto cleanup;
+        }
+        PyList_SET_ITEM(messages, r, msg);
+    }
+    if (!(result = PyDict_New())) {
+        Py_DECREF(messages);
+        goto cleanup;
+    }
+    if (dict_steal(result, "message", messages) < 0 ||
+        PyDict_SetItemString(result, "params", (PyObject *)params) < 0 ||
+        PyDict_SetItemString(result, "pred_energy", (PyObject *)pred) < 0)
+        goto fail;
+    for (int c = 0; c < NCOLS; c++)
+        if (PyDict_SetItemString(result, col_names[c], (PyObject *)cols[c]) < 0)
+            goto fail;
+    goto cleanup;
+fail:
+    Py_CLEAR(result);
+cleanup:
+    free(outcomes);
+    fit_arrays_release(&a);
+    Py_XDECREF(vary);
+    Py_XDECREF(lower);
+    Py_XDECREF(upper);
+    Py_XDECREF(energies);
+    Py_XDECREF(counts);
+    Py_XDECREF(smu);
+    Py_XDECREF(srot);
+    Py_XDECREF(sv);
+    Py_XDECREF(shift);
+    Py_XDECREF(slope);
+    Py_XDECREF(params);
+    Py_XDECREF(pred);
+    Py_XDECREF(pred_v);
+    for (int c = 0; c < NCOLS; c++)
+        Py_XDECREF(cols[c]);
+    return result;
+}
+
 /* A Born-Oppenheimer corrected potential for fit_run_rows: the template model (reference
    isotopologue) in *pot, one variant per (isotopologue, J) and the model of every level.
    Returns 0 or -1 with an exception; the caller frees *tmpl, *variants, *models and arrs. */
@@ -2040,6 +2215,12 @@ static PyMethodDef core_methods[] = {
      "max_iterations=-1, xtol, gtol, decrease_tol, method=0, offset=None) -> dict (params, calc, jacobian, chi_square, iterations,\n"
      "n_eval, n_infeasible, stop, test, predicted_decrease, last_infeasible); a failure at the start raises\n"
      "ValueError(message, row index)"},
+    {"fit_replicas", (PyCFunction)(void (*)(void))py_fit_replicas, METH_VARARGS | METH_KEYWORDS,
+     "fit_replicas(model, params, curve, v, rot, mu, sigma, energy_zero, vary, lower, upper, energies[n_rep, n],\n"
+     "counts=None, shift_mu, shift_rot, shift_v, shift, slope=None, pred_mu=0, pred_v=None, max_iterations=-1)\n"
+     "-> dict (params[n_rep, n_params], pred_energy[n_rep, len(pred_v)], status, stop, chi_square, iterations,\n"
+     "pred_count, vD, asymptote, extrapolated, message): one first-order fit per replica from params, levels\n"
+     "corrected by shift + slope (p - params) (replica_fit.c); status < 0: the predictions failed"},
     {"fit_run_rows", (PyCFunction)(void (*)(void))py_fit_run_rows, METH_VARARGS | METH_KEYWORDS,
      "fit_run_rows(model, params, curve, level_v, level_rot, level_mu, level_a, coef_a, level_b, coef_b,\n"
      "coef_asymptote, extra_index, coef_extra, offset, observed, sigma, extra_start, vary, lower, upper,\n"

@@ -594,6 +594,44 @@ int wkb_fit_levels(const wkb_potential *pot, double mu, double rot, const wkb_se
                    const wkb_level_source *source, size_t capacity, double *energy, double *dEdp,
                    size_t *count, double *vD, double *dvDdp, wkb_error *err);
 
+/* ---------------------------------------------------------------- replica_fit.c */
+/* Per-level corrections to first-order WKB levels, linear in the parameters:
+   E_v(p) = E_wkb,v(p) + shift[i] + slope[i] . (p - p0), for the level i of (mu, rot, v); table sorted
+   by (mu, rot, v) without repeats. A level above its (mu, rot) group's last entry uses that entry; a
+   group without entries gets no correction. slope[n][n_params] may be NULL (frozen corrections). */
+typedef struct {
+    size_t n;
+    const double *mu, *rot;
+    const int *v;
+    const double *shift, *slope, *p0;
+} wkb_level_shifts;
+
+typedef struct {
+    int status;                /* of the fit (wkb_fit_run's); the replica failed when not WKB_SUCCESS */
+    int stop;                  /* enum wkb_fit_stop */
+    int insensitive;           /* some varied parameter was held fixed (no row depends on it) */
+    int pred_status;           /* of the predictions */
+    double chi_square, vD, asymptote;
+    size_t iterations, n_rows, pred_count;
+    size_t extrapolated_fit, extrapolated_pred; /* levels corrected with a neighbour's entry */
+    wkb_error error;
+} wkb_replica_outcome;
+
+/* n_rep fits of wkb_fit_run from start (spec, settings as there) to data's rows (v, rot, mu, sigma,
+   energy_zero; energy and offset unused) with replica r's energies energy[r][n] and row counts
+   count[r][n] (NULL: every row once; a row drawn c times has sigma/sqrt(c), c = 0 leaves it out),
+   levels corrected by shifts (NULL: plain first-order WKB). params[r][n_params] receive the fitted
+   point; with n_pred_v > 0, pred_energy[r][n_pred_v] the corrected levels v = pred_v[] at
+   (pred_mu, J = 0) (NaN where not bound), outcome pred_count the number of bound corrected levels
+   there (every level below the highest bound one counts as bound), vD the first-order one.
+   Per-replica statuses in outcomes[n_rep].
+   Status: WKB_EINVAL (bad table or arrays), WKB_ENOMEM; otherwise WKB_SUCCESS. */
+int wkb_fit_replicas(const wkb_potential *start, const wkb_fit_data *data, const wkb_fit_spec *spec,
+                     const wkb_fit_settings *settings, const wkb_level_shifts *shifts, size_t n_rep,
+                     const double *energy, const double *count, double pred_mu, const int *pred_v,
+                     size_t n_pred_v, wkb_replica_outcome *outcomes, double *params, double *pred_energy,
+                     wkb_error *err);
+
 /* ---------------------------------------------------------------- rkr.c */
 #define WKB_RKR_MAX_TERMS 32       /* coefficients per Dunham expansion */
 #define WKB_RKR_DEFAULT_POINTS 100 /* Gauss-Legendre nodes per integral */

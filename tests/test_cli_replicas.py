@@ -33,14 +33,18 @@ def test_fit_with_replicas(capsys, tmp_path):
     assert "%.10g" % reps.std["De"] in line
     assert abs(result.params["De"].value - reps.central["De"]) < 1e-9
 
+    assert "refits: linearised" in out  # the default, with its exact check
     assert cli.main(argv[:-7] + ["--replicas", "10", "--replica-kind", "resample", "--no-progress", "--force"]) == 0
     assert "resample replicas" in capsys.readouterr().out
+    assert cli.main(argv[:-7] + ["--replicas", "4", "--replica-refit", "full", "--no-progress", "--force"]) == 0
+    assert "refits: every replica refitted through wkbfit.fit" in capsys.readouterr().out
 
 
 def test_bad_replica_options(capsys, tmp_path):
     data = write_data(tmp_path / "levels.csv")
     base = ["fit", data, "morse", "De=5800", "re=3.66", "a=0.61", "--mu", str(MU), "-o", str(tmp_path / "r.json")]
     for extra, fragment in ((["--replicas", "0"], "--replicas"), (["--replica-kind", "jack"], "--replica-kind"),
+                            (["--replicas", "5", "--replica-refit", "fast"], "--replica-refit"),
                             (["--replicas", "5", "--scheduler", "nowhere"], "'nowhere'")):
         assert cli.main(base + extra) == 2
         err = capsys.readouterr().err

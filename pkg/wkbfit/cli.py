@@ -4,7 +4,8 @@
                 [--order 1|2] [--ends matched|maslov] [--quasibound]
     wkbfit check DATAFILE [--energy-zero ZERO]
     wkbfit fit DATAFILE MODEL NAME=VALUE ... [--mu MU | --mass LABEL=MU ...] [--fix NAME] [--vary NAME] [-o JSON]
-                [--order 1|2 [--ends matched|maslov]] [--replicas N [--scheduler ADDRESS]]
+                [--order 1|2 [--ends matched|maslov]]
+                [--replicas N [--replica-refit linearised|full] [--scheduler ADDRESS]]
     wkbfit demo [--method M] [--order 1|2 [--ends matched|maslov]]
     wkbfit rkr | compare | curve | predict   (see wkbfit.cli_tools)
 
@@ -339,7 +340,7 @@ def _replicas_text(result, args):
     executor = args.scheduler or ("serial" if args.threads == 1 else args.threads)
     try:
         reps = result.bootstrap(args.replicas, seed=args.seed, kind=args.replica_kind, executor=executor,
-                                progress=False if args.no_progress else None)
+                                progress=False if args.no_progress else None, refit=args.replica_refit)
     except ImportError as err:
         raise UserError(str(err)) from None
     return reps.to_text()
@@ -523,6 +524,10 @@ def _parser():
     replicas.add_argument("--replica-kind", choices=("monte-carlo", "resample"), default="monte-carlo",
                           help="monte-carlo: calculated levels plus noise of the uncertainties (default); "
                                "resample: the levels drawn with replacement")
+    replicas.add_argument("--replica-refit", choices=("linearised", "full"), default=None,
+                          help="linearised: first-order refits with the fit's exact corrections, linear in the "
+                               "parameters, checked at run time (default where the fit allows it); full: every "
+                               "replica refitted like the fit itself")
     replicas.add_argument("--seed", type=int, default=1, help="seed of the replicas (default 1)")
     replicas.add_argument("--threads", type=_positive_int, default=None, metavar="N",
                           help="threads for the replicas (default: every core)")

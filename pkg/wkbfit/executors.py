@@ -14,6 +14,10 @@ the executor:
                         model and the settings) is sent once to every worker (scatter with
                         broadcast) and each task receives only its own items
 
+With batched=True, `task(shared, chunk)` receives a list of items and returns the list of their
+results (one C call can then fit a whole chunk); the chunks are cut the same way, and serially
+into pieces of `SERIAL_BATCH` items so that the progress bar moves.
+
 `task` and `shared` must be picklable for Dask (module-level functions and plain data).
 The results depend only on the items, never on the chunking or on which worker ran them,
 so a seeded run gives the same numbers on every executor.
@@ -26,13 +30,15 @@ import concurrent.futures
 import math
 import os
 
-__all__ = ["run_chunks", "describe_executor", "PROGRESS_MIN_ITEMS"]
+__all__ = ["run_chunks", "local_map", "describe_executor", "PROGRESS_MIN_ITEMS"]
 
 #: runs with fewer items than this show no progress bar unless asked (progress=True)
 PROGRESS_MIN_ITEMS = 200
 #: chunks per worker: enough for the bar to move and the load to balance, few enough that the
 #: per-chunk overhead (a Dask task costs milliseconds) stays small
 _CHUNKS_PER_WORKER = 4
+#: items per batched call when run serially
+SERIAL_BATCH = 50
 
 _DASK_MISSING = ("a Dask executor needs dask.distributed, which is not installed; install the extra with "
                  "pip install 'wkbfit[dask]' (or pip install 'dask[distributed]'), or use executor='threads'")
@@ -48,6 +54,13 @@ def n_cores():
 
 def _run_chunk(task, shared, chunk):
     return [task(shared, item) for item in chunk]
+
+
+def _run_batch(task, shared, chunk):
+    out = list(task(shared, chunk))
+    if len(out) != len(chunk):
+        raise RuntimeError("a batched task returned %d results for %d items" % (len(out), len(chunk)))
+    return out
 
 
 def _chunks(items, n_chunks):
@@ -114,42 +127,57 @@ def _progress_bar(progress, total, desc):
     return tqdm(total=total, desc=desc, unit="fit", leave=False)
 
 
-def run_chunks(task, shared, items, executor=None, progress=None, desc=""):
-    """[task(shared, item) for item in items], run on `executor` (see the module notes)."""
+def run_chunks(task, shared, items, executor=None, progress=None, desc="", batched=False):
+    """[task(shared, item) for item in items], run on `executor` (see the module notes); with
+    batched=True, task(shared, chunk) -> list of results."""
     _check_executor(executor)
     items = list(items)
     bar = _progress_bar(progress, len(items), desc)
+    runner = _run_batch if batched else _run_chunk
     try:
         if executor == "serial":
             out = []
-            for item in items:
-                out.append(task(shared, item))
+            step = SERIAL_BATCH if batched else 1
+            for i in range(0, len(items), step):
+                out.extend(runner(task, shared, items[i:i + step]))
                 if bar is not None:
-                    bar.update(1)
+                    bar.update(len(items[i:i + step]))
             return out
         if isinstance(executor, str) and executor != "threads" or _is_dask_client(executor):
-            return _run_dask(task, shared, items, executor, bar)
+            return _run_dask(runner, task, shared, items, executor, bar)
         if isinstance(executor, concurrent.futures.Executor):
             workers = getattr(executor, "_max_workers", n_cores())
-            return _run_pool(executor, task, shared, items, workers, bar)
+            return _run_pool(runner, executor, task, shared, items, workers, bar)
         workers = executor if isinstance(executor, int) else n_cores()
         with concurrent.futures.ThreadPoolExecutor(max_workers=workers) as pool:
-            return _run_pool(pool, task, shared, items, workers, bar)
+            return _run_pool(runner, pool, task, shared, items, workers, bar)
     finally:
         if bar is not None:
             bar.close()
 
 
-def _run_pool(pool, task, shared, items, workers, bar):
+def local_map(fn, items, executor=None):
+    """[fn(item) for item in items] on threads of this process (serially for executor="serial"),
+    for the few core calls that prepare or check a run (the core releases the GIL)."""
+    _check_executor(executor)
+    items = list(items)
+    if executor == "serial" or len(items) < 2:
+        return [fn(item) for item in items]
+    workers = executor if isinstance(executor, int) and not isinstance(executor, bool) else n_cores()
+    with concurrent.futures.ThreadPoolExecutor(max_workers=min(workers, len(items))) as pool:
+        return list(pool.map(fn, items))
+
+
+def _run_pool(runner, pool, task, shared, items, workers, bar):
     chunks = _chunks(items, workers * _CHUNKS_PER_WORKER)
-    futures = [pool.submit(_run_chunk, task, shared, chunk) for chunk in chunks]
+    futures = [pool.submit(runner, task, shared, chunk) for chunk in chunks]
     if bar is not None:
         for fut in concurrent.futures.as_completed(futures):
             bar.update(len(fut.result()))
     return [x for fut in futures for x in fut.result()]
 
 
-def _run_dask(task, shared, items, executor, bar):
+def _run_dask(runner, task, shared, items, executor, bar):
     try:
         from distributed import Client, as_completed
     except ImportError:
@@ -164,7 +192,7 @@ def _run_dask(task, shared, items, executor, bar):
         chunks = _chunks(items, n_threads * _CHUNKS_PER_WORKER)
         # the data once to every worker; each task then carries only its own items
         shared_future = client.scatter(shared, broadcast=True, hash=False)
-        futures = [client.submit(_run_chunk, task, shared_future, chunk, pure=False) for chunk in chunks]
+        futures = [client.submit(runner, task, shared_future, chunk, pure=False) for chunk in chunks]
         if bar is not None:
             for fut in as_completed(futures):
                 bar.update(len(chunks[futures.index(fut)]))

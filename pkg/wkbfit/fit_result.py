@@ -423,8 +423,10 @@ class FitResult:
         scaled like the covariance) or "resample" (levels drawn with replacement); seed: replica
         i uses numpy.random.default_rng([seed, i]), the same on every executor; executor: None or
         "threads" (all cores), "serial", a dask.distributed.Client or a scheduler address.
-        Options: progress, isotopologue, n_top_levels (see wkbfit.replicas.bootstrap).
-        Returns a ReplicaResult (.std[name], .samples, .n_failed, .failures, a summary table).
+        Options: progress, isotopologue, n_top_levels, refit ("linearised", the default where the
+        fit allows it, or "full"), check_tolerance (see wkbfit.replicas.bootstrap).
+        Returns a ReplicaResult (.std[name], .samples, .n_failed, .failures, .method_check, a
+        summary table).
         """
         from .replicas import bootstrap
         return bootstrap(self, n=n, seed=seed, kind=kind, executor=executor, **options)

@@ -1,9 +1,20 @@
 """Bootstrap and Monte-Carlo replicas of a fit: the spread of the parameters and predictions.
 
 `bootstrap(result, n=1000, seed=1, kind="monte-carlo", executor=None)` (also
-`FitResult.bootstrap`) refits n replicas of the data through `wkbfit.fit` itself, with the
-result's own settings (method, varied parameters, bounds, uncertainty scaling, iteration
-limit), each starting from the fitted potential, and returns a `ReplicaResult`.
+`FitResult.bootstrap`) refits n replicas of the data, each starting from the fitted potential
+with the result's own settings (varied parameters, bounds, iteration limit), and returns a
+`ReplicaResult`. Two ways to refit (`refit=`):
+
+  "linearised"   the default for fits with exact corrections (method "corrected", the default
+                 fit) and first-order fits to one set of term values or binding energies:
+                 replicas_linear.py. Each replica is a first-order WKB fit whose levels carry
+                 the central fit's exact corrections E_exact - E_wkb, linear in the parameters
+                 (their slopes from n_vary + 1 exact evaluations, once), fitted in the C core a
+                 chunk of replicas per call with the GIL released. An exact refresh of the
+                 replicas farthest from the centre measures the method's error at run time
+                 (ReplicaResult.method_check); above `check_tolerance` (1e-2 sd) every replica
+                 is refitted the full way instead, and the result says so.
+  "full"         every replica through `wkbfit.fit` itself (the only way for other fits).
 
 Kinds of replica (the default is "monte-carlo"):
 
@@ -29,12 +40,13 @@ Predictions of every replica (for one isotopologue at J = 0): D0 (asymptote minu
 vD, the number of bound levels, and the binding energies of the levels nearest dissociation
 (the top `n_top_levels` of the central fit, NaN in a replica that does not bind one).
 """
+import concurrent.futures
 import math
 import warnings
 
 import numpy as np
 
-from .executors import describe_executor, run_chunks
+from .executors import _check_executor as check_executor, describe_executor, run_chunks
 from .observed import ObservedLevels
 
 __all__ = ["bootstrap", "ReplicaResult", "KINDS"]
@@ -59,10 +71,11 @@ def fit_settings(result):
             "max_iterations": getattr(result, "max_iterations", 200)}
 
 
-def prediction_values(result, isotopologue, v_top):
+def prediction_values(result, isotopologue, v_top, n_top=None):
     """The predictions of one fit (J = 0), as a dict of floats: the values of result.predict,
     computed directly by the core (without the uncertainty propagation) for the methods the
-    core runs itself, else through result.predict."""
+    core runs itself, else through result.predict. n_top: follow the top n_top bound levels
+    instead of the levels v_top."""
     from . import _core
     from .fitting import _METHOD_CODES, _level_code
     if result.method in _METHOD_CODES or result.method == "corrected":
@@ -86,6 +99,8 @@ def prediction_values(result, isotopologue, v_top):
         pred = result.predict(isotopologue=isotopologue)
         E, asym, vD = pred.energy, pred.energy[0] + pred.binding_energy[0] if pred.n_bound else math.nan, pred.vD
     out = {"D0": asym - E[0] if len(E) else math.nan, "vD": vD, "n_bound": float(len(E))}
+    if n_top is not None:
+        v_top = range(max(0, len(E) - n_top), len(E))
     for v in v_top:
         out["Eb(v=%d)" % v] = float(asym - E[v]) if v < len(E) else math.nan
     return out
@@ -139,8 +154,15 @@ def _check_int(x, name, low):
     return int(x)
 
 
+REFITS = {
+    "linearised": "first-order refits with the central fit's exact corrections, linear in the parameters, checked "
+                  "by exact refreshes (replicas_linear.py)",
+    "full": "every replica refitted through wkbfit.fit with the fit's own settings",
+}
+
+
 def bootstrap(result, n=1000, seed=1, kind="monte-carlo", executor=None, *, progress=None, isotopologue=None,
-              n_top_levels=3):
+              n_top_levels=3, refit=None, check_tolerance=None):
     """Refit n replicas of the data of `result`; see the module documentation.
 
     n: number of replicas (>= 2); seed: integer >= 0; kind: "monte-carlo" (default) or
@@ -157,8 +179,18 @@ def bootstrap(result, n=1000, seed=1, kind="monte-carlo", executor=None, *, prog
     n = _check_int(n, "n", 2)
     seed = _check_int(seed, "seed", 0)
     n_top_levels = _check_int(n_top_levels, "n_top_levels", 0)
+    if refit is not None and refit not in REFITS:
+        raise ValueError("refit=%r is not known; use None (the default), %s" % (
+            refit, " or ".join("%r (%s)" % kv for kv in REFITS.items())))
+    from . import replicas_linear
+    if check_tolerance is None:
+        check_tolerance = replicas_linear.TOLERANCE
+    if isinstance(check_tolerance, bool) or not isinstance(check_tolerance, (int, float)) or \
+            not (0 < check_tolerance < math.inf):
+        raise ValueError("check_tolerance=%r must be a positive number of standard deviations" % (check_tolerance,))
     if kind not in KINDS:
         raise ValueError("kind=%r is not known; use %s" % (kind, " or ".join("%r (%s)" % kv for kv in KINDS.items())))
+    check_executor(executor)  # before any work on threads
     if result.status != "converged":
         raise ValueError("the fit did not converge (%s): replicas would start from a point that is not the "
                          "minimum; refit until it converges, then bootstrap" % result.message)
@@ -173,10 +205,33 @@ def bootstrap(result, n=1000, seed=1, kind="monte-carlo", executor=None, *, prog
     label = obs.isotopologues[0] if isotopologue is None else isotopologue
     if label not in result.masses:
         raise ValueError("isotopologue=%r is not one of the fit (%s)" % (label, ", ".join(map(repr, result.masses))))
-    central = prediction_values(result, label, [])
-    n_bound = int(central["n_bound"])
-    v_top = list(range(max(0, n_bound - n_top_levels), n_bound))
-    central = prediction_values(result, label, v_top)
+    if refit == "linearised" and replicas_linear.eligible(result):
+        raise ValueError("refit='linearised' is not available for this fit (%s); use refit='full'"
+                         % replicas_linear.eligible(result))
+    central = prediction_values(result, label, None, n_top=n_top_levels)
+    v_top = [int(k[5:-1]) for k in central if k.startswith("Eb(v=")]
+    # the covariance side of the table (once: the check uses it too), computed beside the replicas on a
+    # thread of its own (the core releases the GIL) unless the run is serial
+    side = concurrent.futures.ThreadPoolExecutor(1) if executor != "serial" else None
+    try:
+        return _bootstrap(result, n, seed, kind, executor, progress, label, central, v_top, refit, check_tolerance,
+                          side.submit(result.predict, isotopologue=label) if side else None)
+    finally:
+        if side:
+            side.shutdown(wait=True)
+
+
+def _bootstrap(result, n, seed, kind, executor, progress, label, central, v_top, refit, check_tolerance,
+               prediction_future):
+    from . import replicas_linear
+    obs = result.observed
+    cached = []
+
+    def covariance_prediction():
+        if not cached:
+            cached.append(prediction_future.result() if prediction_future else result.predict(isotopologue=label))
+        return cached[0]
+
     noise_scale = (result.sqrt_reduced_chi_square if (result.scale_uncertainties and result.sqrt_reduced_chi_square)
                    else 1.0)
     shared = {
@@ -187,12 +242,30 @@ def bootstrap(result, n=1000, seed=1, kind="monte-carlo", executor=None, *, prog
         "settings": fit_settings(result), "names": list(result.var_names), "kind": kind, "seed": seed,
         "noise_scale": float(noise_scale), "isotopologue_label": label, "v_top": v_top,
     }
+    why_not = replicas_linear.eligible(result)
+    method_check = {"refit": "full", "notes": [why_not] if why_not and refit is None else []}
+    out = None
     with warnings.catch_warnings():  # the pool's threads share this thread's filters
         from .fitting import FitWarning
         warnings.simplefilter("ignore", FitWarning)
-        out = run_chunks(_replica_task, shared, range(n), executor, progress, desc="replicas")
+        if refit != "full" and not why_not:
+            shared["fast"] = replicas_linear.prepare(result, label, v_top, executor)
+            out = run_chunks(replicas_linear.fast_chunk, shared, range(n), executor, progress, desc="replicas",
+                             batched=True)
+            method_check = replicas_linear.check(result, shared, out, covariance_prediction(), executor,
+                                                 tolerance=check_tolerance)
+            del shared["fast"]
+            if not method_check["passed"]:
+                # the linearised corrections are not good enough here: the full refits
+                method_check["notes"].append("linearised replicas failed the exact check (%s): every replica was "
+                                             "refitted the full way" % method_check["reason"])
+                method_check["refit"] = "full"
+                out = None
+        if out is None:
+            out = run_chunks(_replica_task, shared, range(n), executor, progress, desc="replicas")
     return ReplicaResult(result, out, kind=kind, seed=seed, executor=describe_executor(executor),
-                         central_predictions=central, isotopologue=label, noise_scale=noise_scale)
+                         central_predictions=central, isotopologue=label, noise_scale=noise_scale,
+                         method_check=method_check, covariance_prediction=covariance_prediction())
 
 
 class ReplicaResult:
@@ -204,12 +277,18 @@ class ReplicaResult:
     ddof=1), intervals (name -> {probability: (low, high)} percentile intervals);
     central: the values of the fit itself; covariance_sd: name -> one-sigma uncertainty from the
     covariance matrix (linear propagation for the predictions; None where there is none);
-    samples: a pandas DataFrame, one row per converged replica.
+    samples: a pandas DataFrame, one row per converged replica;
+    refit: "linearised" or "full" (how the replicas were refitted); method_check: for linearised
+    refits, the exact check (replicas_linear.check: the replicas checked, parameter_error_sd and
+    prediction_error_sd, the largest errors found, in standard deviations; slope_effect_sd, how far
+    frozen corrections would have moved them; passed; notes), for full refits {"refit": "full", ...}.
     """
 
     def __init__(self, fit_result, outcomes, *, kind, seed, executor, central_predictions, isotopologue,
-                 noise_scale):
+                 noise_scale, method_check=None, covariance_prediction=None):
         self.fit_result = fit_result
+        self.method_check = dict(method_check or {"refit": "full", "notes": []})
+        self.refit = self.method_check["refit"]
         self.kind, self.seed, self.executor = kind, seed, executor
         self.isotopologue = isotopologue
         self.noise_scale = float(noise_scale)
@@ -224,7 +303,7 @@ class ReplicaResult:
         self.central = dict(fit_result.values)
         self.central["chi_square"] = fit_result.chi_square
         self.central.update(central_predictions)
-        self.covariance_sd = self._covariance_sd(fit_result, central_predictions)
+        self.covariance_sd = self._covariance_sd(fit_result, central_predictions, covariance_prediction)
         self.mean, self.std, self.intervals, self.n_finite = {}, {}, {}, {}
         for k in self.names:
             x = self.values[k]
@@ -235,10 +314,11 @@ class ReplicaResult:
             self.intervals[k] = {p: tuple(float(q) for q in np.percentile(x, [50 * (1 - p), 50 * (1 + p)]))
                                  if len(x) else (math.nan, math.nan) for p in INTERVALS}
 
-    def _covariance_sd(self, res, central):
+    def _covariance_sd(self, res, central, pred=None):
         out = {n: res.params[n].uncertainty for n in res.var_names}
         out["chi_square"] = None
-        pred = res.predict(isotopologue=self.isotopologue)
+        if pred is None:
+            pred = res.predict(isotopologue=self.isotopologue)
         out["D0"], out["vD"], out["n_bound"] = pred.D0_uncertainty, pred.vD_uncertainty, None
         for k in central:
             if k.startswith("Eb(v="):
@@ -319,7 +399,24 @@ def _header(r):
             else ""))
     lines.append("predictions for isotopologue %s at J = 0; Eb = asymptote - E, binding energy" % (
         r.isotopologue if r.isotopologue is not None else "(unnamed)"))
+    lines.append(_method_line(r.method_check))
+    lines.extend("note: %s" % note for note in r.method_check.get("notes", ()) if note)
     return lines
+
+
+def _method_line(check):
+    """One line on how the replicas were refitted and, for linearised refits, their exact check."""
+    if check["refit"] != "linearised":
+        return "refits: %s" % REFITS["full"]
+    if not check.get("checked"):
+        return "refits: linearised (first-order WKB refits, no exact corrections to check)"
+    return ("refits: linearised (first-order WKB + the central fit's exact corrections, linear in the parameters); "
+            "exact check of %d replicas (the farthest from the centre): parameters within %.2g sd, predictions "
+            "within %.2g sd of the exact problem (tolerance %.2g sd); frozen corrections would move them %.2g sd"
+            % (len(check["checked"]), check["parameter_error_sd"], check["prediction_error_sd"],
+               check["tolerance"], check["slope_effect_sd"])
+            + ("; %d predicted levels lay above the central exact count and took its top level's correction"
+               % check["extrapolated_levels"] if check.get("extrapolated_levels") else ""))
 
 
 def _text(r):

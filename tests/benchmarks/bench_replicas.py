@@ -1,10 +1,14 @@
 """Benchmark: replicas and model scans (wkbfit.replicas, wkbfit.model_scan) on threads, processes and Dask.
 
 Prints, from one run:
-  * 1000 Monte-Carlo replicas of a 50-level, 3-parameter Morse fit on the default thread pool
-    (target <= 1 s on a 2-core machine), and serially;
+  * before: the full refits (refit="full", every replica through wkbfit.fit), serially on
+    N_FULL replicas (scaled to 1000), and on the thread pool;
+  * after: 1000 Monte-Carlo replicas of a 50-level, 3-parameter Morse fit, linearised refits
+    (the default), on the default thread pool (target <= 1 s on a 2-core machine), and serially,
+    with the largest difference from the full refits of the same replicas in standard deviations;
   * two threads against one on the same replicas (target >= 1.8x), beside two processes against
     one (two forked processes each running half the replicas serially): the machine's own ceiling;
+    for the linearised refits (1000 replicas) and for the full refits (N_FULL replicas);
   * the same bootstrap on a distributed.LocalCluster with 2 worker processes, and its overhead per
     task, (wall time - serial time / 2) / tasks;
   * a 20-candidate MLR model scan of a 500-level data set (target <= 2 s).
@@ -24,6 +28,8 @@ import wkbfit  # noqa: E402
 
 MU = 6.66420389
 N_REPLICAS = 1000
+#: full refits timed (the before figure is scaled to N_REPLICAS)
+N_FULL = 200
 
 
 def morse_fit():
@@ -62,10 +68,38 @@ def scan_case():
     return obs, cands, mu
 
 
-def _half_serial(res, n, queue):
+def _half_serial(res, n, queue, refit=None):
     t0 = time.perf_counter()
-    res.bootstrap(n, seed=1, executor="serial", progress=False)
+    res.bootstrap(n, seed=1, executor="serial", progress=False, refit=refit)
     queue.put(time.perf_counter() - t0)
+
+
+def _ratios(res, n, refit, repeats=3):
+    """(2 threads / 1 thread, 2 processes / 1 process) speed-ups, interleaved runs."""
+    ratios_t, ratios_p = [], []
+    ctx = multiprocessing.get_context("fork")
+    for _ in range(repeats):
+        t0 = time.perf_counter()
+        res.bootstrap(n, seed=1, executor="serial", progress=False, refit=refit)
+        t_one = time.perf_counter() - t0
+        t0 = time.perf_counter()
+        res.bootstrap(n, seed=1, executor=2, progress=False, refit=refit)
+        ratios_t.append(t_one / (time.perf_counter() - t0))
+        queue = ctx.Queue()
+        procs = [ctx.Process(target=_half_serial, args=(res, n // 2, queue, refit)) for _ in range(2)]
+        t0 = time.perf_counter()
+        for p in procs:
+            p.start()
+        for p in procs:
+            p.join()
+        ratios_p.append(t_one / (time.perf_counter() - t0))
+    return ratios_t, ratios_p
+
+
+def _print_ratios(label, ratios_t, ratios_p):
+    print("  %-18s: 2 threads / 1: median %.2fx (runs %s; target >= 1.8x); 2 processes / 1: median %.2fx "
+          "(runs %s) <- the machine's ceiling" % (label, np.median(ratios_t), ", ".join("%.2f" % r for r in ratios_t),
+                                                  np.median(ratios_p), ", ".join("%.2f" % r for r in ratios_p)))
 
 
 def main():
@@ -74,6 +108,15 @@ def main():
     print("replica and model-scan benchmark on %d cores (a shared machine: other jobs may load it)" % os.cpu_count())
     res = morse_fit()
     res.bootstrap(50, progress=False)  # warm-up
+    res.bootstrap(10, progress=False, refit="full")
+    # before: full refits
+    t0 = time.perf_counter()
+    full = res.bootstrap(N_FULL, seed=1, executor="serial", progress=False, refit="full")
+    t_full = (time.perf_counter() - t0) * N_REPLICAS / N_FULL
+    t0 = time.perf_counter()
+    res.bootstrap(N_FULL, seed=1, executor="threads", progress=False, refit="full")
+    t_full_threads = (time.perf_counter() - t0) * N_REPLICAS / N_FULL
+    # after: linearised refits
     t0 = time.perf_counter()
     serial = res.bootstrap(N_REPLICAS, seed=1, executor="serial", progress=False)
     t_serial = time.perf_counter() - t0
@@ -81,33 +124,26 @@ def main():
     threaded = res.bootstrap(N_REPLICAS, seed=1, executor="threads", progress=False)
     t_threads = time.perf_counter() - t0
     same = all(np.array_equal(serial.values[k], threaded.values[k]) for k in serial.names)
+    worst = max(float(np.max(np.abs(serial.values[k][:N_FULL] - full.values[k]))) / res.params[k].uncertainty
+                for k in res.var_names)
+    check = serial.method_check
     print("\n%d replicas of a 50-level, 3-parameter Morse fit (%d failed):" % (N_REPLICAS, threaded.n_failed))
-    print("  serial            : %7.3f s  (%.3f ms per replica)" % (t_serial, t_serial / N_REPLICAS * 1e3))
-    print("  threads (%d)       : %7.3f s  (target <= 1 s: %s); identical to serial: %s" % (
-        os.cpu_count(), t_threads, "met" if t_threads <= 1 else "NOT met", same))
+    print("  before: full refits, serial : %7.3f s  (%.3f ms per replica; %d timed, scaled)" % (
+        t_full, t_full / N_REPLICAS * 1e3, N_FULL))
+    print("  before: full refits, threads: %7.3f s" % t_full_threads)
+    print("  after: linearised, serial   : %7.3f s  (%.3f ms per replica; %.1fx faster than before)" % (
+        t_serial, t_serial / N_REPLICAS * 1e3, t_full / t_serial))
+    print("  after: linearised, threads(%d): %6.3f s  (target <= 1 s: %s; %.1fx faster than before on threads); "
+          "identical to serial: %s" % (os.cpu_count(), t_threads, "met" if t_threads <= 1 else "NOT met",
+                                       t_full_threads / t_threads, same))
+    print("  linearised vs full refits of the same %d replicas: largest difference %.2g sd; run-time exact check: "
+          "parameters %.2g sd, predictions %.2g sd (tolerance %.2g), frozen corrections %.2g sd" % (
+              N_FULL, worst, check["parameter_error_sd"], check["prediction_error_sd"], check["tolerance"],
+              check["slope_effect_sd"]))
 
-    # two threads against one, and two processes against one (the ceiling), three interleaved runs
-    ratios_t, ratios_p = [], []
-    ctx = multiprocessing.get_context("fork")
-    for _ in range(3):
-        t0 = time.perf_counter()
-        res.bootstrap(N_REPLICAS, seed=1, executor="serial", progress=False)
-        t_one = time.perf_counter() - t0
-        t0 = time.perf_counter()
-        res.bootstrap(N_REPLICAS, seed=1, executor=2, progress=False)
-        ratios_t.append(t_one / (time.perf_counter() - t0))
-        queue = ctx.Queue()
-        procs = [ctx.Process(target=_half_serial, args=(res, N_REPLICAS // 2, queue)) for _ in range(2)]
-        t0 = time.perf_counter()
-        for p in procs:
-            p.start()
-        for p in procs:
-            p.join()
-        ratios_p.append(t_one / (time.perf_counter() - t0))
-    print("  2 threads / 1     : median %.2fx (runs %s; target >= 1.8x)" % (
-        np.median(ratios_t), ", ".join("%.2f" % r for r in ratios_t)))
-    print("  2 processes / 1   : median %.2fx (runs %s)  <- the machine's ceiling" % (
-        np.median(ratios_p), ", ".join("%.2f" % r for r in ratios_p)))
+    # two threads against one, and two processes against one (the ceiling), three interleaved runs each
+    _print_ratios("linearised", *_ratios(res, N_REPLICAS, None))
+    _print_ratios("full refits", *_ratios(res, N_FULL, "full"))
 
     try:
         from distributed import Client, LocalCluster
