@@ -499,3 +499,21 @@ def test_linearised_resample_same_numbers_on_threads_and_chunks(morse_fit):
     for k in a.names:
         assert np.array_equal(a.values[k], b.values[k], equal_nan=True)
     assert a.method_check["checked"] == b.method_check["checked"]
+
+
+def test_bootstrap_of_a_state_with_omega_predicts_at_J_equal_omega():
+    # Omega = 6: J(J+1) - Omega^2 of J = 6, 7 equals J(J+1) of J = 2, 4 (arithmetic identity), so the
+    # data are the exact levels at J = 2, 4 filed as J = 6, 7, and the predictions (at the state's lowest
+    # J, Omega) are the exact J = 2 levels of the fitted potential
+    vs = list(range(12))
+    E = {j: exact_levels(TRUE, vs, j) for j in (2, 4)}
+    rng = np.random.default_rng(5)
+    obs = wkbfit.read_levels({"v": vs * 2, "J": [6] * 12 + [7] * 12,
+                              "energy": np.concatenate([E[2], E[4]]) + rng.normal(0, 0.01, 24),
+                              "uncertainty": np.full(24, 0.01)})
+    res = wkbfit.fit(wkbfit.Morse(De=5800.0, re=3.66, a=0.605), obs, MU, omega=6)
+    reps = res.bootstrap(20, seed=2, executor="serial", progress=False)
+    assert reps.n_failed == 0 and reps.prediction_J == 6
+    E2 = wkbfit.levels(res.potential, MU, v=[0], J=2, method="exact").energy[0]
+    assert abs(reps.central["D0"] - (res.potential.asymptote - E2)) < 1e-4
+    assert np.all(np.isfinite(reps.values["D0"])) and "at J = 6" in str(reps)

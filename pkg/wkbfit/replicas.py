@@ -36,7 +36,8 @@ A replica whose fit raises, does not converge, or leaves a parameter undetermine
 counted in `n_failed`, listed with its reason in `failures`, and left out of the statistics,
 which say how many replicas they rest on.
 
-Predictions of every replica (for one isotopologue at J = 0): D0 (asymptote minus v=0, J=0),
+Predictions of every replica (for one isotopologue at J = 0, or J = Omega for a state with electronic
+angular momentum): D0 (asymptote minus v=0 at that J),
 vD, the number of bound levels, and the binding energies of the levels nearest dissociation
 (the top `n_top_levels` of the central fit, NaN in a replica that does not bind one).
 """
@@ -71,6 +72,11 @@ def fit_settings(result):
             "max_iterations": getattr(result, "max_iterations", 200)}
 
 
+def prediction_J(result):
+    """J of the predictions: 0, or Omega for a state with electronic angular momentum (its lowest J)."""
+    return int(getattr(result, "omega", 0) or 0)
+
+
 def prediction_values(result, isotopologue, v_top, n_top=None):
     """The predictions of one fit (J = 0), as a dict of floats: the values of result.predict,
     computed directly by the core (without the uncertainty propagation) for the methods the
@@ -78,7 +84,8 @@ def prediction_values(result, isotopologue, v_top, n_top=None):
     instead of the levels v_top."""
     from . import _core
     from .fitting import _METHOD_CODES, _level_code
-    if result.method in _METHOD_CODES or result.method == "corrected":
+    J0 = prediction_J(result)
+    if (result.method in _METHOD_CODES or result.method == "corrected") and not J0:
         model, params, curve = result.potential._core_args()
         mu = result.masses[isotopologue]
         res = None
@@ -96,7 +103,7 @@ def prediction_values(result, isotopologue, v_top, n_top=None):
             res = _core.fit_levels(model, params, curve, mu, 0.0, _level_code(result.method))
             E, asym, vD = res["energy"], res["asymptote"], res["vD"]
     else:
-        pred = result.predict(isotopologue=isotopologue)
+        pred = result.predict(isotopologue=isotopologue, J=J0)
         E, asym, vD = pred.energy, pred.energy[0] + pred.binding_energy[0] if pred.n_bound else math.nan, pred.vD
     out = {"D0": asym - E[0] if len(E) else math.nan, "vD": vD, "n_bound": float(len(E))}
     if n_top is not None:
@@ -215,7 +222,7 @@ def bootstrap(result, n=1000, seed=1, kind="monte-carlo", executor=None, *, prog
     side = concurrent.futures.ThreadPoolExecutor(1) if executor != "serial" else None
     try:
         return _bootstrap(result, n, seed, kind, executor, progress, label, central, v_top, refit, check_tolerance,
-                          side.submit(result.predict, isotopologue=label) if side else None)
+                          side.submit(result.predict, isotopologue=label, J=prediction_J(result)) if side else None)
     finally:
         if side:
             side.shutdown(wait=True)
@@ -229,7 +236,8 @@ def _bootstrap(result, n, seed, kind, executor, progress, label, central, v_top,
 
     def covariance_prediction():
         if not cached:
-            cached.append(prediction_future.result() if prediction_future else result.predict(isotopologue=label))
+            cached.append(prediction_future.result() if prediction_future else
+                          result.predict(isotopologue=label, J=prediction_J(result)))
         return cached[0]
 
     noise_scale = (result.sqrt_reduced_chi_square if (result.scale_uncertainties and result.sqrt_reduced_chi_square)
@@ -291,6 +299,7 @@ class ReplicaResult:
         self.refit = self.method_check["refit"]
         self.kind, self.seed, self.executor = kind, seed, executor
         self.isotopologue = isotopologue
+        self.prediction_J = prediction_J(fit_result)  # J of the predictions (Omega of the state, else 0)
         self.noise_scale = float(noise_scale)
         self.n = len(outcomes)
         ok = [(i, vals) for i, reason, vals in outcomes if reason is None]
@@ -318,7 +327,7 @@ class ReplicaResult:
         out = {n: res.params[n].uncertainty for n in res.var_names}
         out["chi_square"] = None
         if pred is None:
-            pred = res.predict(isotopologue=self.isotopologue)
+            pred = res.predict(isotopologue=self.isotopologue, J=prediction_J(res))
         out["D0"], out["vD"], out["n_bound"] = pred.D0_uncertainty, pred.vD_uncertainty, None
         for k in central:
             if k.startswith("Eb(v="):
@@ -397,8 +406,8 @@ def _header(r):
         lines.append("noise: stated uncertainties x %.4g%s" % (
             r.noise_scale, " (the sqrt of reduced chi-square, as the scaled covariance)" if r.noise_scale != 1
             else ""))
-    lines.append("predictions for isotopologue %s at J = 0; Eb = asymptote - E, binding energy" % (
-        r.isotopologue if r.isotopologue is not None else "(unnamed)"))
+    lines.append("predictions for isotopologue %s at J = %d; Eb = asymptote - E, binding energy" % (
+        r.isotopologue if r.isotopologue is not None else "(unnamed)", r.prediction_J))
     lines.append(_method_line(r.method_check))
     lines.extend("note: %s" % note for note in r.method_check.get("notes", ()) if note)
     return lines
