@@ -38,7 +38,7 @@ which say how many replicas they rest on.
 
 Predictions of every replica (for one isotopologue at J = 0, or J = Omega for a state with electronic
 angular momentum): D0 (asymptote minus v=0 at that J),
-vD, the number of bound levels, and the binding energies of the levels nearest dissociation
+vD (the first-order WKB value, I(D) = pi (vD + 1/2), as the core reports it), the number of bound levels, and the binding energies of the levels nearest dissociation
 (the top `n_top_levels` of the central fit, NaN in a replica that does not bind one).
 """
 import concurrent.futures
@@ -104,7 +104,8 @@ def prediction_values(result, isotopologue, v_top, n_top=None):
             E, asym, vD = res["energy"], res["asymptote"], res["vD"]
     else:
         pred = result.predict(isotopologue=isotopologue, J=J0)
-        E, asym, vD = pred.energy, pred.energy[0] + pred.binding_energy[0] if pred.n_bound else math.nan, pred.vD
+        E, asym, vD = pred.energy, pred.energy[0] + pred.binding_energy[0] if pred.n_bound else math.nan, \
+            pred.vD_first_order
     out = {"D0": asym - E[0] if len(E) else math.nan, "vD": vD, "n_bound": float(len(E))}
     if n_top is not None:
         v_top = range(max(0, len(E) - n_top), len(E))
@@ -328,7 +329,9 @@ class ReplicaResult:
         out["chi_square"] = None
         if pred is None:
             pred = res.predict(isotopologue=self.isotopologue, J=prediction_J(res))
-        out["D0"], out["vD"], out["n_bound"] = pred.D0_uncertainty, pred.vD_uncertainty, None
+        # vD of the replicas is the first-order one (the core's, no threshold solve per replica): its
+        # covariance uncertainty is that of the first-order vD too
+        out["D0"], out["vD"], out["n_bound"] = pred.D0_uncertainty, pred.vD_first_order_uncertainty, None
         for k in central:
             if k.startswith("Eb(v="):
                 out[k] = float(pred.binding_uncertainty[int(k[5:-1])])
