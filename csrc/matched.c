@@ -34,6 +34,9 @@
 #define WALK_MAX_STEP 0.25
 #define WALK_MAX_STEPS 4000
 #define MIDDLE_LOG_PIECE 0.5 /* Gauss-Legendre pieces of the interior, in ln r */
+#define MILNE_SCAN 48
+#define MILNE_MAX_DK 5e-3
+#define MILNE_MIN_LOG 0.05 /* shorter phase-amplitude stretches (in ln r) are not worth starting */
 
 typedef struct {
     const wkb_well *w;
@@ -42,8 +45,8 @@ typedef struct {
 } rhs_ctx;
 
 struct wkb_matched {
-    gsl_odeiv2_system sys;
-    gsl_odeiv2_driver *drv;
+    gsl_odeiv2_system sys, milne_sys;
+    gsl_odeiv2_driver *drv, *milne_drv;
     rhs_ctx ctx;
 };
 
@@ -53,6 +56,8 @@ void wkb_matched_free(wkb_matched *m)
         return;
     if (m->drv)
         gsl_odeiv2_driver_free(m->drv);
+    if (m->milne_drv)
+        gsl_odeiv2_driver_free(m->milne_drv);
     free(m);
 }
 
@@ -67,6 +72,25 @@ static int pruefer_rhs(double t, const double y[], double f[], void *params)
     const double s = sin(y[0]), co = cos(y[0]);
     f[0] = -r * (q * co * co + (F / q) * s * s + (q_rho / q) * s * co);
     return isfinite(f[0]) ? GSL_SUCCESS : GSL_EBADFUNC;
+}
+
+/* The phase-amplitude (Milne) form of the radial equation in s = ln r: u = A sin(theta), theta_r = A^-2,
+   A_rr + F A = A^-3, so that every solution u is c A sin(theta + theta0) with the same A. Written for
+   y = (L, N, theta), L = ln A, N = A^2 A_r/A (both of order 1 and smooth, so one absolute tolerance
+   serves all three): L_s = r W N, N_s = r (W (1 + N^2) - F/W), theta_s = r W, W = A^-2. Started
+   from the second-order WKB wave where WKB holds, A (and W) follow the potential's scale instead of
+   the wavelength: there is no oscillation to resolve. */
+static int milne_rhs(double s, const double y[], double f[], void *params)
+{
+    rhs_ctx *c = params;
+    const double r = exp(s), eps = c->w->eps;
+    wkb_pot_value pv;
+    const double F = wkb_well_kinetic(c->w, c->binding, r, &pv) / eps, W = exp(-2 * y[0]);
+    c->n_eval++;
+    f[0] = r * W * y[1];
+    f[1] = r * (W * (1 + y[1] * y[1]) - F / W);
+    f[2] = r * W;
+    return isfinite(f[1]) ? GSL_SUCCESS : GSL_EBADFUNC;
 }
 
 static int get_state(wkb_well *w, wkb_matched **out, wkb_error *err)
@@ -88,6 +112,17 @@ static int get_state(wkb_well *w, wkb_matched **out, wkb_error *err)
         return wkb_fail(err, WKB_ENOMEM, "out of memory for the matched-phase ODE driver");
     }
     gsl_odeiv2_driver_set_nmax(m->drv, 200000);
+    m->milne_sys.function = milne_rhs;
+    m->milne_sys.jacobian = NULL;
+    m->milne_sys.dimension = 3;
+    m->milne_sys.params = &m->ctx;
+    m->milne_drv = gsl_odeiv2_driver_alloc_y_new(&m->milne_sys, gsl_odeiv2_step_rk8pd, 1e-3, w->set.match_ode_tol, 0.0);
+    if (!m->milne_drv) {
+        gsl_odeiv2_driver_free(m->drv);
+        free(m);
+        return wkb_fail(err, WKB_ENOMEM, "out of memory for the matched-phase ODE driver");
+    }
+    gsl_odeiv2_driver_set_nmax(m->milne_drv, 200000);
     w->matched = m;
     *out = m;
     return WKB_SUCCESS;
@@ -108,6 +143,25 @@ static void local_wave(const wkb_well *w, double kin, const wkb_pot_value *pv, d
     *dkdr = -pv->dV / (2 * eps * *k);
     const double dk = sqrt(eps) * (pv->d2V / (8 * kin * sqrt(kin)) + (5.0 / 32) * pv->dV * pv->dV / (kin * kin * sqrt(kin)));
     *q2 = *k + dk;
+}
+
+/* Where the phase-amplitude form stops being cheap: the last of MILNE_SCAN points, evenly spaced in ln r
+   from the matching point b towards the turning point, up to which WKB holds well (the second-order
+   term below MILNE_MAX_DK of k); b itself when the first one fails. */
+static double milne_end(const wkb_well *w, double binding, double b, double r_turn, size_t *n_eval)
+{
+    const double eps = w->eps, step = log(r_turn / b) / MILNE_SCAN;
+    double r_m = b;
+    for (int i = 1; i < MILNE_SCAN; i++) {
+        const double r = b * exp(step * i);
+        wkb_pot_value pv;
+        const double kin = wkb_well_kinetic(w, binding, r, &pv);
+        (*n_eval)++;
+        if (!(kin > 0) || eps * (fabs(pv.d2V) / (8 * kin * kin) + (5.0 / 32) * pv.dV * pv.dV / (kin * kin * kin)) > MILNE_MAX_DK)
+            break;
+        r_m = r;
+    }
+    return r_m;
 }
 
 static int end_phase(wkb_well *w, double binding, int outer, double r_turn, double b, wkb_end_phase *out,
@@ -160,27 +214,75 @@ static int end_phase(wkb_well *w, double binding, int outer, double r_turn, doub
         const double z = -kappa - dkappa_rho / (2 * kappa);
         y[0] = M_PI_2 - atan(z / q);
     }
+    /* the allowed stretch from b to r_m where WKB holds: the phase-amplitude form, started from the
+       second-order WKB wave itself, A = q2^(-1/2), A_r/A = -k_r/(2k) (so that its phase at b is psi) */
+    const double kb = wkb_well_kinetic(w, binding, b, &pv);
+    double k, dkdr, q2;
+    local_wave(w, kb, &pv, &k, &dkdr, &q2);
+    size_t n_scan = 0;
+    const double r_m = w->set.match_milne ? milne_end(w, binding, b, r_turn, &n_scan) : b;
+    const int milne = fabs(log(r_m / b)) >= MILNE_MIN_LOG;
+    double ym[3] = {-0.5 * log(q2), 0, 0}, ym0_1 = 0;
+    if (milne) {
+        /* N = A^2 A_r/A = -W_r/(2 W^2) with W = q2 the second-order wavenumber (its derivative by a
+           central difference): the closer the start is to the smooth amplitude, the smaller the
+           oscillation left in A for the ODE to follow */
+        const double h = 1e-4 * b;
+        double kp, dkp, q2p, km, dkm, q2m;
+        wkb_pot_value pp, pm;
+        local_wave(w, wkb_well_kinetic(w, binding, b + h, &pp), &pp, &kp, &dkp, &q2p);
+        local_wave(w, wkb_well_kinetic(w, binding, b - h, &pm), &pm, &km, &dkm, &q2m);
+        n_scan += 2;
+        ym[1] = -(q2p - q2m) / (2 * h) / (2 * q2 * q2);
+        ym0_1 = ym[1];
+        double s = log(b);
+        gsl_odeiv2_driver_reset_hstart(m->milne_drv, 1e-2 * GSL_SIGN(log(r_m) - s));
+        int gs = gsl_odeiv2_driver_apply(m->milne_drv, &s, log(r_m), ym);
+        if (gs != GSL_SUCCESS || !isfinite(ym[0]) || !isfinite(ym[1]) || !isfinite(ym[2]))
+            return wkb_fail(err, WKB_ENUMERIC,
+                            "the %s-end phase-amplitude solution failed at binding energy %.6g cm-1 (GSL status %d)",
+                            outer ? "outer" : "inner", binding, gs);
+    }
+    const double r_end = milne ? r_m : b;
     double t = -sigma * log(r);
-    const double t_b = -sigma * log(b);
-    gsl_odeiv2_driver_reset_hstart(m->drv, 1e-3 * GSL_SIGN(t_b - t));
-    int gs = gsl_odeiv2_driver_apply(m->drv, &t, t_b, y);
+    const double t_end = -sigma * log(r_end);
+    gsl_odeiv2_driver_reset_hstart(m->drv, 1e-3 * GSL_SIGN(t_end - t));
+    int gs = gsl_odeiv2_driver_apply(m->drv, &t, t_end, y);
     if (gs != GSL_SUCCESS || !isfinite(y[0]))
         return wkb_fail(err, WKB_ENUMERIC,
                         "the exact %s-end solution failed at binding energy %.6g cm-1 (GSL status %d)",
                         outer ? "outer" : "inner", binding, gs);
-    /* join at b to k^(-1/2) sin(psi): u'/u = -k'/(2k) + q2 cot(psi) in rho */
-    const double kb = wkb_well_kinetic(w, binding, b, &pv);
-    double k, dkdr, q2;
-    local_wave(w, kb, &pv, &k, &dkdr, &q2);
-    const double Fb = kb / eps, qb = sqrt(sqrt(Fb * Fb + m->ctx.q04));
-    const double zb = qb * cos(y[0]) / sin(y[0]); /* u_rho/u */
-    const double x = zb + sigma * dkdr / (2 * k);
-    double psi = atan2(q2, x); /* in (0, pi) */
-    psi += M_PI * round((y[0] - psi) / M_PI);
+    double psi;
+    if (milne) {
+        /* the Pruefer solution at r_m in the phase-amplitude form (theta in rho, increasing like phi):
+           cot theta = A^2 (u_rho/u - A_rho/A); then back along the stretch to b */
+        const double km = wkb_well_kinetic(w, binding, r_m, &pv), Fm = km / eps, qm = sqrt(sqrt(Fm * Fm + m->ctx.q04));
+        const double a2 = exp(2 * ym[0]), sp = sin(y[0]);
+        double th = atan2(sp, a2 * qm * cos(y[0]) - sigma * ym[1] * sp), n = floor(y[0] / M_PI);
+        if (th < 0)
+            th += M_PI;
+        const double off = th - (y[0] - n * M_PI); /* the same half-turn as phi: zeros of u coincide */
+        if (off > M_PI_2)
+            th -= M_PI;
+        else if (off < -M_PI_2)
+            th += M_PI;
+        const double th_b = th + n * M_PI - sigma * ym[2];
+        /* u_rho/u at b in the phase-amplitude form, then the WKB-wave phase there (as below) */
+        const double zb = q2 / tan(th_b) + sigma * ym0_1 * q2;
+        psi = atan2(q2, zb + sigma * dkdr / (2 * k));
+        psi += M_PI * round((th_b - psi) / M_PI);
+    } else {
+        /* join at b to k^(-1/2) sin(psi): u'/u = -k'/(2k) + q2 cot(psi) in rho */
+        const double Fb = kb / eps, qb = sqrt(sqrt(Fb * Fb + m->ctx.q04));
+        const double zb = qb * cos(y[0]) / sin(y[0]); /* u_rho/u */
+        const double x = zb + sigma * dkdr / (2 * k);
+        psi = atan2(q2, x); /* in (0, pi) */
+        psi += M_PI * round((y[0] - psi) / M_PI);
+    }
     out->psi = psi;
     out->r_match = b;
     out->r_turn = r_turn;
-    out->evaluations = m->ctx.n_eval + n_walk;
+    out->evaluations = m->ctx.n_eval + n_walk + n_scan;
     out->action_to_turn = NAN;
     return WKB_SUCCESS;
 }
