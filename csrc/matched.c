@@ -35,7 +35,14 @@
 #define WALK_MAX_STEPS 4000
 #define MIDDLE_LOG_PIECE 0.5 /* Gauss-Legendre pieces of the interior, in ln r */
 #define MILNE_SCAN 48
-#define MILNE_MAX_DK 5e-3
+#define MILNE_MAX_DK 3e-2
+/* The phase ODE's tolerance per step follows what the level needs: its accumulated error (~20 tolerances,
+   measured) times dE/dv / pi stays at ODE_ENERGY_SHARE cm-1 (100x below the 1e-6 cm-1 held for the last
+   levels), between the settings' match_ode_tol and ODE_TOL_MAX; a tighter tolerance costs steps
+   (rk8pd: tol^(-1/8)) and buys nothing the rule keeps. */
+#define ODE_ENERGY_SHARE 1e-8
+#define ODE_TOL_MAX 1e-7
+#define ODE_TOL_THRESHOLD 1e-8 /* for v_th: 20 tol / pi ~ 6e-8 in v */
 #define MILNE_MIN_LOG 0.05 /* shorter phase-amplitude stretches (in ln r) are not worth starting */
 
 typedef struct {
@@ -48,6 +55,7 @@ struct wkb_matched {
     gsl_odeiv2_system sys, milne_sys;
     gsl_odeiv2_driver *drv, *milne_drv;
     rhs_ctx ctx;
+    double tol; /* the drivers' absolute tolerance per step now (radians) */
 };
 
 void wkb_matched_free(wkb_matched *m)
@@ -123,9 +131,34 @@ static int get_state(wkb_well *w, wkb_matched **out, wkb_error *err)
         return wkb_fail(err, WKB_ENOMEM, "out of memory for the matched-phase ODE driver");
     }
     gsl_odeiv2_driver_set_nmax(m->milne_drv, 200000);
+    m->tol = w->set.match_ode_tol;
     w->matched = m;
     *out = m;
     return WKB_SUCCESS;
+}
+
+/* The tolerance per step for the next phase integrations (see ODE_ENERGY_SHARE). */
+static int set_tol(wkb_well *w, double tol, wkb_error *err)
+{
+    wkb_matched *m = NULL;
+    int status = get_state(w, &m, err);
+    if (status)
+        return status;
+    if (tol != m->tol) {
+        gsl_odeiv2_control_init(m->drv->c, tol, 0.0, 1.0, 0.0);
+        gsl_odeiv2_control_init(m->milne_drv->c, tol, 0.0, 1.0, 0.0);
+        m->tol = tol;
+    }
+    return WKB_SUCCESS;
+}
+
+/* The tolerance per step for a level with spacing dE/dv (cm-1; not positive: unknown). */
+static double level_tol(const wkb_well *w, double dEdv)
+{
+    const double floor = w->set.match_ode_tol;
+    if (!(dEdv > 0) || !w->set.match_milne)
+        return floor;
+    return GSL_MAX(floor, GSL_MIN(ODE_TOL_MAX, M_PI * ODE_ENERGY_SHARE / (20 * dEdv)));
 }
 
 /* Binding energy of the matching level E - f (E - V_min). */
@@ -363,7 +396,7 @@ int wkb_matched_end_phase(wkb_well *w, double binding, int end, double r_match, 
                             end ? "outer" : "inner", end ? r2 : r1);
         b = r_match;
     }
-    if ((status = end_phase(w, binding, end, end ? r2 : r1, b, out, err)))
+    if ((status = set_tol(w, w->set.match_ode_tol, err)) || (status = end_phase(w, binding, end, end ? r2 : r1, b, out, err)))
         return status;
     out->action_to_turn = action_to_turn(w, binding, b, end ? r2 : r1);
     return WKB_SUCCESS;
@@ -480,7 +513,8 @@ int wkb_matched_quantum_number(wkb_well *w, double binding, double *v, wkb_error
 {
     if (!w->ready)
         return wkb_fail(err, WKB_EINVAL, "the well has not been set up");
-    return quantum_number(w, binding, v, NULL, 0, err);
+    int status = set_tol(w, w->set.match_ode_tol, err);
+    return status ? status : quantum_number(w, binding, v, NULL, 0, err);
 }
 
 int wkb_threshold_number(wkb_well *w, double *v_th, wkb_error *err)
@@ -502,6 +536,11 @@ int wkb_threshold_number(wkb_well *w, double *v_th, wkb_error *err)
        any crossover energy eps/beta^2 of a realistic tail; quadratic extrapolation in kappa */
     const double depth = w->bound_top - w->bottom, b0 = (w->top - w->bound_top) + 1e-13 * depth;
     double vk[3];
+    int ts = set_tol(w, w->set.match_milne ? GSL_MAX(w->set.match_ode_tol, ODE_TOL_THRESHOLD) : w->set.match_ode_tol, err);
+    if (ts) {
+        w->v_th_status = ts;
+        return ts;
+    }
     for (int k = 0; k < 3; k++) {
         int status = quantum_number(w, b0 * (k + 1) * (k + 1), &vk[k], NULL, w->across, err);
         if (status) {
@@ -596,7 +635,11 @@ int wkb_matched_solve(wkb_well *w, size_t v, int across, int second_start, wkb_l
     const double n = w->tail_power, alpha = n > 2 ? (n - 2) / (2 * n) : 0.5;
     const double depth = w->top - w->bottom, b_min = w->top - w->bound_top;
     /* no point in iterating below a quarter of the phase ODE's own error, 20 tol/(dI/dE) (see below) */
-    const double ode_floor = level->status == WKB_SUCCESS && level->dEdv > 0 ? 5 * w->set.match_ode_tol * level->dEdv / M_PI : 0;
+    const double ode_tol = level_tol(w, level->status == WKB_SUCCESS ? level->dEdv : NAN);
+    const double ode_floor = level->status == WKB_SUCCESS && level->dEdv > 0 ? 5 * ode_tol * level->dEdv / M_PI : 0;
+    int ts = set_tol(w, ode_tol, err);
+    if (ts)
+        return ts;
     const double tol = w->set.energy_tol + 4e-14 * depth + ode_floor;
     double lo = pow(b_min, alpha), hi = pow(depth, alpha); /* G(lo) > 0 (threshold side), G(hi) < 0 */
     double x, slope;
@@ -695,7 +738,7 @@ int wkb_matched_solve(wkb_well *w, size_t v, int across, int second_start, wkb_l
     level->binding = b;
     level->energy = w->top - b;
     /* the phase ODE's local tolerance, accumulated over its steps (20 tolerances: measured errors stay below), through dE = dphase / (dI/dE) */
-    level->error = db + 20 * w->set.match_ode_tol / o.half_period;
+    level->error = db + 20 * ode_tol / o.half_period;
     level->r_inner = o.r_inner;
     level->r_outer = o.r_outer;
     level->dEdv = M_PI / o.half_period;

@@ -2016,7 +2016,7 @@ static PyMethodDef core_methods[] = {
      "-> dict of level arrays (v, energy, binding_energy, turning points, Bv, dEdv, error, rule, rot_index), vD, "
      "v_th (ends=1 only, else NaN) and count (per rot when rot is an array), [dE_dp]; ends=1 selects matched end "
      "phases, nodes overrides the quadrature rule, match_rule forces 3 (matched) or 4 (exact phase), milne=False "
-     "integrates the exact end solutions in Pruefer form all the way (no phase-amplitude stretch)"},
+     "is the earlier end solve (Pruefer form all the way, fixed tolerance), kept for comparison"},
     {"wkb_orbits", (PyCFunction)(void (*)(void))py_wkb_orbits, METH_VARARGS | METH_KEYWORDS,
      "wkb_orbits(model, params, curve, mu, rot, binding) -> dict of arrays: action (integral k dr), "
      "half_period (d action/dE, 1/cm-1), inner/outer turning points, Bv; at binding energies asymptote - E"},
