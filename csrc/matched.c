@@ -43,6 +43,7 @@
 #define ODE_ENERGY_SHARE 1e-8
 #define ODE_TOL_MAX 1e-7
 #define ODE_TOL_THRESHOLD 1e-8 /* for v_th: 20 tol / pi ~ 6e-8 in v */
+#define REUSE_MAX 1e-4 /* largest |y_E (E - E_k)| of a reused stretch: the neglected second-order term ~1e-10 */
 #define MILNE_MIN_LOG 0.05 /* shorter phase-amplitude stretches (in ln r) are not worth starting */
 
 typedef struct {
@@ -51,11 +52,23 @@ typedef struct {
     size_t n_eval;
 } rhs_ctx;
 
+typedef struct {
+    int ok;
+    double binding, b, r_m, W0, N0, y[6]; /* y: L, N, theta at r_m and their energy derivatives */
+} kept_stretch;
+
 struct wkb_matched {
     gsl_odeiv2_system sys, milne_sys;
     gsl_odeiv2_driver *drv, *milne_drv;
     rhs_ctx ctx;
     double tol; /* the drivers' absolute tolerance per step now (radians) */
+    /* within one level solve or one threshold number (reuse set): each end's phase-amplitude stretch is
+       kept with its energy derivative, y(E) = y(E_k) + y_E (E - E_k), and reused at the nearby energies
+       of the iteration (its matching point then stays put) */
+    gsl_odeiv2_system milne6_sys;
+    gsl_odeiv2_driver *milne6_drv;
+    int reuse;
+    kept_stretch keep[2]; /* inner, outer end */
 };
 
 void wkb_matched_free(wkb_matched *m)
@@ -66,6 +79,8 @@ void wkb_matched_free(wkb_matched *m)
         gsl_odeiv2_driver_free(m->drv);
     if (m->milne_drv)
         gsl_odeiv2_driver_free(m->milne_drv);
+    if (m->milne6_drv)
+        gsl_odeiv2_driver_free(m->milne6_drv);
     free(m);
 }
 
@@ -101,6 +116,24 @@ static int milne_rhs(double s, const double y[], double f[], void *params)
     return isfinite(f[1]) ? GSL_SUCCESS : GSL_EBADFUNC;
 }
 
+/* milne_rhs with the energy derivatives (L_E, N_E, theta_E) in y[3..5] (F_E = 1/eps): the stretch's
+   linear response, for reuse at nearby energies. */
+static int milne6_rhs(double s, const double y[], double f[], void *params)
+{
+    rhs_ctx *c = params;
+    const double r = exp(s), eps = c->w->eps;
+    wkb_pot_value pv;
+    const double F = wkb_well_kinetic(c->w, c->binding, r, &pv) / eps, W = exp(-2 * y[0]), N = y[1];
+    c->n_eval++;
+    f[0] = r * W * N;
+    f[1] = r * (W * (1 + N * N) - F / W);
+    f[2] = r * W;
+    f[3] = r * W * (y[4] - 2 * N * y[3]);
+    f[4] = r * (-2 * W * (1 + N * N) * y[3] + 2 * W * N * y[4] - 1 / (eps * W) - 2 * F * y[3] / W);
+    f[5] = -2 * r * W * y[3];
+    return isfinite(f[1]) && isfinite(f[4]) ? GSL_SUCCESS : GSL_EBADFUNC;
+}
+
 static int get_state(wkb_well *w, wkb_matched **out, wkb_error *err)
 {
     if (w->matched) {
@@ -131,6 +164,19 @@ static int get_state(wkb_well *w, wkb_matched **out, wkb_error *err)
         return wkb_fail(err, WKB_ENOMEM, "out of memory for the matched-phase ODE driver");
     }
     gsl_odeiv2_driver_set_nmax(m->milne_drv, 200000);
+    m->milne6_sys.function = milne6_rhs;
+    m->milne6_sys.jacobian = NULL;
+    m->milne6_sys.dimension = 6;
+    m->milne6_sys.params = &m->ctx;
+    /* the derivatives need only ~1e-6 relative: 1e3 tolerances (y_E (E - E_k) stays below REUSE_MAX) */
+    static const double scale6[6] = {1, 1, 1, 1e3, 1e3, 1e3};
+    m->milne6_drv = gsl_odeiv2_driver_alloc_scaled_new(&m->milne6_sys, gsl_odeiv2_step_rk8pd, 1e-3,
+                                                       w->set.match_ode_tol, 0.0, 1.0, 0.0, scale6);
+    if (!m->milne6_drv) {
+        wkb_matched_free(m);
+        return wkb_fail(err, WKB_ENOMEM, "out of memory for the matched-phase ODE driver");
+    }
+    gsl_odeiv2_driver_set_nmax(m->milne6_drv, 200000);
     m->tol = w->set.match_ode_tol;
     w->matched = m;
     *out = m;
@@ -147,9 +193,19 @@ static int set_tol(wkb_well *w, double tol, wkb_error *err)
     if (tol != m->tol) {
         gsl_odeiv2_control_init(m->drv->c, tol, 0.0, 1.0, 0.0);
         gsl_odeiv2_control_init(m->milne_drv->c, tol, 0.0, 1.0, 0.0);
+        gsl_odeiv2_control_init(m->milne6_drv->c, tol, 0.0, 1.0, 0.0);
         m->tol = tol;
     }
     return WKB_SUCCESS;
+}
+
+/* Opens (on = 1) or closes a reuse scope: one level's iteration or one threshold number. */
+static void reuse_scope(wkb_well *w, int on)
+{
+    if (!w->matched)
+        return;
+    w->matched->reuse = on && w->set.match_milne;
+    w->matched->keep[0].ok = w->matched->keep[1].ok = 0;
 }
 
 /* The tolerance per step for a level with spacing dE/dv (cm-1; not positive: unknown). */
@@ -248,15 +304,31 @@ static int end_phase(wkb_well *w, double binding, int outer, double r_turn, doub
         y[0] = M_PI_2 - atan(z / q);
     }
     /* the allowed stretch from b to r_m where WKB holds: the phase-amplitude form, started from the
-       second-order WKB wave itself, A = q2^(-1/2), A_r/A = -k_r/(2k) (so that its phase at b is psi) */
+       second-order WKB wave itself (W0 = q2, N0 from its derivative), kept or reused within an iteration */
     const double kb = wkb_well_kinetic(w, binding, b, &pv);
     double k, dkdr, q2;
     local_wave(w, kb, &pv, &k, &dkdr, &q2);
     size_t n_scan = 0;
-    const double r_m = w->set.match_milne ? milne_end(w, binding, b, r_turn, &n_scan) : b;
+    kept_stretch *kp_ = &m->keep[outer];
+    double ym[6] = {0}, W0 = q2, N0 = 0, r_m = b;
+    int reused = 0;
+    if (m->reuse && kp_->ok && kp_->b == b) {
+        const double dE = -(binding - kp_->binding);
+        const double change = fabs(dE) * GSL_MAX(fabs(kp_->y[3]), GSL_MAX(fabs(kp_->y[4]), fabs(kp_->y[5])));
+        wkb_pot_value pr;
+        if (change <= REUSE_MAX && wkb_well_kinetic(w, binding, kp_->r_m, &pr) > 0) {
+            for (int i = 0; i < 3; i++)
+                ym[i] = kp_->y[i] + kp_->y[i + 3] * dE;
+            W0 = kp_->W0;
+            N0 = kp_->N0;
+            r_m = kp_->r_m;
+            reused = 1;
+        }
+    }
+    if (!reused && w->set.match_milne)
+        r_m = milne_end(w, binding, b, r_turn, &n_scan);
     const int milne = fabs(log(r_m / b)) >= MILNE_MIN_LOG;
-    double ym[3] = {-0.5 * log(q2), 0, 0}, ym0_1 = 0;
-    if (milne) {
+    if (milne && !reused) {
         /* N = A^2 A_r/A = -W_r/(2 W^2) with W = q2 the second-order wavenumber (its derivative by a
            central difference): the closer the start is to the smooth amplitude, the smaller the
            oscillation left in A for the ODE to follow */
@@ -266,15 +338,26 @@ static int end_phase(wkb_well *w, double binding, int outer, double r_turn, doub
         local_wave(w, wkb_well_kinetic(w, binding, b + h, &pp), &pp, &kp, &dkp, &q2p);
         local_wave(w, wkb_well_kinetic(w, binding, b - h, &pm), &pm, &km, &dkm, &q2m);
         n_scan += 2;
-        ym[1] = -(q2p - q2m) / (2 * h) / (2 * q2 * q2);
-        ym0_1 = ym[1];
+        N0 = -(q2p - q2m) / (2 * h) / (2 * q2 * q2);
+        ym[0] = -0.5 * log(W0);
+        ym[1] = N0;
         double s = log(b);
-        gsl_odeiv2_driver_reset_hstart(m->milne_drv, 1e-2 * GSL_SIGN(log(r_m) - s));
-        int gs = gsl_odeiv2_driver_apply(m->milne_drv, &s, log(r_m), ym);
+        gsl_odeiv2_driver *drv = m->reuse ? m->milne6_drv : m->milne_drv;
+        gsl_odeiv2_driver_reset_hstart(drv, 1e-2 * GSL_SIGN(log(r_m) - s));
+        int gs = gsl_odeiv2_driver_apply(drv, &s, log(r_m), ym);
         if (gs != GSL_SUCCESS || !isfinite(ym[0]) || !isfinite(ym[1]) || !isfinite(ym[2]))
             return wkb_fail(err, WKB_ENUMERIC,
                             "the %s-end phase-amplitude solution failed at binding energy %.6g cm-1 (GSL status %d)",
                             outer ? "outer" : "inner", binding, gs);
+        if (m->reuse) {
+            kp_->ok = 1;
+            kp_->binding = binding;
+            kp_->b = b;
+            kp_->r_m = r_m;
+            kp_->W0 = W0;
+            kp_->N0 = N0;
+            memcpy(kp_->y, ym, sizeof ym);
+        }
     }
     const double r_end = milne ? r_m : b;
     double t = -sigma * log(r);
@@ -301,7 +384,7 @@ static int end_phase(wkb_well *w, double binding, int outer, double r_turn, doub
             th += M_PI;
         const double th_b = th + n * M_PI - sigma * ym[2];
         /* u_rho/u at b in the phase-amplitude form, then the WKB-wave phase there (as below) */
-        const double zb = q2 / tan(th_b) + sigma * ym0_1 * q2;
+        const double zb = W0 / tan(th_b) + sigma * N0 * W0;
         psi = atan2(q2, zb + sigma * dkdr / (2 * k));
         psi += M_PI * round((th_b - psi) / M_PI);
     } else {
@@ -492,6 +575,8 @@ static int quantum_number(wkb_well *w, double binding, double *v, size_t *n_eval
     status = match_points(w, binding, &r1, &r2, &b_in, &b_out, err);
     if (status)
         return status;
+    if (w->matched && w->matched->reuse && w->matched->keep[1].ok)
+        b_out = w->matched->keep[1].b; /* the kept stretch's matching point, through the iteration */
     if ((status = end_phase(w, binding, 1, r2, b_out, &pout, err)))
         return status;
     double delta;
@@ -541,13 +626,16 @@ int wkb_threshold_number(wkb_well *w, double *v_th, wkb_error *err)
         w->v_th_status = ts;
         return ts;
     }
+    reuse_scope(w, 1);
     for (int k = 0; k < 3; k++) {
         int status = quantum_number(w, b0 * (k + 1) * (k + 1), &vk[k], NULL, w->across, err);
         if (status) {
+            reuse_scope(w, 0);
             w->v_th_status = status;
             return status;
         }
     }
+    reuse_scope(w, 0);
     w->v_th = 3 * vk[0] - 3 * vk[1] + vk[2];
     const double q = 0.5 * (vk[2] - 2 * vk[1] + vk[0]);
     w->v_th_slope = -(3 * q - (vk[1] - vk[0])) / sqrt(b0);
@@ -750,6 +838,7 @@ int wkb_matched_solve(wkb_well *w, size_t v, int across, int second_start, wkb_l
     }
     size_t n_eval = 0;
     int converged = 0;
+    reuse_scope(w, 1);
     for (int it = 0; it < 60; it++) {
         b = pow(x, 1 / ai);
         double vq;
@@ -763,8 +852,10 @@ int wkb_matched_solve(wkb_well *w, size_t v, int across, int second_start, wkb_l
             db_prev = NAN;
             continue;
         }
-        if (status)
+        if (status) {
+            reuse_scope(w, 0);
             return status;
+        }
         const double G = M_PI * (vq - (double)v);
         if (G > 0)
             lo = x;
@@ -802,6 +893,7 @@ int wkb_matched_solve(wkb_well *w, size_t v, int across, int second_start, wkb_l
         }
         db_prev = secant ? db : NAN;
     }
+    reuse_scope(w, 0);
     if (!converged)
         return wkb_fail(err, WKB_ENOCONV, "the matched level v=%zu did not converge (last change %.3g cm-1)", v, db);
     wkb_orbit o;
