@@ -44,6 +44,9 @@
 #define ODE_TOL_MAX 1e-7
 #define ODE_TOL_THRESHOLD 1e-8 /* for v_th: 20 tol / pi ~ 6e-8 in v */
 #define REUSE_MAX 1e-4 /* largest |y_E (E - E_k)| of a reused stretch: the neglected second-order term ~1e-10 */
+/* and of a reused Pruefer solution |phi_E (E - E_k)|: its second-order term ~ (phi_E dE)^2 stays ~1e-10 rad
+   (phi_E ~ the time spent there, so the energy error this leaves, ~ 1e-10 dE/dv/pi, stays small too) */
+#define REUSE_MAX_PRUEFER 1e-5
 #define MILNE_MIN_LOG 0.05 /* shorter phase-amplitude stretches (in ln r) are not worth starting */
 
 typedef struct {
@@ -57,6 +60,11 @@ typedef struct {
     double binding, b, r_m, W0, N0, y[6]; /* y: L, N, theta at r_m and their energy derivatives */
 } kept_stretch;
 
+typedef struct {
+    int ok;
+    double binding, r_end, q04, y[2]; /* y: the Pruefer angle at r_end and its energy derivative */
+} kept_pruefer;
+
 struct wkb_matched {
     gsl_odeiv2_system sys, milne_sys;
     gsl_odeiv2_driver *drv, *milne_drv;
@@ -69,6 +77,9 @@ struct wkb_matched {
     gsl_odeiv2_driver *milne6_drv;
     int reuse;
     kept_stretch keep[2]; /* inner, outer end */
+    gsl_odeiv2_system pruefer2_sys;
+    gsl_odeiv2_driver *pruefer2_drv;
+    kept_pruefer keep_p[2];
 };
 
 void wkb_matched_free(wkb_matched *m)
@@ -81,6 +92,8 @@ void wkb_matched_free(wkb_matched *m)
         gsl_odeiv2_driver_free(m->milne_drv);
     if (m->milne6_drv)
         gsl_odeiv2_driver_free(m->milne6_drv);
+    if (m->pruefer2_drv)
+        gsl_odeiv2_driver_free(m->pruefer2_drv);
     free(m);
 }
 
@@ -95,6 +108,24 @@ static int pruefer_rhs(double t, const double y[], double f[], void *params)
     const double s = sin(y[0]), co = cos(y[0]);
     f[0] = -r * (q * co * co + (F / q) * s * s + (q_rho / q) * s * co);
     return isfinite(f[0]) ? GSL_SUCCESS : GSL_EBADFUNC;
+}
+
+/* pruefer_rhs with the energy derivative of the angle in y[1] (F_E = 1/eps, q04 held). */
+static int pruefer2_rhs(double t, const double y[], double f[], void *params)
+{
+    rhs_ctx *c = params;
+    const double r = exp(-c->sigma * t), eps = c->w->eps;
+    wkb_pot_value pv;
+    const double F = wkb_well_kinetic(c->w, c->binding, r, &pv) / eps, Fr = -pv.dV / eps, FE = 1 / eps;
+    c->n_eval++;
+    const double q4 = F * F + c->q04, q = sqrt(sqrt(q4)), qq = c->sigma * F * Fr / (2 * q4); /* q_rho/q */
+    const double s = sin(y[0]), co = cos(y[0]);
+    f[0] = -r * (q * co * co + (F / q) * s * s + qq * s * co);
+    const double q_E = F * FE / (2 * q * q * q), Fq_E = FE / q - F * q_E / (q * q);
+    const double qq_E = c->sigma * Fr * FE * (c->q04 - F * F) / (2 * q4 * q4);
+    const double f_phi = -r * (2 * (F / q - q) * s * co + qq * (co * co - s * s));
+    f[1] = f_phi * y[1] - r * (q_E * co * co + Fq_E * s * s + qq_E * s * co);
+    return isfinite(f[0]) && isfinite(f[1]) ? GSL_SUCCESS : GSL_EBADFUNC;
 }
 
 /* The phase-amplitude (Milne) form of the radial equation in s = ln r: u = A sin(theta), theta_r = A^-2,
@@ -177,6 +208,19 @@ static int get_state(wkb_well *w, wkb_matched **out, wkb_error *err)
         return wkb_fail(err, WKB_ENOMEM, "out of memory for the matched-phase ODE driver");
     }
     gsl_odeiv2_driver_set_nmax(m->milne6_drv, 200000);
+    m->pruefer2_sys.function = pruefer2_rhs;
+    m->pruefer2_sys.jacobian = NULL;
+    m->pruefer2_sys.dimension = 2;
+    m->pruefer2_sys.params = &m->ctx;
+    /* phi_E is not step-controlled (it grows like the time spent near threshold): it follows phi's steps */
+    static const double scale2[2] = {1, 1e12};
+    m->pruefer2_drv = gsl_odeiv2_driver_alloc_scaled_new(&m->pruefer2_sys, gsl_odeiv2_step_rk8pd, 1e-3,
+                                                         w->set.match_ode_tol, 0.0, 1.0, 0.0, scale2);
+    if (!m->pruefer2_drv) {
+        wkb_matched_free(m);
+        return wkb_fail(err, WKB_ENOMEM, "out of memory for the matched-phase ODE driver");
+    }
+    gsl_odeiv2_driver_set_nmax(m->pruefer2_drv, 200000);
     m->tol = w->set.match_ode_tol;
     w->matched = m;
     *out = m;
@@ -194,18 +238,22 @@ static int set_tol(wkb_well *w, double tol, wkb_error *err)
         gsl_odeiv2_control_init(m->drv->c, tol, 0.0, 1.0, 0.0);
         gsl_odeiv2_control_init(m->milne_drv->c, tol, 0.0, 1.0, 0.0);
         gsl_odeiv2_control_init(m->milne6_drv->c, tol, 0.0, 1.0, 0.0);
+        gsl_odeiv2_control_init(m->pruefer2_drv->c, tol, 0.0, 1.0, 0.0);
         m->tol = tol;
     }
     return WKB_SUCCESS;
 }
 
-/* Opens (on = 1) or closes a reuse scope: one level's iteration or one threshold number. */
+/* Opens or closes (on = 0) a reuse scope: one level's iteration or one threshold number; on = 2 keeps the
+   Pruefer solutions too (across the well, or behind a centrifugal barrier: ends that change little between
+   iterations; at a J = 0 threshold the tail's phi_E is too large for reuse, and carrying it costs ~5 %). */
 static void reuse_scope(wkb_well *w, int on)
 {
     if (!w->matched)
         return;
-    w->matched->reuse = on && w->set.match_milne;
+    w->matched->reuse = w->set.match_milne ? on : 0;
     w->matched->keep[0].ok = w->matched->keep[1].ok = 0;
+    w->matched->keep_p[0].ok = w->matched->keep_p[1].ok = 0;
 }
 
 /* The tolerance per step for a level with spacing dE/dv (cm-1; not positive: unknown). */
@@ -360,14 +408,33 @@ static int end_phase(wkb_well *w, double binding, int outer, double r_turn, doub
         }
     }
     const double r_end = milne ? r_m : b;
-    double t = -sigma * log(r);
-    const double t_end = -sigma * log(r_end);
-    gsl_odeiv2_driver_reset_hstart(m->drv, 1e-3 * GSL_SIGN(t_end - t));
-    int gs = gsl_odeiv2_driver_apply(m->drv, &t, t_end, y);
-    if (gs != GSL_SUCCESS || !isfinite(y[0]))
-        return wkb_fail(err, WKB_ENUMERIC,
-                        "the exact %s-end solution failed at binding energy %.6g cm-1 (GSL status %d)",
-                        outer ? "outer" : "inner", binding, gs);
+    kept_pruefer *kq = &m->keep_p[outer];
+    const double dE = -(binding - kq->binding);
+    if (m->reuse == 2 && kq->ok && kq->r_end == r_end && fabs(kq->y[1] * dE) <= REUSE_MAX_PRUEFER) {
+        /* the kept solution through the turning region, to first order in the energy change */
+        m->ctx.q04 = kq->q04;
+        y[0] = kq->y[0] + kq->y[1] * dE;
+    } else {
+        double t = -sigma * log(r);
+        const double t_end = -sigma * log(r_end);
+        double y2[2] = {y[0], 0}; /* the start's own energy dependence is damped by exp(-2 match_decay) */
+        gsl_odeiv2_driver *drv = m->reuse == 2 ? m->pruefer2_drv : m->drv;
+        gsl_odeiv2_driver_reset_hstart(drv, 1e-3 * GSL_SIGN(t_end - t));
+        int gs = gsl_odeiv2_driver_apply(drv, &t, t_end, y2);
+        if (gs != GSL_SUCCESS || !isfinite(y2[0]))
+            return wkb_fail(err, WKB_ENUMERIC,
+                            "the exact %s-end solution failed at binding energy %.6g cm-1 (GSL status %d)",
+                            outer ? "outer" : "inner", binding, gs);
+        y[0] = y2[0];
+        if (m->reuse == 2) {
+            kq->ok = isfinite(y2[1]);
+            kq->binding = binding;
+            kq->r_end = r_end;
+            kq->q04 = m->ctx.q04;
+            kq->y[0] = y2[0];
+            kq->y[1] = y2[1];
+        }
+    }
     double psi;
     if (milne) {
         /* the Pruefer solution at r_m in the phase-amplitude form (theta in rho, increasing like phi):
@@ -626,7 +693,7 @@ int wkb_threshold_number(wkb_well *w, double *v_th, wkb_error *err)
         w->v_th_status = ts;
         return ts;
     }
-    reuse_scope(w, 1);
+    reuse_scope(w, w->across || w->rot > 0 ? 2 : 1);
     for (int k = 0; k < 3; k++) {
         int status = quantum_number(w, b0 * (k + 1) * (k + 1), &vk[k], NULL, w->across, err);
         if (status) {
@@ -838,7 +905,7 @@ int wkb_matched_solve(wkb_well *w, size_t v, int across, int second_start, wkb_l
     }
     size_t n_eval = 0;
     int converged = 0;
-    reuse_scope(w, 1);
+    reuse_scope(w, across || w->rot > 0 ? 2 : 1);
     for (int it = 0; it < 60; it++) {
         b = pow(x, 1 / ai);
         double vq;
