@@ -29,7 +29,7 @@
    (rk8pd: tol^(-1/8)) and buys nothing the rule keeps. */
 #define ODE_ENERGY_SHARE 1e-8
 #define ODE_TOL_MAX 1e-7
-#define ODE_TOL_THRESHOLD 1e-8 /* for v_th: 20 tol / pi ~ 6e-8 in v */
+#define ODE_TOL_THRESHOLD 1e-7 /* for v_th: 20 tol / pi ~ 6e-7 in v */
 
 /* The tolerance per step for a level with spacing dE/dv (cm-1; not positive: unknown). */
 static double level_tol(const wkb_well *w, double dEdv)
