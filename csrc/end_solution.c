@@ -28,11 +28,15 @@
 #define WALK_FIRST_STEP 0.01 /* first step of the walk into the forbidden region, in ln r */
 #define WALK_MAX_STEP 0.25
 #define WALK_MAX_STEPS 4000
+/* the phase-amplitude stretch ends at the last of MILNE_SCAN points (in ln r, from b towards the turning
+   point) where the second-order term is below MILNE_MAX_DK of k: further out its amplitude starts to
+   oscillate and the stretch costs more steps than Pruefer (measured: 5e-3 .. 3e-2 about equal, 3e-2 best) */
 #define MILNE_SCAN 48
 #define MILNE_MAX_DK 3e-2
-#define REUSE_MAX 1e-4 /* largest |y_E (E - E_k)| of a reused stretch: the neglected second-order term ~1e-10 */
-/* and of a reused Pruefer solution |phi_E (E - E_k)|: its second-order term ~ (phi_E dE)^2 stays ~1e-10 rad
-   (phi_E ~ the time spent there, so the energy error this leaves, ~ 1e-10 dE/dv/pi, stays small too) */
+/* largest |y_E (E - E_k)| of a reused stretch; the neglected second-order term, ~ |y_E dE| dE/(2 (E - V))
+   at the stretch's end, stays below ~3e-9 rad there (below the ODE's own 20 tolerances) */
+#define REUSE_MAX 1e-4
+/* and of a reused Pruefer solution |phi_E (E - E_k)|: its second-order term stays ~1e-10 rad */
 #define REUSE_MAX_PRUEFER 1e-5
 #define MILNE_MIN_LOG 0.05 /* shorter phase-amplitude stretches (in ln r) are not worth starting */
 
@@ -57,9 +61,10 @@ struct wkb_matched {
     gsl_odeiv2_driver *drv, *milne_drv;
     rhs_ctx ctx;
     double tol; /* the drivers' absolute tolerance per step now (radians) */
-    /* within one level solve or one threshold number (reuse set): each end's phase-amplitude stretch is
-       kept with its energy derivative, y(E) = y(E_k) + y_E (E - E_k), and reused at the nearby energies
-       of the iteration (its matching point then stays put) */
+    /* within one level solve or one threshold number (reuse set): each end's phase-amplitude stretch
+       (milne6: with its energy derivatives) and, with reuse 2, its Pruefer solution (pruefer2) are kept and
+       reused at the nearby energies of the iteration, y(E) = y(E_k) + y_E (E - E_k) (the matching point
+       then stays put) */
     gsl_odeiv2_system milne6_sys;
     gsl_odeiv2_driver *milne6_drv;
     int reuse;
@@ -253,9 +258,7 @@ static void local_wave(const wkb_well *w, double kin, const wkb_pot_value *pv, d
     *q2 = *k + dk;
 }
 
-/* Where the phase-amplitude form stops being cheap: the last of MILNE_SCAN points, evenly spaced in ln r
-   from the matching point b towards the turning point, up to which WKB holds well (the second-order
-   term below MILNE_MAX_DK of k); b itself when the first one fails. */
+/* Where the phase-amplitude form stops being cheap (see MILNE_MAX_DK); b itself when the first point fails. */
 static double milne_end(const wkb_well *w, double binding, double b, double r_turn, size_t *n_eval)
 {
     const double eps = w->eps, step = log(r_turn / b) / MILNE_SCAN;
