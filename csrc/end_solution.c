@@ -30,9 +30,10 @@
 #define WALK_MAX_STEPS 4000
 /* the phase-amplitude stretch ends at the last of MILNE_SCAN points (in ln r, from b towards the turning
    point) where the second-order term is below MILNE_MAX_DK of k: further out its amplitude starts to
-   oscillate and the stretch costs more steps than Pruefer (measured: 5e-3 .. 3e-2 about equal, 3e-2 best) */
+   oscillate and the stretch costs more steps than Pruefer (measured on the bench_matched wells, CPU time:
+   1e-1 best at J = 0 by 3-10 %, 3e-2 by up to 5 % at J = 10; 2e-1 no better) */
 #define MILNE_SCAN 48
-#define MILNE_MAX_DK 3e-2
+#define MILNE_MAX_DK 1e-1
 /* largest |y_E (E - E_k)| of a reused stretch; the neglected second-order term, ~ |y_E dE| dE/(2 (E - V))
    at the stretch's end, stays below ~3e-9 rad there (below the ODE's own 20 tolerances) */
 #define REUSE_MAX 1e-4

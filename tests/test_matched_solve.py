@@ -65,7 +65,7 @@ def test_end_phases_same_as_the_earlier_solve(name, J):
 
 def test_the_stretch_saves_evaluations_near_threshold():
     # the evaluation count is deterministic (not a timing): near threshold the phase-amplitude stretch
-    # replaces most of the oscillating Pruefer integration (measured ratios 0.58-0.79 at b = 1e-8 De)
+    # replaces most of the oscillating Pruefer integration (measured ratios 0.55-0.76 at b = 1e-8 De)
     for name in ("LJ(12,6) C6, mu=20", "LJ(8,4) C4, mu=10", "LJ(6,3) C3, mu=10", "MLR C6+C8, mu=100"):
         pot, mu = WELLS[name]
         b = 1e-8 * float(pot.params["De"])
@@ -119,7 +119,7 @@ def _scipy_end_phase(pot, mu, rot, binding, outer, r_turn, b):
 ])
 def test_end_phases_against_an_independent_scipy_integration(name, J, fraction):
     # reference: solve_ivp (DOP853, rtol 1e-12) of the radial equation, phase read at the same matching
-    # point; tolerance 1e-8 rad (measured: new solve <= 4.1e-10 rad off, the earlier one <= 1.9e-9)
+    # point; tolerance 1e-8 rad (measured: new solve <= 4e-10 rad off, the earlier one <= 1.9e-9)
     pot, mu = WELLS[name]
     rot = J * (J + 1.0)
     binding = fraction * float(pot.params["De"])
@@ -134,7 +134,8 @@ def test_end_phases_against_an_independent_scipy_integration(name, J, fraction):
 def test_levels_same_as_with_the_earlier_solve(name, J):
     # reference: the matched levels with the earlier end solve (milne=False; checked against the exact
     # solver in tests/test_matched.py). The two differ by their numerical errors only: within the sum of
-    # the two error columns (measured: <= 1.3e-7 cm-1, the light well's iteration tolerance; v_th <= 5.4e-9)
+    # the two error columns, and within the rule's 1e-6 cm-1 for the last levels (measured: <= 1.8e-7 cm-1,
+    # the light well, whose iteration stops at a quarter of its ODE error bound, ~5e-6 cm-1; v_th <= 3.4e-8)
     pot, mu = WELLS[name]
     model, params, curve = pot._core_args()
     rot = float(J * (J + 1))
@@ -143,6 +144,6 @@ def test_levels_same_as_with_the_earlier_solve(name, J):
     assert np.array_equal(new["v"], old["v"]) and np.array_equal(new["rule"], old["rule"])
     dE = np.abs(new["energy"] - old["energy"])
     assert np.all(dE <= new["error"] + old["error"]), (dE.max(), new["error"][np.argmax(dE)])
-    assert dE.max() <= 2e-7
+    assert dE.max() <= 1e-6
     assert abs(new["v_th"] - old["v_th"]) <= 1e-6 or (np.isnan(new["v_th"]) and np.isnan(old["v_th"]))
 
