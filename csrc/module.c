@@ -410,22 +410,24 @@ cleanup:
 static PyObject *py_matched_phases(PyObject *self, PyObject *args, PyObject *kwds)
 {
     static char *kwlist[] = {"model", "params", "curve", "mu", "rot", "binding", "match_fraction", "r_match_inner",
-                             "r_match_outer", NULL};
+                             "r_match_outer", "milne", NULL};
     const char *model_name;
     PyObject *params_obj, *curve_obj;
     double mu, rot, binding, fraction = WKB_MATCH_FRACTION, rm_in = 0, rm_out = 0, vq = NAN;
+    int milne = 1;
     wkb_potential pot;
     wkb_error err = {0};
     wkb_end_phase ph[2];
     int status;
-    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOddd|ddd", kwlist, &model_name, &params_obj, &curve_obj, &mu,
-                                     &rot, &binding, &fraction, &rm_in, &rm_out))
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOddd|dddp", kwlist, &model_name, &params_obj, &curve_obj, &mu,
+                                     &rot, &binding, &fraction, &rm_in, &rm_out, &milne))
         return NULL;
     if (parse_potential(model_name, params_obj, curve_obj, &pot) < 0)
         return NULL;
     wkb_settings settings = wkb_default_settings();
     settings.ends = WKB_ENDS_MATCHED;
     settings.match_fraction = fraction;
+    settings.match_milne = milne;
     wkb_well *w = wkb_well_alloc(&settings);
     if (!w)
         return value_error("match_fraction=%g is invalid: give a value in 0.05..0.95", fraction);
@@ -457,11 +459,11 @@ static PyObject *py_wkb_levels(PyObject *self, PyObject *args, PyObject *kwds)
 {
     static char *kwlist[] = {"model", "params", "curve", "mu", "rot", "v", "maslov_in", "maslov_out",
                              "want_dVdp", "order", "ends", "match_fraction", "nodes", "match_rule",
-                             "max_levels", NULL};
+                             "max_levels", "milne", NULL};
     const char *model_name;
     PyObject *params_obj, *curve_obj, *rot_obj, *v_obj = Py_None;
     double mu, match_fraction = WKB_MATCH_FRACTION;
-    int maslov_in = 1, maslov_out = 1, want_dVdp = 0, order = 1, ends = WKB_ENDS_MASLOV, nodes = 0, match_rule = 0;
+    int maslov_in = 1, maslov_out = 1, want_dVdp = 0, order = 1, ends = WKB_ENDS_MASLOV, nodes = 0, match_rule = 0, milne = 1;
     Py_ssize_t max_levels = 1000000; /* work limit: levels in one call (the caller may raise it) */
     PyArrayObject *vth_arr = NULL;
     PyArrayObject *rot_arr = NULL, *v_arr = NULL, *dVdp = NULL, *vD_arr = NULL, *count_arr = NULL, *index = NULL;
@@ -477,9 +479,9 @@ static PyObject *py_wkb_levels(PyObject *self, PyObject *args, PyObject *kwds)
     npy_intp n_rot = 0;
     int status = WKB_SUCCESS;
 
-    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOdO|Oiipiidiin", kwlist, &model_name, &params_obj, &curve_obj,
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOdO|Oiipiidiinp", kwlist, &model_name, &params_obj, &curve_obj,
                                      &mu, &rot_obj, &v_obj, &maslov_in, &maslov_out, &want_dVdp, &order, &ends,
-                                     &match_fraction, &nodes, &match_rule, &max_levels))
+                                     &match_fraction, &nodes, &match_rule, &max_levels, &milne))
         return NULL;
     if (nodes != 0 && (nodes < 8 || nodes > 512 || nodes % 2)) {
         PyErr_Format(PyExc_ValueError, "nodes=%d is invalid: an even number of quadrature nodes in 8..512", nodes);
@@ -531,6 +533,7 @@ static PyObject *py_wkb_levels(PyObject *self, PyObject *args, PyObject *kwds)
             goto cleanup;
         }
         settings.match_rule = match_rule;
+        settings.match_milne = milne;
         if (!(wells = calloc((size_t)n_rot + 1, sizeof *wells))) {
             PyErr_NoMemory();
             goto cleanup;
@@ -2189,13 +2192,15 @@ static PyMethodDef core_methods[] = {
      "10.4.60 for z < 0) truncated after terms = 1..50 coefficients c_0..c_(terms-1)."},
     {"matched_phases", (PyCFunction)(void (*)(void))py_matched_phases, METH_VARARGS | METH_KEYWORDS,
      "matched_phases(model, params, curve, mu, rot, binding, match_fraction=0.5, r_match_inner=0, "
-     "r_match_outer=0) -> dict: the matched end phases psi and the continuous quantum number at one energy"},
+     "r_match_outer=0, milne=True) -> dict: the matched end phases psi and the continuous quantum number at one "
+     "energy (milne=False: the exact solution in Pruefer form all the way, no phase-amplitude stretch)"},
     {"wkb_levels", (PyCFunction)(void (*)(void))py_wkb_levels, METH_VARARGS | METH_KEYWORDS,
      "wkb_levels(model, params, curve, mu, rot, v=None, maslov_in=1, maslov_out=1, want_dVdp=False, order=1, "
-     "ends=0, match_fraction=0.5, nodes=0, match_rule=0) "
+     "ends=0, match_fraction=0.5, nodes=0, match_rule=0, max_levels=1000000, milne=True) "
      "-> dict of level arrays (v, energy, binding_energy, turning points, Bv, dEdv, error, rule, rot_index), vD, "
      "v_th (ends=1 only, else NaN) and count (per rot when rot is an array), [dE_dp]; ends=1 selects matched end "
-     "phases, nodes overrides the quadrature rule, match_rule forces 3 (matched) or 4 (exact phase)"},
+     "phases, nodes overrides the quadrature rule, match_rule forces 3 (matched) or 4 (exact phase), milne=False "
+     "is the earlier end solve (Pruefer form all the way, fixed tolerance), kept for comparison"},
     {"wkb_orbits", (PyCFunction)(void (*)(void))py_wkb_orbits, METH_VARARGS | METH_KEYWORDS,
      "wkb_orbits(model, params, curve, mu, rot, binding) -> dict of arrays: action (integral k dr), "
      "half_period (d action/dE, 1/cm-1), inner/outer turning points, Bv; at binding energies asymptote - E"},

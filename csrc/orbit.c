@@ -48,6 +48,7 @@ wkb_settings wkb_default_settings(void)
     s.match_decay = 10;
     s.match_ode_tol = 1e-9;
     s.match_rule = 0;
+    s.match_milne = 1;
     return s;
 }
 

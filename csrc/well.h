@@ -1,4 +1,5 @@
-/* well.h: the well workspace, private to orbit.c and quantize.c (not part of the public API). */
+/* well.h: the well workspace, private to orbit.c, quantize.c and the matched rule (matched.c,
+   end_solution.c); not part of the public API. */
 #ifndef WKBFIT_WELL_H
 #define WKBFIT_WELL_H
 
@@ -6,7 +7,7 @@
 
 #define MAX_EXTREMA 64
 
-typedef struct wkb_matched wkb_matched; /* matched.c */
+typedef struct wkb_matched wkb_matched; /* end_solution.c */
 #define WKB_DEFECT_NODES 3
 
 struct wkb_well {
@@ -69,8 +70,20 @@ double wkb_well_kinetic(const wkb_well *w, double binding, double r, wkb_pot_val
 int wkb_well_turning_points(wkb_well *w, double binding, double *r1, double *r2, wkb_error *err);
 int wkb_well_crossing(const wkb_well *w, double binding, double lo, double hi, double *root);
 
-/* matched.c: per-well state of the matched-end quantization (NULL until first used) */
+/* end_solution.c: the exact end solutions of the matched rule; their per-well state (NULL until first
+   used). wkb_end_solution: the phase psi at the matching point b of the solution decaying beyond the
+   turning point r_turn (outer = 1: r > r_turn, 0: r < r_turn); wkb_end_set_tol: the ODE tolerance per
+   step (radians) for the next solutions; wkb_end_reuse: opens (1; 2 keeps the Pruefer parts too) or
+   closes (0) a reuse scope, in which each end's solution is kept with its energy derivative and reused at
+   nearby energies; wkb_end_kept_match: 1 and the kept outer matching point, when there is one to reuse. */
 void wkb_matched_free(wkb_matched *m);
+int wkb_end_solution(wkb_well *w, double binding, int outer, double r_turn, double b, wkb_end_phase *out,
+                     wkb_error *err);
+int wkb_end_set_tol(wkb_well *w, double tol, wkb_error *err);
+void wkb_end_reuse(wkb_well *w, int on);
+int wkb_end_kept_match(const wkb_well *w, double *b);
+
+/* matched.c */
 /* matched level v (started from level->binding if level->status == WKB_SUCCESS, else from a guess;
    second_start: that is the second-order level, else the first-order one); across: exact phase
    integration across the whole well instead (both ends meet at the bottom) */

@@ -11,8 +11,14 @@ Rules timed (every bound level of each well, at J = 0 and J = 10), all through w
   would otherwise run for levels right up to threshold.
 Each rule is timed in interleaved rounds (so that a shared machine's load falls on all of them alike);
 the median round is reported, with the ratio to first order ("x first") and to the exact solver
-("x exact"); then the C core alone for first order and the matched default. Accuracy of each against the exact solver at 1e-10 cm-1 is printed beside the cost: the
-largest error of the interior levels and of the last two levels.
+("x exact"). Accuracy of each against the exact solver at 1e-10 cm-1 is printed beside the cost:
+the largest error of the interior levels and of the last two levels.
+
+Then the C core alone (no Python layer, whose fixed cost per call flatters the slower rules), from the
+same run: first order, second order with fixed phases, the matched default, the matched rule with the
+earlier end solve (milne=False: the exact end solution in Pruefer form all the way at the fixed
+tolerance 1e-9 rad per step; the "before" of issue 7's cost work) and the exact solver's core at its
+default tolerance; "x first" is the ratio to first order, "speed-up" earlier / default matched.
 
 Test wells (invented): LJ(12,6), LJ(8,4), LJ(6,3) (C6, C4, C3 tails), an MLR with C6 + C8, a light LJ.
 method_error is not timed (it is computed on first use only).
@@ -80,18 +86,35 @@ def main():
                 print("%-24s %3d %-18s %5d %10.1f %8.1f %8.2f %10.2e %10.2e" % (
                     name, J, label, len(table), 1e6 * t[label], t[label] / t["first order"],
                     t[label] / t["exact"], e_int, e_last))
-            # the C core alone (no Python layer, whose fixed cost per call flatters the slower rules)
+            # the C core alone, every rule from the same run (interleaved rounds, median)
             model, params, curve = pot._core_args()
-            core = {}
-            for label, order, ends in (("first order", 1, 0), ("matched (default)", 2, 1)):
-                call = lambda: _core.wkb_levels(model, params, curve, mu, float(J * (J + 1)), None, 1, 1,
-                                                order=order, ends=ends)
-                n = len(call()["v"])
-                core[label] = float(np.median([time_call(call, min_time=0.1) for _ in range(ROUNDS)])) / n
-            print("%-24s %3d %-18s %5s %10.1f %8.1f   (C core only: matched / first order)" % (
-                name, J, "core matched", "", 1e6 * core["matched (default)"],
-                core["matched (default)"] / core["first order"]))
-
+            rot = float(J * (J + 1))
+            core_rules = [("first order", dict(order=1, ends=0)), ("second order", dict(order=2, ends=0)),
+                          ("matched (default)", dict(order=2, ends=1)),
+                          ("matched, earlier", dict(order=2, ends=1, milne=False))]
+            calls, counts = {}, {}
+            for label, kw in core_rules:
+                call = (lambda kw=kw: _core.wkb_levels(model, params, curve, mu, rot, None, 1, 1, **kw))
+                try:
+                    counts[label] = len(call()["v"])
+                except (ValueError, RuntimeError):
+                    continue
+                calls[label] = call
+            exact_call = lambda: wkbfit.exact._core_call(pot, mu, None, [J], wkbfit.exact.DEFAULT_TOLERANCE,
+                                                         wkbfit.exact.DEFAULT_MIN_BINDING)
+            calls["exact"], counts["exact"] = exact_call, len(exact_call()["v"])
+            ct = {label: [] for label in calls}
+            for _ in range(ROUNDS):
+                for label, call in calls.items():
+                    ct[label].append(time_call(call, min_time=0.1) / counts[label])
+            core = {label: float(np.median(v)) for label, v in ct.items()}
+            for label in calls:
+                extra = ""
+                if label == "matched, earlier":
+                    extra = "   speed-up %.2f (earlier / default)" % (core[label] / core["matched (default)"])
+                print("%-24s %3d %-18s %5d %10.1f %8.1f %8.2f   core%s" % (
+                    name, J, label, counts[label], 1e6 * core[label], core[label] / core["first order"],
+                    core[label] / core["exact"], extra))
 
 if __name__ == "__main__":
     main()

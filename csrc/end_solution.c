@@ -1,0 +1,454 @@
+/* end_solution.c: the exact solution of the radial equation at one end of an orbit, for the matched rule
+ * (matched.c; shared/design/physics.md section 12).
+ *
+ * From deep in the forbidden region, where the decaying solution is known, towards the well: a modified
+ * Pruefer angle phi (u = R sin phi, u' = q R cos phi, q = (F^2 + q0^4)^(1/4), so that nothing has a pole
+ * at the turning point) through the turning region, integrated in ln r; then, over the allowed stretch
+ * where WKB holds, the phase-amplitude (Milne) form u = A sin(theta), whose amplitude follows the
+ * potential's scale instead of the wavelength; at the matching point b the phase psi of the second-order
+ * WKB wave k^(-1/2) sin(psi), psi' = k + dk, is read off. Within one level's iteration (a reuse scope
+ * opened by matched.c) each part is kept with its energy derivative (variational equations, no extra
+ * potential evaluations) and reused at the nearby energies of the iteration.
+ *
+ * Coordinates: rho = r at the outer end, rho = -r at the inner end, so that each end's forbidden
+ * region lies at large rho and one code serves both; t = -ln r (outer) or ln r (inner) increases
+ * towards the well, so d phi/dt = -r d phi/d rho.
+ */
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include <gsl/gsl_errno.h>
+#include <gsl/gsl_math.h>
+#include <gsl/gsl_odeiv2.h>
+
+#include "wkb.h"
+#include "well.h"
+
+#define WALK_FIRST_STEP 0.01 /* first step of the walk into the forbidden region, in ln r */
+#define WALK_MAX_STEP 0.25
+#define WALK_MAX_STEPS 4000
+/* the phase-amplitude stretch ends at the last of MILNE_SCAN points (in ln r, from b towards the turning
+   point) where the second-order term is below MILNE_MAX_DK of k: further out its amplitude starts to
+   oscillate and the stretch costs more steps than Pruefer (measured on the bench_matched wells, CPU time:
+   1e-1 best at J = 0 by 3-10 %, 3e-2 by up to 5 % at J = 10; 2e-1 no better) */
+#define MILNE_SCAN 48
+#define MILNE_MAX_DK 1e-1
+/* largest |y_E (E - E_k)| of a reused stretch; the neglected second-order term, ~ |y_E dE| dE/(2 (E - V))
+   at the stretch's end, stays below ~3e-9 rad there (below the ODE's own 20 tolerances) */
+#define REUSE_MAX 1e-4
+/* and of a reused Pruefer solution |phi_E (E - E_k)|: its second-order term stays ~1e-10 rad */
+#define REUSE_MAX_PRUEFER 1e-5
+#define MILNE_MIN_LOG 0.05 /* shorter phase-amplitude stretches (in ln r) are not worth starting */
+
+typedef struct {
+    const wkb_well *w;
+    double binding, sigma, q04;
+    size_t n_eval;
+} rhs_ctx;
+
+typedef struct {
+    int ok;
+    double binding, b, r_m, W0, N0, y[6]; /* y: L, N, theta at r_m and their energy derivatives */
+} kept_stretch;
+
+typedef struct {
+    int ok;
+    double binding, r_end, q04, y[2]; /* y: the Pruefer angle at r_end and its energy derivative */
+} kept_pruefer;
+
+struct wkb_matched {
+    gsl_odeiv2_system sys, milne_sys;
+    gsl_odeiv2_driver *drv, *milne_drv;
+    rhs_ctx ctx;
+    double tol; /* the drivers' absolute tolerance per step now (radians) */
+    /* within one level solve or one threshold number (reuse set): each end's phase-amplitude stretch
+       (milne6: with its energy derivatives) and, with reuse 2, its Pruefer solution (pruefer2) are kept and
+       reused at the nearby energies of the iteration, y(E) = y(E_k) + y_E (E - E_k) (the matching point
+       then stays put) */
+    gsl_odeiv2_system milne6_sys;
+    gsl_odeiv2_driver *milne6_drv;
+    int reuse;
+    kept_stretch keep[2]; /* inner, outer end */
+    gsl_odeiv2_system pruefer2_sys;
+    gsl_odeiv2_driver *pruefer2_drv;
+    kept_pruefer keep_p[2];
+};
+
+void wkb_matched_free(wkb_matched *m)
+{
+    if (!m)
+        return;
+    if (m->drv)
+        gsl_odeiv2_driver_free(m->drv);
+    if (m->milne_drv)
+        gsl_odeiv2_driver_free(m->milne_drv);
+    if (m->milne6_drv)
+        gsl_odeiv2_driver_free(m->milne6_drv);
+    if (m->pruefer2_drv)
+        gsl_odeiv2_driver_free(m->pruefer2_drv);
+    free(m);
+}
+
+static int pruefer_rhs(double t, const double y[], double f[], void *params)
+{
+    rhs_ctx *c = params;
+    const double r = exp(-c->sigma * t), eps = c->w->eps;
+    wkb_pot_value pv;
+    const double F = wkb_well_kinetic(c->w, c->binding, r, &pv) / eps, Fr = -pv.dV / eps;
+    c->n_eval++;
+    const double q = sqrt(sqrt(F * F + c->q04)), q_rho = c->sigma * F * Fr / (2 * q * q * q);
+    const double s = sin(y[0]), co = cos(y[0]);
+    f[0] = -r * (q * co * co + (F / q) * s * s + (q_rho / q) * s * co);
+    return isfinite(f[0]) ? GSL_SUCCESS : GSL_EBADFUNC;
+}
+
+/* pruefer_rhs with the energy derivative of the angle in y[1] (F_E = 1/eps, q04 held). */
+static int pruefer2_rhs(double t, const double y[], double f[], void *params)
+{
+    rhs_ctx *c = params;
+    const double r = exp(-c->sigma * t), eps = c->w->eps;
+    wkb_pot_value pv;
+    const double F = wkb_well_kinetic(c->w, c->binding, r, &pv) / eps, Fr = -pv.dV / eps, FE = 1 / eps;
+    c->n_eval++;
+    const double q4 = F * F + c->q04, q = sqrt(sqrt(q4)), qq = c->sigma * F * Fr / (2 * q4); /* q_rho/q */
+    const double s = sin(y[0]), co = cos(y[0]);
+    f[0] = -r * (q * co * co + (F / q) * s * s + qq * s * co);
+    const double q_E = F * FE / (2 * q * q * q), Fq_E = FE / q - F * q_E / (q * q);
+    const double qq_E = c->sigma * Fr * FE * (c->q04 - F * F) / (2 * q4 * q4);
+    const double f_phi = -r * (2 * (F / q - q) * s * co + qq * (co * co - s * s));
+    f[1] = f_phi * y[1] - r * (q_E * co * co + Fq_E * s * s + qq_E * s * co);
+    return isfinite(f[0]) && isfinite(f[1]) ? GSL_SUCCESS : GSL_EBADFUNC;
+}
+
+/* The phase-amplitude (Milne) form of the radial equation in s = ln r: u = A sin(theta), theta_r = A^-2,
+   A_rr + F A = A^-3, so that every solution u is c A sin(theta + theta0) with the same A. Written for
+   y = (L, N, theta), L = ln A, N = A^2 A_r/A (both of order 1 and smooth, so one absolute tolerance
+   serves all three): L_s = r W N, N_s = r (W (1 + N^2) - F/W), theta_s = r W, W = A^-2. Started
+   from the second-order WKB wave where WKB holds, A (and W) follow the potential's scale instead of
+   the wavelength: there is no oscillation to resolve. */
+static int milne_rhs(double s, const double y[], double f[], void *params)
+{
+    rhs_ctx *c = params;
+    const double r = exp(s), eps = c->w->eps;
+    wkb_pot_value pv;
+    const double F = wkb_well_kinetic(c->w, c->binding, r, &pv) / eps, W = exp(-2 * y[0]);
+    c->n_eval++;
+    f[0] = r * W * y[1];
+    f[1] = r * (W * (1 + y[1] * y[1]) - F / W);
+    f[2] = r * W;
+    return isfinite(f[1]) ? GSL_SUCCESS : GSL_EBADFUNC;
+}
+
+/* milne_rhs with the energy derivatives (L_E, N_E, theta_E) in y[3..5] (F_E = 1/eps): the stretch's
+   linear response, for reuse at nearby energies. */
+static int milne6_rhs(double s, const double y[], double f[], void *params)
+{
+    rhs_ctx *c = params;
+    const double r = exp(s), eps = c->w->eps;
+    wkb_pot_value pv;
+    const double F = wkb_well_kinetic(c->w, c->binding, r, &pv) / eps, W = exp(-2 * y[0]), N = y[1];
+    c->n_eval++;
+    f[0] = r * W * N;
+    f[1] = r * (W * (1 + N * N) - F / W);
+    f[2] = r * W;
+    f[3] = r * W * (y[4] - 2 * N * y[3]);
+    f[4] = r * (-2 * W * (1 + N * N) * y[3] + 2 * W * N * y[4] - 1 / (eps * W) - 2 * F * y[3] / W);
+    f[5] = -2 * r * W * y[3];
+    return isfinite(f[1]) && isfinite(f[4]) ? GSL_SUCCESS : GSL_EBADFUNC;
+}
+
+static int get_state(wkb_well *w, wkb_matched **out, wkb_error *err)
+{
+    if (w->matched) {
+        *out = w->matched;
+        return WKB_SUCCESS;
+    }
+    wkb_matched *m = calloc(1, sizeof *m);
+    if (!m)
+        return wkb_fail(err, WKB_ENOMEM, "out of memory for the matched-phase workspace");
+    m->sys.function = pruefer_rhs;
+    m->sys.jacobian = NULL;
+    m->sys.dimension = 1;
+    m->sys.params = &m->ctx;
+    m->drv = gsl_odeiv2_driver_alloc_y_new(&m->sys, gsl_odeiv2_step_rk8pd, 1e-3, w->set.match_ode_tol, 0.0);
+    if (!m->drv) {
+        free(m);
+        return wkb_fail(err, WKB_ENOMEM, "out of memory for the matched-phase ODE driver");
+    }
+    gsl_odeiv2_driver_set_nmax(m->drv, 200000);
+    m->milne_sys.function = milne_rhs;
+    m->milne_sys.jacobian = NULL;
+    m->milne_sys.dimension = 3;
+    m->milne_sys.params = &m->ctx;
+    m->milne_drv = gsl_odeiv2_driver_alloc_y_new(&m->milne_sys, gsl_odeiv2_step_rk8pd, 1e-3, w->set.match_ode_tol, 0.0);
+    if (!m->milne_drv) {
+        gsl_odeiv2_driver_free(m->drv);
+        free(m);
+        return wkb_fail(err, WKB_ENOMEM, "out of memory for the matched-phase ODE driver");
+    }
+    gsl_odeiv2_driver_set_nmax(m->milne_drv, 200000);
+    m->milne6_sys.function = milne6_rhs;
+    m->milne6_sys.jacobian = NULL;
+    m->milne6_sys.dimension = 6;
+    m->milne6_sys.params = &m->ctx;
+    /* the derivatives need only ~1e-6 relative: 1e3 tolerances (y_E (E - E_k) stays below REUSE_MAX) */
+    static const double scale6[6] = {1, 1, 1, 1e3, 1e3, 1e3};
+    m->milne6_drv = gsl_odeiv2_driver_alloc_scaled_new(&m->milne6_sys, gsl_odeiv2_step_rk8pd, 1e-3,
+                                                       w->set.match_ode_tol, 0.0, 1.0, 0.0, scale6);
+    if (!m->milne6_drv) {
+        wkb_matched_free(m);
+        return wkb_fail(err, WKB_ENOMEM, "out of memory for the matched-phase ODE driver");
+    }
+    gsl_odeiv2_driver_set_nmax(m->milne6_drv, 200000);
+    m->pruefer2_sys.function = pruefer2_rhs;
+    m->pruefer2_sys.jacobian = NULL;
+    m->pruefer2_sys.dimension = 2;
+    m->pruefer2_sys.params = &m->ctx;
+    /* phi_E is not step-controlled (it grows like the time spent near threshold): it follows phi's steps */
+    static const double scale2[2] = {1, 1e12};
+    m->pruefer2_drv = gsl_odeiv2_driver_alloc_scaled_new(&m->pruefer2_sys, gsl_odeiv2_step_rk8pd, 1e-3,
+                                                         w->set.match_ode_tol, 0.0, 1.0, 0.0, scale2);
+    if (!m->pruefer2_drv) {
+        wkb_matched_free(m);
+        return wkb_fail(err, WKB_ENOMEM, "out of memory for the matched-phase ODE driver");
+    }
+    gsl_odeiv2_driver_set_nmax(m->pruefer2_drv, 200000);
+    m->tol = w->set.match_ode_tol;
+    w->matched = m;
+    *out = m;
+    return WKB_SUCCESS;
+}
+
+/* The tolerance per step for the next phase integrations (see ODE_ENERGY_SHARE). */
+int wkb_end_set_tol(wkb_well *w, double tol, wkb_error *err)
+{
+    wkb_matched *m = NULL;
+    int status = get_state(w, &m, err);
+    if (status)
+        return status;
+    if (tol != m->tol) {
+        gsl_odeiv2_control_init(m->drv->c, tol, 0.0, 1.0, 0.0);
+        gsl_odeiv2_control_init(m->milne_drv->c, tol, 0.0, 1.0, 0.0);
+        gsl_odeiv2_control_init(m->milne6_drv->c, tol, 0.0, 1.0, 0.0);
+        gsl_odeiv2_control_init(m->pruefer2_drv->c, tol, 0.0, 1.0, 0.0);
+        m->tol = tol;
+    }
+    return WKB_SUCCESS;
+}
+
+/* Opens or closes (on = 0) a reuse scope: one level's iteration or one threshold number; on = 2 keeps the
+   Pruefer solutions too (across the well, or behind a centrifugal barrier: ends that change little between
+   iterations; at a J = 0 threshold the tail's phi_E is too large for reuse, and carrying it costs ~5 %). */
+void wkb_end_reuse(wkb_well *w, int on)
+{
+    if (!w->matched)
+        return;
+    w->matched->reuse = w->set.match_milne ? on : 0;
+    w->matched->keep[0].ok = w->matched->keep[1].ok = 0;
+    w->matched->keep_p[0].ok = w->matched->keep_p[1].ok = 0;
+}
+
+/* Second-order local wavenumber k + dk (1/angstrom) and k, dk/dr at r, for kinetic term kin > 0. */
+static void local_wave(const wkb_well *w, double kin, const wkb_pot_value *pv, double *k, double *dkdr, double *q2)
+{
+    const double eps = w->eps;
+    *k = sqrt(kin / eps);
+    *dkdr = -pv->dV / (2 * eps * *k);
+    const double dk = sqrt(eps) * (pv->d2V / (8 * kin * sqrt(kin)) + (5.0 / 32) * pv->dV * pv->dV / (kin * kin * sqrt(kin)));
+    *q2 = *k + dk;
+}
+
+/* Where the phase-amplitude form stops being cheap (see MILNE_MAX_DK); b itself when the first point fails. */
+static double milne_end(const wkb_well *w, double binding, double b, double r_turn, size_t *n_eval)
+{
+    const double eps = w->eps, step = log(r_turn / b) / MILNE_SCAN;
+    double r_m = b;
+    for (int i = 1; i < MILNE_SCAN; i++) {
+        const double r = b * exp(step * i);
+        wkb_pot_value pv;
+        const double kin = wkb_well_kinetic(w, binding, r, &pv);
+        (*n_eval)++;
+        if (!(kin > 0) || eps * (fabs(pv.d2V) / (8 * kin * kin) + (5.0 / 32) * pv.dV * pv.dV / (kin * kin * kin)) > MILNE_MAX_DK)
+            break;
+        r_m = r;
+    }
+    return r_m;
+}
+
+int wkb_end_solution(wkb_well *w, double binding, int outer, double r_turn, double b, wkb_end_phase *out,
+                     wkb_error *err)
+{
+    wkb_matched *m = NULL;
+    int status = get_state(w, &m, err);
+    if (status)
+        return status;
+    const double sigma = outer ? 1.0 : -1.0, eps = w->eps;
+    wkb_pot_value pv;
+    /* walk into the forbidden region until integral kappa dr reaches match_decay */
+    double r = r_turn, acc = 0, h = WALK_FIRST_STEP;
+    size_t n_walk = 0;
+    for (int i = 0; i < WALK_MAX_STEPS && acc < w->set.match_decay; i++) {
+        const double rn = r * exp(sigma * h), rm = r * exp(0.5 * sigma * h);
+        const double kin = wkb_well_kinetic(w, binding, rm, &pv);
+        n_walk++;
+        if (!isfinite(kin))
+            break; /* the potential is not finite further in: start where it still is */
+        if (kin < 0)
+            acc += sqrt(-kin / eps) * fabs(rn - r);
+        r = rn;
+        h = GSL_MIN(1.15 * h, WALK_MAX_STEP);
+        if (!outer && r < 1e-6 * r_turn)
+            break;
+    }
+    double kin = wkb_well_kinetic(w, binding, r, &pv);
+    /* an inner wall of finite height (V finite at r = 0): the regular solution, u = 0 at r -> 0 */
+    const int regular = !outer && acc < w->set.match_decay && isfinite(kin);
+    while (!regular && !(isfinite(kin) && kin < 0) && fabs(log(r / r_turn)) > 1e-3) { /* step back to a finite point */
+        r = r * exp(-0.5 * sigma * fabs(log(r / r_turn)) * 0.1);
+        kin = wkb_well_kinetic(w, binding, r, &pv);
+    }
+    if (!regular && !(kin < 0))
+        return wkb_fail(err, WKB_ENUMERIC, "no forbidden region found beyond the %s turning point r=%.8g A",
+                        outer ? "outer" : "inner", r_turn);
+    /* start: the decaying WKB solution kappa^(-1/2) exp(-integral kappa d rho) */
+    wkb_pot_value pt;
+    wkb_well_effective(w, r_turn, &pt);
+    m->ctx.w = w;
+    m->ctx.binding = binding;
+    m->ctx.sigma = sigma;
+    m->ctx.q04 = pow(fabs(pt.dV) / eps, 4.0 / 3.0);
+    m->ctx.n_eval = 0;
+    double y[1] = {M_PI}; /* u = 0 */
+    if (!regular) {
+        const double F = kin / eps, kappa = sqrt(-F), q = sqrt(sqrt(F * F + m->ctx.q04));
+        const double dkappa_rho = sigma * pv.dV / (2 * eps * kappa);
+        const double z = -kappa - dkappa_rho / (2 * kappa);
+        y[0] = M_PI_2 - atan(z / q);
+    }
+    /* the allowed stretch from b to r_m where WKB holds: the phase-amplitude form, started from the
+       second-order WKB wave itself (W0 = q2, N0 from its derivative), kept or reused within an iteration */
+    const double kb = wkb_well_kinetic(w, binding, b, &pv);
+    double k, dkdr, q2;
+    local_wave(w, kb, &pv, &k, &dkdr, &q2);
+    size_t n_scan = 0;
+    kept_stretch *kp_ = &m->keep[outer];
+    double ym[6] = {0}, W0 = q2, N0 = 0, r_m = b;
+    int reused = 0;
+    if (m->reuse && kp_->ok && kp_->b == b) {
+        const double dE = -(binding - kp_->binding);
+        const double change = fabs(dE) * GSL_MAX(fabs(kp_->y[3]), GSL_MAX(fabs(kp_->y[4]), fabs(kp_->y[5])));
+        wkb_pot_value pr;
+        if (change <= REUSE_MAX && wkb_well_kinetic(w, binding, kp_->r_m, &pr) > 0) {
+            for (int i = 0; i < 3; i++)
+                ym[i] = kp_->y[i] + kp_->y[i + 3] * dE;
+            W0 = kp_->W0;
+            N0 = kp_->N0;
+            r_m = kp_->r_m;
+            reused = 1;
+        }
+    }
+    if (!reused && w->set.match_milne)
+        r_m = milne_end(w, binding, b, r_turn, &n_scan);
+    const int milne = fabs(log(r_m / b)) >= MILNE_MIN_LOG;
+    if (milne && !reused) {
+        /* N = A^2 A_r/A = -W_r/(2 W^2) with W = q2 the second-order wavenumber (its derivative by a
+           central difference): the closer the start is to the smooth amplitude, the smaller the
+           oscillation left in A for the ODE to follow */
+        const double h = 1e-4 * b;
+        double kp, dkp, q2p, km, dkm, q2m;
+        wkb_pot_value pp, pm;
+        local_wave(w, wkb_well_kinetic(w, binding, b + h, &pp), &pp, &kp, &dkp, &q2p);
+        local_wave(w, wkb_well_kinetic(w, binding, b - h, &pm), &pm, &km, &dkm, &q2m);
+        n_scan += 2;
+        N0 = -(q2p - q2m) / (2 * h) / (2 * q2 * q2);
+        ym[0] = -0.5 * log(W0);
+        ym[1] = N0;
+        double s = log(b);
+        gsl_odeiv2_driver *drv = m->reuse ? m->milne6_drv : m->milne_drv;
+        gsl_odeiv2_driver_reset_hstart(drv, 1e-2 * GSL_SIGN(log(r_m) - s));
+        int gs = gsl_odeiv2_driver_apply(drv, &s, log(r_m), ym);
+        if (gs != GSL_SUCCESS || !isfinite(ym[0]) || !isfinite(ym[1]) || !isfinite(ym[2]))
+            return wkb_fail(err, WKB_ENUMERIC,
+                            "the %s-end phase-amplitude solution failed at binding energy %.6g cm-1 (GSL status %d)",
+                            outer ? "outer" : "inner", binding, gs);
+        if (m->reuse) {
+            kp_->ok = 1;
+            kp_->binding = binding;
+            kp_->b = b;
+            kp_->r_m = r_m;
+            kp_->W0 = W0;
+            kp_->N0 = N0;
+            memcpy(kp_->y, ym, sizeof ym);
+        }
+    }
+    const double r_end = milne ? r_m : b;
+    kept_pruefer *kq = &m->keep_p[outer];
+    const double dE = -(binding - kq->binding);
+    if (m->reuse == 2 && kq->ok && kq->r_end == r_end && fabs(kq->y[1] * dE) <= REUSE_MAX_PRUEFER) {
+        /* the kept solution through the turning region, to first order in the energy change */
+        m->ctx.q04 = kq->q04;
+        y[0] = kq->y[0] + kq->y[1] * dE;
+    } else {
+        double t = -sigma * log(r);
+        const double t_end = -sigma * log(r_end);
+        double y2[2] = {y[0], 0}; /* the start's own energy dependence is damped by exp(-2 match_decay) */
+        gsl_odeiv2_driver *drv = m->reuse == 2 ? m->pruefer2_drv : m->drv;
+        gsl_odeiv2_driver_reset_hstart(drv, 1e-3 * GSL_SIGN(t_end - t));
+        int gs = gsl_odeiv2_driver_apply(drv, &t, t_end, y2);
+        if (gs != GSL_SUCCESS || !isfinite(y2[0]))
+            return wkb_fail(err, WKB_ENUMERIC,
+                            "the exact %s-end solution failed at binding energy %.6g cm-1 (GSL status %d)",
+                            outer ? "outer" : "inner", binding, gs);
+        y[0] = y2[0];
+        if (m->reuse == 2) {
+            kq->ok = isfinite(y2[1]);
+            kq->binding = binding;
+            kq->r_end = r_end;
+            kq->q04 = m->ctx.q04;
+            kq->y[0] = y2[0];
+            kq->y[1] = y2[1];
+        }
+    }
+    double psi;
+    if (milne) {
+        /* the Pruefer solution at r_m in the phase-amplitude form (theta in rho, increasing like phi):
+           cot theta = A^2 (u_rho/u - A_rho/A); then back along the stretch to b */
+        const double km = wkb_well_kinetic(w, binding, r_m, &pv), Fm = km / eps, qm = sqrt(sqrt(Fm * Fm + m->ctx.q04));
+        const double a2 = exp(2 * ym[0]), sp = sin(y[0]);
+        double th = atan2(sp, a2 * qm * cos(y[0]) - sigma * ym[1] * sp), n = floor(y[0] / M_PI);
+        if (th < 0)
+            th += M_PI;
+        const double off = th - (y[0] - n * M_PI); /* the same half-turn as phi: zeros of u coincide */
+        if (off > M_PI_2)
+            th -= M_PI;
+        else if (off < -M_PI_2)
+            th += M_PI;
+        const double th_b = th + n * M_PI - sigma * ym[2];
+        /* u_rho/u at b in the phase-amplitude form, then the WKB-wave phase there (as below) */
+        const double zb = W0 / tan(th_b) + sigma * N0 * W0;
+        psi = atan2(q2, zb + sigma * dkdr / (2 * k));
+        psi += M_PI * round((th_b - psi) / M_PI);
+    } else {
+        /* join at b to k^(-1/2) sin(psi): u'/u = -k'/(2k) + q2 cot(psi) in rho */
+        const double Fb = kb / eps, qb = sqrt(sqrt(Fb * Fb + m->ctx.q04));
+        const double zb = qb * cos(y[0]) / sin(y[0]); /* u_rho/u */
+        const double x = zb + sigma * dkdr / (2 * k);
+        psi = atan2(q2, x); /* in (0, pi) */
+        psi += M_PI * round((y[0] - psi) / M_PI);
+    }
+    out->psi = psi;
+    out->r_match = b;
+    out->r_turn = r_turn;
+    out->evaluations = m->ctx.n_eval + n_walk + n_scan;
+    out->action_to_turn = NAN;
+    return WKB_SUCCESS;
+}
+
+int wkb_end_kept_match(const wkb_well *w, double *b)
+{
+    if (!w->matched || !w->matched->reuse || !w->matched->keep[1].ok)
+        return 0;
+    *b = w->matched->keep[1].b;
+    return 1;
+}
