@@ -61,6 +61,34 @@ static PyArrayObject *as_double_array(PyObject *obj, const char *what, int ndim)
     return a;
 }
 
+/* A fit's parameter flags and bounds (vary, lower, upper: one entry per parameter of the model) into
+   spec; -1 with a ValueError naming the mismatch. */
+static int parse_fit_spec(PyObject *vary_obj, PyObject *lower_obj, PyObject *upper_obj, size_t np, wkb_fit_spec *spec)
+{
+    int status = -1;
+    PyArrayObject *vary = (PyArrayObject *)PyArray_FROM_OTF(vary_obj, NPY_INT, NPY_ARRAY_IN_ARRAY | NPY_ARRAY_FORCECAST);
+    PyArrayObject *lower = vary ? as_double_array(lower_obj, "lower", 1) : NULL;
+    PyArrayObject *upper = lower ? as_double_array(upper_obj, "upper", 1) : NULL;
+    if (!upper)
+        goto done;
+    if ((size_t)PyArray_SIZE(vary) != np || (size_t)PyArray_SIZE(lower) != np || (size_t)PyArray_SIZE(upper) != np) {
+        PyErr_Format(PyExc_ValueError, "vary, lower and upper need %zu entries (one per parameter)", np);
+        goto done;
+    }
+    memset(spec, 0, sizeof *spec);
+    for (size_t k = 0; k < np; k++) {
+        spec->vary[k] = ((const int *)PyArray_DATA(vary))[k] != 0;
+        spec->lower[k] = ((const double *)PyArray_DATA(lower))[k];
+        spec->upper[k] = ((const double *)PyArray_DATA(upper))[k];
+    }
+    status = 0;
+done:
+    Py_XDECREF(vary);
+    Py_XDECREF(lower);
+    Py_XDECREF(upper);
+    return status;
+}
+
 /* A 1-dimensional C int array of quantum numbers (or flags) from any array-like, checked
    element by element through doubles: a value that is not an integer in [lo, INT_MAX] is
    refused by name instead of wrapping (v = 2**32 + 2 would become 2 in a plain cast).
@@ -1219,7 +1247,7 @@ static PyObject *py_fit_run(PyObject *self, PyObject *args, PyObject *kwds)
     wkb_fit_outcome out;
     wkb_potential pot;
     wkb_error err = {0};
-    PyArrayObject *vary = NULL, *lower = NULL, *upper = NULL, *calc = NULL, *jac = NULL, *best = NULL;
+    PyArrayObject *calc = NULL, *jac = NULL, *best = NULL;
 
     if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOOOOOOiOOO|ndddiO", kwlist, &model_name, &params_obj,
                                      &curve_obj, &v_obj, &rot_obj, &mu_obj, &energy_obj, &sigma_obj, &energy_zero,
@@ -1244,19 +1272,8 @@ static PyObject *py_fit_run(PyObject *self, PyObject *args, PyObject *kwds)
         data.offset = PyArray_DATA(offset);
     }
     const size_t np = pot.model->n_params;
-    if (!(vary = (PyArrayObject *)PyArray_FROM_OTF(vary_obj, NPY_INT, NPY_ARRAY_IN_ARRAY | NPY_ARRAY_FORCECAST)) ||
-        !(lower = as_double_array(lower_obj, "lower", 1)) || !(upper = as_double_array(upper_obj, "upper", 1)))
+    if (parse_fit_spec(vary_obj, lower_obj, upper_obj, np, &spec) < 0)
         goto cleanup;
-    if ((size_t)PyArray_SIZE(vary) != np || (size_t)PyArray_SIZE(lower) != np || (size_t)PyArray_SIZE(upper) != np) {
-        PyErr_Format(PyExc_ValueError, "vary, lower and upper need %zu entries (one per parameter)", np);
-        goto cleanup;
-    }
-    memset(&spec, 0, sizeof spec);
-    for (size_t k = 0; k < np; k++) {
-        spec.vary[k] = ((const int *)PyArray_DATA(vary))[k] != 0;
-        spec.lower[k] = ((const double *)PyArray_DATA(lower))[k];
-        spec.upper[k] = ((const double *)PyArray_DATA(upper))[k];
-    }
     npy_intp dims[2] = {(npy_intp)data.n, (npy_intp)np};
     if (!(calc = new_vector(dims[0])) || !(jac = (PyArrayObject *)PyArray_ZEROS(2, dims, NPY_DOUBLE, 0)) ||
         !(best = new_vector((npy_intp)np)))
@@ -1301,9 +1318,6 @@ cleanup:
     fit_arrays_release(&a);
     wkb_radial_free(radial);
     Py_XDECREF(offset);
-    Py_XDECREF(vary);
-    Py_XDECREF(lower);
-    Py_XDECREF(upper);
     Py_XDECREF(calc);
     Py_XDECREF(jac);
     Py_XDECREF(best);
@@ -1343,7 +1357,7 @@ static PyObject *py_fit_replicas(PyObject *self, PyObject *args, PyObject *kwds)
     wkb_potential pot;
     wkb_error err = {0};
     wkb_replica_outcome *outcomes = NULL;
-    PyArrayObject *vary = NULL, *lower = NULL, *upper = NULL, *energies = NULL, *counts = NULL, *smu = NULL,
+    PyArrayObject *energies = NULL, *counts = NULL, *smu = NULL,
                   *srot = NULL, *sv = NULL, *shift = NULL, *slope = NULL, *params = NULL, *pred = NULL,
                   *pred_v = NULL;
     enum { NCOLS = 9 };
@@ -1372,19 +1386,8 @@ static PyObject *py_fit_replicas(PyObject *self, PyObject *args, PyObject *kwds)
     if (parse_fit_arrays(v_obj, rot_obj, mu_obj, NULL, sigma_obj, energy_zero, &a, &data) < 0)
         goto cleanup;
     const size_t np = pot.model->n_params, n = data.n;
-    if (!(vary = (PyArrayObject *)PyArray_FROM_OTF(vary_obj, NPY_INT, NPY_ARRAY_IN_ARRAY | NPY_ARRAY_FORCECAST)) ||
-        !(lower = as_double_array(lower_obj, "lower", 1)) || !(upper = as_double_array(upper_obj, "upper", 1)))
+    if (parse_fit_spec(vary_obj, lower_obj, upper_obj, np, &spec) < 0)
         goto cleanup;
-    if ((size_t)PyArray_SIZE(vary) != np || (size_t)PyArray_SIZE(lower) != np || (size_t)PyArray_SIZE(upper) != np) {
-        PyErr_Format(PyExc_ValueError, "vary, lower and upper need %zu entries (one per parameter)", np);
-        goto cleanup;
-    }
-    memset(&spec, 0, sizeof spec);
-    for (size_t k = 0; k < np; k++) {
-        spec.vary[k] = ((const int *)PyArray_DATA(vary))[k] != 0;
-        spec.lower[k] = ((const double *)PyArray_DATA(lower))[k];
-        spec.upper[k] = ((const double *)PyArray_DATA(upper))[k];
-    }
     if (!(energies = as_matrix(energies_obj, "energies", -1, (npy_intp)n)))
         goto cleanup;
     const npy_intp n_rep = PyArray_DIM(energies, 0);
@@ -1467,9 +1470,6 @@ fail:
 cleanup:
     free(outcomes);
     fit_arrays_release(&a);
-    Py_XDECREF(vary);
-    Py_XDECREF(lower);
-    Py_XDECREF(upper);
     Py_XDECREF(energies);
     Py_XDECREF(counts);
     Py_XDECREF(smu);
@@ -1593,7 +1593,7 @@ static PyObject *py_fit_run_rows(PyObject *self, PyObject *args, PyObject *kwds)
     wkb_potential pot;
     wkb_error err = {0};
     PyArrayObject *iarr[NI] = {NULL}, *darr[ND] = {NULL};
-    PyArrayObject *vary = NULL, *lower = NULL, *upper = NULL, *calc = NULL, *jac = NULL, *best = NULL, *extra = NULL;
+    PyArrayObject *calc = NULL, *jac = NULL, *best = NULL, *extra = NULL;
     static const char *inames[NI] = {"level_a", "level_b", "extra_index"};
     static const char *dnames[ND] = {"coef_a", "coef_b", "coef_asymptote", "coef_extra", "offset", "observed",
                                      "sigma"};
@@ -1648,19 +1648,8 @@ static PyObject *py_fit_run_rows(PyObject *self, PyObject *args, PyObject *kwds)
     if (!(extra = (PyArrayObject *)PyArray_FROM_OTF(extra_obj, NPY_DOUBLE, NPY_ARRAY_IN_ARRAY | NPY_ARRAY_ENSURECOPY)))
         goto cleanup;
     const size_t np = pot.model->n_params, ne = (size_t)PyArray_SIZE(extra);
-    if (!(vary = (PyArrayObject *)PyArray_FROM_OTF(vary_obj, NPY_INT, NPY_ARRAY_IN_ARRAY | NPY_ARRAY_FORCECAST)) ||
-        !(lower = as_double_array(lower_obj, "lower", 1)) || !(upper = as_double_array(upper_obj, "upper", 1)))
+    if (parse_fit_spec(vary_obj, lower_obj, upper_obj, np, &spec) < 0)
         goto cleanup;
-    if ((size_t)PyArray_SIZE(vary) != np || (size_t)PyArray_SIZE(lower) != np || (size_t)PyArray_SIZE(upper) != np) {
-        PyErr_Format(PyExc_ValueError, "vary, lower and upper need %zu entries (one per parameter)", np);
-        goto cleanup;
-    }
-    memset(&spec, 0, sizeof spec);
-    for (size_t k = 0; k < np; k++) {
-        spec.vary[k] = ((const int *)PyArray_DATA(vary))[k] != 0;
-        spec.lower[k] = ((const double *)PyArray_DATA(lower))[k];
-        spec.upper[k] = ((const double *)PyArray_DATA(upper))[k];
-    }
     memset(&rows, 0, sizeof rows);
     rows.n = (size_t)n;
     rows.n_extra = ne;
@@ -1723,9 +1712,6 @@ cleanup:
         Py_XDECREF(iarr[k]);
     for (int k = 0; k < ND; k++)
         Py_XDECREF(darr[k]);
-    Py_XDECREF(vary);
-    Py_XDECREF(lower);
-    Py_XDECREF(upper);
     Py_XDECREF(calc);
     Py_XDECREF(jac);
     Py_XDECREF(best);

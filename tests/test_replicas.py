@@ -261,33 +261,29 @@ def test_replicas_refuse_fits_with_free_parameters():
 # exact-solver levels plus seeded noise. Tolerances: 1e-2 standard deviation per replica and
 # parameter (the default check tolerance), replica standard deviations within 1 %.
 
+def _exact_data(true, mu, Js, nv, seed=5, sigma=0.01):
+    """Exact-solver levels v = 0..nv-1 at each J of Js, plus seeded Gaussian noise of sigma."""
+    vs, J, E = [], [], []
+    for j in Js:
+        vs += list(range(nv))
+        J += [j] * nv
+        E += wkbfit.levels(true, mu, v=list(range(nv)), J=j, method="exact").energy.tolist()
+    rng = np.random.default_rng(seed)
+    return wkbfit.read_levels({"v": vs, "J": J, "energy": np.array(E) + rng.normal(0, sigma, len(E)),
+                               "uncertainty": np.full(len(E), sigma)})
+
+
 def _light_lj_fit():
     # a light molecule (mu = 1 u): first-order WKB levels are off by far more than sigma, and the
     # corrections change with the parameters enough that freezing them moves replicas by ~1e-2 sd
-    true = wkbfit.LennardJones(De=3000.0, re=3.0)
-    vs, Js, E = [], [], []
-    for J in (0, 3, 6):
-        vs += list(range(8))
-        Js += [J] * 8
-        E += wkbfit.levels(true, 1.0, v=list(range(8)), J=J, method="exact").energy.tolist()
-    rng = np.random.default_rng(5)
-    obs = wkbfit.read_levels({"v": vs, "J": Js, "energy": np.array(E) + rng.normal(0, 0.01, len(E)),
-                              "uncertainty": np.full(len(E), 0.01)})
+    obs = _exact_data(wkbfit.LennardJones(De=3000.0, re=3.0), 1.0, (0, 3, 6), 8)
     return wkbfit.fit(wkbfit.LennardJones(De=2990.0, re=3.02), obs, 1.0)
 
 
 def _mlr_fit():
     # an MLR well, three varied parameters, J = 0, 10, 20: the corrections' slopes move the replicas
     # by ~0.07 sd, which the linearisation must carry
-    true = wkbfit.MLR(De=3000.0, re=3.0, C6=2e5, betas=[0.3, 0.1, 0.05])
-    vs, Js, E = [], [], []
-    for J in (0, 10, 20):
-        vs += list(range(15))
-        Js += [J] * 15
-        E += wkbfit.levels(true, 30.0, v=list(range(15)), J=J, method="exact").energy.tolist()
-    rng = np.random.default_rng(5)
-    obs = wkbfit.read_levels({"v": vs, "J": Js, "energy": np.array(E) + rng.normal(0, 0.01, len(E)),
-                              "uncertainty": np.full(len(E), 0.01)})
+    obs = _exact_data(wkbfit.MLR(De=3000.0, re=3.0, C6=2e5, betas=[0.3, 0.1, 0.05]), 30.0, (0, 10, 20), 15)
     return wkbfit.fit(wkbfit.MLR(De=2990.0, re=3.0, C6=2e5, betas=[0.31, 0.1, 0.05]), obs, 30.0,
                       vary=["De", "re", "beta0"])
 
@@ -425,15 +421,7 @@ def test_check_catches_a_level_at_threshold():
     # bound, which the linearised corrections of that level cannot decide reliably. The exact check
     # finds a replica whose count differs from the exact one and every replica is refitted the full
     # way: the result is that of refit="full", and says why.
-    true = wkbfit.LennardJones(De=3049.0, re=3.0)
-    vs, Js, E = [], [], []
-    for J in (0, 3):
-        vs += list(range(7))
-        Js += [J] * 7
-        E += wkbfit.levels(true, 1.0, v=list(range(7)), J=J, method="exact").energy.tolist()
-    rng = np.random.default_rng(5)
-    obs = wkbfit.read_levels({"v": vs, "J": Js, "energy": np.array(E) + rng.normal(0, 0.01, len(E)),
-                              "uncertainty": np.full(len(E), 0.01)})
+    obs = _exact_data(wkbfit.LennardJones(De=3049.0, re=3.0), 1.0, (0, 3), 7)
     res = wkbfit.fit(wkbfit.LennardJones(De=3040.0, re=3.01), obs, 1.0)
     reps = res.bootstrap(200, seed=1, executor="serial", progress=False)
     full = res.bootstrap(200, seed=1, executor="serial", progress=False, refit="full")
@@ -446,8 +434,8 @@ def test_check_catches_a_level_at_threshold():
 
 def test_fits_the_linearised_path_does_not_cover():
     # Omega > 0: the rows' centrifugal term is J(J+1) - Omega^2, which the linearised path does not
-    # model: it refuses such fits (bootstrap then refits in full; its J = 0 predictions do not exist
-    # for Omega > 0 yet, so only the refusal is checked here)
+    # model: it refuses such fits (bootstrap then refits in full, predicting at J = Omega:
+    # test_bootstrap_of_a_state_with_omega_predicts_at_J_equal_omega)
     from wkbfit import replicas_linear
     vs = list(range(12)) * 2
     Js = [1] * 12 + [5] * 12
@@ -462,15 +450,7 @@ def test_fits_the_linearised_path_does_not_cover():
 
 
 def _fit_of(true, start, mu, Js, nv):
-    vs, J, E = [], [], []
-    for j in Js:
-        vs += list(range(nv))
-        J += [j] * nv
-        E += wkbfit.levels(true, mu, v=list(range(nv)), J=j, method="exact").energy.tolist()
-    rng = np.random.default_rng(5)
-    obs = wkbfit.read_levels({"v": vs, "J": J, "energy": np.array(E) + rng.normal(0, 0.01, len(E)),
-                              "uncertainty": np.full(len(E), 0.01)})
-    return wkbfit.fit(start, obs, mu)
+    return wkbfit.fit(start, _exact_data(true, mu, Js, nv), mu)
 
 
 @pytest.mark.parametrize("true, start, mu, nv", [
