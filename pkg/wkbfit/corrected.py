@@ -24,6 +24,7 @@ import math
 import numpy as np
 
 from . import _core
+from .rotational_corrections import exact_rows
 
 __all__ = ["run_corrected", "run_corrected_rows", "RowEvaluator", "run_with_unbound_rows", "LINEAR_STEP", "REMAINDER_SD",
            "ROWS_STEP", "MAX_REFRESHES"]
@@ -110,7 +111,7 @@ def exact_calc(model, params, curve, v, rot, mu, energy_zero, tolerance):
     return calc, error
 
 
-def run_corrected(args, *, tolerance=LINEAR_STEP, max_refreshes=MAX_REFRESHES):
+def run_corrected(args, *, tolerance=LINEAR_STEP, max_refreshes=MAX_REFRESHES, interpolate_in_j=True):
     """The corrected fit; args: a dict of the keyword arguments of _core.fit_run (method left out).
 
     1. a first-order WKB run from the start;
@@ -128,7 +129,12 @@ def run_corrected(args, *, tolerance=LINEAR_STEP, max_refreshes=MAX_REFRESHES):
     with and without derivatives), exact_jacobians, iterations (WKB Levenberg-Marquardt
     iterations summed), history (per exact evaluation: kind, largest step in standard
     deviations, chi-square), remainder (per row: the second-order remainder of the final
-    linear step, estimated from the WKB levels, cm-1), converged_refreshes.
+    linear step, estimated from the WKB levels, cm-1), converged_refreshes, exact_levels (levels
+    the exact solver computed, summed over the refreshes).
+
+    interpolate_in_j: the exact rows of a refresh are the WKB rows plus corrections E_exact - E_wkb
+    interpolated in J(J+1) where a (mu, v) has many J (rotational_corrections.exact_rows, checked
+    against exact levels to the levels' tolerance); False solves every row exactly.
     """
     a = dict(args)
     model, curve = a["model"], a["curve"]
@@ -139,8 +145,26 @@ def run_corrected(args, *, tolerance=LINEAR_STEP, max_refreshes=MAX_REFRESHES):
     # than any remaining step, so it stops once the promised chi-square decrease is < 1e-3 chi2
     out = _core.fit_run(method=_WKB, offset=None, decrease_tol=FIRST_RUN_DECREASE, **a)
     iterations, n_eval, history = out["iterations"], out["n_eval"], []
-    refreshes = jacobians = 0
+    refreshes = jacobians = n_exact = 0
     done = False
+
+    def exact_at(p, want_jac, var):
+        """(exact rows, exact Jacobian or None) at p, the run's end (out: WKB rows there plus offset)."""
+        nonlocal n_exact
+        wkb_calc = out["calc"] - offset
+        if not interpolate_in_j:
+            n_exact += len(v)
+            if want_jac:
+                return _core.fit_evaluate(model, p, curve, v, rot, mu, zero, _EXACT, tol_levels)
+            return exact_calc(model, p, curve, v, rot, mu, zero, tol_levels)[0], None
+        sd_full = np.zeros(len(a["vary"]))
+        if want_jac and var:
+            sd_full[var] = _gauss_newton(wkb_calc, out["jacobian"], energy, sigma, var)[1]
+        calc, jac, info = exact_rows(model, p, curve, v, rot, mu, zero, tol_levels, wkb_calc,
+                                     out["jacobian"] if want_jac else None, sd_full, tolerance)
+        n_exact += info["exact_levels"]
+        return calc, jac
+
     while out["stop"] == "converged":
         p = out["params"]
         var = [k for k, f in enumerate(a["vary"]) if f and not out["insensitive"][k]]
@@ -148,13 +172,13 @@ def run_corrected(args, *, tolerance=LINEAR_STEP, max_refreshes=MAX_REFRESHES):
             # the pure WKB point is far from the exact minimum: correct with exact levels only (1/4 of the
             # cost with the Jacobian for an MLR). Measured: a second levels-only refresh before the first
             # Jacobian costs more than it saves (tests/benchmarks/bench_default_fit.py)
-            calc_ex, _ = exact_calc(model, p, curve, v, rot, mu, zero, tol_levels)
+            calc_ex, _ = exact_at(p, False, var)
             refreshes += 1
             step, sd, chi2 = _gauss_newton(calc_ex, out["jacobian"], energy, sigma, var)
             history.append({"kind": "levels", "step_sd": float(np.max(np.abs(step) / sd)) if var else 0.0,
                             "chi_square": chi2})
         else:
-            calc_ex, jac_ex = _core.fit_evaluate(model, p, curve, v, rot, mu, zero, _EXACT, tol_levels)
+            calc_ex, jac_ex = exact_at(p, True, var)
             refreshes += 1
             jacobians += 1
             step, sd, chi2 = _gauss_newton(calc_ex, jac_ex, energy, sigma, var)
@@ -195,7 +219,7 @@ def run_corrected(args, *, tolerance=LINEAR_STEP, max_refreshes=MAX_REFRESHES):
         remainder = np.full(len(v), np.nan)
     out.update(iterations=iterations, n_eval=n_eval, refreshes=refreshes, exact_jacobians=jacobians,
                history=history, remainder=remainder, converged_refreshes=done or out["stop"] != "converged",
-               level_tolerance=tol_levels)
+               level_tolerance=tol_levels, exact_levels=n_exact)
     return out
 
 
