@@ -3,13 +3,19 @@
 For one reduced mass and v, the correction delta(x) = E_exact - E_wkb (first-order WKB) is a smooth,
 slowly varying function of x = J(J+1) (measured on a Lennard-Jones (12,6) well, De = 4000 cm-1,
 mu = 20 u, v = 0..24, J = 0..99: a degree-4 polynomial in x reproduces it to 2e-8 cm-1, degree 6 to the
-exact solver's own 1e-9). So where a (mu, v) has many J rows, the exact solver runs only at N_NODES + 1
-Chebyshev-Lobatto points in x over the rows' range (rounded to whole J) and at N_CHECK J between them;
-delta, and d(delta)/dp where a Jacobian is wanted, come at every row from the interpolating polynomial.
-Each (mu, v) is checked: where a check point's interpolated delta misses its exact value by more than
-the levels' tolerance (or the Jacobian's by more than tolerance / (LINEAR_STEP sd) per parameter), that
-(mu, v) is solved row by row instead. The exact rows are then the first-order WKB rows (known to the
-caller) plus the corrections.
+exact solver's own 1e-9). So where a (mu, v) has many J rows, the exact solver runs only at the
+Chebyshev-Lobatto points of degree 4 in x over the rows' range (rounded to whole J) and at two check J
+between them (the interval next to the lowest J and a middle one); delta, and d(delta)/dp where a
+Jacobian is wanted, come at every row from the interpolating polynomial. Where a check point's
+interpolated delta misses its exact value by more than CHECK_MARGIN of the levels' tolerance (the error
+elsewhere between nodes can be a few times that at the checks; or the Jacobian's by more
+than tolerance / (linear_step sd) per parameter: the energy error of the largest step the fit takes
+linearly), the degree doubles (the degree-8 nodes contain the degree-4 nodes and checks); where that
+fails too, the (mu, v) is solved row by row. The exact rows are then the first-order WKB rows (known to
+the caller) plus the corrections.
+
+Point-wise curves are not interpolated: the cubic spline's V'' jumps at the knots, so delta(J) is ragged
+at ~3e-8 cm-1 (measured on 60 samples of a Morse well) where two check points cannot see it.
 
 Units: cm-1.
 """
@@ -17,14 +23,15 @@ import numpy as np
 
 from . import _core
 
-__all__ = ["exact_rows", "N_NODES", "N_CHECK", "MIN_J"]
+__all__ = ["exact_rows", "DEGREES", "MIN_J", "CHECK_MARGIN"]
 
-#: degree of the interpolating polynomial in J(J+1) (N_NODES + 1 exact J per (mu, v))
-N_NODES = 6
-#: check points per (mu, v): the interval next to the lowest J and the middle one
-N_CHECK = 2
-#: a (mu, v) with fewer distinct J is solved row by row (interpolation would save little)
-MIN_J = 2 * (N_NODES + 1 + N_CHECK)
+#: degrees of the interpolating polynomial in J(J+1), tried in turn (each Lobatto node set contains the
+#: previous one and its check points)
+DEGREES = (4, 8)
+#: an interpolant is taken when it misses its check points by at most this fraction of the tolerance
+CHECK_MARGIN = 0.25
+#: a (mu, v) with fewer distinct J is solved row by row (degree 4 with its checks needs 7 exact J)
+MIN_J = 14
 
 _WKB, _EXACT = 0, 1
 
@@ -33,19 +40,15 @@ def _j_of(x):
     return np.rint((np.sqrt(1.0 + 4.0 * np.asarray(x, dtype=float)) - 1.0) / 2.0).astype(int)
 
 
-def _node_j(j_lo, j_hi):
-    """(node J, check J) for rows spanning j_lo..j_hi, or None when rounding makes nodes coincide."""
+def _node_j(j_lo, j_hi, degree):
+    """(node J, check J) of that degree for rows spanning j_lo..j_hi, or None when rounding to whole J
+    makes two of them coincide."""
     x_lo, x_hi = j_lo * (j_lo + 1.0), j_hi * (j_hi + 1.0)
-    theta = np.pi * np.arange(N_NODES + 1) / N_NODES
-    nodes = _j_of(x_lo + (x_hi - x_lo) * (1 - np.cos(theta)) / 2)
-    if len(np.unique(nodes)) != len(nodes):
+    theta = np.pi * np.concatenate([np.arange(degree + 1), [0.5, degree // 2 + 0.5]]) / degree
+    js = _j_of(x_lo + (x_hi - x_lo) * (1 - np.cos(theta)) / 2)
+    if len(np.unique(js)) != len(js):
         return None
-    mid = N_NODES // 2
-    theta_c = np.pi * np.array([0.5, mid + 0.5]) / N_NODES
-    checks = np.setdiff1d(_j_of(x_lo + (x_hi - x_lo) * (1 - np.cos(theta_c)) / 2), nodes)
-    if len(checks) < N_CHECK:
-        return None
-    return nodes, checks
+    return js[:degree + 1], js[degree + 1:]
 
 
 def _level_deltas(model, params, curve, levels, tolerance, jacobian):
@@ -62,7 +65,10 @@ def _level_deltas(model, params, curve, levels, tolerance, jacobian):
         ex, _ = exact_calc(model, params, curve, v, rot, mu, 0, tolerance)
         jex = None
     wk, jwk = _core.fit_evaluate(model, params, curve, v, rot, mu, 0, _WKB)
-    return ex - wk, (jex - jwk) if jacobian else None
+    d = ex - wk
+    if jacobian:
+        return np.column_stack([d, jex - jwk])
+    return d[:, None]
 
 
 def exact_rows(model, params, curve, v, rot, mu, energy_zero, tolerance, wkb_calc, wkb_jac=None, sd=None,
@@ -74,96 +80,86 @@ def exact_rows(model, params, curve, v, rot, mu, energy_zero, tolerance, wkb_cal
     accuracy, cm-1 (the exact solver's and the interpolation's); sd: per parameter, the standard
     deviation that scales the Jacobian check (0 for a fixed parameter; needed with wkb_jac).
     Returns (calc, jacobian or None, info) with info: {"exact_levels": levels solved exactly,
-    "interpolated_rows": rows from the interpolants, "fallback": (mu, v) groups that failed their check}.
+    "interpolated_rows": rows from the interpolants, "fallback": (mu, v) solved row by row after their
+    checks failed, "degree": {(mu, v): degree used}}.
     """
     v = np.asarray(v, dtype=int)
     mu = np.asarray(mu, dtype=float)
     J = _j_of(rot)
+    smooth = model != "pointwise"
     want_jac = wkb_jac is not None
-    n_par = wkb_jac.shape[1] if want_jac else 0
+    # check tolerance per column: the level, then each parameter's derivative
+    col_tol = np.array([CHECK_MARGIN * tolerance])
+    if want_jac:
+        scale = np.asarray(sd, dtype=float) * linear_step
+        col_tol = np.concatenate([col_tol, np.where(scale > 0, CHECK_MARGIN * tolerance / np.where(scale > 0, scale, 1.0),
+                                                    np.inf)])
     groups = {}
     for i, key in enumerate(zip(mu.tolist(), v.tolist())):
         groups.setdefault(key, []).append(i)
-    plans = {}  # (mu, v) -> (nodes, checks)
-    direct = set()  # (mu, J, v) solved as they are
-    for (m, vv), idx in groups.items():
-        js = np.unique(J[idx])
-        plan = _node_j(int(js[0]), int(js[-1])) if len(js) >= MIN_J else None
-        if plan is None:
-            direct.update((m, int(j), vv) for j in js)
-        else:
-            plans[(m, vv)] = plan
-    if energy_zero == 2:
-        direct.update((m, 0, 0) for m in np.unique(mu).tolist())
-    needed = set(direct)
-    for (m, vv), (nodes, checks) in plans.items():
-        needed.update((m, int(j), vv) for j in np.concatenate([nodes, checks]))
-    delta = {}  # (mu, J, v) -> (delta E, delta dE/dp or None)
+    groups = {key: np.asarray(idx) for key, idx in groups.items()}
+    span = {key: (int(J[idx].min()), int(J[idx].max()), len(np.unique(J[idx]))) for key, idx in groups.items()}
+    delta = {}  # (mu, J, v) -> row [delta E, delta dE/dp...]
+    n_exact = 0
 
     def solve(levels):
-        levels = sorted(levels)
-        d, dj = _level_deltas(model, params, curve, levels, tolerance, want_jac)
-        for k, lev in enumerate(levels):
-            delta[lev] = (d[k], dj[k] if want_jac else None)
+        nonlocal n_exact
+        levels = sorted(set(levels) - set(delta))
+        if levels:
+            d = _level_deltas(model, params, curve, levels, tolerance, want_jac)
+            delta.update(zip(levels, d))
+            n_exact += len(levels)
 
-    solve(needed)
-    n_exact = len(needed)
-    per_level = np.full(len(v), np.nan)
-    per_level_jac = np.full((len(v), n_par), np.nan) if want_jac else None
-    jac_tol = None
-    if want_jac:
-        scale = np.asarray(sd, dtype=float) * linear_step
-        jac_tol = np.where(scale > 0, tolerance / np.where(scale > 0, scale, 1.0), np.inf)
-    fallback = []
-    for (m, vv), (nodes, checks) in plans.items():
-        idx = np.asarray(groups[(m, vv)])
-        x_lo, x_hi = nodes[0] * (nodes[0] + 1.0), nodes[-1] * (nodes[-1] + 1.0)
+    per_level = np.full((len(v), len(col_tol)), np.nan)
+    degree_of = {}
+    pending = [key for key in groups if smooth and span[key][2] >= MIN_J]
+    for degree in DEGREES:
+        # blocks of (mu, v) with the same J range share their nodes
+        blocks = {}
+        for m, vv in pending:
+            blocks.setdefault((m,) + span[(m, vv)][:2], []).append(vv)
+        plans = {b: _node_j(b[1], b[2], degree) for b in blocks}
+        solve([(b[0], int(j), vv) for b, vs in blocks.items() if plans[b] is not None
+               for j in np.concatenate(plans[b]) for vv in vs])
+        failed = []
+        for b, vs in blocks.items():
+            if plans[b] is None:
+                continue
+            m, x_lo, x_hi = b[0], b[1] * (b[1] + 1.0), b[2] * (b[2] + 1.0)
+            nodes, checks = plans[b]
 
-        def t_of(j):
-            return 2 * (j * (j + 1.0) - x_lo) / (x_hi - x_lo) - 1
+            def t_of(j):
+                return 2 * (j * (j + 1.0) - x_lo) / (x_hi - x_lo) - 1
 
-        Y = np.array([np.concatenate([[delta[(m, int(j), vv)][0]],
-                                      delta[(m, int(j), vv)][1] if want_jac else []]) for j in nodes])
-        coef = np.polynomial.chebyshev.chebfit(t_of(nodes), Y, N_NODES)
-        at_checks = np.polynomial.chebyshev.chebval(t_of(checks), coef).T  # [check, column]
-        exact_checks = np.array([np.concatenate([[delta[(m, int(j), vv)][0]],
-                                                 delta[(m, int(j), vv)][1] if want_jac else []]) for j in checks])
-        miss = np.abs(at_checks - exact_checks)
-        ok = np.all(miss[:, 0] <= tolerance) and (not want_jac or np.all(miss[:, 1:] <= jac_tol))
-        if not ok:
-            fallback.append((m, vv))
-            continue
-        vals = np.polynomial.chebyshev.chebval(t_of(J[idx]), coef).T
-        per_level[idx] = vals[:, 0]
-        if want_jac:
-            per_level_jac[idx] = vals[:, 1:]
-    if fallback:
-        more = set()
-        for m, vv in fallback:
-            more.update((m, int(j), vv) for j in np.unique(J[groups[(m, vv)]]))
-        more -= set(delta)
-        if more:
-            solve(more)
-            n_exact += len(more)
-        for m, vv in fallback:
-            plans.pop((m, vv))
-    interpolated = np.zeros(len(v), dtype=bool)
-    for (m, vv) in plans:
-        interpolated[groups[(m, vv)]] = True
-    for i in np.nonzero(~interpolated)[0]:
-        d, dj = delta[(float(mu[i]), int(J[i]), int(v[i]))]
-        per_level[i] = d
-        if want_jac:
-            per_level_jac[i] = dj
+            # one polynomial per column of every v in the block: Y[node, v, column]
+            Y = np.array([[delta[(m, int(j), vv)] for vv in vs] for j in nodes])
+            coef = np.polynomial.chebyshev.chebfit(t_of(nodes), Y.reshape(len(nodes), -1), degree)
+            at = np.polynomial.chebyshev.chebval(t_of(checks), coef).reshape(len(vs), -1, len(checks))
+            exact = np.array([[delta[(m, int(j), vv)] for j in checks] for vv in vs])  # [v, check, column]
+            ok = np.all(np.abs(np.transpose(at, (0, 2, 1)) - exact) <= col_tol, axis=(1, 2))
+            for k, vv in enumerate(vs):
+                if not ok[k]:
+                    failed.append((m, vv))
+                    continue
+                idx = groups[(m, vv)]
+                c = coef.reshape(degree + 1, len(vs), -1)[:, k, :]
+                per_level[idx] = np.polynomial.chebyshev.chebval(t_of(J[idx]), c).T
+                degree_of[(m, vv)] = degree
+        pending = failed + [(b[0], vv) for b, vs in blocks.items() if plans[b] is None for vv in vs]
+    fallback = [key for key in pending if smooth and span[key][2] >= MIN_J]
+    # rows solved as they are: few J, or every check failed
+    direct = [i for key, idx in groups.items() if key not in degree_of for i in idx]
+    zero_levels = [(m, 0, 0) for m in np.unique(mu).tolist()] if energy_zero == 2 else []
+    solve([(float(mu[i]), int(J[i]), int(v[i])) for i in direct] + zero_levels)
+    for i in direct:
+        per_level[i] = delta[(float(mu[i]), int(J[i]), int(v[i]))]
     # rows from levels: asymptote - E (zero 1), E - E(v=0, J=0) of the same mu (zero 2)
     if energy_zero == 1:
-        per_level, per_level_jac = -per_level, (-per_level_jac if want_jac else None)
+        per_level = -per_level
     elif energy_zero == 2:
-        ref = {m: delta[(m, 0, 0)] for m in np.unique(mu).tolist()}
-        per_level = per_level - np.array([ref[m][0] for m in mu.tolist()])
-        if want_jac:
-            per_level_jac = per_level_jac - np.array([ref[m][1] for m in mu.tolist()])
-    calc = np.asarray(wkb_calc, dtype=float) + per_level
-    jac = np.asarray(wkb_jac, dtype=float) + per_level_jac if want_jac else None
-    info = {"exact_levels": n_exact, "interpolated_rows": int(np.count_nonzero(interpolated)), "fallback": fallback}
+        per_level = per_level - np.array([delta[(m, 0, 0)] for m in mu.tolist()])
+    calc = np.asarray(wkb_calc, dtype=float) + per_level[:, 0]
+    jac = np.asarray(wkb_jac, dtype=float) + per_level[:, 1:] if want_jac else None
+    info = {"exact_levels": n_exact, "interpolated_rows": len(v) - len(direct), "fallback": fallback,
+            "degree": degree_of}
     return calc, jac, info
