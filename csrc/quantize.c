@@ -276,6 +276,11 @@ static int solve_first_order(wkb_well *w, size_t v, wkb_level *level, double *av
     if (cached(w, v + 1))
         lo = GSL_MAX(lo, w->cache_w[v + 1]);
     double wg = first_guess(w, v, w_bottom);
+    if (w->seed_binding > 0 && (w->seed_strong || !(v >= 2 && cached(w, v - 1) && cached(w, v - 2)))) {
+        const double ws = pow(w->seed_binding, alpha);
+        if (ws > lo && ws < hi)
+            wg = ws;
+    }
     if (!(wg > lo && wg < hi))
         wg = 0.5 * (lo + hi);
 
@@ -473,6 +478,24 @@ int wkb_level_at(wkb_well *w, int v, wkb_level *level, double *avg_dVdp, wkb_err
     if ((status = check_v(w, v, err)))
         return status;
     return solve_level(w, (size_t)v, level, avg_dVdp, err);
+}
+
+int wkb_level_at_seeded(wkb_well *w, int v, double seed_binding, int strong, wkb_level *level,
+                        double *avg_dVdp, wkb_error *err)
+{
+    int status = prepare(w, err);
+    if (status)
+        return status;
+    if ((status = check_v(w, v, err)))
+        return status;
+    if (w->set.ends == WKB_ENDS_MATCHED && !w->low_wall)
+        return solve_level(w, (size_t)v, level, avg_dVdp, err);
+    w->seed_binding = isfinite(seed_binding) && seed_binding > 0 ? seed_binding : 0;
+    w->seed_strong = strong;
+    status = solve_first_order(w, (size_t)v, level, avg_dVdp, err);
+    w->seed_binding = 0;
+    w->seed_strong = 0;
+    return status;
 }
 
 int wkb_all_levels(wkb_well *w, wkb_level *levels, size_t capacity, size_t *count, double *vD, wkb_error *err)

@@ -345,6 +345,14 @@ int wkb_threshold_deferred(const wkb_well *w);
    Status: WKB_ENOLEVEL when v is not bound (the message names the last bound level). */
 int wkb_level_at(wkb_well *w, int v, wkb_level *level, double *avg_dVdp, wkb_error *err);
 
+/* wkb_level_at with a first guess: seed_binding (asymptote - E, cm-1; <= 0 or not finite: none) starts
+   the Newton iteration of a first-order Maslov level (a fit's previous evaluation, or the same v at a
+   neighbouring J) where the two levels below are not solved in this well, or always when strong (the
+   caller expects it within ~1e-5 cm-1: better than their extrapolation). Other rules ignore it. The
+   accuracy is that of wkb_level_at. */
+int wkb_level_at_seeded(wkb_well *w, int v, double seed_binding, int strong, wkb_level *level,
+                        double *avg_dVdp, wkb_error *err);
+
 /* Every bound level, v = 0 .. count-1, into levels[capacity]; *count is the number
    of bound levels (may exceed capacity, then only capacity are filled). */
 int wkb_all_levels(wkb_well *w, wkb_level *levels, size_t capacity, size_t *count,
