@@ -86,7 +86,7 @@ struct wkb_fit_evaluator {
        sorted row of the same (mu, model, v) at the previous J(J+1), or -1 */
     double *seed_E, *seed_dE, *cur_E, *cur_Bv, *cur_dE;
     double seed_p[WKB_MAX_PARAMS];
-    size_t seed_np;
+    size_t seed_np; /* parameters per row in seed_dE, cur_dE (allocated at the first evaluation) */
     int have_seed;
     long *prev_j;
 };
@@ -163,9 +163,7 @@ static int set_prev_j(wkb_fit_evaluator *ev)
     ev->seed_E = malloc(n * sizeof(double));
     ev->cur_E = malloc(n * sizeof(double));
     ev->cur_Bv = malloc(n * sizeof(double));
-    ev->seed_dE = malloc(n * WKB_MAX_PARAMS * sizeof(double));
-    ev->cur_dE = malloc(n * WKB_MAX_PARAMS * sizeof(double));
-    if (!last || !ev->prev_j || !ev->seed_E || !ev->cur_E || !ev->cur_Bv || !ev->seed_dE || !ev->cur_dE) {
+    if (!last || !ev->prev_j || !ev->seed_E || !ev->cur_E || !ev->cur_Bv) {
         free(last);
         return 1;
     }
@@ -284,10 +282,10 @@ static double seed_of(const wkb_fit_evaluator *ev, const wkb_potential *pot, siz
     *strong = 0;
     if (ev->source)
         return NAN;
-    if (ev->have_seed && ev->seed_np == np) {
+    if (ev->have_seed) {
         double change = 0;
         for (size_t k = 0; k < np; k++)
-            change += ev->seed_dE[s * WKB_MAX_PARAMS + k] * (pot->p[k] - ev->seed_p[k]);
+            change += ev->seed_dE[s * np + k] * (pot->p[k] - ev->seed_p[k]);
         *strong = fabs(change) <= SEED_STRONG_CHANGE;
         return ev->seed_E[s] + change;
     }
@@ -317,6 +315,19 @@ int wkb_fit_evaluate(wkb_fit_evaluator *ev, const wkb_potential *pot, double *ca
 
     if (d->energy_zero == WKB_ZERO_ASYMPTOTE)
         asymptote_gradient(pot, dA);
+    if (!ev->source && ev->seed_np != np) {
+        /* the seeds' derivatives, np per row (a new model: no seeds) */
+        double *a = realloc(ev->seed_dE, (ev->n * np + 1) * sizeof(double));
+        if (a)
+            ev->seed_dE = a;
+        double *b = realloc(ev->cur_dE, (ev->n * np + 1) * sizeof(double));
+        if (b)
+            ev->cur_dE = b;
+        if (!a || !b)
+            return wkb_fail(err, WKB_ENOMEM, "out of memory for the seeds of %zu levels", ev->n);
+        ev->seed_np = np;
+        ev->have_seed = 0;
+    }
     for (size_t s = 0; s < ev->n; s++) {
         const size_t i = ev->order[s];
         const double mu = d->mu[i], rot = d->rot[i];
@@ -349,7 +360,8 @@ int wkb_fit_evaluate(wkb_fit_evaluator *ev, const wkb_potential *pot, double *ca
         if (!ev->source) {
             ev->cur_E[s] = E;
             ev->cur_Bv[s] = Bv;
-            memcpy(ev->cur_dE + s * WKB_MAX_PARAMS, dE, np * sizeof *dE);
+            if (np)
+                memcpy(ev->cur_dE + s * np, dE, np * sizeof *dE);
         }
         double *row = jac ? jac + i * np : NULL;
         switch (d->energy_zero) {
@@ -388,7 +400,6 @@ int wkb_fit_evaluate(wkb_fit_evaluator *ev, const wkb_potential *pot, double *ca
         t = ev->seed_dE;
         ev->seed_dE = ev->cur_dE, ev->cur_dE = t;
         memcpy(ev->seed_p, pot->p, np * sizeof *pot->p);
-        ev->seed_np = np;
         ev->have_seed = 1;
     }
     return WKB_SUCCESS;

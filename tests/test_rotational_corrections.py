@@ -136,3 +136,44 @@ def test_fit_reaches_the_minimum_of_the_all_exact_refreshes(name, monkeypatch):
         assert abs(a.value - b.value) < 1e-3 * b.uncertainty, (n, a.value, b.value, b.uncertainty)
         assert a.uncertainty == pytest.approx(b.uncertainty, rel=1e-4)
     np.testing.assert_allclose(fast.calculated, slow.calculated, rtol=0, atol=1e-3 * 0.01)
+
+
+@pytest.mark.filterwarnings("ignore::wkbfit.observed.DataWarning")  # dense lines of two isotopologues
+def test_line_fit_reaches_the_minimum_of_the_all_exact_refreshes(monkeypatch):
+    # the row engine (line positions): P and R branches of the bands v -> v-1 and v -> v-2, J'' = 0..40, of
+    # two isotopologues, from exact-solver levels plus noise; with and without the interpolation in J(J+1)
+    true, start = wkbfit.Morse(De=9000.0, re=2.5, a=0.9), wkbfit.Morse(De=9050.0, re=2.49, a=0.905)
+    masses = {"A": 20.0, "B": 22.0}
+    rng = np.random.default_rng(8)
+    cols = {k: [] for k in ("isotopologue", "v_upper", "J_upper", "v_lower", "J_lower", "wavenumber")}
+    for label, m in masses.items():
+        t = wkbfit.levels(true, m, v=list(range(8)), J=list(range(42)), method="exact")
+        E = {(int(a), int(b)): float(c) for a, b, c in zip(t.v, t.J, t.energy)}
+        for v in range(1, 8):
+            for dv in (1, 2):
+                if v - dv < 0:
+                    continue
+                for J in range(0, 41):
+                    for Ju in (J - 1, J + 1):  # P and R lines
+                        if Ju < 0:
+                            continue
+                        cols["isotopologue"].append(label)
+                        cols["v_upper"].append(v)
+                        cols["J_upper"].append(Ju)
+                        cols["v_lower"].append(v - dv)
+                        cols["J_lower"].append(J)
+                        cols["wavenumber"].append(E[(v, Ju)] - E[(v - dv, J)])
+    n = len(cols["wavenumber"])
+    cols["wavenumber"] = np.array(cols["wavenumber"]) + rng.normal(0, 0.01, n)
+    cols["uncertainty"] = np.full(n, 0.01)
+    lines = wkbfit.read_lines(cols)
+    fast = wkbfit.fit(start, lines, masses)
+    monkeypatch.setattr(wkbfit.corrected.RowEvaluator, "interpolate_in_j", False)
+    slow = wkbfit.fit(start, lines, masses)
+    assert fast.success and slow.success and fast.method == "corrected"
+    assert fast.n_level_calculations < slow.n_level_calculations
+    for name in slow.var_names:
+        a, b = fast.params[name], slow.params[name]
+        assert abs(a.value - b.value) < 1e-3 * b.uncertainty, (name, a.value, b.value, b.uncertainty)
+        assert a.uncertainty == pytest.approx(b.uncertainty, rel=1e-4)
+    np.testing.assert_allclose(fast.calculated, slow.calculated, rtol=0, atol=1e-3 * 0.01)

@@ -233,7 +233,12 @@ class RowEvaluator:
     tolerance the data need (exact_tolerance) by one fit_evaluate over the distinct levels: ~1/4 of the
     row engine's own exact evaluation, which converges every level to the solver's default accuracy.
     Levels only (no derivatives) use exact_calc (one solver call per (mu, J)) when Omega = 0.
+    With Omega = 0 and interpolate_in_j, E_exact - E_wkb of a (mu, v) with many J comes from a few J
+    (rotational_corrections.exact_rows; the Jacobian's too once run_corrected_rows has set sd, the
+    parameters' standard deviations that scale its check).
     """
+
+    interpolate_in_j = True
 
     def __init__(self, run, model, curve, lv, lrot, lmu, rows, plain, omega):
         self.run, self.model, self.curve = run, model, curve
@@ -241,6 +246,7 @@ class RowEvaluator:
         self.plain, self.omega = plain, omega
         self.tol = exact_tolerance(rows["sigma"])
         self.zero = np.zeros(len(rows["observed"]))
+        self.sd = None
 
     def _combine(self, per_level):
         """Rows from per-level values (vector or matrix): sum of coef * value over the row's levels."""
@@ -256,11 +262,13 @@ class RowEvaluator:
         """Per row: E_exact - E_wkb of its levels at p (levels only), cm-1. loose: to 1e-2 of the smallest
         uncertainty (the first refresh, whose error the exact evaluation after it measures and removes)."""
         tol = min(1e-3, max(self.tol, 1e-2 * float(np.min(self.rows["sigma"])))) if loose else self.tol
+        wkb, _ = _core.fit_evaluate(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, _WKB)
         if self.omega:
             ex, _ = _core.fit_evaluate(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, _EXACT, tol)
+        elif self.interpolate_in_j:
+            ex, _, _ = exact_rows(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, tol, wkb)
         else:
             ex, _ = exact_calc(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, tol)
-        wkb, _ = _core.fit_evaluate(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, _WKB)
         return self._combine(ex - wkb)
 
     def exact(self, p, e, wkb=None):
@@ -270,11 +278,18 @@ class RowEvaluator:
             ex = self.run(p, e, self.zero, _EXACT, 0)
             return ex["calc"], ex["jacobian"], np.asarray(ex["extra"], dtype=float), ex["n_level_calculations"]
         wk = self.run(p, e, self.zero, _WKB, 0) if wkb is None else wkb
-        E_ex, J_ex = _core.fit_evaluate(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, _EXACT, self.tol)
         E_w, J_w = _core.fit_evaluate(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, _WKB)
+        n_exact = len(self.lv)
+        if not self.omega and self.interpolate_in_j and self.sd is not None:
+            E_ex, J_ex, info = exact_rows(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, self.tol, E_w,
+                                          J_w, self.sd, LINEAR_STEP)
+            n_exact = info["exact_levels"]
+        else:
+            E_ex, J_ex = _core.fit_evaluate(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, _EXACT,
+                                            self.tol)
         jac = np.array(wk["jacobian"], dtype=float)
         jac[:, :J_ex.shape[1]] += self._combine(J_ex - J_w)
-        return wk["calc"] + self._combine(E_ex - E_w), jac, np.asarray(wk["extra"], dtype=float), len(self.lv)
+        return wk["calc"] + self._combine(E_ex - E_w), jac, np.asarray(wk["extra"], dtype=float), n_exact
 
     def levels(self, p, e):
         """(calc, extras) of the exact rows at p from exact levels only (plain levels), else from exact()."""
@@ -320,6 +335,12 @@ def run_corrected_rows(ev, n_params, vary, max_iterations, *, tolerance=ROWS_STE
         n_eval += out["n_eval"]
     if out["stop"] == "converged":
         var = [k for k in range(n_params) if vary[k] and not out["insensitive"][k]]
+        # the parameters' standard deviations (from the WKB rows) scale the check of interpolated Jacobians
+        var_all = var + list(range(n_params, n_params + len(out["extra"])))
+        sd_all = np.zeros(n_params + len(out["extra"]))
+        if var_all:
+            sd_all[var_all] = _gauss_newton(out["calc"], out["jacobian"], observed, sigma, var_all)[1]
+        ev.sd = sd_all[:n_params]
         # the WKB rows at the run's end are known: its calc less the corrections, with its extras
         calc, jac, e, n_levels = ev.exact(out["params"], out["extra"], {
             "calc": out["calc"] - offset, "jacobian": out["jacobian"], "extra": out["extra"]})
