@@ -1010,6 +1010,7 @@ int wkb_fit_run_rows(const wkb_potential *start, const wkb_fit_data *levels, con
     out->n_eval = c.n_eval;
     out->n_infeasible = c.n_infeasible;
     out->n_level_calculations = wkb_fit_evaluator_level_calculations(c.ev);
+    out->n_orbits = c.ev->well ? wkb_well_orbits(c.ev->well) : 0;
     if (c.n_infeasible)
         out->last_infeasible = c.last_infeasible;
     status = WKB_SUCCESS;

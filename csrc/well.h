@@ -34,6 +34,7 @@ struct wkb_well {
        strong: taken even where the neighbours' extrapolation is available */
     double seed_binding;
     int seed_strong;
+    size_t n_orbits; /* orbits evaluated since allocation (wkb_well_orbits) */
     /* level cache, used by quantize.c */
     double vD;
     int vD_status;

@@ -310,6 +310,8 @@ int wkb_well_set(wkb_well *w, const wkb_potential *pot, double mu, double rot,
 /* Energy of the effective-potential minimum and the asymptote (cm-1). */
 double wkb_well_bottom(const wkb_well *w);
 double wkb_well_top(const wkb_well *w);
+/* Orbits (phase integrals) evaluated in this workspace since it was allocated. */
+size_t wkb_well_orbits(const wkb_well *w);
 /* Highest energy bound by the inner wall: min(asymptote, top of V_J inside the minimum). Below
    the asymptote for a wall that never rises to it (V(0) < De): levels are counted up to here. */
 double wkb_well_bound_top(const wkb_well *w);
@@ -566,6 +568,7 @@ typedef struct {
                                         them at the start (relative sensitivity below WKB_FIT_INSENSITIVE) */
     wkb_error last_infeasible;     /* why the last infeasible trial point was rejected */
     size_t n_level_calculations;   /* levels computed during the fit (all evaluations) */
+    size_t n_orbits;               /* first-order WKB orbits evaluated during the fit (0 for another source) */
 } wkb_fit_outcome;
 /* ||d f/d ln p_k|| below this fraction of the largest: the levels do not depend on p_k */
 #define WKB_FIT_INSENSITIVE 1e-9

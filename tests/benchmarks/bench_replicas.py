@@ -134,6 +134,9 @@ def main():
 def scan_only():
     obs, cands, mu = scan_case()
     wkbfit.scan_models(obs, cands[:2], mu, progress=False)  # warm-up
+    from bench_large_fit import count_orbits
+    _, orbits = count_orbits(lambda: wkbfit.scan_models(obs, cands, mu, progress=False, executor="serial"))
+    print("\nmodel scan: %.3f first-order WKB orbits per level and evaluation (serial run)" % orbits)
     t0 = time.perf_counter()
     scan = wkbfit.scan_models(obs, cands, mu, progress=False)
     t_scan = time.perf_counter() - t0
