@@ -26,7 +26,9 @@ from . import _core
 __all__ = ["exact_rows", "DEGREES", "MIN_J", "CHECK_MARGIN"]
 
 #: degrees of the interpolating polynomial in J(J+1), tried in turn (each Lobatto node set contains the
-#: previous one and its check points)
+#: previous one and its check points). Measured on the 20 000-level benchmark fit (tolerance 1e-5 cm-1):
+#: starting at degree 2 saves 27 % of the exact levels but its rows, off by up to 2.6e-6 cm-1, move the
+#: fitted parameters by 2e-3 sd; from degree 4 they move by 3e-7 sd
 DEGREES = (4, 8)
 #: an interpolant is taken when it misses its check points by at most this fraction of the tolerance
 CHECK_MARGIN = 0.25
