@@ -111,7 +111,24 @@ def exact_calc(model, params, curve, v, rot, mu, energy_zero, tolerance):
     return calc, error
 
 
-def run_corrected(args, *, tolerance=LINEAR_STEP, max_refreshes=MAX_REFRESHES, interpolate_in_j=True):
+def _step_directly(model, curve, v, rot, mu, zero, a, p, step, var, step_sd, tolerance):
+    """(p + step, WKB rows and Jacobian there) when the step is below `tolerance` sd and stays inside the
+    bounds and the model's domain; else None."""
+    if not var or not step_sd < tolerance:
+        return None
+    p_new = np.array(p, dtype=float)
+    p_new[var] += step
+    if np.any(p_new <= np.asarray(a["lower"])) or np.any(p_new >= np.asarray(a["upper"])):
+        return None
+    try:
+        wkb_new, jac_new = _core.fit_evaluate(model, p_new, curve, v, rot, mu, zero, _WKB)
+    except ValueError:
+        return None
+    return p_new, wkb_new, jac_new
+
+
+def run_corrected(args, *, tolerance=LINEAR_STEP, max_refreshes=MAX_REFRESHES, interpolate_in_j=True,
+                  direct_first_step=True):
     """The corrected fit; args: a dict of the keyword arguments of _core.fit_run (method left out).
 
     1. a first-order WKB run from the start;
@@ -135,6 +152,9 @@ def run_corrected(args, *, tolerance=LINEAR_STEP, max_refreshes=MAX_REFRESHES, i
     interpolate_in_j: the exact rows of a refresh are the WKB rows plus corrections E_exact - E_wkb
     interpolated in J(J+1) where a (mu, v) has many J (rotational_corrections.exact_rows, checked
     against exact levels to the levels' tolerance); False solves every row exactly.
+    direct_first_step: after the first refresh, its Gauss-Newton step (exact rows, WKB Jacobian) is taken
+    directly when below `tolerance` sd (one WKB evaluation at the new point) instead of step 2's WKB run;
+    the exact evaluation with the Jacobian after it decides as in 3.
     """
     a = dict(args)
     model, curve = a["model"], a["curve"]
@@ -203,6 +223,16 @@ def run_corrected(args, *, tolerance=LINEAR_STEP, max_refreshes=MAX_REFRESHES, i
         if refreshes >= max_refreshes:
             break
         offset = offset + (calc_ex - out["calc"])  # = E_exact - E_wkb at p
+        if refreshes == 1 and direct_first_step:
+            moved = _step_directly(model, curve, v, rot, mu, zero, a, p, step, var, history[0]["step_sd"], tolerance)
+            if moved is not None:
+                # the first refresh's Gauss-Newton step (exact rows, WKB Jacobian) instead of a WKB run
+                # with the corrections: one WKB evaluation where the run costs several
+                p_new, wkb_new, jac_new = moved
+                out = dict(out, params=p_new, calc=wkb_new + offset, jacobian=jac_new)
+                n_eval += 1
+                history[0]["taken"] = True
+                continue
         a["params"] = p
         out = _core.fit_run(method=_WKB, offset=offset, **a)
         iterations += out["iterations"]
