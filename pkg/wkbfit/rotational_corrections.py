@@ -101,6 +101,15 @@ def exact_rows(model, params, curve, v, rot, mu, energy_zero, tolerance, wkb_cal
         groups.setdefault(key, []).append(i)
     groups = {key: np.asarray(idx) for key, idx in groups.items()}
     span = {key: (int(J[idx].min()), int(J[idx].max()), len(np.unique(J[idx]))) for key, idx in groups.items()}
+    if not (smooth and any(s[2] >= MIN_J for s in span.values())):
+        # nothing to interpolate: the rows as they are (no WKB levels needed)
+        if want_jac:
+            calc, jac = _core.fit_evaluate(model, params, curve, np.asarray(v, dtype=np.intc), rot, mu, energy_zero,
+                                           _EXACT, tolerance)
+        else:
+            from .corrected import exact_calc
+            calc, jac = exact_calc(model, params, curve, v, rot, mu, energy_zero, tolerance)[0], None
+        return calc, jac, {"exact_levels": len(v), "interpolated_rows": 0, "fallback": [], "degree": {}}
     delta = {}  # (mu, J, v) -> row [delta E, delta dE/dp...]
     n_exact = 0
 
