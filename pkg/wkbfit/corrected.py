@@ -24,7 +24,7 @@ import math
 import numpy as np
 
 from . import _core
-from .rotational_corrections import exact_rows
+from .rotational_corrections import exact_rows, interpolable
 
 __all__ = ["run_corrected", "run_corrected_rows", "RowEvaluator", "run_with_unbound_rows", "LINEAR_STEP", "REMAINDER_SD",
            "ROWS_STEP", "MAX_REFRESHES"]
@@ -168,11 +168,13 @@ def run_corrected(args, *, tolerance=LINEAR_STEP, max_refreshes=MAX_REFRESHES, i
     refreshes = jacobians = n_exact = 0
     done = False
 
+    interpolate = interpolate_in_j and interpolable(model, v, rot, mu)
+
     def exact_at(p, want_jac, var):
         """(exact rows, exact Jacobian or None) at p, the run's end (out: WKB rows there plus offset)."""
         nonlocal n_exact
         wkb_calc = out["calc"] - offset
-        if not interpolate_in_j:
+        if not interpolate:
             n_exact += len(v)
             if want_jac:
                 return _core.fit_evaluate(model, p, curve, v, rot, mu, zero, _EXACT, tol_levels)
@@ -295,7 +297,7 @@ class RowEvaluator:
         wkb, _ = _core.fit_evaluate(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, _WKB)
         if self.omega:
             ex, _ = _core.fit_evaluate(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, _EXACT, tol)
-        elif self.interpolate_in_j:
+        elif self.interpolate_in_j and interpolable(self.model, self.lv, self.lrot, self.lmu):
             ex, _, _ = exact_rows(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, tol, wkb)
         else:
             ex, _ = exact_calc(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, tol)
@@ -310,7 +312,8 @@ class RowEvaluator:
         wk = self.run(p, e, self.zero, _WKB, 0) if wkb is None else wkb
         E_w, J_w = _core.fit_evaluate(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, _WKB)
         n_exact = len(self.lv)
-        if not self.omega and self.interpolate_in_j and self.sd is not None:
+        if not self.omega and self.interpolate_in_j and self.sd is not None and \
+                interpolable(self.model, self.lv, self.lrot, self.lmu):
             E_ex, J_ex, info = exact_rows(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, self.tol, E_w,
                                           J_w, self.sd, LINEAR_STEP)
             n_exact = info["exact_levels"]

@@ -23,7 +23,7 @@ import numpy as np
 
 from . import _core
 
-__all__ = ["exact_rows", "DEGREES", "MIN_J", "CHECK_MARGIN"]
+__all__ = ["exact_rows", "interpolable", "DEGREES", "MIN_J", "CHECK_MARGIN"]
 
 #: degrees of the interpolating polynomial in J(J+1), tried in turn (each Lobatto node set contains the
 #: previous one and its check points). Measured on the 20 000-level benchmark fit (tolerance 1e-5 cm-1):
@@ -51,6 +51,16 @@ def _node_j(j_lo, j_hi, degree):
     if len(np.unique(js)) != len(js):
         return None
     return js[:degree + 1], js[degree + 1:]
+
+
+def interpolable(model, v, rot, mu):
+    """Whether exact_rows would interpolate any (mu, v) of these rows (a smooth model, >= MIN_J distinct J)."""
+    if model == "pointwise" or len(v) < MIN_J:
+        return False
+    keys = np.stack([np.asarray(mu, dtype=float), np.asarray(v, dtype=float), _j_of(rot).astype(float)], axis=1)
+    pairs = np.unique(keys, axis=0)[:, :2]  # one row per distinct (mu, v, J)
+    _, counts = np.unique(pairs, axis=0, return_counts=True)
+    return bool(np.any(counts >= MIN_J))
 
 
 def _level_deltas(model, params, curve, levels, tolerance, jacobian):
