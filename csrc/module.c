@@ -1308,6 +1308,7 @@ static PyObject *py_fit_run(PyObject *self, PyObject *args, PyObject *kwds)
         dict_steal(result, "iterations", PyLong_FromSize_t(out.iterations)) < 0 ||
         dict_steal(result, "n_eval", PyLong_FromSize_t(out.n_eval)) < 0 ||
         dict_steal(result, "n_infeasible", PyLong_FromSize_t(out.n_infeasible)) < 0 ||
+        dict_steal(result, "n_orbits", PyLong_FromSize_t(out.n_orbits)) < 0 ||
         dict_steal(result, "stop", PyUnicode_FromString(wkb_fit_stop_name(out.stop))) < 0 ||
         dict_steal(result, "test", PyLong_FromLong(out.test)) < 0 ||
         dict_steal(result, "insensitive", insensitive_list(out.insensitive, np)) < 0 ||
@@ -1699,6 +1700,7 @@ static PyObject *py_fit_run_rows(PyObject *self, PyObject *args, PyObject *kwds)
         dict_steal(result, "n_eval", PyLong_FromSize_t(out.n_eval)) < 0 ||
         dict_steal(result, "n_infeasible", PyLong_FromSize_t(out.n_infeasible)) < 0 ||
         dict_steal(result, "n_level_calculations", PyLong_FromSize_t(out.n_level_calculations)) < 0 ||
+        dict_steal(result, "n_orbits", PyLong_FromSize_t(out.n_orbits)) < 0 ||
         dict_steal(result, "stop", PyUnicode_FromString(wkb_fit_stop_name(out.stop))) < 0 ||
         dict_steal(result, "test", PyLong_FromLong(out.test)) < 0 ||
         dict_steal(result, "insensitive", insensitive_list(out.insensitive, np)) < 0 ||
@@ -2204,7 +2206,7 @@ static PyMethodDef core_methods[] = {
     {"fit_run", (PyCFunction)(void (*)(void))py_fit_run, METH_VARARGS | METH_KEYWORDS,
      "fit_run(model, params, curve, v, rot, mu, energy, sigma, energy_zero, vary, lower, upper,\n"
      "max_iterations=-1, xtol, gtol, decrease_tol, method=0, offset=None) -> dict (params, calc, jacobian, chi_square, iterations,\n"
-     "n_eval, n_infeasible, stop, test, predicted_decrease, last_infeasible); a failure at the start raises\n"
+     "n_eval, n_infeasible, n_orbits, stop, test, predicted_decrease, last_infeasible); a failure at the start raises\n"
      "ValueError(message, row index)"},
     {"fit_replicas", (PyCFunction)(void (*)(void))py_fit_replicas, METH_VARARGS | METH_KEYWORDS,
      "fit_replicas(model, params, curve, v, rot, mu, sigma, energy_zero, vary, lower, upper, energies[n_rep, n],\n"

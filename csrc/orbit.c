@@ -313,6 +313,7 @@ int wkb_well_set(wkb_well *w, const wkb_potential *pot, double mu, double rot, i
 
 double wkb_well_bottom(const wkb_well *w) { return w->bottom; }
 double wkb_well_top(const wkb_well *w) { return w->top; }
+size_t wkb_well_orbits(const wkb_well *w) { return w->n_orbits; }
 double wkb_well_bound_top(const wkb_well *w) { return w->bound_top; }
 
 /* Counts crossings of V_J = E over the scanned monotone segments and the tail beyond. */
@@ -618,6 +619,7 @@ int wkb_well_crossing(const wkb_well *w, double binding, double lo, double hi, d
 int wkb_orbit_at(wkb_well *w, double binding, wkb_orbit *orbit, double *avg_dVdp, wkb_error *err)
 {
     int status;
+    w->n_orbits++;
     if (!w->ready)
         return wkb_fail(err, WKB_EINVAL, "the well has not been set up");
     energy_point e;

@@ -31,6 +31,11 @@ struct wkb_well {
     /* turning points of the last orbit: Newton starts there for the next one */
     double last_tp[2];
     int have_last_tp;
+    /* first guess of the next first-order level from outside (wkb_level_at_seeded), > 0 when set;
+       strong: taken even where the neighbours' extrapolation is available */
+    double seed_binding;
+    int seed_strong;
+    size_t n_orbits; /* orbits evaluated since allocation (wkb_well_orbits) */
     /* level cache, used by quantize.c */
     double vD;
     int vD_status;

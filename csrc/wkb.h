@@ -313,6 +313,8 @@ int wkb_well_set(wkb_well *w, const wkb_potential *pot, double mu, double rot,
 /* Energy of the effective-potential minimum and the asymptote (cm-1). */
 double wkb_well_bottom(const wkb_well *w);
 double wkb_well_top(const wkb_well *w);
+/* Orbits (phase integrals) evaluated in this workspace since it was allocated. */
+size_t wkb_well_orbits(const wkb_well *w);
 /* Highest energy bound by the inner wall: min(asymptote, top of V_J inside the minimum). Below
    the asymptote for a wall that never rises to it (V(0) < De): levels are counted up to here. */
 double wkb_well_bound_top(const wkb_well *w);
@@ -347,6 +349,14 @@ int wkb_threshold_deferred(const wkb_well *w);
    since the last wkb_well_set seed the first guess, so asking in ascending v is fastest.
    Status: WKB_ENOLEVEL when v is not bound (the message names the last bound level). */
 int wkb_level_at(wkb_well *w, int v, wkb_level *level, double *avg_dVdp, wkb_error *err);
+
+/* wkb_level_at with a first guess: seed_binding (asymptote - E, cm-1; <= 0 or not finite: none) starts
+   the Newton iteration of a first-order Maslov level (a fit's previous evaluation, or the same v at a
+   neighbouring J) where the two levels below are not solved in this well, or always when strong (the
+   caller expects it within ~1e-5 cm-1: better than their extrapolation). Other rules ignore it. The
+   accuracy is that of wkb_level_at. */
+int wkb_level_at_seeded(wkb_well *w, int v, double seed_binding, int strong, wkb_level *level,
+                        double *avg_dVdp, wkb_error *err);
 
 /* Every bound level, v = 0 .. count-1, into levels[capacity]; *count is the number
    of bound levels (may exceed capacity, then only capacity are filled). */
@@ -561,6 +571,7 @@ typedef struct {
                                         them at the start (relative sensitivity below WKB_FIT_INSENSITIVE) */
     wkb_error last_infeasible;     /* why the last infeasible trial point was rejected */
     size_t n_level_calculations;   /* levels computed during the fit (all evaluations) */
+    size_t n_orbits;               /* first-order WKB orbits evaluated during the fit (0 for another source) */
 } wkb_fit_outcome;
 /* ||d f/d ln p_k|| below this fraction of the largest: the levels do not depend on p_k */
 #define WKB_FIT_INSENSITIVE 1e-9

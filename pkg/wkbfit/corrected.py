@@ -24,6 +24,7 @@ import math
 import numpy as np
 
 from . import _core
+from .rotational_corrections import exact_rows, interpolable
 
 __all__ = ["run_corrected", "run_corrected_rows", "RowEvaluator", "run_with_unbound_rows", "LINEAR_STEP", "REMAINDER_SD",
            "ROWS_STEP", "MAX_REFRESHES"]
@@ -110,7 +111,24 @@ def exact_calc(model, params, curve, v, rot, mu, energy_zero, tolerance):
     return calc, error
 
 
-def run_corrected(args, *, tolerance=LINEAR_STEP, max_refreshes=MAX_REFRESHES):
+def _step_directly(model, curve, v, rot, mu, zero, a, p, step, var, step_sd, tolerance):
+    """(p + step, WKB rows and Jacobian there) when the step is below `tolerance` sd and stays inside the
+    bounds and the model's domain; else None."""
+    if not var or not step_sd < tolerance:
+        return None
+    p_new = np.array(p, dtype=float)
+    p_new[var] += step
+    if np.any(p_new <= np.asarray(a["lower"])) or np.any(p_new >= np.asarray(a["upper"])):
+        return None
+    try:
+        wkb_new, jac_new = _core.fit_evaluate(model, p_new, curve, v, rot, mu, zero, _WKB)
+    except ValueError:
+        return None
+    return p_new, wkb_new, jac_new
+
+
+def run_corrected(args, *, tolerance=LINEAR_STEP, max_refreshes=MAX_REFRESHES, interpolate_in_j=True,
+                  direct_first_step=True):
     """The corrected fit; args: a dict of the keyword arguments of _core.fit_run (method left out).
 
     1. a first-order WKB run from the start;
@@ -128,7 +146,15 @@ def run_corrected(args, *, tolerance=LINEAR_STEP, max_refreshes=MAX_REFRESHES):
     with and without derivatives), exact_jacobians, iterations (WKB Levenberg-Marquardt
     iterations summed), history (per exact evaluation: kind, largest step in standard
     deviations, chi-square), remainder (per row: the second-order remainder of the final
-    linear step, estimated from the WKB levels, cm-1), converged_refreshes.
+    linear step, estimated from the WKB levels, cm-1), converged_refreshes, exact_levels (levels
+    the exact solver computed, summed over the refreshes).
+
+    interpolate_in_j: the exact rows of a refresh are the WKB rows plus corrections E_exact - E_wkb
+    interpolated in J(J+1) where a (mu, v) has many J (rotational_corrections.exact_rows, checked
+    against exact levels to the levels' tolerance); False solves every row exactly.
+    direct_first_step: after the first refresh, its Gauss-Newton step (exact rows, WKB Jacobian) is taken
+    directly when below `tolerance` sd (one WKB evaluation at the new point) instead of step 2's WKB run;
+    the exact evaluation with the Jacobian after it decides as in 3.
     """
     a = dict(args)
     model, curve = a["model"], a["curve"]
@@ -139,8 +165,28 @@ def run_corrected(args, *, tolerance=LINEAR_STEP, max_refreshes=MAX_REFRESHES):
     # than any remaining step, so it stops once the promised chi-square decrease is < 1e-3 chi2
     out = _core.fit_run(method=_WKB, offset=None, decrease_tol=FIRST_RUN_DECREASE, **a)
     iterations, n_eval, history = out["iterations"], out["n_eval"], []
-    refreshes = jacobians = 0
+    refreshes = jacobians = n_exact = 0
     done = False
+
+    interpolate = interpolate_in_j and interpolable(model, v, rot, mu)
+
+    def exact_at(p, want_jac, var):
+        """(exact rows, exact Jacobian or None) at p, the run's end (out: WKB rows there plus offset)."""
+        nonlocal n_exact
+        wkb_calc = out["calc"] - offset
+        if not interpolate:
+            n_exact += len(v)
+            if want_jac:
+                return _core.fit_evaluate(model, p, curve, v, rot, mu, zero, _EXACT, tol_levels)
+            return exact_calc(model, p, curve, v, rot, mu, zero, tol_levels)[0], None
+        sd_full = np.zeros(len(a["vary"]))
+        if want_jac and var:
+            sd_full[var] = _gauss_newton(wkb_calc, out["jacobian"], energy, sigma, var)[1]
+        calc, jac, info = exact_rows(model, p, curve, v, rot, mu, zero, tol_levels, wkb_calc,
+                                     out["jacobian"] if want_jac else None, sd_full, tolerance)
+        n_exact += info["exact_levels"]
+        return calc, jac
+
     while out["stop"] == "converged":
         p = out["params"]
         var = [k for k, f in enumerate(a["vary"]) if f and not out["insensitive"][k]]
@@ -148,13 +194,13 @@ def run_corrected(args, *, tolerance=LINEAR_STEP, max_refreshes=MAX_REFRESHES):
             # the pure WKB point is far from the exact minimum: correct with exact levels only (1/4 of the
             # cost with the Jacobian for an MLR). Measured: a second levels-only refresh before the first
             # Jacobian costs more than it saves (tests/benchmarks/bench_default_fit.py)
-            calc_ex, _ = exact_calc(model, p, curve, v, rot, mu, zero, tol_levels)
+            calc_ex, _ = exact_at(p, False, var)
             refreshes += 1
             step, sd, chi2 = _gauss_newton(calc_ex, out["jacobian"], energy, sigma, var)
             history.append({"kind": "levels", "step_sd": float(np.max(np.abs(step) / sd)) if var else 0.0,
                             "chi_square": chi2})
         else:
-            calc_ex, jac_ex = _core.fit_evaluate(model, p, curve, v, rot, mu, zero, _EXACT, tol_levels)
+            calc_ex, jac_ex = exact_at(p, True, var)
             refreshes += 1
             jacobians += 1
             step, sd, chi2 = _gauss_newton(calc_ex, jac_ex, energy, sigma, var)
@@ -179,6 +225,16 @@ def run_corrected(args, *, tolerance=LINEAR_STEP, max_refreshes=MAX_REFRESHES):
         if refreshes >= max_refreshes:
             break
         offset = offset + (calc_ex - out["calc"])  # = E_exact - E_wkb at p
+        if refreshes == 1 and direct_first_step:
+            moved = _step_directly(model, curve, v, rot, mu, zero, a, p, step, var, history[0]["step_sd"], tolerance)
+            if moved is not None:
+                # the first refresh's Gauss-Newton step (exact rows, WKB Jacobian) instead of a WKB run
+                # with the corrections: one WKB evaluation where the run costs several
+                p_new, wkb_new, jac_new = moved
+                out = dict(out, params=p_new, calc=wkb_new + offset, jacobian=jac_new)
+                n_eval += 1
+                history[0]["taken"] = True
+                continue
         a["params"] = p
         out = _core.fit_run(method=_WKB, offset=offset, **a)
         iterations += out["iterations"]
@@ -195,7 +251,7 @@ def run_corrected(args, *, tolerance=LINEAR_STEP, max_refreshes=MAX_REFRESHES):
         remainder = np.full(len(v), np.nan)
     out.update(iterations=iterations, n_eval=n_eval, refreshes=refreshes, exact_jacobians=jacobians,
                history=history, remainder=remainder, converged_refreshes=done or out["stop"] != "converged",
-               level_tolerance=tol_levels)
+               level_tolerance=tol_levels, exact_levels=n_exact)
     return out
 
 
@@ -209,7 +265,12 @@ class RowEvaluator:
     tolerance the data need (exact_tolerance) by one fit_evaluate over the distinct levels: ~1/4 of the
     row engine's own exact evaluation, which converges every level to the solver's default accuracy.
     Levels only (no derivatives) use exact_calc (one solver call per (mu, J)) when Omega = 0.
+    With Omega = 0 and interpolate_in_j, E_exact - E_wkb of a (mu, v) with many J comes from a few J
+    (rotational_corrections.exact_rows; the Jacobian's too once run_corrected_rows has set sd, the
+    parameters' standard deviations that scale its check).
     """
+
+    interpolate_in_j = True
 
     def __init__(self, run, model, curve, lv, lrot, lmu, rows, plain, omega):
         self.run, self.model, self.curve = run, model, curve
@@ -217,6 +278,7 @@ class RowEvaluator:
         self.plain, self.omega = plain, omega
         self.tol = exact_tolerance(rows["sigma"])
         self.zero = np.zeros(len(rows["observed"]))
+        self.sd = None
 
     def _combine(self, per_level):
         """Rows from per-level values (vector or matrix): sum of coef * value over the row's levels."""
@@ -232,11 +294,13 @@ class RowEvaluator:
         """Per row: E_exact - E_wkb of its levels at p (levels only), cm-1. loose: to 1e-2 of the smallest
         uncertainty (the first refresh, whose error the exact evaluation after it measures and removes)."""
         tol = min(1e-3, max(self.tol, 1e-2 * float(np.min(self.rows["sigma"])))) if loose else self.tol
+        wkb, _ = _core.fit_evaluate(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, _WKB)
         if self.omega:
             ex, _ = _core.fit_evaluate(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, _EXACT, tol)
+        elif self.interpolate_in_j and interpolable(self.model, self.lv, self.lrot, self.lmu):
+            ex, _, _ = exact_rows(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, tol, wkb)
         else:
             ex, _ = exact_calc(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, tol)
-        wkb, _ = _core.fit_evaluate(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, _WKB)
         return self._combine(ex - wkb)
 
     def exact(self, p, e, wkb=None):
@@ -246,11 +310,19 @@ class RowEvaluator:
             ex = self.run(p, e, self.zero, _EXACT, 0)
             return ex["calc"], ex["jacobian"], np.asarray(ex["extra"], dtype=float), ex["n_level_calculations"]
         wk = self.run(p, e, self.zero, _WKB, 0) if wkb is None else wkb
-        E_ex, J_ex = _core.fit_evaluate(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, _EXACT, self.tol)
         E_w, J_w = _core.fit_evaluate(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, _WKB)
+        n_exact = len(self.lv)
+        if not self.omega and self.interpolate_in_j and self.sd is not None and \
+                interpolable(self.model, self.lv, self.lrot, self.lmu):
+            E_ex, J_ex, info = exact_rows(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, self.tol, E_w,
+                                          J_w, self.sd, LINEAR_STEP)
+            n_exact = info["exact_levels"]
+        else:
+            E_ex, J_ex = _core.fit_evaluate(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, _EXACT,
+                                            self.tol)
         jac = np.array(wk["jacobian"], dtype=float)
         jac[:, :J_ex.shape[1]] += self._combine(J_ex - J_w)
-        return wk["calc"] + self._combine(E_ex - E_w), jac, np.asarray(wk["extra"], dtype=float), len(self.lv)
+        return wk["calc"] + self._combine(E_ex - E_w), jac, np.asarray(wk["extra"], dtype=float), n_exact
 
     def levels(self, p, e):
         """(calc, extras) of the exact rows at p from exact levels only (plain levels), else from exact()."""
@@ -296,6 +368,12 @@ def run_corrected_rows(ev, n_params, vary, max_iterations, *, tolerance=ROWS_STE
         n_eval += out["n_eval"]
     if out["stop"] == "converged":
         var = [k for k in range(n_params) if vary[k] and not out["insensitive"][k]]
+        # the parameters' standard deviations (from the WKB rows) scale the check of interpolated Jacobians
+        var_all = var + list(range(n_params, n_params + len(out["extra"])))
+        sd_all = np.zeros(n_params + len(out["extra"]))
+        if var_all:
+            sd_all[var_all] = _gauss_newton(out["calc"], out["jacobian"], observed, sigma, var_all)[1]
+        ev.sd = sd_all[:n_params]
         # the WKB rows at the run's end are known: its calc less the corrections, with its extras
         calc, jac, e, n_levels = ev.exact(out["params"], out["extra"], {
             "calc": out["calc"] - offset, "jacobian": out["jacobian"], "extra": out["extra"]})
