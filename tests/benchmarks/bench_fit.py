@@ -10,8 +10,15 @@ potential plus seeded Gaussian noise of 0.01 cm-1), from the same start, by
     turning points and for each level's energy, scipy.integrate.quad for the action, levels of
     one J solved in ascending v with the previous level as the lower end of the bracket, and the
     default finite-difference Jacobian of least_squares.
-Prints milliseconds per fit for wkbfit (one thread), the baseline's time, their ratio, and the
-largest difference of the two minima in units of the fitted uncertainties.
+Data: exact-solver levels of the known potential (method="exact"), so that first-order WKB fits are
+biased and the default fit is not. Prints, per case, milliseconds per fit (one thread) of
+  * wkbfit's first-order fit (method="wkb"): the same method as the baseline, so the same minimum
+    (largest difference of the two minima in units of the fitted uncertainties printed beside it):
+    this ratio is the like-for-like speed-up;
+  * wkbfit's default fit (method="corrected": first-order iterations plus exact per-level
+    corrections; exact-solver quality, a different, unbiased minimum): its ratio to the same baseline
+    is printed for information (a baseline at its accuracy would need an exact solver in SciPy);
+and the distance of each minimum from the true parameters, in fitted uncertainties.
 
 Targets (issue 4): <= 10 ms per fit on one core; >= 100x faster than the SciPy baseline, reaching
 the same minimum.  Run: python3 tests/benchmarks/bench_fit.py
@@ -30,6 +37,7 @@ sys.path.insert(0, os.path.join(os.path.dirname(__file__), "..", "..", "pkg"))
 import wkbfit  # noqa: E402
 from scipy_wkb import ScipyWKB  # noqa: E402  (tests/benchmarks/scipy_wkb.py)
 from timing import time_call  # noqa: E402  (tests/benchmarks/timing.py)
+from wkbfit.fitting import FitWarning  # noqa: E402
 
 
 # ------------------------------------------------------------------ the SciPy baseline
@@ -58,7 +66,7 @@ def synthetic(true, mu, vs, Js, sigma, seed):
     exact = np.empty(len(vs))
     for J in sorted(set(Js)):
         idx = [i for i, j in enumerate(Js) if j == J]
-        exact[idx] = wkbfit.levels(true, mu, v=[vs[i] for i in idx], J=J).energy
+        exact[idx] = wkbfit.levels(true, mu, v=[vs[i] for i in idx], J=J, method="exact").energy
     rng = np.random.default_rng(seed)
     return wkbfit.read_levels({"v": vs, "J": Js, "energy": exact + rng.normal(0, sigma, len(vs)),
                                "uncertainty": np.full(len(vs), sigma)})
@@ -68,6 +76,9 @@ def main():
     # quad reports rounding-level trouble next to the square-root end points; the levels are
     # still good to ~1e-10 cm-1 (the minima agree with wkbfit's), so keep the output readable
     warnings.simplefilter("ignore", IntegrationWarning)
+    # the first-order fits warn that their levels are off by more than 0.1 sigma: they are (data from
+    # the exact solver), which the printed distances from the true parameters show
+    warnings.simplefilter("ignore", FitWarning)
     mu_lics = wkbfit.reduced_mass("7Li", "133Cs")
     cases = [
         ("Morse, 3 parameters (v=0..24 at J=0 and J=10)", wkbfit.Morse(De=5875.0, re=3.67, a=0.6),
@@ -79,29 +90,37 @@ def main():
          {"n": True, "m": True}),
     ]
     print("wkbfit fit benchmark (GSL %s); 50 levels each, sigma 0.01 cm-1; one thread" % wkbfit.GSL_VERSION)
-    print("%-55s %10s %8s %12s %9s %14s" % ("case", "wkbfit ms", "iters", "SciPy s", "ratio", "max |diff|/sd"))
+    print("%-55s %10s %12s %9s %12s %9s %14s" % ("case", "wkb ms", "SciPy s", "ratio", "default ms", "ratio",
+                                                  "max |diff|/sd"))
     worst_ms, worst_ratio = 0.0, math.inf
     for title, true, start, mu, vs, Js, vary in cases:
         obs = synthetic(true, mu, vs, Js, 0.01, seed=len(title))
-        result = wkbfit.fit(start, obs, mu, vary=vary)
-        assert result.success, result.message
-        t_ours = time_call(lambda: wkbfit.fit(start, obs, mu, vary=vary))
+        first = wkbfit.fit(start, obs, mu, vary=vary, method="wkb")
+        default = wkbfit.fit(start, obs, mu, vary=vary)
+        assert first.success and default.success, (first.message, default.message)
+        t_first = time_call(lambda: wkbfit.fit(start, obs, mu, vary=vary, method="wkb"))
+        t_default = time_call(lambda: wkbfit.fit(start, obs, mu, vary=vary))
         names = list(start.param_names)
-        vary_idx = [names.index(n) for n in result.var_names]
+        vary_idx = [names.index(n) for n in first.var_names]
         t0 = time.perf_counter()
         x_ref, sd_ref, nfev = scipy_fit(start.model, start._params, obs, mu, vary_idx)
         t_ref = time.perf_counter() - t0
-        diff = max(abs(result.params[n].value - x_ref[j]) / result.params[n].uncertainty
-                   for j, n in enumerate(result.var_names))
-        print("%-55s %10.2f %8d %12.2f %8.0fx %14.2e" % (title, t_ours * 1e3, result.iterations, t_ref,
-                                                       t_ref / t_ours, diff))
-        for j, n in enumerate(result.var_names):
-            print("    %-3s wkbfit %.10g +/- %.3g   SciPy %.10g +/- %.3g" % (
-                n, result.params[n].value, result.params[n].uncertainty, x_ref[j], sd_ref[j]))
-        worst_ms = max(worst_ms, t_ours * 1e3)
-        worst_ratio = min(worst_ratio, t_ref / t_ours)
-    print("slowest wkbfit fit %.2f ms (target <= 10 ms): %s; smallest ratio %.0fx (target >= 100x): %s" % (
-        worst_ms, "met" if worst_ms <= 10 else "NOT met", worst_ratio, "met" if worst_ratio >= 100 else "NOT met"))
+        diff = max(abs(first.params[n].value - x_ref[j]) / first.params[n].uncertainty
+                   for j, n in enumerate(first.var_names))
+        print("%-55s %10.2f %12.2f %8.0fx %12.2f %8.0fx %14.2e" % (title, t_first * 1e3, t_ref, t_ref / t_first,
+                                                                t_default * 1e3, t_ref / t_default, diff))
+        truth = dict(zip(true.param_names, true._params))
+        for j, n in enumerate(first.var_names):
+            print("    %-3s wkb %.10g +/- %.3g (%+.1f sd from true)   default %.10g (%+.1f sd)   SciPy %.10g +/- %.3g"
+                  % (n, first.params[n].value, first.params[n].uncertainty,
+                     (first.params[n].value - truth[n]) / first.params[n].uncertainty, default.params[n].value,
+                     (default.params[n].value - truth[n]) / default.params[n].uncertainty, x_ref[j], sd_ref[j]))
+        worst_ms = max(worst_ms, t_first * 1e3)
+        worst_ratio = min(worst_ratio, t_ref / t_first)
+    print("like for like (first order against the SciPy first-order baseline): slowest fit %.2f ms (target <= 10 "
+          "ms): %s; smallest ratio %.0fx (issue 10 target >= 1000x): %s" % (
+              worst_ms, "met" if worst_ms <= 10 else "NOT met", worst_ratio,
+              "met" if worst_ratio >= 1000 else "NOT met"))
 
 
 if __name__ == "__main__":
