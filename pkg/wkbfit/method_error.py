@@ -60,12 +60,15 @@ def attach(result, rows, out, args=None):
     err_rows, note = row_method_errors(result.method, args, out)
     err = np.full(len(obs), math.nan)
     err[rows] = err_rows
-    _set_check(result, err, obs.uncertainty, note, [level_name(obs, i) for i in range(len(obs))])
+    # (names only of the rows the warning lists: 20 000 strings cost ~10 ms a fit)
+    _set_check(result, err, obs.uncertainty, note, lambda i: level_name(obs, i))
 
 
 def _set_check(result, err, sigma, note, names):
     """The check's attributes on result: method_error, method_error_ratio, method_error_flagged, its
-    note, and method_error_warning naming the flagged rows by `names` (empty when nothing is flagged)."""
+    note, and method_error_warning naming the flagged rows by `names` (a list, or a function of the row
+    index; empty when nothing is flagged)."""
+    name = names if callable(names) else names.__getitem__
     with np.errstate(invalid="ignore", divide="ignore"):
         ratio = err / sigma
     flagged = [int(i) for i in np.nonzero(ratio > FLAG_FRACTION)[0]]
@@ -77,19 +80,19 @@ def _set_check(result, err, sigma, note, names):
     if not flagged:
         return
     worst = int(np.nanargmax(ratio))
-    listed = ", ".join(names[i] for i in flagged[:12]) + (
+    listed = ", ".join(name(i) for i in flagged[:12]) + (
         " and %d more" % (len(flagged) - 12) if len(flagged) > 12 else "")
     many = "" if len(flagged) == 1 else "s"
     if result.method == "wkb":
         result.method_error_warning = (
             "the %s levels of %d data row%s are off by more than %g of their uncertainty (largest %.3g sigma, "
             "%.3g cm-1 at %s): %s. Use a more exact method (method='corrected', the default, or 'exact')"
-            % (result.method, len(flagged), many, FLAG_FRACTION, ratio[worst], err[worst], names[worst], listed))
+            % (result.method, len(flagged), many, FLAG_FRACTION, ratio[worst], err[worst], name(worst), listed))
     else:
         result.method_error_warning = (
             "the %s levels of %d data row%s carry a method error above %g of their uncertainty (largest %.3g sigma "
             "at %s): %s. Use method='exact' for these data" % (
-                result.method, len(flagged), many, FLAG_FRACTION, ratio[worst], names[worst], listed))
+                result.method, len(flagged), many, FLAG_FRACTION, ratio[worst], name(worst), listed))
 
 
 def prediction_method_errors(method, potential, mu, J, energy, E00):

@@ -63,11 +63,9 @@ _KNOWN = _REQUIRED + _OPTIONAL
 
 def distinct_labels(labels):
     """The distinct isotopologue labels in order of first appearance (None for unlabelled rows)."""
-    seen = []
-    for label in labels:
-        if label not in seen:
-            seen.append(label)
-    return seen
+    # (dict keys keep insertion order: one hash per row, not a list scan)
+    return list(dict.fromkeys(labels.tolist() if isinstance(labels, np.ndarray) else labels))
+
 
 class ObservedLevels:
     """Validated measured levels: read-only NumPy arrays of equal length.
