@@ -88,11 +88,17 @@ def quasibound_candidates(datasets, potential, masses):
         if lowest else {}
     for d in datasets:
         if type(d) is ObservedLevels and d.energy_zero in ("minimum", "lowest"):
-            for i in np.nonzero(np.asarray(d.J) > 0)[0]:
+            # (whole columns at once: a Python loop over 20 000 rows cost ~10 ms a fit)
+            base = np.zeros(len(d))
+            if d.energy_zero == "lowest":
+                labels = np.asarray(d.isotopologue, dtype=object)
+                for label in set(labels.tolist()):
+                    base[labels == label] = E00.get((label, 0, 0), math.nan)
+            with np.errstate(invalid="ignore"):
+                above = (np.asarray(d.J) > 0) & (np.asarray(d.energy, dtype=float) + base > D)
+            for i in np.nonzero(above)[0]:
                 label = d.isotopologue[i]
-                base = 0.0 if d.energy_zero == "minimum" else E00.get((label, 0, 0), math.nan)
-                if float(d.energy[i]) + base > D:
-                    placed.append(((label, int(d.v[i]), int(d.J[i])), None, 0.0, float(d.energy[i]) + base))
+                placed.append(((label, int(d.v[i]), int(d.J[i])), None, 0.0, float(d.energy[i]) + base[i]))
         elif isinstance(d, ObservedLines):
             for i in range(len(d)):
                 label = d.isotopologue[i]
