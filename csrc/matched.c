@@ -244,6 +244,28 @@ int wkb_matched_quantum_number(wkb_well *w, double binding, double *v, wkb_error
     return status ? status : quantum_number(w, binding, v, NULL, 0, err);
 }
 
+/* The smallest binding of the threshold number's extrapolation: b_max, or at J = 0 under a -C_n/r^n tail
+   a fraction of the crossover energy E_beta = eps/beta^2, beta = (C_n/eps)^(1/(n-2)) (physics.md 4c
+   (iii)), when that is smaller. Below E_beta the quantum number follows v_th - bbar kappa/pi + ...; at and
+   above it the quadratic extrapolation fails (a C3 tail at mu = 10 u has E_beta ~ 1e-9 cm-1, and 1e-13 of
+   the depth, 0.16 E_beta, put v_th 0.06 low). kappa beta = 1e-2 (n > 3: the extrapolation's error then
+   ~1e-6 and smaller, measured) or 1e-3 (n <= 3, whose expansion carries kappa ln kappa). C_n is read off
+   the curve far out, where its tail term dominates. */
+static double threshold_binding(const wkb_well *w, double b_max)
+{
+    const double n = w->tail_power;
+    if (w->rot != 0 || !(n > 2) || !isfinite(n))
+        return b_max;
+    const double R = 1e3 * w->r_bottom;
+    wkb_pot_value pv;
+    const double Cn = wkb_well_kinetic(w, 0, R, &pv) * pow(R, n); /* (asymptote - V) R^n */
+    if (!(Cn > 0) || !isfinite(Cn))
+        return b_max;
+    const double beta = pow(Cn / w->eps, 1 / (n - 2)), E_beta = w->eps / (beta * beta);
+    const double fraction = n > 3 + 1e-9 ? 1e-4 : 1e-6; /* (kappa beta)^2 */
+    return GSL_MIN(b_max, fraction * E_beta);
+}
+
 int wkb_threshold_number(wkb_well *w, double *v_th, wkb_error *err)
 {
     if (!w->ready)
@@ -260,8 +282,9 @@ int wkb_threshold_number(wkb_well *w, double *v_th, wkb_error *err)
         return WKB_SUCCESS;
     }
     /* v(kappa) = v_th - c1 kappa + c2 kappa^2 + ...: three bindings with kappa in ratio 1:2:3, far below
-       any crossover energy eps/beta^2 of a realistic tail; quadratic extrapolation in kappa */
-    const double depth = w->bound_top - w->bottom, b0 = (w->top - w->bound_top) + 1e-13 * depth;
+       the tail's crossover energy eps/beta^2 (threshold_binding); quadratic extrapolation in kappa */
+    const double depth = w->bound_top - w->bottom;
+    const double b0 = (w->top - w->bound_top) + threshold_binding(w, 1e-13 * depth);
     double vk[3];
     int ts = wkb_end_set_tol(w, w->set.match_milne ? GSL_MAX(w->set.match_ode_tol, ODE_TOL_THRESHOLD) : w->set.match_ode_tol, err);
     if (ts) {
