@@ -244,26 +244,35 @@ int wkb_matched_quantum_number(wkb_well *w, double binding, double *v, wkb_error
     return status ? status : quantum_number(w, binding, v, NULL, 0, err);
 }
 
-/* The smallest binding of the threshold number's extrapolation: b_max, or at J = 0 under a -C_n/r^n tail
-   a fraction of the crossover energy E_beta = eps/beta^2, beta = (C_n/eps)^(1/(n-2)) (physics.md 4c
-   (iii)), when that is smaller. Below E_beta the quantum number follows v_th - bbar kappa/pi + ...; at and
-   above it the quadratic extrapolation fails (a C3 tail at mu = 10 u has E_beta ~ 1e-9 cm-1, and 1e-13 of
-   the depth, 0.16 E_beta, put v_th 0.06 low). kappa beta = 1e-2 (n > 3: the extrapolation's error then
-   ~1e-6 and smaller, measured) or 1e-3 (n <= 3, whose expansion carries kappa ln kappa). C_n is read off
-   the curve far out, where its tail term dominates. */
-static double threshold_binding(const wkb_well *w, double b_max)
+/* At J = 0 under a -C_n/r^n tail: beta = (C_n/eps)^(1/(n-2)) (physics.md 4b), with C_n read off the
+   curve far out, where its tail term dominates (at 1e3 and 2e3 times r_bottom, agreeing to 1e-4, or no answer: 0; a
+   relative error d in C_n moves the single-solve v_th by ~d bbar kappa/(pi (n-2)), ~4e-9 at d = 1e-4). */
+static double tail_beta(const wkb_well *w)
 {
     const double n = w->tail_power;
     if (w->rot != 0 || !(n > 2) || !isfinite(n))
-        return b_max;
-    const double R = 1e3 * w->r_bottom;
+        return 0;
     wkb_pot_value pv;
-    const double Cn = wkb_well_kinetic(w, 0, R, &pv) * pow(R, n); /* (asymptote - V) R^n */
-    if (!(Cn > 0) || !isfinite(Cn))
+    const double R = 1e3 * w->r_bottom;
+    const double C1 = wkb_well_kinetic(w, 0, R, &pv) * pow(R, n); /* (asymptote - V) R^n */
+    const double C2 = wkb_well_kinetic(w, 0, 2 * R, &pv) * pow(2 * R, n);
+    if (!(C2 > 0) || !isfinite(C2) || !(fabs(C2 - C1) <= 1e-4 * C2))
+        return 0;
+    return pow(C2 / w->eps, 1 / (n - 2));
+}
+
+/* The smallest binding of the threshold number's extrapolation: b_max, or a fraction of the tail's
+   crossover energy E_beta = eps/beta^2 (physics.md 4c (iii)) when that is smaller. Below E_beta the
+   quantum number follows v_th - bbar kappa/pi + ...; at and above it the extrapolation fails (a C3 tail
+   at mu = 10 u has E_beta ~ 1e-9 cm-1, and 1e-13 of the depth, 0.16 E_beta, put v_th 0.061 low).
+   kappa beta = 1e-3 (n > 3, the single solve of wkb_threshold_number: its kappa^2 term is then below
+   ~6e-7, measured; smaller kappa only adds the far tail's ODE error) or 1e-3 with the three-point
+   extrapolation (n <= 3, whose expansion carries kappa ln kappa). */
+static double threshold_binding(const wkb_well *w, double b_max, double beta)
+{
+    if (!(beta > 0))
         return b_max;
-    const double beta = pow(Cn / w->eps, 1 / (n - 2)), E_beta = w->eps / (beta * beta);
-    const double fraction = n > 3 + 1e-9 ? 1e-4 : 1e-6; /* (kappa beta)^2 */
-    return GSL_MIN(b_max, fraction * E_beta);
+    return GSL_MIN(b_max, 1e-6 * w->eps / (beta * beta));
 }
 
 int wkb_threshold_number(wkb_well *w, double *v_th, wkb_error *err)
@@ -281,10 +290,14 @@ int wkb_threshold_number(wkb_well *w, double *v_th, wkb_error *err)
         *v_th = NAN;
         return WKB_SUCCESS;
     }
-    /* v(kappa) = v_th - c1 kappa + c2 kappa^2 + ...: three bindings with kappa in ratio 1:2:3, far below
-       the tail's crossover energy eps/beta^2 (threshold_binding); quadratic extrapolation in kappa */
+    /* v(kappa) = v_th - c1 kappa + c2 kappa^2 + ...: otherwise three bindings with kappa in ratio 1:2:3,
+       far below the tail's crossover energy eps/beta^2 (threshold_binding); quadratic extrapolation */
     const double depth = w->bound_top - w->bottom;
-    const double b0 = (w->top - w->bound_top) + threshold_binding(w, 1e-13 * depth);
+    const double beta = tail_beta(w), n = w->tail_power;
+    /* n > 3: one solve, v_th = v(kappa) + bbar kappa/pi, with the universal threshold length
+       bbar = pi beta nu^(2 nu)/(Gamma(nu) Gamma(1 + nu)), nu = 1/(n-2) (physics.md 4b, 4c (ii)) */
+    const int single = beta > 0 && n > 3 + 1e-9 && !(w->top - w->bound_top > 0);
+    const double b0 = single ? 1e-6 * w->eps / (beta * beta) : (w->top - w->bound_top) + threshold_binding(w, 1e-13 * depth, beta);
     double vk[3];
     int ts = wkb_end_set_tol(w, w->set.match_milne ? GSL_MAX(w->set.match_ode_tol, ODE_TOL_THRESHOLD) : w->set.match_ode_tol, err);
     if (ts) {
@@ -292,7 +305,7 @@ int wkb_threshold_number(wkb_well *w, double *v_th, wkb_error *err)
         return ts;
     }
     wkb_end_reuse(w, w->across || w->rot > 0 ? 2 : 1);
-    for (int k = 0; k < 3; k++) {
+    for (int k = 0; k < (single ? 1 : 3); k++) {
         int status = quantum_number(w, b0 * (k + 1) * (k + 1), &vk[k], NULL, w->across, err);
         if (status) {
             wkb_end_reuse(w, 0);
@@ -301,9 +314,15 @@ int wkb_threshold_number(wkb_well *w, double *v_th, wkb_error *err)
         }
     }
     wkb_end_reuse(w, 0);
-    w->v_th = 3 * vk[0] - 3 * vk[1] + vk[2];
-    const double q = 0.5 * (vk[2] - 2 * vk[1] + vk[0]);
-    w->v_th_slope = -(3 * q - (vk[1] - vk[0])) / sqrt(b0);
+    if (single) {
+        const double nu = 1 / (n - 2), bbar = M_PI * beta * pow(nu, 2 * nu) / (tgamma(nu) * tgamma(1 + nu));
+        w->v_th = vk[0] + bbar * sqrt(b0 / w->eps) / M_PI;
+        w->v_th_slope = -bbar / (M_PI * sqrt(w->eps));
+    } else {
+        w->v_th = 3 * vk[0] - 3 * vk[1] + vk[2];
+        const double q = 0.5 * (vk[2] - 2 * vk[1] + vk[0]);
+        w->v_th_slope = -(3 * q - (vk[1] - vk[0])) / sqrt(b0);
+    }
     /* behind a centrifugal barrier the turning points near the asymptote are ordinary ones and v_th stays
        within a few hundredths of vD (measured); an extrapolation that lands more than 1/2 away has failed
        (seen at the J where the last level crosses the asymptote): the first-order count is kept */
