@@ -522,6 +522,9 @@ int wkb_matched_solve(wkb_well *w, size_t v, int across, int second_start, wkb_l
     }
     size_t n_eval = 0;
     int converged = 0;
+    /* measured (bench_matched, mu = 0.5 u): 5 % less C-core time at J = 0, none at J = 10 or in the other
+       wells' last levels behind a barrier, so only there */
+    const int probe = across && w->rot == 0;
     wkb_end_reuse(w, across || w->rot > 0 ? 2 : 1);
     for (int it = 0; it < 60; it++) {
         b = pow(x, 1 / ai);
@@ -545,8 +548,24 @@ int wkb_matched_solve(wkb_well *w, size_t v, int across, int second_start, wkb_l
             lo = x;
         else
             hi = x;
-        if (isfinite(G_prev) && x != x_prev)
+        if (isfinite(G_prev) && x != x_prev) {
             slope = (G - G_prev) / (x - x_prev);
+        } else if (probe && w->set.match_milne) {
+            /* the first step: the slope of G itself, from a probe 1e-7 b away, where every part of both
+               end solutions is reused (linear in the energy change, all else exact), instead of the
+               first-order slope */
+            const double xp = x * (1 + 1e-7 / ai);
+            double vp;
+            int ps = quantum_number(w, pow(xp, 1 / ai), &vp, &n_eval, across, err);
+            if (ps == WKB_SUCCESS) {
+                const double sp = (M_PI * (vp - (double)v) - G) / (xp - x);
+                if (sp < 0)
+                    slope = sp;
+            } else if (ps != WKB_ENOWELL && ps != WKB_ENOLEVEL) {
+                wkb_end_reuse(w, 0);
+                return ps;
+            }
+        }
         double xn = (isfinite(slope) && slope < 0) ? x - G / slope : NAN;
         if (n_nodes && n_nodes < 64) {
             node_x[n_nodes] = x;
