@@ -261,13 +261,13 @@ static double tail_beta(const wkb_well *w)
     return pow(C2 / w->eps, 1 / (n - 2));
 }
 
-/* The smallest binding of the threshold number's extrapolation: b_max, or a fraction of the tail's
-   crossover energy E_beta = eps/beta^2 (physics.md 4c (iii)) when that is smaller. Below E_beta the
-   quantum number follows v_th - bbar kappa/pi + ...; at and above it the extrapolation fails (a C3 tail
-   at mu = 10 u has E_beta ~ 1e-9 cm-1, and 1e-13 of the depth, 0.16 E_beta, put v_th 0.061 low).
-   kappa beta = 1e-3 (n > 3, the single solve of wkb_threshold_number: its kappa^2 term is then below
-   ~6e-7, measured; smaller kappa only adds the far tail's ODE error) or 1e-3 with the three-point
-   extrapolation (n <= 3, whose expansion carries kappa ln kappa). */
+/* The smallest binding of the three-point extrapolation (n <= 3, or C_n unknown): b_max, or 1e-6 of the
+   tail's crossover energy E_beta = eps/beta^2 (kappa beta = 1e-3; physics.md 4c (iii)) when that is
+   smaller. Below E_beta the quantum number follows v_th - bbar kappa/pi + ...; at and above it the
+   extrapolation fails (a C3 tail at mu = 10 u has E_beta ~ 1e-9 cm-1, and 1e-13 of the depth, 0.16 E_beta,
+   put v_th 0.061 low; n = 3 also carries a kappa ln kappa term, which the quadratic leaves: ~4e-5 here,
+   measured against the threshold law). The single solve of n > 3 sits at kappa beta = 1e-3 too: its kappa^2
+   term is then <= ~9e-7 (measured), and smaller kappa only adds the far tail's ODE error. */
 static double threshold_binding(const wkb_well *w, double b_max, double beta)
 {
     if (!(beta > 0))
