@@ -241,6 +241,50 @@ def test_threshold_number_and_the_quadratic_threshold_law():
     assert "v_th = " in t.to_text()
 
 
+@pytest.mark.parametrize("name, n", [("LJ(8,4) C4 tail, mu=10", 4), ("LJ(6,3) C3 tail, mu=10", 3)])
+def test_threshold_number_below_the_crossover_of_slow_tails(name, n):
+    # reference: physics.md 4c (i), v_th = vD - 1/(2(n-2)) to leading order (vD from the first-order action
+    # at the asymptote, an independent quadrature; measured 1.7e-4 off for both tails), and 4c (ii), the
+    # matched quantum number at kappa beta = 1e-4 plus the leading threshold law bbar kappa/pi
+    # (bbar/beta = 1 for n = 4, pi for n = 3, physics.md 4b; measured 4e-5 off for n = 3, where the
+    # kappa ln kappa term is not in the law). A C3 tail at 10 u has its crossover E_beta = eps/beta^2 at
+    # ~1e-9 cm-1: extrapolating from 1e-13 of the depth (0.16 E_beta) put v_th 0.061 low; it now starts
+    # at kappa beta = 1e-3.
+    pot, mu, (De, re, _, m) = CURVES[name]
+    eps = C_U / mu
+    t = wkbfit.levels(pot, mu)
+    assert abs(t.v_th - (t.vD - 1.0 / (2 * (n - 2)))) < 2e-3
+    Cn = 2 * De * re ** m  # LJ(2m, m): De [s^2m - 2 s^m] gives C_m = 2 De re^m
+    beta = (Cn / eps) ** (1.0 / (n - 2))
+    kappa = 1e-4 / beta
+    model, params, curve = pot._core_args()
+    v_near = _core.matched_phases(model, params, curve, mu, 0.0, eps * kappa ** 2)["v"]
+    bbar = beta * (math.pi if n == 3 else 1.0)
+    assert abs(t.v_th - (v_near + bbar * kappa / math.pi)) < 2e-4
+
+
+@pytest.mark.parametrize("name", ["LJ(12,6) C6 tail, mu=20", "LJ(8,4) C4 tail, mu=10", "MLR C6+C8 tail, mu=100"])
+def test_single_solve_threshold_number_against_an_extrapolation(name):
+    # reference: the matched quantum number at three bindings kappa beta = 3e-4 (1, 2, 3), extrapolated
+    # quadratically in kappa to kappa = 0 (physics.md 4c (ii): v_th - v = bbar kappa/pi + O(kappa^2)).
+    # At J = 0 under a C_n tail with n > 3 the table's v_th is one solve at kappa beta = 1e-3 plus the
+    # universal term bbar kappa/pi; its kappa^2 term is the difference (measured 4.9e-8, 8.9e-7 and 1.9e-7;
+    # the ODE error of v_th is ~6e-7 itself). C_n here from the LJ/MLR formula, not from the curve.
+    pot, mu, formula = CURVES[name]
+    eps = C_U / mu
+    if formula:
+        De, re, _, m = formula
+        n, Cn = m, 2 * De * re ** m
+    else:
+        n, Cn = 6, float(pot.params["C6"])
+    beta = (Cn / eps) ** (1.0 / (n - 2))
+    model, params, curve = pot._core_args()
+    vk = [_core.matched_phases(model, params, curve, mu, 0.0, eps * (3e-4 * j / beta) ** 2)["v"] for j in (1, 2, 3)]
+    ref = 3 * vk[0] - 3 * vk[1] + vk[2]
+    t = _core.wkb_levels(model, params, curve, mu, 0.0, None, 1, 1, order=2, ends=1)
+    assert abs(t["v_th"] - ref) < 1.5e-6, (t["v_th"], ref)
+
+
 # ------------------------------------------------------------------ linear turning point (Airy)
 
 def test_linear_turning_point_gives_the_airy_phase():
