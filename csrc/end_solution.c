@@ -158,6 +158,23 @@ static int milne6_rhs(double s, const double y[], double f[], void *params)
     return isfinite(f[1]) && isfinite(f[4]) ? GSL_SUCCESS : GSL_EBADFUNC;
 }
 
+/* An rk8pd driver for sys (its fields set here) at tolerance tol per step, with per-component scales of
+   the absolute error where scale is given; NULL when out of memory. */
+static gsl_odeiv2_driver *new_driver(gsl_odeiv2_system *sys, int (*f)(double, const double[], double[], void *),
+                                     size_t dim, void *params, double tol, const double *scale)
+{
+    sys->function = f;
+    sys->jacobian = NULL;
+    sys->dimension = dim;
+    sys->params = params;
+    gsl_odeiv2_driver *d = scale ? gsl_odeiv2_driver_alloc_scaled_new(sys, gsl_odeiv2_step_rk8pd, 1e-3, tol, 0.0, 1.0,
+                                                                      0.0, scale)
+                                 : gsl_odeiv2_driver_alloc_y_new(sys, gsl_odeiv2_step_rk8pd, 1e-3, tol, 0.0);
+    if (d)
+        gsl_odeiv2_driver_set_nmax(d, 200000);
+    return d;
+}
+
 static int get_state(wkb_well *w, wkb_matched **out, wkb_error *err)
 {
     if (w->matched) {
@@ -167,53 +184,19 @@ static int get_state(wkb_well *w, wkb_matched **out, wkb_error *err)
     wkb_matched *m = calloc(1, sizeof *m);
     if (!m)
         return wkb_fail(err, WKB_ENOMEM, "out of memory for the matched-phase workspace");
-    m->sys.function = pruefer_rhs;
-    m->sys.jacobian = NULL;
-    m->sys.dimension = 1;
-    m->sys.params = &m->ctx;
-    m->drv = gsl_odeiv2_driver_alloc_y_new(&m->sys, gsl_odeiv2_step_rk8pd, 1e-3, w->set.match_ode_tol, 0.0);
-    if (!m->drv) {
-        free(m);
-        return wkb_fail(err, WKB_ENOMEM, "out of memory for the matched-phase ODE driver");
-    }
-    gsl_odeiv2_driver_set_nmax(m->drv, 200000);
-    m->milne_sys.function = milne_rhs;
-    m->milne_sys.jacobian = NULL;
-    m->milne_sys.dimension = 3;
-    m->milne_sys.params = &m->ctx;
-    m->milne_drv = gsl_odeiv2_driver_alloc_y_new(&m->milne_sys, gsl_odeiv2_step_rk8pd, 1e-3, w->set.match_ode_tol, 0.0);
-    if (!m->milne_drv) {
-        gsl_odeiv2_driver_free(m->drv);
-        free(m);
-        return wkb_fail(err, WKB_ENOMEM, "out of memory for the matched-phase ODE driver");
-    }
-    gsl_odeiv2_driver_set_nmax(m->milne_drv, 200000);
-    m->milne6_sys.function = milne6_rhs;
-    m->milne6_sys.jacobian = NULL;
-    m->milne6_sys.dimension = 6;
-    m->milne6_sys.params = &m->ctx;
+    const double tol = w->set.match_ode_tol;
     /* the derivatives need only ~1e-6 relative: 1e3 tolerances (y_E (E - E_k) stays below REUSE_MAX) */
     static const double scale6[6] = {1, 1, 1, 1e3, 1e3, 1e3};
-    m->milne6_drv = gsl_odeiv2_driver_alloc_scaled_new(&m->milne6_sys, gsl_odeiv2_step_rk8pd, 1e-3,
-                                                       w->set.match_ode_tol, 0.0, 1.0, 0.0, scale6);
-    if (!m->milne6_drv) {
-        wkb_matched_free(m);
-        return wkb_fail(err, WKB_ENOMEM, "out of memory for the matched-phase ODE driver");
-    }
-    gsl_odeiv2_driver_set_nmax(m->milne6_drv, 200000);
-    m->pruefer2_sys.function = pruefer2_rhs;
-    m->pruefer2_sys.jacobian = NULL;
-    m->pruefer2_sys.dimension = 2;
-    m->pruefer2_sys.params = &m->ctx;
     /* phi_E is not step-controlled (it grows like the time spent near threshold): it follows phi's steps */
     static const double scale2[2] = {1, 1e12};
-    m->pruefer2_drv = gsl_odeiv2_driver_alloc_scaled_new(&m->pruefer2_sys, gsl_odeiv2_step_rk8pd, 1e-3,
-                                                         w->set.match_ode_tol, 0.0, 1.0, 0.0, scale2);
-    if (!m->pruefer2_drv) {
+    m->drv = new_driver(&m->sys, pruefer_rhs, 1, &m->ctx, tol, NULL);
+    m->milne_drv = new_driver(&m->milne_sys, milne_rhs, 3, &m->ctx, tol, NULL);
+    m->milne6_drv = new_driver(&m->milne6_sys, milne6_rhs, 6, &m->ctx, tol, scale6);
+    m->pruefer2_drv = new_driver(&m->pruefer2_sys, pruefer2_rhs, 2, &m->ctx, tol, scale2);
+    if (!m->drv || !m->milne_drv || !m->milne6_drv || !m->pruefer2_drv) {
         wkb_matched_free(m);
-        return wkb_fail(err, WKB_ENOMEM, "out of memory for the matched-phase ODE driver");
+        return wkb_fail(err, WKB_ENOMEM, "out of memory for the matched-phase ODE drivers");
     }
-    gsl_odeiv2_driver_set_nmax(m->pruefer2_drv, 200000);
     m->tol = w->set.match_ode_tol;
     w->matched = m;
     *out = m;
