@@ -14,17 +14,8 @@ import pytest
 
 import wkbfit
 from wkbfit import _core
+from test_rotational_corrections import CASES  # the same wells: every model and a point-wise curve
 
-R = np.linspace(1.6, 9.0, 60)
-CASES = {
-    "Morse": (wkbfit.Morse(De=9000.0, re=2.5, a=0.9), 20.0),
-    "LJ": (wkbfit.LennardJones(De=4000.0, re=4.0), 20.0),
-    "EMO": (wkbfit.EMO(De=3000.0, re=3.0, betas=[1.0, 0.1]), 30.0),
-    "MLR": (wkbfit.MLR(De=3000.0, re=3.0, C6=2e5, betas=[0.3, 0.1, 0.05]), 30.0),
-    "MLR damped": (wkbfit.MLR(De=5000.0, re=3.2, C6=2e6, C3=3e5, C4=1e5, C8=0.0, betas=[0.2, 0.1], p=5,
-                              damping="douketis", s=-2, rho=0.8), 30.0),
-    "point-wise": (wkbfit.PointwisePotential(R, wkbfit.Morse(De=9000.0, re=2.5, a=0.9)(R)), 20.0),
-}
 _WKB = 0
 
 
