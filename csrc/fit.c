@@ -25,12 +25,7 @@
  * tiny fraction of a standard deviation. GSL's step and gradient tests are used only when
  * J^T J is singular.
  *
- * The data are visited grouped by (reduced mass, J(J+1)), in ascending v, so that each well
- * workspace is set once per evaluation. Each first-order level starts its Newton iteration from
- * its own value at the evaluator's previous evaluation carried linearly to the new parameters,
- * E + sum_k dE/dp_k dp_k (the error is second order in the step, so that late Levenberg-Marquardt
- * iterations need one orbit per level); at the first evaluation, from the same v at the previous
- * J(J+1) of that reduced mass, E' + B_v' (x - x'); else from the neighbouring v (quantize.c).
+ * The levels and their parameter derivatives come from the evaluator (fit_levels.c).
  * Everything is allocated once per fit; nothing is allocated per level or per iteration.
  */
 #include <math.h>
@@ -70,339 +65,6 @@ const char *wkb_fit_stop_name(int stop)
     case WKB_FIT_NO_PROGRESS: return "no_progress";
     default: return "unknown";
     }
-}
-
-/* ------------------------------------------------------------------ the evaluator */
-
-struct wkb_fit_evaluator {
-    size_t n;
-    const wkb_fit_data *data;
-    size_t *order;  /* row indices sorted by (mu, rot, v) */
-    wkb_well *well;
-    const wkb_level_source *source; /* NULL: first-order WKB levels */
-    size_t n_level_calculations;    /* levels computed since the evaluator was made */
-    /* seeds (WKB only), per sorted row s: the level energy, B_v and dE/dp (np each) of the last
-       evaluation that succeeded (seed_*, at seed_p) and of the one running (cur_*); prev_j[s]: the
-       sorted row of the same (mu, model, v) at the previous J(J+1), or -1 */
-    double *seed_E, *seed_dE, *cur_E, *cur_Bv, *cur_dE;
-    double seed_p[WKB_MAX_PARAMS];
-    size_t seed_np; /* parameters per row in seed_dE, cur_dE (allocated at the first evaluation) */
-    int have_seed;
-    long *prev_j;
-};
-
-size_t wkb_fit_evaluator_level_calculations(const wkb_fit_evaluator *ev)
-{
-    return ev ? ev->n_level_calculations : 0;
-}
-
-/* Sort key order: reduced mass, then rotation, then v. */
-static int row_before(const wkb_fit_data *d, size_t a, size_t b)
-{
-    if (d->mu[a] != d->mu[b])
-        return d->mu[a] < d->mu[b];
-    if (d->rot[a] != d->rot[b])
-        return d->rot[a] < d->rot[b];
-    return d->v[a] < d->v[b];
-}
-
-/* Stable bottom-up merge sort of idx[n] (scratch[n] is work space). */
-static void sort_rows(const wkb_fit_data *d, size_t *idx, size_t *scratch, size_t n)
-{
-    for (size_t width = 1; width < n; width *= 2) {
-        for (size_t lo = 0; lo < n; lo += 2 * width) {
-            const size_t mid = GSL_MIN(lo + width, n), hi = GSL_MIN(lo + 2 * width, n);
-            size_t i = lo, j = mid, k = lo;
-            while (i < mid && j < hi)
-                scratch[k++] = row_before(d, idx[j], idx[i]) ? idx[j++] : idx[i++];
-            while (i < mid)
-                scratch[k++] = idx[i++];
-            while (j < hi)
-                scratch[k++] = idx[j++];
-        }
-        memcpy(idx, scratch, n * sizeof *idx);
-    }
-}
-
-static int check_data(const wkb_fit_data *d, wkb_error *err)
-{
-    if (!d || d->n == 0)
-        return wkb_fail(err, WKB_EINVAL, "no levels to fit");
-    if (d->energy_zero < WKB_ZERO_MINIMUM || d->energy_zero > WKB_ZERO_LOWEST)
-        return wkb_fail(err, WKB_EINVAL, "energy zero code %d is invalid (0 minimum, 1 asymptote, 2 lowest)",
-                        d->energy_zero);
-    for (size_t i = 0; i < d->n; i++) {
-        if (d->v[i] < 0)
-            return wkb_fail(err, WKB_EINVAL, "row %zu: v=%d is invalid: quantum numbers are >= 0", i + 1, d->v[i]);
-        if (!(isfinite(d->rot[i]) && d->rot[i] >= 0))
-            return wkb_fail(err, WKB_EINVAL, "row %zu: J(J+1)=%g is invalid", i + 1, d->rot[i]);
-        if (!(isfinite(d->mu[i]) && d->mu[i] > 0))
-            return wkb_fail(err, WKB_EINVAL, "row %zu: reduced mass %g u is invalid", i + 1, d->mu[i]);
-        if (d->energy && !isfinite(d->energy[i]))
-            return wkb_fail(err, WKB_EINVAL, "row %zu: energy %g is not finite", i + 1, d->energy[i]);
-        if (d->offset && !isfinite(d->offset[i]))
-            return wkb_fail(err, WKB_EINVAL, "row %zu: correction %g is not finite", i + 1, d->offset[i]);
-        if (d->sigma && !(isfinite(d->sigma[i]) && d->sigma[i] > 0))
-            return wkb_fail(err, WKB_EINVAL, "row %zu: uncertainty %g is invalid: it must be > 0", i + 1,
-                            d->sigma[i]);
-    }
-    return WKB_SUCCESS;
-}
-
-/* The seed arrays and prev_j (rows sorted by mu, rot, v: the previous row of the same v and model in
-   the same mu block is the last one seen, kept per v in a table); non-zero when out of memory. */
-static int set_prev_j(wkb_fit_evaluator *ev)
-{
-    const wkb_fit_data *d = ev->data;
-    const size_t n = ev->n;
-    int v_max = 0;
-    for (size_t i = 0; i < n; i++)
-        v_max = GSL_MAX(v_max, d->v[i]);
-    long *last = malloc(((size_t)v_max + 1) * sizeof *last);
-    ev->prev_j = malloc(n * sizeof *ev->prev_j);
-    ev->seed_E = malloc(n * sizeof(double));
-    ev->cur_E = malloc(n * sizeof(double));
-    ev->cur_Bv = malloc(n * sizeof(double));
-    if (!last || !ev->prev_j || !ev->seed_E || !ev->cur_E || !ev->cur_Bv) {
-        free(last);
-        return 1;
-    }
-    for (int v = 0; v <= v_max; v++)
-        last[v] = -1;
-    for (size_t s = 0; s < n; s++) {
-        const size_t i = ev->order[s];
-        if (s > 0) {
-            const size_t h = ev->order[s - 1];
-            if (d->mu[h] != d->mu[i])
-                for (int v = 0; v <= v_max; v++)
-                    last[v] = -1;
-        }
-        const long p = last[d->v[i]];
-        const int same_model = p >= 0 && (!d->level_model || d->level_model[ev->order[p]] == d->level_model[i]);
-        ev->prev_j[s] = p >= 0 && same_model && d->rot[ev->order[p]] < d->rot[i] ? p : -1;
-        last[d->v[i]] = (long)s;
-    }
-    free(last);
-    return 0;
-}
-
-wkb_fit_evaluator *wkb_fit_evaluator_alloc(const wkb_fit_data *data, const wkb_settings *levels,
-                                           const wkb_level_source *source, wkb_error *err)
-{
-    wkb_fit_evaluator *ev = NULL;
-    size_t *scratch = NULL;
-    if (check_data(data, err))
-        return NULL;
-    if (!(ev = calloc(1, sizeof *ev)))
-        goto nomem;
-    ev->n = data->n;
-    ev->data = data;
-    ev->source = source;
-    if (!(ev->order = malloc(data->n * sizeof *ev->order)) || !(scratch = malloc(data->n * sizeof *scratch)))
-        goto nomem;
-    if (!source && !(ev->well = wkb_well_alloc(levels))) {
-        wkb_fail(err, WKB_EINVAL, "invalid level settings (or out of memory) for the WKB workspace");
-        goto fail;
-    }
-    for (size_t i = 0; i < data->n; i++)
-        ev->order[i] = i;
-    sort_rows(data, ev->order, scratch, data->n);
-    free(scratch);
-    scratch = NULL;
-    if (!source && set_prev_j(ev))
-        goto nomem;
-    return ev;
-nomem:
-    wkb_fail(err, WKB_ENOMEM, "out of memory for a fit of %zu levels", data->n);
-fail:
-    free(scratch);
-    wkb_fit_evaluator_free(ev);
-    return NULL;
-}
-
-void wkb_fit_evaluator_free(wkb_fit_evaluator *ev)
-{
-    if (!ev)
-        return;
-    wkb_well_free(ev->well);
-    free(ev->order);
-    free(ev->seed_E);
-    free(ev->seed_dE);
-    free(ev->cur_E);
-    free(ev->cur_Bv);
-    free(ev->cur_dE);
-    free(ev->prev_j);
-    free(ev);
-}
-
-/* d(asymptote)/dp_k by central differences (exact for the models, whose asymptote is
-   linear in their parameters); the perturbed potential needs no validity check because
-   only model->asymptote is called. */
-static void asymptote_gradient(const wkb_potential *pot, double *dA)
-{
-    const size_t np = pot->model->n_params;
-    wkb_potential q = *pot;
-    for (size_t k = 0; k < np; k++) {
-        const double p = pot->p[k], h = 1e-4 * (fabs(p) > 0 ? fabs(p) : 1.0);
-        q.p[k] = p + h;
-        const double up = q.model->asymptote(&q);
-        q.p[k] = p - h;
-        const double down = q.model->asymptote(&q);
-        q.p[k] = p;
-        dA[k] = (up - down) / (2 * h);
-    }
-}
-
-/* One level of the current well (WKB) or of the external source; Bv may be NULL. */
-static int level_of(wkb_fit_evaluator *ev, int v, double seed_E, int strong, double *energy, double *Bv,
-                    double *dEdp, wkb_error *err)
-{
-    ev->n_level_calculations++;
-    if (ev->source)
-        return ev->source->level(ev->source->ctx, v, energy, dEdp, err);
-    wkb_level level;
-    int status = wkb_level_at_seeded(ev->well, v, wkb_well_top(ev->well) - seed_E, strong, &level, dEdp, err);
-    if (status)
-        return status;
-    *energy = level.energy;
-    if (Bv)
-        *Bv = level.Bv;
-    return WKB_SUCCESS;
-}
-
-/* The first guess of sorted row s (NAN: none), see the file comment; *strong when it comes from the
-   previous evaluation and the level moved by less than SEED_STRONG_CHANGE cm-1 since (a larger move is
-   left to the neighbours' extrapolation where it exists). Measured in orbits per level and evaluation:
-   1e-3 to 1 cost the same on the 20 000-level Lennard-Jones fit (1.10-1.12; 1.15-1.18 unseeded), 1 the
-   fewest on the 500-level MLR scan fit (1.49-1.63; 2.1-2.3 unseeded, 1.45-1.64 always seeded). */
-#define SEED_STRONG_CHANGE 1.0
-static double seed_of(const wkb_fit_evaluator *ev, const wkb_potential *pot, size_t s, int *strong)
-{
-    const size_t np = pot->model->n_params;
-    *strong = 0;
-    if (ev->source)
-        return NAN;
-    if (ev->have_seed) {
-        double change = 0;
-        for (size_t k = 0; k < np; k++)
-            change += ev->seed_dE[s * np + k] * (pot->p[k] - ev->seed_p[k]);
-        *strong = fabs(change) <= SEED_STRONG_CHANGE;
-        return ev->seed_E[s] + change;
-    }
-    const long p = ev->prev_j[s];
-    if (p >= 0 && isfinite(ev->cur_Bv[p]))
-        return ev->cur_E[p] + ev->cur_Bv[p] * (ev->data->rot[ev->order[s]] - ev->data->rot[ev->order[p]]);
-    return NAN;
-}
-
-static int set_well(wkb_fit_evaluator *ev, const wkb_potential *pot, double mu, double rot, wkb_error *err)
-{
-    if (ev->source)
-        return ev->source->set(ev->source->ctx, pot, mu, rot, err);
-    return wkb_well_set(ev->well, pot, mu, rot, 1, 1, err);
-}
-
-int wkb_fit_evaluate(wkb_fit_evaluator *ev, const wkb_potential *pot, double *calc, double *jac, size_t *bad_row,
-                     wkb_error *err)
-{
-    const wkb_fit_data *d = ev->data;
-    const size_t np = pot->model->n_params;
-    double dA[WKB_MAX_PARAMS], dE[WKB_MAX_PARAMS], ref_dE[WKB_MAX_PARAMS];
-    double ref_E = 0, asym = wkb_potential_asymptote(pot);
-    double cur_mu = NAN, cur_rot = NAN, ref_mu = NAN;
-    const wkb_model *cur_model = NULL;
-    int status;
-
-    if (d->energy_zero == WKB_ZERO_ASYMPTOTE)
-        asymptote_gradient(pot, dA);
-    if (!ev->source && ev->seed_np != np) {
-        /* the seeds' derivatives, np per row (a new model: no seeds) */
-        double *a = realloc(ev->seed_dE, (ev->n * np + 1) * sizeof(double));
-        if (a)
-            ev->seed_dE = a;
-        double *b = realloc(ev->cur_dE, (ev->n * np + 1) * sizeof(double));
-        if (b)
-            ev->cur_dE = b;
-        if (!a || !b)
-            return wkb_fail(err, WKB_ENOMEM, "out of memory for the seeds of %zu levels", ev->n);
-        ev->seed_np = np;
-        ev->have_seed = 0;
-    }
-    for (size_t s = 0; s < ev->n; s++) {
-        const size_t i = ev->order[s];
-        const double mu = d->mu[i], rot = d->rot[i];
-        if (bad_row)
-            *bad_row = i;
-        if (d->energy_zero == WKB_ZERO_LOWEST && mu != ref_mu) {
-            /* the data zero of this isotopologue: its level v=0, J=0 */
-            if ((status = set_well(ev, pot, mu, 0.0, err)))
-                return status;
-            cur_mu = mu, cur_rot = 0.0, cur_model = NULL;
-            if ((status = level_of(ev, 0, NAN, 0, &ref_E, NULL, ref_dE, err)))
-                return status;
-            ref_mu = mu;
-        }
-        /* a level with a model of its own (Born-Oppenheimer correction variant) */
-        const wkb_model *lm = d->level_model ? d->level_model[i] : NULL;
-        if (mu != cur_mu || rot != cur_rot || lm != cur_model) {
-            wkb_potential variant = *pot;
-            if (lm)
-                variant.model = lm;
-            if ((status = set_well(ev, &variant, mu, rot, err)))
-                return status;
-            cur_mu = mu, cur_rot = rot, cur_model = lm;
-        }
-        double E, Bv = NAN;
-        int strong;
-        const double seed = seed_of(ev, pot, s, &strong);
-        if ((status = level_of(ev, d->v[i], seed, strong, &E, &Bv, dE, err)))
-            return status;
-        if (!ev->source) {
-            ev->cur_E[s] = E;
-            ev->cur_Bv[s] = Bv;
-            if (np)
-                memcpy(ev->cur_dE + s * np, dE, np * sizeof *dE);
-        }
-        double *row = jac ? jac + i * np : NULL;
-        switch (d->energy_zero) {
-        case WKB_ZERO_MINIMUM:
-            calc[i] = E;
-            if (row)
-                memcpy(row, dE, np * sizeof *row);
-            break;
-        case WKB_ZERO_ASYMPTOTE:
-            calc[i] = asym - E;
-            if (row)
-                for (size_t k = 0; k < np; k++)
-                    row[k] = dA[k] - dE[k];
-            break;
-        default: /* WKB_ZERO_LOWEST */
-            calc[i] = E - ref_E;
-            if (row)
-                for (size_t k = 0; k < np; k++)
-                    row[k] = dE[k] - ref_dE[k];
-            break;
-        }
-        if (d->offset)
-            calc[i] += d->offset[i]; /* fixed per-row correction (see wkb_fit_data) */
-        if (!isfinite(calc[i]))
-            return wkb_fail(err, WKB_ENUMERIC, "the calculated energy of row %zu is not finite", i + 1);
-        if (row)
-            for (size_t k = 0; k < np; k++)
-                if (!isfinite(row[k]))
-                    return wkb_fail(err, WKB_ENUMERIC, "the derivative of row %zu with respect to %s is not finite",
-                                    i + 1, pot->model->param_names[k]);
-    }
-    if (!ev->source) {
-        /* this evaluation seeds the next one */
-        double *t = ev->seed_E;
-        ev->seed_E = ev->cur_E, ev->cur_E = t;
-        t = ev->seed_dE;
-        ev->seed_dE = ev->cur_dE, ev->cur_dE = t;
-        memcpy(ev->seed_p, pot->p, np * sizeof *pot->p);
-        ev->have_seed = 1;
-    }
-    return WKB_SUCCESS;
 }
 
 /* ------------------------------------------------------------------ transforms */
@@ -507,7 +169,7 @@ static void combine_rows(const fit_context *c, const wkb_potential *pot, double 
     for (size_t i = 0; i < c->n; i++)
         any_asym |= R->coef_asymptote && R->coef_asymptote[i] != 0;
     if (any_asym)
-        asymptote_gradient(pot, dA);
+        wkb_asymptote_gradient(pot, dA);
     for (size_t i = 0; i < c->n; i++) {
         const int a = R->level_a[i], b = R->level_b ? R->level_b[i] : -1, e = R->extra ? R->extra[i] : -1;
         const double ca = R->coef_a[i], cb = R->coef_b ? R->coef_b[i] : 0;
@@ -831,7 +493,7 @@ int wkb_fit_run_rows(const wkb_potential *start, const wkb_fit_data *levels, con
     memset(&c, 0, sizeof c);
     memset(out, 0, sizeof *out);
     out->bad_row = (size_t)-1;
-    if ((status = check_data(levels, err)) || (status = check_rows(rows, levels->n, err)))
+    if ((status = wkb_fit_check_data(levels, err)) || (status = check_rows(rows, levels->n, err)))
         return status;
     if (levels->energy_zero != WKB_ZERO_MINIMUM)
         return wkb_fail(err, WKB_EINVAL, "the levels of a row fit are term values above the minimum");
@@ -1010,7 +672,7 @@ int wkb_fit_run_rows(const wkb_potential *start, const wkb_fit_data *levels, con
     out->n_eval = c.n_eval;
     out->n_infeasible = c.n_infeasible;
     out->n_level_calculations = wkb_fit_evaluator_level_calculations(c.ev);
-    out->n_orbits = c.ev->well ? wkb_well_orbits(c.ev->well) : 0;
+    out->n_orbits = wkb_fit_evaluator_orbits(c.ev);
     if (c.n_infeasible)
         out->last_infeasible = c.last_infeasible;
     status = WKB_SUCCESS;
@@ -1045,7 +707,7 @@ int wkb_fit_run(const wkb_potential *start, const wkb_fit_data *data, const wkb_
     int status;
     memset(out, 0, sizeof *out);
     out->bad_row = (size_t)-1;
-    if ((status = check_data(data, err)))
+    if ((status = wkb_fit_check_data(data, err)))
         return status;
     if (!data->energy || !data->sigma)
         return wkb_fail(err, WKB_EINVAL, "a fit needs observed energies and uncertainties");
@@ -1109,75 +771,5 @@ cleanup:
     free(ca);
     free(cb);
     free(cA);
-    return status;
-}
-
-/* ------------------------------------------------------------------ predictions */
-
-int wkb_fit_levels(const wkb_potential *pot, double mu, double rot, const wkb_settings *settings,
-                   const wkb_level_source *source, size_t capacity, double *energy, double *dEdp,
-                   size_t *count, double *vD, double *dvDdp, wkb_error *err)
-{
-    wkb_well *w = wkb_well_alloc(settings);
-    const size_t np = pot->model->n_params;
-    int status;
-    if (!w)
-        return wkb_fail(err, WKB_ENOMEM, "cannot allocate a WKB workspace");
-    if ((status = wkb_well_set(w, pot, mu, rot, 1, 1, err)) || (status = wkb_level_count(w, count, vD, err)))
-        goto cleanup;
-    if (vD && wkb_well_bound_top(w) < wkb_well_top(w) - 1e-6 * (wkb_well_top(w) - wkb_well_bottom(w)))
-        *vD = NAN; /* an inner wall lower than the asymptote: no action at dissociation */
-    if (source) {
-        /* levels of the other source, counted by asking until one is not bound */
-        if ((status = source->set(source->ctx, pot, mu, rot, err)))
-            goto cleanup;
-        size_t v = 0;
-        for (;; v++) {
-            double E, grad[WKB_MAX_PARAMS];
-            wkb_error e2 = {0};
-            status = source->level(source->ctx, (int)v, &E, grad, &e2);
-            if (status == WKB_ENOLEVEL)
-                break;
-            if (status) {
-                if (err)
-                    *err = e2;
-                goto cleanup;
-            }
-            if (v < capacity) {
-                energy[v] = E;
-                memcpy(dEdp + v * np, grad, np * sizeof *grad);
-            }
-        }
-        *count = v;
-    } else {
-        for (size_t v = 0; v < GSL_MIN(*count, capacity); v++) {
-            wkb_level level;
-            if ((status = wkb_level_at(w, (int)v, &level, dEdp + v * np, err)))
-                goto cleanup;
-            energy[v] = level.energy;
-        }
-    }
-    /* dvD/dp by central differences of the action at the asymptote */
-    for (size_t k = 0; k < np && dvDdp; k++) {
-        wkb_potential q;
-        double vals[2];
-        const double h = 1e-6 * (fabs(pot->p[k]) > 0 ? fabs(pot->p[k]) : 1.0);
-        dvDdp[k] = NAN;
-        int ok = 1;
-        for (int side = 0; side < 2 && ok; side++) {
-            double p[WKB_MAX_PARAMS];
-            memcpy(p, pot->p, np * sizeof *p);
-            p[k] += side ? -h : h;
-            wkb_error e2 = {0};
-            ok = !wkb_potential_init(&q, pot->model, p, pot->curve, &e2) &&
-                 !wkb_well_set(w, &q, mu, rot, 1, 1, &e2) && !wkb_v_dissociation(w, &vals[side], &e2) &&
-                 isfinite(vals[side]);
-        }
-        if (ok)
-            dvDdp[k] = (vals[0] - vals[1]) / (2 * h);
-    }
-    status = WKB_SUCCESS;
-cleanup:
-    wkb_well_free(w);
     return status;
 }

@@ -462,7 +462,7 @@ int wkb_radial_wavefunction(wkb_radial *w, int v, const double **r, const double
 int wkb_radial_source_set(void *ctx, const wkb_potential *pot, double mu, double rot, wkb_error *err);
 int wkb_radial_source_level(void *ctx, int v, double *energy, double *dEdp, wkb_error *err);
 
-/* ---------------------------------------------------------------- fit.c */
+/* ---------------------------------------------------------------- fit.c, fit_levels.c */
 /* Weighted least-squares fits of a potential's parameters to measured levels: GSL's
    trust-region Levenberg-Marquardt (gsl_multifit_nlinear, trs_lm, More scaling, QR) on
    f_i = (calc_i - obs_i)/sigma_i with the analytic Jacobian dE_v/dp_k = <dV/dp_k>
@@ -519,8 +519,13 @@ void wkb_fit_evaluator_free(wkb_fit_evaluator *ev);
 int wkb_fit_evaluate(wkb_fit_evaluator *ev, const wkb_potential *pot, double *calc, double *jac,
                      size_t *bad_row, wkb_error *err);
 
-/* Levels computed by ev so far (each E_v with its dE_v/dp counts once). */
+/* Levels computed by ev so far (each E_v with its dE_v/dp counts once), and first-order orbits. */
 size_t wkb_fit_evaluator_level_calculations(const wkb_fit_evaluator *ev);
+size_t wkb_fit_evaluator_orbits(const wkb_fit_evaluator *ev);
+/* WKB_SUCCESS when the data rows are valid (finite, positive sigma and mu, rot >= 0, v >= 0). */
+int wkb_fit_check_data(const wkb_fit_data *d, wkb_error *err);
+/* d(asymptote)/dp_k of the model, dA[n_params] (central differences). */
+void wkb_asymptote_gradient(const wkb_potential *pot, double *dA);
 
 /* Data rows as linear combinations of levels, for fits to mixed data (term values, line
    positions, binding energies, free term values of levels outside the model):
