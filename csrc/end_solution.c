@@ -333,7 +333,7 @@ int wkb_end_solution(wkb_well *w, double binding, int outer, double r_turn, doub
     }
     if (!reused && w->set.match_milne)
         r_m = milne_end(w, binding, b, r_turn, &n_scan);
-    const int milne = fabs(log(r_m / b)) >= MILNE_MIN_LOG;
+    int milne = fabs(log(r_m / b)) >= MILNE_MIN_LOG;
     if (milne && !reused) {
         /* N = A^2 A_r/A = -W_r/(2 W^2) with W = q2 the second-order wavenumber (its derivative by a
            central difference): the closer the start is to the smooth amplitude, the smaller the
@@ -351,11 +351,12 @@ int wkb_end_solution(wkb_well *w, double binding, int outer, double r_turn, doub
         gsl_odeiv2_driver *drv = m->reuse ? m->milne6_drv : m->milne_drv;
         gsl_odeiv2_driver_reset_hstart(drv, 1e-2 * GSL_SIGN(log(r_m) - s));
         int gs = gsl_odeiv2_driver_apply(drv, &s, log(r_m), ym);
-        if (gs != GSL_SUCCESS || !isfinite(ym[0]) || !isfinite(ym[1]) || !isfinite(ym[2]))
-            return wkb_fail(err, WKB_ENUMERIC,
-                            "the %s-end phase-amplitude solution failed at binding energy %.6g cm-1 (GSL status %d)",
-                            outer ? "outer" : "inner", binding, gs);
-        if (m->reuse) {
+        if (gs != GSL_SUCCESS || !isfinite(ym[0]) || !isfinite(ym[1]) || !isfinite(ym[2])) {
+            /* the stretch failed (seen on an inner wall that reaches the asymptote only at r -> 0, where
+               its amplitude overflows): the Pruefer solution alone, as without the stretch */
+            milne = 0;
+            kp_->ok = 0;
+        } else if (m->reuse) {
             kp_->ok = 1;
             kp_->binding = binding;
             kp_->b = b;

@@ -359,6 +359,24 @@ def test_second_order_sweep_failure_falls_back_to_single_levels():
     assert np.all(np.abs(second.energy[:40] - exact[:40]) <= np.abs(first.energy[:40] - exact[:40]) + 1e-9)
 
 
+def test_matched_rule_keeps_a_well_whose_inner_wall_reaches_the_asymptote_at_r0():
+    # the same Poeschl-Teller well: its inner wall rises to the asymptote only as r -> 0, where the
+    # matched rule's phase-amplitude stretch overflowed next to threshold and the whole table fell back
+    # to fixed-phase second order (4e-5 cm-1 off); the rule now integrates that end in Pruefer form.
+    # Closed form of the levels as in the test above (Landau & Lifshitz, section 23, from memory)
+    De, re, a, mu = 11573.12461, 35.6992375, 1.654306293, 8.019535068584847
+    pot = wkbfit.PoschlTeller(De=De, re=re, a=a)
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", RuntimeWarning)
+        t = levels(pot, mu)
+    eps = HBAR2_OVER_2U / mu
+    s = -0.5 + math.sqrt(0.25 + De / (eps * a * a))
+    exact = De - eps * a * a * (s - np.arange(len(t))) ** 2
+    assert len(t) == 45 and "second-order" not in set(t.rule)
+    assert np.max(np.abs(t.energy - exact)) < 1e-6
+    assert np.all(np.abs(t.energy - exact) <= 2 * t.method_error)
+
+
 def test_second_order_failure_leaves_out_only_the_failing_levels():
     # a point-wise Morse curve (fuzz case): the second-order rule does not converge for v = 35, 36 and 38
     # near dissociation; those are left out with a warning and a note naming them, the others are kept
