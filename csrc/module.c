@@ -1143,6 +1143,19 @@ static int fit_source(int method, wkb_radial **radial, wkb_level_source *source,
     return 0;
 }
 
+static PyObject *py_set_fit_threads(PyObject *self, PyObject *args)
+{
+    int n;
+    if (!PyArg_ParseTuple(args, "i", &n))
+        return NULL;
+    if (n < 0 || n > WKB_FIT_MAX_THREADS) {
+        PyErr_Format(PyExc_ValueError, "fit threads %d is invalid: 0 (the default) or 1 to %d", n,
+                     WKB_FIT_MAX_THREADS);
+        return NULL;
+    }
+    return PyLong_FromLong(wkb_set_fit_threads(n));
+}
+
 static PyObject *py_fit_evaluate(PyObject *self, PyObject *args, PyObject *kwds)
 {
     static char *kwlist[] = {"model", "params", "curve", "v", "rot", "mu", "energy_zero", "method", "energy_tol",
@@ -1309,6 +1322,7 @@ static PyObject *py_fit_run(PyObject *self, PyObject *args, PyObject *kwds)
         dict_steal(result, "n_eval", PyLong_FromSize_t(out.n_eval)) < 0 ||
         dict_steal(result, "n_infeasible", PyLong_FromSize_t(out.n_infeasible)) < 0 ||
         dict_steal(result, "n_orbits", PyLong_FromSize_t(out.n_orbits)) < 0 ||
+        dict_steal(result, "n_threads", PyLong_FromSize_t(out.n_threads)) < 0 ||
         dict_steal(result, "stop", PyUnicode_FromString(wkb_fit_stop_name(out.stop))) < 0 ||
         dict_steal(result, "test", PyLong_FromLong(out.test)) < 0 ||
         dict_steal(result, "insensitive", insensitive_list(out.insensitive, np)) < 0 ||
@@ -1701,6 +1715,7 @@ static PyObject *py_fit_run_rows(PyObject *self, PyObject *args, PyObject *kwds)
         dict_steal(result, "n_infeasible", PyLong_FromSize_t(out.n_infeasible)) < 0 ||
         dict_steal(result, "n_level_calculations", PyLong_FromSize_t(out.n_level_calculations)) < 0 ||
         dict_steal(result, "n_orbits", PyLong_FromSize_t(out.n_orbits)) < 0 ||
+        dict_steal(result, "n_threads", PyLong_FromSize_t(out.n_threads)) < 0 ||
         dict_steal(result, "stop", PyUnicode_FromString(wkb_fit_stop_name(out.stop))) < 0 ||
         dict_steal(result, "test", PyLong_FromLong(out.test)) < 0 ||
         dict_steal(result, "insensitive", insensitive_list(out.insensitive, np)) < 0 ||
@@ -2199,6 +2214,9 @@ static PyMethodDef core_methods[] = {
      "barrier_integrals(model, params, curve, mu, rot, energy) -> theta, dtheta_dE, action, ..., curvature_integral at each E"},
     {"resonances", (PyCFunction)(void (*)(void))py_resonances, METH_VARARGS | METH_KEYWORDS,
      "resonances(model, params, curve, mu, J, energy, width, phase_step=, r_match=) -> dict of columns"},
+    {"set_fit_threads", py_set_fit_threads, METH_VARARGS,
+     "set_fit_threads(n) -> previous: threads of the fits' level evaluations from now on (0: the default, the\n"
+     "online CPUs for 2000 rows or more, else 1; never more than the (mu, J) groups), process-wide"},
     {"fit_evaluate", (PyCFunction)(void (*)(void))py_fit_evaluate, METH_VARARGS | METH_KEYWORDS,
      "fit_evaluate(model, params, curve, v, rot, mu, energy_zero=0, method=0, energy_tol=0) -> (calc, "
      "jacobian[n, n_params]):\n"

@@ -506,9 +506,19 @@ typedef struct {
     int (*level)(void *ctx, int v, double *energy, double *dEdp, wkb_error *err);
 } wkb_level_source;
 
-/* Model evaluation workspace: the data grouped by (mu, J(J+1)) in ascending v, and one
-   WKB well workspace (source NULL) so that nothing is allocated per evaluation. */
+/* Model evaluation workspace: the data grouped by (mu, J(J+1)) in ascending v, cut into one
+   part per thread, each with its own WKB well workspace (source NULL) so that nothing is allocated
+   per evaluation. An external source runs on one thread (one workspace). */
 typedef struct wkb_fit_evaluator wkb_fit_evaluator;
+#define WKB_FIT_MAX_THREADS 16
+/* Below this many rows the default is one thread: measured break-even (bench_fit_threads.py) */
+#define WKB_FIT_THREAD_MIN_ROWS 2000
+/* Threads of the evaluators allocated from now on: n >= 1, or 0 for the default (the online CPUs,
+   one below WKB_FIT_THREAD_MIN_ROWS rows; never more than the (mu, J(J+1)) groups or
+   WKB_FIT_MAX_THREADS). Returns the previous setting. Process-wide; set it before starting fits. */
+int wkb_set_fit_threads(int n);
+/* The threads (parts) ev evaluates on. */
+size_t wkb_fit_evaluator_threads(const wkb_fit_evaluator *ev);
 wkb_fit_evaluator *wkb_fit_evaluator_alloc(const wkb_fit_data *data, const wkb_settings *levels,
                                            const wkb_level_source *source, wkb_error *err);
 void wkb_fit_evaluator_free(wkb_fit_evaluator *ev);
@@ -577,6 +587,7 @@ typedef struct {
     wkb_error last_infeasible;     /* why the last infeasible trial point was rejected */
     size_t n_level_calculations;   /* levels computed during the fit (all evaluations) */
     size_t n_orbits;               /* first-order WKB orbits evaluated during the fit (0 for another source) */
+    size_t n_threads;              /* threads the levels were evaluated on (wkb_set_fit_threads) */
 } wkb_fit_outcome;
 /* ||d f/d ln p_k|| below this fraction of the largest: the levels do not depend on p_k */
 #define WKB_FIT_INSENSITIVE 1e-9
