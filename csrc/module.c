@@ -2216,7 +2216,7 @@ static PyMethodDef core_methods[] = {
      "resonances(model, params, curve, mu, J, energy, width, phase_step=, r_match=) -> dict of columns"},
     {"set_fit_threads", py_set_fit_threads, METH_VARARGS,
      "set_fit_threads(n) -> previous: threads of the fits' level evaluations from now on (0: the default, the\n"
-     "online CPUs for 2000 rows or more, else 1; never more than the (mu, J) groups), process-wide"},
+     "online CPUs for 500 rows or more, else 1; never more than the (mu, J) groups), process-wide"},
     {"fit_evaluate", (PyCFunction)(void (*)(void))py_fit_evaluate, METH_VARARGS | METH_KEYWORDS,
      "fit_evaluate(model, params, curve, v, rot, mu, energy_zero=0, method=0, energy_tol=0) -> (calc, "
      "jacobian[n, n_params]):\n"

@@ -511,8 +511,10 @@ typedef struct {
    per evaluation. An external source runs on one thread (one workspace). */
 typedef struct wkb_fit_evaluator wkb_fit_evaluator;
 #define WKB_FIT_MAX_THREADS 16
-/* Below this many rows the default is one thread: measured break-even (bench_fit_threads.py) */
-#define WKB_FIT_THREAD_MIN_ROWS 2000
+/* Below this many rows the default is one thread: whole first-order fits of two isotopologues on 2 cores
+   (tests/benchmarks/bench_fit_threads.py, t(2)/t(1)) measured 1.11 at 30 rows, 0.98 at 100, 0.93 at 500;
+   500 leaves a margin for a shared machine */
+#define WKB_FIT_THREAD_MIN_ROWS 500
 /* Threads of the evaluators allocated from now on: n >= 1, or 0 for the default (the online CPUs,
    one below WKB_FIT_THREAD_MIN_ROWS rows; never more than the (mu, J(J+1)) groups or
    WKB_FIT_MAX_THREADS). Returns the previous setting. Process-wide; set it before starting fits. */
