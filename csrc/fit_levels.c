@@ -195,11 +195,8 @@ static int starts_group(const wkb_fit_evaluator *ev, size_t s)
 static size_t threads_wanted(const wkb_fit_evaluator *ev)
 {
     long n = fit_threads_setting;
-    if (n == 0) {
-        n = sysconf(_SC_NPROCESSORS_ONLN);
-        if (ev->n < WKB_FIT_THREAD_MIN_ROWS)
-            n = 1;
-    }
+    if (n == 0) /* (small evaluators, made per call by the corrected fits, skip the CPU count) */
+        n = ev->n < WKB_FIT_THREAD_MIN_ROWS ? 1 : sysconf(_SC_NPROCESSORS_ONLN);
     if (ev->source || n < 1)
         n = 1;
     return (size_t)GSL_MIN(n, WKB_FIT_MAX_THREADS);
