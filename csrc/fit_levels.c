@@ -13,6 +13,7 @@
  * workspace; a cut falls between reduced masses where that balances the parts, else between two
  * J(J+1) groups (the neighbour-J seed across such a cut is dropped: the first J of the later part
  * starts unseeded at the first evaluation, so its levels agree to the Newton tolerance, not bitwise).
+ * An external level source (the exact solver) gets one context per thread when it can be cloned.
  * wkb_fit_levels: every bound level of one well with its gradient, and vD with its gradient (the
  * predictions of a fitted potential).
  */
@@ -34,6 +35,8 @@ typedef struct {
     wkb_fit_evaluator *ev;
     size_t lo, hi;
     wkb_well *well;
+    wkb_level_source source; /* an external source: the evaluator's, or a clone of it (owned) */
+    int owns_source;
     size_t n_level_calculations; /* levels computed by this part since the evaluator was made */
     /* the evaluation running */
     const wkb_potential *pot;
@@ -195,9 +198,15 @@ static int starts_group(const wkb_fit_evaluator *ev, size_t s)
 static size_t threads_wanted(const wkb_fit_evaluator *ev)
 {
     long n = fit_threads_setting;
-    if (n == 0) /* (small evaluators, made per call by the corrected fits, skip the CPU count) */
-        n = ev->n < WKB_FIT_THREAD_MIN_ROWS ? 1 : sysconf(_SC_NPROCESSORS_ONLN);
-    if (ev->source || n < 1)
+    const size_t min_rows = ev->source ? WKB_FIT_THREAD_MIN_ROWS_SOURCE : WKB_FIT_THREAD_MIN_ROWS;
+    if (n == 0) {
+        /* (small evaluators and single groups, made per call by the corrected fits, skip the CPU count) */
+        size_t s = 1;
+        while (s < ev->n && !starts_group(ev, s))
+            s++;
+        n = ev->n < min_rows || s == ev->n ? 1 : sysconf(_SC_NPROCESSORS_ONLN);
+    }
+    if ((ev->source && !(ev->source->clone && ev->source->release)) || n < 1)
         n = 1;
     return (size_t)GSL_MIN(n, WKB_FIT_MAX_THREADS);
 }
@@ -260,10 +269,19 @@ wkb_fit_evaluator *wkb_fit_evaluator_alloc(const wkb_fit_data *data, const wkb_s
         goto nomem;
     split_rows(ev, threads_wanted(ev));
     for (size_t k = 0; k < ev->n_parts; k++) {
-        ev->part[k].ev = ev;
-        if (!source && !(ev->part[k].well = wkb_well_alloc(levels))) {
+        fit_part *part = &ev->part[k];
+        part->ev = ev;
+        if (!source && !(part->well = wkb_well_alloc(levels))) {
             wkb_fail(err, WKB_EINVAL, "invalid level settings (or out of memory) for the WKB workspace");
             goto fail;
+        }
+        if (source) {
+            part->source = *source;
+            if (k > 0) {
+                if (!(part->source.ctx = source->clone(source->clone_arg)))
+                    goto nomem;
+                part->owns_source = 1;
+            }
         }
     }
     return ev;
@@ -279,8 +297,11 @@ void wkb_fit_evaluator_free(wkb_fit_evaluator *ev)
 {
     if (!ev)
         return;
-    for (size_t k = 0; k < ev->n_parts; k++)
+    for (size_t k = 0; k < ev->n_parts; k++) {
         wkb_well_free(ev->part[k].well);
+        if (ev->part[k].owns_source)
+            ev->part[k].source.release(ev->part[k].source.ctx);
+    }
     free(ev->order);
     free(ev->seed_E);
     free(ev->seed_dE);
@@ -316,7 +337,7 @@ static int level_of(fit_part *part, int v, double seed_E, int strong, double *en
     const wkb_fit_evaluator *ev = part->ev;
     part->n_level_calculations++;
     if (ev->source)
-        return ev->source->level(ev->source->ctx, v, energy, dEdp, err);
+        return part->source.level(part->source.ctx, v, energy, dEdp, err);
     wkb_level level;
     int status = wkb_level_at_seeded(part->well, v, wkb_well_top(part->well) - seed_E, strong, &level, dEdp, err);
     if (status)
@@ -356,7 +377,7 @@ static int set_well(fit_part *part, const wkb_potential *pot, double mu, double 
 {
     const wkb_fit_evaluator *ev = part->ev;
     if (ev->source)
-        return ev->source->set(ev->source->ctx, pot, mu, rot, err);
+        return part->source.set(part->source.ctx, pot, mu, rot, err);
     return wkb_well_set(part->well, pot, mu, rot, 1, 1, err);
 }
 

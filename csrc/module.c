@@ -1120,6 +1120,11 @@ static int parse_fit_arrays(PyObject *v_obj, PyObject *rot_obj, PyObject *mu_obj
     return 0;
 }
 
+/* The exact source's contexts for the evaluator's extra threads (clone_arg: the wkb_radial_settings, or
+   NULL for the default) */
+static void *radial_clone(void *settings) { return wkb_radial_alloc(settings); }
+static void radial_release(void *ctx) { wkb_radial_free(ctx); }
+
 /* The level source of a fit method: 0 first-order WKB (source NULL), 1 exact (a radial
    workspace, returned in *radial for the caller to free). Returns 0 or -1 with an exception. */
 static int fit_source(int method, wkb_radial **radial, wkb_level_source *source, const wkb_level_source **out)
@@ -1136,9 +1141,8 @@ static int fit_source(int method, wkb_radial **radial, wkb_level_source *source,
         PyErr_NoMemory();
         return -1;
     }
-    source->ctx = *radial;
-    source->set = wkb_radial_source_set;
-    source->level = wkb_radial_source_level;
+    *source = (wkb_level_source){*radial, wkb_radial_source_set, wkb_radial_source_level, radial_clone, NULL,
+                                 radial_release};
     *out = source;
     return 0;
 }
@@ -1164,6 +1168,7 @@ static PyObject *py_fit_evaluate(PyObject *self, PyObject *args, PyObject *kwds)
     PyObject *params_obj, *curve_obj, *v_obj, *rot_obj, *mu_obj, *result = NULL;
     int energy_zero = WKB_ZERO_MINIMUM, method = 0, status;
     double energy_tol = 0; /* exact levels' target accuracy, cm-1 (0: the solver's default) */
+    wkb_radial_settings rs;
     wkb_radial *radial = NULL;
     wkb_level_source source_store;
     const wkb_level_source *source = NULL;
@@ -1189,7 +1194,7 @@ static PyObject *py_fit_evaluate(PyObject *self, PyObject *args, PyObject *kwds)
         goto cleanup;
     if (radial && energy_tol > 0) {
         /* the same source with a looser (or tighter) accuracy target */
-        wkb_radial_settings rs = wkb_radial_default_settings();
+        rs = wkb_radial_default_settings();
         rs.energy_tol = energy_tol;
         wkb_radial_free(radial);
         if (!(radial = wkb_radial_alloc(&rs))) {
@@ -1197,6 +1202,7 @@ static PyObject *py_fit_evaluate(PyObject *self, PyObject *args, PyObject *kwds)
             goto cleanup;
         }
         source_store.ctx = radial;
+        source_store.clone_arg = &rs; /* (clones are made at the evaluator's allocation, below) */
     }
     npy_intp dims[2] = {(npy_intp)data.n, (npy_intp)pot.model->n_params};
     if (!(calc = new_vector(dims[0])) || !(jac = (PyArrayObject *)PyArray_ZEROS(2, dims, NPY_DOUBLE, 0)))

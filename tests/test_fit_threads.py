@@ -6,7 +6,8 @@ the levels and derivatives must be bit-identical; a cut inside one reduced mass 
 isotopologues) starts the first J of the later part unseeded, so its levels must agree within the
 issue's stated accuracy, 1e-8 cm-1, and with the unseeded levels of each row evaluated alone (the
 independent reference of test_fit_seeding), derivatives within 1e-5 of each column's largest; fitted
-parameters within 1e-3 of their standard deviation.
+parameters within 1e-3 of their standard deviation. Exact-solver levels (one cloned solver workspace
+per thread, no seeds) must be bit-identical for any cut.
 """
 import numpy as np
 import pytest
@@ -96,7 +97,8 @@ def test_the_default_is_one_thread_for_small_fits(threads):
     assert out["n_threads"] == 14
 
 
-def test_the_first_failing_row_is_reported_as_on_one_thread(threads):
+@pytest.mark.parametrize("method", [_WKB, 1])
+def test_the_first_failing_row_is_reported_as_on_one_thread(method, threads):
     # a v above the last bound level in the second reduced mass's rows (the second thread's part)
     pot, mu0 = CASES["LJ"]
     model, p, curve = pot._core_args()
@@ -108,7 +110,7 @@ def test_the_first_failing_row_is_reported_as_on_one_thread(threads):
     for n in (1, 2):
         threads(n)
         with pytest.raises(ValueError) as info:
-            _core.fit_evaluate(model, p, curve, v, rot, mu, 0, _WKB)
+            _core.fit_evaluate(model, p, curve, v, rot, mu, 0, method)
         messages.append(str(info.value))
     assert messages[0] == messages[1] and "row %d" % (bad + 1) in messages[0]
 
@@ -117,3 +119,37 @@ def test_the_first_failing_row_is_reported_as_on_one_thread(threads):
 def test_invalid_thread_counts_are_refused(bad):
     with pytest.raises(ValueError, match="fit threads %d is invalid" % bad):
         _core.set_fit_threads(bad)
+
+
+@pytest.mark.parametrize("name", list(CASES))
+def test_exact_levels_on_threads_are_bit_identical(name, threads):
+    # the exact solver (one cloned workspace per thread, no seeds): any cut between groups gives the same bits
+    pot, mu0 = CASES[name]
+    model, p, curve = pot._core_args()
+    v, rot, mu = rows(pot, mu0)
+    sel = np.ones(len(v), bool) if name != "MLR damped" else rot <= 30  # (its exact levels are slow)
+    v, rot, mu = v[sel], rot[sel], mu[sel]
+    out = []
+    for n in (1, 2, 3):
+        threads(n)
+        out.append(_core.fit_evaluate(model, p, curve, v, rot, mu, 2, 1, 1e-8))
+    for calc, jac in out[1:]:
+        assert np.array_equal(calc, out[0][0]) and np.array_equal(jac, out[0][1])
+
+
+def test_exact_fit_on_threads(threads):
+    pot, mu0 = CASES["LJ"]
+    model, p, curve = pot._core_args()
+    v, rot, mu = rows(pot, mu0)
+    energy, _ = _core.fit_evaluate(model, p, curve, v, rot, mu, 0, 1)
+    start = np.array(p, dtype=float)
+    start[0] *= 1.005
+    vary = np.array([1, 1, 0, 0], dtype=np.intc)
+    outs = []
+    for n in (1, 2):
+        threads(n)
+        outs.append(_core.fit_run(model=model, params=start, curve=curve, v=v, rot=rot, mu=mu, energy=energy,
+                                  sigma=np.full(len(v), 0.01), energy_zero=0, vary=vary, lower=np.full(4, -np.inf),
+                                  upper=np.full(4, np.inf), max_iterations=50, method=1, offset=None))
+    assert [o["n_threads"] for o in outs] == [1, 2]
+    assert np.array_equal(outs[0]["params"], outs[1]["params"]) and outs[0]["stop"] == "converged"
