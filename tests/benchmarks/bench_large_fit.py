@@ -8,7 +8,11 @@ split by reduced mass, csrc/fit_levels.c; ratio in the same run), its iterations
 the core time per level and evaluation. Target (issue 10): <= 150 ms. Beside it, in the same process,
 the same fit with every refresh row solved exactly (interpolate_in_j=False: the refreshes before the
 corrections were interpolated in J(J+1)) and the ratio.
-Run: python3 tests/benchmarks/bench_large_fit.py
+Threads: numpy's OpenBLAS keeps its worker threads spinning (~0.1 s) after each threaded call (the fit's
+tall-skinny products, least squares and QR in Python), and they take the core the evaluator's second
+thread needs: measured on 2 cores, ratio 0.91 as is, 0.65 with OPENBLAS_NUM_THREADS=1 (the line printed
+says which).
+Run: python3 tests/benchmarks/bench_large_fit.py  (or OPENBLAS_NUM_THREADS=1 python3 ...)
 """
 import os
 import sys
@@ -73,8 +77,8 @@ def main():
     finally:
         wkbfit._core.set_fit_threads(previous)
     t = time_call(lambda: wkbfit.fit(start, obs, masses), min_time=2.0)
-    print("one thread: %.1f ms; the default threads (%d online CPUs): %.1f ms; ratio %.2f"
-          % (t_one * 1e3, os.cpu_count(), t * 1e3, t / t_one))
+    print("one thread: %.1f ms; the default threads (%d online CPUs): %.1f ms; ratio %.2f (OPENBLAS_NUM_THREADS=%s)"
+          % (t_one * 1e3, os.cpu_count(), t * 1e3, t / t_one, os.environ.get("OPENBLAS_NUM_THREADS", "unset")))
     print("%d-level fit, 2 parameters (De, re), %d isotopologues, J = 0..99: %.1f ms (target <= 150 ms: %s)"
           % (len(obs), len(masses), t * 1e3, "met" if t <= 0.150 else "NOT met"))
     print("  %s; %d iterations, %d model evaluations: %.2f us per level and evaluation; %.3f orbits per level and "
