@@ -64,13 +64,13 @@ struct wkb_fit_evaluator {
     long *prev_j;
 };
 
-static int fit_threads_setting = 0; /* wkb_set_fit_threads */
+/* wkb_set_fit_threads: the core's one process-wide setting (a thread budget, like a pool's size),
+   read once per evaluator; atomic so that a fit running on another thread reads it race-free */
+static int fit_threads_setting = 0;
 
 int wkb_set_fit_threads(int n)
 {
-    const int previous = fit_threads_setting;
-    fit_threads_setting = n < 0 ? 0 : GSL_MIN(n, WKB_FIT_MAX_THREADS);
-    return previous;
+    return __atomic_exchange_n(&fit_threads_setting, n < 0 ? 0 : GSL_MIN(n, WKB_FIT_MAX_THREADS), __ATOMIC_SEQ_CST);
 }
 
 size_t wkb_fit_evaluator_level_calculations(const wkb_fit_evaluator *ev)
@@ -197,7 +197,7 @@ static int starts_group(const wkb_fit_evaluator *ev, size_t s)
    (one workspace) and below WKB_FIT_THREAD_MIN_ROWS rows, where starting threads costs more than it saves. */
 static size_t threads_wanted(const wkb_fit_evaluator *ev)
 {
-    long n = fit_threads_setting;
+    long n = __atomic_load_n(&fit_threads_setting, __ATOMIC_SEQ_CST);
     const size_t min_rows = ev->source ? WKB_FIT_THREAD_MIN_ROWS_SOURCE : WKB_FIT_THREAD_MIN_ROWS;
     if (n == 0) {
         /* (small evaluators and single groups, made per call by the corrected fits, skip the CPU count) */
