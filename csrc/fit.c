@@ -673,6 +673,7 @@ int wkb_fit_run_rows(const wkb_potential *start, const wkb_fit_data *levels, con
     out->n_infeasible = c.n_infeasible;
     out->n_level_calculations = wkb_fit_evaluator_level_calculations(c.ev);
     out->n_orbits = wkb_fit_evaluator_orbits(c.ev);
+    out->n_threads = wkb_fit_evaluator_threads(c.ev);
     if (c.n_infeasible)
         out->last_infeasible = c.last_infeasible;
     status = WKB_SUCCESS;

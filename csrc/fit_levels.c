@@ -9,11 +9,19 @@
  * iterations need one orbit per level); at the first evaluation, from the same v at the previous
  * J(J+1) of that reduced mass, E' + B_v' (x - x'); else from the neighbouring v (quantize.c).
  * Everything is allocated with the evaluator; nothing is allocated per level or per evaluation.
+ * Threads: the sorted rows are cut into contiguous parts, one per thread, each with its own well
+ * workspace; a cut falls between reduced masses where that balances the parts, else between two
+ * J(J+1) groups (the neighbour-J seed across such a cut is dropped: the first J of the later part
+ * starts unseeded at the first evaluation, so its levels agree to the Newton tolerance, not bitwise).
+ * An external level source (the exact solver) gets one context per thread when it can be cloned.
  * wkb_fit_levels: every bound level of one well with its gradient, and vD with its gradient (the
  * predictions of a fitted potential).
  */
+#define _POSIX_C_SOURCE 200809L /* sysconf(_SC_NPROCESSORS_ONLN) */
 #include <math.h>
+#include <pthread.h>
 #include <stdlib.h>
+#include <unistd.h>
 #include <string.h>
 
 #include <gsl/gsl_math.h>
@@ -22,13 +30,30 @@
 
 /* ------------------------------------------------------------------ the evaluator */
 
+/* One thread's share of an evaluation: the sorted rows [lo, hi), its own well, its outcome. */
+typedef struct {
+    wkb_fit_evaluator *ev;
+    size_t lo, hi;
+    wkb_well *well;
+    wkb_level_source source; /* an external source: the evaluator's, or a clone of it (owned) */
+    int owns_source;
+    size_t n_level_calculations; /* levels computed by this part since the evaluator was made */
+    /* the evaluation running */
+    const wkb_potential *pot;
+    const double *dA;
+    double *calc, *jac;
+    size_t bad_row;
+    int status;
+    wkb_error err;
+} fit_part;
+
 struct wkb_fit_evaluator {
     size_t n;
     const wkb_fit_data *data;
     size_t *order;  /* row indices sorted by (mu, rot, v) */
-    wkb_well *well;
     const wkb_level_source *source; /* NULL: first-order WKB levels */
-    size_t n_level_calculations;    /* levels computed since the evaluator was made */
+    fit_part part[WKB_FIT_MAX_THREADS];
+    size_t n_parts;
     /* seeds (WKB only), per sorted row s: the level energy, B_v and dE/dp (np each) of the last
        evaluation that succeeded (seed_*, at seed_p) and of the one running (cur_*); prev_j[s]: the
        sorted row of the same (mu, model, v) at the previous J(J+1), or -1 */
@@ -39,14 +64,34 @@ struct wkb_fit_evaluator {
     long *prev_j;
 };
 
+/* wkb_set_fit_threads: the core's one process-wide setting (a thread budget, like a pool's size),
+   read once per evaluator; atomic so that a fit running on another thread reads it race-free */
+static int fit_threads_setting = 0;
+
+int wkb_set_fit_threads(int n)
+{
+    return __atomic_exchange_n(&fit_threads_setting, n < 0 ? 0 : GSL_MIN(n, WKB_FIT_MAX_THREADS), __ATOMIC_SEQ_CST);
+}
+
 size_t wkb_fit_evaluator_level_calculations(const wkb_fit_evaluator *ev)
 {
-    return ev ? ev->n_level_calculations : 0;
+    size_t n = 0;
+    for (size_t k = 0; ev && k < ev->n_parts; k++)
+        n += ev->part[k].n_level_calculations;
+    return n;
 }
 
 size_t wkb_fit_evaluator_orbits(const wkb_fit_evaluator *ev)
 {
-    return ev && ev->well ? wkb_well_orbits(ev->well) : 0;
+    size_t n = 0;
+    for (size_t k = 0; ev && k < ev->n_parts; k++)
+        n += ev->part[k].well ? wkb_well_orbits(ev->part[k].well) : 0;
+    return n;
+}
+
+size_t wkb_fit_evaluator_threads(const wkb_fit_evaluator *ev)
+{
+    return ev ? ev->n_parts : 0;
 }
 
 /* Sort key order: reduced mass, then rotation, then v. */
@@ -139,6 +184,68 @@ static int set_prev_j(wkb_fit_evaluator *ev)
     return 0;
 }
 
+/* Sorted row s (> 0) begins another (mu, J(J+1), model) group. */
+static int starts_group(const wkb_fit_evaluator *ev, size_t s)
+{
+    const wkb_fit_data *d = ev->data;
+    const size_t a = ev->order[s - 1], b = ev->order[s];
+    return d->mu[a] != d->mu[b] || d->rot[a] != d->rot[b] ||
+           (d->level_model && d->level_model[a] != d->level_model[b]);
+}
+
+/* The threads wanted: the setting, or the online CPUs when it is 0; one for an external level source
+   (one workspace) and below WKB_FIT_THREAD_MIN_ROWS rows, where starting threads costs more than it saves. */
+static size_t threads_wanted(const wkb_fit_evaluator *ev)
+{
+    long n = __atomic_load_n(&fit_threads_setting, __ATOMIC_SEQ_CST);
+    const size_t min_rows = ev->source ? WKB_FIT_THREAD_MIN_ROWS_SOURCE : WKB_FIT_THREAD_MIN_ROWS;
+    if (n == 0) {
+        /* (small evaluators and single groups, made per call by the corrected fits, skip the CPU count) */
+        size_t s = 1;
+        while (s < ev->n && !starts_group(ev, s))
+            s++;
+        n = ev->n < min_rows || s == ev->n ? 1 : sysconf(_SC_NPROCESSORS_ONLN);
+    }
+    if ((ev->source && !(ev->source->clone && ev->source->release)) || n < 1)
+        n = 1;
+    return (size_t)GSL_MIN(n, WKB_FIT_MAX_THREADS);
+}
+
+/* Cuts the sorted rows into at most `want` contiguous parts near k n / want: at the nearest change of
+   reduced mass when it is within n / (4 want) of that, else at the nearest change of (mu, J(J+1)) group
+   (the cut rows' neighbour-J seeds are dropped). Fewer parts when the groups run out. */
+static void split_rows(wkb_fit_evaluator *ev, size_t want)
+{
+    const size_t n = ev->n;
+    size_t parts = 1, lo = 0;
+    ev->part[0].lo = 0;
+    for (size_t k = 1; k < want; k++) {
+        const double ideal = (double)k * n / want, slack = n / (4.0 * want);
+        long best_mu = -1, best_group = -1;
+        for (size_t s = lo + 1; s < n; s++) {
+            if (!starts_group(ev, s))
+                continue;
+            if (best_group < 0 || fabs(s - ideal) < fabs(best_group - ideal))
+                best_group = (long)s;
+            if (ev->data->mu[ev->order[s]] != ev->data->mu[ev->order[s - 1]] &&
+                (best_mu < 0 || fabs(s - ideal) < fabs(best_mu - ideal)))
+                best_mu = (long)s;
+        }
+        const long cut = best_mu >= 0 && fabs(best_mu - ideal) <= slack ? best_mu : best_group;
+        if (cut < 0)
+            break;
+        ev->part[parts - 1].hi = (size_t)cut;
+        ev->part[parts].lo = lo = (size_t)cut;
+        parts++;
+    }
+    ev->part[parts - 1].hi = n;
+    ev->n_parts = parts;
+    for (size_t k = 0; ev->prev_j && k < parts; k++)
+        for (size_t s = ev->part[k].lo; s < ev->part[k].hi; s++)
+            if (ev->prev_j[s] >= 0 && (size_t)ev->prev_j[s] < ev->part[k].lo)
+                ev->prev_j[s] = -1; /* a seed from another thread's rows */
+}
+
 wkb_fit_evaluator *wkb_fit_evaluator_alloc(const wkb_fit_data *data, const wkb_settings *levels,
                                            const wkb_level_source *source, wkb_error *err)
 {
@@ -153,10 +260,6 @@ wkb_fit_evaluator *wkb_fit_evaluator_alloc(const wkb_fit_data *data, const wkb_s
     ev->source = source;
     if (!(ev->order = malloc(data->n * sizeof *ev->order)) || !(scratch = malloc(data->n * sizeof *scratch)))
         goto nomem;
-    if (!source && !(ev->well = wkb_well_alloc(levels))) {
-        wkb_fail(err, WKB_EINVAL, "invalid level settings (or out of memory) for the WKB workspace");
-        goto fail;
-    }
     for (size_t i = 0; i < data->n; i++)
         ev->order[i] = i;
     sort_rows(data, ev->order, scratch, data->n);
@@ -164,6 +267,23 @@ wkb_fit_evaluator *wkb_fit_evaluator_alloc(const wkb_fit_data *data, const wkb_s
     scratch = NULL;
     if (!source && set_prev_j(ev))
         goto nomem;
+    split_rows(ev, threads_wanted(ev));
+    for (size_t k = 0; k < ev->n_parts; k++) {
+        fit_part *part = &ev->part[k];
+        part->ev = ev;
+        if (!source && !(part->well = wkb_well_alloc(levels))) {
+            wkb_fail(err, WKB_EINVAL, "invalid level settings (or out of memory) for the WKB workspace");
+            goto fail;
+        }
+        if (source) {
+            part->source = *source;
+            if (k > 0) {
+                if (!(part->source.ctx = source->clone(source->clone_arg)))
+                    goto nomem;
+                part->owns_source = 1;
+            }
+        }
+    }
     return ev;
 nomem:
     wkb_fail(err, WKB_ENOMEM, "out of memory for a fit of %zu levels", data->n);
@@ -177,7 +297,11 @@ void wkb_fit_evaluator_free(wkb_fit_evaluator *ev)
 {
     if (!ev)
         return;
-    wkb_well_free(ev->well);
+    for (size_t k = 0; k < ev->n_parts; k++) {
+        wkb_well_free(ev->part[k].well);
+        if (ev->part[k].owns_source)
+            ev->part[k].source.release(ev->part[k].source.ctx);
+    }
     free(ev->order);
     free(ev->seed_E);
     free(ev->seed_dE);
@@ -207,14 +331,15 @@ void wkb_asymptote_gradient(const wkb_potential *pot, double *dA)
 }
 
 /* One level of the current well (WKB) or of the external source; Bv may be NULL. */
-static int level_of(wkb_fit_evaluator *ev, int v, double seed_E, int strong, double *energy, double *Bv,
-                    double *dEdp, wkb_error *err)
+static int level_of(fit_part *part, int v, double seed_E, int strong, double *energy, double *Bv, double *dEdp,
+                    wkb_error *err)
 {
-    ev->n_level_calculations++;
+    const wkb_fit_evaluator *ev = part->ev;
+    part->n_level_calculations++;
     if (ev->source)
-        return ev->source->level(ev->source->ctx, v, energy, dEdp, err);
+        return part->source.level(part->source.ctx, v, energy, dEdp, err);
     wkb_level level;
-    int status = wkb_level_at_seeded(ev->well, v, wkb_well_top(ev->well) - seed_E, strong, &level, dEdp, err);
+    int status = wkb_level_at_seeded(part->well, v, wkb_well_top(part->well) - seed_E, strong, &level, dEdp, err);
     if (status)
         return status;
     *energy = level.energy;
@@ -248,51 +373,42 @@ static double seed_of(const wkb_fit_evaluator *ev, const wkb_potential *pot, siz
     return NAN;
 }
 
-static int set_well(wkb_fit_evaluator *ev, const wkb_potential *pot, double mu, double rot, wkb_error *err)
+static int set_well(fit_part *part, const wkb_potential *pot, double mu, double rot, wkb_error *err)
 {
+    const wkb_fit_evaluator *ev = part->ev;
     if (ev->source)
-        return ev->source->set(ev->source->ctx, pot, mu, rot, err);
-    return wkb_well_set(ev->well, pot, mu, rot, 1, 1, err);
+        return part->source.set(part->source.ctx, pot, mu, rot, err);
+    return wkb_well_set(part->well, pot, mu, rot, 1, 1, err);
 }
 
-int wkb_fit_evaluate(wkb_fit_evaluator *ev, const wkb_potential *pot, double *calc, double *jac, size_t *bad_row,
-                     wkb_error *err)
+/* The rows of one part (a thread's body: pure C, no shared writes outside its rows); the outcome in
+   part->status, part->err, part->bad_row (the row being computed when a level failed). */
+static void *evaluate_part(void *arg)
 {
+    fit_part *part = arg;
+    wkb_fit_evaluator *ev = part->ev;
     const wkb_fit_data *d = ev->data;
+    const wkb_potential *pot = part->pot;
     const size_t np = pot->model->n_params;
-    double dA[WKB_MAX_PARAMS], dE[WKB_MAX_PARAMS], ref_dE[WKB_MAX_PARAMS];
-    double ref_E = 0, asym = wkb_potential_asymptote(pot);
+    const double asym = wkb_potential_asymptote(pot), *dA = part->dA;
+    double dE[WKB_MAX_PARAMS], ref_dE[WKB_MAX_PARAMS], ref_E = 0;
     double cur_mu = NAN, cur_rot = NAN, ref_mu = NAN;
     const wkb_model *cur_model = NULL;
-    int status;
+    double *calc = part->calc, *jac = part->jac;
+    wkb_error *err = &part->err;
+    int status = WKB_SUCCESS;
 
-    if (d->energy_zero == WKB_ZERO_ASYMPTOTE)
-        wkb_asymptote_gradient(pot, dA);
-    if (!ev->source && ev->seed_np != np) {
-        /* the seeds' derivatives, np per row (a new model: no seeds) */
-        double *a = realloc(ev->seed_dE, (ev->n * np + 1) * sizeof(double));
-        if (a)
-            ev->seed_dE = a;
-        double *b = realloc(ev->cur_dE, (ev->n * np + 1) * sizeof(double));
-        if (b)
-            ev->cur_dE = b;
-        if (!a || !b)
-            return wkb_fail(err, WKB_ENOMEM, "out of memory for the seeds of %zu levels", ev->n);
-        ev->seed_np = np;
-        ev->have_seed = 0;
-    }
-    for (size_t s = 0; s < ev->n; s++) {
+    for (size_t s = part->lo; s < part->hi; s++) {
         const size_t i = ev->order[s];
         const double mu = d->mu[i], rot = d->rot[i];
-        if (bad_row)
-            *bad_row = i;
+        part->bad_row = i;
         if (d->energy_zero == WKB_ZERO_LOWEST && mu != ref_mu) {
             /* the data zero of this isotopologue: its level v=0, J=0 */
-            if ((status = set_well(ev, pot, mu, 0.0, err)))
-                return status;
+            if ((status = set_well(part, pot, mu, 0.0, err)))
+                break;
             cur_mu = mu, cur_rot = 0.0, cur_model = NULL;
-            if ((status = level_of(ev, 0, NAN, 0, &ref_E, NULL, ref_dE, err)))
-                return status;
+            if ((status = level_of(part, 0, NAN, 0, &ref_E, NULL, ref_dE, err)))
+                break;
             ref_mu = mu;
         }
         /* a level with a model of its own (Born-Oppenheimer correction variant) */
@@ -301,15 +417,15 @@ int wkb_fit_evaluate(wkb_fit_evaluator *ev, const wkb_potential *pot, double *ca
             wkb_potential variant = *pot;
             if (lm)
                 variant.model = lm;
-            if ((status = set_well(ev, &variant, mu, rot, err)))
-                return status;
+            if ((status = set_well(part, &variant, mu, rot, err)))
+                break;
             cur_mu = mu, cur_rot = rot, cur_model = lm;
         }
         double E, Bv = NAN;
         int strong;
         const double seed = seed_of(ev, pot, s, &strong);
-        if ((status = level_of(ev, d->v[i], seed, strong, &E, &Bv, dE, err)))
-            return status;
+        if ((status = level_of(part, d->v[i], seed, strong, &E, &Bv, dE, err)))
+            break;
         if (!ev->source) {
             ev->cur_E[s] = E;
             ev->cur_Bv[s] = Bv;
@@ -338,13 +454,73 @@ int wkb_fit_evaluate(wkb_fit_evaluator *ev, const wkb_potential *pot, double *ca
         }
         if (d->offset)
             calc[i] += d->offset[i]; /* fixed per-row correction (see wkb_fit_data) */
-        if (!isfinite(calc[i]))
-            return wkb_fail(err, WKB_ENUMERIC, "the calculated energy of row %zu is not finite", i + 1);
-        if (row)
-            for (size_t k = 0; k < np; k++)
-                if (!isfinite(row[k]))
-                    return wkb_fail(err, WKB_ENUMERIC, "the derivative of row %zu with respect to %s is not finite",
-                                    i + 1, pot->model->param_names[k]);
+        if (!isfinite(calc[i])) {
+            status = wkb_fail(err, WKB_ENUMERIC, "the calculated energy of row %zu is not finite", i + 1);
+            break;
+        }
+        for (size_t k = 0; row && k < np; k++)
+            if (!isfinite(row[k])) {
+                status = wkb_fail(err, WKB_ENUMERIC, "the derivative of row %zu with respect to %s is not finite",
+                                  i + 1, pot->model->param_names[k]);
+                break;
+            }
+        if (status)
+            break;
+    }
+    part->status = status;
+    return NULL;
+}
+
+int wkb_fit_evaluate(wkb_fit_evaluator *ev, const wkb_potential *pot, double *calc, double *jac, size_t *bad_row,
+                     wkb_error *err)
+{
+    const wkb_fit_data *d = ev->data;
+    const size_t np = pot->model->n_params;
+    double dA[WKB_MAX_PARAMS] = {0};
+    pthread_t thread[WKB_FIT_MAX_THREADS];
+    int started[WKB_FIT_MAX_THREADS] = {0};
+
+    if (d->energy_zero == WKB_ZERO_ASYMPTOTE)
+        wkb_asymptote_gradient(pot, dA);
+    if (!ev->source && ev->seed_np != np) {
+        /* the seeds' derivatives, np per row (a new model: no seeds) */
+        double *a = realloc(ev->seed_dE, (ev->n * np + 1) * sizeof(double));
+        if (a)
+            ev->seed_dE = a;
+        double *b = realloc(ev->cur_dE, (ev->n * np + 1) * sizeof(double));
+        if (b)
+            ev->cur_dE = b;
+        if (!a || !b)
+            return wkb_fail(err, WKB_ENOMEM, "out of memory for the seeds of %zu levels", ev->n);
+        ev->seed_np = np;
+        ev->have_seed = 0;
+    }
+    for (size_t k = 0; k < ev->n_parts; k++) {
+        fit_part *part = &ev->part[k];
+        part->pot = pot, part->dA = dA, part->calc = calc, part->jac = jac;
+        part->status = WKB_SUCCESS, part->bad_row = 0;
+        part->err = (wkb_error){0};
+    }
+    /* parts 1.. on their own threads (a part whose thread cannot start runs here, after part 0) */
+    for (size_t k = 1; k < ev->n_parts; k++)
+        started[k] = !pthread_create(&thread[k], NULL, evaluate_part, &ev->part[k]);
+    evaluate_part(&ev->part[0]);
+    for (size_t k = 1; k < ev->n_parts; k++) {
+        if (started[k])
+            pthread_join(thread[k], NULL);
+        else
+            evaluate_part(&ev->part[k]);
+    }
+    /* the first failure in the sorted order, as a single thread would have met it */
+    for (size_t k = 0; k < ev->n_parts; k++) {
+        const fit_part *part = &ev->part[k];
+        if (part->status) {
+            if (bad_row)
+                *bad_row = part->bad_row;
+            if (err)
+                *err = part->err;
+            return part->status;
+        }
     }
     if (!ev->source) {
         /* this evaluation seeds the next one */

@@ -1120,6 +1120,11 @@ static int parse_fit_arrays(PyObject *v_obj, PyObject *rot_obj, PyObject *mu_obj
     return 0;
 }
 
+/* The exact source's contexts for the evaluator's extra threads (clone_arg: the wkb_radial_settings, or
+   NULL for the default) */
+static void *radial_clone(void *settings) { return wkb_radial_alloc(settings); }
+static void radial_release(void *ctx) { wkb_radial_free(ctx); }
+
 /* The level source of a fit method: 0 first-order WKB (source NULL), 1 exact (a radial
    workspace, returned in *radial for the caller to free). Returns 0 or -1 with an exception. */
 static int fit_source(int method, wkb_radial **radial, wkb_level_source *source, const wkb_level_source **out)
@@ -1136,11 +1141,23 @@ static int fit_source(int method, wkb_radial **radial, wkb_level_source *source,
         PyErr_NoMemory();
         return -1;
     }
-    source->ctx = *radial;
-    source->set = wkb_radial_source_set;
-    source->level = wkb_radial_source_level;
+    *source = (wkb_level_source){*radial, wkb_radial_source_set, wkb_radial_source_level, radial_clone, NULL,
+                                 radial_release};
     *out = source;
     return 0;
+}
+
+static PyObject *py_set_fit_threads(PyObject *self, PyObject *args)
+{
+    int n;
+    if (!PyArg_ParseTuple(args, "i", &n))
+        return NULL;
+    if (n < 0 || n > WKB_FIT_MAX_THREADS) {
+        PyErr_Format(PyExc_ValueError, "fit threads %d is invalid: 0 (the default) or 1 to %d", n,
+                     WKB_FIT_MAX_THREADS);
+        return NULL;
+    }
+    return PyLong_FromLong(wkb_set_fit_threads(n));
 }
 
 static PyObject *py_fit_evaluate(PyObject *self, PyObject *args, PyObject *kwds)
@@ -1151,6 +1168,7 @@ static PyObject *py_fit_evaluate(PyObject *self, PyObject *args, PyObject *kwds)
     PyObject *params_obj, *curve_obj, *v_obj, *rot_obj, *mu_obj, *result = NULL;
     int energy_zero = WKB_ZERO_MINIMUM, method = 0, status;
     double energy_tol = 0; /* exact levels' target accuracy, cm-1 (0: the solver's default) */
+    wkb_radial_settings rs;
     wkb_radial *radial = NULL;
     wkb_level_source source_store;
     const wkb_level_source *source = NULL;
@@ -1176,7 +1194,7 @@ static PyObject *py_fit_evaluate(PyObject *self, PyObject *args, PyObject *kwds)
         goto cleanup;
     if (radial && energy_tol > 0) {
         /* the same source with a looser (or tighter) accuracy target */
-        wkb_radial_settings rs = wkb_radial_default_settings();
+        rs = wkb_radial_default_settings();
         rs.energy_tol = energy_tol;
         wkb_radial_free(radial);
         if (!(radial = wkb_radial_alloc(&rs))) {
@@ -1184,6 +1202,7 @@ static PyObject *py_fit_evaluate(PyObject *self, PyObject *args, PyObject *kwds)
             goto cleanup;
         }
         source_store.ctx = radial;
+        source_store.clone_arg = &rs; /* (clones are made at the evaluator's allocation, below) */
     }
     npy_intp dims[2] = {(npy_intp)data.n, (npy_intp)pot.model->n_params};
     if (!(calc = new_vector(dims[0])) || !(jac = (PyArrayObject *)PyArray_ZEROS(2, dims, NPY_DOUBLE, 0)))
@@ -1309,6 +1328,7 @@ static PyObject *py_fit_run(PyObject *self, PyObject *args, PyObject *kwds)
         dict_steal(result, "n_eval", PyLong_FromSize_t(out.n_eval)) < 0 ||
         dict_steal(result, "n_infeasible", PyLong_FromSize_t(out.n_infeasible)) < 0 ||
         dict_steal(result, "n_orbits", PyLong_FromSize_t(out.n_orbits)) < 0 ||
+        dict_steal(result, "n_threads", PyLong_FromSize_t(out.n_threads)) < 0 ||
         dict_steal(result, "stop", PyUnicode_FromString(wkb_fit_stop_name(out.stop))) < 0 ||
         dict_steal(result, "test", PyLong_FromLong(out.test)) < 0 ||
         dict_steal(result, "insensitive", insensitive_list(out.insensitive, np)) < 0 ||
@@ -1701,6 +1721,7 @@ static PyObject *py_fit_run_rows(PyObject *self, PyObject *args, PyObject *kwds)
         dict_steal(result, "n_infeasible", PyLong_FromSize_t(out.n_infeasible)) < 0 ||
         dict_steal(result, "n_level_calculations", PyLong_FromSize_t(out.n_level_calculations)) < 0 ||
         dict_steal(result, "n_orbits", PyLong_FromSize_t(out.n_orbits)) < 0 ||
+        dict_steal(result, "n_threads", PyLong_FromSize_t(out.n_threads)) < 0 ||
         dict_steal(result, "stop", PyUnicode_FromString(wkb_fit_stop_name(out.stop))) < 0 ||
         dict_steal(result, "test", PyLong_FromLong(out.test)) < 0 ||
         dict_steal(result, "insensitive", insensitive_list(out.insensitive, np)) < 0 ||
@@ -2199,6 +2220,9 @@ static PyMethodDef core_methods[] = {
      "barrier_integrals(model, params, curve, mu, rot, energy) -> theta, dtheta_dE, action, ..., curvature_integral at each E"},
     {"resonances", (PyCFunction)(void (*)(void))py_resonances, METH_VARARGS | METH_KEYWORDS,
      "resonances(model, params, curve, mu, J, energy, width, phase_step=, r_match=) -> dict of columns"},
+    {"set_fit_threads", py_set_fit_threads, METH_VARARGS,
+     "set_fit_threads(n) -> previous: threads of the fits' level evaluations from now on (0: the default, the\n"
+     "online CPUs for 500 rows or more, else 1; never more than the (mu, J) groups), process-wide"},
     {"fit_evaluate", (PyCFunction)(void (*)(void))py_fit_evaluate, METH_VARARGS | METH_KEYWORDS,
      "fit_evaluate(model, params, curve, v, rot, mu, energy_zero=0, method=0, energy_tol=0) -> (calc, "
      "jacobian[n, n_params]):\n"

@@ -504,11 +504,32 @@ typedef struct {
     void *ctx;
     int (*set)(void *ctx, const wkb_potential *pot, double mu, double rot, wkb_error *err);
     int (*level)(void *ctx, int v, double *energy, double *dEdp, wkb_error *err);
+    /* optional (NULL: the source runs on one thread): a new context of the same kind, made from
+       clone_arg when an evaluator is allocated (one per extra thread; NULL when out of memory), and
+       its release */
+    void *(*clone)(void *clone_arg);
+    void *clone_arg;
+    void (*release)(void *ctx);
 } wkb_level_source;
 
-/* Model evaluation workspace: the data grouped by (mu, J(J+1)) in ascending v, and one
-   WKB well workspace (source NULL) so that nothing is allocated per evaluation. */
+/* Model evaluation workspace: the data grouped by (mu, J(J+1)) in ascending v, cut into one
+   part per thread, each with its own WKB well workspace (source NULL) so that nothing is allocated
+   per evaluation. An external source runs on one thread unless it can be cloned (one context
+   per thread). */
 typedef struct wkb_fit_evaluator wkb_fit_evaluator;
+#define WKB_FIT_MAX_THREADS 16
+/* Below this many rows the default is one thread: whole first-order fits of two isotopologues on 2 cores
+   (tests/benchmarks/bench_fit_threads.py, t(2)/t(1)) measured 1.11 at 30 rows, 0.98 at 100, 0.93 at 500;
+   500 leaves a margin for a shared machine */
+#define WKB_FIT_THREAD_MIN_ROWS 500
+/* ... and for a cloneable external source (exact levels, ~0.1-1 ms each) */
+#define WKB_FIT_THREAD_MIN_ROWS_SOURCE 20
+/* Threads of the evaluators allocated from now on: n >= 1, or 0 for the default (the online CPUs,
+   one below WKB_FIT_THREAD_MIN_ROWS rows; never more than the (mu, J(J+1)) groups or
+   WKB_FIT_MAX_THREADS). Returns the previous setting. Process-wide; set it before starting fits. */
+int wkb_set_fit_threads(int n);
+/* The threads (parts) ev evaluates on. */
+size_t wkb_fit_evaluator_threads(const wkb_fit_evaluator *ev);
 wkb_fit_evaluator *wkb_fit_evaluator_alloc(const wkb_fit_data *data, const wkb_settings *levels,
                                            const wkb_level_source *source, wkb_error *err);
 void wkb_fit_evaluator_free(wkb_fit_evaluator *ev);
@@ -577,6 +598,7 @@ typedef struct {
     wkb_error last_infeasible;     /* why the last infeasible trial point was rejected */
     size_t n_level_calculations;   /* levels computed during the fit (all evaluations) */
     size_t n_orbits;               /* first-order WKB orbits evaluated during the fit (0 for another source) */
+    size_t n_threads;              /* threads the levels were evaluated on (wkb_set_fit_threads) */
 } wkb_fit_outcome;
 /* ||d f/d ln p_k|| below this fraction of the largest: the levels do not depend on p_k */
 #define WKB_FIT_INSENSITIVE 1e-9

@@ -3,11 +3,16 @@
 A Lennard-Jones (12,6) well (De = 4000 cm-1, re = 4 A; invented) and eight invented
 isotopologues of reduced masses 20..27 u; the data are exact-solver levels measured from each
 isotopologue's v=0, J=0 plus 0.01 cm-1 of seeded noise. wkbfit.fit varies De and re from a start
-1 % off. Prints the wall time of the fit (one thread), its iterations and model evaluations and
+1 % off. Prints the wall time of the fit on one thread and on the default threads (the level evaluation
+split by reduced mass, csrc/fit_levels.c; ratio in the same run), its iterations and model evaluations and
 the core time per level and evaluation. Target (issue 10): <= 150 ms. Beside it, in the same process,
 the same fit with every refresh row solved exactly (interpolate_in_j=False: the refreshes before the
 corrections were interpolated in J(J+1)) and the ratio.
-Run: python3 tests/benchmarks/bench_large_fit.py
+Threads: numpy's OpenBLAS keeps its worker threads spinning (~0.1 s) after each threaded call (the fit's
+tall-skinny products, least squares and QR in Python), and they take the core the evaluator's second
+thread needs: measured on 2 cores, ratio 0.91 as is, 0.65 with OPENBLAS_NUM_THREADS=1 (the line printed
+says which).
+Run: python3 tests/benchmarks/bench_large_fit.py  (or OPENBLAS_NUM_THREADS=1 python3 ...)
 """
 import os
 import sys
@@ -66,7 +71,14 @@ def main():
     obs, masses = data()
     start = wkbfit.LennardJones(De=4040.0, re=4.04)
     res, orbits = count_orbits(lambda: wkbfit.fit(start, obs, masses))
+    previous = wkbfit._core.set_fit_threads(1)
+    try:
+        t_one = time_call(lambda: wkbfit.fit(start, obs, masses), min_time=2.0)
+    finally:
+        wkbfit._core.set_fit_threads(previous)
     t = time_call(lambda: wkbfit.fit(start, obs, masses), min_time=2.0)
+    print("one thread: %.1f ms; the default threads (%d online CPUs): %.1f ms; ratio %.2f (OPENBLAS_NUM_THREADS=%s)"
+          % (t_one * 1e3, os.cpu_count(), t * 1e3, t / t_one, os.environ.get("OPENBLAS_NUM_THREADS", "unset")))
     print("%d-level fit, 2 parameters (De, re), %d isotopologues, J = 0..99: %.1f ms (target <= 150 ms: %s)"
           % (len(obs), len(masses), t * 1e3, "met" if t <= 0.150 else "NOT met"))
     print("  %s; %d iterations, %d model evaluations: %.2f us per level and evaluation; %.3f orbits per level and "
