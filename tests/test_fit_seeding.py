@@ -62,21 +62,29 @@ def test_neighbour_j_seeds_give_the_unseeded_levels(name):
     assert close_jacobians(jac, ref_jac)
 
 
-@pytest.mark.parametrize("name", [n for n in CASES if n != "point-wise"])  # a point-wise curve has no parameters
-def test_previous_evaluation_seeds_give_the_unseeded_levels(name):
-    # a WKB fit (its Levenberg-Marquardt evaluations seed each other) to exact-solver levels of the true
-    # potential, started 0.5 % off in De; its levels at the end against the unseeded ones at its parameters
-    pot, mu0 = CASES[name]
+def wkb_fit_of(pot, mu0, energy_zero, sigma=0.01):
+    """A first-order WKB fit of the first two parameters (De, re; start 0.5 % off in De) to exact-solver
+    levels of pot at the rows(): (fit_run's dict, (model, curve, v, rot, mu))."""
     model, p, curve = pot._core_args()
     v, rot, mu = rows(pot, mu0)
-    energy, _ = _core.fit_evaluate(model, p, curve, v, rot, mu, 0, 1, 1e-8)
+    energy, _ = _core.fit_evaluate(model, p, curve, v, rot, mu, energy_zero, 1, 1e-8)
     start = np.array(p, dtype=float)
     start[0] *= 1.005
     vary = np.zeros(len(p), dtype=np.intc)
     vary[:2] = 1
     out = _core.fit_run(model=model, params=start, curve=curve, v=v, rot=rot, mu=mu, energy=energy,
-                        sigma=np.full(len(v), 0.01), energy_zero=0, vary=vary, lower=np.full(len(p), -np.inf),
-                        upper=np.full(len(p), np.inf), max_iterations=50, method=_WKB, offset=None)
+                        sigma=np.full(len(v), sigma), energy_zero=energy_zero, vary=vary,
+                        lower=np.full(len(p), -np.inf), upper=np.full(len(p), np.inf), max_iterations=50,
+                        method=_WKB, offset=None)
+    return out, (model, curve, v, rot, mu)
+
+
+@pytest.mark.parametrize("name", [n for n in CASES if n != "point-wise"])  # a point-wise curve has no parameters
+def test_previous_evaluation_seeds_give_the_unseeded_levels(name):
+    # a WKB fit (its Levenberg-Marquardt evaluations seed each other) to exact-solver levels of the true
+    # potential, started 0.5 % off in De; its levels at the end against the unseeded ones at its parameters
+    pot, mu0 = CASES[name]
+    out, (model, curve, v, rot, mu) = wkb_fit_of(pot, mu0, 0)
     assert out["stop"] == "converged" and out["n_eval"] >= 2
     ref, ref_jac = alone(model, out["params"], curve, v, rot, mu)
     np.testing.assert_allclose(out["calc"], ref, rtol=0, atol=1e-10)

@@ -13,7 +13,7 @@ import numpy as np
 import pytest
 
 from wkbfit import _core
-from test_fit_seeding import alone, close_jacobians, rows
+from test_fit_seeding import alone, close_jacobians, rows, wkb_fit_of
 from test_rotational_corrections import CASES  # every model and a point-wise curve
 
 _WKB = 0
@@ -59,19 +59,9 @@ def test_a_cut_inside_one_reduced_mass_is_within_the_accuracy(name, threads):
 
 def fit(threads, n, pot, mu0):
     """A WKB fit of De and re (start 0.5 % off in De) to exact-solver levels: (fit_run's dict, sd)."""
-    model, p, curve = pot._core_args()
-    v, rot, mu = rows(pot, mu0)
-    energy, _ = _core.fit_evaluate(model, p, curve, v, rot, mu, 0, 1, 1e-8)
-    start = np.array(p, dtype=float)
-    start[0] *= 1.005
-    vary = np.zeros(len(p), dtype=np.intc)
-    vary[:2] = 1
     threads(n)
-    sigma = np.full(len(v), 0.01)
-    out = _core.fit_run(model=model, params=start, curve=curve, v=v, rot=rot, mu=mu, energy=energy,
-                        sigma=sigma, energy_zero=2, vary=vary, lower=np.full(len(p), -np.inf),
-                        upper=np.full(len(p), np.inf), max_iterations=50, method=_WKB, offset=None)
-    J = out["jacobian"][:, :2] / sigma[:, None]
+    out, _ = wkb_fit_of(pot, mu0, 2)
+    J = out["jacobian"][:, :2] / 0.01
     sd = np.sqrt(np.diag(np.linalg.inv(J.T @ J)))
     return out, sd
 
