@@ -114,19 +114,26 @@ def prediction_values(result, isotopologue, v_top, n_top=None):
     return out
 
 
+def replica_draw(seed, i, kind, m):
+    """The random numbers of replica i over m fitted rows, from numpy.random.default_rng([seed, i]):
+    standard normals (monte-carlo) or the drawn row indices (resample). The one source of the draws,
+    so that full and linearised refits (replicas_linear) see the same replicas."""
+    rng = np.random.default_rng([seed, i])
+    return rng.standard_normal(m) if kind == "monte-carlo" else rng.integers(0, m, m)
+
+
 def _replica_data(shared, i):
     """The ObservedLevels of replica i."""
-    rng = np.random.default_rng([shared["seed"], i])
     v, J, E, sig, iso = shared["v"], shared["J"], shared["energy"], shared["uncertainty"], shared["isotopologue"]
     fitted = shared["fitted_rows"]
+    rows = np.nonzero(fitted)[0]
+    draw = replica_draw(shared["seed"], i, shared["kind"], len(rows))
     if shared["kind"] == "monte-carlo":
         E = E.copy()
-        rows = np.nonzero(fitted)[0]
-        E[rows] = shared["calculated"][rows] + shared["noise_scale"] * sig[rows] * rng.standard_normal(len(rows))
+        E[rows] = shared["calculated"][rows] + shared["noise_scale"] * sig[rows] * draw
         idx = np.arange(len(v))
     else:
-        rows = np.nonzero(fitted)[0]
-        idx = np.concatenate([np.nonzero(~fitted)[0], rows[rng.integers(0, len(rows), len(rows))]])
+        idx = np.concatenate([np.nonzero(~fitted)[0], rows[draw]])
     return ObservedLevels(v[idx], J[idx], E[idx], sig[idx], iso[idx], shared["energy_zero"], "replica %d" % i)
 
 

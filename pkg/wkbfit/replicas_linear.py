@@ -227,11 +227,12 @@ def prediction_count(model, p, curve, mu):
 
 def replica_data(shared, fast, i):
     """(energies, counts or None) of replica i over the fitted rows: the draws of replicas._replica_data."""
-    rng = np.random.default_rng([shared["seed"], i])
+    from .replicas import replica_draw
     m = len(fast["rows"])
+    draw = replica_draw(shared["seed"], i, shared["kind"], m)
     if shared["kind"] == "monte-carlo":
-        return fast["calculated"] + shared["noise_scale"] * fast["sigma"] * rng.standard_normal(m), None
-    return fast["fitted_energy"], np.bincount(rng.integers(0, m, m), minlength=m).astype(float)
+        return fast["calculated"] + shared["noise_scale"] * fast["sigma"] * draw, None
+    return fast["fitted_energy"], np.bincount(draw, minlength=m).astype(float)
 
 
 def run_core(fast, energies, counts, slope=True):
