@@ -1,16 +1,15 @@
-"""The screened method-error check of first-order fits (method_error.semiclassical_bounds).
+"""The screened method-error check of first-order fits (method_error.semiclassical_estimate).
 
 Reference everywhere: the exact radial solver (wkbfit's own, tested against published levels in
 test_exact.py) at a tight tolerance, never the semiclassical rules under test. Criteria:
-- the bracket central +- margin contains the true first-order error |E_wkb - E_exact| of every
-  level of every model, J = 0 and a high J, in all three energy zeros, up to the reference's own
-  error (so the reported upper end is never below the true error; the brief asked for "never below
-  half");
+- the estimate (the distance to the matched-rule level) is within a factor 2 of the true first-order
+  error |E_wkb - E_exact| of every level of every model, J = 0 and a high J, in all three energy
+  zeros, up to the reference's own error: never below half the true error, never above twice it
+  (so a row whose estimate is 2x or more from the threshold is on the side the exact check puts it);
 - a fit's verdict (the flagged rows) is the one of the all-exact check (exact levels for every row)
   on every model, with uncertainties chosen so that some rows sit close to the threshold;
-- rows the bracket cannot decide get exact levels (tested by a threshold right at the errors).
+- rows the estimate cannot decide get exact levels (tested by a threshold right at the errors).
 """
-import sys
 import warnings
 
 import numpy as np
@@ -32,6 +31,8 @@ MODELS = {
     "damped MLR": (wkbfit.MLR(De=5000.0, re=3.2, C6=2e6, C3=3e5, C4=1e5, C8=0.0, betas=[0.2, 0.1], p=5,
                               damping="douketis", s=-2, rho=0.8), 30.0, 60),
     "point-wise": (wkbfit.PointwisePotential(R_GRID, MORSE(R_GRID), asymptote=5000.0), 10.0, 30),
+    # a light, quantal well (H2-like depth and mass; 6 levels): the matched rule takes the exact phase there
+    "light Lennard-Jones": (wkbfit.LennardJones(De=38000.0, re=0.74), 0.504, 5),
 }
 
 
@@ -48,14 +49,14 @@ def _first_and_exact(pot, mu, J):
 @pytest.mark.parametrize("zero", [0, 1, 2])
 @pytest.mark.parametrize("high_J", [False, True])
 @pytest.mark.parametrize("name", list(MODELS))
-def test_bracket_contains_the_true_first_order_error(name, high_J, zero):
+def test_estimate_is_within_a_factor_2_of_the_true_first_order_error(name, high_J, zero):
     pot, mu, J_hi = MODELS[name]
     J = J_hi if high_J else 0
     if zero == 2 and J:
         pytest.skip("energy_zero='lowest' is measured from v=0, J=0 (covered by the J=0 case)")
     first, ex = _first_and_exact(pot, mu, J)
     n = len(first["v"])
-    assert n >= 10
+    assert n >= 3
     key = "binding_energy" if zero == 1 else "energy"
     e1, ee = first[key].copy(), ex[key].copy()
     ref_err = ex["error"].copy()
@@ -63,14 +64,19 @@ def test_bracket_contains_the_true_first_order_error(name, high_J, zero):
         e1 -= first["energy"][0]
         ee -= ex["energy"][0]
         ref_err = np.hypot(ref_err, ex["error"][0])
-    args = dict(v=first["v"], rot=np.full(n, float(J * (J + 1))), mu=np.full(n, float(mu)), energy_zero=zero)
-    central, margin = method_error.semiclassical_bounds(pot, args, e1)
-    known = np.isfinite(central + margin)
+    model, params, curve = pot._core_args()
+    args = dict(model=model, params=params, curve=curve, v=first["v"], rot=np.full(n, float(J * (J + 1))),
+                mu=np.full(n, float(mu)), energy_zero=zero)
+    est = method_error.semiclassical_estimate(args, e1)
+    known = np.isfinite(est)
     assert np.count_nonzero(known) >= n - 2, (name, J, n, np.count_nonzero(known))  # at most the top levels left out
     true = np.abs(e1 - ee)
-    slack = ref_err + 1e-9 + 1e-13 * np.abs(ee)  # the reference's own accuracy, and rounding
-    assert np.all((true <= central + margin + slack)[known]), (name, J, zero)
-    assert np.all((true >= central - margin - slack)[known]), (name, J, zero)
+    # the reference's own accuracy (twice its error estimate) and 1e-7 cm-1 for the quadratures of the WKB
+    # levels (measured: 3e-8 cm-1 of E2 - E1 on the Morse well, where both orders are exact at J = 0)
+    slack = 2 * ref_err + 1e-7
+    e, t, sl = est[known], true[known], slack[known]
+    assert np.all(e + sl >= 0.5 * t), (name, J, zero, np.min((e + sl) / np.maximum(t, 1e-300)))
+    assert np.all(e <= 2.0 * (t + sl)), (name, J, zero, np.max(e / (t + sl)))
 
 
 def _exact_data(pot, mu, plan, sigma, seed):
@@ -120,16 +126,15 @@ def test_fit_verdict_is_that_of_the_all_exact_check(name, monkeypatch):
     ratio = ref_err / obs.uncertainty[captured["rows"]]
     flagged = sorted(int(captured["rows"][i]) for i in np.nonzero(ratio > method_error.FLAG_FRACTION)[0])
     assert res.method_error_flagged == flagged, (name, res.method_error_note)
-    # the reported method errors are never below the exact ones (up to the exact levels' own accuracy)
+    # the reported method errors are never below half the exact ones (up to the exact levels' own accuracy)
     got = res.method_error[captured["rows"]]
-    assert np.all(got >= ref_err - 2e-3 * sigma), name
-    # and not needlessly larger: by at most twice the margin, which stays below the distance to the threshold
-    # (measured up to 0.035 sigma, Morse)
-    assert np.all(got <= ref_err + 0.05 * sigma + 1e-9), (name, np.max(got - ref_err), sigma)
+    assert np.all(got >= 0.5 * ref_err - 2e-3 * sigma), name
+    # and not far above them: within a factor 2 as the estimate
+    assert np.all(got <= 2 * ref_err + 2e-3 * sigma), (name, np.max(got / ref_err), sigma)
 
 
 def test_undecided_rows_get_exact_levels():
-    # a threshold right at the rows' errors: the bracket cannot decide them, the exact solver does
+    # a threshold right at the rows' errors: the estimate cannot decide them, the exact solver does
     pot, mu, _ = MODELS["Lennard-Jones (11, 6.5)"]
     first, ex = _first_and_exact(pot, mu, 0)
     vs = list(range(0, 30, 3))
@@ -138,7 +143,7 @@ def test_undecided_rows_get_exact_levels():
                 v=np.array(vs), rot=np.zeros(len(vs)), mu=np.full(len(vs), mu), energy_zero=0,
                 sigma=err / method_error.FLAG_FRACTION)
     out = {"calc": first["energy"][vs]}
-    got, note = method_error.row_method_errors("wkb", args, out, pot)
+    got, note = method_error.row_method_errors("wkb", args, out, screen=True)
     assert "by one exact evaluation" in note and "the other %d" % len(vs) in note
     np.testing.assert_allclose(got, err, rtol=0, atol=1e-5)  # the exact levels' target accuracy here (1e-5 cm-1)
 
@@ -154,7 +159,7 @@ def test_screen_falls_back_to_exact_levels_where_the_matched_rule_gives_none(mon
 
     def refuse(*a, **k):
         raise ValueError("no matched levels here (test)")
-    monkeypatch.setattr(sys.modules["wkbfit.levels"], "levels", refuse)  # (wkbfit.levels is the function)
-    got, note = method_error.row_method_errors("wkb", args, out, pot)
+    monkeypatch.setattr(method_error._core, "wkb_levels", refuse)
+    got, note = method_error.row_method_errors("wkb", args, out, screen=True)
     np.testing.assert_allclose(got, np.abs(first["energy"] - ex["energy"])[vs], rtol=0, atol=1e-5)
     assert "the other 3 by one exact evaluation" in note

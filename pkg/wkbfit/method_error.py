@@ -5,11 +5,10 @@ calculation the fit used, in the data's energy zero:
   "corrected"  the final levels are exact levels continued by the last (small) exact
                Gauss-Newton step: its second-order remainder, with the exact solver's accuracy;
   "wkb"        |E_wkb - E_exact|: the bias of first-order WKB, which the fit cannot see. Screened
-               first by the semiclassical bracket (`semiclassical_bounds`: the distance to the
-               matched-rule level, the more exact method, plus twice that rule's own error
-               estimate): rows the bracket places clearly below or clearly above FLAG_FRACTION
-               of their uncertainty keep its upper end (never below the true error); only the
-               undecided rows get exact levels (one exact evaluation of those rows);
+               first by `semiclassical_estimate` (the distance to the matched-rule level, the more
+               exact method): a row whose estimate is SCREEN_FACTOR or more above or below
+               FLAG_FRACTION of its uncertainty keeps it; only the other rows get exact levels
+               (one exact evaluation of those rows);
   "exact"      the exact solver's own error estimate (one extra pass of exact levels without
                derivatives, about 1/4 of one exact iteration).
 A level whose method error exceeds FLAG_FRACTION of its uncertainty is flagged: the report
@@ -19,7 +18,6 @@ lists it and a FitWarning names it, with the advice to use a more exact method.
 tables carry their own `method_error` (matched end phases), it is wired in there.
 """
 import math
-import warnings
 
 import numpy as np
 
@@ -32,62 +30,55 @@ __all__ = ["FLAG_FRACTION", "row_method_errors", "attach"]
 FLAG_FRACTION = 0.1
 
 
-#: the matched rule's own error is bounded by this multiple of its method_error estimate (levels.py;
-#: tests/test_matched.py asserts true <= 2 x estimate on every model)
-MATCHED_SAFETY = 2.0
+#: the screen decides a row's verdict only when its estimate is at least this factor away from the
+#: threshold; rows closer get exact levels (the estimate need only be right within a factor 2 there)
+SCREEN_FACTOR = 2.0
 
 
-def semiclassical_bounds(potential, args, calc):
-    """(central, margin) per row, cm-1, for first-order levels `calc` (in the data's energy zero) of
-    `potential`: central = |matched-rule level - calc|, margin = MATCHED_SAFETY x the matched rule's
-    estimate of its own error, so that |calc - exact| lies within central +- margin. NaN where the
-    matched rule gives no level (above its threshold count, or a failed level search)."""
-    from .levels import levels
-    v, rot, mu, zero = np.asarray(args["v"]), np.asarray(args["rot"]), np.asarray(args["mu"], dtype=float), \
-        args["energy_zero"]
-    J = np.rint((np.sqrt(1.0 + 4.0 * rot) - 1.0) / 2.0).astype(int)
+def semiclassical_estimate(args, calc):
+    """Per row, cm-1: |matched-rule level - calc|, the estimated error of the first-order levels `calc`
+    (in the data's energy zero) of the rows in `args` (model, params, curve, v, rot, mu, energy_zero).
+    The matched rule (second-order WKB, joined near the outer turning point to an exact solution; the
+    exact phase for wells too quantal for second order) is the more exact method, so the distance of
+    the first-order level from it estimates the first-order error (tests/test_method_error_screen.py:
+    within a factor 2 of the exact solver's on every model). NaN where it gives no level (above its
+    threshold count, or a failed level search). One core call per (reduced mass, J)."""
+    model, params, curve = args["model"], args["params"], args["curve"]
+    v, rot, mu, zero = np.asarray(args["v"]), np.asarray(args["rot"], dtype=float), \
+        np.asarray(args["mu"], dtype=float), args["energy_zero"]
     ref = np.full(len(v), math.nan)
-    ref_err = np.full(len(v), math.nan)
-    lowest = {}  # (mu) -> (E of v=0, J=0 by the matched rule, its error bound): the zero of "lowest" data
+    lowest = {}  # reduced mass -> matched-rule level v=0, J=0: the zero of "lowest" data
     for m in np.unique(mu):
         in_m = mu == m
-        for j in np.unique(J[in_m]):
-            sel = np.nonzero(in_m & (J == j))[0]
-            want = sorted(set(v[sel].tolist()) | ({0} if zero == 2 and j == 0 else set()))
-            with warnings.catch_warnings():
-                warnings.simplefilter("ignore")  # a left-out level shows as NaN here and goes to the exact solver
-                try:
-                    t = levels(potential, float(m), v=want, J=int(j))
-                    t_err = np.asarray(t.method_error, dtype=float)
-                except (ValueError, RuntimeError):
-                    continue
-            tv = np.asarray(t.v)
-            col = np.asarray(t.binding_energy if zero == 1 else t.energy, dtype=float)
-            at = np.searchsorted(tv, v[sel])
-            ok = at < len(tv)
-            ok[ok] = tv[at[ok]] == v[sel][ok]
+        for r in np.unique(rot[in_m]):
+            sel = np.nonzero(in_m & (rot == r))[0]
+            want = np.unique(np.concatenate([v[sel], [0]]) if zero == 2 and r == 0 else v[sel]).astype(np.intc)
+            try:
+                t = _core.wkb_levels(model, params, curve, float(m), float(r), want, order=2, ends=1)
+            except (ValueError, RuntimeError):
+                continue  # no matched levels here: these rows go to the exact solver
+            tv = np.asarray(t["v"])
+            col = np.asarray(t["binding_energy"] if zero == 1 else t["energy"], dtype=float)
+            at = np.minimum(np.searchsorted(tv, v[sel]), max(len(tv) - 1, 0))
+            ok = (tv[at] == v[sel]) if len(tv) else np.zeros(len(sel), dtype=bool)
             ref[sel[ok]] = col[at[ok]]
-            ref_err[sel[ok]] = MATCHED_SAFETY * t_err[at[ok]]
-            if zero == 2 and j == 0 and len(tv) and tv[0] == 0:
-                lowest[float(m)] = (float(t.energy[0]), MATCHED_SAFETY * float(t_err[0]))
+            if zero == 2 and r == 0 and len(tv) and tv[0] == 0:
+                lowest[float(m)] = float(t["energy"][0])
     if zero == 2:
         for m in np.unique(mu):
-            sel = mu == m
-            e0, err0 = lowest.get(float(m), (math.nan, math.nan))
-            ref[sel] -= e0
-            ref_err[sel] += err0
-    return np.abs(ref - np.asarray(calc, dtype=float)), ref_err
+            ref[mu == m] -= lowest.get(float(m), math.nan)
+    return np.abs(ref - np.asarray(calc, dtype=float))
 
 
-def row_method_errors(method, args, out, potential=None):
+def row_method_errors(method, args, out, screen=False):
     """Per fitted row: (method error in cm-1, note). args: the keywords of the fit's core run,
     with the final parameters in args["params"]. The one source of per-level method errors:
     level tables that carry their own method_error (matched end phases) plug in here.
-    potential (the fitted potential): for "wkb", screen the rows by `semiclassical_bounds` first;
-    None computes exact levels for every row."""
+    screen: for "wkb", screen the rows by `semiclassical_estimate` first (what fits do); False computes
+    exact levels for every row."""
     from .corrected import exact_calc, exact_tolerance
-    if method == "wkb" and potential is not None:
-        return _screened_wkb_errors(potential, args, out)
+    if method == "wkb" and screen:
+        return _screened_wkb_errors(args, out)
     if method == "corrected":
         err = np.hypot(np.abs(np.asarray(out["remainder"], dtype=float)), out["level_tolerance"])
         return err, ("method error = the second-order remainder of the final exact Gauss-Newton step (after %d "
@@ -106,36 +97,33 @@ def row_method_errors(method, args, out, potential=None):
     return exact_err, "method error = the exact solver's error estimate of each level"
 
 
-def _screened_wkb_errors(potential, args, out):
-    """The "wkb" method errors: the semiclassical bracket where it decides the row's verdict (its
-    upper end), exact levels of the undecided rows."""
+def _screened_wkb_errors(args, out):
+    """The "wkb" method errors: the semiclassical estimate where it is at least SCREEN_FACTOR away from
+    the verdict's threshold, exact levels of the other rows."""
     from .corrected import exact_calc, exact_tolerance
     calc = np.asarray(out["calc"], dtype=float)
     sigma = np.asarray(args["sigma"], dtype=float)
-    central, margin = semiclassical_bounds(potential, args, calc)
+    est = semiclassical_estimate(args, calc)
     threshold = FLAG_FRACTION * sigma
     with np.errstate(invalid="ignore"):
-        upper = central + margin
-        decided = np.isfinite(upper) & ((upper <= threshold) | (central - margin > threshold))
-    err = np.where(decided, upper, math.nan)
+        decided = (est >= SCREEN_FACTOR * threshold) | (est <= threshold / SCREEN_FACTOR)
+    err = np.where(decided, est, math.nan)
     rest = np.nonzero(~decided)[0]
-    note = ("method error = |first-order WKB - exact level| at the fitted parameters, bounded from above by the "
-            "distance to the matched-rule level plus %g x that rule's error estimate" % MATCHED_SAFETY)
-    if len(rest):
-        sub = {k: (np.asarray(args[k])[rest] if k in ("v", "rot", "mu") else args[k])
-               for k in ("v", "rot", "mu", "energy_zero")}
-        try:
-            ex, ex_err = exact_calc(args["model"], args["params"], args["curve"], sub["v"], sub["rot"], sub["mu"],
-                                    sub["energy_zero"], exact_tolerance(sigma))
-        except ValueError as exc:
-            return err, note + "; for %d rows not available: the exact levels of the fitted potential could not " \
-                               "be computed (%s)" % (len(rest), exc)
-        err[rest] = np.hypot(calc[rest] - ex, ex_err)
-        note += " (%d of %d rows, where that bound decides the %g sigma verdict; the other %d by one exact " \
-                "evaluation)" % (len(err) - len(rest), len(err), FLAG_FRACTION, len(rest))
-    else:
-        note += " (every row: that bound decides the %g sigma verdict of each)" % FLAG_FRACTION
-    return err, note
+    note = ("method error = |first-order WKB - exact level| at the fitted parameters, estimated by the distance to "
+            "the matched-rule level (the more exact method) where that is at least %g times above or below %g "
+            "sigma" % (SCREEN_FACTOR, FLAG_FRACTION))
+    if not len(rest):
+        return err, note + " (every row)"
+    sub_v, sub_rot, sub_mu = (np.asarray(args[k])[rest] for k in ("v", "rot", "mu"))
+    try:
+        ex, ex_err = exact_calc(args["model"], args["params"], args["curve"], sub_v, sub_rot, sub_mu,
+                                args["energy_zero"], exact_tolerance(sigma))
+    except ValueError as exc:
+        return err, note + "; for %d rows not available: the exact levels of the fitted potential could not be " \
+                           "computed (%s)" % (len(rest), exc)
+    err[rest] = np.hypot(calc[rest] - ex, ex_err)
+    return err, note + " (%d of %d rows; the other %d by one exact evaluation)" % (
+        len(err) - len(rest), len(err), len(rest))
 
 
 def attach(result, rows, out, args=None):
@@ -145,7 +133,7 @@ def attach(result, rows, out, args=None):
     obs = result.observed
     if args is None:
         args = out["_args"]
-    err_rows, note = row_method_errors(result.method, args, out, result.potential)
+    err_rows, note = row_method_errors(result.method, args, out, screen=True)
     err = np.full(len(obs), math.nan)
     err[rows] = err_rows
     # (names only of the rows the warning lists: 20 000 strings cost ~10 ms a fit)
