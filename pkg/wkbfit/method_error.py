@@ -147,7 +147,7 @@ def _set_check(result, err, sigma, note, names):
     name = names if callable(names) else names.__getitem__
     with np.errstate(invalid="ignore", divide="ignore"):
         ratio = err / sigma
-    flagged = [int(i) for i in np.nonzero(ratio > FLAG_FRACTION)[0]]
+    flagged = np.flatnonzero(ratio > FLAG_FRACTION).tolist()
     result.method_error = _frozen(err)
     result.method_error_ratio = _frozen(ratio)
     result.method_error_flagged = flagged
