@@ -163,3 +163,32 @@ def test_screen_falls_back_to_exact_levels_where_the_matched_rule_gives_none(mon
     got, note = method_error.row_method_errors("wkb", args, out, screen=True)
     np.testing.assert_allclose(got, np.abs(first["energy"] - ex["energy"])[vs], rtol=0, atol=1e-5)
     assert "the other 3 by one exact evaluation" in note
+
+
+@pytest.mark.parametrize("zero", [0, 1, 2])
+def test_estimate_is_the_same_whether_the_J_values_share_one_call_or_not(zero):
+    # two reduced masses; J = 0 rows up to the top of the well and J = 60 rows at low v: the shared call
+    # asks for top levels unbound at J = 60 and fails, so each J gets its own call (and, with the same v at
+    # every J, the shared call itself); every row's estimate equals that of the row asked alone
+    pot, mu, _ = MODELS["MLR"]
+    model, params, curve = pot._core_args()
+    n0 = len(_first_and_exact(pot, mu, 0)[0]["v"])
+    for plan in ([(0, list(range(0, n0 - 2, 5))), (60, [0, 3, 6])], [(0, [1, 2, 3]), (10, [1, 2, 3]), (30, [1, 2, 3])]):
+        v, rot, m = [], [], []
+        for scale in (1.0, 1.1):
+            for J, vs in plan:
+                v += vs
+                rot += [J * (J + 1.0)] * len(vs)
+                m += [mu * scale] * len(vs)
+        args = dict(model=model, params=params, curve=curve, v=np.array(v), rot=np.array(rot), mu=np.array(m),
+                    energy_zero=zero)
+        calc = np.zeros(len(v))
+        together = method_error.semiclassical_estimate(args, calc)
+        alone = []
+        for i in range(len(v)):
+            one = dict(args, v=args["v"][i:i + 1], rot=args["rot"][i:i + 1], mu=args["mu"][i:i + 1])
+            if zero == 2:  # alone, a row needs its own v=0, J=0 reference: give it as a second row
+                one = dict(args, v=np.array([v[i], 0]), rot=np.array([rot[i], 0.0]), mu=np.array([m[i], m[i]]))
+            alone.append(method_error.semiclassical_estimate(one, np.zeros(len(one["v"])))[0])
+        assert np.all(np.isfinite(together))
+        np.testing.assert_allclose(together, alone, rtol=1e-10, atol=1e-9)

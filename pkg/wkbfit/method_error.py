@@ -42,32 +42,66 @@ def semiclassical_estimate(args, calc):
     exact phase for wells too quantal for second order) is the more exact method, so the distance of
     the first-order level from it estimates the first-order error (tests/test_method_error_screen.py:
     within a factor 2 of the exact solver's on every model). NaN where it gives no level (above its
-    threshold count, or a failed level search). One core call per (reduced mass, J)."""
+    threshold count, or a failed level search). One core call per reduced mass when its J values share
+    their v values (else, or when that call fails, one per (reduced mass, J))."""
     model, params, curve = args["model"], args["params"], args["curve"]
-    v, rot, mu, zero = np.asarray(args["v"]), np.asarray(args["rot"], dtype=float), \
+    v, rot, mu, zero = np.asarray(args["v"]).astype(np.int64), np.asarray(args["rot"], dtype=float), \
         np.asarray(args["mu"], dtype=float), args["energy_zero"]
     ref = np.full(len(v), math.nan)
-    lowest = {}  # reduced mass -> matched-rule level v=0, J=0: the zero of "lowest" data
+    n_v = int(v.max()) + 1 if len(v) else 1
     for m in np.unique(mu):
-        in_m = mu == m
-        for r in np.unique(rot[in_m]):
-            sel = np.nonzero(in_m & (rot == r))[0]
-            want = np.unique(np.concatenate([v[sel], [0]]) if zero == 2 and r == 0 else v[sel]).astype(np.intc)
-            try:
-                t = _core.wkb_levels(model, params, curve, float(m), float(r), want, order=2, ends=1)
-            except (ValueError, RuntimeError):
-                continue  # no matched levels here: these rows go to the exact solver
-            tv = np.asarray(t["v"])
-            col = np.asarray(t["binding_energy"] if zero == 1 else t["energy"], dtype=float)
-            at = np.minimum(np.searchsorted(tv, v[sel]), max(len(tv) - 1, 0))
-            ok = (tv[at] == v[sel]) if len(tv) else np.zeros(len(sel), dtype=bool)
-            ref[sel[ok]] = col[at[ok]]
-            if zero == 2 and r == 0 and len(tv) and tv[0] == 0:
-                lowest[float(m)] = float(t["energy"][0])
-    if zero == 2:
-        for m in np.unique(mu):
-            ref[mu == m] -= lowest.get(float(m), math.nan)
+        rows = np.nonzero(mu == m)[0]
+        # "lowest" data are measured from v=0, J=0: that level joins the request
+        rots = np.unique(np.concatenate([rot[rows], [0.0]]) if zero == 2 else rot[rows])
+        row_keys = np.searchsorted(rots, rot[rows]) * n_v + v[rows]
+        keys, col, zero_level = _matched_levels(model, params, curve, float(m), rots, v[rows], row_keys, n_v,
+                                                zero, zero == 2)
+        at = np.minimum(np.searchsorted(keys, row_keys), max(len(keys) - 1, 0))
+        ok = (keys[at] == row_keys) if len(keys) else np.zeros(len(rows), dtype=bool)
+        ref[rows[ok]] = col[at[ok]]
+        if zero == 2:
+            ref[rows] -= zero_level
     return np.abs(ref - np.asarray(calc, dtype=float))
+
+
+def _matched_levels(model, params, curve, mu, rots, v, row_keys, n_v, zero, want_lowest):
+    """Matched-rule levels of one reduced mass: (sorted keys rot_index * n_v + v, their levels in the data's
+    energy zero before any "lowest" shift, the level v=0 at rot 0 or NaN). One call for all rots when the
+    rows' v values, asked at every rot, cost at most about twice the rows; else, or when it fails (a level
+    unbound at some J), one call per rot with that rot's own v values."""
+    keys, cols, zero_level = [], [], math.nan
+
+    def own(g):  # the v values of rot g's rows (and v=0 at rot 0 for "lowest" data)
+        mine = v[row_keys // n_v == g]
+        return np.unique(np.concatenate([mine, [0]]) if want_lowest and rots[g] == 0 else mine)
+    union = np.unique(np.concatenate([v, [0]]) if want_lowest else v)
+    if len(union) * len(rots) <= 2 * len(v) + 4 * len(rots):
+        calls = [(np.arange(len(rots)), union)]
+    else:
+        calls = [(np.array([g]), own(g)) for g in range(len(rots))]
+    k = 0
+    while k < len(calls):
+        g, want = calls[k]
+        k += 1
+        try:
+            t = _core.wkb_levels(model, params, curve, mu, rots[g].tolist(), want.astype(np.intc), order=2, ends=1)
+        except (ValueError, RuntimeError):
+            if len(g) > 1:  # the shared call failed: one call per rot
+                calls += [(np.array([i]), own(i)) for i in g]
+            continue  # no matched levels here: these rows go to the exact solver
+        tv = np.asarray(t["v"], dtype=np.int64)
+        ti = g[np.asarray(t["rot_index"], dtype=np.intp)] if len(g) > 1 else np.full(len(tv), g[0])
+        keys.append(ti * n_v + tv)
+        cols.append(np.asarray(t["binding_energy"] if zero == 1 else t["energy"], dtype=float))
+        if want_lowest:
+            hit = np.nonzero((rots[ti] == 0) & (tv == 0))[0]
+            if len(hit):
+                zero_level = float(np.asarray(t["energy"])[hit[0]])
+    if not keys:
+        return np.zeros(0, dtype=np.int64), np.zeros(0), zero_level
+    keys, cols = np.concatenate(keys), np.concatenate(cols)
+    order = np.argsort(keys, kind="stable")
+    return keys[order], cols[order], zero_level
 
 
 def row_method_errors(method, args, out, screen=False):
