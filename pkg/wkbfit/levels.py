@@ -153,12 +153,13 @@ class LevelTable:
         self.notes = list(notes)
 
     @classmethod
-    def _from_block(cls, block, J, *, mu, method, potential, vD, v_th, method_error):
+    def _from_block(cls, block, J, *, mu, method, potential, vD, v_th, method_error, source):
         """A table of one J from the core's (9, n) block of columns (wkb_levels(..., packed=True)): the
         columns are made on first use (rows of the read-only block, the J, rule and quasibound columns),
-        so that a small call pays only for what it reads. The values are those of __init__'s columns."""
+        so that a small call pays only for what it reads. The values are those of __init__'s columns.
+        method_error and a callable v_th are functions of the table, which may read `source`."""
         self = cls.__new__(cls)
-        self.__dict__.update(_block=block, _J=J, mu=mu, method=method, potential=potential, vD_by_J=vD,
+        self.__dict__.update(_block=block, _J=J, _source=source, mu=mu, method=method, potential=potential, vD_by_J=vD,
                              notes=[], _method_error_source=method_error,
                              _v_th_source=v_th if callable(v_th) else None)
         if not callable(v_th):
@@ -421,14 +422,24 @@ def _small_call(potential, mu, vs, J):
         return None
     if len(vs) > 1:
         _check_rising(rot_index, block[0], block[1], [J])
-    Js, rots = [J], [rot]
-    v_th = {J: float(v_th)} if v_th == v_th else (  # NaN: skipped for deep levels, computed on first use
-        lambda table: _threshold_numbers(table, potential=potential, mu=mu, rot=rots, Js=Js, known={J: None}))
-    return LevelTable._from_block(
-        block, J, mu=mu, method="wkb-matched", potential=potential, vD={J: None if vD != vD else float(vD)},
-        v_th=v_th, method_error=lambda table: _method_error(
-            table, potential=potential, mu=mu, rot=rots, Js=Js, maslov=(1, 1), langer=False, order=2,
-            ends="matched", cols={"rot_index": rot_index}))
+    return LevelTable._from_block(block, J, mu=mu, method="wkb-matched", potential=potential,
+                                  vD={J: None if vD != vD else float(vD)},
+                                  # NaN: skipped for deep levels, computed on first use
+                                  v_th={J: float(v_th)} if v_th == v_th else _small_call_v_th,
+                                  method_error=_small_call_method_error, source=(potential, mu, J, rot_index))
+
+
+# the first-use sources of a small call's table: module functions of the table (reading the call's
+# arguments from table._source), so that the table pickles like the general path's
+def _small_call_v_th(table):
+    potential, mu, J, _ = table._source
+    return _threshold_numbers(table, potential=potential, mu=mu, rot=[float(J * (J + 1))], Js=[J], known={J: None})
+
+
+def _small_call_method_error(table):
+    potential, mu, J, rot_index = table._source
+    return _method_error(table, potential=potential, mu=mu, rot=[float(J * (J + 1))], Js=[J], maslov=(1, 1),
+                         langer=False, order=2, ends="matched", cols={"rot_index": rot_index})
 
 
 def _core_levels(potential, mu, vs, Js, rot, m_in, m_out, order, ends, **kw):
