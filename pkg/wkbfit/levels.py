@@ -343,7 +343,7 @@ def levels(potential, mu, v=None, J=0, method="wkb", *, order=None, ends=None, l
         from .quasibound import levels_with_quasibound
         return levels_with_quasibound(potential, mu, v, J, method, order=order, ends=ends, langer=langer,
                                       maslov=maslov, rule=quasibound_rule, width_form=width_form)
-    if (type(v) is list and type(J) is int and type(mu) is float and method == "wkb" and order is None
+    if (type(v) in _SMALL_V_TYPES and type(J) is int and type(mu) is float and method == "wkb" and order is None
             and ends is None and maslov is None and langer is False and max_levels is _validate.MAX_LEVELS
             and max_J_values is _validate.MAX_J_VALUES and isinstance(potential, Potential)
             and potential.model != "pointwise"):
@@ -400,6 +400,9 @@ def levels(potential, mu, v=None, J=0, method="wkb", *, order=None, ends=None, l
     raise ValueError("method=%r is not known; use 'wkb' or 'exact'" % (method,))
 
 
+_SMALL_V_TYPES = (list, tuple, int)  # the forms of v the small call takes (others: the general path)
+
+
 def _small_call(potential, mu, vs, J):
     """The common small call, levels(pot, mu, v=[...], J=j) with the default rule (matched ends) on an
     analytic model, on a lean path: the checks cheap for a short list, one core call returning a tuple
@@ -408,6 +411,8 @@ def _small_call(potential, mu, vs, J):
     an argument it would check further or refuse, a failing level, a result it would refuse."""
     lo_mu, hi_mu = _validate.MU_RANGE
     top = _validate.MAX_LEVELS
+    if type(vs) is int:
+        vs = [vs]
     if not (lo_mu <= mu <= hi_mu and 0 <= J <= top and vs and len(vs) <= top
             and all(type(e) is int and 0 <= e <= top for e in vs)):
         return None
