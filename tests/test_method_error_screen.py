@@ -192,3 +192,19 @@ def test_estimate_is_the_same_whether_the_J_values_share_one_call_or_not(zero):
             alone.append(method_error.semiclassical_estimate(one, np.zeros(len(one["v"])))[0])
         assert np.all(np.isfinite(together))
         np.testing.assert_allclose(together, alone, rtol=1e-10, atol=1e-9)
+
+
+def test_a_row_the_matched_rule_does_not_bind_leaves_the_others_estimated():
+    # a row asking for a level above the last bound one (as first order may bind one level more than the
+    # more exact rules near dissociation): that row alone has no estimate (the exact solver gets it)
+    pot, mu, _ = MODELS["Lennard-Jones (11, 6.5)"]
+    model, params, curve = pot._core_args()
+    first, ex = _first_and_exact(pot, mu, 0)
+    n = len(first["v"])
+    v = np.array([0, 5, 10, n + 1])
+    args = dict(model=model, params=params, curve=curve, v=v, rot=np.zeros(4), mu=np.full(4, mu), energy_zero=0)
+    calc = np.append(first["energy"][v[:3]], 0.0)
+    est = method_error.semiclassical_estimate(args, calc)
+    assert np.isnan(est[3]) and np.all(np.isfinite(est[:3]))
+    true = np.abs(first["energy"] - ex["energy"])[v[:3]]
+    assert np.all(est[:3] >= 0.5 * true) and np.all(est[:3] <= 2 * true)

@@ -68,7 +68,8 @@ def _matched_levels(model, params, curve, mu, rots, v, row_keys, n_v, zero, want
     """Matched-rule levels of one reduced mass: (sorted keys rot_index * n_v + v, their levels in the data's
     energy zero before any "lowest" shift, the level v=0 at rot 0 or NaN). One call for all rots when the
     rows' v values, asked at every rot, cost at most about twice the rows; else, or when it fails (a level
-    unbound at some J), one call per rot with that rot's own v values."""
+    unbound at some J), one call per rot with that rot's own v values, and where that fails too (a row's
+    level above the matched rule's last one) all bound levels of that rot."""
     keys, cols, zero_level = [], [], math.nan
 
     def own(g):  # the v values of rot g's rows (and v=0 at rot 0 for "lowest" data)
@@ -84,10 +85,13 @@ def _matched_levels(model, params, curve, mu, rots, v, row_keys, n_v, zero, want
         g, want = calls[k]
         k += 1
         try:
-            t = _core.wkb_levels(model, params, curve, mu, rots[g].tolist(), want.astype(np.intc), order=2, ends=1)
+            t = _core.wkb_levels(model, params, curve, mu, rots[g].tolist(),
+                                 None if want is None else want.astype(np.intc), order=2, ends=1)
         except (ValueError, RuntimeError):
             if len(g) > 1:  # the shared call failed: one call per rot
                 calls += [(np.array([i]), own(i)) for i in g]
+            elif want is not None:  # a row's level is not bound by the matched rule: all its bound levels
+                calls.append((g, None))
             continue  # no matched levels here: these rows go to the exact solver
         tv = np.asarray(t["v"], dtype=np.int64)
         ti = g[np.asarray(t["rot_index"], dtype=np.intp)] if len(g) > 1 else np.full(len(tv), g[0])
