@@ -27,9 +27,9 @@ to the baseline of the whole fit() (what a user runs), of the fit work alone (fi
 of the C run alone; and the check on data over many J values.
 
 Targets (issue 4): <= 10 ms per fit on one core; >= 100x faster than the SciPy baseline, reaching
-the same minimum; issue 10: >= 1000x.  Measured (2 cores shared by other jobs, load 1.5-4.4, four runs):
+the same minimum; issue 10: >= 1000x.  Measured (2 cores shared by other jobs, load 1.5-4.4, seven runs):
 whole fit() 241-540x (Morse), 305-358x (LJ 2 par.), 316-664x (LJ 4 par.); with the all-exact check as
-before about 110x, 150x, 270x; fit work alone 314-726x, 403-489x, 410-1076x; the C run alone
+before 105x, 147x, 278x (one run); fit work alone 314-726x, 403-489x, 410-1076x; the C run alone
 654-1451x, 746-1059x, 541-1208x; the screened check 2.6-10.8x cheaper than the all-exact one here, 6-26x
 on data over many J values. 1000x is out of reach for the whole fit: the C Levenberg-Marquardt run
 alone (3-5 steps of 50 first-order levels with their Jacobian) is at about 1000x.
