@@ -119,9 +119,12 @@ def row_method_errors(method, args, out, screen=False):
         return _screened_wkb_errors(args, out)
     if method == "corrected":
         err = np.hypot(np.abs(np.asarray(out["remainder"], dtype=float)), out["level_tolerance"])
-        return err, ("method error = the second-order remainder of the final exact Gauss-Newton step (after %d "
-                     "exact evaluations), with the exact levels' target accuracy %.1e cm-1 (1e-3 of the smallest "
-                     "uncertainty) in quadrature" % (out["refreshes"], out["level_tolerance"]))
+        note = ("method error = the second-order remainder of the final exact Gauss-Newton step (after %d "
+                "exact evaluations), with the exact levels' target accuracy %.1e cm-1 (1e-3 of the smallest "
+                "uncertainty) in quadrature" % (out["refreshes"], out["level_tolerance"]))
+        return _verify_remainder(err, note, out["calc"], args["sigma"], out["level_tolerance"], lambda: exact_calc(
+            args["model"], args["params"], args["curve"], args["v"], args["rot"], args["mu"], args["energy_zero"],
+            out["level_tolerance"])[0])
     try:
         calc_ex, exact_err = exact_calc(args["model"], args["params"], args["curve"], args["v"], args["rot"],
                                         args["mu"], args["energy_zero"], exact_tolerance(args["sigma"]))
@@ -133,6 +136,25 @@ def row_method_errors(method, args, out, screen=False):
         return (np.hypot(np.asarray(out["calc"]) - calc_ex, exact_err),
                 "method error = |first-order WKB - exact level| at the fitted parameters (one exact evaluation)")
     return exact_err, "method error = the exact solver's error estimate of each level"
+
+
+def _verify_remainder(err, note, calc, sigma, tol, exact_rows):
+    """The corrected fit's method errors: the remainder of its last linear step (`err`, the size of a
+    correction already applied, so an upper estimate of what is left) where it is below FLAG_FRACTION /
+    SCREEN_FACTOR of every row's uncertainty; otherwise measured: |calc - exact rows at the final
+    parameters| with the exact levels' accuracy `tol` in quadrature (one exact evaluation, no derivatives),
+    so that a large but corrected remainder does not flag rows whose levels are right."""
+    sigma = np.asarray(sigma, dtype=float)
+    if not np.any(err > FLAG_FRACTION * sigma / SCREEN_FACTOR):
+        return err, note
+    try:
+        calc_ex = np.asarray(exact_rows(), dtype=float)
+    except ValueError:
+        return err, note + " (exact levels at the final parameters not available to measure it)"
+    return (np.hypot(np.asarray(calc, dtype=float) - calc_ex, tol),
+            "method error = |corrected - exact level| at the fitted parameters (one exact evaluation: the remainder "
+            "of the final linear step, up to %.2g sigma, was too large to vouch for the levels), with the exact "
+            "levels' target accuracy in quadrature" % float(np.max(err / sigma)))
 
 
 def _screened_wkb_errors(args, out):
@@ -267,12 +289,13 @@ def design_row_errors(method, ev, out):
     # the exact levels' target accuracy carried into each row (|coef| of its one or two levels)
     tol = ev.tol * np.hypot(np.where(rows["level_a"] >= 0, rows["coef_a"], 0.0),
                             np.where(rows["level_b"] >= 0, rows["coef_b"], 0.0))
-    if method == "corrected":
-        return (np.hypot(np.abs(np.asarray(out["remainder"], dtype=float)), tol),
-                "method error = the second-order remainder of the final exact Gauss-Newton step (after %d exact "
-                "evaluations), with the exact levels' target accuracy %.1e cm-1 in quadrature"
-                % (out["refreshes"], ev.tol))
     p, e = np.asarray(out["params"], dtype=float), np.asarray(out["extra"], dtype=float)
+    if method == "corrected":
+        return _verify_remainder(
+            np.hypot(np.abs(np.asarray(out["remainder"], dtype=float)), tol),
+            "method error = the second-order remainder of the final exact Gauss-Newton step (after %d exact "
+            "evaluations), with the exact levels' target accuracy %.1e cm-1 in quadrature" % (out["refreshes"], ev.tol),
+            out["calc"], rows["sigma"], tol, lambda: ev.levels(p, e)[0] if ev.plain else ev.exact(p, e)[0])
     try:
         if method == "wkb":
             exact_rows = ev.levels(p, e)[0] if ev.plain else ev.exact(p, e)[0]
