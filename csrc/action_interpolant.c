@@ -258,15 +258,16 @@ static double solve_on_piece(const piece *p, double target, double x0, double *d
     return x;
 }
 
-/* one turning point at binding energy b by Newton from the guess r inside (lo, hi); 0 if it fails. The
-   step after one of size s would be (V''/2V') s^2: once s <= TP_STEP r that is below rounding, so no
-   step is taken only to confirm convergence. */
-#define TP_STEP 1e-8
+/* one turning point at binding energy b by Halley's method (V'' comes with V') from the guess r inside
+   (lo, hi); 0 if it fails. The error after a step of size s is ~ s^3/l^2 (l ~ |V'/V''|, r/13 on a
+   Lennard-Jones wall): once s <= TP_STEP r that is below rounding, so no step is taken only to confirm
+   convergence. (Newton, quadratic, needed a third evaluation a side for guesses off by > ~3e-5 r.) */
+#define TP_STEP 1e-6
 static int polish(const wkb_well *w, double b, double r, double lo, double hi, double *root)
 {
     for (int it = 0; it < 6; it++) {
         wkb_pot_value pv;
-        const double g = wkb_well_kinetic(w, b, r, &pv), s = g / pv.dV;
+        const double g = wkb_well_kinetic(w, b, r, &pv), sn = g / pv.dV, s = sn / (1 + 0.5 * sn * pv.d2V / pv.dV);
         r += s;
         if (!(r > lo && r < hi))
             return 0;
