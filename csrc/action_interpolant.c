@@ -371,7 +371,7 @@ int wkb_interpolant_levels(wkb_well *w, wkb_level *levels, size_t n, size_t *don
 
     /* the levels, from the bottom piece up (v = 0 lies on the last piece) */
     size_t k = n_pieces - 1, m = 0;
-    double x_guess = NAN, x_prev[2] = {NAN, NAN};
+    double x_guess = NAN, x_prev[3] = {NAN, NAN, NAN};
     size_t n_on_piece = 0;
     for (size_t v = 0; v < n; v++) {
         const double target = M_PI * ((double)v + w->phase);
@@ -388,8 +388,11 @@ int wkb_interpolant_levels(wkb_well *w, wkb_level *levels, size_t n, size_t *don
         double dIdx;
         const double x = solve_on_piece(p, target, x_guess, &dIdx), half = 0.5 * (p->wb - p->wa);
         const double wv = 0.5 * (p->wa + p->wb) + half * x;
-        /* the next level, one quantum on: quadratic through the last three on this piece, else linear */
-        x_guess = n_on_piece >= 2 ? 3 * (x - x_prev[0]) + x_prev[1] : x + M_PI / dIdx;
+        /* the next level, one quantum on: cubic through the last four on this piece (then one Newton step
+           on the piece is mostly the last), else quadratic or linear */
+        x_guess = n_on_piece >= 3 ? 4 * (x + x_prev[1]) - 6 * x_prev[0] - x_prev[2]
+                  : (n_on_piece == 2 ? 3 * (x - x_prev[0]) + x_prev[1] : x + M_PI / dIdx);
+        x_prev[2] = x_prev[1];
         x_prev[1] = x_prev[0];
         x_prev[0] = x;
         n_on_piece++;
