@@ -63,17 +63,6 @@ static double w_exponent_of(const wkb_well *w)
     return n > 2 ? (n - 2) / (2 * n) : 0.5;
 }
 
-static double clenshaw(const double *c, int n, double x)
-{
-    double b1 = 0, b2 = 0;
-    for (int j = n; j >= 1; j--) {
-        const double t = 2 * x * b1 - b2 + c[j];
-        b2 = b1;
-        b1 = t;
-    }
-    return x * b1 - b2 + c[0];
-}
-
 /* coefficients of the interpolant through f_k at x_k = cos(pi k/N), k = 0..N (DCT-I); stride: f_k is
    f[k * stride] (stride 2 on the 16-node values gives the 8-node interpolant) */
 /* cos(pi m / INTERP_N), m = 0 .. 2 INTERP_N - 1: the nodes and the DCT-I (computing them each time cost
@@ -94,7 +83,7 @@ static void lobatto_coefficients(const double *f, int N, int stride, double *c)
     for (int j = 0; j <= N; j++) {
         double s = 0;
         for (int k = 0; k <= N; k++) {
-            const double t = f[k * stride] * cos_table[(j * k % (2 * N)) * scale];
+            const double t = f[k * stride] * cos_table[((j * k) & (2 * N - 1)) * scale]; /* 2N: a power of 2 */
             s += (k == 0 || k == N) ? 0.5 * t : t;
         }
         c[j] = 2 * s / N;
@@ -221,6 +210,30 @@ static void clenshaw_both(const piece *p, double x, double *f, double *df)
     }
     *f = x * b1 - b2 + p->c[0];
     *df = x * e1 - e2 + p->d[0];
+}
+
+/* Bv of the count levels L of piece p, each holding its x in its Bv field: four Clenshaw recurrences at
+   a time, interleaved (one alone waits on its own additions); 1 if one is not finite */
+static int piece_bv(const piece *p, wkb_level *L, size_t count)
+{
+    for (size_t i = 0; i < count; i += 4) {
+        const size_t lanes = GSL_MIN(4, count - i);
+        double x[4], b1[4] = {0, 0, 0, 0}, b2[4] = {0, 0, 0, 0};
+        for (size_t l = 0; l < 4; l++)
+            x[l] = L[i + (l < lanes ? l : 0)].Bv;
+        for (int j = p->degree; j >= 1; j--)
+            for (int l = 0; l < 4; l++) {
+                const double t = 2 * x[l] * b1[l] - b2[l] + p->cb[j]; /* Clenshaw: b_j = 2x b_{j+1} - b_{j+2} + c_j */
+                b2[l] = b1[l];
+                b1[l] = t;
+            }
+        for (size_t l = 0; l < lanes; l++) {
+            L[i + l].Bv = x[l] * b1[l] - b2[l] + p->cb[0];
+            if (!isfinite(L[i + l].Bv))
+                return 1;
+        }
+    }
+    return 0;
 }
 
 /* x on piece p where I = target (I decreasing in w, so in x); x0 a first guess in (-1, 1) or NAN;
@@ -372,11 +385,16 @@ int wkb_interpolant_levels(wkb_well *w, wkb_level *levels, size_t n, size_t *don
     /* the levels, from the bottom piece up (v = 0 lies on the last piece) */
     size_t k = n_pieces - 1, m = 0;
     double x_guess = NAN, x_prev[3] = {NAN, NAN, NAN};
-    size_t n_on_piece = 0;
+    size_t n_on_piece = 0, first_on_piece = 0; /* Bv of a piece's levels once it is done (piece_bv) */
     for (size_t v = 0; v < n; v++) {
         const double target = M_PI * ((double)v + w->phase);
         if (target >= I_direct)
             break;
+        if (k > 0 && target > pieces[k].Ia) {
+            if (piece_bv(&pieces[k], levels + first_on_piece, v - first_on_piece))
+                return 1;
+            first_on_piece = v;
+        }
         while (k > 0 && target > pieces[k].Ia) {
             k--;
             x_guess = NAN;
@@ -405,10 +423,10 @@ int wkb_interpolant_levels(wkb_well *w, wkb_level *levels, size_t n, size_t *don
         L->energy = w->top - b;
         L->error = p->err_E + floor_error;
         L->dEdv = M_PI / half_period;
-        L->Bv = clenshaw(p->cb, p->degree, x);
+        L->Bv = x; /* Bv(x) by piece_bv */
         L->status = WKB_SUCCESS;
         L->rule = WKB_RULE_FIRST;
-        if (!(half_period > 0) || !isfinite(L->Bv))
+        if (!(half_period > 0))
             return 1;
         wkb_error e;
         if (!(v >= 4 && w->n_ext == 1 && polished_turning_points(w, b, levels + v)) &&
@@ -423,7 +441,7 @@ int wkb_interpolant_levels(wkb_well *w, wkb_level *levels, size_t n, size_t *don
         }
         m = v + 1;
     }
-    if (m < 2)
+    if (m < 2 || piece_bv(&pieces[k], levels + first_on_piece, m - first_on_piece))
         return 1;
 
     /* the check: the highest interpolated and a middle level against direct orbits */
@@ -432,9 +450,9 @@ int wkb_interpolant_levels(wkb_well *w, wkb_level *levels, size_t n, size_t *don
         wkb_level *L = &levels[checks[c]];
         wkb_orbit o;
         wkb_error e;
-        if (wkb_orbit_at(w, L->binding, &o, NULL, &e))
+        if (wkb_orbit_action_at(w, L->binding, &o, &e)) /* (its period: the interpolant's, to ~1e-6) */
             return 1;
-        const double off = fabs(o.action - M_PI * (L->v + w->phase)) / o.half_period;
+        const double off = fabs(o.action - M_PI * (L->v + w->phase)) * L->dEdv / M_PI;
         if (!(off <= INTERP_CHECK_FACTOR * tol))
             return 1;
         L->error = GSL_MAX(L->error, off + floor_error);

@@ -655,7 +655,23 @@ int wkb_well_crossing(const wkb_well *w, double binding, double lo, double hi, d
     return solve_in_bracket(w, &e, 0, lo, hi, root);
 }
 
+static int orbit_integrals(wkb_well *w, double binding, wkb_orbit *orbit, double *avg_dVdp, int action_only,
+                           wkb_error *err);
+
 int wkb_orbit_at(wkb_well *w, double binding, wkb_orbit *orbit, double *avg_dVdp, wkb_error *err)
+{
+    return orbit_integrals(w, binding, orbit, avg_dVdp, 0, err);
+}
+
+int wkb_orbit_action_at(wkb_well *w, double binding, wkb_orbit *orbit, wkb_error *err)
+{
+    return orbit_integrals(w, binding, orbit, NULL, 1, err);
+}
+
+/* the phase integrals of one orbit; action_only: the action and the turning points alone (the period,
+   Bv and curvature sums, a third of the work a node, are skipped and left NaN) */
+static int orbit_integrals(wkb_well *w, double binding, wkb_orbit *orbit, double *avg_dVdp, int action_only,
+                           wkb_error *err)
 {
     int status;
     w->n_orbits++;
@@ -691,7 +707,7 @@ int wkb_orbit_at(wkb_well *w, double binding, wkb_orbit *orbit, double *avg_dVdp
     const double rb = GSL_MIN(GSL_MAX(w->r_bottom, r1), r2);
     sums s;
     memset(&s, 0, sizeof s);
-    s.want_period = !infinite;
+    s.want_period = !infinite && !action_only;
     s.want_dVdp = avg_dVdp != NULL && w->pot.model->param_derivs != NULL;
     piece_inner(w, &e, r1, rb, &s);
     const double yb = log(rb);
@@ -744,15 +760,15 @@ int wkb_orbit_at(wkb_well *w, double binding, wkb_orbit *orbit, double *avg_dVdp
     orbit->r_inner = r1;
     orbit->r_outer = r2;
     orbit->action = s.action / se;
-    orbit->half_period = infinite ? INFINITY : s.inv_k / (2 * se);
-    orbit->Bv = infinite ? 0 : w->eps * s.inv_k_r2 / s.inv_k;
-    orbit->curvature_integral = infinite ? NAN : s.curvature;
+    orbit->half_period = infinite ? INFINITY : (action_only ? NAN : s.inv_k / (2 * se));
+    orbit->Bv = infinite ? 0 : (action_only ? NAN : w->eps * s.inv_k_r2 / s.inv_k);
+    orbit->curvature_integral = infinite || action_only ? NAN : s.curvature;
     if (avg_dVdp) {
         const size_t np = w->pot.model->n_params;
         for (size_t k = 0; k < np; k++)
             avg_dVdp[k] = (s.want_dVdp && !infinite) ? s.dVdp[k] / s.inv_k : NAN;
     }
-    if (!isfinite(orbit->action) || (!infinite && !(orbit->half_period > 0)))
+    if (!isfinite(orbit->action) || (!infinite && !action_only && !(orbit->half_period > 0)))
         return wkb_fail(err, WKB_ENUMERIC, "the phase integrals are not finite at E=%.12g cm-1", e.E);
     return WKB_SUCCESS;
 }
