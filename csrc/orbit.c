@@ -483,7 +483,7 @@ typedef struct {
     int want_period, want_dVdp;
 } sums;
 
-static void add_node(wkb_well *w, const energy_point *e, double r, double weight, sums *s)
+static inline void add_node(wkb_well *w, const energy_point *e, double r, double weight, sums *s)
 {
     wkb_pot_value pv;
     const double kin = kinetic(w, e, r, &pv);
