@@ -280,7 +280,7 @@ static int polish(const wkb_well *w, double b, double r, double lo, double hi, d
 {
     for (int it = 0; it < 6; it++) {
         wkb_pot_value pv;
-        const double g = wkb_well_kinetic(w, b, r, &pv), sn = g / pv.dV, s = sn / (1 + 0.5 * sn * pv.d2V / pv.dV);
+        const double g = wkb_well_kinetic(w, b, r, &pv), s = 2 * g * pv.dV / (2 * pv.dV * pv.dV + g * pv.d2V);
         r += s;
         if (!(r > lo && r < hi))
             return 0;

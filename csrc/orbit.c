@@ -397,8 +397,8 @@ static int warm_turning_point(const wkb_well *w, const energy_point *e, double r
 {
     wkb_pot_value pv;
     for (int it = 0; it < 8; it++) {
-        const double g = kinetic(w, e, r, &pv), sn = g / pv.dV;
-        const double rn = r + sn / (1 + 0.5 * sn * pv.d2V / pv.dV);
+        const double g = kinetic(w, e, r, &pv);
+        const double rn = r + 2 * g * pv.dV / (2 * pv.dV * pv.dV + g * pv.d2V); /* Halley, one division */
         if (!(rn > lo && rn < hi))
             return 0;
         const double dr = fabs(rn - r);
