@@ -146,7 +146,7 @@ def test_every_level_meets_the_quantization_condition(name, path):
             for r_got in (getattr(t, col), o[col]):
                 for r, E, b in zip(r_got, t.energy, t.binding_energy):
                     if b < 1e-6 * depth:
-                        continue  # NumPy's V - E cancels within 1e-6 of the depth of the asymptote (the core's does not)
+                        continue  # NumPy's V - E cancels within 1e-6 of the depth (the core's form does not)
                     root = brentq(lambda x: pot(np.array([x]))[0] - E, r * (1 - 1e-6), r * (1 + 1e-6),
                                   xtol=1e-16, rtol=8.9e-16)
                     h = 1e-7 * r
