@@ -272,8 +272,14 @@ static void mlr_terms_at(const wkb_potential *pot, double r, mlr_terms *t)
     long_range_at(p, r, &t->at_r);
     long_range_at(p, re, &t->at_re);
     radial_variable_at(r, re, pw, &t->eq);
-    radial_variable_at(r, r_ref, pw, &t->ref_p);
-    radial_variable_at(r, r_ref, qw, &t->ref_q);
+    if (r_ref == re) /* the common choice: the same variable, computed once */
+        t->ref_p = t->eq;
+    else
+        radial_variable_at(r, r_ref, pw, &t->ref_p);
+    if (qw == pw && r_ref == re)
+        t->ref_q = t->eq;
+    else
+        radial_variable_at(r, r_ref, qw, &t->ref_q);
     polynomial(p + MLR_LEADING, n, t->ref_q.y, &t->S, &t->S1, &S2);
     t->beta_inf = log(2 * De / t->at_re.u);
     const radial_variable *e = &t->eq, *a = &t->ref_p, *b = &t->ref_q;
@@ -454,8 +460,14 @@ static void mlrd_terms_at(const wkb_potential *pot, double r, mlrd_terms *t)
     damped_long_range_at(p, r, &t->at_r);
     damped_long_range_at(p, re, &t->at_re);
     radial_variable_at(r, re, pw, &t->eq);
-    radial_variable_at(r, r_ref, pw, &t->ref_p);
-    radial_variable_at(r, r_ref, qw, &t->ref_q);
+    if (r_ref == re) /* the common choice: the same variable, computed once */
+        t->ref_p = t->eq;
+    else
+        radial_variable_at(r, r_ref, pw, &t->ref_p);
+    if (qw == pw && r_ref == re)
+        t->ref_q = t->eq;
+    else
+        radial_variable_at(r, r_ref, qw, &t->ref_q);
     polynomial(p + MLRD_LEADING, n, t->ref_q.y, &t->S, &t->S1, &S2);
     t->beta_inf = log(2 * De / t->at_re.u);
     const radial_variable *e = &t->eq, *a = &t->ref_p, *b = &t->ref_q;
