@@ -17,6 +17,7 @@
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
+#include <stdio.h>
 
 #include <gsl/gsl_errno.h>
 #include <gsl/gsl_math.h>
@@ -38,8 +39,17 @@
    at the stretch's end, stays below ~3e-9 rad there (below the ODE's own 20 tolerances) */
 #define REUSE_MAX 1e-4
 /* and of a reused Pruefer solution |phi_E (E - E_k)|: its second-order term stays ~1e-10 rad */
-#define REUSE_MAX_PRUEFER 1e-5
+#define REUSE_MAX_PRUEFER 1e-4
 #define MILNE_MIN_LOG 0.05 /* shorter phase-amplitude stretches (in ln r) are not worth starting */
+/* In the forbidden region the decaying solution is an attractor of the Pruefer angle: an error made where
+   the tunnelling integral left to the turning point is D is damped by exp(-2 D) before it gets there, so
+   the deep part is integrated at a looser tolerance, tol exp(2 D_k) DEEP_SAFETY (at most DEEP_TOL_MAX),
+   beyond each of the points where the walk passed D_k. (The steps there are limited by the relaxation rate
+   2 kappa, not by the solution, which is smooth: 3/4 of the Pruefer steps lay beyond the turning point.) */
+#define DEEP_STAGES 3
+static const double deep_decay[DEEP_STAGES] = {7, 5, 3};
+#define DEEP_SAFETY 0.1
+#define DEEP_TOL_MAX 1e-5
 
 typedef struct {
     const wkb_well *w;
@@ -93,13 +103,14 @@ void wkb_matched_free(wkb_matched *m)
 static int pruefer_rhs(double t, const double y[], double f[], void *params)
 {
     rhs_ctx *c = params;
-    const double r = exp(-c->sigma * t), eps = c->w->eps;
+    const double r = exp(-c->sigma * t), ieps = 1 / c->w->eps;
     wkb_pot_value pv;
-    const double F = wkb_well_kinetic(c->w, c->binding, r, &pv) / eps, Fr = -pv.dV / eps;
+    const double F = wkb_well_kinetic(c->w, c->binding, r, &pv) * ieps, Fr = -pv.dV * ieps;
     c->n_eval++;
-    const double q = sqrt(sqrt(F * F + c->q04)), q_rho = c->sigma * F * Fr / (2 * q * q * q);
+    /* q = (F^2 + q0^4)^(1/4); q_rho/q = sigma F F_rho/(2 q^4) (two divisions: this runs ~1e3 times per end) */
+    const double q4 = F * F + c->q04, q = sqrt(sqrt(q4)), iq = 1 / q, qq = 0.5 * c->sigma * F * Fr / q4;
     const double s = sin(y[0]), co = cos(y[0]);
-    f[0] = -r * (q * co * co + (F / q) * s * s + (q_rho / q) * s * co);
+    f[0] = -r * (q * co * co + F * iq * s * s + qq * s * co);
     return isfinite(f[0]) ? GSL_SUCCESS : GSL_EBADFUNC;
 }
 
@@ -107,16 +118,18 @@ static int pruefer_rhs(double t, const double y[], double f[], void *params)
 static int pruefer2_rhs(double t, const double y[], double f[], void *params)
 {
     rhs_ctx *c = params;
-    const double r = exp(-c->sigma * t), eps = c->w->eps;
+    const double r = exp(-c->sigma * t), FE = 1 / c->w->eps;
     wkb_pot_value pv;
-    const double F = wkb_well_kinetic(c->w, c->binding, r, &pv) / eps, Fr = -pv.dV / eps, FE = 1 / eps;
+    const double F = wkb_well_kinetic(c->w, c->binding, r, &pv) * FE, Fr = -pv.dV * FE;
     c->n_eval++;
-    const double q4 = F * F + c->q04, q = sqrt(sqrt(q4)), qq = c->sigma * F * Fr / (2 * q4); /* q_rho/q */
-    const double s = sin(y[0]), co = cos(y[0]);
-    f[0] = -r * (q * co * co + (F / q) * s * s + qq * s * co);
-    const double q_E = F * FE / (2 * q * q * q), Fq_E = FE / q - F * q_E / (q * q);
-    const double qq_E = c->sigma * Fr * FE * (c->q04 - F * F) / (2 * q4 * q4);
-    const double f_phi = -r * (2 * (F / q - q) * s * co + qq * (co * co - s * s));
+    const double q4 = F * F + c->q04, iq4 = 1 / q4, q = sqrt(sqrt(q4)), iq = 1 / q;
+    const double qq = 0.5 * c->sigma * F * Fr * iq4; /* q_rho/q */
+    const double s = sin(y[0]), co = cos(y[0]), Fq = F * iq;
+    f[0] = -r * (q * co * co + Fq * s * s + qq * s * co);
+    /* q_E = F F_E/(2 q^3) = F F_E q/(2 q^4); (F/q)_E = F_E/q - F q_E/q^2 */
+    const double q_E = 0.5 * F * FE * q * iq4, Fq_E = FE * iq - Fq * q_E * iq;
+    const double qq_E = 0.5 * c->sigma * Fr * FE * (c->q04 - F * F) * iq4 * iq4;
+    const double f_phi = -r * (2 * (Fq - q) * s * co + qq * (co * co - s * s));
     f[1] = f_phi * y[1] - r * (q_E * co * co + Fq_E * s * s + qq_E * s * co);
     return isfinite(f[0]) && isfinite(f[1]) ? GSL_SUCCESS : GSL_EBADFUNC;
 }
@@ -270,6 +283,7 @@ int wkb_end_solution(wkb_well *w, double binding, int outer, double r_turn, doub
     wkb_pot_value pv;
     /* walk into the forbidden region until integral kappa dr reaches match_decay */
     double r = r_turn, acc = 0, h = WALK_FIRST_STEP;
+    double r_deep[DEEP_STAGES] = {0}; /* where the walk passed deep_decay[k] (0: it did not) */
     size_t n_walk = 0;
     for (int i = 0; i < WALK_MAX_STEPS && acc < w->set.match_decay; i++) {
         const double rn = r * exp(sigma * h), rm = r * exp(0.5 * sigma * h);
@@ -279,6 +293,9 @@ int wkb_end_solution(wkb_well *w, double binding, int outer, double r_turn, doub
             break; /* the potential is not finite further in: start where it still is */
         if (kin < 0)
             acc += sqrt(-kin / eps) * fabs(rn - r);
+        for (int k = 0; k < DEEP_STAGES; k++)
+            if (!(r_deep[k] > 0) && acc >= deep_decay[k])
+                r_deep[k] = rn; /* the far end of the step: at least D_k from the turning point */
         r = rn;
         h = GSL_MIN(1.15 * h, WALK_MAX_STEP);
         if (!outer && r < 1e-6 * r_turn)
@@ -384,7 +401,25 @@ int wkb_end_solution(wkb_well *w, double binding, int outer, double r_turn, doub
         double y2[2] = {y[0], 0}; /* the start's own energy dependence is damped by exp(-2 match_decay) */
         gsl_odeiv2_driver *drv = m->reuse == 2 ? m->pruefer2_drv : m->drv;
         gsl_odeiv2_driver_reset_hstart(drv, 1e-3 * GSL_SIGN(t_end - t));
-        int gs = gsl_odeiv2_driver_apply(drv, &t, t_end, y2);
+        int gs = GSL_SUCCESS;
+        for (int k = 0; k < DEEP_STAGES && gs == GSL_SUCCESS; k++) { /* the deep stages, loosest first */
+            const double t_k = -sigma * log(r_deep[k]);
+            if (!(r_deep[k] > 0) || !(t_k > t) || !(t_k < t_end))
+                continue;
+            const double tol_k = GSL_MIN(DEEP_TOL_MAX, m->tol * exp(2 * deep_decay[k]) * DEEP_SAFETY);
+            if (!(tol_k > m->tol))
+                continue;
+            gsl_odeiv2_control_init(drv->c, tol_k, 0.0, 1.0, 0.0);
+            if (getenv("WKBU_STEPS")) { size_t n0 = m->ctx.n_eval; double t0 = t;
+            gs = gsl_odeiv2_driver_apply(drv, &t, t_k, y2);
+            fprintf(stderr, "stage %d D=%g tol=%.2g dt=%.4g evals=%zu\n", k, deep_decay[k], tol_k, t - t0, m->ctx.n_eval - n0); } else
+            gs = gsl_odeiv2_driver_apply(drv, &t, t_k, y2);
+        }
+        gsl_odeiv2_control_init(drv->c, m->tol, 0.0, 1.0, 0.0);
+        size_t n0 = m->ctx.n_eval; double t0 = t;
+        if (gs == GSL_SUCCESS)
+            gs = gsl_odeiv2_driver_apply(drv, &t, t_end, y2);
+        if (getenv("WKBU_STEPS")) fprintf(stderr, "final dt=%.4g evals=%zu, r_turn %g (t %g)\n", t - t0, m->ctx.n_eval - n0, r_turn, -sigma*log(r_turn));
         if (gs != GSL_SUCCESS || !isfinite(y2[0]))
             return wkb_fail(err, WKB_ENUMERIC,
                             "the exact %s-end solution failed at binding energy %.6g cm-1 (GSL status %d)",
