@@ -47,6 +47,11 @@
    the deep part is integrated at a looser tolerance, tol exp(2 D_k) DEEP_SAFETY (at most DEEP_TOL_MAX),
    beyond each of the points where the walk passed D_k. (The steps there are limited by the relaxation rate
    2 kappa, not by the solution, which is smooth: 3/4 of the Pruefer steps lay beyond the turning point.) */
+/* The walk stops before match_decay where the start's own error, estimated as the next term of the WKB
+   series of the decaying solution's log-derivative (~delta^3, delta = |kappa'|/kappa^2; the start carries
+   the terms to delta^2), damped by exp(-2 D), is below START_ERROR rad, but not before START_MIN_DECAY */
+#define START_ERROR 1e-11
+#define START_MIN_DECAY 5.0
 #define DEEP_STAGES 3
 static const double deep_decay[DEEP_STAGES] = {7, 5, 3};
 #define DEEP_SAFETY 0.1
@@ -273,6 +278,18 @@ static double milne_end(const wkb_well *w, double binding, double b, double r_tu
     return r_m;
 }
 
+/* The WKB series of the decaying solution's log-derivative in the forbidden region, z = u_rho/u =
+   -kappa + y1 + y2 + ..., from the Riccati equation z_rho = kappa^2 - z^2 order by order:
+   y1 = -kappa'/(2 kappa), y2 = (y1' + y1^2)/(2 kappa) = -kappa''/(4 kappa^2) + 3 kappa'^2/(8 kappa^3)
+   (derivatives in rho; y_n ~ kappa delta^n, delta = |kappa'|/kappa^2). kin = E - V_J < 0 at the point of pv. */
+static void decay_terms(double kin, const wkb_pot_value *pv, double sigma, double eps, double *y1, double *y2)
+{
+    const double kappa = sqrt(-kin / eps), dV = pv->dV / eps;
+    const double kp = sigma * dV / (2 * kappa), kpp = pv->d2V / (2 * eps * kappa) - dV * dV / (4 * kappa * kappa * kappa);
+    *y1 = -kp / (2 * kappa);
+    *y2 = -kpp / (4 * kappa * kappa) + 3 * kp * kp / (8 * kappa * kappa * kappa);
+}
+
 int wkb_end_solution(wkb_well *w, double binding, int outer, double r_turn, double b, wkb_end_phase *out,
                      wkb_error *err)
 {
@@ -286,6 +303,7 @@ int wkb_end_solution(wkb_well *w, double binding, int outer, double r_turn, doub
     double r = r_turn, acc = 0, h = WALK_FIRST_STEP;
     double r_deep[DEEP_STAGES] = {0}; /* where the walk passed deep_decay[k] (0: it did not) */
     size_t n_walk = 0;
+    int settled = 0; /* the walk stopped where the start is accurate enough */
     for (int i = 0; i < WALK_MAX_STEPS && acc < w->set.match_decay; i++) {
         const double rn = r * exp(sigma * h), rm = r * exp(0.5 * sigma * h);
         const double kin = wkb_well_kinetic(w, binding, rm, &pv);
@@ -298,13 +316,21 @@ int wkb_end_solution(wkb_well *w, double binding, int outer, double r_turn, doub
             if (!(r_deep[k] > 0) && acc >= deep_decay[k])
                 r_deep[k] = rn; /* the far end of the step: at least D_k from the turning point */
         r = rn;
+        if (w->set.match_milne && kin < 0 && acc >= START_MIN_DECAY) {
+            /* delta at the midpoint is larger than at r (it falls off into the forbidden region) */
+            double y1, y2;
+            decay_terms(kin, &pv, sigma, eps, &y1, &y2);
+            const double kappa = sqrt(-kin / eps);
+            if ((settled = fabs(y1 * y2) / (kappa * kappa) * exp(-2 * acc) <= START_ERROR))
+                break;
+        }
         h = GSL_MIN(1.15 * h, WALK_MAX_STEP);
         if (!outer && r < 1e-6 * r_turn)
             break;
     }
     double kin = wkb_well_kinetic(w, binding, r, &pv);
     /* an inner wall of finite height (V finite at r = 0): the regular solution, u = 0 at r -> 0 */
-    const int regular = !outer && acc < w->set.match_decay && isfinite(kin);
+    const int regular = !outer && !settled && acc < w->set.match_decay && isfinite(kin);
     while (!regular && !(isfinite(kin) && kin < 0) && fabs(log(r / r_turn)) > 1e-3) { /* step back to a finite point */
         r = r * exp(-0.5 * sigma * fabs(log(r / r_turn)) * 0.1);
         kin = wkb_well_kinetic(w, binding, r, &pv);
@@ -323,8 +349,10 @@ int wkb_end_solution(wkb_well *w, double binding, int outer, double r_turn, doub
     double y[1] = {M_PI}; /* u = 0 */
     if (!regular) {
         const double F = kin / eps, kappa = sqrt(-F), q = sqrt(sqrt(F * F + m->ctx.q04));
-        const double dkappa_rho = sigma * pv.dV / (2 * eps * kappa);
-        const double z = -kappa - dkappa_rho / (2 * kappa);
+        double y1, y2;
+        decay_terms(kin, &pv, sigma, eps, &y1, &y2);
+        /* the earlier solve starts at match_decay from the first-order terms alone */
+        const double z = -kappa + y1 + (w->set.match_milne ? y2 : 0);
         y[0] = M_PI_2 - atan(z / q);
     }
     /* the allowed stretch from b to r_m where WKB holds: the phase-amplitude form, started from the
