@@ -249,7 +249,11 @@ static int solve_level(wkb_well *w, size_t v, wkb_level *level, double *avg_dVdp
     /* a well too quantal for second order: its second-order level still starts the exact-phase solve
        closer (~1e-5 in v, measured at mu = 0.5 u) than the extrapolated defect (~1e-3) */
     int second_start = 0;
-    if (w->across && !w->set.match_rule && level->status == WKB_SUCCESS) {
+    /* ... and so does it for the last two levels behind a centrifugal barrier (2e-6 - 1.2e-5 in v on the
+       bench_matched wells at J = 10, the defect 2e-5 - 2e-4): their later phase evaluations then reuse
+       the end solutions instead of solving them again (issue 7) */
+    const int across_last = w->rot > 0 && v + WKB_ACROSS_LAST >= w->count;
+    if ((w->across || across_last) && !w->set.match_rule && level->status == WKB_SUCCESS) {
         wkb_level second = *level;
         wkb_error e2;
         if (second_order_level(w, v, &second, NULL, &e2) == WKB_SUCCESS) {
@@ -262,7 +266,7 @@ static int solve_level(wkb_well *w, size_t v, wkb_level *level, double *avg_dVdp
        spacing is still finite), goes too; at J = 0 the last levels lie at threshold, where the matched
        rule is exact to ~1e-11 cm-1 */
     const int across = w->set.match_rule ? w->set.match_rule == WKB_RULE_ACROSS
-                                         : (w->across || (w->rot > 0 && v + WKB_ACROSS_LAST >= w->count));
+                                         : (w->across || across_last);
     level->rule = across ? WKB_RULE_ACROSS : WKB_RULE_MATCHED;
     return level->status = wkb_matched_solve(w, v, across, second_start, level, err);
 }
