@@ -129,7 +129,8 @@ static int pruefer2_rhs(double t, const double y[], double f[], void *params)
     wkb_pot_value pv;
     const double F = wkb_well_kinetic(c->w, c->binding, r, &pv) * FE, Fr = -pv.dV * FE;
     c->n_eval++;
-    const double q4 = F * F + c->q04, iq4 = 1 / q4, q = sqrt(sqrt(q4)), iq = 1 / q;
+    /* 1/q = q^3/q^4: the division runs beside the square roots instead of after them */
+    const double q4 = F * F + c->q04, iq4 = 1 / q4, q2 = sqrt(q4), q = sqrt(q2), iq = q * q2 * iq4;
     const double qq = 0.5 * c->sigma * F * Fr * iq4; /* q_rho/q */
     const double s = sin(y[0]), co = cos(y[0]), Fq = F * iq;
     f[0] = -r * (q * co * co + Fq * s * s + qq * s * co);
