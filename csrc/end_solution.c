@@ -37,9 +37,26 @@
 /* largest |y_E (E - E_k)| of a reused stretch; the neglected second-order term, ~ |y_E dE| dE/(2 (E - V))
    at the stretch's end, stays below ~3e-9 rad there (below the ODE's own 20 tolerances) */
 #define REUSE_MAX 1e-4
-/* and of a reused Pruefer solution |phi_E (E - E_k)|: its second-order term stays ~1e-10 rad */
-#define REUSE_MAX_PRUEFER 1e-5
+/* and of a reused Pruefer solution |phi_E (E - E_k)|: its second-order term stays ~5e-10 rad (3e-5 rather
+   than 1e-5 spares the light well's second full solve of its levels 0 and 2, 11 % of its cost; the levels
+   moved by < 1e-7 cm-1, measured against the exact solver at 1e-10) */
+#define REUSE_MAX_PRUEFER 3e-5
 #define MILNE_MIN_LOG 0.05 /* shorter phase-amplitude stretches (in ln r) are not worth starting */
+/* In the forbidden region the decaying solution is an attractor of the Pruefer angle: an error made where
+   the tunnelling integral left to the turning point is D is damped by exp(-2 D) before it gets there, so
+   the deep part is integrated at a looser tolerance, tol exp(2 D_k) DEEP_SAFETY (at most DEEP_TOL_MAX),
+   beyond each of the points where the walk passed D_k. (The steps there are limited by the relaxation rate
+   2 kappa, not by the solution, which is smooth, so a looser tolerance buys less than it seems: measured
+   -5 % right-hand sides on the light bench_matched well, ~0 on the others.) */
+/* The walk stops before match_decay where the start's own error, estimated as the next term of the WKB
+   series of the decaying solution's log-derivative (~delta^3, delta = |kappa'|/kappa^2; the start carries
+   the terms to delta^2), damped by exp(-2 D), is below START_ERROR rad, but not before START_MIN_DECAY */
+#define START_ERROR 1e-11
+#define START_MIN_DECAY 5.0
+#define DEEP_STAGES 3
+static const double deep_decay[DEEP_STAGES] = {7, 5, 3};
+#define DEEP_SAFETY 0.1
+#define DEEP_TOL_MAX 1e-5
 
 typedef struct {
     const wkb_well *w;
@@ -93,13 +110,14 @@ void wkb_matched_free(wkb_matched *m)
 static int pruefer_rhs(double t, const double y[], double f[], void *params)
 {
     rhs_ctx *c = params;
-    const double r = exp(-c->sigma * t), eps = c->w->eps;
+    const double r = exp(-c->sigma * t), ieps = 1 / c->w->eps;
     wkb_pot_value pv;
-    const double F = wkb_well_kinetic(c->w, c->binding, r, &pv) / eps, Fr = -pv.dV / eps;
+    const double F = wkb_well_kinetic(c->w, c->binding, r, &pv) * ieps, Fr = -pv.dV * ieps;
     c->n_eval++;
-    const double q = sqrt(sqrt(F * F + c->q04)), q_rho = c->sigma * F * Fr / (2 * q * q * q);
+    /* q = (F^2 + q0^4)^(1/4); q_rho/q = sigma F F_rho/(2 q^4) (two divisions: this runs ~1e3 times per end) */
+    const double q4 = F * F + c->q04, q = sqrt(sqrt(q4)), iq = 1 / q, qq = 0.5 * c->sigma * F * Fr / q4;
     const double s = sin(y[0]), co = cos(y[0]);
-    f[0] = -r * (q * co * co + (F / q) * s * s + (q_rho / q) * s * co);
+    f[0] = -r * (q * co * co + F * iq * s * s + qq * s * co);
     return isfinite(f[0]) ? GSL_SUCCESS : GSL_EBADFUNC;
 }
 
@@ -107,16 +125,19 @@ static int pruefer_rhs(double t, const double y[], double f[], void *params)
 static int pruefer2_rhs(double t, const double y[], double f[], void *params)
 {
     rhs_ctx *c = params;
-    const double r = exp(-c->sigma * t), eps = c->w->eps;
+    const double r = exp(-c->sigma * t), FE = 1 / c->w->eps;
     wkb_pot_value pv;
-    const double F = wkb_well_kinetic(c->w, c->binding, r, &pv) / eps, Fr = -pv.dV / eps, FE = 1 / eps;
+    const double F = wkb_well_kinetic(c->w, c->binding, r, &pv) * FE, Fr = -pv.dV * FE;
     c->n_eval++;
-    const double q4 = F * F + c->q04, q = sqrt(sqrt(q4)), qq = c->sigma * F * Fr / (2 * q4); /* q_rho/q */
-    const double s = sin(y[0]), co = cos(y[0]);
-    f[0] = -r * (q * co * co + (F / q) * s * s + qq * s * co);
-    const double q_E = F * FE / (2 * q * q * q), Fq_E = FE / q - F * q_E / (q * q);
-    const double qq_E = c->sigma * Fr * FE * (c->q04 - F * F) / (2 * q4 * q4);
-    const double f_phi = -r * (2 * (F / q - q) * s * co + qq * (co * co - s * s));
+    /* 1/q = q^3/q^4: the division runs beside the square roots instead of after them */
+    const double q4 = F * F + c->q04, iq4 = 1 / q4, q2 = sqrt(q4), q = sqrt(q2), iq = q * q2 * iq4;
+    const double qq = 0.5 * c->sigma * F * Fr * iq4; /* q_rho/q */
+    const double s = sin(y[0]), co = cos(y[0]), Fq = F * iq;
+    f[0] = -r * (q * co * co + Fq * s * s + qq * s * co);
+    /* q_E = F F_E/(2 q^3) = F F_E q/(2 q^4); (F/q)_E = F_E/q - F q_E/q^2 */
+    const double q_E = 0.5 * F * FE * q * iq4, Fq_E = FE * iq - Fq * q_E * iq;
+    const double qq_E = 0.5 * c->sigma * Fr * FE * (c->q04 - F * F) * iq4 * iq4;
+    const double f_phi = -r * (2 * (Fq - q) * s * co + qq * (co * co - s * s));
     f[1] = f_phi * y[1] - r * (q_E * co * co + Fq_E * s * s + qq_E * s * co);
     return isfinite(f[0]) && isfinite(f[1]) ? GSL_SUCCESS : GSL_EBADFUNC;
 }
@@ -259,6 +280,18 @@ static double milne_end(const wkb_well *w, double binding, double b, double r_tu
     return r_m;
 }
 
+/* The WKB series of the decaying solution's log-derivative in the forbidden region, z = u_rho/u =
+   -kappa + y1 + y2 + ..., from the Riccati equation z_rho = kappa^2 - z^2 order by order:
+   y1 = -kappa'/(2 kappa), y2 = (y1' + y1^2)/(2 kappa) = -kappa''/(4 kappa^2) + 3 kappa'^2/(8 kappa^3)
+   (derivatives in rho; y_n ~ kappa delta^n, delta = |kappa'|/kappa^2). kin = E - V_J < 0 at the point of pv. */
+static void decay_terms(double kin, const wkb_pot_value *pv, double sigma, double eps, double *y1, double *y2)
+{
+    const double kappa = sqrt(-kin / eps), dV = pv->dV / eps;
+    const double kp = sigma * dV / (2 * kappa), kpp = pv->d2V / (2 * eps * kappa) - dV * dV / (4 * kappa * kappa * kappa);
+    *y1 = -kp / (2 * kappa);
+    *y2 = -kpp / (4 * kappa * kappa) + 3 * kp * kp / (8 * kappa * kappa * kappa);
+}
+
 int wkb_end_solution(wkb_well *w, double binding, int outer, double r_turn, double b, wkb_end_phase *out,
                      wkb_error *err)
 {
@@ -270,7 +303,9 @@ int wkb_end_solution(wkb_well *w, double binding, int outer, double r_turn, doub
     wkb_pot_value pv;
     /* walk into the forbidden region until integral kappa dr reaches match_decay */
     double r = r_turn, acc = 0, h = WALK_FIRST_STEP;
+    double r_deep[DEEP_STAGES] = {0}; /* where the walk passed deep_decay[k] (0: it did not) */
     size_t n_walk = 0;
+    int settled = 0; /* the walk stopped where the start is accurate enough */
     for (int i = 0; i < WALK_MAX_STEPS && acc < w->set.match_decay; i++) {
         const double rn = r * exp(sigma * h), rm = r * exp(0.5 * sigma * h);
         const double kin = wkb_well_kinetic(w, binding, rm, &pv);
@@ -279,14 +314,25 @@ int wkb_end_solution(wkb_well *w, double binding, int outer, double r_turn, doub
             break; /* the potential is not finite further in: start where it still is */
         if (kin < 0)
             acc += sqrt(-kin / eps) * fabs(rn - r);
+        for (int k = 0; k < DEEP_STAGES; k++)
+            if (!(r_deep[k] > 0) && acc >= deep_decay[k])
+                r_deep[k] = rn; /* the far end of the step: at least D_k from the turning point */
         r = rn;
+        if (w->set.match_milne && kin < 0 && acc >= START_MIN_DECAY) {
+            /* delta at the midpoint is larger than at r (it falls off into the forbidden region) */
+            double y1, y2;
+            decay_terms(kin, &pv, sigma, eps, &y1, &y2);
+            const double kappa = sqrt(-kin / eps);
+            if ((settled = fabs(y1 * y2) / (kappa * kappa) * exp(-2 * acc) <= START_ERROR))
+                break;
+        }
         h = GSL_MIN(1.15 * h, WALK_MAX_STEP);
         if (!outer && r < 1e-6 * r_turn)
             break;
     }
     double kin = wkb_well_kinetic(w, binding, r, &pv);
     /* an inner wall of finite height (V finite at r = 0): the regular solution, u = 0 at r -> 0 */
-    const int regular = !outer && acc < w->set.match_decay && isfinite(kin);
+    const int regular = !outer && !settled && acc < w->set.match_decay && isfinite(kin);
     while (!regular && !(isfinite(kin) && kin < 0) && fabs(log(r / r_turn)) > 1e-3) { /* step back to a finite point */
         r = r * exp(-0.5 * sigma * fabs(log(r / r_turn)) * 0.1);
         kin = wkb_well_kinetic(w, binding, r, &pv);
@@ -305,8 +351,10 @@ int wkb_end_solution(wkb_well *w, double binding, int outer, double r_turn, doub
     double y[1] = {M_PI}; /* u = 0 */
     if (!regular) {
         const double F = kin / eps, kappa = sqrt(-F), q = sqrt(sqrt(F * F + m->ctx.q04));
-        const double dkappa_rho = sigma * pv.dV / (2 * eps * kappa);
-        const double z = -kappa - dkappa_rho / (2 * kappa);
+        double y1, y2;
+        decay_terms(kin, &pv, sigma, eps, &y1, &y2);
+        /* the earlier solve starts at match_decay from the first-order terms alone */
+        const double z = -kappa + y1 + (w->set.match_milne ? y2 : 0);
         y[0] = M_PI_2 - atan(z / q);
     }
     /* the allowed stretch from b to r_m where WKB holds: the phase-amplitude form, started from the
@@ -384,7 +432,20 @@ int wkb_end_solution(wkb_well *w, double binding, int outer, double r_turn, doub
         double y2[2] = {y[0], 0}; /* the start's own energy dependence is damped by exp(-2 match_decay) */
         gsl_odeiv2_driver *drv = m->reuse == 2 ? m->pruefer2_drv : m->drv;
         gsl_odeiv2_driver_reset_hstart(drv, 1e-3 * GSL_SIGN(t_end - t));
-        int gs = gsl_odeiv2_driver_apply(drv, &t, t_end, y2);
+        int gs = GSL_SUCCESS;
+        for (int k = 0; k < DEEP_STAGES && gs == GSL_SUCCESS && w->set.match_milne; k++) { /* the deep stages, loosest first (not in the earlier solve) */
+            const double t_k = -sigma * log(r_deep[k]);
+            if (!(r_deep[k] > 0) || !(t_k > t) || !(t_k < t_end))
+                continue;
+            const double tol_k = GSL_MIN(DEEP_TOL_MAX, m->tol * exp(2 * deep_decay[k]) * DEEP_SAFETY);
+            if (!(tol_k > m->tol))
+                continue;
+            gsl_odeiv2_control_init(drv->c, tol_k, 0.0, 1.0, 0.0);
+            gs = gsl_odeiv2_driver_apply(drv, &t, t_k, y2);
+        }
+        gsl_odeiv2_control_init(drv->c, m->tol, 0.0, 1.0, 0.0);
+        if (gs == GSL_SUCCESS)
+            gs = gsl_odeiv2_driver_apply(drv, &t, t_end, y2);
         if (gs != GSL_SUCCESS || !isfinite(y2[0]))
             return wkb_fail(err, WKB_ENUMERIC,
                             "the exact %s-end solution failed at binding energy %.6g cm-1 (GSL status %d)",

@@ -304,7 +304,8 @@ int wkb_threshold_number(wkb_well *w, double *v_th, wkb_error *err)
         w->v_th_status = ts;
         return ts;
     }
-    wkb_end_reuse(w, w->across || w->rot > 0 ? 2 : 1);
+    /* one solve keeps nothing (the drivers without energy derivatives are cheaper), three reuse */
+    wkb_end_reuse(w, single ? 0 : (w->across || w->rot > 0 ? 2 : 1));
     for (int k = 0; k < (single ? 1 : 3); k++) {
         int status = quantum_number(w, b0 * (k + 1) * (k + 1), &vk[k], NULL, w->across, err);
         if (status) {

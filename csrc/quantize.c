@@ -232,6 +232,8 @@ static int solve_level(wkb_well *w, size_t v, wkb_level *level, double *avg_dVdp
         return solve_first_order(w, v, level, avg_dVdp, err);
     memset(level, 0, sizeof *level);
     level->status = WKB_ENOCONV;
+    wkb_level second_start_level; /* a second-order level judged not good enough: kept as the start */
+    int have_second = 0;
     if (v < w->count_first) {
         /* level 0 without derivatives: prepare has solved it already, at first order and (where the
            well is not too quantal) at second order */
@@ -268,15 +270,29 @@ static int solve_level(wkb_well *w, size_t v, wkb_level *level, double *avg_dVdp
                 level->rule = WKB_RULE_SECOND;
                 return level->status = WKB_SUCCESS;
             }
+            if (s2 == WKB_SUCCESS) {
+                second_start_level = second;
+                have_second = 1;
+            }
         }
     }
     /* a well too quantal for second order: its second-order level still starts the exact-phase solve
        closer (~1e-5 in v, measured at mu = 0.5 u) than the extrapolated defect (~1e-3) */
     int second_start = 0;
-    if (w->across && !w->set.match_rule && level->status == WKB_SUCCESS) {
+    /* ... and so does it for the last two levels behind a centrifugal barrier (2e-6 - 1.2e-5 in v on the
+       bench_matched wells at J = 10, the defect 2e-5 - 2e-4) and for the matched levels near threshold but
+       the last one at J = 0 (C3 tail: 5e-7 - 7e-5 against 5e-4 - 7e-3; C6: 1.8e-4 against 2.3e-3): their
+       later phase evaluations then reuse more of the end solutions (issue 7). The last level at J = 0
+       starts from the threshold expansion instead (second order finds no root there or is 2e-2 off). */
+    const int across_last = w->rot > 0 && v + WKB_ACROSS_LAST >= w->count;
+    const int threshold_last = w->rot == 0 && v + 1 >= w->count;
+    if (!w->set.match_rule && level->status == WKB_SUCCESS && (w->across || across_last || !threshold_last)) {
         wkb_level second = *level;
         wkb_error e2;
-        if (second_order_level(w, v, &second, NULL, &e2) == WKB_SUCCESS) {
+        if (have_second) {
+            *level = second_start_level;
+            second_start = 1;
+        } else if (second_order_level(w, v, &second, NULL, &e2) == WKB_SUCCESS) {
             *level = second;
             second_start = 1;
         }
@@ -286,7 +302,7 @@ static int solve_level(wkb_well *w, size_t v, wkb_level *level, double *avg_dVdp
        spacing is still finite), goes too; at J = 0 the last levels lie at threshold, where the matched
        rule is exact to ~1e-11 cm-1 */
     const int across = w->set.match_rule ? w->set.match_rule == WKB_RULE_ACROSS
-                                         : (w->across || (w->rot > 0 && v + WKB_ACROSS_LAST >= w->count));
+                                         : (w->across || across_last);
     level->rule = across ? WKB_RULE_ACROSS : WKB_RULE_MATCHED;
     return level->status = wkb_matched_solve(w, v, across, second_start, level, err);
 }
