@@ -395,6 +395,10 @@ static void *evaluate_part(void *arg)
     double cur_mu = NAN, cur_rot = NAN, ref_mu = NAN;
     const wkb_model *cur_model = NULL;
     double *calc = part->calc, *jac = part->jac;
+    /* an external source without a Jacobian wanted computes levels only (the exact solver's
+       <v|dV/dp|v> costs about three times its level); WKB levels always carry dE/dp, the next
+       evaluation's seeds */
+    const int want_dE = jac || !ev->source;
     wkb_error *err = &part->err;
     int status = WKB_SUCCESS;
 
@@ -407,7 +411,7 @@ static void *evaluate_part(void *arg)
             if ((status = set_well(part, pot, mu, 0.0, err)))
                 break;
             cur_mu = mu, cur_rot = 0.0, cur_model = NULL;
-            if ((status = level_of(part, 0, NAN, 0, &ref_E, NULL, ref_dE, err)))
+            if ((status = level_of(part, 0, NAN, 0, &ref_E, NULL, want_dE ? ref_dE : NULL, err)))
                 break;
             ref_mu = mu;
         }
@@ -424,7 +428,7 @@ static void *evaluate_part(void *arg)
         double E, Bv = NAN;
         int strong;
         const double seed = seed_of(ev, pot, s, &strong);
-        if ((status = level_of(part, d->v[i], seed, strong, &E, &Bv, dE, err)))
+        if ((status = level_of(part, d->v[i], seed, strong, &E, &Bv, want_dE ? dE : NULL, err)))
             break;
         if (!ev->source) {
             ev->cur_E[s] = E;

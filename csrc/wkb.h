@@ -635,6 +635,13 @@ int wkb_fit_levels(const wkb_potential *pot, double mu, double rot, const wkb_se
                    const wkb_level_source *source, size_t capacity, double *energy, double *dEdp,
                    size_t *count, double *vD, double *dvDdp, wkb_error *err);
 
+/* ---------------------------------------------------------------- tall_qr.c */
+/* Householder QR of the row-major n x p matrix A (n >= p >= 1) on the calling thread (the fits' tall
+   Jacobians: no threaded BLAS): R[p][p] upper triangular (A = Q R); with b (n values, may be NULL),
+   qtb[p] = the first p entries of Q^T b and *rest = the sum of squares of the others. */
+int wkb_tall_qr(size_t n, size_t p, const double *A, const double *b, double *R, double *qtb, double *rest,
+                wkb_error *err);
+
 /* ---------------------------------------------------------------- replica_fit.c */
 /* Per-level corrections to first-order WKB levels, linear in the parameters:
    E_v(p) = E_wkb,v(p) + shift[i] + slope[i] . (p - p0), for the level i of (mu, rot, v); table sorted

@@ -23,7 +23,7 @@ import math
 
 import numpy as np
 
-from . import _core
+from . import _core, _tall
 from .rotational_corrections import exact_rows, interpolable
 
 __all__ = ["run_corrected", "run_corrected_rows", "RowEvaluator", "run_with_unbound_rows", "LINEAR_STEP", "REMAINDER_SD",
@@ -55,13 +55,18 @@ def _gauss_newton(calc, jac, energy, sigma, var):
     norms = np.linalg.norm(A, axis=0)
     norms[norms == 0] = 1.0
     An = A / norms
-    step, *_ = np.linalg.lstsq(An, -r, rcond=None)
-    step /= norms
-    try:
-        inv = np.linalg.inv(An.T @ An) / np.outer(norms, norms)
-    except np.linalg.LinAlgError:
-        inv = np.linalg.pinv(An.T @ An) / np.outer(norms, norms)
-    chi2 = float(r @ r)
+    chi2 = _tall.sumsq(r)
+    if not var or len(r) < len(var):
+        step, *_ = np.linalg.lstsq(An, -r, rcond=None)  # (nothing tall: numpy as it is)
+        step /= norms
+        try:
+            inv = np.linalg.inv(An.T @ An) / np.outer(norms, norms)
+        except np.linalg.LinAlgError:
+            inv = np.linalg.pinv(An.T @ An) / np.outer(norms, norms)
+    else:
+        # the n-row work off numpy's threaded BLAS (_tall.py): QR in C, then p x p matrices
+        step, inv = _tall.lstsq_and_inverse(An, -r)
+        step, inv = step / norms, inv / np.outer(norms, norms)
     dof = len(r) - len(var)
     sd = np.sqrt(np.abs(np.diag(inv)))
     if dof > 0:
@@ -216,7 +221,7 @@ def run_corrected(args, *, tolerance=LINEAR_STEP, max_refreshes=MAX_REFRESHES, i
                 except ValueError:
                     wkb_f = None  # the step leaves the model's domain: correct and run again
                 if wkb_f is not None:
-                    remainder = wkb_f - (out["calc"] - offset) - out["jacobian"] @ full
+                    remainder = wkb_f - (out["calc"] - offset) - _tall.matvec(out["jacobian"], full)
                     shift, _, _ = _gauss_newton(energy + remainder, jac_ex, energy, sigma, var)
                     history[-1]["remainder_sd"] = float(np.max(np.abs(shift) / sd)) if var else 0.0
                     if history[-1]["remainder_sd"] < REMAINDER_SD:
@@ -244,9 +249,9 @@ def run_corrected(args, *, tolerance=LINEAR_STEP, max_refreshes=MAX_REFRESHES, i
         correction = np.zeros(len(a["vary"]))
         correction[var] = shift
         p_final = out["params"] + full + correction
-        calc_final = calc_ex + jac_ex @ (full + correction) + remainder
+        calc_final = calc_ex + _tall.matvec(jac_ex, full + correction) + remainder
         r = (calc_final - energy) / sigma
-        out.update(params=p_final, calc=calc_final, jacobian=jac_ex, chi_square=float(r @ r))
+        out.update(params=p_final, calc=calc_final, jacobian=jac_ex, chi_square=_tall.sumsq(r))
     else:
         remainder = np.full(len(v), np.nan)
     out.update(iterations=iterations, n_eval=n_eval, refreshes=refreshes, exact_jacobians=jacobians,
@@ -395,10 +400,10 @@ def run_corrected_rows(ev, n_params, vary, max_iterations, *, tolerance=ROWS_STE
                 try:
                     w0 = ev.run(p, e, ev.zero, _WKB, 0)
                     w1 = ev.run(p + full[:n_params], e + full[n_params:], ev.zero, _WKB, 0)
-                    remainder = np.asarray(w1["calc"]) - np.asarray(w0["calc"]) - np.asarray(w0["jacobian"]) @ full
+                    remainder = np.asarray(w1["calc"]) - np.asarray(w0["calc"]) - _tall.matvec(w0["jacobian"], full)
                 except ValueError:
                     remainder = np.full(len(calc), np.nan)
-                calc = calc + jac @ full
+                calc = calc + _tall.matvec(jac, full)
                 p, e = p + full[:n_params], e + full[n_params:]
                 break
             if refreshes >= max_refreshes:
@@ -412,7 +417,7 @@ def run_corrected_rows(ev, n_params, vary, max_iterations, *, tolerance=ROWS_STE
             kind = "levels"
         r = (calc - observed) / sigma
         out = dict(out)
-        out.update(params=p, extra=e, calc=calc, jacobian=jac, chi_square=float(r @ r),
+        out.update(params=p, extra=e, calc=calc, jacobian=jac, chi_square=_tall.sumsq(r),
                    n_level_calculations=out["n_level_calculations"] + n_levels)
     out = dict(out)
     out.update(iterations=iterations, n_eval=n_eval, refreshes=refreshes, exact_jacobians=jacobians,

@@ -72,14 +72,10 @@ def _level_deltas(model, params, curve, levels, tolerance, jacobian):
     J = np.array([j for _, j, _ in levels], dtype=int)
     v = np.array([vv for _, _, vv in levels], dtype=np.intc)
     rot = (J * (J + 1)).astype(float)
-    if jacobian:
-        ex, jex = _core.fit_evaluate(model, params, curve, v, rot, mu, 0, _EXACT, tolerance)
-    else:
-        # levels only: one solver call per (mu, J), no parameter derivatives
-        from .corrected import exact_calc
-        ex, _ = exact_calc(model, params, curve, v, rot, mu, 0, tolerance)
-        jex = None
-    wk, jwk = _core.fit_evaluate(model, params, curve, v, rot, mu, 0, _WKB)
+    # one core call for all (mu, J) groups, threaded over them (csrc/fit_levels.c, GIL released); levels
+    # only: without <v|dV/dp|v> (the same levels, bit for bit, as corrected.exact_calc's per-(mu, J) calls)
+    ex, jex = _core.fit_evaluate(model, params, curve, v, rot, mu, 0, _EXACT, tolerance, jacobian=jacobian)
+    wk, jwk = _core.fit_evaluate(model, params, curve, v, rot, mu, 0, _WKB, jacobian=jacobian)
     d = ex - wk
     if jacobian:
         return np.column_stack([d, jex - jwk])
@@ -140,14 +136,16 @@ def exact_rows(model, params, curve, v, rot, mu, energy_zero, tolerance, wkb_cal
     per_level = np.full((len(v), len(col_tol)), np.nan)
     degree_of = {}
     pending = [key for key in groups if smooth and span[key][2] >= MIN_J]
+    zero_levels = [(m, 0, 0) for m in np.unique(mu).tolist()] if energy_zero == 2 else []
     for degree in DEGREES:
         # blocks of (mu, v) with the same J range share their nodes
         blocks = {}
         for m, vv in pending:
             blocks.setdefault((m,) + span[(m, vv)][:2], []).append(vv)
         plans = {b: _node_j(b[1], b[2], degree) for b in blocks}
+        # (the data zeros with the first nodes: one threaded core call)
         solve([(b[0], int(j), vv) for b, vs in blocks.items() if plans[b] is not None
-               for j in np.concatenate(plans[b]) for vv in vs])
+               for j in np.concatenate(plans[b]) for vv in vs] + (zero_levels if degree == DEGREES[0] else []))
         failed = []
         for b, vs in blocks.items():
             if plans[b] is None:
@@ -176,7 +174,6 @@ def exact_rows(model, params, curve, v, rot, mu, energy_zero, tolerance, wkb_cal
     fallback = [key for key in pending if smooth and span[key][2] >= MIN_J]
     # rows solved as they are: few J, or every check failed
     direct = [i for key, idx in groups.items() if key not in degree_of for i in idx]
-    zero_levels = [(m, 0, 0) for m in np.unique(mu).tolist()] if energy_zero == 2 else []
     solve([(float(mu[i]), int(J[i]), int(v[i])) for i in direct] + zero_levels)
     for i in direct:
         per_level[i] = delta[(float(mu[i]), int(J[i]), int(v[i]))]
