@@ -96,6 +96,8 @@ def exact_rows(model, params, curve, v, rot, mu, energy_zero, tolerance, wkb_cal
     """
     v = np.asarray(v, dtype=int)
     mu = np.asarray(mu, dtype=float)
+    if not len(v):
+        raise ValueError("exact_rows: no rows given")
     J = _j_of(rot)
     smooth = model != "pointwise"
     want_jac = wkb_jac is not None
@@ -105,14 +107,23 @@ def exact_rows(model, params, curve, v, rot, mu, energy_zero, tolerance, wkb_cal
         scale = np.asarray(sd, dtype=float) * linear_step
         col_tol = np.concatenate([col_tol, np.where(scale > 0, CHECK_MARGIN * tolerance / np.where(scale > 0, scale, 1.0),
                                                     np.inf)])
-    groups = {}
-    for i, key in enumerate(zip(mu.tolist(), v.tolist())):
-        groups.setdefault(key, []).append(i)
-    groups = {key: np.asarray(idx) for key, idx in groups.items()}
-    span = {}
-    for key, idx in groups.items():
-        js = J[idx].tolist()
-        span[key] = (min(js), max(js), len(set(js)))
+    # the (mu, v) groups, in the order of their first row (the Python work is per group, not per row: a
+    # 20 000-row refresh spent ~13 ms in per-row loops here)
+    mu_values, mu_index = np.unique(mu, return_inverse=True)
+    n_v, n_J = int(v.max()) + 1, int(J.max()) + 1
+    code = mu_index.astype(np.int64) * n_v + v
+    _, first, group_of = np.unique(code, return_index=True, return_inverse=True)
+    rows_by_group = np.argsort(group_of, kind="stable")
+    cut = np.searchsorted(group_of[rows_by_group], np.arange(len(first) + 1))
+    J_sorted = J[rows_by_group]
+    j_lo = np.minimum.reduceat(J_sorted, cut[:-1]).tolist()
+    j_hi = np.maximum.reduceat(J_sorted, cut[:-1]).tolist()
+    _, n_distinct = np.unique(np.unique(code * n_J + J) // n_J, return_counts=True)
+    keys = list(zip(mu[first].tolist(), v[first].tolist()))
+    groups, span = {}, {}
+    for g in np.argsort(first, kind="stable").tolist():
+        groups[keys[g]] = rows_by_group[cut[g]:cut[g + 1]]
+        span[keys[g]] = (j_lo[g], j_hi[g], int(n_distinct[g]))
     if not (smooth and any(s[2] >= MIN_J for s in span.values())):
         # nothing to interpolate: the rows as they are (no WKB levels needed)
         if want_jac:
@@ -136,7 +147,7 @@ def exact_rows(model, params, curve, v, rot, mu, energy_zero, tolerance, wkb_cal
     per_level = np.full((len(v), len(col_tol)), np.nan)
     degree_of = {}
     pending = [key for key in groups if smooth and span[key][2] >= MIN_J]
-    zero_levels = [(m, 0, 0) for m in np.unique(mu).tolist()] if energy_zero == 2 else []
+    zero_levels = [(m, 0, 0) for m in mu_values.tolist()] if energy_zero == 2 else []
     for degree in DEGREES:
         # blocks of (mu, v) with the same J range share their nodes
         blocks = {}
@@ -173,15 +184,16 @@ def exact_rows(model, params, curve, v, rot, mu, energy_zero, tolerance, wkb_cal
         pending = failed + [(b[0], vv) for b, vs in blocks.items() if plans[b] is None for vv in vs]
     fallback = [key for key in pending if smooth and span[key][2] >= MIN_J]
     # rows solved as they are: few J, or every check failed
-    direct = [i for key, idx in groups.items() if key not in degree_of for i in idx]
-    solve([(float(mu[i]), int(J[i]), int(v[i])) for i in direct] + zero_levels)
-    for i in direct:
-        per_level[i] = delta[(float(mu[i]), int(J[i]), int(v[i]))]
+    direct = [i for key, idx in groups.items() if key not in degree_of for i in idx.tolist()]
+    direct_levels = list(zip(mu[direct].tolist(), J[direct].tolist(), v[direct].tolist()))
+    solve(direct_levels + zero_levels)
+    if direct:
+        per_level[direct] = [delta[key] for key in direct_levels]
     # rows from levels: asymptote - E (zero 1), E - E(v=0, J=0) of the same mu (zero 2)
     if energy_zero == 1:
         per_level = -per_level
     elif energy_zero == 2:
-        per_level = per_level - np.array([delta[(m, 0, 0)] for m in mu.tolist()])
+        per_level = per_level - np.array([delta[(m, 0, 0)] for m in mu_values.tolist()])[mu_index]
     calc = np.asarray(wkb_calc, dtype=float) + per_level[:, 0]
     jac = np.asarray(wkb_jac, dtype=float) + per_level[:, 1:] if want_jac else None
     info = {"exact_levels": n_exact, "interpolated_rows": len(v) - len(direct), "fallback": fallback,
