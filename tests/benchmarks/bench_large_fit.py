@@ -12,9 +12,16 @@ Threads: numpy's OpenBLAS keeps its worker threads spinning (~0.1 s) after each 
 tall-skinny products, least squares and QR in Python), and they take the core the evaluator's second
 thread needs: measured on 2 cores, ratio 0.91 as is, 0.65 with OPENBLAS_NUM_THREADS=1 (the line printed
 says which).
-Run: python3 tests/benchmarks/bench_large_fit.py  (or OPENBLAS_NUM_THREADS=1 python3 ...)
+Before/after: with --baseline TREE (a built checkout of an earlier commit), the same fit is timed in
+a subprocess on TREE's package, alternating with this tree's in rounds (the machine's load then weighs
+on both alike), and the ratio per round is printed.
+Measured (2 cores shared with other jobs, load 2-5: absolute times noisy, ratios less so): see the
+figures in the commit message of this file's last change.
+Run: python3 tests/benchmarks/bench_large_fit.py [--baseline TREE]  (or OPENBLAS_NUM_THREADS=1 python3 ...)
 """
+import json
 import os
+import subprocess
 import sys
 import time
 
@@ -22,7 +29,8 @@ import functools
 
 import numpy as np
 
-sys.path.insert(0, os.path.join(os.path.dirname(__file__), "..", "..", "pkg"))
+# --time-only: the fit's wall time as JSON (the baseline's subprocess; WKBFIT_PKG: the package to time)
+sys.path.insert(0, os.environ.get("WKBFIT_PKG") or os.path.join(os.path.dirname(__file__), "..", "..", "pkg"))
 import wkbfit  # noqa: E402
 import wkbfit.corrected  # noqa: E402
 from timing import time_call  # noqa: E402  (tests/benchmarks/timing.py)
@@ -67,9 +75,38 @@ def count_orbits(call):
         core.fit_run = run
 
 
+def _fit_time(obs, masses, start):
+    return time_call(lambda: wkbfit.fit(start, obs, masses), min_time=2.0)
+
+
+def before_after(tree, obs, masses, start, rounds=3):
+    """(baseline times, this tree's times), s: rounds of the baseline's subprocess and this process in turn."""
+    env = dict(os.environ, WKBFIT_PKG=os.path.join(os.path.abspath(tree), "pkg"))
+    base, here = [], []
+    for _ in range(rounds):
+        run = subprocess.run([sys.executable, os.path.abspath(__file__), "--time-only"], env=env, check=True,
+                             capture_output=True, text=True)
+        base.append(json.loads(run.stdout.strip().splitlines()[-1])["fit_s"])
+        here.append(_fit_time(obs, masses, start))
+    return base, here
+
+
 def main():
     obs, masses = data()
     start = wkbfit.LennardJones(De=4040.0, re=4.04)
+    if "--time-only" in sys.argv:
+        wkbfit.fit(start, obs, masses)  # (warm-up)
+        print(json.dumps({"fit_s": _fit_time(obs, masses, start), "package": wkbfit.__file__}))
+        return
+    if "--baseline" in sys.argv:
+        tree = sys.argv[sys.argv.index("--baseline") + 1]
+        wkbfit.fit(start, obs, masses)
+        base, here = before_after(tree, obs, masses, start)
+        print("before/after (%s vs this tree, rounds in turn): before %s ms; after %s ms; ratio after/before per "
+              "round %s (median %.2f)" % (tree, ", ".join("%.1f" % (t * 1e3) for t in base),
+                                          ", ".join("%.1f" % (t * 1e3) for t in here),
+                                          ", ".join("%.2f" % (h / b) for h, b in zip(here, base)),
+                                          float(np.median(np.array(here) / np.array(base)))))
     res, orbits = count_orbits(lambda: wkbfit.fit(start, obs, masses))
     previous = wkbfit._core.set_fit_threads(1)
     try:
