@@ -395,10 +395,10 @@ static void *evaluate_part(void *arg)
     double cur_mu = NAN, cur_rot = NAN, ref_mu = NAN;
     const wkb_model *cur_model = NULL;
     double *calc = part->calc, *jac = part->jac;
-    /* an external source without a Jacobian wanted computes levels only (the exact solver's
-       <v|dV/dp|v> costs about three times its level); WKB levels always carry dE/dp, the next
-       evaluation's seeds */
-    const int want_dE = jac || !ev->source;
+    /* without a Jacobian wanted, levels only: the exact solver's <v|dV/dp|v> costs about three times
+       its level, the orbit averages of dV/dp a part of each orbit (such an evaluation then leaves no
+       seeds for the next one, which need dE/dp: see wkb_fit_evaluate) */
+    const int want_dE = jac != NULL;
     wkb_error *err = &part->err;
     int status = WKB_SUCCESS;
 
@@ -433,7 +433,7 @@ static void *evaluate_part(void *arg)
         if (!ev->source) {
             ev->cur_E[s] = E;
             ev->cur_Bv[s] = Bv;
-            if (np)
+            if (np && want_dE)
                 memcpy(ev->cur_dE + s * np, dE, np * sizeof *dE);
         }
         double *row = jac ? jac + i * np : NULL;
@@ -526,7 +526,7 @@ int wkb_fit_evaluate(wkb_fit_evaluator *ev, const wkb_potential *pot, double *ca
             return part->status;
         }
     }
-    if (!ev->source) {
+    if (!ev->source && jac) {
         /* this evaluation seeds the next one */
         double *t = ev->seed_E;
         ev->seed_E = ev->cur_E, ev->cur_E = t;
@@ -534,6 +534,8 @@ int wkb_fit_evaluate(wkb_fit_evaluator *ev, const wkb_potential *pot, double *ca
         ev->seed_dE = ev->cur_dE, ev->cur_dE = t;
         memcpy(ev->seed_p, pot->p, np * sizeof *pot->p);
         ev->have_seed = 1;
+    } else if (!ev->source) {
+        ev->have_seed = 0; /* (levels without dE/dp: the next evaluation is seeded from neighbouring J) */
     }
     return WKB_SUCCESS;
 }

@@ -534,7 +534,8 @@ wkb_fit_evaluator *wkb_fit_evaluator_alloc(const wkb_fit_data *data, const wkb_s
                                            const wkb_level_source *source, wkb_error *err);
 void wkb_fit_evaluator_free(wkb_fit_evaluator *ev);
 /* calc[n] (cm-1, in the data's energy zero) and, if jac is not NULL, jac[n][n_params] =
-   d calc_i / d p_k for every model parameter. *bad_row (may be NULL) names the row being
+   d calc_i / d p_k for every model parameter (jac NULL: levels only, without the parameter
+   derivatives' cost; the evaluation after such a one starts without seeds from it). *bad_row (may be NULL) names the row being
    computed when a level fails. Status: that of the failing level (WKB_ENOLEVEL when the
    potential does not bind it), WKB_ENUMERIC for a non-finite result. */
 int wkb_fit_evaluate(wkb_fit_evaluator *ev, const wkb_potential *pot, double *calc, double *jac,

@@ -227,7 +227,7 @@ def run_corrected(args, *, tolerance=LINEAR_STEP, max_refreshes=MAX_REFRESHES, i
                 full = np.zeros(len(a["vary"]))
                 full[var] = step
                 try:
-                    wkb_f, _ = _core.fit_evaluate(model, p + full, curve, v, rot, mu, zero, _WKB)
+                    wkb_f, _ = _core.fit_evaluate(model, p + full, curve, v, rot, mu, zero, _WKB, jacobian=False)
                 except ValueError:
                     wkb_f = None  # the step leaves the model's domain: correct and run again
                 if wkb_f is not None:
