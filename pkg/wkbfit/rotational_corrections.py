@@ -11,8 +11,10 @@ interpolated delta misses its exact value by more than CHECK_MARGIN of the level
 elsewhere between nodes can be a few times that at the checks; or the Jacobian's by more
 than tolerance / (linear_step sd) per parameter: the energy error of the largest step the fit takes
 linearly), the degree doubles (the degree-8 nodes contain the degree-4 nodes and checks); where that
-fails too, the (mu, v) is solved row by row. The exact rows are then the first-order WKB rows (known to
-the caller) plus the corrections.
+fails too, the (mu, v) is solved row by row. The Jacobian's corrections d(delta)/dp have a ladder of their
+own, from degree 2 (JACOBIAN_DEGREES: its nodes and checks are the degree-4 nodes, so only those 5 J need
+the exact solver's derivatives, the levels' two check J not). The exact rows are then the first-order WKB
+rows (known to the caller) plus the corrections.
 
 Point-wise curves are not interpolated: the cubic spline's V'' jumps at the knots, so delta(J) is ragged
 at ~3e-8 cm-1 (measured on 60 samples of a Morse well) where two check points cannot see it.
@@ -23,13 +25,19 @@ import numpy as np
 
 from . import _core
 
-__all__ = ["exact_rows", "interpolable", "DEGREES", "MIN_J", "CHECK_MARGIN"]
+__all__ = ["exact_rows", "interpolable", "DEGREES", "JACOBIAN_DEGREES", "MIN_J", "CHECK_MARGIN"]
 
 #: degrees of the interpolating polynomial in J(J+1), tried in turn (each Lobatto node set contains the
 #: previous one and its check points). Measured on the 20 000-level benchmark fit (tolerance 1e-5 cm-1):
 #: starting at degree 2 saves 27 % of the exact levels but its rows, off by up to 2.6e-6 cm-1, move the
 #: fitted parameters by 2e-3 sd; from degree 4 they move by 3e-7 sd
 DEGREES = (4, 8)
+#: degrees of the Jacobian's corrections d(delta)/dp, tried in turn: their check tolerance (the energy error
+#: of the fit's largest linear step) is loose, and degree 2 with its checks needs exactly the degree-4 nodes
+#: (5 J with derivatives instead of 7; the levels' two check J without). Measured on the 20 000-level
+#: benchmark fit: every (mu, v) passes at degree 2, the exact evaluation with the Jacobian costs ~25 % less,
+#: and the fitted parameters move by < 1e-6 sd
+JACOBIAN_DEGREES = (2, 4, 8)
 #: an interpolant is taken when it misses its check points by at most this fraction of the tolerance
 CHECK_MARGIN = 0.25
 #: a (mu, v) with fewer distinct J is solved row by row (degree 4 with its checks needs 7 exact J)
@@ -111,7 +119,9 @@ def exact_rows(model, params, curve, v, rot, mu, energy_zero, tolerance, wkb_cal
     deviation that scales the Jacobian check (0 for a fixed parameter; needed with wkb_jac).
     Returns (calc, jacobian or None, info) with info: {"exact_levels": levels solved exactly,
     "interpolated_rows": rows from the interpolants, "fallback": (mu, v) solved row by row after their
-    checks failed, "degree": {(mu, v): degree used}}.
+    checks failed (both columns: levels and Jacobian), "degree": {(mu, v): degree of the levels' interpolant},
+    "jacobian_degree": {(mu, v): degree of the Jacobian's} (empty without a Jacobian)}; "exact_levels"
+    counts solver calls per level (a level solved without and then with derivatives counts twice).
     """
     v = np.asarray(v, dtype=int)
     mu = np.asarray(mu, dtype=float)
@@ -152,74 +162,94 @@ def exact_rows(model, params, curve, v, rot, mu, energy_zero, tolerance, wkb_cal
             from .corrected import exact_calc
             calc, jac = exact_calc(model, params, curve, v, rot, mu, energy_zero, tolerance)[0], None
         return calc, jac, {"exact_levels": len(v), "interpolated_rows": 0, "fallback": [], "degree": {}}
-    delta = {}  # (mu, J, v) -> row [delta E, delta dE/dp...]
+    # E_exact - E_wkb per level (mu, J, v), and its parameter derivatives where solved with them
+    delta_E, delta_J = {}, {}
     n_exact = 0
 
-    def solve(levels):
+    def solve(levels, with_jac):
         nonlocal n_exact
-        levels = sorted(set(levels) - set(delta))
+        levels = sorted(set(levels) - set(delta_J if with_jac else delta_E))
         if levels:
-            d = _level_deltas(model, params, curve, levels, tolerance, want_jac)
-            delta.update(zip(levels, d))
+            d = _level_deltas(model, params, curve, levels, tolerance, with_jac)
+            delta_E.update(zip(levels, d[:, 0]))  # (the same bits with or without the derivatives)
+            if with_jac:
+                delta_J.update(zip(levels, d[:, 1:]))
             n_exact += len(levels)
 
-    per_level = np.full((len(v), len(col_tol)), np.nan)
-    degree_of = {}
-    pending = [key for key in groups if smooth and span[key][2] >= MIN_J]
+    n_cols = len(col_tol)
+    per_level = np.full((len(v), n_cols), np.nan)
     zero_levels = [(m, 0, 0) for m in mu_values.tolist()] if energy_zero == 2 else []
-    for degree in DEGREES:
-        # blocks of (mu, v) with the same J range share their nodes
-        blocks = {}
-        for m, vv in pending:
-            blocks.setdefault((m,) + span[(m, vv)][:2], []).append(vv)
-        plans = {b: _node_j(b[1], b[2], degree) for b in blocks}
-        # (the data zeros with the first nodes: one threaded core call)
-        solve([(b[0], int(j), vv) for b, vs in blocks.items() if plans[b] is not None
-               for j in np.concatenate(plans[b]) for vv in vs] + (zero_levels if degree == DEGREES[0] else []))
-        failed = []
-        for b, vs in blocks.items():
-            if plans[b] is None:
-                continue
-            m, x_lo, x_hi = b[0], b[1] * (b[1] + 1.0), b[2] * (b[2] + 1.0)
-            nodes, checks = plans[b]
 
-            def t_of(j):
-                return 2 * (j * (j + 1.0) - x_lo) / (x_hi - x_lo) - 1
-
-            # one polynomial per column of every v in the block: Y[node, v, column]
-            Y = np.array([[delta[(m, int(j), vv)] for vv in vs] for j in nodes])
-            coef = np.polynomial.chebyshev.chebfit(t_of(nodes), Y.reshape(len(nodes), -1), degree)
-            at = np.polynomial.chebyshev.chebval(t_of(checks), coef).reshape(len(vs), -1, len(checks))
-            exact = np.array([[delta[(m, int(j), vv)] for j in checks] for vv in vs])  # [v, check, column]
-            ok = np.all(np.abs(np.transpose(at, (0, 2, 1)) - exact) <= col_tol, axis=(1, 2))
-            # every accepted v's rows from its own polynomial, all in one pass
-            idx, which = [], []
-            for k, vv in enumerate(vs):
-                if not ok[k]:
-                    failed.append((m, vv))
+    def ladder(degrees, cols, table, with_jac, extra):
+        """Interpolants of the columns `cols` (from table: delta_E or delta_J) of every (mu, v) with enough J,
+        the degrees in turn; {(mu, v): degree} of those accepted, their rows written into per_level."""
+        accepted = {}
+        pending = [key for key in groups if smooth and span[key][2] >= MIN_J]
+        for degree in degrees:
+            # blocks of (mu, v) with the same J range share their nodes
+            blocks = {}
+            for m, vv in pending:
+                blocks.setdefault((m,) + span[(m, vv)][:2], []).append(vv)
+            plans = {b: _node_j(b[1], b[2], degree) for b in blocks}
+            # (with `extra`, the data zeros, at the first degree: one threaded core call)
+            solve([(b[0], int(j), vv) for b, vs in blocks.items() if plans[b] is not None
+                   for j in np.concatenate(plans[b]) for vv in vs] + (extra if degree == degrees[0] else []),
+                  with_jac)
+            failed = []
+            for b, vs in blocks.items():
+                if plans[b] is None:
                     continue
-                idx.append(groups[(m, vv)])
-                which.append(np.full(len(idx[-1]), k))
-                degree_of[(m, vv)] = degree
-            if idx:
-                idx, which = np.concatenate(idx), np.concatenate(which)
-                c = coef.reshape(degree + 1, len(vs), -1)[:, which, :]  # [k, row, column]
-                per_level[idx] = _clenshaw(t_of(J[idx])[:, None], c)
-        pending = failed + [(b[0], vv) for b, vs in blocks.items() if plans[b] is None for vv in vs]
-    fallback = [key for key in pending if smooth and span[key][2] >= MIN_J]
+                m, x_lo, x_hi = b[0], b[1] * (b[1] + 1.0), b[2] * (b[2] + 1.0)
+                nodes, checks = plans[b]
+
+                def t_of(j):
+                    return 2 * (j * (j + 1.0) - x_lo) / (x_hi - x_lo) - 1
+
+                # one polynomial per column of every v in the block: Y[node, v, column]
+                Y = np.array([[np.atleast_1d(table[(m, int(j), vv)]) for vv in vs] for j in nodes])
+                coef = np.polynomial.chebyshev.chebfit(t_of(nodes), Y.reshape(len(nodes), -1), degree)
+                at = np.polynomial.chebyshev.chebval(t_of(checks), coef).reshape(len(vs), -1, len(checks))
+                exact = np.array([[np.atleast_1d(table[(m, int(j), vv)]) for j in checks] for vv in vs])
+                ok = np.all(np.abs(np.transpose(at, (0, 2, 1)) - exact) <= col_tol[cols], axis=(1, 2))
+                # every accepted v's rows from its own polynomial, all in one pass
+                idx, which = [], []
+                for k, vv in enumerate(vs):
+                    if not ok[k]:
+                        failed.append((m, vv))
+                        continue
+                    idx.append(groups[(m, vv)])
+                    which.append(np.full(len(idx[-1]), k))
+                    accepted[(m, vv)] = degree
+                if idx:
+                    idx, which = np.concatenate(idx), np.concatenate(which)
+                    c = coef.reshape(degree + 1, len(vs), -1)[:, which, :]  # [k, row, column]
+                    per_level[idx[:, None], cols] = _clenshaw(t_of(J[idx])[:, None], c)
+            pending = failed + [(b[0], vv) for b, vs in blocks.items() if plans[b] is None for vv in vs]
+        return accepted
+
+    # the Jacobian's corrections first (their own, lower degrees: see JACOBIAN_DEGREES), solved with the
+    # derivatives; then the levels', whose nodes include those (their levels known) and two more J
+    jac_degree = ladder(JACOBIAN_DEGREES, np.arange(1, n_cols), delta_J, True, zero_levels) if want_jac else None
+    degree_of = ladder(DEGREES, np.array([0]), delta_E, False, [] if want_jac else zero_levels)
+    done = {key: d for key, d in degree_of.items() if jac_degree is None or key in jac_degree}
+    fallback = [key for key in groups if smooth and span[key][2] >= MIN_J and key not in done]
     # rows solved as they are: few J, or every check failed
-    direct = [i for key, idx in groups.items() if key not in degree_of for i in idx.tolist()]
+    direct = [i for key, idx in groups.items() if key not in done for i in idx.tolist()]
     direct_levels = list(zip(mu[direct].tolist(), J[direct].tolist(), v[direct].tolist()))
-    solve(direct_levels + zero_levels)
+    solve(direct_levels + zero_levels, want_jac)
+
+    def row_of(key):
+        return np.concatenate([[delta_E[key]], delta_J[key]]) if want_jac else np.array([delta_E[key]])
+
     if direct:
-        per_level[direct] = [delta[key] for key in direct_levels]
+        per_level[direct] = [row_of(key) for key in direct_levels]
     # rows from levels: asymptote - E (zero 1), E - E(v=0, J=0) of the same mu (zero 2)
     if energy_zero == 1:
         per_level = -per_level
     elif energy_zero == 2:
-        per_level = per_level - np.array([delta[(m, 0, 0)] for m in mu_values.tolist()])[mu_index]
+        per_level = per_level - np.array([row_of((m, 0, 0)) for m in mu_values.tolist()])[mu_index]
     calc = np.asarray(wkb_calc, dtype=float) + per_level[:, 0]
     jac = np.asarray(wkb_jac, dtype=float) + per_level[:, 1:] if want_jac else None
     info = {"exact_levels": n_exact, "interpolated_rows": len(v) - len(direct), "fallback": fallback,
-            "degree": degree_of}
+            "degree": done, "jacobian_degree": {key: jac_degree[key] for key in done} if want_jac else {}}
     return calc, jac, info
