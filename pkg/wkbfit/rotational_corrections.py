@@ -171,7 +171,7 @@ def exact_rows(model, params, curve, v, rot, mu, energy_zero, tolerance, wkb_cal
         levels = sorted(set(levels) - set(delta_J if with_jac else delta_E))
         if levels:
             d = _level_deltas(model, params, curve, levels, tolerance, with_jac)
-            delta_E.update(zip(levels, d[:, 0]))  # (the same bits with or without the derivatives)
+            delta_E.update(zip(levels, d[:, :1]))  # (the same bits with or without the derivatives)
             if with_jac:
                 delta_J.update(zip(levels, d[:, 1:]))
             n_exact += len(levels)
@@ -206,10 +206,10 @@ def exact_rows(model, params, curve, v, rot, mu, energy_zero, tolerance, wkb_cal
                     return 2 * (j * (j + 1.0) - x_lo) / (x_hi - x_lo) - 1
 
                 # one polynomial per column of every v in the block: Y[node, v, column]
-                Y = np.array([[np.atleast_1d(table[(m, int(j), vv)]) for vv in vs] for j in nodes])
+                Y = np.array([[table[(m, int(j), vv)] for vv in vs] for j in nodes])
                 coef = np.polynomial.chebyshev.chebfit(t_of(nodes), Y.reshape(len(nodes), -1), degree)
                 at = np.polynomial.chebyshev.chebval(t_of(checks), coef).reshape(len(vs), -1, len(checks))
-                exact = np.array([[np.atleast_1d(table[(m, int(j), vv)]) for j in checks] for vv in vs])
+                exact = np.array([[table[(m, int(j), vv)] for j in checks] for vv in vs])  # [v, check, column]
                 ok = np.all(np.abs(np.transpose(at, (0, 2, 1)) - exact) <= col_tol[cols], axis=(1, 2))
                 # every accepted v's rows from its own polynomial, all in one pass
                 idx, which = [], []
@@ -239,7 +239,7 @@ def exact_rows(model, params, curve, v, rot, mu, energy_zero, tolerance, wkb_cal
     solve(direct_levels + zero_levels, want_jac)
 
     def row_of(key):
-        return np.concatenate([[delta_E[key]], delta_J[key]]) if want_jac else np.array([delta_E[key]])
+        return np.concatenate([delta_E[key], delta_J[key]]) if want_jac else delta_E[key]
 
     if direct:
         per_level[direct] = [row_of(key) for key in direct_levels]
