@@ -24,7 +24,7 @@ import math
 import numpy as np
 
 from . import _core, _tall
-from .rotational_corrections import exact_rows, interpolable
+from .rotational_corrections import DEGREES, FIRST_REFRESH_DEGREES, exact_rows, interpolable
 
 __all__ = ["run_corrected", "run_corrected_rows", "RowEvaluator", "run_with_unbound_rows", "LINEAR_STEP", "REMAINDER_SD",
            "ROWS_STEP", "MAX_REFRESHES"]
@@ -183,7 +183,7 @@ def run_corrected(args, *, tolerance=LINEAR_STEP, max_refreshes=MAX_REFRESHES, i
 
     interpolate = interpolate_in_j and interpolable(model, v, rot, mu)
 
-    def exact_at(p, want_jac, var, tol=tol_levels):
+    def exact_at(p, want_jac, var, tol=tol_levels, degrees=DEGREES):
         """(exact rows, exact Jacobian or None) at p, the run's end (out: WKB rows there plus offset)."""
         nonlocal n_exact
         wkb_calc = out["calc"] - offset
@@ -196,7 +196,7 @@ def run_corrected(args, *, tolerance=LINEAR_STEP, max_refreshes=MAX_REFRESHES, i
         if want_jac and var:
             sd_full[var] = _gauss_newton(wkb_calc, out["jacobian"], energy, sigma, var)[1]
         calc, jac, info = exact_rows(model, p, curve, v, rot, mu, zero, tol, wkb_calc,
-                                     out["jacobian"] if want_jac else None, sd_full, tolerance)
+                                     out["jacobian"] if want_jac else None, sd_full, tolerance, degrees)
         n_exact += info["exact_levels"]
         return calc, jac
 
@@ -209,7 +209,7 @@ def run_corrected(args, *, tolerance=LINEAR_STEP, max_refreshes=MAX_REFRESHES, i
             # Jacobian costs more than it saves (tests/benchmarks/bench_default_fit.py)
             # (to the looser first_refresh_tolerance: the exact evaluation with the Jacobian after it
             # measures what this step left, to the full tolerance)
-            calc_ex, _ = exact_at(p, False, var, first_refresh_tolerance(sigma))
+            calc_ex, _ = exact_at(p, False, var, first_refresh_tolerance(sigma), FIRST_REFRESH_DEGREES)
             refreshes += 1
             step, sd, chi2 = _gauss_newton(calc_ex, out["jacobian"], energy, sigma, var)
             history.append({"kind": "levels", "step_sd": float(np.max(np.abs(step) / sd)) if var else 0.0,
@@ -313,7 +313,8 @@ class RowEvaluator:
         if self.omega:
             ex, _ = _core.fit_evaluate(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, _EXACT, tol)
         elif self.interpolate_in_j and interpolable(self.model, self.lv, self.lrot, self.lmu):
-            ex, _, _ = exact_rows(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, tol, wkb)
+            ex, _, _ = exact_rows(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, tol, wkb,
+                                  degrees=FIRST_REFRESH_DEGREES if loose else DEGREES)
         else:
             ex, _ = exact_calc(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, tol)
         return self._combine(ex - wkb)

@@ -25,13 +25,17 @@ import numpy as np
 
 from . import _core
 
-__all__ = ["exact_rows", "interpolable", "DEGREES", "JACOBIAN_DEGREES", "MIN_J", "CHECK_MARGIN"]
+__all__ = ["exact_rows", "interpolable", "DEGREES", "FIRST_REFRESH_DEGREES", "JACOBIAN_DEGREES", "MIN_J", "CHECK_MARGIN"]
 
 #: degrees of the interpolating polynomial in J(J+1), tried in turn (each Lobatto node set contains the
 #: previous one and its check points). Measured on the 20 000-level benchmark fit (tolerance 1e-5 cm-1):
 #: starting at degree 2 saves 27 % of the exact levels but its rows, off by up to 2.6e-6 cm-1, move the
 #: fitted parameters by 2e-3 sd; from degree 4 they move by 3e-7 sd
 DEGREES = (4, 8)
+#: ... for the levels of a fit's first, loose refresh (corrected.first_refresh_tolerance, ~10x the levels'
+#: tolerance): degree 2 (5 J per (mu, v)) is within it where it passes its checks (2.6e-6 cm-1 on the
+#: benchmark fit, tolerance 1e-4); the exact evaluation after it decides the fit at DEGREES
+FIRST_REFRESH_DEGREES = (2, 4, 8)
 #: degrees of the Jacobian's corrections d(delta)/dp, tried in turn: their check tolerance (the energy error
 #: of the fit's largest linear step) is loose, and degree 2 with its checks needs exactly the degree-4 nodes
 #: (5 J with derivatives instead of 7; the levels' two check J without). Measured on the 20 000-level
@@ -110,13 +114,14 @@ def _level_deltas(model, params, curve, levels, tolerance, jacobian):
 
 
 def exact_rows(model, params, curve, v, rot, mu, energy_zero, tolerance, wkb_calc, wkb_jac=None, sd=None,
-               linear_step=30.0):
+               linear_step=30.0, degrees=DEGREES):
     """The exact rows at params from the first-order WKB rows there (wkb_calc, and wkb_jac when a Jacobian
     is wanted) plus per-level corrections, interpolated in J(J+1) where a (mu, v) has >= MIN_J distinct J.
 
     energy_zero: 0 minimum, 1 asymptote, 2 lowest (v=0, J=0 of each mu); tolerance: the levels' target
     accuracy, cm-1 (the exact solver's and the interpolation's); sd: per parameter, the standard
-    deviation that scales the Jacobian check (0 for a fixed parameter; needed with wkb_jac).
+    deviation that scales the Jacobian check (0 for a fixed parameter; needed with wkb_jac); degrees: of the
+    levels' interpolants, tried in turn (FIRST_REFRESH_DEGREES for a loose first refresh).
     Returns (calc, jacobian or None, info) with info: {"exact_levels": levels solved exactly,
     "interpolated_rows": rows from the interpolants, "fallback": (mu, v) solved row by row after their
     checks failed (both columns: levels and Jacobian), "degree": {(mu, v): degree of the levels' interpolant},
@@ -230,7 +235,7 @@ def exact_rows(model, params, curve, v, rot, mu, energy_zero, tolerance, wkb_cal
     # the Jacobian's corrections first (their own, lower degrees: see JACOBIAN_DEGREES), solved with the
     # derivatives; then the levels', whose nodes include those (their levels known) and two more J
     jac_degree = ladder(JACOBIAN_DEGREES, np.arange(1, n_cols), delta_J, True, zero_levels) if want_jac else None
-    degree_of = ladder(DEGREES, np.array([0]), delta_E, False, [] if want_jac else zero_levels)
+    degree_of = ladder(degrees, np.array([0]), delta_E, False, [] if want_jac else zero_levels)
     done = {key: d for key, d in degree_of.items() if jac_degree is None or key in jac_degree}
     fallback = [key for key in groups if smooth and span[key][2] >= MIN_J and key not in done]
     # rows solved as they are: few J, or every check failed

@@ -76,7 +76,16 @@ def count_orbits(call):
 
 
 def _fit_time(obs, masses, start):
-    return time_call(lambda: wkbfit.fit(start, obs, masses), min_time=2.0)
+    """(wall, CPU) seconds per fit; the CPU time (all threads) barely depends on the machine's load, the wall
+    time does."""
+    c0 = time.process_time()
+    calls = [0]
+
+    def one():
+        calls[0] += 1
+        wkbfit.fit(start, obs, masses)
+    wall = time_call(one, min_time=2.0)
+    return wall, (time.process_time() - c0) / calls[0]
 
 
 def before_after(tree, obs, masses, start, rounds=3):
@@ -86,9 +95,10 @@ def before_after(tree, obs, masses, start, rounds=3):
     for _ in range(rounds):
         run = subprocess.run([sys.executable, os.path.abspath(__file__), "--time-only"], env=env, check=True,
                              capture_output=True, text=True)
-        base.append(json.loads(run.stdout.strip().splitlines()[-1])["fit_s"])
+        out = json.loads(run.stdout.strip().splitlines()[-1])
+        base.append((out["fit_s"], out["cpu_s"]))
         here.append(_fit_time(obs, masses, start))
-    return base, here
+    return np.array(base), np.array(here)
 
 
 def main():
@@ -96,17 +106,20 @@ def main():
     start = wkbfit.LennardJones(De=4040.0, re=4.04)
     if "--time-only" in sys.argv:
         wkbfit.fit(start, obs, masses)  # (warm-up)
-        print(json.dumps({"fit_s": _fit_time(obs, masses, start), "package": wkbfit.__file__}))
+        wall, cpu = _fit_time(obs, masses, start)
+        print(json.dumps({"fit_s": wall, "cpu_s": cpu, "package": wkbfit.__file__}))
         return
     if "--baseline" in sys.argv:
         tree = sys.argv[sys.argv.index("--baseline") + 1]
         wkbfit.fit(start, obs, masses)
         base, here = before_after(tree, obs, masses, start)
-        print("before/after (%s vs this tree, rounds in turn): before %s ms; after %s ms; ratio after/before per "
-              "round %s (median %.2f)" % (tree, ", ".join("%.1f" % (t * 1e3) for t in base),
-                                          ", ".join("%.1f" % (t * 1e3) for t in here),
-                                          ", ".join("%.2f" % (h / b) for h, b in zip(here, base)),
-                                          float(np.median(np.array(here) / np.array(base)))))
+        for k, what in ((0, "wall"), (1, "CPU (all threads)")):
+            print("before/after, %s time per fit (%s vs this tree, rounds in turn): before %s ms; after %s ms; "
+                  "ratio after/before per round %s (median %.2f)"
+                  % (what, tree, ", ".join("%.1f" % (t * 1e3) for t in base[:, k]),
+                     ", ".join("%.1f" % (t * 1e3) for t in here[:, k]),
+                     ", ".join("%.2f" % r for r in here[:, k] / base[:, k]), float(np.median(here[:, k] / base[:, k]))))
+        print("  (load average %s at the end)" % " ".join("%.2f" % x for x in os.getloadavg()))
     res, orbits = count_orbits(lambda: wkbfit.fit(start, obs, masses))
     previous = wkbfit._core.set_fit_threads(1)
     try:
