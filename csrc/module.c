@@ -483,15 +483,47 @@ static PyObject *py_matched_phases(PyObject *self, PyObject *args, PyObject *kwd
 /* Levels for one or several rotational factors rot (J(J+1) or (J+1/2)^2) in one crossing:
    all bound levels of each (v=None) or the listed v for each. Columns are concatenated in rot order;
    rot_index says which rot a row belongs to. */
+/* The level columns as one read-only (9, n) block, rows in the order of the dict form's names (v, energy,
+   binding_energy, inner and outer turning points, Bv, dEdv, error, rule code), returned as the tuple
+   (block, rot_index, vD, v_th, count, finite): vD, v_th and count as in the dict form; finite is True
+   when every energy, binding energy, inner turning point, Bv, dEdv and error is finite (the caller's
+   check of the results, done here at no cost). A small call then costs no dict of interned names. */
+static PyObject *packed_levels(const wkb_level *lv, size_t n, PyArrayObject *index, PyArrayObject *vD_arr,
+                               PyArrayObject *vth_arr, PyArrayObject *count_arr, int scalar_rot)
+{
+    npy_intp dims[2] = {9, (npy_intp)n};
+    PyArrayObject *block = (PyArrayObject *)PyArray_SimpleNew(2, dims, NPY_DOUBLE);
+    if (!block)
+        return NULL;
+    double *p = PyArray_DATA(block);
+    int finite = 1;
+    for (size_t i = 0; i < n; i++) {
+        const wkb_level *L = &lv[i];
+        const double vals[9] = {L->v, L->energy, L->binding, L->r_inner, L->r_outer, L->Bv, L->dEdv, L->error,
+                                (double)L->rule};
+        for (int c = 0; c < 9; c++)
+            p[(size_t)c * n + i] = vals[c];
+        finite = finite && isfinite(L->energy) && isfinite(L->binding) && isfinite(L->r_inner) &&
+                 isfinite(L->Bv) && isfinite(L->dEdv) && isfinite(L->error);
+    }
+    PyArray_CLEARFLAGS(block, NPY_ARRAY_WRITEABLE);
+    if (scalar_rot)
+        return Py_BuildValue("(NOddnO)", block, index, ((double *)PyArray_DATA(vD_arr))[0],
+                             ((double *)PyArray_DATA(vth_arr))[0], ((npy_intp *)PyArray_DATA(count_arr))[0],
+                             finite ? Py_True : Py_False);
+    return Py_BuildValue("(NOOOOO)", block, index, vD_arr, vth_arr, count_arr, finite ? Py_True : Py_False);
+}
+
 static PyObject *py_wkb_levels(PyObject *self, PyObject *args, PyObject *kwds)
 {
     static char *kwlist[] = {"model", "params", "curve", "mu", "rot", "v", "maslov_in", "maslov_out",
                              "want_dVdp", "order", "ends", "match_fraction", "nodes", "match_rule",
-                             "max_levels", "milne", NULL};
+                             "max_levels", "milne", "packed", NULL};
     const char *model_name;
     PyObject *params_obj, *curve_obj, *rot_obj, *v_obj = Py_None;
     double mu, match_fraction = WKB_MATCH_FRACTION;
     int maslov_in = 1, maslov_out = 1, want_dVdp = 0, order = 1, ends = WKB_ENDS_MASLOV, nodes = 0, match_rule = 0, milne = 1;
+    int packed = 0; /* the small call's form: a tuple and one (9, n) block instead of a dict of columns */
     Py_ssize_t max_levels = 1000000; /* work limit: levels in one call (the caller may raise it) */
     PyArrayObject *vth_arr = NULL;
     PyArrayObject *rot_arr = NULL, *v_arr = NULL, *dVdp = NULL, *vD_arr = NULL, *count_arr = NULL, *index = NULL;
@@ -507,14 +539,16 @@ static PyObject *py_wkb_levels(PyObject *self, PyObject *args, PyObject *kwds)
     npy_intp n_rot = 0;
     int status = WKB_SUCCESS;
 
-    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOdO|Oiipiidiinp", kwlist, &model_name, &params_obj, &curve_obj,
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOdO|Oiipiidiinpp", kwlist, &model_name, &params_obj, &curve_obj,
                                      &mu, &rot_obj, &v_obj, &maslov_in, &maslov_out, &want_dVdp, &order, &ends,
-                                     &match_fraction, &nodes, &match_rule, &max_levels, &milne))
+                                     &match_fraction, &nodes, &match_rule, &max_levels, &milne, &packed))
         return NULL;
     if (nodes != 0 && (nodes < 8 || nodes > 512 || nodes % 2)) {
         PyErr_Format(PyExc_ValueError, "nodes=%d is invalid: an even number of quadrature nodes in 8..512", nodes);
         return NULL;
     }
+    if (packed && want_dVdp)
+        return value_error("packed=True does not carry dE_dp: leave out want_dVdp or packed");
     if (ends != WKB_ENDS_MASLOV && ends != WKB_ENDS_MATCHED) {
         PyErr_Format(PyExc_ValueError, "ends=%d is invalid: 0 (fixed Maslov phases) or 1 (matched)", ends);
         return NULL;
@@ -667,6 +701,10 @@ static PyObject *py_wkb_levels(PyObject *self, PyObject *args, PyObject *kwds)
     }
     if (status) {
         raise_status(&err);
+        goto cleanup;
+    }
+    if (packed) {
+        result = packed_levels(lv, n, index, vD_arr, vth_arr, count_arr, scalar_rot);
         goto cleanup;
     }
     for (int c = 0; c < 9; c++) {
@@ -2260,11 +2298,13 @@ static PyMethodDef core_methods[] = {
      "energy (milne=False: the exact solution in Pruefer form all the way, no phase-amplitude stretch)"},
     {"wkb_levels", (PyCFunction)(void (*)(void))py_wkb_levels, METH_VARARGS | METH_KEYWORDS,
      "wkb_levels(model, params, curve, mu, rot, v=None, maslov_in=1, maslov_out=1, want_dVdp=False, order=1, "
-     "ends=0, match_fraction=0.5, nodes=0, match_rule=0, max_levels=1000000, milne=True) "
+     "ends=0, match_fraction=0.5, nodes=0, match_rule=0, max_levels=1000000, milne=True, packed=False) "
      "-> dict of level arrays (v, energy, binding_energy, turning points, Bv, dEdv, error, rule, rot_index), vD, "
      "v_th (ends=1 only, else NaN) and count (per rot when rot is an array), [dE_dp]; ends=1 selects matched end "
      "phases, nodes overrides the quadrature rule, match_rule forces 3 (matched) or 4 (exact phase), milne=False "
-     "is the earlier end solve (Pruefer form all the way, fixed tolerance), kept for comparison"},
+     "is the earlier end solve (Pruefer form all the way, fixed tolerance), kept for comparison; packed=True "
+     "returns the tuple (block, rot_index, vD, v_th, count, finite) with the nine columns as rows of one "
+     "read-only (9, n) block and finite telling whether every result column is finite"},
     {"wkb_orbits", (PyCFunction)(void (*)(void))py_wkb_orbits, METH_VARARGS | METH_KEYWORDS,
      "wkb_orbits(model, params, curve, mu, rot, binding) -> dict of arrays: action (integral k dr), "
      "half_period (d action/dE, 1/cm-1), inner/outer turning points, Bv; at binding energies asymptote - E"},

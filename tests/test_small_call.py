@@ -104,3 +104,79 @@ def test_the_shared_default_columns_stay_read_only():
         with pytest.raises(ValueError):  # shared between tables of one length: never writable again
             getattr(a, name).setflags(write=True)
     assert a.width[0] == 0 and a.theta[0] == np.inf and not a.quasibound[0] and b.lifetime[0] == np.inf
+
+
+# The lean path of the small call (levels.py _small_call: one packed core call, a table whose columns are
+# made on first use) against the general path it shortcuts, which the same rule given explicitly
+# (order=2, ends="matched") takes. The lean path must change nothing: every column bit for bit (same
+# dtype), vD, v_th, method_error, notes, and the same exceptions for bad input.
+from test_rotational_corrections import CASES as _ROT_CASES  # noqa: E402
+
+GENERAL = {"order": 2, "ends": "matched"}
+LEAN_MODELS = dict(MODELS, **{"rc " + k: v for k, v in _ROT_CASES.items() if k != "point-wise"})
+LEAN_MODELS["Poeschl-Teller"] = (wkbfit.PoschlTeller(De=3000.0, re=2.0, a=1.0), 10.0)
+
+
+def _same_tables(a, b):
+    assert len(a) == len(b) and a.method == b.method and a.mu == b.mu
+    for c in a.columns:
+        x, y = getattr(a, c), getattr(b, c)
+        assert x.dtype == y.dtype and x.shape == y.shape, c
+        assert np.array_equal(x, y, equal_nan=x.dtype.kind == "f"), (c, x, y)
+        assert not x.flags.writeable, c
+    assert a.vD_by_J == b.vD_by_J and a.v_th_by_J == b.v_th_by_J and a.notes == b.notes
+
+
+@pytest.mark.parametrize("J", [0, 4])
+@pytest.mark.parametrize("name", list(LEAN_MODELS))
+def test_the_lean_path_gives_the_general_paths_table_bit_for_bit(name, J):
+    pot, mu = LEAN_MODELS[name]
+    n = len(_quiet(wkbfit.levels, pot, mu, v=None if name != "Poeschl-Teller" else [0], J=J))
+    if name == "Poeschl-Teller":
+        n = 6
+    for vs in ([0], [1], 1, (2, 0, 2), [n // 2, 1], [n - 2], [n - 1]):
+        lean = _quiet(wkbfit.levels, pot, mu, v=vs, J=J)
+        general = _quiet(wkbfit.levels, pot, mu, v=vs, J=J, **GENERAL)
+        assert "_block" not in general.__dict__
+        _same_tables(lean, general)
+    # the lean path was taken (point-wise curves keep the general path: its finer-rule error pass)
+    assert ("_block" in _quiet(wkbfit.levels, pot, mu, v=[0], J=J).__dict__) == (pot.model != "pointwise")
+
+
+def test_the_lean_table_reads_like_any_table_and_pickles():
+    import pickle
+    pot, mu = MODELS["MLR"]
+    vs = [3, 0]
+    lean = wkbfit.levels(pot, mu, v=vs, J=2)
+    assert vs == [3, 0]  # the caller's list is not modified
+    again = pickle.loads(pickle.dumps(lean))  # before any column or first-use quantity is made
+    _same_tables(again, wkbfit.levels(pot, mu, v=vs, J=2, **GENERAL))
+    assert lean.level(0, 2) == 1 and lean["energy"][1] == lean.energy[1]
+    assert list(lean.to_dataframe().columns) == list(lean.columns)
+    assert lean.to_dict()["rule"] == ["second-order", "second-order"]
+    with pytest.raises(ValueError):
+        lean.energy.setflags(write=True)  # a row of the read-only block
+    with pytest.raises(AttributeError):
+        lean.no_such_column
+
+
+BAD = [({"v": [-1]}, None), ({"v": [10 ** 6]}, None), ({"v": [0, 10 ** 6]}, None), ({"v": [0], "J": -1}, None),
+       ({"v": [0], "J": 10 ** 9}, None), ({"v": [0]}, -1.0), ({"v": [0]}, float("nan")), ({"v": [0]}, 1e30),
+       ({"v": []}, None), ({"v": [True]}, None), ({"v": [0.5]}, None), ({"v": -1}, None), ({"v": (0, -2)}, None),
+       ({"v": 10 ** 6}, None)]
+
+
+@pytest.mark.parametrize("kw, mu", BAD, ids=[str(b) for b in BAD])
+def test_bad_input_raises_what_the_general_path_raises(kw, mu):
+    pot, mu0 = MODELS["Morse"]
+    mu = mu0 if mu is None else mu
+    errors = []
+    for extra in ({}, GENERAL):
+        try:
+            t = _quiet(wkbfit.levels, pot, mu, **kw, **extra)
+            errors.append(("no error", len(t)))
+        except Exception as exc:  # noqa: BLE001  (the same type and message is the check)
+            errors.append((type(exc), str(exc)))
+    assert errors[0] == errors[1]
+    if kw["v"] != [] and kw["v"] != [True]:
+        assert errors[0][0] is not None and errors[0][0] != "no error", errors[0]

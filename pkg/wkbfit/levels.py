@@ -88,6 +88,21 @@ def _default_columns(n, names):
     return tuple(by_name[c] for c in names)
 
 
+def _qb_default(name):
+    k = _QB_COLUMNS.index(name)  # (the cache entry of __init__'s bound tables: all six at once)
+    return lambda block, J: _default_columns(block.shape[1], _QB_COLUMNS)[k]
+
+
+# the columns of a table made from the core's block (LevelTable._from_block), by name: how each is made from the
+# block (rows v, energy, binding_energy, inner and outer turning point, Bv, dEdv, error, rule code) and the J
+_BLOCK_COLUMNS = {name: (lambda row: lambda block, J: block[row])(row) for row, name in enumerate(
+    ("v", "energy", "binding_energy", "inner_turning_point", "outer_turning_point", "Bv", "dEdv", "error"))}
+_BLOCK_COLUMNS.update({"v": lambda block, J: block[0].astype(int),
+                       "J": lambda block, J: np.full(block.shape[1], J),
+                       "rule": lambda block, J: _RULE_NAMES[block[8].astype(np.intp)]})
+_BLOCK_COLUMNS.update({name: _qb_default(name) for name in _QB_COLUMNS})
+
+
 class LevelTable:
     """Levels of one potential and reduced mass, as NumPy arrays of equal length.
 
@@ -137,7 +152,28 @@ class LevelTable:
             self.v_th_by_J = dict(v_th or {})
         self.notes = list(notes)
 
+    @classmethod
+    def _from_block(cls, block, J, *, mu, method, potential, vD, v_th, method_error, source):
+        """A table of one J from the core's (9, n) block of columns (wkb_levels(..., packed=True)): the
+        columns are made on first use (rows of the read-only block, the J, rule and quasibound columns),
+        so that a small call pays only for what it reads. The values are those of __init__'s columns.
+        method_error and a callable v_th are functions of the table, which may read `source`."""
+        self = cls.__new__(cls)
+        self.__dict__.update(_block=block, _J=J, _source=source, mu=mu, method=method, potential=potential, vD_by_J=vD,
+                             notes=[], _method_error_source=method_error,
+                             _v_th_source=v_th if callable(v_th) else None)
+        if not callable(v_th):
+            self.v_th_by_J = v_th
+        return self
+
     def __getattr__(self, name):
+        attrs = self.__dict__
+        block = attrs.get("_block")
+        if block is not None and name in _BLOCK_COLUMNS:
+            col = _BLOCK_COLUMNS[name](block, attrs["_J"])
+            col.setflags(write=False)
+            attrs[name] = col
+            return col
         # method_error is computed on first use where it needs a more accurate calculation
         if name == "method_error" and self.__dict__.get("_method_error_source") is not None:
             col = np.asarray(self._method_error_source(self), dtype=float)
@@ -307,6 +343,13 @@ def levels(potential, mu, v=None, J=0, method="wkb", *, order=None, ends=None, l
         from .quasibound import levels_with_quasibound
         return levels_with_quasibound(potential, mu, v, J, method, order=order, ends=ends, langer=langer,
                                       maslov=maslov, rule=quasibound_rule, width_form=width_form)
+    if (type(v) in _SMALL_V_TYPES and type(J) is int and type(mu) is float and method == "wkb" and order is None
+            and ends is None and maslov is None and langer is False and max_levels is _validate.MAX_LEVELS
+            and max_J_values is _validate.MAX_J_VALUES and isinstance(potential, Potential)
+            and potential.model != "pointwise"):
+        table = _small_call(potential, mu, v, J)
+        if table is not None:
+            return table
     if not isinstance(potential, Potential):
         raise ValueError("potential must be a wkbfit potential object (Morse, LennardJones, ...), got %r"
                          % (potential,))
@@ -355,6 +398,53 @@ def levels(potential, mu, v=None, J=0, method="wkb", *, order=None, ends=None, l
             raise ValueError("langer=True applies to WKB only; the exact solver uses J(J+1)")
         return exact_levels(potential, mu, vs, Js, max_levels=max_levels)
     raise ValueError("method=%r is not known; use 'wkb' or 'exact'" % (method,))
+
+
+_SMALL_V_TYPES = (list, tuple, int)  # the forms of v the small call takes (others: the general path)
+
+
+def _small_call(potential, mu, vs, J):
+    """The common small call, levels(pot, mu, v=[...], J=j) with the default rule (matched ends) on an
+    analytic model, on a lean path: the checks cheap for a short list, one core call returning a tuple
+    and one block of columns, a table whose columns are made on first use. The results are those of the
+    general path (_wkb_levels), which takes over (returns None here) for anything out of the ordinary:
+    an argument it would check further or refuse, a failing level, a result it would refuse."""
+    lo_mu, hi_mu = _validate.MU_RANGE
+    top = _validate.MAX_LEVELS
+    if type(vs) is int:
+        vs = [vs]
+    if not (lo_mu <= mu <= hi_mu and 0 <= J <= top and vs and len(vs) <= top
+            and all(type(e) is int and 0 <= e <= top for e in vs)):
+        return None
+    rot = float(J * (J + 1))
+    model, params, curve = potential._core_args()
+    try:
+        block, rot_index, vD, v_th, _, finite = _core.wkb_levels(model, params, curve, mu, rot, list(vs), 1, 1,
+                                                                  order=2, ends=1, max_levels=top, packed=True)
+    except (RuntimeError, ValueError):
+        return None  # the general path treats the failure (levels one by one, fixed phases, a clear message)
+    if not finite:
+        return None
+    if len(vs) > 1:
+        _check_rising(rot_index, block[0], block[1], [J])
+    return LevelTable._from_block(block, J, mu=mu, method="wkb-matched", potential=potential,
+                                  vD={J: None if vD != vD else float(vD)},
+                                  # NaN: skipped for deep levels, computed on first use
+                                  v_th={J: float(v_th)} if v_th == v_th else _small_call_v_th,
+                                  method_error=_small_call_method_error, source=(potential, mu, J, rot_index))
+
+
+# the first-use sources of a small call's table: module functions of the table (reading the call's
+# arguments from table._source), so that the table pickles like the general path's
+def _small_call_v_th(table):
+    potential, mu, J, _ = table._source
+    return _threshold_numbers(table, potential=potential, mu=mu, rot=[float(J * (J + 1))], Js=[J], known={J: None})
+
+
+def _small_call_method_error(table):
+    potential, mu, J, rot_index = table._source
+    return _method_error(table, potential=potential, mu=mu, rot=[float(J * (J + 1))], Js=[J], maslov=(1, 1),
+                         langer=False, order=2, ends="matched", cols={"rot_index": rot_index})
 
 
 def _core_levels(potential, mu, vs, Js, rot, m_in, m_out, order, ends, **kw):
@@ -589,7 +679,10 @@ def _check_levels(cols, Js):
     names = ("energy", "binding_energy", "inner_turning_point", "Bv", "dEdv", "error")
     if not np.isfinite(np.concatenate([cols[c] for c in names])).all():  # one test; the names on failure
         _validate.finite_result({c: cols[c] for c in names}, "levels")
-    rot_index, v, E = cols["rot_index"], cols["v"], cols["energy"]
+    _check_rising(cols["rot_index"], cols["v"], cols["energy"], Js)
+
+
+def _check_rising(rot_index, v, E, Js):
     if len(v) < 2:
         return
     for k in (range(1) if len(Js) == 1 else np.unique(rot_index)):
