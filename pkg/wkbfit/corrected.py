@@ -24,7 +24,7 @@ import math
 import numpy as np
 
 from . import _core, _tall
-from .rotational_corrections import DEGREES, FIRST_REFRESH_DEGREES, exact_rows, interpolable
+from .rotational_corrections import DEGREES, FIRST_REFRESH_DEGREES, RowGroups, exact_rows, interpolable
 
 __all__ = ["run_corrected", "run_corrected_rows", "RowEvaluator", "run_with_unbound_rows", "LINEAR_STEP", "REMAINDER_SD",
            "ROWS_STEP", "MAX_REFRESHES"]
@@ -182,6 +182,7 @@ def run_corrected(args, *, tolerance=LINEAR_STEP, max_refreshes=MAX_REFRESHES, i
     done = False
 
     interpolate = interpolate_in_j and interpolable(model, v, rot, mu)
+    groups = RowGroups(v, rot, mu) if interpolate else None  # (the same rows at every refresh)
 
     def exact_at(p, want_jac, var, tol=tol_levels, degrees=DEGREES):
         """(exact rows, exact Jacobian or None) at p, the run's end (out: WKB rows there plus offset)."""
@@ -196,7 +197,7 @@ def run_corrected(args, *, tolerance=LINEAR_STEP, max_refreshes=MAX_REFRESHES, i
         if want_jac and var:
             sd_full[var] = _gauss_newton(wkb_calc, out["jacobian"], energy, sigma, var)[1]
         calc, jac, info = exact_rows(model, p, curve, v, rot, mu, zero, tol, wkb_calc,
-                                     out["jacobian"] if want_jac else None, sd_full, tolerance, degrees)
+                                     out["jacobian"] if want_jac else None, sd_full, tolerance, degrees, groups)
         n_exact += info["exact_levels"]
         return calc, jac
 
@@ -294,6 +295,13 @@ class RowEvaluator:
         self.tol = exact_tolerance(rows["sigma"])
         self.zero = np.zeros(len(rows["observed"]))
         self.sd = None
+        self._groups = None
+
+    def groups(self):
+        """The levels' RowGroups (made at the first interpolated refresh, shared by the others)."""
+        if self._groups is None:
+            self._groups = RowGroups(self.lv, self.lrot, self.lmu)
+        return self._groups
 
     def _combine(self, per_level):
         """Rows from per-level values (vector or matrix): sum of coef * value over the row's levels."""
@@ -314,7 +322,7 @@ class RowEvaluator:
             ex, _ = _core.fit_evaluate(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, _EXACT, tol)
         elif self.interpolate_in_j and interpolable(self.model, self.lv, self.lrot, self.lmu):
             ex, _, _ = exact_rows(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, tol, wkb,
-                                  degrees=FIRST_REFRESH_DEGREES if loose else DEGREES)
+                                  degrees=FIRST_REFRESH_DEGREES if loose else DEGREES, groups=self.groups())
         else:
             ex, _ = exact_calc(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, tol)
         return self._combine(ex - wkb)
@@ -331,7 +339,7 @@ class RowEvaluator:
         if not self.omega and self.interpolate_in_j and self.sd is not None and \
                 interpolable(self.model, self.lv, self.lrot, self.lmu):
             E_ex, J_ex, info = exact_rows(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, self.tol, E_w,
-                                          J_w, self.sd, LINEAR_STEP)
+                                          J_w, self.sd, LINEAR_STEP, groups=self.groups())
             n_exact = info["exact_levels"]
         else:
             E_ex, J_ex = _core.fit_evaluate(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, _EXACT,

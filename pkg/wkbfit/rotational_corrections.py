@@ -25,7 +25,7 @@ import numpy as np
 
 from . import _core
 
-__all__ = ["exact_rows", "interpolable", "DEGREES", "FIRST_REFRESH_DEGREES", "JACOBIAN_DEGREES", "MIN_J", "CHECK_MARGIN"]
+__all__ = ["exact_rows", "interpolable", "RowGroups", "DEGREES", "FIRST_REFRESH_DEGREES", "JACOBIAN_DEGREES", "MIN_J", "CHECK_MARGIN"]
 
 #: degrees of the interpolating polynomial in J(J+1), tried in turn (each Lobatto node set contains the
 #: previous one and its check points). Measured on the 20 000-level benchmark fit (tolerance 1e-5 cm-1):
@@ -113,15 +113,44 @@ def _level_deltas(model, params, curve, levels, tolerance, jacobian):
     return d[:, None]
 
 
+class RowGroups:
+    """The rows grouped by (mu, v), in the order of their first row: rows[(mu, v)] (row indices, ascending),
+    span[(mu, v)] = (lowest J, highest J, distinct J); J per row, the distinct reduced masses and each row's
+    index into them. Made once per set of rows (a fit's refreshes share it: ~4 ms on 20 000 rows); the
+    Python work is per group, not per row."""
+
+    def __init__(self, v, rot, mu):
+        v, mu = np.asarray(v, dtype=int), np.asarray(mu, dtype=float)
+        if not len(v):
+            raise ValueError("exact_rows: no rows given")
+        self.J = J = _j_of(rot)
+        self.mu_values, self.mu_index = np.unique(mu, return_inverse=True)
+        n_v, n_J = int(v.max()) + 1, int(J.max()) + 1
+        code = self.mu_index.astype(np.int64) * n_v + v
+        _, first, group_of = np.unique(code, return_index=True, return_inverse=True)
+        rows_by_group = np.argsort(group_of, kind="stable")
+        cut = np.searchsorted(group_of[rows_by_group], np.arange(len(first) + 1))
+        J_sorted = J[rows_by_group]
+        j_lo = np.minimum.reduceat(J_sorted, cut[:-1]).tolist()
+        j_hi = np.maximum.reduceat(J_sorted, cut[:-1]).tolist()
+        _, n_distinct = np.unique(_distinct(code * n_J + J) // n_J, return_counts=True)
+        keys = list(zip(mu[first].tolist(), v[first].tolist()))
+        self.rows, self.span = {}, {}
+        for g in np.argsort(first, kind="stable").tolist():
+            self.rows[keys[g]] = rows_by_group[cut[g]:cut[g + 1]]
+            self.span[keys[g]] = (j_lo[g], j_hi[g], int(n_distinct[g]))
+
+
 def exact_rows(model, params, curve, v, rot, mu, energy_zero, tolerance, wkb_calc, wkb_jac=None, sd=None,
-               linear_step=30.0, degrees=DEGREES):
+               linear_step=30.0, degrees=DEGREES, groups=None):
     """The exact rows at params from the first-order WKB rows there (wkb_calc, and wkb_jac when a Jacobian
     is wanted) plus per-level corrections, interpolated in J(J+1) where a (mu, v) has >= MIN_J distinct J.
 
     energy_zero: 0 minimum, 1 asymptote, 2 lowest (v=0, J=0 of each mu); tolerance: the levels' target
     accuracy, cm-1 (the exact solver's and the interpolation's); sd: per parameter, the standard
     deviation that scales the Jacobian check (0 for a fixed parameter; needed with wkb_jac); degrees: of the
-    levels' interpolants, tried in turn (FIRST_REFRESH_DEGREES for a loose first refresh).
+    levels' interpolants, tried in turn (FIRST_REFRESH_DEGREES for a loose first refresh); groups: the
+    rows' RowGroups when known (the same v, rot, mu), else made here.
     Returns (calc, jacobian or None, info) with info: {"exact_levels": levels solved exactly,
     "interpolated_rows": rows from the interpolants, "fallback": (mu, v) solved row by row after their
     checks failed (both columns: levels and Jacobian), "degree": {(mu, v): degree of the levels' interpolant},
@@ -130,9 +159,6 @@ def exact_rows(model, params, curve, v, rot, mu, energy_zero, tolerance, wkb_cal
     """
     v = np.asarray(v, dtype=int)
     mu = np.asarray(mu, dtype=float)
-    if not len(v):
-        raise ValueError("exact_rows: no rows given")
-    J = _j_of(rot)
     smooth = model != "pointwise"
     want_jac = wkb_jac is not None
     # check tolerance per column: the level, then each parameter's derivative
@@ -141,23 +167,10 @@ def exact_rows(model, params, curve, v, rot, mu, energy_zero, tolerance, wkb_cal
         scale = np.asarray(sd, dtype=float) * linear_step
         col_tol = np.concatenate([col_tol, np.where(scale > 0, CHECK_MARGIN * tolerance / np.where(scale > 0, scale, 1.0),
                                                     np.inf)])
-    # the (mu, v) groups, in the order of their first row (the Python work is per group, not per row: a
-    # 20 000-row refresh spent ~13 ms in per-row loops here)
-    mu_values, mu_index = np.unique(mu, return_inverse=True)
-    n_v, n_J = int(v.max()) + 1, int(J.max()) + 1
-    code = mu_index.astype(np.int64) * n_v + v
-    _, first, group_of = np.unique(code, return_index=True, return_inverse=True)
-    rows_by_group = np.argsort(group_of, kind="stable")
-    cut = np.searchsorted(group_of[rows_by_group], np.arange(len(first) + 1))
-    J_sorted = J[rows_by_group]
-    j_lo = np.minimum.reduceat(J_sorted, cut[:-1]).tolist()
-    j_hi = np.maximum.reduceat(J_sorted, cut[:-1]).tolist()
-    _, n_distinct = np.unique(_distinct(code * n_J + J) // n_J, return_counts=True)
-    keys = list(zip(mu[first].tolist(), v[first].tolist()))
-    groups, span = {}, {}
-    for g in np.argsort(first, kind="stable").tolist():
-        groups[keys[g]] = rows_by_group[cut[g]:cut[g + 1]]
-        span[keys[g]] = (j_lo[g], j_hi[g], int(n_distinct[g]))
+    if groups is None:
+        groups = RowGroups(v, rot, mu)
+    J, mu_values, mu_index, span = groups.J, groups.mu_values, groups.mu_index, groups.span
+    groups = groups.rows
     if not (smooth and any(s[2] >= MIN_J for s in span.values())):
         # nothing to interpolate: the rows as they are (no WKB levels needed)
         if want_jac:
