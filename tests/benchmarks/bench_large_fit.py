@@ -8,15 +8,17 @@ split by reduced mass, csrc/fit_levels.c; ratio in the same run), its iterations
 the core time per level and evaluation. Target (issue 10): <= 150 ms. Beside it, in the same process,
 the same fit with every refresh row solved exactly (interpolate_in_j=False: the refreshes before the
 corrections were interpolated in J(J+1)) and the ratio.
-Threads: numpy's OpenBLAS keeps its worker threads spinning (~0.1 s) after each threaded call (the fit's
-tall-skinny products, least squares and QR in Python), and they take the core the evaluator's second
-thread needs: measured on 2 cores, ratio 0.91 as is, 0.65 with OPENBLAS_NUM_THREADS=1 (the line printed
-says which).
+Threads: numpy's OpenBLAS keeps its worker threads spinning after each threaded call, and they took the
+core the evaluator's second thread needs (before: ratio 0.91 as is, 0.65 with OPENBLAS_NUM_THREADS=1);
+the fit's tall-skinny linear algebra now runs without BLAS threads (pkg/wkbfit/_tall.py, csrc/tall_qr.c),
+so OPENBLAS_NUM_THREADS no longer matters (CPU per fit 284-296 ms unset, 286 ms with 1; before 600 vs 380).
 Before/after: with --baseline TREE (a built checkout of an earlier commit), the same fit is timed in
 a subprocess on TREE's package, alternating with this tree's in rounds (the machine's load then weighs
 on both alike), and the ratio per round is printed.
-Measured (2 cores shared with other jobs, load 2-5: absolute times noisy, ratios less so): see the
-figures in the commit message of this file's last change.
+Measured against main at 83e014d (2 cores shared with 5 other jobs, load average 2.4-4.5: wall times noisy,
+CPU times and ratios less so): CPU per fit 500-600 ms before, 284-294 ms after (ratio 0.48-0.59); wall
+after/before 0.55-0.68 per round; at the calmest moment 169 ms on 2 threads (294 ms on one), before 344 ms.
+Target 150 ms: not met on this machine (the serial Python part is ~29 ms CPU, the rest scales with threads).
 Run: python3 tests/benchmarks/bench_large_fit.py [--baseline TREE]  (or OPENBLAS_NUM_THREADS=1 python3 ...)
 """
 import json
