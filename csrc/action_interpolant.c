@@ -63,17 +63,6 @@ static double w_exponent_of(const wkb_well *w)
     return n > 2 ? (n - 2) / (2 * n) : 0.5;
 }
 
-static double clenshaw(const double *c, int n, double x)
-{
-    double b1 = 0, b2 = 0;
-    for (int j = n; j >= 1; j--) {
-        const double t = 2 * x * b1 - b2 + c[j];
-        b2 = b1;
-        b1 = t;
-    }
-    return x * b1 - b2 + c[0];
-}
-
 /* coefficients of the interpolant through f_k at x_k = cos(pi k/N), k = 0..N (DCT-I); stride: f_k is
    f[k * stride] (stride 2 on the 16-node values gives the 8-node interpolant) */
 /* cos(pi m / INTERP_N), m = 0 .. 2 INTERP_N - 1: the nodes and the DCT-I (computing them each time cost
@@ -94,7 +83,7 @@ static void lobatto_coefficients(const double *f, int N, int stride, double *c)
     for (int j = 0; j <= N; j++) {
         double s = 0;
         for (int k = 0; k <= N; k++) {
-            const double t = f[k * stride] * cos_table[(j * k % (2 * N)) * scale];
+            const double t = f[k * stride] * cos_table[((j * k) & (2 * N - 1)) * scale]; /* 2N: a power of 2 */
             s += (k == 0 || k == N) ? 0.5 * t : t;
         }
         c[j] = 2 * s / N;
@@ -223,6 +212,30 @@ static void clenshaw_both(const piece *p, double x, double *f, double *df)
     *df = x * e1 - e2 + p->d[0];
 }
 
+/* Bv of the count levels L of piece p, each holding its x in its Bv field: four Clenshaw recurrences at
+   a time, interleaved (one alone waits on its own additions); 1 if one is not finite */
+static int piece_bv(const piece *p, wkb_level *L, size_t count)
+{
+    for (size_t i = 0; i < count; i += 4) {
+        const size_t lanes = GSL_MIN(4, count - i);
+        double x[4], b1[4] = {0, 0, 0, 0}, b2[4] = {0, 0, 0, 0};
+        for (size_t l = 0; l < 4; l++)
+            x[l] = L[i + (l < lanes ? l : 0)].Bv;
+        for (int j = p->degree; j >= 1; j--)
+            for (int l = 0; l < 4; l++) {
+                const double t = 2 * x[l] * b1[l] - b2[l] + p->cb[j]; /* Clenshaw: b_j = 2x b_{j+1} - b_{j+2} + c_j */
+                b2[l] = b1[l];
+                b1[l] = t;
+            }
+        for (size_t l = 0; l < lanes; l++) {
+            L[i + l].Bv = x[l] * b1[l] - b2[l] + p->cb[0];
+            if (!isfinite(L[i + l].Bv))
+                return 1;
+        }
+    }
+    return 0;
+}
+
 /* x on piece p where I = target (I decreasing in w, so in x); x0 a first guess in (-1, 1) or NAN;
    *dIdx receives dI/dx there */
 static double solve_on_piece(const piece *p, double target, double x0, double *dIdx)
@@ -258,15 +271,16 @@ static double solve_on_piece(const piece *p, double target, double x0, double *d
     return x;
 }
 
-/* one turning point at binding energy b by Newton from the guess r inside (lo, hi); 0 if it fails. The
-   step after one of size s would be (V''/2V') s^2: once s <= TP_STEP r that is below rounding, so no
-   step is taken only to confirm convergence. */
-#define TP_STEP 1e-8
+/* one turning point at binding energy b by Halley's method (V'' comes with V') from the guess r inside
+   (lo, hi); 0 if it fails. The error after a step of size s is ~ s^3/l^2 (l ~ |V'/V''|, r/13 on a
+   Lennard-Jones wall): once s <= TP_STEP r that is below rounding, so no step is taken only to confirm
+   convergence. (Newton, quadratic, needed a third evaluation a side for guesses off by > ~3e-5 r.) */
+#define TP_STEP 1e-6
 static int polish(const wkb_well *w, double b, double r, double lo, double hi, double *root)
 {
     for (int it = 0; it < 6; it++) {
         wkb_pot_value pv;
-        const double g = wkb_well_kinetic(w, b, r, &pv), s = g / pv.dV;
+        const double g = wkb_well_kinetic(w, b, r, &pv), s = 2 * g * pv.dV / (2 * pv.dV * pv.dV + g * pv.d2V);
         r += s;
         if (!(r > lo && r < hi))
             return 0;
@@ -278,14 +292,16 @@ static int polish(const wkb_well *w, double b, double r, double lo, double hi, d
     return 0;
 }
 
-/* the turning points of level L (v >= 3, at binding energy b, in a well with one minimum and no barrier)
-   by Newton from their quadratic extrapolation over the three levels below (equally spaced in the
-   action): two or three potential evaluations a side instead of the search of wkb_well_turning_points.
+/* the turning points of level L (v >= 4, at binding energy b, in a well with one minimum and no barrier)
+   by Halley steps from their cubic extrapolation over the four levels below (equally spaced in the
+   action): one or two potential evaluations a side (3.1 a level on the Lennard-Jones test well, 2.6 on
+   the Morse one; 4.7 and 4.2 by Newton from the quadratic) instead of the search of
+   wkb_well_turning_points.
    0 if either fails (the caller then searches). */
 static int polished_turning_points(const wkb_well *w, double b, wkb_level *L)
 {
-    const double g1 = 3 * (L[-1].r_inner - L[-2].r_inner) + L[-3].r_inner;
-    const double g2 = 3 * (L[-1].r_outer - L[-2].r_outer) + L[-3].r_outer;
+    const double g1 = 4 * (L[-1].r_inner + L[-3].r_inner) - 6 * L[-2].r_inner - L[-4].r_inner;
+    const double g2 = 4 * (L[-1].r_outer + L[-3].r_outer) - 6 * L[-2].r_outer - L[-4].r_outer;
     double r1 = 0, r2 = 0;
     if (!polish(w, b, g1, 0, w->r_bottom, &r1) || !polish(w, b, g2, w->r_bottom, INFINITY, &r2))
         return 0;
@@ -368,12 +384,17 @@ int wkb_interpolant_levels(wkb_well *w, wkb_level *levels, size_t n, size_t *don
 
     /* the levels, from the bottom piece up (v = 0 lies on the last piece) */
     size_t k = n_pieces - 1, m = 0;
-    double x_guess = NAN, x_prev[2] = {NAN, NAN};
-    size_t n_on_piece = 0;
+    double x_guess = NAN, x_prev[3] = {NAN, NAN, NAN};
+    size_t n_on_piece = 0, first_on_piece = 0; /* Bv of a piece's levels once it is done (piece_bv) */
     for (size_t v = 0; v < n; v++) {
         const double target = M_PI * ((double)v + w->phase);
         if (target >= I_direct)
             break;
+        if (k > 0 && target > pieces[k].Ia) {
+            if (piece_bv(&pieces[k], levels + first_on_piece, v - first_on_piece))
+                return 1;
+            first_on_piece = v;
+        }
         while (k > 0 && target > pieces[k].Ia) {
             k--;
             x_guess = NAN;
@@ -385,8 +406,11 @@ int wkb_interpolant_levels(wkb_well *w, wkb_level *levels, size_t n, size_t *don
         double dIdx;
         const double x = solve_on_piece(p, target, x_guess, &dIdx), half = 0.5 * (p->wb - p->wa);
         const double wv = 0.5 * (p->wa + p->wb) + half * x;
-        /* the next level, one quantum on: quadratic through the last three on this piece, else linear */
-        x_guess = n_on_piece >= 2 ? 3 * (x - x_prev[0]) + x_prev[1] : x + M_PI / dIdx;
+        /* the next level, one quantum on: cubic through the last four on this piece (then one Newton step
+           on the piece is mostly the last), else quadratic or linear */
+        x_guess = n_on_piece >= 3 ? 4 * (x + x_prev[1]) - 6 * x_prev[0] - x_prev[2]
+                  : (n_on_piece == 2 ? 3 * (x - x_prev[0]) + x_prev[1] : x + M_PI / dIdx);
+        x_prev[2] = x_prev[1];
         x_prev[1] = x_prev[0];
         x_prev[0] = x;
         n_on_piece++;
@@ -399,13 +423,13 @@ int wkb_interpolant_levels(wkb_well *w, wkb_level *levels, size_t n, size_t *don
         L->energy = w->top - b;
         L->error = p->err_E + floor_error;
         L->dEdv = M_PI / half_period;
-        L->Bv = clenshaw(p->cb, p->degree, x);
+        L->Bv = x; /* Bv(x) by piece_bv */
         L->status = WKB_SUCCESS;
         L->rule = WKB_RULE_FIRST;
-        if (!(half_period > 0) || !isfinite(L->Bv))
+        if (!(half_period > 0))
             return 1;
         wkb_error e;
-        if (!(v >= 3 && w->n_ext == 1 && polished_turning_points(w, b, levels + v)) &&
+        if (!(v >= 4 && w->n_ext == 1 && polished_turning_points(w, b, levels + v)) &&
             wkb_well_turning_points(w, b, &L->r_inner, &L->r_outer, &e))
             return 1;
         w->last_tp[0] = L->r_inner; /* Newton for the next level's turning points starts here */
@@ -417,7 +441,7 @@ int wkb_interpolant_levels(wkb_well *w, wkb_level *levels, size_t n, size_t *don
         }
         m = v + 1;
     }
-    if (m < 2)
+    if (m < 2 || piece_bv(&pieces[k], levels + first_on_piece, m - first_on_piece))
         return 1;
 
     /* the check: the highest interpolated and a middle level against direct orbits */
@@ -426,9 +450,9 @@ int wkb_interpolant_levels(wkb_well *w, wkb_level *levels, size_t n, size_t *don
         wkb_level *L = &levels[checks[c]];
         wkb_orbit o;
         wkb_error e;
-        if (wkb_orbit_at(w, L->binding, &o, NULL, &e))
+        if (wkb_orbit_action_at(w, L->binding, &o, &e)) /* (its period: the interpolant's, to ~1e-6) */
             return 1;
-        const double off = fabs(o.action - M_PI * (L->v + w->phase)) / o.half_period;
+        const double off = fabs(o.action - M_PI * (L->v + w->phase)) * L->dEdv / M_PI;
         if (!(off <= INTERP_CHECK_FACTOR * tol))
             return 1;
         L->error = GSL_MAX(L->error, off + floor_error);

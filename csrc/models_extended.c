@@ -263,6 +263,22 @@ typedef struct {
     double beta_inf, S, S1, beta, phi, x, dL, d2L;
 } mlr_terms;
 
+/* The three radial variables of an MLR exponent: y_p about re, y_p and y_q about r_ref; with
+   r_ref = re (the common choice) and q = p they are one variable, computed once. */
+static void mlr_radial_variables_at(double r, double re, double r_ref, double pw, double qw, radial_variable *eq,
+                                    radial_variable *ref_p, radial_variable *ref_q)
+{
+    radial_variable_at(r, re, pw, eq);
+    if (r_ref == re)
+        *ref_p = *eq;
+    else
+        radial_variable_at(r, r_ref, pw, ref_p);
+    if (qw == pw && r_ref == re)
+        *ref_q = *eq;
+    else
+        radial_variable_at(r, r_ref, qw, ref_q);
+}
+
 static void mlr_terms_at(const wkb_potential *pot, double r, mlr_terms *t)
 {
     const double *p = pot->p;
@@ -271,9 +287,7 @@ static void mlr_terms_at(const wkb_potential *pot, double r, mlr_terms *t)
     double S2;
     long_range_at(p, r, &t->at_r);
     long_range_at(p, re, &t->at_re);
-    radial_variable_at(r, re, pw, &t->eq);
-    radial_variable_at(r, r_ref, pw, &t->ref_p);
-    radial_variable_at(r, r_ref, qw, &t->ref_q);
+    mlr_radial_variables_at(r, re, r_ref, pw, qw, &t->eq, &t->ref_p, &t->ref_q);
     polynomial(p + MLR_LEADING, n, t->ref_q.y, &t->S, &t->S1, &S2);
     t->beta_inf = log(2 * De / t->at_re.u);
     const radial_variable *e = &t->eq, *a = &t->ref_p, *b = &t->ref_q;
@@ -453,9 +467,7 @@ static void mlrd_terms_at(const wkb_potential *pot, double r, mlrd_terms *t)
     double S2;
     damped_long_range_at(p, r, &t->at_r);
     damped_long_range_at(p, re, &t->at_re);
-    radial_variable_at(r, re, pw, &t->eq);
-    radial_variable_at(r, r_ref, pw, &t->ref_p);
-    radial_variable_at(r, r_ref, qw, &t->ref_q);
+    mlr_radial_variables_at(r, re, r_ref, pw, qw, &t->eq, &t->ref_p, &t->ref_q);
     polynomial(p + MLRD_LEADING, n, t->ref_q.y, &t->S, &t->S1, &S2);
     t->beta_inf = log(2 * De / t->at_re.u);
     const radial_variable *e = &t->eq, *a = &t->ref_p, *b = &t->ref_q;

@@ -19,6 +19,7 @@
  * term as depth(r) - b, so nothing cancels there.
  */
 #include <math.h>
+#include <pthread.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -71,10 +72,40 @@ static int even_half_rule(size_t n, double *x, double *wt)
     return status;
 }
 
+/* The rules of the default node count, computed once per process (a well set-up is a few microseconds;
+   computing them took ~0.5 us of it per well). Read-only once made. */
+#define DEFAULT_NODES 32
+static struct {
+    double gl_x[DEFAULT_NODES], gl_w[DEFAULT_NODES];
+    double even_x[DEFAULT_NODES / 2], even_w[DEFAULT_NODES / 2], even2_x[DEFAULT_NODES], even2_w[DEFAULT_NODES];
+    int status; /* 0 made, nonzero: computing them failed (each well then computes its own) */
+} default_rules;
+static pthread_once_t default_rules_once = PTHREAD_ONCE_INIT;
+
+static int gauss_legendre_unit(size_t n, double *x, double *wt);
+
+static void make_default_rules(void)
+{
+    default_rules.status = gauss_legendre_unit(DEFAULT_NODES, default_rules.gl_x, default_rules.gl_w) ||
+                           even_half_rule(DEFAULT_NODES, default_rules.even_x, default_rules.even_w) ||
+                           even_half_rule(2 * DEFAULT_NODES, default_rules.even2_x, default_rules.even2_w);
+}
+
+/* the n-point Gauss-Legendre rule on [0, 1] */
+static int gauss_legendre_unit(size_t n, double *x, double *wt)
+{
+    gsl_integration_glfixed_table *table = gsl_integration_glfixed_table_alloc(n);
+    int status = table ? GSL_SUCCESS : GSL_ENOMEM;
+    for (size_t i = 0; i < n && !status; i++)
+        status = gsl_integration_glfixed_point(0.0, 1.0, i, &x[i], &wt[i], table);
+    if (table)
+        gsl_integration_glfixed_table_free(table);
+    return status;
+}
+
 wkb_well *wkb_well_alloc(const wkb_settings *settings)
 {
     wkb_well *w = calloc(1, sizeof *w);
-    gsl_integration_glfixed_table *table = NULL;
     if (!w)
         return NULL;
     w->set = settings ? *settings : wkb_default_settings();
@@ -91,21 +122,23 @@ wkb_well *wkb_well_alloc(const wkb_settings *settings)
     w->even_w = malloc(w->set.nodes / 2 * sizeof(double));
     w->even2_x = malloc(w->set.nodes * sizeof(double));
     w->even2_w = malloc(w->set.nodes * sizeof(double));
-    table = gsl_integration_glfixed_table_alloc(w->set.nodes);
-    if (!w->scan_r || !w->scan_V || !w->gl_x || !w->gl_w || !w->even_x || !w->even_w || !w->even2_x ||
-        !w->even2_w || !table)
+    if (!w->scan_r || !w->scan_V || !w->gl_x || !w->gl_w || !w->even_x || !w->even_w || !w->even2_x || !w->even2_w)
         goto fail;
-    for (size_t i = 0; i < w->set.nodes; i++)
-        if (gsl_integration_glfixed_point(0.0, 1.0, i, &w->gl_x[i], &w->gl_w[i], table) != GSL_SUCCESS)
-            goto fail;
-    gsl_integration_glfixed_table_free(table);
-    table = NULL;
-    if (even_half_rule(w->set.nodes, w->even_x, w->even_w) || even_half_rule(2 * w->set.nodes, w->even2_x, w->even2_w))
+    if (w->set.nodes == DEFAULT_NODES && !pthread_once(&default_rules_once, make_default_rules) &&
+        !default_rules.status) {
+        memcpy(w->gl_x, default_rules.gl_x, sizeof default_rules.gl_x);
+        memcpy(w->gl_w, default_rules.gl_w, sizeof default_rules.gl_w);
+        memcpy(w->even_x, default_rules.even_x, sizeof default_rules.even_x);
+        memcpy(w->even_w, default_rules.even_w, sizeof default_rules.even_w);
+        memcpy(w->even2_x, default_rules.even2_x, sizeof default_rules.even2_x);
+        memcpy(w->even2_w, default_rules.even2_w, sizeof default_rules.even2_w);
+        return w;
+    }
+    if (gauss_legendre_unit(w->set.nodes, w->gl_x, w->gl_w) || even_half_rule(w->set.nodes, w->even_x, w->even_w) ||
+        even_half_rule(2 * w->set.nodes, w->even2_x, w->even2_w))
         goto fail;
     return w;
 fail:
-    if (table)
-        gsl_integration_glfixed_table_free(table);
     wkb_well_free(w);
     return NULL;
 }
@@ -255,9 +288,12 @@ int wkb_well_set(wkb_well *w, const wkb_potential *pot, double mu, double rot, i
     const size_t n = w->set.scan_points;
     const double step = log(r_hi / r_lo) / (double)(n - 1);
     size_t imin = 0;
+    /* the grid by a running product, restarted from exp every 16 points (an exp a point cost a
+       quarter of the set-up of a cheap model); the grid's points need no more accuracy than that */
+    const double ratio = exp(step);
     for (size_t i = 0; i < n; i++) {
         wkb_pot_value pv;
-        w->scan_r[i] = r_lo * exp(step * (double)i);
+        w->scan_r[i] = i % 16 == 0 ? r_lo * exp(step * (double)i) : w->scan_r[i - 1] * ratio;
         effective(w, w->scan_r[i], &pv);
         if (!isfinite(pv.V))
             return wkb_fail(err, WKB_ENUMERIC, "the potential is not finite at r=%g A (V=%g)", w->scan_r[i], pv.V);
@@ -350,21 +386,24 @@ static size_t branch_end(const wkb_well *w, int right)
     return j;
 }
 
-/* Newton from the last orbit's turning point, kept inside the monotone branch (lo, hi);
-   returns 1 on convergence. Consecutive orbits of a level search are close, so this
-   usually takes 2-3 steps instead of a search over the scan. */
+/* Halley steps (V'' comes with V') from the last orbit's turning point, kept inside the monotone
+   branch (lo, hi); returns 1 on convergence. Consecutive orbits of a level search are close, so this
+   usually takes 1-2 steps instead of a search over the scan. The error after a step s is ~ s^3/l^2
+   (l = |V'/V''|, r/13 on a Lennard-Jones wall): below rounding once s <= WARM_STEP r, so no step is
+   taken only to confirm (Newton to a step of 4 eps r took 3-4 evaluations a side). */
+#define WARM_STEP 1e-7
 static int warm_turning_point(const wkb_well *w, const energy_point *e, double r, double lo, double hi,
                               double *r_tp)
 {
     wkb_pot_value pv;
     for (int it = 0; it < 8; it++) {
         const double g = kinetic(w, e, r, &pv);
-        const double rn = r + g / pv.dV;
+        const double rn = r + 2 * g * pv.dV / (2 * pv.dV * pv.dV + g * pv.d2V); /* Halley, one division */
         if (!(rn > lo && rn < hi))
             return 0;
         const double dr = fabs(rn - r);
         r = rn;
-        if (dr <= 4 * GSL_DBL_EPSILON * r) {
+        if (dr <= WARM_STEP * r) {
             *r_tp = r;
             return 1;
         }
@@ -444,7 +483,7 @@ typedef struct {
     int want_period, want_dVdp;
 } sums;
 
-static void add_node(wkb_well *w, const energy_point *e, double r, double weight, sums *s)
+static inline void add_node(wkb_well *w, const energy_point *e, double r, double weight, sums *s)
 {
     wkb_pot_value pv;
     const double kin = kinetic(w, e, r, &pv);
@@ -616,7 +655,23 @@ int wkb_well_crossing(const wkb_well *w, double binding, double lo, double hi, d
     return solve_in_bracket(w, &e, 0, lo, hi, root);
 }
 
+static int orbit_integrals(wkb_well *w, double binding, wkb_orbit *orbit, double *avg_dVdp, int action_only,
+                           wkb_error *err);
+
 int wkb_orbit_at(wkb_well *w, double binding, wkb_orbit *orbit, double *avg_dVdp, wkb_error *err)
+{
+    return orbit_integrals(w, binding, orbit, avg_dVdp, 0, err);
+}
+
+int wkb_orbit_action_at(wkb_well *w, double binding, wkb_orbit *orbit, wkb_error *err)
+{
+    return orbit_integrals(w, binding, orbit, NULL, 1, err);
+}
+
+/* the phase integrals of one orbit; action_only: the action and the turning points alone (the period,
+   Bv and curvature sums, a third of the work a node, are skipped and left NaN) */
+static int orbit_integrals(wkb_well *w, double binding, wkb_orbit *orbit, double *avg_dVdp, int action_only,
+                           wkb_error *err)
 {
     int status;
     w->n_orbits++;
@@ -652,7 +707,7 @@ int wkb_orbit_at(wkb_well *w, double binding, wkb_orbit *orbit, double *avg_dVdp
     const double rb = GSL_MIN(GSL_MAX(w->r_bottom, r1), r2);
     sums s;
     memset(&s, 0, sizeof s);
-    s.want_period = !infinite;
+    s.want_period = !infinite && !action_only;
     s.want_dVdp = avg_dVdp != NULL && w->pot.model->param_derivs != NULL;
     piece_inner(w, &e, r1, rb, &s);
     const double yb = log(rb);
@@ -705,15 +760,15 @@ int wkb_orbit_at(wkb_well *w, double binding, wkb_orbit *orbit, double *avg_dVdp
     orbit->r_inner = r1;
     orbit->r_outer = r2;
     orbit->action = s.action / se;
-    orbit->half_period = infinite ? INFINITY : s.inv_k / (2 * se);
-    orbit->Bv = infinite ? 0 : w->eps * s.inv_k_r2 / s.inv_k;
-    orbit->curvature_integral = infinite ? NAN : s.curvature;
+    orbit->half_period = infinite ? INFINITY : (action_only ? NAN : s.inv_k / (2 * se));
+    orbit->Bv = infinite ? 0 : (action_only ? NAN : w->eps * s.inv_k_r2 / s.inv_k);
+    orbit->curvature_integral = infinite || action_only ? NAN : s.curvature;
     if (avg_dVdp) {
         const size_t np = w->pot.model->n_params;
         for (size_t k = 0; k < np; k++)
             avg_dVdp[k] = (s.want_dVdp && !infinite) ? s.dVdp[k] / s.inv_k : NAN;
     }
-    if (!isfinite(orbit->action) || (!infinite && !(orbit->half_period > 0)))
+    if (!isfinite(orbit->action) || (!infinite && !action_only && !(orbit->half_period > 0)))
         return wkb_fail(err, WKB_ENUMERIC, "the phase integrals are not finite at E=%.12g cm-1", e.E);
     return WKB_SUCCESS;
 }

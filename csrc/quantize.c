@@ -31,6 +31,24 @@ static double w_exponent(const wkb_well *w)
     return n > 2 ? (n - 2) / (2 * n) : 0.5;
 }
 
+/* w = b^alpha and back, by sqrt, cbrt and products for the common exponents (an exponential or a
+   -C_6/r^6 tail): pow cost as much as a tenth of an orbit per level in a direct sweep */
+static double w_of_binding(double b, double alpha)
+{
+    return alpha == 0.5 ? sqrt(b) : (alpha == 1.0 / 3 ? cbrt(b) : pow(b, alpha));
+}
+
+static double binding_of_w(double wv, double alpha)
+{
+    return alpha == 0.5 ? wv * wv : (alpha == 1.0 / 3 ? wv * wv * wv : pow(wv, 1 / alpha));
+}
+
+/* db/dw = b^(1 - alpha)/alpha at w */
+static double binding_slope(double wv, double alpha)
+{
+    return alpha == 0.5 ? 2 * wv : (alpha == 1.0 / 3 ? 3 * wv * wv : pow(wv, 1 / alpha - 1) / alpha);
+}
+
 static int solve_first_order(wkb_well *w, size_t v, wkb_level *level, double *avg_dVdp, wkb_error *err);
 static int second_order_level(wkb_well *w, size_t v, wkb_level *level, double *avg_dVdp, wkb_error *err);
 
@@ -172,6 +190,12 @@ static int cached(const wkb_well *w, size_t v)
 static double first_guess(const wkb_well *w, size_t v, double w_bottom)
 {
     const double h = M_PI;
+    if (v >= 3 && cached(w, v - 1) && cached(w, v - 2) && cached(w, v - 3)) {
+        /* quintic Hermite through the three levels below, one step on: its error, O(h^6), leaves most
+           levels of a smooth well (MLR, EMO) within the tolerance after one orbit, where the cubic's needs two */
+        return 10 * w->cache_w[v - 3] + 9 * w->cache_w[v - 2] - 18 * w->cache_w[v - 1] +
+               h * (3 * w->cache_slope[v - 3] + 18 * w->cache_slope[v - 2] + 9 * w->cache_slope[v - 1]);
+    }
     if (v >= 2 && cached(w, v - 1) && cached(w, v - 2)) {
         /* cubic Hermite through (I_{v-2}, w, dw/dI) and (I_{v-1}, ...), evaluated one step on */
         return 5 * w->cache_w[v - 2] + 2 * h * w->cache_slope[v - 2] - 4 * w->cache_w[v - 1] +
@@ -271,18 +295,18 @@ static int solve_first_order(wkb_well *w, size_t v, wkb_level *level, double *av
 {
     const double alpha = w_exponent(w);
     const double target = M_PI * ((double)v + w->phase);
-    const double w_bottom = pow(w->top - w->bottom, alpha);
+    const double w_bottom = w_of_binding(w->top - w->bottom, alpha);
     const double tol = w->set.energy_tol + 4e-14 * (w->top - w->bottom);
     const double floor_error = 1e-14 * (w->top - w->bottom); /* from the action's relative accuracy */
     /* F(lo) > 0 (threshold side), F(hi) < 0 (bottom side) */
-    double lo = pow(w->top - w->bound_top, alpha), hi = w_bottom;
+    double lo = w_of_binding(w->top - w->bound_top, alpha), hi = w_bottom;
     if (v >= 1 && cached(w, v - 1))
         hi = GSL_MIN(hi, w->cache_w[v - 1]);
     if (cached(w, v + 1))
         lo = GSL_MAX(lo, w->cache_w[v + 1]);
     double wg = first_guess(w, v, w_bottom);
     if (w->seed_binding > 0 && (w->seed_strong || !(v >= 2 && cached(w, v - 1) && cached(w, v - 2)))) {
-        const double ws = pow(w->seed_binding, alpha);
+        const double ws = w_of_binding(w->seed_binding, alpha);
         if (ws > lo && ws < hi)
             wg = ws;
     }
@@ -296,16 +320,16 @@ static int solve_first_order(wkb_well *w, size_t v, wkb_level *level, double *av
     if (v >= 2 && cached(w, v - 1) && cached(w, v - 2))
         curvature = (1 / w->cache_slope[v - 1] - 1 / w->cache_slope[v - 2]) / (w->cache_w[v - 1] - w->cache_w[v - 2]);
     wkb_orbit o = {0};
-    double b = pow(wg, 1 / alpha), bn = b, dE = INFINITY, slope = NAN, error = INFINITY;
+    double b = binding_of_w(wg, alpha), bn = b, dE = INFINITY, slope = NAN, error = INFINITY;
     double prev_w = NAN, prev_dF = NAN;
     int converged = 0;
     for (int it = 0; it < w->set.max_newton; it++) {
-        b = pow(wg, 1 / alpha);
+        b = binding_of_w(wg, alpha);
         int status = wkb_orbit_at(w, b, &o, avg_dVdp, err);
         if (status)
             return status;
         const double F = o.action - target;
-        const double dFdw = -o.half_period * pow(b, 1 - alpha) / alpha;
+        const double dFdw = -o.half_period * binding_slope(wg, alpha);
         slope = 1 / dFdw;
         if (it > 0 && fabs(wg - prev_w) > 1e-6 * wg)
             curvature = (dFdw - prev_dF) / (wg - prev_w);
@@ -321,9 +345,9 @@ static int solve_first_order(wkb_well *w, size_t v, wkb_level *level, double *av
             wn = 0.5 * (lo + hi);
             newton = 0;
         }
-        bn = pow(wn, 1 / alpha);
+        bn = binding_of_w(wn, alpha);
         dE = fabs(bn - b);
-        const double db_dw = pow(wn, 1 / alpha - 1) / alpha;
+        const double db_dw = binding_slope(wn, alpha);
         const double predicted = fabs(curvature / (2 * dFdw)) * (wn - wg) * (wn - wg) * db_dw;
         wg = wn;
         if (dE <= tol) {

@@ -96,6 +96,10 @@ int wkb_matched_solve(wkb_well *w, size_t v, int across, int second_start, wkb_l
 /* records the defect of level v at binding b (levels solved out of order clear the record) */
 void wkb_matched_note_defect(wkb_well *w, size_t v, double binding, double defect);
 
+/* orbit.c: the action (and turning points) of the orbit at binding energy b alone, without the period,
+   Bv and curvature sums (NaN in orbit): a check of a level found otherwise */
+int wkb_orbit_action_at(wkb_well *w, double binding, wkb_orbit *orbit, wkb_error *err);
+
 /* action_interpolant.c: levels 0..*done-1 of the n of a first-order well with fixed phases from an
    interpolant of the action (the caller solves levels *done..n-1 directly, seeded by these); 0 when done,
    nonzero when it declines (*done = 0: the caller then solves every level directly) */

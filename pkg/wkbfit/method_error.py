@@ -4,8 +4,11 @@ After every fit, each fitted level gets a method error (cm-1), the error of the 
 calculation the fit used, in the data's energy zero:
   "corrected"  the final levels are exact levels continued by the last (small) exact
                Gauss-Newton step: its second-order remainder, with the exact solver's accuracy;
-  "wkb"        |E_wkb - E_exact| from one exact evaluation at the final point: the bias of
-               first-order WKB, which the fit cannot see;
+  "wkb"        |E_wkb - E_exact|: the bias of first-order WKB, which the fit cannot see. Screened
+               first by `semiclassical_estimate` (the distance to the matched-rule level, the more
+               exact method): a row whose estimate is SCREEN_FACTOR or more above or below
+               FLAG_FRACTION of its uncertainty keeps it; only the other rows get exact levels
+               (one exact evaluation of those rows);
   "exact"      the exact solver's own error estimate (one extra pass of exact levels without
                derivatives, about 1/4 of one exact iteration).
 A level whose method error exceeds FLAG_FRACTION of its uncertainty is flagged: the report
@@ -27,16 +30,101 @@ __all__ = ["FLAG_FRACTION", "row_method_errors", "attach"]
 FLAG_FRACTION = 0.1
 
 
-def row_method_errors(method, args, out):
+#: the screen decides a row's verdict only when its estimate is at least this factor away from the
+#: threshold; rows closer get exact levels (the estimate need only be right within a factor 2 there)
+SCREEN_FACTOR = 2.0
+
+
+def semiclassical_estimate(args, calc):
+    """Per row, cm-1: |matched-rule level - calc|, the estimated error of the first-order levels `calc`
+    (in the data's energy zero) of the rows in `args` (model, params, curve, v, rot, mu, energy_zero).
+    The matched rule (second-order WKB, joined near the outer turning point to an exact solution; the
+    exact phase for wells too quantal for second order) is the more exact method, so the distance of
+    the first-order level from it estimates the first-order error (tests/test_method_error_screen.py:
+    within a factor 2 of the exact solver's on every model). NaN where it gives no level (above its
+    threshold count, or a failed level search). One core call per reduced mass when its J values share
+    their v values (else, or when that call fails, one per (reduced mass, J))."""
+    model, params, curve = args["model"], args["params"], args["curve"]
+    v, rot, mu, zero = np.asarray(args["v"]).astype(np.int64), np.asarray(args["rot"], dtype=float), \
+        np.asarray(args["mu"], dtype=float), args["energy_zero"]
+    ref = np.full(len(v), math.nan)
+    n_v = int(v.max()) + 1 if len(v) else 1
+    for m in np.unique(mu):
+        rows = np.nonzero(mu == m)[0]
+        # "lowest" data are measured from v=0, J=0: that level joins the request
+        rots = np.unique(np.concatenate([rot[rows], [0.0]]) if zero == 2 else rot[rows])
+        row_keys = np.searchsorted(rots, rot[rows]) * n_v + v[rows]
+        keys, col, zero_level = _matched_levels(model, params, curve, float(m), rots, v[rows], row_keys, n_v,
+                                                zero, zero == 2)
+        at = np.minimum(np.searchsorted(keys, row_keys), max(len(keys) - 1, 0))
+        ok = (keys[at] == row_keys) if len(keys) else np.zeros(len(rows), dtype=bool)
+        ref[rows[ok]] = col[at[ok]]
+        if zero == 2:
+            ref[rows] -= zero_level
+    return np.abs(ref - np.asarray(calc, dtype=float))
+
+
+def _matched_levels(model, params, curve, mu, rots, v, row_keys, n_v, zero, want_lowest):
+    """Matched-rule levels of one reduced mass: (sorted keys rot_index * n_v + v, their levels in the data's
+    energy zero before any "lowest" shift, the level v=0 at rot 0 or NaN). One call for all rots when the
+    rows' v values, asked at every rot, cost at most about twice the rows; else, or when it fails (a level
+    unbound at some J), one call per rot with that rot's own v values, and where that fails too (a row's
+    level above the matched rule's last one) all bound levels of that rot."""
+    keys, cols, zero_level = [], [], math.nan
+
+    def own(g):  # the v values of rot g's rows (and v=0 at rot 0 for "lowest" data)
+        mine = v[row_keys // n_v == g]
+        return np.unique(np.concatenate([mine, [0]]) if want_lowest and rots[g] == 0 else mine)
+    union = np.unique(np.concatenate([v, [0]]) if want_lowest else v)
+    if len(union) * len(rots) <= 2 * len(v) + 4 * len(rots):
+        calls = [(np.arange(len(rots)), union)]
+    else:
+        calls = [(np.array([g]), own(g)) for g in range(len(rots))]
+    k = 0
+    while k < len(calls):
+        g, want = calls[k]
+        k += 1
+        try:
+            t = _core.wkb_levels(model, params, curve, mu, rots[g].tolist(),
+                                 None if want is None else want.astype(np.intc), order=2, ends=1)
+        except (ValueError, RuntimeError):
+            if len(g) > 1:  # the shared call failed: one call per rot
+                calls += [(np.array([i]), own(i)) for i in g]
+            elif want is not None:  # a row's level is not bound by the matched rule: all its bound levels
+                calls.append((g, None))
+            continue  # no matched levels here: these rows go to the exact solver
+        tv = np.asarray(t["v"], dtype=np.int64)
+        ti = g[np.asarray(t["rot_index"], dtype=np.intp)] if len(g) > 1 else np.full(len(tv), g[0])
+        keys.append(ti * n_v + tv)
+        cols.append(np.asarray(t["binding_energy"] if zero == 1 else t["energy"], dtype=float))
+        if want_lowest:
+            hit = np.nonzero((rots[ti] == 0) & (tv == 0))[0]
+            if len(hit):
+                zero_level = float(np.asarray(t["energy"])[hit[0]])
+    if not keys:
+        return np.zeros(0, dtype=np.int64), np.zeros(0), zero_level
+    keys, cols = np.concatenate(keys), np.concatenate(cols)
+    order = np.argsort(keys, kind="stable")
+    return keys[order], cols[order], zero_level
+
+
+def row_method_errors(method, args, out, screen=False):
     """Per fitted row: (method error in cm-1, note). args: the keywords of the fit's core run,
     with the final parameters in args["params"]. The one source of per-level method errors:
-    level tables that carry their own method_error (matched end phases) plug in here."""
+    level tables that carry their own method_error (matched end phases) plug in here.
+    screen: for "wkb", screen the rows by `semiclassical_estimate` first (what fits do); False computes
+    exact levels for every row."""
     from .corrected import exact_calc, exact_tolerance
+    if method == "wkb" and screen:
+        return _screened_wkb_errors(args, out)
     if method == "corrected":
         err = np.hypot(np.abs(np.asarray(out["remainder"], dtype=float)), out["level_tolerance"])
-        return err, ("method error = the second-order remainder of the final exact Gauss-Newton step (after %d "
-                     "exact evaluations), with the exact levels' target accuracy %.1e cm-1 (1e-3 of the smallest "
-                     "uncertainty) in quadrature" % (out["refreshes"], out["level_tolerance"]))
+        note = ("method error = the second-order remainder of the final exact Gauss-Newton step (after %d "
+                "exact evaluations), with the exact levels' target accuracy %.1e cm-1 (1e-3 of the smallest "
+                "uncertainty) in quadrature" % (out["refreshes"], out["level_tolerance"]))
+        return _verify_remainder(err, note, out["calc"], args["sigma"], out["level_tolerance"], lambda: exact_calc(
+            args["model"], args["params"], args["curve"], args["v"], args["rot"], args["mu"], args["energy_zero"],
+            out["level_tolerance"])[0])
     try:
         calc_ex, exact_err = exact_calc(args["model"], args["params"], args["curve"], args["v"], args["rot"],
                                         args["mu"], args["energy_zero"], exact_tolerance(args["sigma"]))
@@ -50,6 +138,54 @@ def row_method_errors(method, args, out):
     return exact_err, "method error = the exact solver's error estimate of each level"
 
 
+def _verify_remainder(err, note, calc, sigma, tol, exact_rows):
+    """The corrected fit's method errors: the remainder of its last linear step (`err`, the size of a
+    correction already applied, so an upper estimate of what is left) where it is below FLAG_FRACTION /
+    SCREEN_FACTOR of every row's uncertainty; otherwise measured: |calc - exact rows at the final
+    parameters| with the exact levels' accuracy `tol` in quadrature (one exact evaluation, no derivatives),
+    so that a large but corrected remainder does not flag rows whose levels are right."""
+    sigma = np.asarray(sigma, dtype=float)
+    if not np.any(err > FLAG_FRACTION * sigma / SCREEN_FACTOR):
+        return err, note
+    try:
+        calc_ex = np.asarray(exact_rows(), dtype=float)
+    except ValueError:
+        return err, note + " (exact levels at the final parameters not available to measure it)"
+    return (np.hypot(np.asarray(calc, dtype=float) - calc_ex, tol),
+            "method error = |corrected - exact level| at the fitted parameters (one exact evaluation: the remainder "
+            "of the final linear step, up to %.2g sigma, was too large to vouch for the levels), with the exact "
+            "levels' target accuracy in quadrature" % float(np.max(err / sigma)))
+
+
+def _screened_wkb_errors(args, out):
+    """The "wkb" method errors: the semiclassical estimate where it is at least SCREEN_FACTOR away from
+    the verdict's threshold, exact levels of the other rows."""
+    from .corrected import exact_calc, exact_tolerance
+    calc = np.asarray(out["calc"], dtype=float)
+    sigma = np.asarray(args["sigma"], dtype=float)
+    est = semiclassical_estimate(args, calc)
+    threshold = FLAG_FRACTION * sigma
+    with np.errstate(invalid="ignore"):
+        decided = (est >= SCREEN_FACTOR * threshold) | (est <= threshold / SCREEN_FACTOR)
+    err = np.where(decided, est, math.nan)
+    rest = np.nonzero(~decided)[0]
+    note = ("method error = |first-order WKB - exact level| at the fitted parameters, estimated by the distance to "
+            "the matched-rule level (the more exact method) where that is at least %g times above or below %g "
+            "sigma" % (SCREEN_FACTOR, FLAG_FRACTION))
+    if not len(rest):
+        return err, note + " (every row)"
+    sub_v, sub_rot, sub_mu = (np.asarray(args[k])[rest] for k in ("v", "rot", "mu"))
+    try:
+        ex, ex_err = exact_calc(args["model"], args["params"], args["curve"], sub_v, sub_rot, sub_mu,
+                                args["energy_zero"], exact_tolerance(sigma))
+    except ValueError as exc:
+        return err, note + "; for %d rows not available: the exact levels of the fitted potential could not be " \
+                           "computed (%s)" % (len(rest), exc)
+    err[rest] = np.hypot(calc[rest] - ex, ex_err)
+    return err, note + " (%d of %d rows; the other %d by one exact evaluation)" % (
+        len(err) - len(rest), len(err), len(rest))
+
+
 def attach(result, rows, out, args=None):
     """Sets result.method_error (all rows, NaN for rows not fitted), method_error_ratio
     (method error / uncertainty), method_error_flagged (row indices above FLAG_FRACTION),
@@ -57,7 +193,7 @@ def attach(result, rows, out, args=None):
     obs = result.observed
     if args is None:
         args = out["_args"]
-    err_rows, note = row_method_errors(result.method, args, out)
+    err_rows, note = row_method_errors(result.method, args, out, screen=True)
     err = np.full(len(obs), math.nan)
     err[rows] = err_rows
     # (names only of the rows the warning lists: 20 000 strings cost ~10 ms a fit)
@@ -71,7 +207,7 @@ def _set_check(result, err, sigma, note, names):
     name = names if callable(names) else names.__getitem__
     with np.errstate(invalid="ignore", divide="ignore"):
         ratio = err / sigma
-    flagged = [int(i) for i in np.nonzero(ratio > FLAG_FRACTION)[0]]
+    flagged = np.flatnonzero(ratio > FLAG_FRACTION).tolist()
     result.method_error = _frozen(err)
     result.method_error_ratio = _frozen(ratio)
     result.method_error_flagged = flagged
@@ -153,12 +289,13 @@ def design_row_errors(method, ev, out):
     # the exact levels' target accuracy carried into each row (|coef| of its one or two levels)
     tol = ev.tol * np.hypot(np.where(rows["level_a"] >= 0, rows["coef_a"], 0.0),
                             np.where(rows["level_b"] >= 0, rows["coef_b"], 0.0))
-    if method == "corrected":
-        return (np.hypot(np.abs(np.asarray(out["remainder"], dtype=float)), tol),
-                "method error = the second-order remainder of the final exact Gauss-Newton step (after %d exact "
-                "evaluations), with the exact levels' target accuracy %.1e cm-1 in quadrature"
-                % (out["refreshes"], ev.tol))
     p, e = np.asarray(out["params"], dtype=float), np.asarray(out["extra"], dtype=float)
+    if method == "corrected":
+        return _verify_remainder(
+            np.hypot(np.abs(np.asarray(out["remainder"], dtype=float)), tol),
+            "method error = the second-order remainder of the final exact Gauss-Newton step (after %d exact "
+            "evaluations), with the exact levels' target accuracy %.1e cm-1 in quadrature" % (out["refreshes"], ev.tol),
+            out["calc"], rows["sigma"], tol, lambda: ev.levels(p, e)[0] if ev.plain else ev.exact(p, e)[0])
     try:
         if method == "wkb":
             exact_rows = ev.levels(p, e)[0] if ev.plain else ev.exact(p, e)[0]

@@ -26,6 +26,11 @@ def _as_r(r):
     return arr
 
 
+#: the range the solvers scan, in units of re, where every model's V must be finite (computed once:
+#: a fit builds a potential per result)
+_WORKING_RANGE_GRID = np.geomspace(0.02, 60.0, 64)
+
+
 class Potential:
     """Base class: a named model of the C core with named parameters.
 
@@ -75,7 +80,7 @@ class Potential:
                              % (owner, p["De"], self.DE_MAX))
         if "re" in p:
             # V must be finite over the range the solvers scan (a few percent of re to 60 re)
-            r = p["re"] * np.geomspace(0.02, 60.0, 64)
+            r = p["re"] * _WORKING_RANGE_GRID
             vals = _core.potential_values(self.model, self._params, r, self._curve())
             bad = ~(np.isfinite(vals[0]) & np.isfinite(vals[1]) & np.isfinite(vals[3]))
             if np.any(bad & (r >= 0.5 * p["re"])):

@@ -7,8 +7,14 @@ at matched accuracy (about 1e-11), their ratio, and the throughput of
 two threads against one (the core releases the GIL).
 
 Targets (issue 2): <= 5 us per level on one core; >= 1000x the SciPy baseline; >= 1.8x with
-two threads on two cores.  Run: python3 tests/benchmarks/bench_wkb.py
+two threads on two cores; (issue 10) <= 0.6 us per level in the core.
+Run: python3 tests/benchmarks/bench_wkb.py [--against PATH]
+--against PATH: another build of the extension (wkbfit/_core*.so, e.g. one built from an earlier
+commit) loaded into this process beside this one: its core times are printed beside this build's,
+interleaved, so that before/after ratios come from one run on the same (possibly loaded) machine.
 """
+import argparse
+import importlib.util
 import multiprocessing
 import os
 import sys
@@ -26,7 +32,35 @@ from scipy_wkb import ScipyWKB  # noqa: E402  (tests/benchmarks/scipy_wkb.py)
 from timing import time_call  # noqa: E402  (tests/benchmarks/timing.py)
 
 
+def other_models():
+    """Invented test wells of other forms (those of tests/test_action_interpolant.py)."""
+    r = np.linspace(1.6, 9.0, 60)
+    return [
+        ("Lennard-Jones (10,6)", wkbfit.LennardJones(De=6000.0, re=3.5, n=10, m=6), 25.0),
+        ("Morse, 115 levels", wkbfit.Morse(De=9000.0, re=2.5, a=0.9), 20.0),
+        ("EMO", wkbfit.EMO(De=3000.0, re=3.0, betas=[1.0, 0.1]), 30.0),
+        ("MLR", wkbfit.MLR(De=3000.0, re=3.0, C6=2e5, betas=[0.3, 0.1, 0.05]), 30.0),
+        ("MLR, deep", wkbfit.MLR(De=12000.0, re=3.0, C6=6e5, betas=[0.2, 0.05]), 40.0),
+        ("MLR, C3 C4 C6 Douketis damped", wkbfit.MLR(De=5000.0, re=3.2, C6=2e6, C3=3e5, C4=1e5, C8=0.0,
+                                                     betas=[0.2, 0.1], p=5, damping="douketis", s=-2, rho=0.8),
+         30.0),
+        ("point-wise (Morse samples)", wkbfit.PointwisePotential(r, wkbfit.Morse(De=9000.0, re=2.5, a=0.9)(r)), 20.0),
+    ]
+
+
+def load_other_core(path):
+    """The extension at path as a separate module (its init function is PyInit__core, hence the name)."""
+    spec = importlib.util.spec_from_file_location("other_build._core", path)
+    module = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(module)
+    return module
+
+
 def main():
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--against", help="another build of wkbfit/_core*.so to time beside this one")
+    args = parser.parse_args()
+    other = load_other_core(args.against) if args.against else None
     # quad flags rounding-level trouble in the last digits near the asymptote; the levels still agree
     # with wkbfit's to the printed max difference, so keep the output readable
     warnings.simplefilter("ignore", IntegrationWarning)
@@ -48,6 +82,14 @@ def main():
         # per-level sweep that a list of v takes (the path before the interpolant)
         t_core = min(time_call(lambda: wkbfit._core.wkb_levels(model, params, curve, mu, 0.0), 0.3)
                      for _ in range(3))
+        if other is not None:
+            # interleaved with this build's, five rounds, the best of each
+            mine, theirs = [t_core], []
+            for _ in range(5):
+                theirs.append(time_call(lambda: other.wkb_levels(model, params, curve, mu, 0.0), 0.3))
+                mine.append(time_call(lambda: wkbfit._core.wkb_levels(model, params, curve, mu, 0.0), 0.3))
+            t_core, t_other = min(mine), min(theirs)
+            e_other = other.wkb_levels(model, params, curve, mu, 0.0)["energy"]
         t_direct = min(time_call(lambda: wkbfit._core.wkb_levels(model, params, curve, mu, 0.0, vs), 0.3)
                        for _ in range(3))
         t0 = time.perf_counter()
@@ -57,6 +99,9 @@ def main():
         print("\n%s: %d levels (first order)" % (name, n))
         print("  core, all levels  : %9.2f us/level   (target <= 0.6 us/level: %s)"
               % (t_core / n * 1e6, "met" if t_core / n <= 0.6e-6 else "NOT met"))
+        if other is not None:
+            print("  core, other build : %9.2f us/level   (this build %.2fx faster; max |E - E_other| = %.1e cm-1)"
+                  % (t_other / n * 1e6, t_other / t_core, np.max(np.abs(e_other - table.energy))))
         print("  core, direct sweep: %9.2f us/level   (interpolant speed-up %.2fx)" % (t_direct / n * 1e6,
                                                                                      t_direct / t_core))
         print("  wkbfit.levels     : %9.2f us/level   (from Python)" % (t_py / n * 1e6))
@@ -64,6 +109,22 @@ def main():
               % (t_scipy / len(ref) * 1e6, diff))
         print("  speed-up          : %9.0fx core, %.0fx from Python (target >= 1000x)"
               % ((t_scipy / len(ref)) / (t_core / n), (t_scipy / len(ref)) / (t_py / n)))
+
+    # The other models of the interpolant's tests (invented wells, tests/test_action_interpolant.py):
+    # all levels in the core, against the other build where given
+    print("\nall levels in the core, other models (target <= 0.6 us/level):")
+    for name, pot, mu in other_models():
+        model, params, curve = pot._core_args()
+        n = len(wkbfit._core.wkb_levels(model, params, curve, mu, 0.0)["energy"])
+        mine, theirs = [], []
+        for _ in range(3):
+            mine.append(time_call(lambda: wkbfit._core.wkb_levels(model, params, curve, mu, 0.0), 0.2))
+            if other is not None:
+                theirs.append(time_call(lambda: other.wkb_levels(model, params, curve, mu, 0.0), 0.2))
+        line = "  %-32s %4d levels: %7.2f us/level" % (name, n, min(mine) / n * 1e6)
+        if other is not None:
+            line += "   other build %7.2f (this build %.2fx faster)" % (min(theirs) / n * 1e6, min(theirs) / min(mine))
+        print(line)
 
     small_call(cases[0][1], cases[0][2])
 
