@@ -604,6 +604,8 @@ int wkb_fit_run_rows(const wkb_potential *start, const wkb_fit_data *levels, con
         params_from_x(&c, x, p0);
         for (size_t k = 0; k < c.np; k++)
             same = same && p0[k] == start->p[k];
+        for (size_t i = 0; same && i < c.n; i++)
+            same = isfinite(c.cache_calc[i]); /* (else evaluate_at's verdict: an infeasible start) */
         for (size_t j = 0; same && j < c.nv; j++)
             c.cache_x[j] = 0.0;
         c.cache_valid = same;
