@@ -395,6 +395,10 @@ static void *evaluate_part(void *arg)
     double cur_mu = NAN, cur_rot = NAN, ref_mu = NAN;
     const wkb_model *cur_model = NULL;
     double *calc = part->calc, *jac = part->jac;
+    /* without a Jacobian wanted, levels only: the exact solver's <v|dV/dp|v> costs about three times
+       its level, the orbit averages of dV/dp a part of each orbit (such an evaluation then leaves no
+       seeds for the next one, which need dE/dp: see wkb_fit_evaluate) */
+    const int want_dE = jac != NULL;
     wkb_error *err = &part->err;
     int status = WKB_SUCCESS;
 
@@ -407,7 +411,7 @@ static void *evaluate_part(void *arg)
             if ((status = set_well(part, pot, mu, 0.0, err)))
                 break;
             cur_mu = mu, cur_rot = 0.0, cur_model = NULL;
-            if ((status = level_of(part, 0, NAN, 0, &ref_E, NULL, ref_dE, err)))
+            if ((status = level_of(part, 0, NAN, 0, &ref_E, NULL, want_dE ? ref_dE : NULL, err)))
                 break;
             ref_mu = mu;
         }
@@ -424,12 +428,12 @@ static void *evaluate_part(void *arg)
         double E, Bv = NAN;
         int strong;
         const double seed = seed_of(ev, pot, s, &strong);
-        if ((status = level_of(part, d->v[i], seed, strong, &E, &Bv, dE, err)))
+        if ((status = level_of(part, d->v[i], seed, strong, &E, &Bv, want_dE ? dE : NULL, err)))
             break;
         if (!ev->source) {
             ev->cur_E[s] = E;
             ev->cur_Bv[s] = Bv;
-            if (np)
+            if (np && want_dE)
                 memcpy(ev->cur_dE + s * np, dE, np * sizeof *dE);
         }
         double *row = jac ? jac + i * np : NULL;
@@ -522,7 +526,7 @@ int wkb_fit_evaluate(wkb_fit_evaluator *ev, const wkb_potential *pot, double *ca
             return part->status;
         }
     }
-    if (!ev->source) {
+    if (!ev->source && jac) {
         /* this evaluation seeds the next one */
         double *t = ev->seed_E;
         ev->seed_E = ev->cur_E, ev->cur_E = t;
@@ -530,6 +534,8 @@ int wkb_fit_evaluate(wkb_fit_evaluator *ev, const wkb_potential *pot, double *ca
         ev->seed_dE = ev->cur_dE, ev->cur_dE = t;
         memcpy(ev->seed_p, pot->p, np * sizeof *pot->p);
         ev->have_seed = 1;
+    } else if (!ev->source) {
+        ev->have_seed = 0; /* (levels without dE/dp: the next evaluation is seeded from neighbouring J) */
     }
     return WKB_SUCCESS;
 }

@@ -1201,10 +1201,10 @@ static PyObject *py_set_fit_threads(PyObject *self, PyObject *args)
 static PyObject *py_fit_evaluate(PyObject *self, PyObject *args, PyObject *kwds)
 {
     static char *kwlist[] = {"model", "params", "curve", "v", "rot", "mu", "energy_zero", "method", "energy_tol",
-                             NULL};
+                             "jacobian", NULL};
     const char *model_name;
     PyObject *params_obj, *curve_obj, *v_obj, *rot_obj, *mu_obj, *result = NULL;
-    int energy_zero = WKB_ZERO_MINIMUM, method = 0, status;
+    int energy_zero = WKB_ZERO_MINIMUM, method = 0, want_jac = 1, status;
     double energy_tol = 0; /* exact levels' target accuracy, cm-1 (0: the solver's default) */
     wkb_radial_settings rs;
     wkb_radial *radial = NULL;
@@ -1218,8 +1218,8 @@ static PyObject *py_fit_evaluate(PyObject *self, PyObject *args, PyObject *kwds)
     PyArrayObject *calc = NULL, *jac = NULL;
     size_t bad_row = 0;
 
-    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOOOO|iid", kwlist, &model_name, &params_obj, &curve_obj, &v_obj,
-                                     &rot_obj, &mu_obj, &energy_zero, &method, &energy_tol))
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOOOO|iidp", kwlist, &model_name, &params_obj, &curve_obj, &v_obj,
+                                     &rot_obj, &mu_obj, &energy_zero, &method, &energy_tol, &want_jac))
         return NULL;
     if (!(isfinite(energy_tol) && energy_tol >= 0)) {
         PyErr_SetString(PyExc_ValueError, "energy_tol must be a finite number > 0 (cm-1), or 0 for the default");
@@ -1243,11 +1243,11 @@ static PyObject *py_fit_evaluate(PyObject *self, PyObject *args, PyObject *kwds)
         source_store.clone_arg = &rs; /* (clones are made at the evaluator's allocation, below) */
     }
     npy_intp dims[2] = {(npy_intp)data.n, (npy_intp)pot.model->n_params};
-    if (!(calc = new_vector(dims[0])) || !(jac = (PyArrayObject *)PyArray_ZEROS(2, dims, NPY_DOUBLE, 0)))
+    if (!(calc = new_vector(dims[0])) || (want_jac && !(jac = (PyArrayObject *)PyArray_ZEROS(2, dims, NPY_DOUBLE, 0))))
         goto cleanup;
     {
         wkb_settings levels = wkb_default_settings();
-        double *pc = PyArray_DATA(calc), *pj = PyArray_DATA(jac);
+        double *pc = PyArray_DATA(calc), *pj = jac ? PyArray_DATA(jac) : NULL;
         Py_BEGIN_ALLOW_THREADS
         ev = wkb_fit_evaluator_alloc(&data, &levels, source, &err);
         status = ev ? wkb_fit_evaluate(ev, &pot, pc, pj, &bad_row, &err) : (err.status ? err.status : WKB_ENOMEM);
@@ -1262,13 +1262,68 @@ static PyObject *py_fit_evaluate(PyObject *self, PyObject *args, PyObject *kwds)
         raise_status(&err);
         goto cleanup;
     }
-    result = Py_BuildValue("(OO)", calc, jac);
+    result = Py_BuildValue("(OO)", calc, jac ? (PyObject *)jac : Py_None);
 cleanup:
     wkb_fit_evaluator_free(ev);
     wkb_radial_free(radial);
     fit_arrays_release(&a);
     Py_XDECREF(calc);
     Py_XDECREF(jac);
+    return result;
+}
+
+/* tall_qr(A, b=None) -> (R, Q^T b [:p] or None, |rest of Q^T b|^2 or None): tall_qr.c (no threaded BLAS) */
+static PyObject *py_tall_qr(PyObject *self, PyObject *args, PyObject *kwds)
+{
+    static char *kwlist[] = {"A", "b", NULL};
+    PyObject *A_obj, *b_obj = Py_None, *result = NULL;
+    PyArrayObject *A = NULL, *b = NULL, *R = NULL, *qtb = NULL;
+    double rest = 0;
+    wkb_error err = {0};
+    int status;
+
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "O|O", kwlist, &A_obj, &b_obj))
+        return NULL;
+    if (!(A = as_double_array(A_obj, "A", 2)))
+        return NULL;
+    const npy_intp n = PyArray_DIM(A, 0), p = PyArray_DIM(A, 1);
+    if (p < 1 || n < p) {
+        PyErr_Format(PyExc_ValueError, "A is %zd x %zd: QR needs at least one column and as many rows as columns",
+                     (Py_ssize_t)n, (Py_ssize_t)p);
+        goto cleanup;
+    }
+    if (b_obj != Py_None) {
+        if (!(b = as_double_array(b_obj, "b", 1)))
+            goto cleanup;
+        if (PyArray_DIM(b, 0) != n) {
+            PyErr_Format(PyExc_ValueError, "b has %zd entries but A has %zd rows", (Py_ssize_t)PyArray_DIM(b, 0),
+                         (Py_ssize_t)n);
+            goto cleanup;
+        }
+    }
+    npy_intp dims[2] = {p, p};
+    if (!(R = (PyArrayObject *)PyArray_ZEROS(2, dims, NPY_DOUBLE, 0)) || !(qtb = new_vector(p)))
+        goto cleanup;
+    {
+        const double *pa = PyArray_DATA(A), *pb = b ? PyArray_DATA(b) : NULL;
+        double *pr = PyArray_DATA(R), *pq = PyArray_DATA(qtb);
+        Py_BEGIN_ALLOW_THREADS
+        status = wkb_tall_qr((size_t)n, (size_t)p, pa, pb, pr, pq, &rest, &err);
+        Py_END_ALLOW_THREADS
+    }
+    if (status) {
+        raise_status(&err);
+        goto cleanup;
+    }
+    if (b)
+        result = Py_BuildValue("(OOd)", R, qtb, rest);
+    else
+        result = Py_BuildValue("(OOO)", R, Py_None, Py_None);
+cleanup:
+    Py_XDECREF(A);
+    Py_XDECREF(b);
+    Py_XDECREF(R);
+    Py_XDECREF(qtb);
     return result;
 }
 
@@ -2264,9 +2319,13 @@ static PyMethodDef core_methods[] = {
      "set_fit_threads(n) -> previous: threads of the fits' level evaluations from now on (0: the default, the\n"
      "online CPUs for 500 rows or more, else 1; never more than the (mu, J) groups), process-wide"},
     {"fit_evaluate", (PyCFunction)(void (*)(void))py_fit_evaluate, METH_VARARGS | METH_KEYWORDS,
-     "fit_evaluate(model, params, curve, v, rot, mu, energy_zero=0, method=0, energy_tol=0) -> (calc, "
-     "jacobian[n, n_params]):\n"
-     "the fit's model levels (energy_zero 0 minimum, 1 asymptote, 2 lowest; method 0 WKB, 1 exact) and d calc/d p"},
+     "fit_evaluate(model, params, curve, v, rot, mu, energy_zero=0, method=0, energy_tol=0, jacobian=True) -> (calc, "
+     "jacobian[n, n_params] or None):\n"
+     "the fit's model levels (energy_zero 0 minimum, 1 asymptote, 2 lowest; method 0 WKB, 1 exact) and d calc/d p\n"
+     "(jacobian=False: none; exact levels are then computed without <v|dV/dp|v>, about 1/3 of the cost)"},
+    {"tall_qr", (PyCFunction)(void (*)(void))py_tall_qr, METH_VARARGS | METH_KEYWORDS,
+     "tall_qr(A, b=None) -> (R, qtb, rest): Householder QR A = Q R of an n x p matrix (n >= p >= 1) on the\n"
+     "calling thread (GSL, no threaded BLAS); with b: qtb = (Q^T b)[:p], rest = |(Q^T b)[p:]|^2, else None"},
     {"fit_run", (PyCFunction)(void (*)(void))py_fit_run, METH_VARARGS | METH_KEYWORDS,
      "fit_run(model, params, curve, v, rot, mu, energy, sigma, energy_zero, vary, lower, upper,\n"
      "max_iterations=-1, xtol, gtol, decrease_tol, method=0, offset=None) -> dict (params, calc, jacobian, chi_square, iterations,\n"

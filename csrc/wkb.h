@@ -534,7 +534,8 @@ wkb_fit_evaluator *wkb_fit_evaluator_alloc(const wkb_fit_data *data, const wkb_s
                                            const wkb_level_source *source, wkb_error *err);
 void wkb_fit_evaluator_free(wkb_fit_evaluator *ev);
 /* calc[n] (cm-1, in the data's energy zero) and, if jac is not NULL, jac[n][n_params] =
-   d calc_i / d p_k for every model parameter. *bad_row (may be NULL) names the row being
+   d calc_i / d p_k for every model parameter (jac NULL: levels only, without the parameter
+   derivatives' cost; the evaluation after such a one starts without seeds from it). *bad_row (may be NULL) names the row being
    computed when a level fails. Status: that of the failing level (WKB_ENOLEVEL when the
    potential does not bind it), WKB_ENUMERIC for a non-finite result. */
 int wkb_fit_evaluate(wkb_fit_evaluator *ev, const wkb_potential *pot, double *calc, double *jac,
@@ -634,6 +635,13 @@ int wkb_fit_run_rows(const wkb_potential *start, const wkb_fit_data *levels, con
 int wkb_fit_levels(const wkb_potential *pot, double mu, double rot, const wkb_settings *settings,
                    const wkb_level_source *source, size_t capacity, double *energy, double *dEdp,
                    size_t *count, double *vD, double *dvDdp, wkb_error *err);
+
+/* ---------------------------------------------------------------- tall_qr.c */
+/* Householder QR of the row-major n x p matrix A (n >= p >= 1) on the calling thread (the fits' tall
+   Jacobians: no threaded BLAS): R[p][p] upper triangular (A = Q R); with b (n values, may be NULL),
+   qtb[p] = the first p entries of Q^T b and *rest = the sum of squares of the others. */
+int wkb_tall_qr(size_t n, size_t p, const double *A, const double *b, double *R, double *qtb, double *rest,
+                wkb_error *err);
 
 /* ---------------------------------------------------------------- replica_fit.c */
 /* Per-level corrections to first-order WKB levels, linear in the parameters:

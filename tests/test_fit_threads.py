@@ -143,3 +143,33 @@ def test_exact_fit_on_threads(threads):
                                   upper=np.full(4, np.inf), max_iterations=50, method=1, offset=None))
     assert [o["n_threads"] for o in outs] == [1, 2]
     assert np.array_equal(outs[0]["params"], outs[1]["params"]) and outs[0]["stop"] == "converged"
+
+
+@pytest.mark.parametrize("name", list(CASES))
+def test_exact_levels_without_the_jacobian(name, threads):
+    # jacobian=False: the exact solver's levels without <v|dV/dp|v> (the refreshes' levels-only evaluations,
+    # rotational_corrections.py), on any number of threads: bit-identical to the per-(mu, J) exact solver calls
+    # of corrected.exact_calc (the reference) and to the levels of the evaluation with the Jacobian; binding
+    # energies (asymptote - E here, the solver's own there) within the stated accuracy, 1e-8 cm-1
+    from wkbfit.corrected import exact_calc
+    pot, mu0 = CASES[name]
+    model, p, curve = pot._core_args()
+    v, rot, mu = rows(pot, mu0)
+    sel = np.ones(len(v), bool) if name != "MLR damped" else rot <= 30  # (its exact levels are slow)
+    v, rot, mu = v[sel], rot[sel], mu[sel]
+    for zero in (0, 1, 2):
+        ref, _ = exact_calc(model, p, curve, v, rot, mu, zero, 1e-8)
+        for n in (1, 2, 3):
+            threads(n)
+            calc, jac = _core.fit_evaluate(model, p, curve, v, rot, mu, zero, 1, 1e-8, jacobian=False)
+            assert jac is None
+            if zero == 1:
+                np.testing.assert_allclose(calc, ref, rtol=0, atol=1e-8)
+            else:
+                assert np.array_equal(calc, ref)
+        with_jac, _ = _core.fit_evaluate(model, p, curve, v, rot, mu, zero, 1, 1e-8)
+        assert np.array_equal(calc, with_jac)
+    # first-order WKB levels without dE/dp (the orbit averages skipped): the same bits as with them
+    for zero in (0, 1, 2):
+        wkb, none = _core.fit_evaluate(model, p, curve, v, rot, mu, zero, _WKB, jacobian=False)
+        assert none is None and np.array_equal(wkb, _core.fit_evaluate(model, p, curve, v, rot, mu, zero, _WKB)[0])

@@ -66,8 +66,10 @@ def test_interpolated_rows_match_the_exact_solver(name, zero):
     assert np.abs(calc[rot == 0] - exact[rot == 0]).max() <= TOL  # J = 0 rows (interpolation nodes)
     if exact_jac.shape[1]:
         sd = 1e-4 * np.abs(p[:exact_jac.shape[1]])
-        calc_j, jac, _ = exact_rows(model, p, curve, v, rot, mu, zero, TOL, wkb, wkb_jac, sd)
+        calc_j, jac, info_j = exact_rows(model, p, curve, v, rot, mu, zero, TOL, wkb, wkb_jac, sd)
         np.testing.assert_allclose(calc_j, exact, rtol=0, atol=TOL)
+        # the derivatives' own interpolants (JACOBIAN_DEGREES) for every interpolated (mu, v)
+        assert set(info_j["jacobian_degree"]) == set(info_j["degree"])
         scale = np.abs(exact_jac).max(axis=0)
         assert np.all(np.abs(jac - exact_jac).max(axis=0) <= 1e-5 * np.where(scale > 0, scale, 1.0))
 

@@ -23,8 +23,8 @@ import math
 
 import numpy as np
 
-from . import _core
-from .rotational_corrections import exact_rows, interpolable
+from . import _core, _tall
+from .rotational_corrections import DEGREES, FIRST_REFRESH_DEGREES, RowGroups, exact_rows, interpolable
 
 __all__ = ["run_corrected", "run_corrected_rows", "RowEvaluator", "run_with_unbound_rows", "LINEAR_STEP", "REMAINDER_SD",
            "ROWS_STEP", "MAX_REFRESHES"]
@@ -55,13 +55,18 @@ def _gauss_newton(calc, jac, energy, sigma, var):
     norms = np.linalg.norm(A, axis=0)
     norms[norms == 0] = 1.0
     An = A / norms
-    step, *_ = np.linalg.lstsq(An, -r, rcond=None)
-    step /= norms
-    try:
-        inv = np.linalg.inv(An.T @ An) / np.outer(norms, norms)
-    except np.linalg.LinAlgError:
-        inv = np.linalg.pinv(An.T @ An) / np.outer(norms, norms)
-    chi2 = float(r @ r)
+    chi2 = _tall.sumsq(r)
+    if not var or len(r) < len(var):
+        step, *_ = np.linalg.lstsq(An, -r, rcond=None)  # (nothing tall: numpy as it is)
+        step /= norms
+        try:
+            inv = np.linalg.inv(An.T @ An) / np.outer(norms, norms)
+        except np.linalg.LinAlgError:
+            inv = np.linalg.pinv(An.T @ An) / np.outer(norms, norms)
+    else:
+        # the n-row work off numpy's threaded BLAS (_tall.py): QR in C, then p x p matrices
+        step, inv = _tall.lstsq_and_inverse(An, -r)
+        step, inv = step / norms, inv / np.outer(norms, norms)
     dof = len(r) - len(var)
     sd = np.sqrt(np.abs(np.diag(inv)))
     if dof > 0:
@@ -75,6 +80,14 @@ def exact_tolerance(sigma):
     (so the solver's error moves no parameter by more than ~1e-3 standard deviation), between
     1e-9 and 1e-5 cm-1."""
     return float(min(1e-5, max(1e-9, 1e-3 * float(np.min(sigma)))))
+
+
+def first_refresh_tolerance(sigma):
+    """Target accuracy of the exact levels of a fit's first (levels-only) refresh: 1e-2 of the smallest
+    uncertainty, between exact_tolerance and 1e-3 cm-1. Its levels only set the corrections of the first
+    step toward the exact minimum; the exact evaluation after that step, to exact_tolerance, decides
+    where the fit ends. (20-25 % cheaper than exact_tolerance on the 20 000-level benchmark fit.)"""
+    return float(min(1e-3, max(exact_tolerance(sigma), 1e-2 * float(np.min(sigma)))))
 
 
 def exact_calc(model, params, curve, v, rot, mu, energy_zero, tolerance):
@@ -169,21 +182,22 @@ def run_corrected(args, *, tolerance=LINEAR_STEP, max_refreshes=MAX_REFRESHES, i
     done = False
 
     interpolate = interpolate_in_j and interpolable(model, v, rot, mu)
+    groups = RowGroups(v, rot, mu) if interpolate else None  # (the same rows at every refresh)
 
-    def exact_at(p, want_jac, var):
+    def exact_at(p, want_jac, var, tol=tol_levels, degrees=DEGREES):
         """(exact rows, exact Jacobian or None) at p, the run's end (out: WKB rows there plus offset)."""
         nonlocal n_exact
         wkb_calc = out["calc"] - offset
         if not interpolate:
             n_exact += len(v)
             if want_jac:
-                return _core.fit_evaluate(model, p, curve, v, rot, mu, zero, _EXACT, tol_levels)
-            return exact_calc(model, p, curve, v, rot, mu, zero, tol_levels)[0], None
+                return _core.fit_evaluate(model, p, curve, v, rot, mu, zero, _EXACT, tol)
+            return exact_calc(model, p, curve, v, rot, mu, zero, tol)[0], None
         sd_full = np.zeros(len(a["vary"]))
         if want_jac and var:
             sd_full[var] = _gauss_newton(wkb_calc, out["jacobian"], energy, sigma, var)[1]
-        calc, jac, info = exact_rows(model, p, curve, v, rot, mu, zero, tol_levels, wkb_calc,
-                                     out["jacobian"] if want_jac else None, sd_full, tolerance)
+        calc, jac, info = exact_rows(model, p, curve, v, rot, mu, zero, tol, wkb_calc,
+                                     out["jacobian"] if want_jac else None, sd_full, tolerance, degrees, groups)
         n_exact += info["exact_levels"]
         return calc, jac
 
@@ -194,7 +208,9 @@ def run_corrected(args, *, tolerance=LINEAR_STEP, max_refreshes=MAX_REFRESHES, i
             # the pure WKB point is far from the exact minimum: correct with exact levels only (1/4 of the
             # cost with the Jacobian for an MLR). Measured: a second levels-only refresh before the first
             # Jacobian costs more than it saves (tests/benchmarks/bench_default_fit.py)
-            calc_ex, _ = exact_at(p, False, var)
+            # (to the looser first_refresh_tolerance: the exact evaluation with the Jacobian after it
+            # measures what this step left, to the full tolerance)
+            calc_ex, _ = exact_at(p, False, var, first_refresh_tolerance(sigma), FIRST_REFRESH_DEGREES)
             refreshes += 1
             step, sd, chi2 = _gauss_newton(calc_ex, out["jacobian"], energy, sigma, var)
             history.append({"kind": "levels", "step_sd": float(np.max(np.abs(step) / sd)) if var else 0.0,
@@ -212,11 +228,11 @@ def run_corrected(args, *, tolerance=LINEAR_STEP, max_refreshes=MAX_REFRESHES, i
                 full = np.zeros(len(a["vary"]))
                 full[var] = step
                 try:
-                    wkb_f, _ = _core.fit_evaluate(model, p + full, curve, v, rot, mu, zero, _WKB)
+                    wkb_f, _ = _core.fit_evaluate(model, p + full, curve, v, rot, mu, zero, _WKB, jacobian=False)
                 except ValueError:
                     wkb_f = None  # the step leaves the model's domain: correct and run again
                 if wkb_f is not None:
-                    remainder = wkb_f - (out["calc"] - offset) - out["jacobian"] @ full
+                    remainder = wkb_f - (out["calc"] - offset) - _tall.matvec(out["jacobian"], full)
                     shift, _, _ = _gauss_newton(energy + remainder, jac_ex, energy, sigma, var)
                     history[-1]["remainder_sd"] = float(np.max(np.abs(shift) / sd)) if var else 0.0
                     if history[-1]["remainder_sd"] < REMAINDER_SD:
@@ -244,9 +260,9 @@ def run_corrected(args, *, tolerance=LINEAR_STEP, max_refreshes=MAX_REFRESHES, i
         correction = np.zeros(len(a["vary"]))
         correction[var] = shift
         p_final = out["params"] + full + correction
-        calc_final = calc_ex + jac_ex @ (full + correction) + remainder
+        calc_final = calc_ex + _tall.matvec(jac_ex, full + correction) + remainder
         r = (calc_final - energy) / sigma
-        out.update(params=p_final, calc=calc_final, jacobian=jac_ex, chi_square=float(r @ r))
+        out.update(params=p_final, calc=calc_final, jacobian=jac_ex, chi_square=_tall.sumsq(r))
     else:
         remainder = np.full(len(v), np.nan)
     out.update(iterations=iterations, n_eval=n_eval, refreshes=refreshes, exact_jacobians=jacobians,
@@ -279,6 +295,13 @@ class RowEvaluator:
         self.tol = exact_tolerance(rows["sigma"])
         self.zero = np.zeros(len(rows["observed"]))
         self.sd = None
+        self._groups = None
+
+    def groups(self):
+        """The levels' RowGroups (made at the first interpolated refresh, shared by the others)."""
+        if self._groups is None:
+            self._groups = RowGroups(self.lv, self.lrot, self.lmu)
+        return self._groups
 
     def _combine(self, per_level):
         """Rows from per-level values (vector or matrix): sum of coef * value over the row's levels."""
@@ -293,12 +316,13 @@ class RowEvaluator:
     def corrections(self, p, loose=False):
         """Per row: E_exact - E_wkb of its levels at p (levels only), cm-1. loose: to 1e-2 of the smallest
         uncertainty (the first refresh, whose error the exact evaluation after it measures and removes)."""
-        tol = min(1e-3, max(self.tol, 1e-2 * float(np.min(self.rows["sigma"])))) if loose else self.tol
+        tol = first_refresh_tolerance(self.rows["sigma"]) if loose else self.tol
         wkb, _ = _core.fit_evaluate(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, _WKB)
         if self.omega:
             ex, _ = _core.fit_evaluate(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, _EXACT, tol)
         elif self.interpolate_in_j and interpolable(self.model, self.lv, self.lrot, self.lmu):
-            ex, _, _ = exact_rows(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, tol, wkb)
+            ex, _, _ = exact_rows(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, tol, wkb,
+                                  degrees=FIRST_REFRESH_DEGREES if loose else DEGREES, groups=self.groups())
         else:
             ex, _ = exact_calc(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, tol)
         return self._combine(ex - wkb)
@@ -315,7 +339,7 @@ class RowEvaluator:
         if not self.omega and self.interpolate_in_j and self.sd is not None and \
                 interpolable(self.model, self.lv, self.lrot, self.lmu):
             E_ex, J_ex, info = exact_rows(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, self.tol, E_w,
-                                          J_w, self.sd, LINEAR_STEP)
+                                          J_w, self.sd, LINEAR_STEP, groups=self.groups())
             n_exact = info["exact_levels"]
         else:
             E_ex, J_ex = _core.fit_evaluate(self.model, p, self.curve, self.lv, self.lrot, self.lmu, 0, _EXACT,
@@ -395,10 +419,10 @@ def run_corrected_rows(ev, n_params, vary, max_iterations, *, tolerance=ROWS_STE
                 try:
                     w0 = ev.run(p, e, ev.zero, _WKB, 0)
                     w1 = ev.run(p + full[:n_params], e + full[n_params:], ev.zero, _WKB, 0)
-                    remainder = np.asarray(w1["calc"]) - np.asarray(w0["calc"]) - np.asarray(w0["jacobian"]) @ full
+                    remainder = np.asarray(w1["calc"]) - np.asarray(w0["calc"]) - _tall.matvec(w0["jacobian"], full)
                 except ValueError:
                     remainder = np.full(len(calc), np.nan)
-                calc = calc + jac @ full
+                calc = calc + _tall.matvec(jac, full)
                 p, e = p + full[:n_params], e + full[n_params:]
                 break
             if refreshes >= max_refreshes:
@@ -412,7 +436,7 @@ def run_corrected_rows(ev, n_params, vary, max_iterations, *, tolerance=ROWS_STE
             kind = "levels"
         r = (calc - observed) / sigma
         out = dict(out)
-        out.update(params=p, extra=e, calc=calc, jacobian=jac, chi_square=float(r @ r),
+        out.update(params=p, extra=e, calc=calc, jacobian=jac, chi_square=_tall.sumsq(r),
                    n_level_calculations=out["n_level_calculations"] + n_levels)
     out = dict(out)
     out.update(iterations=iterations, n_eval=n_eval, refreshes=refreshes, exact_jacobians=jacobians,

@@ -5,7 +5,7 @@ import math
 import os
 import numpy as np
 
-from . import _validate
+from . import _tall, _validate
 from .masses import as_reduced_mass, parse_isotopologue, reduced_mass
 from . import reports as _reports
 from . import result_json as _result_json
@@ -193,8 +193,8 @@ class FitResult:
             A = Jw[:, keep]
             A = A / np.linalg.norm(A, axis=0)
             # singular values and vectors of A are those of R from A = QR (cheaper for many rows)
-            _, s, vt = np.linalg.svd(np.linalg.qr(A, mode="r") if A.shape[0] > 2 * A.shape[1] else A,
-                                     full_matrices=False)
+            # (the QR in C on one thread: numpy's threaded BLAS spins after tall calls, _tall.py)
+            _, s, vt = np.linalg.svd(_tall.qr_r(A)[0] if A.shape[0] > 2 * A.shape[1] else A, full_matrices=False)
             cond = float(s[0] / s[-1]) if s[-1] > 0 else math.inf
             small = s < _RCOND_SINGULAR * s[0]
             if not np.any(small):
@@ -214,7 +214,8 @@ class FitResult:
             A = Jw[:, det]
             norms = np.linalg.norm(A, axis=0)
             An = A / norms
-            inv = np.linalg.inv(An.T @ An)
+            R = _tall.qr_r(An)[0] if len(An) >= len(det) else None  # A^T A = R^T R
+            inv = np.linalg.inv(R.T @ R if R is not None else An.T @ An)
             sub = inv / np.outer(norms, norms)
             cov_u[np.ix_(det, det)] = sub
         factor = self.chi_square / self.dof if (self.scale_uncertainties and self.dof > 0) else 1.0

@@ -84,16 +84,15 @@ def quasibound_candidates(datasets, potential, masses):
     placed, unplaced, line_levels = [], [], set()
     lowest = [d for d in datasets if type(d) is ObservedLevels and d.energy_zero == "lowest" and len(d)
               and np.any(np.asarray(d.J) > 0)]
-    E00 = _start_levels(potential, masses, {(label, 0, 0) for d in lowest for label in d.isotopologue}) \
+    E00 = _start_levels(potential, masses, {(label, 0, 0) for d in lowest for label in d.isotopologues}) \
         if lowest else {}
     for d in datasets:
         if type(d) is ObservedLevels and d.energy_zero in ("minimum", "lowest"):
             # (whole columns at once: a Python loop over 20 000 rows cost ~10 ms a fit)
             base = np.zeros(len(d))
             if d.energy_zero == "lowest":
-                labels = np.asarray(d.isotopologue, dtype=object)
-                for label in set(labels.tolist()):
-                    base[labels == label] = E00.get((label, 0, 0), math.nan)
+                zero_of = {label: E00.get((label, 0, 0), math.nan) for label in d.isotopologues}
+                base = np.array(list(map(zero_of.__getitem__, d.isotopologue.tolist())), dtype=float)
             with np.errstate(invalid="ignore"):
                 above = (np.asarray(d.J) > 0) & (np.asarray(d.energy, dtype=float) + base > D)
             for i in np.nonzero(above)[0]:

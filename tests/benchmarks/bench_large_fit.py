@@ -8,13 +8,22 @@ split by reduced mass, csrc/fit_levels.c; ratio in the same run), its iterations
 the core time per level and evaluation. Target (issue 10): <= 150 ms. Beside it, in the same process,
 the same fit with every refresh row solved exactly (interpolate_in_j=False: the refreshes before the
 corrections were interpolated in J(J+1)) and the ratio.
-Threads: numpy's OpenBLAS keeps its worker threads spinning (~0.1 s) after each threaded call (the fit's
-tall-skinny products, least squares and QR in Python), and they take the core the evaluator's second
-thread needs: measured on 2 cores, ratio 0.91 as is, 0.65 with OPENBLAS_NUM_THREADS=1 (the line printed
-says which).
-Run: python3 tests/benchmarks/bench_large_fit.py  (or OPENBLAS_NUM_THREADS=1 python3 ...)
+Threads: numpy's OpenBLAS keeps its worker threads spinning after each threaded call, and they took the
+core the evaluator's second thread needs (before: ratio 0.91 as is, 0.65 with OPENBLAS_NUM_THREADS=1);
+the fit's tall-skinny linear algebra now runs without BLAS threads (pkg/wkbfit/_tall.py, csrc/tall_qr.c),
+so OPENBLAS_NUM_THREADS no longer matters (CPU per fit 284-296 ms unset, 286 ms with 1; before 600 vs 380).
+Before/after: with --baseline TREE (a built checkout of an earlier commit), the same fit is timed in
+a subprocess on TREE's package, alternating with this tree's in rounds (the machine's load then weighs
+on both alike), and the ratio per round is printed.
+Measured against main at 83e014d (2 cores shared with 5 other jobs, load average 2.4-4.5: wall times noisy,
+CPU times and ratios less so): CPU per fit 500-600 ms before, 284-294 ms after (ratio 0.48-0.59); wall
+after/before 0.55-0.68 per round; at the calmest moment 169 ms on 2 threads (294 ms on one), before 344 ms.
+Target 150 ms: not met on this machine (the serial Python part is ~29 ms CPU, the rest scales with threads).
+Run: python3 tests/benchmarks/bench_large_fit.py [--baseline TREE]  (or OPENBLAS_NUM_THREADS=1 python3 ...)
 """
+import json
 import os
+import subprocess
 import sys
 import time
 
@@ -22,7 +31,8 @@ import functools
 
 import numpy as np
 
-sys.path.insert(0, os.path.join(os.path.dirname(__file__), "..", "..", "pkg"))
+# --time-only: the fit's wall time as JSON (the baseline's subprocess; WKBFIT_PKG: the package to time)
+sys.path.insert(0, os.environ.get("WKBFIT_PKG") or os.path.join(os.path.dirname(__file__), "..", "..", "pkg"))
 import wkbfit  # noqa: E402
 import wkbfit.corrected  # noqa: E402
 from timing import time_call  # noqa: E402  (tests/benchmarks/timing.py)
@@ -67,9 +77,51 @@ def count_orbits(call):
         core.fit_run = run
 
 
+def _fit_time(obs, masses, start):
+    """(wall, CPU) seconds per fit; the CPU time (all threads) barely depends on the machine's load, the wall
+    time does."""
+    c0 = time.process_time()
+    calls = [0]
+
+    def one():
+        calls[0] += 1
+        wkbfit.fit(start, obs, masses)
+    wall = time_call(one, min_time=2.0)
+    return wall, (time.process_time() - c0) / calls[0]
+
+
+def before_after(tree, obs, masses, start, rounds=3):
+    """(baseline times, this tree's times), s: rounds of the baseline's subprocess and this process in turn."""
+    env = dict(os.environ, WKBFIT_PKG=os.path.join(os.path.abspath(tree), "pkg"))
+    base, here = [], []
+    for _ in range(rounds):
+        run = subprocess.run([sys.executable, os.path.abspath(__file__), "--time-only"], env=env, check=True,
+                             capture_output=True, text=True)
+        out = json.loads(run.stdout.strip().splitlines()[-1])
+        base.append((out["fit_s"], out["cpu_s"]))
+        here.append(_fit_time(obs, masses, start))
+    return np.array(base), np.array(here)
+
+
 def main():
     obs, masses = data()
     start = wkbfit.LennardJones(De=4040.0, re=4.04)
+    if "--time-only" in sys.argv:
+        wkbfit.fit(start, obs, masses)  # (warm-up)
+        wall, cpu = _fit_time(obs, masses, start)
+        print(json.dumps({"fit_s": wall, "cpu_s": cpu, "package": wkbfit.__file__}))
+        return
+    if "--baseline" in sys.argv:
+        tree = sys.argv[sys.argv.index("--baseline") + 1]
+        wkbfit.fit(start, obs, masses)
+        base, here = before_after(tree, obs, masses, start)
+        for k, what in ((0, "wall"), (1, "CPU (all threads)")):
+            print("before/after, %s time per fit (%s vs this tree, rounds in turn): before %s ms; after %s ms; "
+                  "ratio after/before per round %s (median %.2f)"
+                  % (what, tree, ", ".join("%.1f" % (t * 1e3) for t in base[:, k]),
+                     ", ".join("%.1f" % (t * 1e3) for t in here[:, k]),
+                     ", ".join("%.2f" % r for r in here[:, k] / base[:, k]), float(np.median(here[:, k] / base[:, k]))))
+        print("  (load average %s at the end)" % " ".join("%.2f" % x for x in os.getloadavg()))
     res, orbits = count_orbits(lambda: wkbfit.fit(start, obs, masses))
     previous = wkbfit._core.set_fit_threads(1)
     try:
