@@ -51,7 +51,8 @@ _WKB, _EXACT = 0, 1
 def _gauss_newton(calc, jac, energy, sigma, var):
     """Exact Gauss-Newton step (varied parameters var) and the parameter standard deviations."""
     A = jac[:, var] / sigma[:, None]
-    r = (calc - energy) / sigma
+    with np.errstate(over="ignore"):  # an absurd datum makes chi-square inf: refused by the caller
+        r = (calc - energy) / sigma
     norms = np.linalg.norm(A, axis=0)
     norms[norms == 0] = 1.0
     An = A / norms
