@@ -40,6 +40,7 @@ wkb_settings wkb_default_settings(void)
 {
     wkb_settings s;
     s.nodes = 32;
+    s.check_nodes = 0;
     s.energy_tol = 1e-11;
     s.max_newton = 60;
     s.scan_points = 160;
@@ -147,6 +148,51 @@ static int gauss_legendre_unit(size_t n, double *x, double *wt)
     return status;
 }
 
+/* Makes the rule with base_nodes << level nodes (once per well): one block holding the n-point rule on
+   [0, 1] and the positive halves of the n- and 2n-point rules on [-1, 1]. */
+static int make_rules(wkb_well *w, int level)
+{
+    if (w->rules[level].gl_x)
+        return 0;
+    const size_t n = w->base_nodes << level;
+    double *block = malloc(5 * n * sizeof(double));
+    if (!block)
+        return 1;
+    double *gl_x = block, *gl_w = block + n, *even_x = block + 2 * n, *even_w = even_x + n / 2, *even2_x = block + 3 * n,
+           *even2_w = block + 4 * n;
+    if (n == DEFAULT_NODES && !pthread_once(&default_rules_once, make_default_rules) && !default_rules.status) {
+        memcpy(gl_x, default_rules.gl_x, sizeof default_rules.gl_x);
+        memcpy(gl_w, default_rules.gl_w, sizeof default_rules.gl_w);
+        memcpy(even_x, default_rules.even_x, sizeof default_rules.even_x);
+        memcpy(even_w, default_rules.even_w, sizeof default_rules.even_w);
+        memcpy(even2_x, default_rules.even2_x, sizeof default_rules.even2_x);
+        memcpy(even2_w, default_rules.even2_w, sizeof default_rules.even2_w);
+    } else if (gauss_legendre_unit(n, gl_x, gl_w) || even_half_rule(n, even_x, even_w) ||
+               even_half_rule(2 * n, even2_x, even2_w)) {
+        free(block);
+        return 1;
+    }
+    w->rules[level].gl_x = gl_x;
+    w->rules[level].gl_w = gl_w;
+    w->rules[level].even_x = even_x;
+    w->rules[level].even_w = even_w;
+    w->rules[level].even2_x = even2_x;
+    w->rules[level].even2_w = even2_w;
+    return 0;
+}
+
+/* the orbit integrals use the rule of this level from now on (made already) */
+static void use_rules(wkb_well *w, int level)
+{
+    w->set.nodes = w->base_nodes << level;
+    w->gl_x = w->rules[level].gl_x;
+    w->gl_w = w->rules[level].gl_w;
+    w->even_x = w->rules[level].even_x;
+    w->even_w = w->rules[level].even_w;
+    w->even2_x = w->rules[level].even2_x;
+    w->even2_w = w->rules[level].even2_w;
+}
+
 wkb_well *wkb_well_alloc(const wkb_settings *settings)
 {
     wkb_well *w = calloc(1, sizeof *w);
@@ -158,29 +204,12 @@ wkb_well *wkb_well_alloc(const wkb_settings *settings)
         !(w->set.match_fraction >= 0.05 && w->set.match_fraction <= 0.95) || !(w->set.match_decay >= 5) ||
         !(w->set.match_ode_tol > 0))
         goto fail;
+    w->base_nodes = w->set.nodes;
     w->scan_r = malloc(w->set.scan_points * sizeof(double));
     w->scan_V = malloc(w->set.scan_points * sizeof(double));
-    w->gl_x = malloc(w->set.nodes * sizeof(double));
-    w->gl_w = malloc(w->set.nodes * sizeof(double));
-    w->even_x = malloc(w->set.nodes / 2 * sizeof(double));
-    w->even_w = malloc(w->set.nodes / 2 * sizeof(double));
-    w->even2_x = malloc(w->set.nodes * sizeof(double));
-    w->even2_w = malloc(w->set.nodes * sizeof(double));
-    if (!w->scan_r || !w->scan_V || !w->gl_x || !w->gl_w || !w->even_x || !w->even_w || !w->even2_x || !w->even2_w)
+    if (!w->scan_r || !w->scan_V || make_rules(w, 0))
         goto fail;
-    if (w->set.nodes == DEFAULT_NODES && !pthread_once(&default_rules_once, make_default_rules) &&
-        !default_rules.status) {
-        memcpy(w->gl_x, default_rules.gl_x, sizeof default_rules.gl_x);
-        memcpy(w->gl_w, default_rules.gl_w, sizeof default_rules.gl_w);
-        memcpy(w->even_x, default_rules.even_x, sizeof default_rules.even_x);
-        memcpy(w->even_w, default_rules.even_w, sizeof default_rules.even_w);
-        memcpy(w->even2_x, default_rules.even2_x, sizeof default_rules.even2_x);
-        memcpy(w->even2_w, default_rules.even2_w, sizeof default_rules.even2_w);
-        return w;
-    }
-    if (gauss_legendre_unit(w->set.nodes, w->gl_x, w->gl_w) || even_half_rule(w->set.nodes, w->even_x, w->even_w) ||
-        even_half_rule(2 * w->set.nodes, w->even2_x, w->even2_w))
-        goto fail;
+    use_rules(w, 0);
     return w;
 fail:
     wkb_well_free(w);
@@ -193,12 +222,8 @@ void wkb_well_free(wkb_well *w)
         return;
     free(w->scan_r);
     free(w->scan_V);
-    free(w->gl_x);
-    free(w->gl_w);
-    free(w->even_x);
-    free(w->even_w);
-    free(w->even2_x);
-    free(w->even2_w);
+    for (int k = 0; k < WKB_RULE_LEVELS; k++)
+        free(w->rules[k].gl_x); /* one block per rule */
     free(w->cache_w);
     free(w->cache_slope);
     free(w->cache_ok);
@@ -285,10 +310,14 @@ static int solve_in_bracket(const wkb_well *w, const energy_point *e, int mode, 
     return WKB_SUCCESS; /* bracket has shrunk to rounding level in any case */
 }
 
+static void choose_rule(wkb_well *w);
+
 int wkb_well_set(wkb_well *w, const wkb_potential *pot, double mu, double rot, int maslov_in,
                  int maslov_out, wkb_error *err)
 {
     w->ready = 0;
+    use_rules(w, 0);
+    w->quad_error = 0;
     w->have_last_tp = 0;
     w->vD_status = -1;
     w->v_th_status = -1;
@@ -388,6 +417,8 @@ int wkb_well_set(wkb_well *w, const wkb_potential *pot, double mu, double rot, i
         last_sign = sign;
     }
     w->ready = 1;
+    if (w->set.check_nodes)
+        choose_rule(w);
     return WKB_SUCCESS;
 }
 
@@ -815,4 +846,63 @@ static int orbit_integrals(wkb_well *w, double binding, wkb_orbit *orbit, double
     if (!isfinite(orbit->action) || (!infinite && !action_only && !(orbit->half_period > 0)))
         return wkb_fail(err, WKB_ENUMERIC, "the phase integrals are not finite at E=%.12g cm-1", e.E);
     return WKB_SUCCESS;
+}
+
+/* The quadrature check of a well set-up (settings.check_nodes). The Gauss rule converges geometrically on
+   the smooth pieces, but at a rate set by the potential: 32 nodes give 1e-12 cm-1 on a Morse or LJ well and
+   5e-6 cm-1 on a deep MLR whose inner wall the inner piece resolves poorly (tests/test_quadrature_accuracy.py).
+   The action is compared with the rule of twice the nodes at a few energies; where the levels would move by
+   more than WKB_QUADRATURE_TOL the nodes are doubled (up to 8x) until the next doubling agrees. A point-wise
+   curve converges only algebraically (its cubic pieces): levels.py bounds its error by the 64-node rule. */
+#define CHECK_FRACTIONS 3
+static const double check_fraction[CHECK_FRACTIONS] = {0.55, 0.8, 0.95}; /* (E - bottom) / depth */
+
+static void choose_rule(wkb_well *w)
+{
+    if (w->pot.model == &wkb_model_pointwise || !(w->bottom < w->bound_top))
+        return;
+    const size_t n_orbits = w->n_orbits;
+    const double depth = w->bound_top - w->bottom;
+    /* the tolerance, above the levels' rounding (1e-14 of the depth, 16 units of it) */
+    const double tol = GSL_MAX(WKB_QUADRATURE_TOL, 16e-14 * depth);
+    double b[CHECK_FRACTIONS], coarse[CHECK_FRACTIONS], fine[CHECK_FRACTIONS], slope[CHECK_FRACTIONS];
+    wkb_orbit o;
+    for (int k = 0; k < CHECK_FRACTIONS; k++) {
+        b[k] = w->top - (w->bottom + check_fraction[k] * depth);
+        if (orbit_integrals(w, b[k], &o, NULL, 0, NULL))
+            goto done; /* the level search reports what fails there */
+        coarse[k] = o.action;
+        slope[k] = o.half_period; /* dI/dE: an action error dI moves the level by dI / slope */
+    }
+    int level = 0;
+    double worst = 0;
+    while (level + 1 < WKB_RULE_LEVELS) {
+        if (make_rules(w, level + 1))
+            break; /* out of memory: keep the rule in use */
+        use_rules(w, level + 1);
+        worst = 0;
+        for (int k = 0; k < CHECK_FRACTIONS && worst <= tol; k++) {
+            if (orbit_integrals(w, b[k], &o, NULL, 1, NULL)) {
+                worst = INFINITY;
+                break;
+            }
+            fine[k] = o.action;
+            worst = GSL_MAX(worst, fabs(fine[k] - coarse[k]) / slope[k]);
+        }
+        if (!(worst > tol)) {
+            use_rules(w, level); /* the rule in use agrees with twice its nodes */
+            goto done;
+        }
+        if (!isfinite(worst))
+            break;
+        level++;
+        memcpy(coarse, fine, sizeof coarse);
+    }
+    /* the finest rule still differs from the one before it (or failed): keep the finest that worked,
+       its remaining error bounded by the last difference */
+    use_rules(w, level);
+    w->quad_error = isfinite(worst) ? worst : 0;
+done:
+    w->n_orbits = n_orbits; /* the count is of the orbits of the level searches */
+    w->have_last_tp = 0;
 }
