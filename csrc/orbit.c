@@ -115,23 +115,34 @@ static int even_half_rule(size_t n, double *x, double *wt)
     return status;
 }
 
-/* The rules of the default node count, computed once per process (a well set-up is a few microseconds;
-   computing them took ~0.5 us of it per well). Read-only once made. */
+/* The rules of the default node count and of its doublings (wkb_well_set may need them), computed once
+   per process and shared read-only by every well (a well set-up is a few microseconds; making or copying
+   them cost a fraction of that per well). */
 #define DEFAULT_NODES 32
+#define DEFAULT_RULES_SIZE (5 * DEFAULT_NODES * ((1 << WKB_RULE_LEVELS) - 1))
 static struct {
-    double gl_x[DEFAULT_NODES], gl_w[DEFAULT_NODES];
-    double even_x[DEFAULT_NODES / 2], even_w[DEFAULT_NODES / 2], even2_x[DEFAULT_NODES], even2_w[DEFAULT_NODES];
+    double data[DEFAULT_RULES_SIZE];
     int status; /* 0 made, nonzero: computing them failed (each well then computes its own) */
 } default_rules;
 static pthread_once_t default_rules_once = PTHREAD_ONCE_INIT;
 
 static int gauss_legendre_unit(size_t n, double *x, double *wt);
 
+/* one rule of n nodes laid out in a block of 5 n: the n-point rule on [0, 1], then the positive halves
+   of the n- and 2n-point rules on [-1, 1] */
+static int fill_rules(size_t n, double *block)
+{
+    return gauss_legendre_unit(n, block, block + n) || even_half_rule(n, block + 2 * n, block + 2 * n + n / 2) ||
+           even_half_rule(2 * n, block + 3 * n, block + 4 * n);
+}
+
 static void make_default_rules(void)
 {
-    default_rules.status = gauss_legendre_unit(DEFAULT_NODES, default_rules.gl_x, default_rules.gl_w) ||
-                           even_half_rule(DEFAULT_NODES, default_rules.even_x, default_rules.even_w) ||
-                           even_half_rule(2 * DEFAULT_NODES, default_rules.even2_x, default_rules.even2_w);
+    double *block = default_rules.data;
+    for (int k = 0; k < WKB_RULE_LEVELS && !default_rules.status; k++) {
+        default_rules.status = fill_rules((size_t)DEFAULT_NODES << k, block);
+        block += 5 * (DEFAULT_NODES << k);
+    }
 }
 
 /* the n-point Gauss-Legendre rule on [0, 1] */
@@ -148,36 +159,26 @@ static int gauss_legendre_unit(size_t n, double *x, double *wt)
     return status;
 }
 
-/* Makes the rule with base_nodes << level nodes (once per well): one block holding the n-point rule on
-   [0, 1] and the positive halves of the n- and 2n-point rules on [-1, 1]. */
+/* Makes the rule with base_nodes << level nodes (once per well; the default counts are shared). */
 static int make_rules(wkb_well *w, int level)
 {
     if (w->rules[level].gl_x)
         return 0;
     const size_t n = w->base_nodes << level;
-    double *block = malloc(5 * n * sizeof(double));
-    if (!block)
-        return 1;
-    double *gl_x = block, *gl_w = block + n, *even_x = block + 2 * n, *even_w = even_x + n / 2, *even2_x = block + 3 * n,
-           *even2_w = block + 4 * n;
-    if (n == DEFAULT_NODES && !pthread_once(&default_rules_once, make_default_rules) && !default_rules.status) {
-        memcpy(gl_x, default_rules.gl_x, sizeof default_rules.gl_x);
-        memcpy(gl_w, default_rules.gl_w, sizeof default_rules.gl_w);
-        memcpy(even_x, default_rules.even_x, sizeof default_rules.even_x);
-        memcpy(even_w, default_rules.even_w, sizeof default_rules.even_w);
-        memcpy(even2_x, default_rules.even2_x, sizeof default_rules.even2_x);
-        memcpy(even2_w, default_rules.even2_w, sizeof default_rules.even2_w);
-    } else if (gauss_legendre_unit(n, gl_x, gl_w) || even_half_rule(n, even_x, even_w) ||
-               even_half_rule(2 * n, even2_x, even2_w)) {
-        free(block);
-        return 1;
+    double *block = NULL;
+    if (w->base_nodes == DEFAULT_NODES && !pthread_once(&default_rules_once, make_default_rules) &&
+        !default_rules.status) {
+        block = default_rules.data + 5 * DEFAULT_NODES * ((1 << level) - 1);
+    } else {
+        if (!(block = w->rules[level].owned = malloc(5 * n * sizeof(double))) || fill_rules(n, block))
+            return 1;
     }
-    w->rules[level].gl_x = gl_x;
-    w->rules[level].gl_w = gl_w;
-    w->rules[level].even_x = even_x;
-    w->rules[level].even_w = even_w;
-    w->rules[level].even2_x = even2_x;
-    w->rules[level].even2_w = even2_w;
+    w->rules[level].gl_x = block;
+    w->rules[level].gl_w = block + n;
+    w->rules[level].even_x = block + 2 * n;
+    w->rules[level].even_w = block + 2 * n + n / 2;
+    w->rules[level].even2_x = block + 3 * n;
+    w->rules[level].even2_w = block + 4 * n;
     return 0;
 }
 
@@ -223,7 +224,7 @@ void wkb_well_free(wkb_well *w)
     free(w->scan_r);
     free(w->scan_V);
     for (int k = 0; k < WKB_RULE_LEVELS; k++)
-        free(w->rules[k].gl_x); /* one block per rule */
+        free(w->rules[k].owned);
     free(w->cache_w);
     free(w->cache_slope);
     free(w->cache_ok);
@@ -854,8 +855,8 @@ static int orbit_integrals(wkb_well *w, double binding, wkb_orbit *orbit, double
    The action is compared with the rule of twice the nodes at a few energies; where the levels would move by
    more than WKB_QUADRATURE_TOL the nodes are doubled (up to 8x) until the next doubling agrees. A point-wise
    curve converges only algebraically (its cubic pieces): levels.py bounds its error by the 64-node rule. */
-#define CHECK_FRACTIONS 3
-static const double check_fraction[CHECK_FRACTIONS] = {0.55, 0.8, 0.95}; /* (E - bottom) / depth */
+#define CHECK_FRACTIONS 1
+static const double check_fraction[CHECK_FRACTIONS] = {0.8}; /* (E - bottom) / depth */
 
 static void choose_rule(wkb_well *w)
 {
@@ -865,14 +866,17 @@ static void choose_rule(wkb_well *w)
     const double depth = w->bound_top - w->bottom;
     /* the tolerance, above the levels' rounding (1e-14 of the depth, 16 units of it) */
     const double tol = GSL_MAX(WKB_QUADRATURE_TOL, 16e-14 * depth);
-    double b[CHECK_FRACTIONS], coarse[CHECK_FRACTIONS], fine[CHECK_FRACTIONS], slope[CHECK_FRACTIONS];
+    double b[CHECK_FRACTIONS], coarse[CHECK_FRACTIONS], fine[CHECK_FRACTIONS] = {0}, slope[CHECK_FRACTIONS];
     wkb_orbit o;
     for (int k = 0; k < CHECK_FRACTIONS; k++) {
-        b[k] = w->top - (w->bottom + check_fraction[k] * depth);
-        if (orbit_integrals(w, b[k], &o, NULL, 0, NULL))
+        const double rise = check_fraction[k] * depth;
+        b[k] = w->top - (w->bottom + rise);
+        if (orbit_integrals(w, b[k], &o, NULL, 1, NULL))
             goto done; /* the level search reports what fails there */
         coarse[k] = o.action;
-        slope[k] = o.half_period; /* dI/dE: an action error dI moves the level by dI / slope */
+        /* dI/dE, which turns an action error into a level's: I(E) is convex in a well whose period grows
+           with E, so dI/dE >= I/(E - bottom) and the level error is at most dI (E - bottom)/I */
+        slope[k] = o.action / rise;
     }
     int level = 0;
     double worst = 0;
@@ -881,7 +885,7 @@ static void choose_rule(wkb_well *w)
             break; /* out of memory: keep the rule in use */
         use_rules(w, level + 1);
         worst = 0;
-        for (int k = 0; k < CHECK_FRACTIONS && worst <= tol; k++) {
+        for (int k = 0; k < CHECK_FRACTIONS; k++) {
             if (orbit_integrals(w, b[k], &o, NULL, 1, NULL)) {
                 worst = INFINITY;
                 break;

@@ -25,14 +25,15 @@ struct wkb_well {
     double *scan_r, *scan_V;
     size_t n_ext;
     size_t ext[MAX_EXTREMA]; /* indices of local extrema of the scan, increasing */
-    double *gl_x, *gl_w;     /* Gauss-Legendre nodes and weights on [0, 1] */
+    const double *gl_x, *gl_w; /* Gauss-Legendre nodes and weights on [0, 1] */
     /* positive halves of the n-point and 2n-point rules on [-1, 1]: they integrate even functions on [0, 1] */
-    double *even_x, *even_w, *even2_x, *even2_w;
+    const double *even_x, *even_w, *even2_x, *even2_w;
     /* the rules above point into one of these: the requested node count (base), or 2, 4, 8 times it where
        wkb_well_set found the base rule not converged in this well (settings.check_nodes; made when first
        needed, one block each). quad_error: what the finest rule may still miss there, cm-1 (else 0). */
     struct {
-        double *gl_x, *gl_w, *even_x, *even_w, *even2_x, *even2_w;
+        const double *gl_x, *gl_w, *even_x, *even_w, *even2_x, *even2_w;
+        double *owned; /* the block they point into when this well made it (else a shared one) */
     } rules[WKB_RULE_LEVELS];
     size_t base_nodes;
     double quad_error;
