@@ -784,7 +784,9 @@ static PyObject *py_wkb_orbits(PyObject *self, PyObject *args, PyObject *kwds)
     for (int c = 0; c < 5; c++)
         if (!(cols[c] = new_vector(n)))
             goto cleanup;
-    if (!(w = wkb_well_alloc(NULL))) {
+    wkb_settings settings = wkb_default_settings();
+    settings.check_nodes = 1; /* the rule refined where this well needs it, as for the levels */
+    if (!(w = wkb_well_alloc(&settings))) {
         PyErr_NoMemory();
         goto cleanup;
     }

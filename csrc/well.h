@@ -30,7 +30,7 @@ struct wkb_well {
     const double *even_x, *even_w, *even2_x, *even2_w;
     /* the rules above point into one of these: the requested node count (base), or 2, 4, 8 times it where
        wkb_well_set found the base rule not converged in this well (settings.check_nodes; made when first
-       needed, one block each). quad_error: what the finest rule may still miss there, cm-1 (else 0). */
+       needed, one block each). quad_error: twice the last difference of the check, added to the levels' error, cm-1. */
     struct {
         const double *gl_x, *gl_w, *even_x, *even_w, *even2_x, *even2_w;
         double *owned; /* the block they point into when this well made it (else a shared one) */
