@@ -14,7 +14,9 @@
  * last piece maps [r_T, infinity) by t = (r_T/r)^q with q = (n-2)/2 for a -C_n/r^n tail, which
  * makes the integrand regular at t = 0. All pieces use Gauss-Legendre rules; in the s^2 maps
  * every integrand is even in s, so only the positive half of a symmetric rule is evaluated.
- * Accuracy (tests/test_wkb.py): ~1e-15 relative on the action, <= 1e-12 on period and Bv.
+ * Accuracy (tests/test_wkb.py): ~1e-15 relative on the action, <= 1e-12 on period and Bv, on wells the
+ * 32-node rule resolves; the level path (settings.check_nodes) checks that per well at set-up and doubles
+ * the nodes where it does not (choose_rule; tests/test_quadrature_accuracy.py).
  * Energies near the asymptote are handled as binding energies b = D - E and the kinetic
  * term as depth(r) - b, so nothing cancels there.
  */
