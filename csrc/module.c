@@ -589,6 +589,7 @@ static PyObject *py_wkb_levels(PyObject *self, PyObject *args, PyObject *kwds)
         settings.match_fraction = match_fraction;
         if (nodes)
             settings.nodes = (size_t)nodes;
+        settings.check_nodes = nodes == 0; /* the default rule, refined per well where it is not converged */
         if (match_rule != 0 && match_rule != WKB_RULE_MATCHED && match_rule != WKB_RULE_ACROSS) {
             PyErr_Format(PyExc_ValueError, "match_rule=%d is invalid: 0 (choose), 3 (matched) or 4 (exact phase)",
                          match_rule);
@@ -783,7 +784,9 @@ static PyObject *py_wkb_orbits(PyObject *self, PyObject *args, PyObject *kwds)
     for (int c = 0; c < 5; c++)
         if (!(cols[c] = new_vector(n)))
             goto cleanup;
-    if (!(w = wkb_well_alloc(NULL))) {
+    wkb_settings settings = wkb_default_settings();
+    settings.check_nodes = 1; /* the rule refined where this well needs it, as for the levels */
+    if (!(w = wkb_well_alloc(&settings))) {
         PyErr_NoMemory();
         goto cleanup;
     }

@@ -529,7 +529,9 @@ int wkb_level_at(wkb_well *w, int v, wkb_level *level, double *avg_dVdp, wkb_err
         return status;
     if ((status = check_v(w, v, err)))
         return status;
-    return solve_level(w, (size_t)v, level, avg_dVdp, err);
+    if (!(status = solve_level(w, (size_t)v, level, avg_dVdp, err)))
+        level->error += w->quad_error;
+    return status;
 }
 
 int wkb_level_at_seeded(wkb_well *w, int v, double seed_binding, int strong, wkb_level *level,
@@ -540,11 +542,16 @@ int wkb_level_at_seeded(wkb_well *w, int v, double seed_binding, int strong, wkb
         return status;
     if ((status = check_v(w, v, err)))
         return status;
-    if (w->set.ends == WKB_ENDS_MATCHED && !w->low_wall)
-        return solve_level(w, (size_t)v, level, avg_dVdp, err);
+    if (w->set.ends == WKB_ENDS_MATCHED && !w->low_wall) {
+        if (!(status = solve_level(w, (size_t)v, level, avg_dVdp, err)))
+            level->error += w->quad_error;
+        return status;
+    }
     w->seed_binding = isfinite(seed_binding) && seed_binding > 0 ? seed_binding : 0;
     w->seed_strong = strong;
     status = solve_first_order(w, (size_t)v, level, avg_dVdp, err);
+    if (!status)
+        level->error += w->quad_error;
     w->seed_binding = 0;
     w->seed_strong = 0;
     return status;
@@ -565,5 +572,7 @@ int wkb_all_levels(wkb_well *w, wkb_level *levels, size_t capacity, size_t *coun
     for (size_t v = done; v < n; v++)
         if ((status = solve_level(w, v, &levels[v], NULL, err)))
             return status;
+    for (size_t v = 0; v < n; v++)
+        levels[v].error += w->quad_error; /* what the finest rule may miss (0 where a rule converged) */
     return WKB_SUCCESS;
 }

@@ -6,6 +6,7 @@
 #include "wkb.h"
 
 #define MAX_EXTREMA 64
+#define WKB_RULE_LEVELS 4 /* node counts n, 2n, 4n, 8n */
 
 typedef struct wkb_matched wkb_matched; /* end_solution.c */
 #define WKB_DEFECT_NODES 3
@@ -24,9 +25,18 @@ struct wkb_well {
     double *scan_r, *scan_V;
     size_t n_ext;
     size_t ext[MAX_EXTREMA]; /* indices of local extrema of the scan, increasing */
-    double *gl_x, *gl_w;     /* Gauss-Legendre nodes and weights on [0, 1] */
+    const double *gl_x, *gl_w; /* Gauss-Legendre nodes and weights on [0, 1] */
     /* positive halves of the n-point and 2n-point rules on [-1, 1]: they integrate even functions on [0, 1] */
-    double *even_x, *even_w, *even2_x, *even2_w;
+    const double *even_x, *even_w, *even2_x, *even2_w;
+    /* the rules above point into one of these: the requested node count (base), or 2, 4, 8 times it where
+       wkb_well_set found the base rule not converged in this well (settings.check_nodes; made when first
+       needed, one block each). quad_error: twice the last difference of the check, added to the levels' error, cm-1. */
+    struct {
+        const double *gl_x, *gl_w, *even_x, *even_w, *even2_x, *even2_w;
+        double *owned; /* the block they point into when this well made it (else a shared one) */
+    } rules[WKB_RULE_LEVELS];
+    size_t base_nodes;
+    double quad_error;
     double dVdp[WKB_MAX_PARAMS];
     /* turning points of the last orbit: Newton starts there for the next one */
     double last_tp[2];

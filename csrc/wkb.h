@@ -224,10 +224,14 @@ int wkb_airy(double z, wkb_airy_values *out, wkb_error *err);
 int wkb_airy_asymptotic(double z, int terms, double *ai, wkb_error *err);
 
 /* ---------------------------------------------------------------- orbit.c */
+#define WKB_QUADRATURE_TOL 1e-10 /* cm-1: a well's rule is refined where the levels would move more (check_nodes) */
 /* Tunables of the semiclassical calculation (GSL-style defaults function). */
 typedef struct {
     size_t nodes;          /* Gauss-Legendre rule per quadrature piece (even; 32 and 64 are tabulated by GSL);
                               pieces that end at a turning point use its symmetric half, nodes/2 points */
+    int check_nodes;       /* 1: each well set-up compares the rule with one of twice the nodes at a few energies and
+                              doubles the nodes (up to 8x) where the levels would differ by more than
+                              WKB_QUADRATURE_TOL; 0 (default): the rule as given */
     double energy_tol;     /* absolute tolerance on a level, cm-1 */
     int max_newton;        /* Newton iterations per level */
     size_t scan_points;    /* grid points for the well analysis */
