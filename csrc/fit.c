@@ -54,6 +54,7 @@ wkb_fit_settings wkb_fit_default_settings(void)
     s.gtol = 1e-14;
     s.decrease_tol = 1e-10;
     s.levels = wkb_default_settings();
+    s.levels.check_nodes = 1; /* the quadrature rule refined per well where it is not converged, as levels() does */
     return s;
 }
 

@@ -1249,7 +1249,7 @@ static PyObject *py_fit_evaluate(PyObject *self, PyObject *args, PyObject *kwds)
     if (!(calc = new_vector(dims[0])) || (want_jac && !(jac = (PyArrayObject *)PyArray_ZEROS(2, dims, NPY_DOUBLE, 0))))
         goto cleanup;
     {
-        wkb_settings levels = wkb_default_settings();
+        wkb_settings levels = wkb_fit_default_settings().levels;
         double *pc = PyArray_DATA(calc), *pj = jac ? PyArray_DATA(jac) : NULL;
         Py_BEGIN_ALLOW_THREADS
         ev = wkb_fit_evaluator_alloc(&data, &levels, source, &err);
@@ -1882,7 +1882,7 @@ static PyObject *py_fit_levels(PyObject *self, PyObject *args, PyObject *kwds)
     if (fit_source(method, &radial, &source_store, &source) < 0)
         return NULL;
     const size_t np = pot.model->n_params;
-    wkb_settings levels = wkb_default_settings();
+    wkb_settings levels = wkb_fit_default_settings().levels;
     /* first the number of bound (WKB) levels, then the levels; the exact count may differ */
     Py_BEGIN_ALLOW_THREADS
     status = wkb_fit_levels(&pot, mu, rot, &levels, NULL, 0, NULL, NULL, &count, &vD, NULL, &err);

@@ -20,6 +20,7 @@ from scipy.integrate import quad
 from scipy.optimize import brentq
 
 import wkbfit
+from wkbfit import _core
 from wkbfit.levels import _core_levels
 
 sys.path.insert(0, os.path.join(os.path.dirname(__file__), "benchmarks"))
@@ -166,3 +167,16 @@ def test_pointwise_error_column_honest():
     ref = core(pot, 20.0, nodes=512)["energy"]
     n = min(len(t), len(ref))
     assert np.all(np.abs(t.energy[:n] - ref[:n]) <= 2 * t.error[:n])
+
+
+def test_fit_evaluations_use_the_refined_rule():
+    # the fit's level evaluator (csrc/fit_levels.c, through fit.c's default settings) checks each well's rule as
+    # levels() does: on the deep MLR its first-order levels are the converged (256-node) ones, not the 32-node
+    # rule's (5e-6 cm-1 off before), at J = 0 and J = 10, and with the replicas' and fit runs' settings alike
+    pot = deep_mlr()
+    model, p, curve = pot._core_args()
+    for J in (0, 10):
+        ref = core(pot, MU_DEEP, J=J, nodes=256)["energy"]
+        v = np.arange(len(ref), dtype=np.intc)
+        calc, _ = _core.fit_evaluate(model, p, curve, v, np.full(len(v), J * (J + 1.0)), np.full(len(v), MU_DEEP), 0, 0)
+        assert np.max(np.abs(calc - ref)) < 1e-8, (J, np.max(np.abs(calc - ref)))
