@@ -16,6 +16,7 @@
  */
 #include <math.h>
 #include <stdio.h>
+#include <string.h>
 
 #include <gsl/gsl_math.h>
 
@@ -86,6 +87,15 @@ static int check_integer(const char *model, const char *name, double value, doub
                         model, name, value, lowest, why);
     return WKB_SUCCESS;
 }
+
+/* Storage private to each thread (the build is C99, where _Thread_local is not yet standard). */
+#if defined(__STDC_VERSION__) && __STDC_VERSION__ >= 201112L
+#define THREAD_LOCAL _Thread_local
+#elif defined(_MSC_VER)
+#define THREAD_LOCAL __declspec(thread)
+#else
+#define THREAD_LOCAL __thread
+#endif
 
 static double param0(const wkb_potential *pot) { return pot->p[0]; }
 static double param1(const wkb_potential *pot) { return pot->p[1]; }
@@ -256,6 +266,33 @@ static int mlr_check(const double *p, wkb_error *err)
     return WKB_SUCCESS;
 }
 
+/* The parts of an MLR evaluation that do not depend on r: u(re) with its derivatives and
+   beta_inf = ln(2 De/u(re)). They are computed once per parameter set and kept per thread, not in
+   the potential: fits write pot->p directly and several threads may share one potential. Each
+   thread keeps the last values of the parameters these parts depend on, and a comparison of them
+   decides per evaluation whether the parts still hold (values, not the potential's address, so a
+   new potential at a reused address or a p[] written in place is always seen). The parts are
+   made by the same operations as without the cache, so results are bit-identical. */
+#define MLR_FIXED_KEY 5 /* De, re, C6, C8, C10 = p[0..4] */
+typedef struct {
+    int valid;
+    double key[MLR_FIXED_KEY];
+    long_range at_re;
+    double beta_inf;
+} mlr_fixed_parts;
+
+static const mlr_fixed_parts *mlr_fixed_parts_of(const double *p)
+{
+    static THREAD_LOCAL mlr_fixed_parts cache;
+    if (!cache.valid || memcmp(cache.key, p, sizeof cache.key) != 0) {
+        memcpy(cache.key, p, sizeof cache.key);
+        long_range_at(p, p[1], &cache.at_re);
+        cache.beta_inf = log(2 * p[0] / cache.at_re.u);
+        cache.valid = 1;
+    }
+    return &cache;
+}
+
 /* V = De (1 - x)^2 with x = exp(L), L = ln(u(r)/u(re)) - phi, phi = beta(r) y_p(r; re). */
 typedef struct {
     long_range at_r, at_re;
@@ -282,14 +319,15 @@ static void mlr_radial_variables_at(double r, double re, double r_ref, double pw
 static void mlr_terms_at(const wkb_potential *pot, double r, mlr_terms *t)
 {
     const double *p = pot->p;
-    const double De = p[0], re = p[1], pw = p[5], qw = p[6], r_ref = p[7];
+    const double re = p[1], pw = p[5], qw = p[6], r_ref = p[7];
     const size_t n = pot->model->n_params - MLR_LEADING;
     double S2;
+    const mlr_fixed_parts *fixed = mlr_fixed_parts_of(p);
     long_range_at(p, r, &t->at_r);
-    long_range_at(p, re, &t->at_re);
+    t->at_re = fixed->at_re;
     mlr_radial_variables_at(r, re, r_ref, pw, qw, &t->eq, &t->ref_p, &t->ref_q);
     polynomial(p + MLR_LEADING, n, t->ref_q.y, &t->S, &t->S1, &S2);
-    t->beta_inf = log(2 * De / t->at_re.u);
+    t->beta_inf = fixed->beta_inf;
     const radial_variable *e = &t->eq, *a = &t->ref_p, *b = &t->ref_q;
     const double gap = t->beta_inf - t->S; /* d beta / d y_p^ref */
     t->beta = a->y * t->beta_inf + a->one_minus_y * t->S;
@@ -380,13 +418,17 @@ typedef struct {
     double u, du, d2u, dC[MLRD_TERMS], drange;
 } damped_long_range;
 
-static void damped_long_range_at(const double *p, double r, damped_long_range *out)
+/* with want_dC = 0 the terms with C_m = 0 are skipped and their dC[k] left unset (a value of V
+   needs no damping function of an absent term) */
+static void damped_long_range_at(const double *p, double r, int want_dC, damped_long_range *out)
 {
     const int kind = (int)p[10], s = (int)p[12];
     const double range = p[11];
     out->u = out->du = out->d2u = out->drange = 0;
     for (int k = 0; k < MLRD_TERMS; k++) {
         const double C = p[2 + k];
+        if (C == 0 && !want_dC)
+            continue;
         const int m = mlrd_powers[k];
         const double irm = power(1 / r, m);
         wkb_damping d;
@@ -440,7 +482,7 @@ static int mlrd_check(const double *p, wkb_error *err)
         (s = check_integer("MLR", "q", p[8], 1, "", err)))
         return s;
     damped_long_range lr;
-    damped_long_range_at(p, p[1], &lr);
+    damped_long_range_at(p, p[1], 1, &lr);
     if (!(lr.u > 0) || !isfinite(lr.u))
         return wkb_fail(err, WKB_EINVAL, "MLR parameters are invalid: u_LR(re) = %g must be a finite number > 0", lr.u);
     /* undamped, as the MLR without damping: u_LR(re) < 2 De keeps beta_inf > 0; with damping the
@@ -453,23 +495,51 @@ static int mlrd_check(const double *p, wkb_error *err)
     return WKB_SUCCESS;
 }
 
+/* The r-independent parts of the damped MLR, kept per thread as those of the undamped one
+   (mlr_fixed_parts_of): u(re) with du/dC_m and du/d(range) at re, and beta_inf. They depend on
+   De, re, C3..C10 (p[0..6]) and damping, range, s (p[10..12]). */
+#define MLRD_KEY_HEAD 7
+#define MLRD_KEY_TAIL 3
+typedef struct {
+    int valid;
+    double head[MLRD_KEY_HEAD], tail[MLRD_KEY_TAIL];
+    damped_long_range at_re;
+    double beta_inf;
+} mlrd_fixed_parts;
+
+static const mlrd_fixed_parts *mlrd_fixed_parts_of(const double *p)
+{
+    static THREAD_LOCAL mlrd_fixed_parts cache;
+    if (!cache.valid || memcmp(cache.head, p, sizeof cache.head) != 0 ||
+        memcmp(cache.tail, p + 10, sizeof cache.tail) != 0) {
+        memcpy(cache.head, p, sizeof cache.head);
+        memcpy(cache.tail, p + 10, sizeof cache.tail);
+        damped_long_range_at(p, p[1], 1, &cache.at_re);
+        cache.beta_inf = log(2 * p[0] / cache.at_re.u);
+        cache.valid = 1;
+    }
+    return &cache;
+}
+
 typedef struct {
     damped_long_range at_r, at_re;
     radial_variable eq, ref_p, ref_q;
     double beta_inf, S, S1, beta, phi, x, dL, d2L;
 } mlrd_terms;
 
-static void mlrd_terms_at(const wkb_potential *pot, double r, mlrd_terms *t)
+/* want_dC: whether t->at_r.dC is needed (the parameter derivatives) */
+static void mlrd_terms_at(const wkb_potential *pot, double r, int want_dC, mlrd_terms *t)
 {
     const double *p = pot->p;
-    const double De = p[0], re = p[1], pw = p[7], qw = p[8], r_ref = p[9];
+    const double re = p[1], pw = p[7], qw = p[8], r_ref = p[9];
     const size_t n = pot->model->n_params - MLRD_LEADING;
     double S2;
-    damped_long_range_at(p, r, &t->at_r);
-    damped_long_range_at(p, re, &t->at_re);
+    const mlrd_fixed_parts *fixed = mlrd_fixed_parts_of(p);
+    damped_long_range_at(p, r, want_dC, &t->at_r);
+    t->at_re = fixed->at_re;
     mlr_radial_variables_at(r, re, r_ref, pw, qw, &t->eq, &t->ref_p, &t->ref_q);
     polynomial(p + MLRD_LEADING, n, t->ref_q.y, &t->S, &t->S1, &S2);
-    t->beta_inf = log(2 * De / t->at_re.u);
+    t->beta_inf = fixed->beta_inf;
     const radial_variable *e = &t->eq, *a = &t->ref_p, *b = &t->ref_q;
     const double gap = t->beta_inf - t->S;
     t->beta = a->y * t->beta_inf + a->one_minus_y * t->S;
@@ -489,7 +559,7 @@ static void mlrd_eval(const wkb_potential *pot, double r, wkb_pot_value *out)
 {
     const double De = pot->p[0];
     mlrd_terms t;
-    mlrd_terms_at(pot, r, &t);
+    mlrd_terms_at(pot, r, 0, &t);
     const double x = t.x;
     out->V = De * (1 - x) * (1 - x);
     out->dV = -2 * De * (1 - x) * x * t.dL;
@@ -503,7 +573,7 @@ static void mlrd_param_derivs(const wkb_potential *pot, double r, double *dVdp)
     const double De = p[0], re = p[1], pw = p[7], qw = p[8], r_ref = p[9];
     const size_t n = pot->model->n_params - MLRD_LEADING;
     mlrd_terms t;
-    mlrd_terms_at(pot, r, &t);
+    mlrd_terms_at(pot, r, 1, &t);
     const radial_variable *e = &t.eq, *a = &t.ref_p, *b = &t.ref_q;
     const double x = t.x, dV_dL = -2 * De * (1 - x) * x;
     const double gap = t.beta_inf - t.S;
