@@ -48,14 +48,14 @@ static void radial_variable_at(double r, double a, double p, radial_variable *ou
     out->d2y = -out->dy * (1 + p * out->y) / r;
 }
 
-/* dy/da and dy/dp of y_p(r; a). */
+/* dy/da and dy/dp of y_p(r; a); log_ratio = ln(r/a), shared by the variables about one center. */
 static double radial_variable_d_center(const radial_variable *v, double a, double p)
 {
     return -0.5 * p / a * v->one_minus_y2;
 }
-static double radial_variable_d_power(const radial_variable *v, double r, double a)
+static double radial_variable_d_power(const radial_variable *v, double log_ratio)
 {
-    return 0.5 * v->one_minus_y2 * log(r / a);
+    return 0.5 * v->one_minus_y2 * log_ratio;
 }
 
 /* S = sum_i c_i y^i, S1 = dS/dy, S2 = d2S/dy2 for n coefficients (Horner). */
@@ -188,7 +188,7 @@ static void emo_param_derivs(const wkb_potential *pot, double r, double *dVdp)
     const double dV_dphi = 2 * De * x * (1 - x);
     dVdp[0] = (1 - x) * (1 - x);
     dVdp[1] = dV_dphi * (-t.beta + d * t.beta1 * radial_variable_d_center(&t.y, re, p));
-    dVdp[2] = dV_dphi * d * t.beta1 * radial_variable_d_power(&t.y, r, re);
+    dVdp[2] = dV_dphi * d * t.beta1 * radial_variable_d_power(&t.y, log(r / re));
     double yi = 1;
     for (size_t i = 0; i < n; i++) {
         dVdp[EMO_LEADING + i] = dV_dphi * d * yi;
@@ -279,6 +279,7 @@ typedef struct {
     double key[MLR_FIXED_KEY];
     long_range at_re;
     double beta_inf;
+    double dC_over_u[3]; /* re^-m/u(re), m = 6, 8, 10: du(re)/dC_m over u(re), for dV/dC_m */
 } mlr_fixed_parts;
 
 static const mlr_fixed_parts *mlr_fixed_parts_of(const double *p)
@@ -288,6 +289,8 @@ static const mlr_fixed_parts *mlr_fixed_parts_of(const double *p)
         memcpy(cache.key, p, sizeof cache.key);
         long_range_at(p, p[1], &cache.at_re);
         cache.beta_inf = log(2 * p[0] / cache.at_re.u);
+        for (int k = 0; k < 3; k++)
+            cache.dC_over_u[k] = power(1 / p[1], 6 + 2 * k) / cache.at_re.u;
         cache.valid = 1;
     }
     return &cache;
@@ -367,18 +370,20 @@ static void mlr_param_derivs(const wkb_potential *pot, double r, double *dVdp)
     const double gap = t.beta_inf - t.S;
     /* 1 - y_p^ref y_p^eq without cancellation at large r */
     const double one_minus_yy = a->one_minus_y + a->y * e->one_minus_y;
-    const double ue = t.at_re.u, ir_e = 1 / re, ir = 1 / r;
+    const double ue = t.at_re.u, ir = 1 / r;
+    const double *dC_over_ue = mlr_fixed_parts_of(p)->dC_over_u;
 
     dVdp[0] = (1 - x) * (1 - x) + dV_dL * (-a->y * e->y / De);
     dVdp[1] = dV_dL * (-t.at_re.du / ue * one_minus_yy - t.beta * radial_variable_d_center(e, re, pw));
     /* C_m enters ln u(r), ln u(re) and beta_inf */
     for (int k = 0; k < 3; k++) {
         const double m = 6 + 2 * k;
-        dVdp[2 + k] = dV_dL * (power(ir, m) / t.at_r.u - power(ir_e, m) / ue * one_minus_yy);
+        dVdp[2 + k] = dV_dL * (power(ir, m) / t.at_r.u - dC_over_ue[k] * one_minus_yy);
     }
-    const double dbeta_dp = radial_variable_d_power(a, r, r_ref) * gap;
-    dVdp[5] = dV_dL * -(dbeta_dp * e->y + t.beta * radial_variable_d_power(e, r, re));
-    dVdp[6] = dV_dL * -(a->one_minus_y * t.S1 * radial_variable_d_power(b, r, r_ref) * e->y);
+    const double log_ref = log(r / r_ref), log_eq = r_ref == re ? log_ref : log(r / re);
+    const double dbeta_dp = radial_variable_d_power(a, log_ref) * gap;
+    dVdp[5] = dV_dL * -(dbeta_dp * e->y + t.beta * radial_variable_d_power(e, log_eq));
+    dVdp[6] = dV_dL * -(a->one_minus_y * t.S1 * radial_variable_d_power(b, log_ref) * e->y);
     const double dbeta_dref = radial_variable_d_center(a, r_ref, pw) * gap +
                               a->one_minus_y * t.S1 * radial_variable_d_center(b, r_ref, qw);
     dVdp[7] = dV_dL * -(dbeta_dref * e->y);
@@ -585,9 +590,10 @@ static void mlrd_param_derivs(const wkb_potential *pot, double r, double *dVdp)
     /* C_m and the damping range enter ln u(r), ln u(re) and beta_inf */
     for (int k = 0; k < MLRD_TERMS; k++)
         dVdp[2 + k] = dV_dL * (t.at_r.dC[k] / t.at_r.u - t.at_re.dC[k] / ue * one_minus_yy);
-    const double dbeta_dp = radial_variable_d_power(a, r, r_ref) * gap;
-    dVdp[7] = dV_dL * -(dbeta_dp * e->y + t.beta * radial_variable_d_power(e, r, re));
-    dVdp[8] = dV_dL * -(a->one_minus_y * t.S1 * radial_variable_d_power(b, r, r_ref) * e->y);
+    const double log_ref = log(r / r_ref), log_eq = r_ref == re ? log_ref : log(r / re);
+    const double dbeta_dp = radial_variable_d_power(a, log_ref) * gap;
+    dVdp[7] = dV_dL * -(dbeta_dp * e->y + t.beta * radial_variable_d_power(e, log_eq));
+    dVdp[8] = dV_dL * -(a->one_minus_y * t.S1 * radial_variable_d_power(b, log_ref) * e->y);
     const double dbeta_dref = radial_variable_d_center(a, r_ref, pw) * gap +
                               a->one_minus_y * t.S1 * radial_variable_d_center(b, r_ref, qw);
     dVdp[9] = dV_dL * -(dbeta_dref * e->y);
