@@ -16,6 +16,7 @@
  */
 #include <math.h>
 #include <stdio.h>
+#include <string.h>
 
 #include <gsl/gsl_math.h>
 
@@ -47,14 +48,14 @@ static void radial_variable_at(double r, double a, double p, radial_variable *ou
     out->d2y = -out->dy * (1 + p * out->y) / r;
 }
 
-/* dy/da and dy/dp of y_p(r; a). */
+/* dy/da and dy/dp of y_p(r; a); log_ratio = ln(r/a), shared by the variables about one center. */
 static double radial_variable_d_center(const radial_variable *v, double a, double p)
 {
     return -0.5 * p / a * v->one_minus_y2;
 }
-static double radial_variable_d_power(const radial_variable *v, double r, double a)
+static double radial_variable_d_power(const radial_variable *v, double log_ratio)
 {
-    return 0.5 * v->one_minus_y2 * log(r / a);
+    return 0.5 * v->one_minus_y2 * log_ratio;
 }
 
 /* S = sum_i c_i y^i, S1 = dS/dy, S2 = d2S/dy2 for n coefficients (Horner). */
@@ -86,6 +87,15 @@ static int check_integer(const char *model, const char *name, double value, doub
                         model, name, value, lowest, why);
     return WKB_SUCCESS;
 }
+
+/* Storage private to each thread (the build is C99, where _Thread_local is not yet standard). */
+#if defined(__STDC_VERSION__) && __STDC_VERSION__ >= 201112L
+#define THREAD_LOCAL _Thread_local
+#elif defined(_MSC_VER)
+#define THREAD_LOCAL __declspec(thread)
+#else
+#define THREAD_LOCAL __thread
+#endif
 
 static double param0(const wkb_potential *pot) { return pot->p[0]; }
 static double param1(const wkb_potential *pot) { return pot->p[1]; }
@@ -178,7 +188,7 @@ static void emo_param_derivs(const wkb_potential *pot, double r, double *dVdp)
     const double dV_dphi = 2 * De * x * (1 - x);
     dVdp[0] = (1 - x) * (1 - x);
     dVdp[1] = dV_dphi * (-t.beta + d * t.beta1 * radial_variable_d_center(&t.y, re, p));
-    dVdp[2] = dV_dphi * d * t.beta1 * radial_variable_d_power(&t.y, r, re);
+    dVdp[2] = dV_dphi * d * t.beta1 * radial_variable_d_power(&t.y, log(r / re));
     double yi = 1;
     for (size_t i = 0; i < n; i++) {
         dVdp[EMO_LEADING + i] = dV_dphi * d * yi;
@@ -256,6 +266,36 @@ static int mlr_check(const double *p, wkb_error *err)
     return WKB_SUCCESS;
 }
 
+/* The parts of an MLR evaluation that do not depend on r: u(re) with its derivatives and
+   beta_inf = ln(2 De/u(re)). They are computed once per parameter set and kept per thread, not in
+   the potential: fits write pot->p directly and several threads may share one potential. Each
+   thread keeps the last values of the parameters these parts depend on, and a comparison of them
+   decides per evaluation whether the parts still hold (values, not the potential's address, so a
+   new potential at a reused address or a p[] written in place is always seen). The parts are
+   made by the same operations as without the cache, so results are bit-identical. */
+#define MLR_FIXED_KEY 5 /* De, re, C6, C8, C10 = p[0..4] */
+typedef struct {
+    int valid;
+    double key[MLR_FIXED_KEY];
+    long_range at_re;
+    double beta_inf;
+    double dC_over_u[3]; /* re^-m/u(re), m = 6, 8, 10: du(re)/dC_m over u(re), for dV/dC_m */
+} mlr_fixed_parts;
+
+static const mlr_fixed_parts *mlr_fixed_parts_of(const double *p)
+{
+    static THREAD_LOCAL mlr_fixed_parts cache;
+    if (!cache.valid || memcmp(cache.key, p, sizeof cache.key) != 0) {
+        memcpy(cache.key, p, sizeof cache.key);
+        long_range_at(p, p[1], &cache.at_re);
+        cache.beta_inf = log(2 * p[0] / cache.at_re.u);
+        for (int k = 0; k < 3; k++)
+            cache.dC_over_u[k] = power(1 / p[1], 6 + 2 * k) / cache.at_re.u;
+        cache.valid = 1;
+    }
+    return &cache;
+}
+
 /* V = De (1 - x)^2 with x = exp(L), L = ln(u(r)/u(re)) - phi, phi = beta(r) y_p(r; re). */
 typedef struct {
     long_range at_r, at_re;
@@ -282,14 +322,15 @@ static void mlr_radial_variables_at(double r, double re, double r_ref, double pw
 static void mlr_terms_at(const wkb_potential *pot, double r, mlr_terms *t)
 {
     const double *p = pot->p;
-    const double De = p[0], re = p[1], pw = p[5], qw = p[6], r_ref = p[7];
+    const double re = p[1], pw = p[5], qw = p[6], r_ref = p[7];
     const size_t n = pot->model->n_params - MLR_LEADING;
     double S2;
+    const mlr_fixed_parts *fixed = mlr_fixed_parts_of(p);
     long_range_at(p, r, &t->at_r);
-    long_range_at(p, re, &t->at_re);
+    t->at_re = fixed->at_re;
     mlr_radial_variables_at(r, re, r_ref, pw, qw, &t->eq, &t->ref_p, &t->ref_q);
     polynomial(p + MLR_LEADING, n, t->ref_q.y, &t->S, &t->S1, &S2);
-    t->beta_inf = log(2 * De / t->at_re.u);
+    t->beta_inf = fixed->beta_inf;
     const radial_variable *e = &t->eq, *a = &t->ref_p, *b = &t->ref_q;
     const double gap = t->beta_inf - t->S; /* d beta / d y_p^ref */
     t->beta = a->y * t->beta_inf + a->one_minus_y * t->S;
@@ -329,18 +370,20 @@ static void mlr_param_derivs(const wkb_potential *pot, double r, double *dVdp)
     const double gap = t.beta_inf - t.S;
     /* 1 - y_p^ref y_p^eq without cancellation at large r */
     const double one_minus_yy = a->one_minus_y + a->y * e->one_minus_y;
-    const double ue = t.at_re.u, ir_e = 1 / re, ir = 1 / r;
+    const double ue = t.at_re.u, ir = 1 / r;
+    const double *dC_over_ue = mlr_fixed_parts_of(p)->dC_over_u;
 
     dVdp[0] = (1 - x) * (1 - x) + dV_dL * (-a->y * e->y / De);
     dVdp[1] = dV_dL * (-t.at_re.du / ue * one_minus_yy - t.beta * radial_variable_d_center(e, re, pw));
     /* C_m enters ln u(r), ln u(re) and beta_inf */
     for (int k = 0; k < 3; k++) {
         const double m = 6 + 2 * k;
-        dVdp[2 + k] = dV_dL * (power(ir, m) / t.at_r.u - power(ir_e, m) / ue * one_minus_yy);
+        dVdp[2 + k] = dV_dL * (power(ir, m) / t.at_r.u - dC_over_ue[k] * one_minus_yy);
     }
-    const double dbeta_dp = radial_variable_d_power(a, r, r_ref) * gap;
-    dVdp[5] = dV_dL * -(dbeta_dp * e->y + t.beta * radial_variable_d_power(e, r, re));
-    dVdp[6] = dV_dL * -(a->one_minus_y * t.S1 * radial_variable_d_power(b, r, r_ref) * e->y);
+    const double log_ref = log(r / r_ref), log_eq = r_ref == re ? log_ref : log(r / re);
+    const double dbeta_dp = radial_variable_d_power(a, log_ref) * gap;
+    dVdp[5] = dV_dL * -(dbeta_dp * e->y + t.beta * radial_variable_d_power(e, log_eq));
+    dVdp[6] = dV_dL * -(a->one_minus_y * t.S1 * radial_variable_d_power(b, log_ref) * e->y);
     const double dbeta_dref = radial_variable_d_center(a, r_ref, pw) * gap +
                               a->one_minus_y * t.S1 * radial_variable_d_center(b, r_ref, qw);
     dVdp[7] = dV_dL * -(dbeta_dref * e->y);
@@ -380,13 +423,17 @@ typedef struct {
     double u, du, d2u, dC[MLRD_TERMS], drange;
 } damped_long_range;
 
-static void damped_long_range_at(const double *p, double r, damped_long_range *out)
+/* with want_dC = 0 the terms with C_m = 0 are skipped and their dC[k] left unset (a value of V
+   needs no damping function of an absent term) */
+static void damped_long_range_at(const double *p, double r, int want_dC, damped_long_range *out)
 {
     const int kind = (int)p[10], s = (int)p[12];
     const double range = p[11];
     out->u = out->du = out->d2u = out->drange = 0;
     for (int k = 0; k < MLRD_TERMS; k++) {
         const double C = p[2 + k];
+        if (C == 0 && !want_dC)
+            continue;
         const int m = mlrd_powers[k];
         const double irm = power(1 / r, m);
         wkb_damping d;
@@ -440,7 +487,7 @@ static int mlrd_check(const double *p, wkb_error *err)
         (s = check_integer("MLR", "q", p[8], 1, "", err)))
         return s;
     damped_long_range lr;
-    damped_long_range_at(p, p[1], &lr);
+    damped_long_range_at(p, p[1], 1, &lr);
     if (!(lr.u > 0) || !isfinite(lr.u))
         return wkb_fail(err, WKB_EINVAL, "MLR parameters are invalid: u_LR(re) = %g must be a finite number > 0", lr.u);
     /* undamped, as the MLR without damping: u_LR(re) < 2 De keeps beta_inf > 0; with damping the
@@ -453,23 +500,51 @@ static int mlrd_check(const double *p, wkb_error *err)
     return WKB_SUCCESS;
 }
 
+/* The r-independent parts of the damped MLR, kept per thread as those of the undamped one
+   (mlr_fixed_parts_of): u(re) with du/dC_m and du/d(range) at re, and beta_inf. They depend on
+   De, re, C3..C10 (p[0..6]) and damping, range, s (p[10..12]). */
+#define MLRD_KEY_HEAD 7
+#define MLRD_KEY_TAIL 3
+typedef struct {
+    int valid;
+    double head[MLRD_KEY_HEAD], tail[MLRD_KEY_TAIL];
+    damped_long_range at_re;
+    double beta_inf;
+} mlrd_fixed_parts;
+
+static const mlrd_fixed_parts *mlrd_fixed_parts_of(const double *p)
+{
+    static THREAD_LOCAL mlrd_fixed_parts cache;
+    if (!cache.valid || memcmp(cache.head, p, sizeof cache.head) != 0 ||
+        memcmp(cache.tail, p + 10, sizeof cache.tail) != 0) {
+        memcpy(cache.head, p, sizeof cache.head);
+        memcpy(cache.tail, p + 10, sizeof cache.tail);
+        damped_long_range_at(p, p[1], 1, &cache.at_re);
+        cache.beta_inf = log(2 * p[0] / cache.at_re.u);
+        cache.valid = 1;
+    }
+    return &cache;
+}
+
 typedef struct {
     damped_long_range at_r, at_re;
     radial_variable eq, ref_p, ref_q;
     double beta_inf, S, S1, beta, phi, x, dL, d2L;
 } mlrd_terms;
 
-static void mlrd_terms_at(const wkb_potential *pot, double r, mlrd_terms *t)
+/* want_dC: whether t->at_r.dC is needed (the parameter derivatives) */
+static void mlrd_terms_at(const wkb_potential *pot, double r, int want_dC, mlrd_terms *t)
 {
     const double *p = pot->p;
-    const double De = p[0], re = p[1], pw = p[7], qw = p[8], r_ref = p[9];
+    const double re = p[1], pw = p[7], qw = p[8], r_ref = p[9];
     const size_t n = pot->model->n_params - MLRD_LEADING;
     double S2;
-    damped_long_range_at(p, r, &t->at_r);
-    damped_long_range_at(p, re, &t->at_re);
+    const mlrd_fixed_parts *fixed = mlrd_fixed_parts_of(p);
+    damped_long_range_at(p, r, want_dC, &t->at_r);
+    t->at_re = fixed->at_re;
     mlr_radial_variables_at(r, re, r_ref, pw, qw, &t->eq, &t->ref_p, &t->ref_q);
     polynomial(p + MLRD_LEADING, n, t->ref_q.y, &t->S, &t->S1, &S2);
-    t->beta_inf = log(2 * De / t->at_re.u);
+    t->beta_inf = fixed->beta_inf;
     const radial_variable *e = &t->eq, *a = &t->ref_p, *b = &t->ref_q;
     const double gap = t->beta_inf - t->S;
     t->beta = a->y * t->beta_inf + a->one_minus_y * t->S;
@@ -489,7 +564,7 @@ static void mlrd_eval(const wkb_potential *pot, double r, wkb_pot_value *out)
 {
     const double De = pot->p[0];
     mlrd_terms t;
-    mlrd_terms_at(pot, r, &t);
+    mlrd_terms_at(pot, r, 0, &t);
     const double x = t.x;
     out->V = De * (1 - x) * (1 - x);
     out->dV = -2 * De * (1 - x) * x * t.dL;
@@ -503,7 +578,7 @@ static void mlrd_param_derivs(const wkb_potential *pot, double r, double *dVdp)
     const double De = p[0], re = p[1], pw = p[7], qw = p[8], r_ref = p[9];
     const size_t n = pot->model->n_params - MLRD_LEADING;
     mlrd_terms t;
-    mlrd_terms_at(pot, r, &t);
+    mlrd_terms_at(pot, r, 1, &t);
     const radial_variable *e = &t.eq, *a = &t.ref_p, *b = &t.ref_q;
     const double x = t.x, dV_dL = -2 * De * (1 - x) * x;
     const double gap = t.beta_inf - t.S;
@@ -515,9 +590,10 @@ static void mlrd_param_derivs(const wkb_potential *pot, double r, double *dVdp)
     /* C_m and the damping range enter ln u(r), ln u(re) and beta_inf */
     for (int k = 0; k < MLRD_TERMS; k++)
         dVdp[2 + k] = dV_dL * (t.at_r.dC[k] / t.at_r.u - t.at_re.dC[k] / ue * one_minus_yy);
-    const double dbeta_dp = radial_variable_d_power(a, r, r_ref) * gap;
-    dVdp[7] = dV_dL * -(dbeta_dp * e->y + t.beta * radial_variable_d_power(e, r, re));
-    dVdp[8] = dV_dL * -(a->one_minus_y * t.S1 * radial_variable_d_power(b, r, r_ref) * e->y);
+    const double log_ref = log(r / r_ref), log_eq = r_ref == re ? log_ref : log(r / re);
+    const double dbeta_dp = radial_variable_d_power(a, log_ref) * gap;
+    dVdp[7] = dV_dL * -(dbeta_dp * e->y + t.beta * radial_variable_d_power(e, log_eq));
+    dVdp[8] = dV_dL * -(a->one_minus_y * t.S1 * radial_variable_d_power(b, log_ref) * e->y);
     const double dbeta_dref = radial_variable_d_center(a, r_ref, pw) * gap +
                               a->one_minus_y * t.S1 * radial_variable_d_center(b, r_ref, qw);
     dVdp[9] = dV_dL * -(dbeta_dref * e->y);
