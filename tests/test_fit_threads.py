@@ -111,14 +111,20 @@ def test_invalid_thread_counts_are_refused(bad):
         _core.set_fit_threads(bad)
 
 
-@pytest.mark.parametrize("name", list(CASES))
-def test_exact_levels_on_threads_are_bit_identical(name, threads):
-    # the exact solver (one cloned workspace per thread, no seeds): any cut between groups gives the same bits
+def exact_rows_of(name):
+    """(model, params, curve, v, rot, mu) of CASES[name] for the exact solver (the damped MLR's exact levels
+    are slow: J(J+1) <= 30 there)."""
     pot, mu0 = CASES[name]
     model, p, curve = pot._core_args()
     v, rot, mu = rows(pot, mu0)
-    sel = np.ones(len(v), bool) if name != "MLR damped" else rot <= 30  # (its exact levels are slow)
-    v, rot, mu = v[sel], rot[sel], mu[sel]
+    sel = np.ones(len(v), bool) if name != "MLR damped" else rot <= 30
+    return model, p, curve, v[sel], rot[sel], mu[sel]
+
+
+@pytest.mark.parametrize("name", list(CASES))
+def test_exact_levels_on_threads_are_bit_identical(name, threads):
+    # the exact solver (one cloned workspace per thread, no seeds): any cut between groups gives the same bits
+    model, p, curve, v, rot, mu = exact_rows_of(name)
     out = []
     for n in (1, 2, 3):
         threads(n)
@@ -152,11 +158,7 @@ def test_exact_levels_without_the_jacobian(name, threads):
     # of corrected.exact_calc (the reference) and to the levels of the evaluation with the Jacobian; binding
     # energies (asymptote - E here, the solver's own there) within the stated accuracy, 1e-8 cm-1
     from wkbfit.corrected import exact_calc
-    pot, mu0 = CASES[name]
-    model, p, curve = pot._core_args()
-    v, rot, mu = rows(pot, mu0)
-    sel = np.ones(len(v), bool) if name != "MLR damped" else rot <= 30  # (its exact levels are slow)
-    v, rot, mu = v[sel], rot[sel], mu[sel]
+    model, p, curve, v, rot, mu = exact_rows_of(name)
     for zero in (0, 1, 2):
         ref, _ = exact_calc(model, p, curve, v, rot, mu, zero, 1e-8)
         for n in (1, 2, 3):
