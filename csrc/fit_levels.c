@@ -27,12 +27,13 @@
 #include <gsl/gsl_math.h>
 
 #include "wkb.h"
+#include "fit_rows.h"
 
 /* ------------------------------------------------------------------ the evaluator */
 
 /* One thread's share of an evaluation: the sorted rows [lo, hi), its own well, its outcome. */
 typedef struct {
-    wkb_fit_evaluator *ev;
+    wkb_row_evaluator *ev;
     size_t lo, hi;
     wkb_well *well;
     wkb_level_source source; /* an external source: the evaluator's, or a clone of it (owned) */
@@ -47,7 +48,7 @@ typedef struct {
     wkb_error err;
 } fit_part;
 
-struct wkb_fit_evaluator {
+struct wkb_row_evaluator {
     size_t n;
     const wkb_fit_data *data;
     size_t *order;  /* row indices sorted by (mu, rot, v) */
@@ -73,7 +74,7 @@ int wkb_set_fit_threads(int n)
     return __atomic_exchange_n(&fit_threads_setting, n < 0 ? 0 : GSL_MIN(n, WKB_FIT_MAX_THREADS), __ATOMIC_SEQ_CST);
 }
 
-size_t wkb_fit_evaluator_level_calculations(const wkb_fit_evaluator *ev)
+size_t wkb_rows_level_calculations(const wkb_row_evaluator *ev)
 {
     size_t n = 0;
     for (size_t k = 0; ev && k < ev->n_parts; k++)
@@ -81,7 +82,7 @@ size_t wkb_fit_evaluator_level_calculations(const wkb_fit_evaluator *ev)
     return n;
 }
 
-size_t wkb_fit_evaluator_orbits(const wkb_fit_evaluator *ev)
+size_t wkb_rows_orbits(const wkb_row_evaluator *ev)
 {
     size_t n = 0;
     for (size_t k = 0; ev && k < ev->n_parts; k++)
@@ -89,7 +90,7 @@ size_t wkb_fit_evaluator_orbits(const wkb_fit_evaluator *ev)
     return n;
 }
 
-size_t wkb_fit_evaluator_threads(const wkb_fit_evaluator *ev)
+size_t wkb_rows_threads(const wkb_row_evaluator *ev)
 {
     return ev ? ev->n_parts : 0;
 }
@@ -149,7 +150,7 @@ int wkb_fit_check_data(const wkb_fit_data *d, wkb_error *err)
 
 /* The seed arrays and prev_j (rows sorted by mu, rot, v: the previous row of the same v and model in
    the same mu block is the last one seen, kept per v in a table); non-zero when out of memory. */
-static int set_prev_j(wkb_fit_evaluator *ev)
+static int set_prev_j(wkb_row_evaluator *ev)
 {
     const wkb_fit_data *d = ev->data;
     const size_t n = ev->n;
@@ -185,7 +186,7 @@ static int set_prev_j(wkb_fit_evaluator *ev)
 }
 
 /* Sorted row s (> 0) begins another (mu, J(J+1), model) group. */
-static int starts_group(const wkb_fit_evaluator *ev, size_t s)
+static int starts_group(const wkb_row_evaluator *ev, size_t s)
 {
     const wkb_fit_data *d = ev->data;
     const size_t a = ev->order[s - 1], b = ev->order[s];
@@ -195,7 +196,7 @@ static int starts_group(const wkb_fit_evaluator *ev, size_t s)
 
 /* The threads wanted: the setting, or the online CPUs when it is 0; one for an external level source
    (one workspace) and below WKB_FIT_THREAD_MIN_ROWS rows, where starting threads costs more than it saves. */
-static size_t threads_wanted(const wkb_fit_evaluator *ev)
+static size_t threads_wanted(const wkb_row_evaluator *ev)
 {
     long n = __atomic_load_n(&fit_threads_setting, __ATOMIC_SEQ_CST);
     const size_t min_rows = ev->source ? WKB_FIT_THREAD_MIN_ROWS_SOURCE : WKB_FIT_THREAD_MIN_ROWS;
@@ -214,7 +215,7 @@ static size_t threads_wanted(const wkb_fit_evaluator *ev)
 /* Cuts the sorted rows into at most `want` contiguous parts near k n / want: at the nearest change of
    reduced mass when it is within n / (4 want) of that, else at the nearest change of (mu, J(J+1)) group
    (the cut rows' neighbour-J seeds are dropped). Fewer parts when the groups run out. */
-static void split_rows(wkb_fit_evaluator *ev, size_t want)
+static void split_rows(wkb_row_evaluator *ev, size_t want)
 {
     const size_t n = ev->n;
     size_t parts = 1, lo = 0;
@@ -246,10 +247,10 @@ static void split_rows(wkb_fit_evaluator *ev, size_t want)
                 ev->prev_j[s] = -1; /* a seed from another thread's rows */
 }
 
-wkb_fit_evaluator *wkb_fit_evaluator_alloc(const wkb_fit_data *data, const wkb_settings *levels,
+wkb_row_evaluator *wkb_rows_alloc(const wkb_fit_data *data, const wkb_settings *levels,
                                            const wkb_level_source *source, wkb_error *err)
 {
-    wkb_fit_evaluator *ev = NULL;
+    wkb_row_evaluator *ev = NULL;
     size_t *scratch = NULL;
     if (wkb_fit_check_data(data, err))
         return NULL;
@@ -289,11 +290,11 @@ nomem:
     wkb_fail(err, WKB_ENOMEM, "out of memory for a fit of %zu levels", data->n);
 fail:
     free(scratch);
-    wkb_fit_evaluator_free(ev);
+    wkb_rows_free(ev);
     return NULL;
 }
 
-void wkb_fit_evaluator_free(wkb_fit_evaluator *ev)
+void wkb_rows_free(wkb_row_evaluator *ev)
 {
     if (!ev)
         return;
@@ -334,7 +335,7 @@ void wkb_asymptote_gradient(const wkb_potential *pot, double *dA)
 static int level_of(fit_part *part, int v, double seed_E, int strong, double *energy, double *Bv, double *dEdp,
                     wkb_error *err)
 {
-    const wkb_fit_evaluator *ev = part->ev;
+    const wkb_row_evaluator *ev = part->ev;
     part->n_level_calculations++;
     if (ev->source)
         return part->source.level(part->source.ctx, v, energy, dEdp, err);
@@ -354,7 +355,7 @@ static int level_of(fit_part *part, int v, double seed_E, int strong, double *en
    1e-3 to 1 cost the same on the 20 000-level Lennard-Jones fit (1.10-1.12; 1.15-1.18 unseeded), 1 the
    fewest on the 500-level MLR scan fit (1.49-1.63; 2.1-2.3 unseeded, 1.45-1.64 always seeded). */
 #define SEED_STRONG_CHANGE 1.0
-static double seed_of(const wkb_fit_evaluator *ev, const wkb_potential *pot, size_t s, int *strong)
+static double seed_of(const wkb_row_evaluator *ev, const wkb_potential *pot, size_t s, int *strong)
 {
     const size_t np = pot->model->n_params;
     *strong = 0;
@@ -375,7 +376,7 @@ static double seed_of(const wkb_fit_evaluator *ev, const wkb_potential *pot, siz
 
 static int set_well(fit_part *part, const wkb_potential *pot, double mu, double rot, wkb_error *err)
 {
-    const wkb_fit_evaluator *ev = part->ev;
+    const wkb_row_evaluator *ev = part->ev;
     if (ev->source)
         return part->source.set(part->source.ctx, pot, mu, rot, err);
     return wkb_well_set(part->well, pot, mu, rot, 1, 1, err);
@@ -386,7 +387,7 @@ static int set_well(fit_part *part, const wkb_potential *pot, double mu, double 
 static void *evaluate_part(void *arg)
 {
     fit_part *part = arg;
-    wkb_fit_evaluator *ev = part->ev;
+    wkb_row_evaluator *ev = part->ev;
     const wkb_fit_data *d = ev->data;
     const wkb_potential *pot = part->pot;
     const size_t np = pot->model->n_params;
@@ -397,7 +398,7 @@ static void *evaluate_part(void *arg)
     double *calc = part->calc, *jac = part->jac;
     /* without a Jacobian wanted, levels only: the exact solver's <v|dV/dp|v> costs about three times
        its level, the orbit averages of dV/dp a part of each orbit (such an evaluation then leaves no
-       seeds for the next one, which need dE/dp: see wkb_fit_evaluate) */
+       seeds for the next one, which need dE/dp: see wkb_rows_evaluate) */
     const int want_dE = jac != NULL;
     wkb_error *err = &part->err;
     int status = WKB_SUCCESS;
@@ -475,7 +476,7 @@ static void *evaluate_part(void *arg)
     return NULL;
 }
 
-int wkb_fit_evaluate(wkb_fit_evaluator *ev, const wkb_potential *pot, double *calc, double *jac, size_t *bad_row,
+int wkb_rows_evaluate(wkb_row_evaluator *ev, const wkb_potential *pot, double *calc, double *jac, size_t *bad_row,
                      wkb_error *err)
 {
     const wkb_fit_data *d = ev->data;

@@ -1201,6 +1201,14 @@ static PyObject *py_set_fit_threads(PyObject *self, PyObject *args)
     return PyLong_FromLong(wkb_set_fit_threads(n));
 }
 
+static PyObject *py_set_fit_interpolation(PyObject *self, PyObject *args)
+{
+    int on;
+    if (!PyArg_ParseTuple(args, "p", &on))
+        return NULL;
+    return PyLong_FromLong(wkb_set_fit_interpolation(on));
+}
+
 static PyObject *py_fit_evaluate(PyObject *self, PyObject *args, PyObject *kwds)
 {
     static char *kwlist[] = {"model", "params", "curve", "v", "rot", "mu", "energy_zero", "method", "energy_tol",
@@ -2321,6 +2329,9 @@ static PyMethodDef core_methods[] = {
     {"set_fit_threads", py_set_fit_threads, METH_VARARGS,
      "set_fit_threads(n) -> previous: threads of the fits' level evaluations from now on (0: the default, the\n"
      "online CPUs for 500 rows or more, else 1; never more than the (mu, J) groups), process-wide"},
+    {"_set_fit_interpolation", py_set_fit_interpolation, METH_VARARGS,
+     "_set_fit_interpolation(on) -> previous: private switch (benchmarks, tests); False solves every fit row's\n"
+     "first-order level directly instead of interpolating rotational ladders in J(J+1) (fit_ladders.c)"},
     {"fit_evaluate", (PyCFunction)(void (*)(void))py_fit_evaluate, METH_VARARGS | METH_KEYWORDS,
      "fit_evaluate(model, params, curve, v, rot, mu, energy_zero=0, method=0, energy_tol=0, jacobian=True) -> (calc, "
      "jacobian[n, n_params] or None):\n"

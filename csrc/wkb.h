@@ -548,6 +548,17 @@ int wkb_fit_evaluate(wkb_fit_evaluator *ev, const wkb_potential *pot, double *ca
 /* Levels computed by ev so far (each E_v with its dE_v/dp counts once), and first-order orbits. */
 size_t wkb_fit_evaluator_level_calculations(const wkb_fit_evaluator *ev);
 size_t wkb_fit_evaluator_orbits(const wkb_fit_evaluator *ev);
+/* Rotational ladders (rows of one mu, level model and v at >= WKB_LADDER_MIN_J distinct J(J+1)) of
+   first-order Maslov levels are solved at WKB_LADDER_NODES Chebyshev nodes in J(J+1) and interpolated,
+   checked at every evaluation (fit_ladders.c): energies to the level tolerance, dE/dp to
+   WKB_LADDER_JAC_TOL relative. The ladders ev interpolates (0 once a check failed: rows solved directly). */
+#define WKB_LADDER_NODES 13
+#define WKB_LADDER_MIN_J 39
+#define WKB_LADDER_JAC_TOL 1e-5
+size_t wkb_fit_evaluator_interpolated_ladders(const wkb_fit_evaluator *ev);
+/* Private switch (benchmarks, tests): 0 solves every row directly in the evaluators allocated from now
+   on, 1 (the default) interpolates ladders. Process-wide; returns the previous setting. */
+int wkb_set_fit_interpolation(int on);
 /* WKB_SUCCESS when the data rows are valid (finite, positive sigma and mu, rot >= 0, v >= 0). */
 int wkb_fit_check_data(const wkb_fit_data *d, wkb_error *err);
 /* d(asymptote)/dp_k of the model, dA[n_params] (central differences). */
