@@ -113,25 +113,26 @@ static double node_x(double lo, double hi, size_t j)
     return 0.5 * (lo + hi) + 0.5 * (hi - lo) * cos(M_PI * (double)j / (double)(N - 1));
 }
 
-/* The barycentric weights of the Chebyshev-Lobatto interpolant at x (w_j = (-1)^j, halved at the ends;
-   Berrut & Trefethen, SIAM Review 46, 501 (2004)), normalised to sum 1; a node value exactly at a node. */
-static void weights_at(double lo, double hi, double x, double *out)
+/* The barycentric weights of the Chebyshev-Lobatto interpolant through the nodes xs at x (w_j = (-1)^j,
+   halved at the ends; Berrut & Trefethen, SIAM Review 46, 501 (2004)), normalised to sum 1; at a node,
+   that node's value. */
+static void weights_at(const double *xs, double x, double *out)
 {
     const size_t N = WKB_LADDER_NODES;
     double sum = 0;
     for (size_t j = 0; j < N; j++) {
-        const double xj = node_x(lo, hi, j);
-        if (x == xj) {
+        if (x == xs[j]) {
             for (size_t k = 0; k < N; k++)
                 out[k] = k == j;
             return;
         }
         const double w = (j % 2 ? -1.0 : 1.0) * (j == 0 || j == N - 1 ? 0.5 : 1.0);
-        out[j] = w / (x - xj);
+        out[j] = w / (x - xs[j]);
         sum += out[j];
     }
+    const double scale = 1 / sum;
     for (size_t j = 0; j < N; j++)
-        out[j] /= sum;
+        out[j] *= scale;
 }
 
 static int grow_tasks(wkb_fit_evaluator *ev, size_t cap)
@@ -210,13 +211,14 @@ static int make_plan(wkb_fit_evaluator *ev)
             const double lo = d->rot[idx[a]], hi = d->rot[idx[b - 1]];
             const size_t L = ev->n_ladders++;
             ev->ladder_base[L] = ev->n_tasks;
+            double xs[WKB_LADDER_NODES];
             for (size_t j = 0; j < N; j++)
-                add_task(ev, d->v[i0], node_x(lo, hi, j), d->mu[i0], model);
+                add_task(ev, d->v[i0], xs[j] = node_x(lo, hi, j), d->mu[i0], model);
             for (size_t s = a; s < b; s++) {
                 const size_t i = idx[s];
                 ev->row_task[i] = -1 - (long)L;
                 ev->row_slot[i] = (long)used;
-                weights_at(lo, hi, d->rot[i], ev->row_weight + used * N);
+                weights_at(xs, d->rot[i], ev->row_weight + used * N);
                 used++;
                 ev->row_ref[i] = ref;
             }

@@ -77,7 +77,7 @@ def count_orbits(call):
         core.fit_run = run
 
 
-def _fit_time(obs, masses, start):
+def _fit_time(obs, masses, start, min_time=2.0):
     """(wall, CPU) seconds per fit; the CPU time (all threads) barely depends on the machine's load, the wall
     time does."""
     c0 = time.process_time()
@@ -86,7 +86,7 @@ def _fit_time(obs, masses, start):
     def one():
         calls[0] += 1
         wkbfit.fit(start, obs, masses)
-    wall = time_call(one, min_time=2.0)
+    wall = time_call(one, min_time=min_time)
     return wall, (time.process_time() - c0) / calls[0]
 
 
@@ -101,6 +101,26 @@ def before_after(tree, obs, masses, start, rounds=3):
         base.append((out["fit_s"], out["cpu_s"]))
         here.append(_fit_time(obs, masses, start))
     return np.array(base), np.array(here)
+
+
+def _switch(on):
+    """The ladders' J(J+1) interpolation on or off (csrc/fit_ladders.c; off: every row solved directly, the
+    path before it); returns the previous setting (None where the core predates the switch)."""
+    setter = getattr(wkbfit._core, "_set_fit_interpolation", None)
+    return setter(on) if setter else None
+
+
+def interleaved(obs, masses, start, rounds=5):
+    """(direct, interpolated) arrays of (wall, CPU) s per fit: rounds of the two in turn, this process."""
+    out = {0: [], 1: []}
+    try:
+        for _ in range(rounds):
+            for on in (0, 1):
+                _switch(on)
+                out[on].append(_fit_time(obs, masses, start, min_time=1.0))
+    finally:
+        _switch(1)
+    return np.array(out[0]), np.array(out[1])
 
 
 def main():
@@ -123,16 +143,33 @@ def main():
                      ", ".join("%.2f" % r for r in here[:, k] / base[:, k]), float(np.median(here[:, k] / base[:, k]))))
         print("  (load average %s at the end)" % " ".join("%.2f" % x for x in os.getloadavg()))
     res, orbits = count_orbits(lambda: wkbfit.fit(start, obs, masses))
+    _switch(0)
+    try:
+        direct, direct_orbits = count_orbits(lambda: wkbfit.fit(start, obs, masses))
+    finally:
+        _switch(1)
+    old, new = interleaved(obs, masses, start)
+    print("ladders interpolated in J(J+1) (fit_ladders.c) vs every row solved directly, default threads, 5 rounds in "
+          "turn: wall %s ms vs %s ms (median ratio %.2f); CPU (all threads) %s ms vs %s ms (median ratio %.2f)"
+          % (", ".join("%.1f" % (t * 1e3) for t in new[:, 0]), ", ".join("%.1f" % (t * 1e3) for t in old[:, 0]),
+             float(np.median(new[:, 0] / old[:, 0])), ", ".join("%.1f" % (t * 1e3) for t in new[:, 1]),
+             ", ".join("%.1f" % (t * 1e3) for t in old[:, 1]), float(np.median(new[:, 1] / old[:, 1]))))
+    print("  parameters differ by %s standard deviations; first-order orbits per level and evaluation %.3f "
+          "(direct %.3f)" % (", ".join("%.1e" % (abs(res.params[n].value - direct.params[n].value)
+                                                 / direct.params[n].uncertainty) for n in res.var_names),
+                             orbits, direct_orbits))
     previous = wkbfit._core.set_fit_threads(1)
     try:
-        t_one = time_call(lambda: wkbfit.fit(start, obs, masses), min_time=2.0)
+        t_one, c_one = _fit_time(obs, masses, start)
     finally:
         wkbfit._core.set_fit_threads(previous)
-    t = time_call(lambda: wkbfit.fit(start, obs, masses), min_time=2.0)
-    print("one thread: %.1f ms; the default threads (%d online CPUs): %.1f ms; ratio %.2f (OPENBLAS_NUM_THREADS=%s)"
-          % (t_one * 1e3, os.cpu_count(), t * 1e3, t / t_one, os.environ.get("OPENBLAS_NUM_THREADS", "unset")))
-    print("%d-level fit, 2 parameters (De, re), %d isotopologues, J = 0..99: %.1f ms (target <= 150 ms: %s)"
-          % (len(obs), len(masses), t * 1e3, "met" if t <= 0.150 else "NOT met"))
+    t, c = _fit_time(obs, masses, start)
+    print("one thread: %.1f ms (CPU %.1f ms); the default threads (%d online CPUs): %.1f ms (CPU %.1f ms); ratio %.2f "
+          "(OPENBLAS_NUM_THREADS=%s)" % (t_one * 1e3, c_one * 1e3, os.cpu_count(), t * 1e3, c * 1e3, t / t_one,
+                                         os.environ.get("OPENBLAS_NUM_THREADS", "unset")))
+    print("%d-level fit, 2 parameters (De, re), %d isotopologues, J = 0..99: %.1f ms (target <= 150 ms: %s; load "
+          "average %s)" % (len(obs), len(masses), t * 1e3, "met" if t <= 0.150 else "NOT met",
+                           " ".join("%.2f" % x for x in os.getloadavg())))
     print("  %s; %d iterations, %d model evaluations: %.2f us per level and evaluation; %.3f orbits per level and "
           "WKB evaluation" % (res.status, res.iterations, res.n_evaluations, t / (res.n_evaluations * len(obs)) * 1e6,
                               orbits))
