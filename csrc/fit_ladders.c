@@ -14,13 +14,16 @@
  * (energy_tol + 4e-14 |E|), each dE/dp_k's below WKB_LADDER_JAC_TOL of its largest node value. Measured
  * on the benchmark's wells (LJ (12,6), 4000 cm-1, mu 20 u): 13 nodes reproduce every directly solved
  * level of J = 0..99 to 2e-12 cm-1 (the levels' rounding) and dE/dp to 8e-7 relative (the directly
- * solved derivatives' own scatter: the same for 9 to 33 nodes). When a check fails, that evaluation
- * and all later ones of the evaluator solve every row directly (the row evaluator on the data,
- * fit_levels.c); so does an evaluation where a node level fails (bad_row and the message are then
- * those of the direct solve). The node levels and the rows of short ladders (solved directly) form one
+ * solved derivatives' own scatter: the same for 9 to 33 nodes). A ladder that fails its check (levels
+ * that bend fast next to the last bound J) has its rows solved directly from then on: the plan is made
+ * again without it and the evaluation repeated; with no ladder left, the row evaluator runs on the data
+ * itself (fit_levels.c: the path before the interpolation, bit for bit). So does an evaluation where a
+ * node level fails (bad_row and the message are then those of the direct solve). The node levels and the rows of short ladders (solved directly) form one
  * task list for the row evaluator (its seeds, threads and well sharing); energy zeros, per-row
  * corrections and the checks of finiteness are applied here to the assembled rows.
- * Only first-order WKB levels are interpolated: an external source (the exact solver) runs on the data.
+ * Only first-order Maslov levels of the analytic models are interpolated: an external source (the exact
+ * solver), other rules and the point-wise curve (its cubic pieces make the levels only piecewise smooth in
+ * J(J+1)) run on the data.
  */
 #include <math.h>
 #include <stdlib.h>
@@ -57,9 +60,11 @@ struct wkb_fit_evaluator {
     long *row_slot;      /* per interpolated row: its weights' slot in row_weight (else -1) */
     long *row_ref;       /* per row (zero "lowest"): the task of its reference level */
     double *row_weight;  /* per slot: WKB_LADDER_NODES barycentric weights */
+    char *rejected;      /* per row: its ladder failed the check (solved directly from then on) */
     double cheb_next[WKB_LADDER_NODES]; /* cos(pi j (N-2)/(N-1)): the next-to-last coefficient */
     double *task_E, *task_dE;
     size_t task_np;
+    size_t retired_levels, retired_orbits; /* the counts of node evaluators replaced by a new plan */
 };
 
 /* ------------------------------------------------------------------ the plan */
@@ -159,18 +164,26 @@ static size_t add_task(wkb_fit_evaluator *ev, int v, double rot, double mu, cons
     return t;
 }
 
-/* The ladders worth interpolating, their node tasks and the rows' weights; ev->active when there is one.
-   Non-zero when out of memory. */
+/* The ladders worth interpolating (not rejected), their node tasks and the rows' weights; ev->active when
+   there is one. Non-zero when out of memory. */
 static int make_plan(wkb_fit_evaluator *ev)
 {
     const wkb_fit_data *d = ev->data;
     const size_t n = d->n, N = WKB_LADDER_NODES;
     size_t *idx = malloc(n * sizeof *idx), *scratch = malloc(n * sizeof *scratch);
     int status = 1;
-    ev->row_task = malloc(n * sizeof *ev->row_task);
-    ev->row_slot = malloc(n * sizeof *ev->row_slot);
-    ev->row_ref = malloc(n * sizeof *ev->row_ref);
-    if (!idx || !scratch || !ev->row_task || !ev->row_slot || !ev->row_ref)
+    ev->active = 0;
+    ev->n_tasks = ev->n_ladders = 0;
+    free(ev->ladder_base);
+    free(ev->row_weight);
+    ev->ladder_base = NULL, ev->row_weight = NULL;
+    if (!ev->row_task) {
+        ev->row_task = malloc(n * sizeof *ev->row_task);
+        ev->row_slot = malloc(n * sizeof *ev->row_slot);
+        ev->row_ref = malloc(n * sizeof *ev->row_ref);
+        ev->rejected = calloc(n, 1);
+    }
+    if (!idx || !scratch || !ev->row_task || !ev->row_slot || !ev->row_ref || !ev->rejected)
         goto done;
     for (size_t i = 0; i < n; i++)
         idx[i] = i;
@@ -181,7 +194,7 @@ static int make_plan(wkb_fit_evaluator *ev)
         size_t distinct = 1;
         for (b = a + 1; b < n && same_ladder(d, idx[a], idx[b]); b++)
             distinct += d->rot[idx[b]] != d->rot[idx[b - 1]];
-        if (distinct >= WKB_LADDER_MIN_J) {
+        if (distinct >= WKB_LADDER_MIN_J && !ev->rejected[idx[a]]) {
             n_ladders++;
             n_interp += b - a;
         }
@@ -207,7 +220,7 @@ static int make_plan(wkb_fit_evaluator *ev)
         for (b = a + 1; b < n && same_ladder(d, i0, idx[b]); b++)
             distinct += d->rot[idx[b]] != d->rot[idx[b - 1]];
         const wkb_model *model = d->level_model ? d->level_model[i0] : NULL;
-        if (distinct >= WKB_LADDER_MIN_J) {
+        if (distinct >= WKB_LADDER_MIN_J && !ev->rejected[i0]) {
             const double lo = d->rot[idx[a]], hi = d->rot[idx[b - 1]];
             const size_t L = ev->n_ladders++;
             ev->ladder_base[L] = ev->n_tasks;
@@ -289,6 +302,7 @@ void wkb_fit_evaluator_free(wkb_fit_evaluator *ev)
     free(ev->row_slot);
     free(ev->row_ref);
     free(ev->row_weight);
+    free(ev->rejected);
     free(ev->task_E);
     free(ev->task_dE);
     free(ev);
@@ -296,12 +310,13 @@ void wkb_fit_evaluator_free(wkb_fit_evaluator *ev)
 
 size_t wkb_fit_evaluator_level_calculations(const wkb_fit_evaluator *ev)
 {
-    return ev ? wkb_rows_level_calculations(ev->direct) + wkb_rows_level_calculations(ev->nodes) : 0;
+    return ev ? ev->retired_levels + wkb_rows_level_calculations(ev->direct) + wkb_rows_level_calculations(ev->nodes)
+              : 0;
 }
 
 size_t wkb_fit_evaluator_orbits(const wkb_fit_evaluator *ev)
 {
-    return ev ? wkb_rows_orbits(ev->direct) + wkb_rows_orbits(ev->nodes) : 0;
+    return ev ? ev->retired_orbits + wkb_rows_orbits(ev->direct) + wkb_rows_orbits(ev->nodes) : 0;
 }
 
 size_t wkb_fit_evaluator_threads(const wkb_fit_evaluator *ev)
@@ -328,26 +343,52 @@ static double chebyshev_tail(const wkb_fit_evaluator *ev, const double *f, size_
     return (fabs(last) + 2 * fabs(next)) / (double)(N - 1);
 }
 
-/* Every ladder's nodes pass the accuracy check (see the file comment). */
-static int ladders_accurate(const wkb_fit_evaluator *ev, size_t np, int with_dE)
+/* The ladders whose nodes fail the accuracy check (see the file comment): their rows are marked rejected;
+   returns how many. */
+static size_t reject_inaccurate(wkb_fit_evaluator *ev, size_t np, int with_dE)
 {
     const size_t N = WKB_LADDER_NODES;
+    size_t bad = 0;
     for (size_t L = 0; L < ev->n_ladders; L++) {
         const size_t t0 = ev->ladder_base[L];
         double top = 0;
         for (size_t j = 0; j < N; j++)
             top = GSL_MAX(top, fabs(ev->task_E[t0 + j]));
-        if (!(2 * chebyshev_tail(ev, ev->task_E + t0, 1) <= ev->levels.energy_tol + 4e-14 * top))
-            return 0;
-        for (size_t k = 0; with_dE && k < np; k++) {
+        int ok = 2 * chebyshev_tail(ev, ev->task_E + t0, 1) <= ev->levels.energy_tol + 4e-14 * top;
+        for (size_t k = 0; ok && with_dE && k < np; k++) {
             double scale = 0;
             for (size_t j = 0; j < N; j++)
                 scale = GSL_MAX(scale, fabs(ev->task_dE[(t0 + j) * np + k]));
-            if (!(2 * chebyshev_tail(ev, ev->task_dE + t0 * np + k, np) <= WKB_LADDER_JAC_TOL * scale))
-                return 0;
+            ok = 2 * chebyshev_tail(ev, ev->task_dE + t0 * np + k, np) <= WKB_LADDER_JAC_TOL * scale;
         }
+        if (ok)
+            continue;
+        bad++;
+        for (size_t i = 0; i < ev->data->n; i++)
+            if (ev->row_task[i] == -1 - (long)L)
+                ev->rejected[i] = 1;
     }
-    return 1;
+    return bad;
+}
+
+/* A new plan without the rejected ladders, and its row evaluator; non-zero when out of memory. */
+static int replan(wkb_fit_evaluator *ev, wkb_error *err)
+{
+    ev->retired_levels += wkb_rows_level_calculations(ev->nodes);
+    ev->retired_orbits += wkb_rows_orbits(ev->nodes);
+    wkb_rows_free(ev->nodes);
+    ev->nodes = NULL;
+    free(ev->task_E);
+    free(ev->task_dE);
+    ev->task_E = ev->task_dE = NULL;
+    ev->task_np = 0;
+    if (make_plan(ev))
+        return wkb_fail(err, WKB_ENOMEM, "out of memory for a fit of %zu levels", ev->data->n);
+    if (ev->active && !(ev->nodes = wkb_rows_alloc(&ev->tasks, &ev->levels, NULL, err))) {
+        ev->active = 0;
+        return err && err->status ? err->status : WKB_ENOMEM;
+    }
+    return WKB_SUCCESS;
 }
 
 /* The rows from the task levels: interpolated or copied, then in the data's energy zero with the
@@ -419,7 +460,9 @@ int wkb_fit_evaluate(wkb_fit_evaluator *ev, const wkb_potential *pot, double *ca
                      wkb_error *err)
 {
     const size_t np = pot->model->n_params;
-    if (ev->active) {
+    if (ev->active && pot->model == &wkb_model_pointwise)
+        ev->active = 0; /* a spline's levels are only piecewise smooth in J(J+1): the tail check would not bound them */
+    while (ev->active) {
         if (jac && ev->task_np != np) {
             double *a = realloc(ev->task_dE, (ev->n_tasks * np + 1) * sizeof *a);
             if (!a)
@@ -437,15 +480,14 @@ int wkb_fit_evaluate(wkb_fit_evaluator *ev, const wkb_potential *pot, double *ca
                 *err = e2;
             return status;
         }
-        if (!status) {
-            if (!ladders_accurate(ev, np, jac != NULL)) {
-                ev->active = 0; /* not smooth enough for the nodes: every row directly from now on */
-            } else {
-                return assemble(ev, pot, calc, jac, bad_row, err);
-            }
-        }
-        /* a node level failed (or the check did): this evaluation solves the rows directly, so that the
-           failure (if any) names the data row and its level */
+        if (status)
+            break; /* a level failed: this evaluation solves the rows directly, so that the failure names the
+                      data row and its level */
+        if (!reject_inaccurate(ev, np, jac != NULL))
+            return assemble(ev, pot, calc, jac, bad_row, err);
+        /* some ladders are not smooth enough for the nodes: their rows are solved directly from now on */
+        if ((status = replan(ev, err)))
+            return status;
     }
     if (!ev->direct && !(ev->direct = wkb_rows_alloc(ev->data, &ev->levels, ev->source, err)))
         return err && err->status ? err->status : WKB_ENOMEM;

@@ -79,6 +79,16 @@ def test_a_ladder_reaching_the_last_bound_j_is_solved_directly(direct_and_interp
     assert np.array_equal(E0, E1) and np.array_equal(J0, J1)
 
 
+def test_only_the_ladder_that_fails_the_check_is_solved_directly(direct_and_interpolated):
+    # the same v = 8 ladder beside v = 0..3 over the same J: those stay interpolated, v = 8 is solved directly
+    v, rot, mu = grid((0, 1, 2, 3, 8), range(48), (20.0,))
+    p = np.array([400.0, 4.0, 12.0, 6.0])
+    (E0, J0), (E1, J1) = direct_and_interpolated(lambda: _core.fit_evaluate("lennard_jones", p, None, v, rot, mu, 0, 0))
+    assert np.max(np.abs(E1 - E0)) < 1e-10
+    assert np.max(np.abs(J1 - J0) / np.abs(J0).max(axis=0).clip(1e-300)) < 1e-5
+    assert not np.array_equal(E0[v < 8], E1[v < 8])
+
+
 def test_an_unbound_row_is_reported_as_by_the_direct_solve(direct_and_interpolated):
     v, rot, mu = grid((10, 12), range(40), (20.0,))
     p = np.array([400.0, 4.0, 12.0, 6.0])
