@@ -1,5 +1,7 @@
 /* fit_levels.c: the levels of a fit and their parameter derivatives.
  *
+ * The row evaluator (fit_rows.h) solves every row it is given; the fits' evaluator (wkb_fit_evaluator,
+ * fit_ladders.c) gives it the data rows, or the Chebyshev nodes of the rotational ladders it interpolates.
  * The evaluator gives, at one parameter point, every data row's level energy and dE/dp (first-order
  * WKB, dE_v/dp_k the orbit average of dV/dp_k, or an external level source such as the exact solver).
  * The data are visited grouped by (reduced mass, J(J+1)), in ascending v, so that each well

@@ -519,7 +519,7 @@ typedef struct {
 /* Model evaluation workspace: the data grouped by (mu, J(J+1)) in ascending v, cut into one
    part per thread, each with its own WKB well workspace (source NULL) so that nothing is allocated
    per evaluation. An external source runs on one thread unless it can be cloned (one context
-   per thread). */
+   per thread). Rotational ladders of many J are interpolated in J(J+1) (WKB_LADDER_NODES below). */
 typedef struct wkb_fit_evaluator wkb_fit_evaluator;
 #define WKB_FIT_MAX_THREADS 16
 /* Below this many rows the default is one thread: whole first-order fits of two isotopologues on 2 cores
