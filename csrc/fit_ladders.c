@@ -444,14 +444,19 @@ static int assemble(const wkb_fit_evaluator *ev, const wkb_potential *pot, doubl
         }
         if (d->offset)
             calc[i] += d->offset[i];
-        if (bad_row)
-            *bad_row = i;
-        if (!isfinite(calc[i]))
-            return wkb_fail(err, WKB_ENUMERIC, "the calculated energy of row %zu is not finite", i + 1);
+        int finite = isfinite(calc[i]);
         for (size_t k = 0; row && k < np; k++)
-            if (!isfinite(row[k]))
-                return wkb_fail(err, WKB_ENUMERIC, "the derivative of row %zu with respect to %s is not finite",
-                                i + 1, pot->model->param_names[k]);
+            finite = finite && isfinite(row[k]);
+        if (!finite) {
+            if (bad_row)
+                *bad_row = i;
+            if (!isfinite(calc[i]))
+                return wkb_fail(err, WKB_ENUMERIC, "the calculated energy of row %zu is not finite", i + 1);
+            for (size_t k = 0; k < np; k++)
+                if (!isfinite(row[k]))
+                    return wkb_fail(err, WKB_ENUMERIC, "the derivative of row %zu with respect to %s is not finite",
+                                    i + 1, pot->model->param_names[k]);
+        }
     }
     return WKB_SUCCESS;
 }
