@@ -57,6 +57,25 @@ def test_interpolated_levels_and_derivatives_match_the_direct_solve(direct_and_i
     assert np.array_equal(J1[:, ~live], J0[:, ~live])
 
 
+@pytest.mark.parametrize("pot, mu, nv, nJ", [
+    (wkbfit.Morse(De=37000.0, re=1.27, a=1.87), 0.98, 8, 45),  # a light, deep well (few levels)
+    (wkbfit.Morse(De=5875.0, re=3.67, a=0.6), 6.6, 40, 120),
+    (wkbfit.MLR(De=8000.0, re=2.7, C6=6.0e5, C8=2.0e6, C10=5.0e6, betas=[-0.4, 0.3, 0.15, -0.05], p=5, q=4), 10.0, 18, 80),
+    (wkbfit.EMO(De=10000.0, re=1.5, betas=[1.8, 0.15, 0.08], p=3), 5.0, 13, 60),
+    (wkbfit.PoschlTeller(De=3000.0, re=2.0, a=1.0), 10.0, 5, 45),
+])
+def test_other_models_within_the_level_tolerance(direct_and_interpolated, pot, mu, nv, nJ):
+    # invented wells; whether a ladder is interpolated or (failing its check) solved directly, the rows agree
+    # with the direct solve within its tolerance, energy_tol 1e-11 + 4e-14 De
+    v, rot, mus = grid(range(nv), range(nJ), (mu,))
+    (E0, J0), (E1, J1) = direct_and_interpolated(
+        lambda: _core.fit_evaluate(pot.model, np.array(pot._params), None, v, rot, mus, 0, 0))
+    assert np.max(np.abs(E1 - E0)) <= 1e-11 + 4e-14 * pot._params[0]
+    scale = np.abs(J0).max(axis=0)
+    live = scale > 0
+    assert np.max(np.abs(J1 - J0)[:, live] / scale[live]) < 1e-5
+
+
 def test_short_and_long_ladders_mixed(direct_and_interpolated):
     # v = 0..4 at J = 0..59 (interpolated) beside v = 5, 6 at J = 0..9 only and a single row (solved directly)
     v1, r1, m1 = grid(range(5), range(60), (21.0,))
@@ -84,7 +103,7 @@ def test_only_the_ladder_that_fails_the_check_is_solved_directly(direct_and_inte
     v, rot, mu = grid((0, 1, 2, 3, 8), range(48), (20.0,))
     p = np.array([400.0, 4.0, 12.0, 6.0])
     (E0, J0), (E1, J1) = direct_and_interpolated(lambda: _core.fit_evaluate("lennard_jones", p, None, v, rot, mu, 0, 0))
-    assert np.max(np.abs(E1 - E0)) < 1e-10
+    assert np.max(np.abs(E1 - E0)) <= 1e-11 + 4e-14 * 400.0  # the level tolerance in this well
     assert np.max(np.abs(J1 - J0) / np.abs(J0).max(axis=0).clip(1e-300)) < 1e-5
     assert not np.array_equal(E0[v < 8], E1[v < 8])
 
