@@ -17,10 +17,11 @@ evaluator's second thread needs.
 Before/after: with --baseline TREE (a built checkout of an earlier commit), the same fit is timed in
 a subprocess on TREE's package, alternating with this tree's in rounds, and the ratio per round is printed.
 Measured (2 cores shared with other helpers' jobs, load average 3.3-4.7: wall times noisy, CPU times not):
-CPU of all threads per fit 177-185 ms interpolated against 297-317 ms direct (median ratio 0.58-0.59),
-main-thread CPU 110-116 ms against 168-179 ms (0.66); one thread 175-183 ms CPU; the first-order orbits
-per level and evaluation 0.148 against 1.143; parameters 5e-9 and 2e-8 standard deviations apart. Fastest
-wall times 118 ms (a quiet moment; direct 238 ms in the same run) to 168 ms under load. Where the
+CPU of all threads per fit 177-194 ms interpolated against 297-335 ms direct (median ratio 0.58-0.59; against
+a build of main at af874dd with --baseline: 0.57-0.59), main-thread CPU 110-124 ms against 168-191 ms (0.66);
+one thread 175-193 ms CPU; first-order orbits per level and evaluation 0.148 against 1.143; parameters 5e-9
+and 2e-8 standard deviations apart. Fastest wall time of a round 118 ms at a quiet moment (direct 238 ms in
+the same run), 168-383 ms under that load: the target holds only when the machine is otherwise idle. Where the
 remaining time goes (cProfile and per-call timing, CPU): the exact levels of the refreshes ~100 ms
 (1008 levels with <v|dV/dp|v>, 1008 + 400 without; radial solver), the Python part ~35 ms, the
 first-order Levenberg-Marquardt run 25 ms (112 ms direct), the two first-order evaluations of all rows
