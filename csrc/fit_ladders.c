@@ -9,8 +9,8 @@
  * one reduced mass with the same range share their nodes, hence their wells: the 20 000-level benchmark
  * fit (8 isotopologues, v = 0..24, J = 0..99) solves 13 wells of 25 levels per isotopologue per
  * evaluation instead of 100.
- * Accuracy, checked at every evaluation: the last two Chebyshev coefficients of the node values bound
- * the interpolation error; the energies' must be below the level solve's own tolerance
+ * Accuracy, checked at every evaluation: twice the last two Chebyshev coefficients of the node values
+ * estimate the interpolation error (the series converges geometrically); the energies' must be below the level solve's own tolerance
  * (energy_tol + 4e-14 |E|), each dE/dp_k's below WKB_LADDER_JAC_TOL of its largest node value. Measured
  * on the benchmark's wells (LJ (12,6), 4000 cm-1, mu 20 u): 13 nodes reproduce every directly solved
  * level of J = 0..99 to 2e-12 cm-1 (the levels' rounding) and dE/dp to 8e-7 relative (the directly
@@ -18,14 +18,16 @@
  * that bend fast next to the last bound J) has its rows solved directly from then on: the plan is made
  * again without it and the evaluation repeated; with no ladder left, the row evaluator runs on the data
  * itself (fit_levels.c: the path before the interpolation, bit for bit). So does an evaluation where a
- * node level fails (bad_row and the message are then those of the direct solve). The node levels and the rows of short ladders (solved directly) form one
- * task list for the row evaluator (its seeds, threads and well sharing); energy zeros, per-row
- * corrections and the checks of finiteness are applied here to the assembled rows.
+ * node level fails (bad_row and the message are then those of the direct solve). The node levels and the
+ * rows of short ladders (solved directly) form one task list for the row evaluator (its seeds, threads
+ * and well sharing); energy zeros, per-row corrections and the checks of finiteness are applied here to
+ * the assembled rows.
  * Only first-order Maslov levels of the analytic models are interpolated: an external source (the exact
  * solver), other rules and the point-wise curve (its cubic pieces make the levels only piecewise smooth in
  * J(J+1)) run on the data.
  */
 #include <math.h>
+#include <stdint.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -76,7 +78,7 @@ static int ladder_before(const wkb_fit_data *d, size_t a, size_t b)
         return d->mu[a] < d->mu[b];
     const wkb_model *ma = d->level_model ? d->level_model[a] : NULL, *mb = d->level_model ? d->level_model[b] : NULL;
     if (ma != mb)
-        return (size_t)ma < (size_t)mb;
+        return (uintptr_t)ma < (uintptr_t)mb;
     if (d->v[a] != d->v[b])
         return d->v[a] < d->v[b];
     return d->rot[a] < d->rot[b];
