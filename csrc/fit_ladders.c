@@ -246,8 +246,9 @@ static int make_plan(wkb_fit_evaluator *ev)
             }
         }
     }
-    ev->tasks = (wkb_fit_data){ev->n_tasks, ev->task_v, ev->task_rot, ev->task_mu, NULL, NULL, WKB_ZERO_MINIMUM};
-    ev->tasks.level_model = d->level_model ? ev->task_model : NULL;
+    ev->tasks = (wkb_fit_data){.n = ev->n_tasks, .v = ev->task_v, .rot = ev->task_rot, .mu = ev->task_mu,
+                               .energy_zero = WKB_ZERO_MINIMUM,
+                               .level_model = d->level_model ? ev->task_model : NULL};
     for (size_t j = 0; j < N; j++)
         ev->cheb_next[j] = cos(M_PI * (double)j * (double)(N - 2) / (double)(N - 1));
     ev->active = 1;
