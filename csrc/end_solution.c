@@ -24,6 +24,7 @@
 
 #include "wkb.h"
 #include "well.h"
+#include "magnus.h"
 
 #define WALK_FIRST_STEP 0.01 /* first step of the walk into the forbidden region, in ln r */
 #define WALK_MAX_STEP 0.25
@@ -426,6 +427,34 @@ int wkb_end_solution(wkb_well *w, double binding, int outer, double r_turn, doub
         /* the kept solution through the turning region, to first order in the energy change */
         m->ctx.q04 = kq->q04;
         y[0] = kq->y[0] + kq->y[1] * dE;
+    } else if (w->set.match_milne == 2) {
+        /* Magnus steps (magnus.c) from the start to r_end; the deep part at the looser tolerance the
+           damping there allows, continuously in the tunnelling integral left (the walk's acc) */
+        const double F0 = kin / eps;
+        const double q0 = isfinite(F0) ? sqrt(sqrt(F0 * F0 + m->ctx.q04)) : 1.0;
+        wkb_magnus_state ms;
+        wkb_magnus_start(&ms, r, y[0], q0, sigma, -sigma * 1e-3 * r);
+        ms.decay_left = regular ? 0 : acc;
+        ms.deep_safety = DEEP_SAFETY;
+        ms.tol_deep_max = DEEP_TOL_MAX;
+        int gs = wkb_magnus_run(w, binding, r_end, m->tol, m->ctx.q04, &ms);
+        double phi = NAN, phi_E = NAN;
+        if (gs == GSL_SUCCESS)
+            gs = wkb_magnus_angle(w, binding, m->ctx.q04, sigma, &ms, &phi, &phi_E);
+        m->ctx.n_eval += ms.n_eval;
+        if (gs != GSL_SUCCESS)
+            return wkb_fail(err, WKB_ENUMERIC,
+                            "the exact %s-end solution failed at binding energy %.6g cm-1 (Magnus steps, GSL "
+                            "status %d)", outer ? "outer" : "inner", binding, gs);
+        y[0] = phi;
+        if (m->reuse == 2) {
+            kq->ok = isfinite(phi_E);
+            kq->binding = binding;
+            kq->r_end = r_end;
+            kq->q04 = m->ctx.q04;
+            kq->y[0] = phi;
+            kq->y[1] = phi_E;
+        }
     } else {
         double t = -sigma * log(r);
         const double t_end = -sigma * log(r_end);

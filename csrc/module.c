@@ -447,7 +447,7 @@ static PyObject *py_matched_phases(PyObject *self, PyObject *args, PyObject *kwd
     wkb_error err = {0};
     wkb_end_phase ph[2];
     int status;
-    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOddd|dddp", kwlist, &model_name, &params_obj, &curve_obj, &mu,
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOddd|dddi", kwlist, &model_name, &params_obj, &curve_obj, &mu,
                                      &rot, &binding, &fraction, &rm_in, &rm_out, &milne))
         return NULL;
     if (parse_potential(model_name, params_obj, curve_obj, &pot) < 0)
@@ -539,7 +539,7 @@ static PyObject *py_wkb_levels(PyObject *self, PyObject *args, PyObject *kwds)
     npy_intp n_rot = 0;
     int status = WKB_SUCCESS;
 
-    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOdO|Oiipiidiinpp", kwlist, &model_name, &params_obj, &curve_obj,
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOdO|Oiipiidiinip", kwlist, &model_name, &params_obj, &curve_obj,
                                      &mu, &rot_obj, &v_obj, &maslov_in, &maslov_out, &want_dVdp, &order, &ends,
                                      &match_fraction, &nodes, &match_rule, &max_levels, &milne, &packed))
         return NULL;
@@ -2305,7 +2305,8 @@ static PyMethodDef core_methods[] = {
      "-> dict of level arrays (v, energy, binding_energy, turning points, Bv, dEdv, error, rule, rot_index), vD, "
      "v_th (ends=1 only, else NaN) and count (per rot when rot is an array), [dE_dp]; ends=1 selects matched end "
      "phases, nodes overrides the quadrature rule, match_rule forces 3 (matched) or 4 (exact phase), milne=False "
-     "is the earlier end solve (Pruefer form all the way, fixed tolerance), kept for comparison; packed=True "
+     "is the earlier end solve (Pruefer form all the way, fixed tolerance), kept for comparison, milne=2 takes "
+     "Magnus steps through the turning region instead of rk8pd (magnus.c, a measured alternative); packed=True "
      "returns the tuple (block, rot_index, vD, v_th, count, finite) with the nine columns as rows of one "
      "read-only (9, n) block and finite telling whether every result column is finite"},
     {"wkb_orbits", (PyCFunction)(void (*)(void))py_wkb_orbits, METH_VARARGS | METH_KEYWORDS,
