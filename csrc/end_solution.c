@@ -427,7 +427,7 @@ int wkb_end_solution(wkb_well *w, double binding, int outer, double r_turn, doub
         /* the kept solution through the turning region, to first order in the energy change */
         m->ctx.q04 = kq->q04;
         y[0] = kq->y[0] + kq->y[1] * dE;
-    } else if (w->set.match_milne == 2) {
+    } else if (w->set.match_milne == 1) {
         /* Magnus steps (magnus.c) from the start to r_end; the deep part at the looser tolerance the
            damping there allows, continuously in the tunnelling integral left (the walk's acc) */
         const double F0 = kin / eps;
@@ -437,6 +437,7 @@ int wkb_end_solution(wkb_well *w, double binding, int outer, double r_turn, doub
         ms.decay_left = regular ? 0 : acc;
         ms.deep_safety = DEEP_SAFETY;
         ms.tol_deep_max = DEEP_TOL_MAX;
+        ms.want_E = m->reuse == 2;
         int gs = wkb_magnus_run(w, binding, r_end, m->tol, m->ctx.q04, &ms);
         double phi = NAN, phi_E = NAN;
         if (gs == GSL_SUCCESS)

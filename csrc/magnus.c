@@ -87,6 +87,7 @@ void wkb_magnus_start(wkb_magnus_state *s, double r, double phi, double q, doubl
     s->zeros = 0;
     s->n_eval = 0;
     s->decay_left = 0;
+    s->want_E = 1;
 }
 
 static double scale_q(double F, double q04)
@@ -158,21 +159,24 @@ int wkb_magnus_run(const wkb_well *w, double binding, double r_to, double tol, d
                 return GSL_EFAILED;
             continue;
         }
-        /* the energy derivative: d Omega6/dE through the commutators (a2, a3 do not depend on E) */
-        const sl2 C1E = comm(b1, a2);
-        const sl2 C2E = comb(-1.0 / 60, comb(1, comm(b1, a3C), 1, comm(a1, C1E)), 0, a1);
-        const sl2 XE = comb(-20, b1, 1, C1E);
-        const sl2 OE = comb(1, b1, 1.0 / 240, comb(1, comm(XE, Y), 1, comm(X, C2E)));
-        const double dE = 2 * O6.a * OE.a + OE.b * O6.c + O6.b * OE.c;
-        double m_u[2], m_uE[2], t[2];
-        apply(O6, C6, S6, s->uE, m_uE); /* M uE */
-        /* M_E u = (S/2) dd u + S' dd Omega u + S Omega_E u */
-        m_u[0] = 0.5 * S6 * dE * s->u[0] + dS6 * dE * (O6.a * s->u[0] + O6.b * s->u[1]) +
-                 S6 * (OE.a * s->u[0] + OE.b * s->u[1]);
-        m_u[1] = 0.5 * S6 * dE * s->u[1] + dS6 * dE * (O6.c * s->u[0] - O6.a * s->u[1]) +
-                 S6 * (OE.c * s->u[0] - OE.a * s->u[1]);
-        t[0] = m_uE[0] + m_u[0];
-        t[1] = m_uE[1] + m_u[1];
+        double t[2] = {0, 0};
+        if (s->want_E) {
+            /* the energy derivative: d Omega6/dE through the commutators (a2, a3 do not depend on E) */
+            const sl2 C1E = comm(b1, a2);
+            const sl2 C2E = comb(-1.0 / 60, comb(1, comm(b1, a3C), 1, comm(a1, C1E)), 0, a1);
+            const sl2 XE = comb(-20, b1, 1, C1E);
+            const sl2 OE = comb(1, b1, 1.0 / 240, comb(1, comm(XE, Y), 1, comm(X, C2E)));
+            const double dE = 2 * O6.a * OE.a + OE.b * O6.c + O6.b * OE.c;
+            double m_u[2], m_uE[2];
+            apply(O6, C6, S6, s->uE, m_uE); /* M uE */
+            /* M_E u = (S/2) dd u + S' dd Omega u + S Omega_E u */
+            m_u[0] = 0.5 * S6 * dE * s->u[0] + dS6 * dE * (O6.a * s->u[0] + O6.b * s->u[1]) +
+                     S6 * (OE.a * s->u[0] + OE.b * s->u[1]);
+            m_u[1] = 0.5 * S6 * dE * s->u[1] + dS6 * dE * (O6.c * s->u[0] - O6.a * s->u[1]) +
+                     S6 * (OE.c * s->u[0] - OE.a * s->u[1]);
+            t[0] = m_uE[0] + m_u[0];
+            t[1] = m_uE[1] + m_u[1];
+        }
         if (s->decay_left > 0) /* Gauss-Legendre weights 5/18, 8/18, 5/18 */
             s->decay_left -= fabs(hh) * (5 * sqrt(GSL_MAX(-F[0], 0)) + 8 * sqrt(GSL_MAX(-F[1], 0)) +
                                          5 * sqrt(GSL_MAX(-F[2], 0))) / 18;

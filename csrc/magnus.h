@@ -9,7 +9,7 @@
    step, the zeros of u passed so far and the potential evaluations spent. */
 typedef struct {
     double r, u[2], uE[2], h;
-    int zeros;
+    int zeros, want_E; /* want_E: carry the energy derivative (default 1) */
     size_t n_eval;
     /* tunnelling integral left to the turning point (0: none): the tolerance there is
        tol deep_safety exp(2 decay_left), at most tol_deep_max */

@@ -2305,8 +2305,8 @@ static PyMethodDef core_methods[] = {
      "-> dict of level arrays (v, energy, binding_energy, turning points, Bv, dEdv, error, rule, rot_index), vD, "
      "v_th (ends=1 only, else NaN) and count (per rot when rot is an array), [dE_dp]; ends=1 selects matched end "
      "phases, nodes overrides the quadrature rule, match_rule forces 3 (matched) or 4 (exact phase), milne=False "
-     "is the earlier end solve (Pruefer form all the way, fixed tolerance), kept for comparison, milne=2 takes "
-     "Magnus steps through the turning region instead of rk8pd (magnus.c, a measured alternative); packed=True "
+     "is the earlier end solve (Pruefer form all the way, fixed tolerance), kept for comparison, milne=2 the "
+     "end solve before magnus.c (rk8pd through the turning region), kept for comparison; packed=True "
      "returns the tuple (block, rot_index, vD, v_th, count, finite) with the nine columns as rows of one "
      "read-only (9, n) block and finite telling whether every result column is finite"},
     {"wkb_orbits", (PyCFunction)(void (*)(void))py_wkb_orbits, METH_VARARGS | METH_KEYWORDS,
