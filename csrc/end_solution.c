@@ -421,7 +421,9 @@ int wkb_end_solution(wkb_well *w, double binding, int outer, double r_turn, doub
     /* the second-order term of a reuse is ~(phi_E dE)^2 / 2 where phi_EE ~ phi_E^2, but next to a J = 0
        threshold phi_EE ~ phi_E / (2 b): there the reuse must also keep phi_E dE^2 / (4 b) that small */
     const double b_min = GSL_MIN(binding, kq->binding);
-    const int threshold_ok = w->rot != 0 || (b_min > 0 && fabs(kq->y[1] * dE) * fabs(dE) / (4 * b_min) <=
+    /* (the outer end only: the inner wall's phase is regular at the asymptote, its phi_EE ~ phi_E^2 as elsewhere;
+       at the light bench_matched well's last level this spares a second inner solve) */
+    const int threshold_ok = w->rot != 0 || !outer || (b_min > 0 && fabs(kq->y[1] * dE) * fabs(dE) / (4 * b_min) <=
                                              0.5 * REUSE_MAX_PRUEFER * REUSE_MAX_PRUEFER);
     if (m->reuse == 2 && kq->ok && kq->r_end == r_end && fabs(kq->y[1] * dE) <= REUSE_MAX_PRUEFER && threshold_ok) {
         /* the kept solution through the turning region, to first order in the energy change */
