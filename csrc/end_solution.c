@@ -3,7 +3,8 @@
  *
  * From deep in the forbidden region, where the decaying solution is known, towards the well: a modified
  * Pruefer angle phi (u = R sin phi, u' = q R cos phi, q = (F^2 + q0^4)^(1/4), so that nothing has a pole
- * at the turning point) through the turning region, integrated in ln r; then, over the allowed stretch
+ * at the turning point) through the turning region, by Magnus steps on (u, u') (magnus.c; milne=2: the angle
+ * integrated in ln r by rk8pd, the path before); then, over the allowed stretch
  * where WKB holds, the phase-amplitude (Milne) form u = A sin(theta), whose amplitude follows the
  * potential's scale instead of the wavelength; at the matching point b the phase psi of the second-order
  * WKB wave k^(-1/2) sin(psi), psi' = k + dk, is read off. Within one level's iteration (a reuse scope

@@ -2298,7 +2298,8 @@ static PyMethodDef core_methods[] = {
     {"matched_phases", (PyCFunction)(void (*)(void))py_matched_phases, METH_VARARGS | METH_KEYWORDS,
      "matched_phases(model, params, curve, mu, rot, binding, match_fraction=0.5, r_match_inner=0, "
      "r_match_outer=0, milne=True) -> dict: the matched end phases psi and the continuous quantum number at one "
-     "energy (milne=False: the exact solution in Pruefer form all the way, no phase-amplitude stretch)"},
+     "energy (milne=False: the exact solution in Pruefer form all the way, no phase-amplitude stretch; milne=2: "
+     "rk8pd instead of Magnus steps through the turning region, kept for comparison)"},
     {"wkb_levels", (PyCFunction)(void (*)(void))py_wkb_levels, METH_VARARGS | METH_KEYWORDS,
      "wkb_levels(model, params, curve, mu, rot, v=None, maslov_in=1, maslov_out=1, want_dVdp=False, order=1, "
      "ends=0, match_fraction=0.5, nodes=0, match_rule=0, max_levels=1000000, milne=True, packed=False) "
