@@ -105,8 +105,10 @@ int wkb_magnus_run(const wkb_well *w, double binding, double r_to, double tol, d
     double h = fabs(s->h) > 0 ? dir * fabs(s->h) : dir * 1e-3 * fabs(s->r);
     for (int it = 0; it < MAX_STEPS; it++) {
         const double left = r_to - s->r;
-        if (left * dir <= 1e-14 * fabs(r_to))
+        if (left * dir <= 1e-14 * fabs(r_to)) {
+            s->r = r_to; /* (a rounding remainder) */
             break;
+        }
         if (fabs(h) > STEP_MAX_REL * fabs(s->r))
             h = dir * STEP_MAX_REL * fabs(s->r);
         const int last = fabs(h) >= fabs(left);

@@ -1,8 +1,9 @@
 """The matched rule's end solutions by Magnus steps through the turning region (csrc/magnus.c, the default)
 against the project's exact radial solver at 1e-10 cm-1 and against the previous rk8pd path (milne=2).
 
-Wells: the light LJ(12,6) of tests/benchmarks/bench_matched.py (invented: De=10000 cm-1, re=1.2 A, mu=0.5 u,
-every level by the exact phase across the well) and the LJ(12,6) C6 well (De=1000 cm-1, re=3 A, mu=20 u).
+Wells: those of tests/benchmarks/bench_matched.py (invented): the light LJ(12,6) (De=10000 cm-1, re=1.2 A,
+mu=0.5 u, every level by the exact phase across the well), LJ(12,6), LJ(8,4), LJ(6,3) (C6, C4, C3 tails) and an
+MLR with C6 + C8.
 """
 import warnings
 
@@ -15,6 +16,9 @@ from wkbfit import _core
 WELLS = [
     (wkbfit.LennardJones(De=10000.0, re=1.2), 0.5),
     (wkbfit.LennardJones(De=1000.0, re=3.0), 20.0),
+    (wkbfit.LennardJones(De=2000.0, re=2.5, n=8, m=4), 10.0),
+    (wkbfit.LennardJones(De=2000.0, re=2.5, n=6, m=3), 10.0),
+    (wkbfit.MLR(De=5000.0, re=4.0, C6=1.0e7, C8=3.0e8, betas=[-0.4, 0.2]), 100.0),
 ]
 
 
