@@ -61,9 +61,9 @@ static void exp_coeffs(double d, double *C, double *S, double *dS)
         *S = 1 + d * (1.0 / 6 + d * (1.0 / 120 + d * (1.0 / 5040 + d / 362880)));
         *dS = 1.0 / 6 + d * (1.0 / 60 + d * (1.0 / 2520 + d / 181440));
     } else if (d > 0) {
-        const double s = sqrt(d), e = exp(-2 * s);
-        *C = 0.5 * (1 + e);
-        *S = -0.5 * expm1(-2 * s) / s;
+        const double s = sqrt(d), em1 = expm1(-2 * s); /* exp(-2 s) - 1 */
+        *C = 1 + 0.5 * em1;
+        *S = -0.5 * em1 / s;
         *dS = (*C - *S) / (2 * d);
     } else {
         const double s = sqrt(-d);
@@ -140,15 +140,22 @@ int wkb_magnus_run(const wkb_well *w, double binding, double r_to, double tol, d
         const sl2 base = comb(1, a1, 1.0 / 12, a3);
         const sl2 O6 = comb(1, base, 1.0 / 240, comm(X, Y));
         const sl2 O4 = comb(1, base, -1.0 / 12, C1);
-        double C6, S6, dS6, C4, S4, dS4, y6[2], y4[2];
-        const double d6 = O6.a * O6.a + O6.b * O6.c, d4 = O4.a * O4.a + O4.b * O4.c;
+        double C6, S6, dS6, y6[2], y4[2];
+        const double d6 = O6.a * O6.a + O6.b * O6.c;
         exp_coeffs(d6, &C6, &S6, &dS6);
-        exp_coeffs(d4, &C4, &S4, &dS4);
         apply(O6, C6, S6, s->u, y6);
-        apply(O4, C4, S4, s->u, y4);
+        /* exp(O4) u to first order in D = O6 - O4 (~ the error estimated, so its square is far below it):
+           exp(O6) u - [(S/2) dd u + S' dd O6 u + S D u], dd = d'(O6) D (the same derivative as for E) */
+        const sl2 D = comb(1, O6, -1, O4);
+        const double dd4 = 2 * O6.a * D.a + D.b * O6.c + O6.b * D.c;
+        y4[0] = y6[0] - (0.5 * S6 * dd4 * s->u[0] + dS6 * dd4 * (O6.a * s->u[0] + O6.b * s->u[1]) +
+                         S6 * (D.a * s->u[0] + D.b * s->u[1]));
+        y4[1] = y6[1] - (0.5 * S6 * dd4 * s->u[1] + dS6 * dd4 * (O6.c * s->u[0] - O6.a * s->u[1]) +
+                         S6 * (D.c * s->u[0] - D.a * s->u[1]));
         const double q = scale_q(F[1], q04);
         const double w6 = y6[1] / q, w4 = y4[1] / q;
-        const double err = fabs(y6[0] * w4 - w6 * y4[0]) / (hypot(y6[0], w6) * hypot(y4[0], w4));
+        /* (the states are of order 1: no hypot needed) */
+        const double err = fabs(y6[0] * w4 - w6 * y4[0]) / sqrt((y6[0] * y6[0] + w6 * w6) * (y4[0] * y4[0] + w4 * w4));
         if (!isfinite(err))
             return GSL_EBADFUNC;
         /* in the forbidden region an error made where the tunnelling integral left to the turning point is
@@ -156,7 +163,9 @@ int wkb_magnus_run(const wkb_well *w, double binding, double r_to, double tol, d
         double tol_step = tol;
         if (s->decay_left > 0)
             tol_step = GSL_MAX(tol, GSL_MIN(s->tol_deep_max, tol * s->deep_safety * exp(2 * s->decay_left)));
-        const double grow = err > 0 ? 0.9 * pow(tol_step / err, 0.2) : STEP_GROWTH_MAX;
+        /* (tol/err)^(1/4) instead of the 1/5 of an order-4 estimate: two square roots instead of pow, which took
+           9 % of the light well's time; the error test itself is unchanged) */
+        const double grow = err > 0 ? 0.9 * sqrt(sqrt(tol_step / err)) : STEP_GROWTH_MAX;
         if (err > tol_step) {
             h = hh * GSL_MAX(STEP_SHRINK_MIN, grow);
             if (fabs(h) < 1e-13 * fabs(s->r))
@@ -187,7 +196,7 @@ int wkb_magnus_run(const wkb_well *w, double binding, double r_to, double tol, d
         if ((s->u[0] > 0 && y6[0] <= 0) || (s->u[0] < 0 && y6[0] >= 0))
             s->zeros++;
         /* renormalize (u and its derivative by the same factor: the angle and its derivative keep) */
-        const double norm = 1 / hypot(y6[0], w6);
+        const double norm = 1 / sqrt(y6[0] * y6[0] + w6 * w6);
         s->u[0] = y6[0] * norm;
         s->u[1] = y6[1] * norm;
         s->uE[0] = t[0] * norm;
