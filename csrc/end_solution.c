@@ -3,7 +3,8 @@
  *
  * From deep in the forbidden region, where the decaying solution is known, towards the well: a modified
  * Pruefer angle phi (u = R sin phi, u' = q R cos phi, q = (F^2 + q0^4)^(1/4), so that nothing has a pole
- * at the turning point) through the turning region, integrated in ln r; then, over the allowed stretch
+ * at the turning point) through the turning region, by Magnus steps on (u, u') (magnus.c; milne=2: the angle
+ * integrated in ln r by rk8pd, the path before); then, over the allowed stretch
  * where WKB holds, the phase-amplitude (Milne) form u = A sin(theta), whose amplitude follows the
  * potential's scale instead of the wavelength; at the matching point b the phase psi of the second-order
  * WKB wave k^(-1/2) sin(psi), psi' = k + dk, is read off. Within one level's iteration (a reuse scope
@@ -24,6 +25,7 @@
 
 #include "wkb.h"
 #include "well.h"
+#include "magnus.h"
 
 #define WALK_FIRST_STEP 0.01 /* first step of the walk into the forbidden region, in ln r */
 #define WALK_MAX_STEP 0.25
@@ -420,12 +422,43 @@ int wkb_end_solution(wkb_well *w, double binding, int outer, double r_turn, doub
     /* the second-order term of a reuse is ~(phi_E dE)^2 / 2 where phi_EE ~ phi_E^2, but next to a J = 0
        threshold phi_EE ~ phi_E / (2 b): there the reuse must also keep phi_E dE^2 / (4 b) that small */
     const double b_min = GSL_MIN(binding, kq->binding);
-    const int threshold_ok = w->rot != 0 || (b_min > 0 && fabs(kq->y[1] * dE) * fabs(dE) / (4 * b_min) <=
+    /* (the outer end only: the inner wall's phase is regular at the asymptote, its phi_EE ~ phi_E^2 as elsewhere;
+       at the light bench_matched well's last level this spares a second inner solve) */
+    const int threshold_ok = w->rot != 0 || !outer || (b_min > 0 && fabs(kq->y[1] * dE) * fabs(dE) / (4 * b_min) <=
                                              0.5 * REUSE_MAX_PRUEFER * REUSE_MAX_PRUEFER);
     if (m->reuse == 2 && kq->ok && kq->r_end == r_end && fabs(kq->y[1] * dE) <= REUSE_MAX_PRUEFER && threshold_ok) {
         /* the kept solution through the turning region, to first order in the energy change */
         m->ctx.q04 = kq->q04;
         y[0] = kq->y[0] + kq->y[1] * dE;
+    } else if (w->set.match_milne == 1) {
+        /* Magnus steps (magnus.c) from the start to r_end; the deep part at the looser tolerance the
+           damping there allows, continuously in the tunnelling integral left (the walk's acc) */
+        const double F0 = kin / eps;
+        const double q0 = isfinite(F0) ? sqrt(sqrt(F0 * F0 + m->ctx.q04)) : 1.0;
+        wkb_magnus_state ms;
+        wkb_magnus_start(&ms, r, y[0], q0, sigma, -sigma * 1e-3 * r);
+        ms.decay_left = regular ? 0 : acc;
+        ms.deep_safety = DEEP_SAFETY;
+        ms.tol_deep_max = DEEP_TOL_MAX;
+        ms.want_E = m->reuse == 2;
+        int gs = wkb_magnus_run(w, binding, r_end, m->tol, m->ctx.q04, &ms);
+        double phi = NAN, phi_E = NAN;
+        if (gs == GSL_SUCCESS)
+            gs = wkb_magnus_angle(w, binding, m->ctx.q04, sigma, &ms, &phi, &phi_E);
+        m->ctx.n_eval += ms.n_eval;
+        if (gs != GSL_SUCCESS)
+            return wkb_fail(err, WKB_ENUMERIC,
+                            "the exact %s-end solution failed at binding energy %.6g cm-1 (Magnus steps, GSL "
+                            "status %d)", outer ? "outer" : "inner", binding, gs);
+        y[0] = phi;
+        if (m->reuse == 2) {
+            kq->ok = isfinite(phi_E);
+            kq->binding = binding;
+            kq->r_end = r_end;
+            kq->q04 = m->ctx.q04;
+            kq->y[0] = phi;
+            kq->y[1] = phi_E;
+        }
     } else {
         double t = -sigma * log(r);
         const double t_end = -sigma * log(r_end);

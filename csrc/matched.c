@@ -576,7 +576,9 @@ int wkb_matched_solve(wkb_well *w, size_t v, int across, int second_start, wkb_l
                 xn = xi;
         }
         int secant = 1;
-        if (!(xn > lo && xn < hi)) {
+        /* a step below the resolution of x (G ~ 1e-16 at the root) lands on the bracket end x itself: that
+           is convergence, not a reason to bisect (seen on an MLR at J = 20: 10 more full solves) */
+        if (!(xn > lo && xn < hi) && xn != x) {
             xn = 0.5 * (lo + hi);
             secant = 0;
         }

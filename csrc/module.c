@@ -447,7 +447,7 @@ static PyObject *py_matched_phases(PyObject *self, PyObject *args, PyObject *kwd
     wkb_error err = {0};
     wkb_end_phase ph[2];
     int status;
-    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOddd|dddp", kwlist, &model_name, &params_obj, &curve_obj, &mu,
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOddd|dddi", kwlist, &model_name, &params_obj, &curve_obj, &mu,
                                      &rot, &binding, &fraction, &rm_in, &rm_out, &milne))
         return NULL;
     if (parse_potential(model_name, params_obj, curve_obj, &pot) < 0)
@@ -539,7 +539,7 @@ static PyObject *py_wkb_levels(PyObject *self, PyObject *args, PyObject *kwds)
     npy_intp n_rot = 0;
     int status = WKB_SUCCESS;
 
-    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOdO|Oiipiidiinpp", kwlist, &model_name, &params_obj, &curve_obj,
+    if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOdO|Oiipiidiinip", kwlist, &model_name, &params_obj, &curve_obj,
                                      &mu, &rot_obj, &v_obj, &maslov_in, &maslov_out, &want_dVdp, &order, &ends,
                                      &match_fraction, &nodes, &match_rule, &max_levels, &milne, &packed))
         return NULL;
@@ -2306,14 +2306,16 @@ static PyMethodDef core_methods[] = {
     {"matched_phases", (PyCFunction)(void (*)(void))py_matched_phases, METH_VARARGS | METH_KEYWORDS,
      "matched_phases(model, params, curve, mu, rot, binding, match_fraction=0.5, r_match_inner=0, "
      "r_match_outer=0, milne=True) -> dict: the matched end phases psi and the continuous quantum number at one "
-     "energy (milne=False: the exact solution in Pruefer form all the way, no phase-amplitude stretch)"},
+     "energy (milne=False: the exact solution in Pruefer form all the way, no phase-amplitude stretch; milne=2: "
+     "rk8pd instead of Magnus steps through the turning region, kept for comparison)"},
     {"wkb_levels", (PyCFunction)(void (*)(void))py_wkb_levels, METH_VARARGS | METH_KEYWORDS,
      "wkb_levels(model, params, curve, mu, rot, v=None, maslov_in=1, maslov_out=1, want_dVdp=False, order=1, "
      "ends=0, match_fraction=0.5, nodes=0, match_rule=0, max_levels=1000000, milne=True, packed=False) "
      "-> dict of level arrays (v, energy, binding_energy, turning points, Bv, dEdv, error, rule, rot_index), vD, "
      "v_th (ends=1 only, else NaN) and count (per rot when rot is an array), [dE_dp]; ends=1 selects matched end "
      "phases, nodes overrides the quadrature rule, match_rule forces 3 (matched) or 4 (exact phase), milne=False "
-     "is the earlier end solve (Pruefer form all the way, fixed tolerance), kept for comparison; packed=True "
+     "is the earlier end solve (Pruefer form all the way, fixed tolerance), kept for comparison, milne=2 the "
+     "end solve before magnus.c (rk8pd through the turning region), kept for comparison; packed=True "
      "returns the tuple (block, rot_index, vD, v_th, count, finite) with the nine columns as rows of one "
      "read-only (9, n) block and finite telling whether every result column is finite"},
     {"wkb_orbits", (PyCFunction)(void (*)(void))py_wkb_orbits, METH_VARARGS | METH_KEYWORDS,

@@ -17,15 +17,19 @@ the largest error of the interior levels and of the last two levels.
 Then the C core alone (no Python layer, whose fixed cost per call flatters the slower rules), from the
 same run: first order, second order with fixed phases, the matched default, the matched rule with the
 earlier end solve (milne=False: the exact end solution in Pruefer form all the way at the fixed
-tolerance 1e-9 rad per step; the "before" of issue 7's cost work) and the exact solver's core at its
-default tolerance; "x first" is the ratio to first order, "speed-up" earlier / default matched.
+tolerance 1e-9 rad per step; the "before" of issue 7's cost work), the matched rule with the end solution
+integrated by rk8pd through the turning region (milne=2: the path before the Magnus steps of csrc/magnus.c)
+and the exact solver's core at its default tolerance; "x first" is the ratio to first order, "speed-up"
+earlier (or rk8pd) / default matched. The core rows are CPU time (time.process_time).
 
 Test wells (invented): LJ(12,6), LJ(8,4), LJ(6,3) (C6, C4, C3 tails), an MLR with C6 + C8, a light LJ.
 method_error is not timed (it is computed on first use only).
-Run: python3 tests/benchmarks/bench_matched.py  (the machine may be shared: ratios are what counts)
+Run: python3 tests/benchmarks/bench_matched.py [words]  (only the wells whose name contains one of the words,
+e.g. "light"; the machine may be shared: ratios are what counts)
 """
 import os
 import sys
+import time
 import warnings
 
 import numpy as np
@@ -55,6 +59,17 @@ RULES = [
 ROUNDS = 5
 
 
+def cpu_time_call(fn, min_time=0.1):
+    """Mean CPU time (time.process_time) of a call, repeated for at least min_time CPU seconds."""
+    n, t0 = 0, time.process_time()
+    while True:
+        fn()
+        n += 1
+        dt = time.process_time() - t0
+        if dt >= min_time:
+            return dt / n
+
+
 def errors(table, ref):
     n = min(len(table), len(ref))
     e = np.abs(table.energy[:n] - ref.energy[:n])
@@ -65,7 +80,10 @@ def main():
     warnings.simplefilter("ignore")
     print("%-24s %3s %-18s %5s %10s %8s %8s %10s %10s" % ("well", "J", "rule", "n", "us/level", "x first",
                                                          "x exact", "interior", "last two"))
+    only = sys.argv[1:]  # optional: wells whose name contains one of these words, e.g. "light"
     for name, pot, mu in WELLS:
+        if only and not any(word in name for word in only):
+            continue
         for J in (0, 10):
             ref = wkbfit.exact.exact_levels(pot, mu, Js=[J], tolerance=1e-10, min_binding=1e-13)
             ok = []
@@ -91,6 +109,7 @@ def main():
             rot = float(J * (J + 1))
             core_rules = [("first order", dict(order=1, ends=0)), ("second order", dict(order=2, ends=0)),
                           ("matched (default)", dict(order=2, ends=1)),
+                          ("matched, rk8pd", dict(order=2, ends=1, milne=2)),
                           ("matched, earlier", dict(order=2, ends=1, milne=False))]
             calls, counts = {}, {}
             for label, kw in core_rules:
@@ -106,12 +125,13 @@ def main():
             ct = {label: [] for label in calls}
             for _ in range(ROUNDS):
                 for label, call in calls.items():
-                    ct[label].append(time_call(call, min_time=0.1) / counts[label])
+                    ct[label].append(cpu_time_call(call, min_time=0.1) / counts[label])
             core = {label: float(np.median(v)) for label, v in ct.items()}
             for label in calls:
                 extra = ""
-                if label == "matched, earlier":
-                    extra = "   speed-up %.2f (earlier / default)" % (core[label] / core["matched (default)"])
+                if label in ("matched, earlier", "matched, rk8pd"):
+                    extra = "   speed-up %.2f (%s / default)" % (core[label] / core["matched (default)"],
+                                                               label.split(", ")[1])
                 print("%-24s %3d %-18s %5d %10.1f %8.1f %8.2f   core%s" % (
                     name, J, label, counts[label], 1e6 * core[label], core[label] / core["first order"],
                     core[label] / core["exact"], extra))
