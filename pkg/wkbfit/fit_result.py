@@ -30,6 +30,29 @@ _SENSITIVITY_ZERO = 1e-9
 
 
 
+def _well_conditioned(Jw, keep):
+    """(the matrix whose singular values are those of the column-normalised Jw[:, keep], inv(R^T R), the
+    column norms) when every column is kept and the normal matrix is certainly far from singular (its
+    smallest singular value at least 100 * _RCOND_SINGULAR of the largest, from the trace bound); None
+    otherwise (then the SVD decides). The same arrays, by the same operations, as the SVD path computes."""
+    nv = Jw.shape[1]
+    if len(keep) != nv or nv == 0 or len(Jw) < nv:
+        return None
+    A = Jw[:, keep]  # (a column-major copy, as the SVD path takes it: the column norms round alike)
+    norms = np.linalg.norm(A, axis=0)
+    An = A / norms
+    R = _tall.qr_r(An)[0]
+    try:
+        inv = np.linalg.inv(R.T @ R)
+    except np.linalg.LinAlgError:
+        return None
+    trace = float(np.trace(inv))
+    # s_min^2 >= 1/trace and s_max^2 <= sum s_i^2 = nv (unit columns): s_min/s_max >= 1/sqrt(trace * nv)
+    if not (math.isfinite(trace) and trace > 0 and trace * nv <= (0.01 / _RCOND_SINGULAR) ** 2):
+        return None
+    return (R if An.shape[0] > 2 * nv else An), inv, norms
+
+
 class FitWarning(UserWarning):
     """A fit ended without convergence, or some parameter is not determined by the data."""
 
@@ -162,8 +185,9 @@ class FitResult:
         all_var = pot_var + extra_names
         var_idx = [names.index(n) for n in pot_var]
         rows = self.fitted_rows
-        Jall = np.hstack([self.jacobian[:, var_idx], self.jacobian_extra])
-        Jw = Jall[rows] / self._sigma[rows][:, None]
+        Jall = np.hstack([self.jacobian[:, var_idx], self.jacobian_extra]) if self.jacobian_extra.shape[1] \
+            else np.ascontiguousarray(self.jacobian[:, var_idx])  # (C order, as hstack gives: norms round alike)
+        Jw = Jall[rows] / self._sigma[rows][:, None] if not rows.all() else Jall / self._sigma[:, None]
         self.var_names = all_var
         nv = len(all_var)
         reasons = {}
@@ -184,9 +208,15 @@ class FitResult:
             if name not in reasons and (name in insensitive or not sens[j] > _SENSITIVITY_ZERO * top):
                 reasons[name] = ("not determined: the calculated levels do not depend on it (for instance, J=0 "
                                  "levels of a Morse potential do not depend on re); it stays at its initial value")
-        # 3. combinations the data do not separate (numerically singular normal matrix)
+        # 3. combinations the data do not separate (numerically singular normal matrix). The normal matrix of
+        # the determined parameters is inverted anyway for the covariance; its trace bounds the singular values
+        # (s_min^2 >= 1 / trace(inv(R^T R)), sum s_i^2 = the number of unit columns), so a well-conditioned fit
+        # skips the SVD and computes the condition number only when it is read (`condition_number`).
         cond = None
-        for _ in range(nv):
+        quick = _well_conditioned(Jw, [j for j, n in enumerate(self.var_names) if n not in reasons])
+        if quick is not None:
+            self._condition_source = quick[0]
+        for _ in range(nv if quick is None else 0):
             keep = [j for j, n in enumerate(self.var_names) if n not in reasons]
             if not keep:
                 break
@@ -206,11 +236,15 @@ class FitResult:
                     % (", ".join(involved), cond))
             for name in involved:
                 reasons[name] = text
-        self.condition_number = cond
+        if quick is None:
+            self.condition_number = cond
 
         det = [j for j, n in enumerate(self.var_names) if n not in reasons]
-        cov_u = np.full((nv, nv), np.nan)
-        if det:
+        if quick is not None:  # every parameter determined: the inverse is the one computed above
+            cov_u = quick[1] / np.outer(quick[2], quick[2])
+        else:
+            cov_u = np.full((nv, nv), np.nan)
+        if det and quick is None:
             A = Jw[:, det]
             norms = np.linalg.norm(A, axis=0)
             An = A / norms
@@ -283,6 +317,28 @@ class FitResult:
             _warn(self.dof_note, FitWarning)
 
     # -- simple views -------------------------------------------------------------------
+    @property
+    def condition_number(self):
+        """The scaled condition number s_max/s_min of the weighted Jacobian of the determined parameters
+        (columns normalised; None when nothing is determined); computed on first reading where the fit
+        did not need its SVD."""
+        try:
+            return self.__dict__["_condition_number"]
+        except KeyError:
+            pass
+        source = self.__dict__.pop("_condition_source", None)
+        cond = None
+        if source is not None:
+            s = np.linalg.svd(source, full_matrices=False)[1]  # (the same LAPACK driver as the fit's SVD)
+            cond = float(s[0] / s[-1]) if s[-1] > 0 else math.inf
+        self.__dict__["_condition_number"] = cond
+        return cond
+
+    @condition_number.setter
+    def condition_number(self, value):
+        self.__dict__.pop("_condition_source", None)
+        self.__dict__["_condition_number"] = value
+
     @property
     def standard_error(self):
         """The earlier name of `sqrt_reduced_chi_square` (kept for code written against it)."""
