@@ -46,7 +46,7 @@ def _well_conditioned(Jw, keep):
         inv = np.linalg.inv(R.T @ R)
     except np.linalg.LinAlgError:
         return None
-    trace = float(np.trace(inv))
+    trace = float(inv.diagonal().sum())
     # s_min^2 >= 1/trace and s_max^2 <= sum s_i^2 = nv (unit columns): s_min/s_max >= 1/sqrt(trace * nv)
     if not (math.isfinite(trace) and trace > 0 and trace * nv <= (0.01 / _RCOND_SINGULAR) ** 2):
         return None
@@ -153,8 +153,7 @@ class FitResult:
         self.calculated = _frozen(np.asarray(calculated, dtype=float))
         self.jacobian = _frozen(np.asarray(jacobian, dtype=float))
         self.fitted_rows = _frozen(np.asarray(fitted_rows, dtype=bool))
-        self.residuals = _frozen(np.where(self.fitted_rows, self._observed_values - self.calculated,
-                                          self._observed_values - self.calculated))
+        self.residuals = _frozen(self._observed_values - self.calculated)
         self.normalized_residuals = _frozen(self.residuals / self._sigma)
         self.var_names = [n for n, f in zip(names, vary_flags) if f]
         self.chi_square = float(chi_square)
@@ -203,7 +202,7 @@ class FitResult:
         # 2. parameters the levels do not depend on
         scale = np.array([max(abs(values[n]), abs(initial[n]), 1e-300) for n in self.var_names])
         sens = np.linalg.norm(Jw, axis=0) * scale
-        top = float(np.max(sens)) if nv else 0.0
+        top = float(sens.max()) if nv else 0.0
         for j, name in enumerate(self.var_names):
             if name not in reasons and (name in insensitive or not sens[j] > _SENSITIVITY_ZERO * top):
                 reasons[name] = ("not determined: the calculated levels do not depend on it (for instance, J=0 "
@@ -256,7 +255,7 @@ class FitResult:
         self.covariance_scale = factor
         self.covariance_unscaled = _frozen(cov_u)
         self.covariance = _frozen(cov_u * factor)
-        sd = np.sqrt(np.diag(self.covariance))
+        sd = np.sqrt(self.covariance.diagonal())
         with np.errstate(invalid="ignore", divide="ignore"):
             self.correlation = _frozen(self.covariance / np.outer(sd, sd))
         self.undetermined = [n for n in self.var_names if n in reasons]
@@ -290,9 +289,9 @@ class FitResult:
         npv = len(pot_var)
         self.covariance_full = self.covariance
         self.covariance_full_names = list(all_var)
-        self.covariance = _frozen(np.array(self.covariance[:npv, :npv]))
-        self.covariance_unscaled = _frozen(np.array(self.covariance_unscaled[:npv, :npv]))
-        self.correlation = _frozen(np.array(self.correlation[:npv, :npv]))
+        self.covariance = _frozen(self.covariance[:npv, :npv])  # (_frozen copies)
+        self.covariance_unscaled = _frozen(self.covariance_unscaled[:npv, :npv])
+        self.correlation = _frozen(self.correlation[:npv, :npv])
         self.var_names = pot_var
         self.undetermined_free = [n for n in self.undetermined if n in extra_names]
         self.undetermined = [n for n in self.undetermined if n not in extra_names]
