@@ -76,7 +76,7 @@ class Design:
     def levels(self, keys):
         """level() of many keys: their indices, the new ones registered in the order given."""
         index, known = self.level_index, self.level_keys
-        new = [k for k in dict.fromkeys(keys) if k not in index]
+        new = list(dict.fromkeys(keys)) if not index else [k for k in dict.fromkeys(keys) if k not in index]
         index.update(zip(new, range(len(known), len(known) + len(new))))
         known.extend(new)
         return list(map(index.__getitem__, keys))

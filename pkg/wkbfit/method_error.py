@@ -199,8 +199,11 @@ def attach(result, rows, out, args=None):
     if args is None:
         args = out["_args"]
     err_rows, note = row_method_errors(result.method, args, out, screen=True)
-    err = np.full(len(obs), math.nan)
-    err[rows] = err_rows
+    if len(rows) == len(obs):  # every row fitted
+        err = np.asarray(err_rows, dtype=float)
+    else:
+        err = np.full(len(obs), math.nan)
+        err[rows] = err_rows
     # (names only of the rows the warning lists: 20 000 strings cost ~10 ms a fit)
     _set_check(result, err, obs.uncertainty, note, lambda i: level_name(obs, i))
 
