@@ -30,17 +30,18 @@ _SENSITIVITY_ZERO = 1e-9
 
 
 
-def _well_conditioned(Jw, keep):
+def _well_conditioned(Jw, keep, norms=None):
     """(the matrix whose singular values are those of the column-normalised Jw[:, keep], inv(R^T R), the
     column norms) when every column is kept and the normal matrix is certainly far from singular (its
     smallest singular value at least 100 * _RCOND_SINGULAR of the largest, from the trace bound); None
-    otherwise (then the SVD decides). The same arrays, by the same operations, as the SVD path computes."""
+    otherwise (then the SVD decides). The same arrays, by the same operations, as the SVD path computes.
+    Jw column-major (then its column norms, `norms` if given, are those of its column selections)."""
     nv = Jw.shape[1]
     if len(keep) != nv or nv == 0 or len(Jw) < nv:
         return None
-    A = Jw[:, keep]  # (a column-major copy, as the SVD path takes it: the column norms round alike)
-    norms = np.linalg.norm(A, axis=0)
-    An = A / norms
+    if norms is None:
+        norms = np.linalg.norm(Jw[:, keep], axis=0)
+    An = Jw / norms
     R = _tall.qr_r(An)[0]
     try:
         inv = np.linalg.inv(R.T @ R)
@@ -184,9 +185,12 @@ class FitResult:
         all_var = pot_var + extra_names
         var_idx = [names.index(n) for n in pot_var]
         rows = self.fitted_rows
-        Jall = np.hstack([self.jacobian[:, var_idx], self.jacobian_extra]) if self.jacobian_extra.shape[1] \
-            else np.ascontiguousarray(self.jacobian[:, var_idx])  # (C order, as hstack gives: norms round alike)
-        Jw = Jall[rows] / self._sigma[rows][:, None] if not rows.all() else Jall / self._sigma[:, None]
+        # (column-major, as the column selections below copy it: the column norms round alike everywhere)
+        Jall = np.asfortranarray(np.hstack([self.jacobian[:, var_idx], self.jacobian_extra])) \
+            if self.jacobian_extra.shape[1] else self.jacobian[:, var_idx]
+        Jw = np.asfortranarray(Jall[rows] / self._sigma[rows][:, None]) if not rows.all() \
+            else np.asfortranarray(Jall / self._sigma[:, None])
+        column_norms = np.linalg.norm(Jw, axis=0)
         self.var_names = all_var
         nv = len(all_var)
         reasons = {}
@@ -201,7 +205,7 @@ class FitResult:
                                      "can be given (free the bound or fix the parameter)" % (side, b))
         # 2. parameters the levels do not depend on
         scale = np.array([max(abs(values[n]), abs(initial[n]), 1e-300) for n in self.var_names])
-        sens = np.linalg.norm(Jw, axis=0) * scale
+        sens = column_norms * scale
         top = float(sens.max()) if nv else 0.0
         for j, name in enumerate(self.var_names):
             if name not in reasons and (name in insensitive or not sens[j] > _SENSITIVITY_ZERO * top):
@@ -212,7 +216,7 @@ class FitResult:
         # (s_min^2 >= 1 / trace(inv(R^T R)), sum s_i^2 = the number of unit columns), so a well-conditioned fit
         # skips the SVD and computes the condition number only when it is read (`condition_number`).
         cond = None
-        quick = _well_conditioned(Jw, [j for j, n in enumerate(self.var_names) if n not in reasons])
+        quick = _well_conditioned(Jw, [j for j, n in enumerate(self.var_names) if n not in reasons], column_norms)
         if quick is not None:
             self._condition_source = quick[0]
         for _ in range(nv if quick is None else 0):
@@ -289,9 +293,10 @@ class FitResult:
         npv = len(pot_var)
         self.covariance_full = self.covariance
         self.covariance_full_names = list(all_var)
-        self.covariance = _frozen(self.covariance[:npv, :npv])  # (_frozen copies)
-        self.covariance_unscaled = _frozen(self.covariance_unscaled[:npv, :npv])
-        self.correlation = _frozen(self.correlation[:npv, :npv])
+        if npv < nv:  # (without extras the blocks are the whole, read-only matrices)
+            self.covariance = _frozen(self.covariance[:npv, :npv])  # (_frozen copies)
+            self.covariance_unscaled = _frozen(self.covariance_unscaled[:npv, :npv])
+            self.correlation = _frozen(self.correlation[:npv, :npv])
         self.var_names = pot_var
         self.undetermined_free = [n for n in self.undetermined if n in extra_names]
         self.undetermined = [n for n in self.undetermined if n not in extra_names]
