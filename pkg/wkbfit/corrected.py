@@ -25,6 +25,7 @@ import numpy as np
 
 from . import _core, _tall
 from .rotational_corrections import DEGREES, FIRST_REFRESH_DEGREES, RowGroups, exact_rows, interpolable
+from .method_error import _unique
 
 __all__ = ["run_corrected", "run_corrected_rows", "RowEvaluator", "run_with_unbound_rows", "LINEAR_STEP", "REMAINDER_SD",
            "ROWS_STEP", "MAX_REFRESHES"]
@@ -102,9 +103,12 @@ def exact_calc(model, params, curve, v, rot, mu, energy_zero, tolerance):
     error = np.empty(len(v))
     ref = {}
     keys = np.stack([np.asarray(mu, dtype=float), J.astype(float)], axis=1)
-    for m, j in np.unique(keys, axis=0):
+    # the distinct (mu, J) rows in np.unique(keys, axis=0)'s order (lexicographic), by a set when short
+    groups = np.unique(keys, axis=0) if len(keys) > 500 else sorted(set(zip(keys[:, 0].tolist(),
+                                                                              keys[:, 1].tolist())))
+    for m, j in groups:
         sel = np.nonzero((keys[:, 0] == m) & (keys[:, 1] == j))[0]
-        want = np.unique(np.asarray(v)[sel])
+        want = _unique(np.asarray(v)[sel])
         res = _core.exact_levels(model, params, curve, float(m), np.array([int(j)], dtype=np.intc),
                                  want.astype(np.intc), energy_tol=tolerance)
         col = res["binding_energy"] if energy_zero == 1 else res["energy"]
@@ -114,7 +118,7 @@ def exact_calc(model, params, curve, v, rot, mu, energy_zero, tolerance):
         if energy_zero == 2 and int(j) == 0 and res["v"][0] == 0:
             ref[float(m)] = (float(res["energy"][0]), float(res["error"][0]))
     if energy_zero == 2:
-        for m in np.unique(keys[:, 0]):
+        for m in _unique(keys[:, 0]):
             if m not in ref:
                 res = _core.exact_levels(model, params, curve, float(m), np.array([0], dtype=np.intc),
                                          np.array([0], dtype=np.intc), energy_tol=tolerance)
