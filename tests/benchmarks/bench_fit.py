@@ -27,12 +27,16 @@ to the baseline of the whole fit() (what a user runs), of the fit work alone (fi
 of the C run alone; and the check on data over many J values.
 
 Targets (issue 4): <= 10 ms per fit on one core; >= 100x faster than the SciPy baseline, reaching
-the same minimum; issue 10: >= 1000x.  Measured (2 cores shared by other jobs, load 1.5-4.4, seven runs):
-whole fit() 241-540x (Morse), 305-358x (LJ 2 par.), 316-664x (LJ 4 par.); with the all-exact check as
-before 105x, 147x, 278x (one run); fit work alone 314-726x, 403-489x, 410-1076x; the C run alone
-654-1451x, 746-1059x, 541-1208x; the screened check 2.6-10.8x cheaper than the all-exact one here, 6-26x
-on data over many J values. 1000x is out of reach for the whole fit: the C Levenberg-Marquardt run
-alone (3-5 steps of 50 first-order levels with their Jacobian) is at about 1000x.
+the same minimum; issue 10: >= 1000x.  Times are CPU time (time.process_time; wkbfit best of three rounds,
+the baseline best of two). Measured 2026-12-04 (2 cores shared by other jobs, load 3-4), two runs each,
+interleaved with a copy of the tree before the Python part was cut: whole fit() 418-433x (Morse),
+429-431x (LJ 2 par.), 537-559x (LJ 4 par.), before 350-371x, 354-357x, 492-499x; fit() 0.96-1.01, 1.01-1.05,
+2.27-2.37 ms (before 1.14-1.23, 1.23-1.27, 2.51 ms); the Python part alone (core calls answered from a
+cache) 0.26-0.31, 0.31, 0.29-0.32 ms (before 0.45-0.47, 0.48-0.54, 0.51-0.59 ms); the C run alone
+1044-1107x, 1242-1317x, 1054-1141x; the check's matched-rule levels 0.26-0.28, 0.27-0.29, 0.64-0.66 ms.
+1000x is out of reach for the whole fit: the C Levenberg-Marquardt run alone (3-4 steps of 50 first-order
+levels with their Jacobian, ~5.5 evaluations' worth of time) is at about 1000-1300x, and the check's one
+core call of matched-rule levels (second-order WKB: five orbits per level for dK/dE) costs 0.6-0.7 of it.
 Run: python3 tests/benchmarks/bench_fit.py
 """
 import math
