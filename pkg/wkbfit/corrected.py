@@ -49,8 +49,9 @@ ROWS_STEP = 0.1
 _WKB, _EXACT = 0, 1
 
 
-def _gauss_newton(calc, jac, energy, sigma, var):
-    """Exact Gauss-Newton step (varied parameters var) and the parameter standard deviations."""
+def _gauss_newton(calc, jac, energy, sigma, var, want_sd=True):
+    """Exact Gauss-Newton step (varied parameters var) and the parameter standard deviations (None with
+    want_sd=False: the step alone, the same numbers without the inverse normal matrix)."""
     A = jac[:, var] / sigma[:, None]
     with np.errstate(over="ignore"):  # an absurd datum makes chi-square inf: refused by the caller
         r = (calc - energy) / sigma
@@ -65,6 +66,9 @@ def _gauss_newton(calc, jac, energy, sigma, var):
             inv = np.linalg.inv(An.T @ An) / np.outer(norms, norms)
         except np.linalg.LinAlgError:
             inv = np.linalg.pinv(An.T @ An) / np.outer(norms, norms)
+    elif not want_sd:
+        # (the step of lstsq_and_inverse below: the same QR and solve, without the inverse)
+        return _tall.lstsq(An, -r) / norms, None, chi2
     else:
         # the n-row work off numpy's threaded BLAS (_tall.py): QR in C, then p x p matrices
         step, inv = _tall.lstsq_and_inverse(An, -r)
@@ -238,7 +242,7 @@ def run_corrected(args, *, tolerance=LINEAR_STEP, max_refreshes=MAX_REFRESHES, i
                     wkb_f = None  # the step leaves the model's domain: correct and run again
                 if wkb_f is not None:
                     remainder = wkb_f - (out["calc"] - offset) - _tall.matvec(out["jacobian"], full)
-                    shift, _, _ = _gauss_newton(energy + remainder, jac_ex, energy, sigma, var)
+                    shift, _, _ = _gauss_newton(energy + remainder, jac_ex, energy, sigma, var, want_sd=False)
                     history[-1]["remainder_sd"] = float(np.max(np.abs(shift) / sd)) if var else 0.0
                     if history[-1]["remainder_sd"] < REMAINDER_SD:
                         done = True
