@@ -25,6 +25,7 @@ import numpy as np
 
 from . import _core, _tall
 from .rotational_corrections import DEGREES, FIRST_REFRESH_DEGREES, RowGroups, exact_rows, interpolable
+from .method_error import _unique
 
 __all__ = ["run_corrected", "run_corrected_rows", "RowEvaluator", "run_with_unbound_rows", "LINEAR_STEP", "REMAINDER_SD",
            "ROWS_STEP", "MAX_REFRESHES"]
@@ -48,8 +49,9 @@ ROWS_STEP = 0.1
 _WKB, _EXACT = 0, 1
 
 
-def _gauss_newton(calc, jac, energy, sigma, var):
-    """Exact Gauss-Newton step (varied parameters var) and the parameter standard deviations."""
+def _gauss_newton(calc, jac, energy, sigma, var, want_sd=True):
+    """Exact Gauss-Newton step (varied parameters var) and the parameter standard deviations (None with
+    want_sd=False: the step alone, the same numbers without the inverse normal matrix)."""
     A = jac[:, var] / sigma[:, None]
     with np.errstate(over="ignore"):  # an absurd datum makes chi-square inf: refused by the caller
         r = (calc - energy) / sigma
@@ -64,6 +66,9 @@ def _gauss_newton(calc, jac, energy, sigma, var):
             inv = np.linalg.inv(An.T @ An) / np.outer(norms, norms)
         except np.linalg.LinAlgError:
             inv = np.linalg.pinv(An.T @ An) / np.outer(norms, norms)
+    elif not want_sd:
+        # (the step of lstsq_and_inverse below: the same QR and solve, without the inverse)
+        return _tall.lstsq(An, -r) / norms, None, chi2
     else:
         # the n-row work off numpy's threaded BLAS (_tall.py): QR in C, then p x p matrices
         step, inv = _tall.lstsq_and_inverse(An, -r)
@@ -102,9 +107,12 @@ def exact_calc(model, params, curve, v, rot, mu, energy_zero, tolerance):
     error = np.empty(len(v))
     ref = {}
     keys = np.stack([np.asarray(mu, dtype=float), J.astype(float)], axis=1)
-    for m, j in np.unique(keys, axis=0):
+    # the distinct (mu, J) rows in np.unique(keys, axis=0)'s order (lexicographic), by a set when short
+    groups = np.unique(keys, axis=0) if len(keys) > 500 else sorted(set(zip(keys[:, 0].tolist(),
+                                                                              keys[:, 1].tolist())))
+    for m, j in groups:
         sel = np.nonzero((keys[:, 0] == m) & (keys[:, 1] == j))[0]
-        want = np.unique(np.asarray(v)[sel])
+        want = _unique(np.asarray(v)[sel])
         res = _core.exact_levels(model, params, curve, float(m), np.array([int(j)], dtype=np.intc),
                                  want.astype(np.intc), energy_tol=tolerance)
         col = res["binding_energy"] if energy_zero == 1 else res["energy"]
@@ -114,7 +122,7 @@ def exact_calc(model, params, curve, v, rot, mu, energy_zero, tolerance):
         if energy_zero == 2 and int(j) == 0 and res["v"][0] == 0:
             ref[float(m)] = (float(res["energy"][0]), float(res["error"][0]))
     if energy_zero == 2:
-        for m in np.unique(keys[:, 0]):
+        for m in _unique(keys[:, 0]):
             if m not in ref:
                 res = _core.exact_levels(model, params, curve, float(m), np.array([0], dtype=np.intc),
                                          np.array([0], dtype=np.intc), energy_tol=tolerance)
@@ -234,7 +242,7 @@ def run_corrected(args, *, tolerance=LINEAR_STEP, max_refreshes=MAX_REFRESHES, i
                     wkb_f = None  # the step leaves the model's domain: correct and run again
                 if wkb_f is not None:
                     remainder = wkb_f - (out["calc"] - offset) - _tall.matvec(out["jacobian"], full)
-                    shift, _, _ = _gauss_newton(energy + remainder, jac_ex, energy, sigma, var)
+                    shift, _, _ = _gauss_newton(energy + remainder, jac_ex, energy, sigma, var, want_sd=False)
                     history[-1]["remainder_sd"] = float(np.max(np.abs(shift) / sd)) if var else 0.0
                     if history[-1]["remainder_sd"] < REMAINDER_SD:
                         done = True

@@ -59,9 +59,12 @@ class Design:
 
     def _fold(self):
         for b_index, data_rows, values in self._bulk:
+            m = len(data_rows)
             for k in self._ORDER:
-                self._cols[k].extend(values[k].tolist())
-            self._row_origin.extend(zip([b_index] * len(data_rows), data_rows.tolist()))
+                value, dtype = values[k], (int if k in self._INT_COLUMNS else float)
+                self._cols[k].extend(np.asarray(value, dtype=dtype).tolist() if np.ndim(value)
+                                     else [dtype(value)] * m)
+            self._row_origin.extend(zip([b_index] * m, data_rows.tolist()))
         self._bulk = []
 
     def level(self, key):
@@ -73,7 +76,7 @@ class Design:
     def levels(self, keys):
         """level() of many keys: their indices, the new ones registered in the order given."""
         index, known = self.level_index, self.level_keys
-        new = [k for k in dict.fromkeys(keys) if k not in index]
+        new = list(dict.fromkeys(keys)) if not index else [k for k in dict.fromkeys(keys) if k not in index]
         index.update(zip(new, range(len(known), len(known) + len(new))))
         known.extend(new)
         return list(map(index.__getitem__, keys))
@@ -88,6 +91,7 @@ class Design:
 
     _ORDER = ("level_a", "coef_a", "level_b", "coef_b", "coef_asymptote", "extra_index", "coef_extra", "offset",
               "observed", "sigma")
+    _INT_COLUMNS = ("level_a", "level_b", "extra_index")
 
     def add_row(self, origin, observed, sigma, a=-1, ca=0.0, b=-1, cb=0.0, cA=0.0, x=-1, cx=0.0, offset=0.0):
         c = self.cols  # (folds the bulk rows first: the rows stay in order)
@@ -111,14 +115,10 @@ class Design:
         Python call per row (large data sets). Returns the design rows (an array)."""
         data_rows = np.asarray(data_rows, dtype=int)
         m = len(data_rows)
-
-        def col(value, dtype):
-            return np.asarray(value, dtype=dtype) if np.ndim(value) else np.full(m, value, dtype=dtype)
+        # (kept as given, converted when the columns are read: a fit of term values alone never reads them)
         self._bulk.append((b_index, data_rows, {
-            "level_a": col(a, int), "coef_a": col(ca, float), "level_b": col(-1 if b is None else b, int),
-            "coef_b": col(cb, float), "coef_asymptote": col(cA, float), "extra_index": col(x, int),
-            "coef_extra": col(cx, float), "offset": col(offset, float), "observed": col(observed, float),
-            "sigma": col(sigma, float)}))
+            "level_a": a, "coef_a": ca, "level_b": -1 if b is None else b, "coef_b": cb, "coef_asymptote": cA,
+            "extra_index": x, "coef_extra": cx, "offset": offset, "observed": observed, "sigma": sigma}))
         self._n += m
         return np.arange(self._n - m, self._n)
 

@@ -30,6 +30,30 @@ _SENSITIVITY_ZERO = 1e-9
 
 
 
+def _well_conditioned(Jw, keep, norms=None):
+    """(the matrix whose singular values are those of the column-normalised Jw[:, keep], inv(R^T R), the
+    column norms) when every column is kept and the normal matrix is certainly far from singular (its
+    smallest singular value at least 100 * _RCOND_SINGULAR of the largest, from the trace bound); None
+    otherwise (then the SVD decides). The same arrays, by the same operations, as the SVD path computes.
+    Jw column-major (then its column norms, `norms` if given, are those of its column selections)."""
+    nv = Jw.shape[1]
+    if len(keep) != nv or nv == 0 or len(Jw) < nv:
+        return None
+    if norms is None:
+        norms = np.linalg.norm(Jw[:, keep], axis=0)
+    An = Jw / norms
+    R = _tall.qr_r(An)[0]
+    try:
+        inv = np.linalg.inv(R.T @ R)
+    except np.linalg.LinAlgError:
+        return None
+    trace = float(inv.diagonal().sum())
+    # s_min^2 >= 1/trace and s_max^2 <= sum s_i^2 = nv (unit columns): s_min/s_max >= 1/sqrt(trace * nv)
+    if not (math.isfinite(trace) and trace > 0 and trace * nv <= (0.01 / _RCOND_SINGULAR) ** 2):
+        return None
+    return (R if An.shape[0] > 2 * nv else An), inv, norms
+
+
 class FitWarning(UserWarning):
     """A fit ended without convergence, or some parameter is not determined by the data."""
 
@@ -130,8 +154,7 @@ class FitResult:
         self.calculated = _frozen(np.asarray(calculated, dtype=float))
         self.jacobian = _frozen(np.asarray(jacobian, dtype=float))
         self.fitted_rows = _frozen(np.asarray(fitted_rows, dtype=bool))
-        self.residuals = _frozen(np.where(self.fitted_rows, self._observed_values - self.calculated,
-                                          self._observed_values - self.calculated))
+        self.residuals = _frozen(self._observed_values - self.calculated)
         self.normalized_residuals = _frozen(self.residuals / self._sigma)
         self.var_names = [n for n, f in zip(names, vary_flags) if f]
         self.chi_square = float(chi_square)
@@ -162,8 +185,12 @@ class FitResult:
         all_var = pot_var + extra_names
         var_idx = [names.index(n) for n in pot_var]
         rows = self.fitted_rows
-        Jall = np.hstack([self.jacobian[:, var_idx], self.jacobian_extra])
-        Jw = Jall[rows] / self._sigma[rows][:, None]
+        # (column-major, as the column selections below copy it: the column norms round alike everywhere)
+        Jall = np.asfortranarray(np.hstack([self.jacobian[:, var_idx], self.jacobian_extra])) \
+            if self.jacobian_extra.shape[1] else self.jacobian[:, var_idx]
+        Jw = np.asfortranarray(Jall[rows] / self._sigma[rows][:, None]) if not rows.all() \
+            else np.asfortranarray(Jall / self._sigma[:, None])
+        column_norms = np.linalg.norm(Jw, axis=0)
         self.var_names = all_var
         nv = len(all_var)
         reasons = {}
@@ -178,15 +205,21 @@ class FitResult:
                                      "can be given (free the bound or fix the parameter)" % (side, b))
         # 2. parameters the levels do not depend on
         scale = np.array([max(abs(values[n]), abs(initial[n]), 1e-300) for n in self.var_names])
-        sens = np.linalg.norm(Jw, axis=0) * scale
-        top = float(np.max(sens)) if nv else 0.0
+        sens = column_norms * scale
+        top = float(sens.max()) if nv else 0.0
         for j, name in enumerate(self.var_names):
             if name not in reasons and (name in insensitive or not sens[j] > _SENSITIVITY_ZERO * top):
                 reasons[name] = ("not determined: the calculated levels do not depend on it (for instance, J=0 "
                                  "levels of a Morse potential do not depend on re); it stays at its initial value")
-        # 3. combinations the data do not separate (numerically singular normal matrix)
+        # 3. combinations the data do not separate (numerically singular normal matrix). The normal matrix of
+        # the determined parameters is inverted anyway for the covariance; its trace bounds the singular values
+        # (s_min^2 >= 1 / trace(inv(R^T R)), sum s_i^2 = the number of unit columns), so a well-conditioned fit
+        # skips the SVD and computes the condition number only when it is read (`condition_number`).
         cond = None
-        for _ in range(nv):
+        quick = _well_conditioned(Jw, [j for j, n in enumerate(self.var_names) if n not in reasons], column_norms)
+        if quick is not None:
+            self._condition_source = quick[0]
+        for _ in range(nv if quick is None else 0):
             keep = [j for j, n in enumerate(self.var_names) if n not in reasons]
             if not keep:
                 break
@@ -206,11 +239,15 @@ class FitResult:
                     % (", ".join(involved), cond))
             for name in involved:
                 reasons[name] = text
-        self.condition_number = cond
+        if quick is None:
+            self.condition_number = cond
 
         det = [j for j, n in enumerate(self.var_names) if n not in reasons]
-        cov_u = np.full((nv, nv), np.nan)
-        if det:
+        if quick is not None:  # every parameter determined: the inverse is the one computed above
+            cov_u = quick[1] / np.outer(quick[2], quick[2])
+        else:
+            cov_u = np.full((nv, nv), np.nan)
+        if det and quick is None:
             A = Jw[:, det]
             norms = np.linalg.norm(A, axis=0)
             An = A / norms
@@ -222,7 +259,7 @@ class FitResult:
         self.covariance_scale = factor
         self.covariance_unscaled = _frozen(cov_u)
         self.covariance = _frozen(cov_u * factor)
-        sd = np.sqrt(np.diag(self.covariance))
+        sd = np.sqrt(self.covariance.diagonal())
         with np.errstate(invalid="ignore", divide="ignore"):
             self.correlation = _frozen(self.covariance / np.outer(sd, sd))
         self.undetermined = [n for n in self.var_names if n in reasons]
@@ -256,9 +293,10 @@ class FitResult:
         npv = len(pot_var)
         self.covariance_full = self.covariance
         self.covariance_full_names = list(all_var)
-        self.covariance = _frozen(np.array(self.covariance[:npv, :npv]))
-        self.covariance_unscaled = _frozen(np.array(self.covariance_unscaled[:npv, :npv]))
-        self.correlation = _frozen(np.array(self.correlation[:npv, :npv]))
+        if npv < nv:  # (without extras the blocks are the whole, read-only matrices)
+            self.covariance = _frozen(self.covariance[:npv, :npv])  # (_frozen copies)
+            self.covariance_unscaled = _frozen(self.covariance_unscaled[:npv, :npv])
+            self.correlation = _frozen(self.correlation[:npv, :npv])
         self.var_names = pot_var
         self.undetermined_free = [n for n in self.undetermined if n in extra_names]
         self.undetermined = [n for n in self.undetermined if n not in extra_names]
@@ -283,6 +321,28 @@ class FitResult:
             _warn(self.dof_note, FitWarning)
 
     # -- simple views -------------------------------------------------------------------
+    @property
+    def condition_number(self):
+        """The scaled condition number s_max/s_min of the weighted Jacobian of the determined parameters
+        (columns normalised; None when nothing is determined); computed on first reading where the fit
+        did not need its SVD."""
+        try:
+            return self.__dict__["_condition_number"]
+        except KeyError:
+            pass
+        source = self.__dict__.pop("_condition_source", None)
+        cond = None
+        if source is not None:
+            s = np.linalg.svd(source, full_matrices=False)[1]  # (the same LAPACK driver as the fit's SVD)
+            cond = float(s[0] / s[-1]) if s[-1] > 0 else math.inf
+        self.__dict__["_condition_number"] = cond
+        return cond
+
+    @condition_number.setter
+    def condition_number(self, value):
+        self.__dict__.pop("_condition_source", None)
+        self.__dict__["_condition_number"] = value
+
     @property
     def standard_error(self):
         """The earlier name of `sqrt_reduced_chi_square` (kept for code written against it)."""

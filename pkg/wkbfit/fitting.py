@@ -263,7 +263,8 @@ def _fit_levels_engine(potential, obs, masses, method, vary_flags, lower, upper,
     """fit() for one ObservedLevels: corrected (default), wkb or exact, with the method-error check."""
     for block in design.blocks:  # one data set: its rows are the result's rows
         block.start = 0
-    mu_rows = np.array([masses[label] for label in obs.isotopologue], dtype=float)
+    mu_rows = np.full(len(obs), next(iter(masses.values())), dtype=float) if len(masses) == 1 else \
+        np.array([masses[label] for label in obs.isotopologue], dtype=float)
     rot = (obs.J * (obs.J + 1)).astype(float)
     zero = obs.energy_zero
     # rows v=0, J=0 define the zero of "lowest" data: calc is 0 by definition, so they carry no information
@@ -289,7 +290,7 @@ def _fit_levels_engine(potential, obs, masses, method, vary_flags, lower, upper,
             i = rows[err.args[1]]
             raise ValueError(_start_failure_message_levels(err.args[0], obs, i, potential, mu_rows[i])) from None
         raise
-    if not (np.isfinite(out["chi_square"]) and np.all(np.isfinite(out["params"])) and np.all(np.isfinite(out["calc"]))):
+    if not (math.isfinite(out["chi_square"]) and np.isfinite(out["params"]).all() and np.isfinite(out["calc"]).all()):
         # a "converged" fit with an infinite chi-square is no answer: refuse it
         raise ValueError("the fit ended with a non-finite chi-square (%r) or parameters %s: the data cannot be "
                          "described from this start (check the energies, uncertainties and energy_zero, or start "
@@ -412,12 +413,12 @@ def _vary_flags(potential, vary, extra_names=(), extra_fixed=()):
 
 def _bounds(potential, bounds, vary_flags):
     names = list(potential.param_names)
-    values = potential.params
     lower = np.full(len(names), -np.inf)
     upper = np.full(len(names), np.inf)
     by_name = {n: (None, None) for n in names}
     if bounds is None:
         return lower, upper, by_name
+    values = potential.params
     if not isinstance(bounds, dict):
         raise ValueError("bounds=%r must be a dict name -> (lower, upper), None for an open side" % (bounds,))
     for name, pair in bounds.items():
