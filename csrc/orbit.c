@@ -554,26 +554,46 @@ static int find_turning_point(const wkb_well *w, const energy_point *e, int righ
     return WKB_SUCCESS;
 }
 
-/* Sums over one quadrature piece. */
+/* Sums over one orbit. The nodes are buffered and taken NODE_BLOCK at a time: first every potential
+   evaluation of the block (an opaque call each), then the square roots and divisions, which then overlap
+   instead of waiting behind the calls (~20 % of a Morse orbit). The sums are taken in node order as before. */
+#define NODE_BLOCK 32
 typedef struct {
     double action, inv_k, inv_k_r2, curvature;
     double dVdp[WKB_MAX_PARAMS];
     int want_period, want_dVdp;
+    size_t n_buf;
+    double buf_r[NODE_BLOCK], buf_w[NODE_BLOCK];
 } sums;
 
-static inline void add_node(wkb_well *w, const energy_point *e, double r, double weight, sums *s)
+static void flush_nodes(wkb_well *w, const energy_point *e, sums *s)
 {
-    wkb_pot_value pv;
-    const double kin = kinetic(w, e, r, &pv);
-    if (!(kin > 0))
-        return; /* a node within rounding of a turning point: the integrands vanish or are integrable there */
-    const double sk = sqrt(kin);
-    s->action += weight * sk;
-    if (s->want_period) {
+    const size_t n = s->n_buf;
+    double kin[NODE_BLOCK], d2V[NODE_BLOCK];
+    for (size_t i = 0; i < n; i++) {
+        wkb_pot_value pv;
+        kin[i] = kinetic(w, e, s->buf_r[i], &pv);
+        d2V[i] = pv.d2V;
+    }
+    s->n_buf = 0;
+    double action = s->action;
+    if (!s->want_period) {
+        for (size_t i = 0; i < n; i++)
+            if (kin[i] > 0) /* (a node within rounding of a turning point: the integrands vanish or are integrable there) */
+                action += s->buf_w[i] * sqrt(kin[i]);
+        s->action = action;
+        return;
+    }
+    double inv_k = s->inv_k, inv_k_r2 = s->inv_k_r2, curvature = s->curvature;
+    for (size_t i = 0; i < n; i++) {
+        if (!(kin[i] > 0))
+            continue;
+        const double r = s->buf_r[i], weight = s->buf_w[i], sk = sqrt(kin[i]);
+        action += weight * sk;
         const double f = weight / sk, ir = 1 / r;
-        s->inv_k += f;
-        s->inv_k_r2 += f * ir * ir;
-        s->curvature += f * pv.d2V;
+        inv_k += f;
+        inv_k_r2 += f * ir * ir;
+        curvature += f * d2V[i];
         if (s->want_dVdp) {
             const size_t np = w->pot.model->n_params;
             w->pot.model->param_derivs(&w->pot, r, w->dVdp);
@@ -581,6 +601,18 @@ static inline void add_node(wkb_well *w, const energy_point *e, double r, double
                 s->dVdp[k] += f * w->dVdp[k];
         }
     }
+    s->action = action;
+    s->inv_k = inv_k;
+    s->inv_k_r2 = inv_k_r2;
+    s->curvature = curvature;
+}
+
+static inline void add_node(wkb_well *w, const energy_point *e, double r, double weight, sums *s)
+{
+    s->buf_r[s->n_buf] = r;
+    s->buf_w[s->n_buf] = weight;
+    if (++s->n_buf == NODE_BLOCK)
+        flush_nodes(w, e, s);
 }
 
 /* [r1, rb] with r = r1 + (rb - r1) s^2 */
@@ -827,6 +859,7 @@ static int orbit_integrals(wkb_well *w, double binding, wkb_orbit *orbit, double
         }
     }
 
+    flush_nodes(w, &e, &s);
     if (bad_span)
         return wkb_fail(err, WKB_ENUMERIC,
                         "the orbit at E=%.12g cm-1 (turning points %g, %g A) would need more than %d quadrature "
