@@ -489,6 +489,37 @@ static int warm_turning_point(const wkb_well *w, const energy_point *e, double r
     return 0;
 }
 
+/* A cold start without a search: the stored scan (V_J at its points) brackets the turning point with no
+   evaluation, and Halley steps from the chord between the two scan points (a few % of r apart) converge
+   as a warm start does, in two or three evaluations instead of the ~15 of the evaluated bisection and
+   solve_in_bracket. 0 where the scan cannot tell (the energy above the branch's last scan point, the
+   minimum on the far side of a scan point) or Halley leaves the bracket: the caller then searches. */
+static int scan_turning_point(const wkb_well *w, const energy_point *e, int right, size_t j, double *r_tp)
+{
+    if (!(e->E < w->scan_V[j]))
+        return 0;
+    size_t in = w->i_bottom, out = j; /* E > V at 'in' (the bottom side), E <= V at 'out' */
+    while ((in > out ? in - out : out - in) > 1) {
+        const size_t mid = (in + out) / 2;
+        if (e->E > w->scan_V[mid])
+            in = mid;
+        else
+            out = mid;
+    }
+    double r_in = w->scan_r[in], V_in = w->scan_V[in];
+    if (in == w->i_bottom) {
+        r_in = w->r_bottom;
+        V_in = w->bottom;
+        if ((right && r_in > w->scan_r[out]) || (!right && r_in < w->scan_r[out]))
+            return 0;
+    }
+    const double g_in = e->E - V_in, g_out = e->E - w->scan_V[out], r_out = w->scan_r[out];
+    if (!(g_in > 0 && g_out <= 0))
+        return 0;
+    const double guess = r_in + (r_out - r_in) * g_in / (g_in - g_out);
+    return warm_turning_point(w, e, guess, GSL_MIN(r_in, r_out), GSL_MAX(r_in, r_out), r_tp);
+}
+
 static int find_turning_point(const wkb_well *w, const energy_point *e, int right, double *r_tp,
                               wkb_error *err)
 {
@@ -501,6 +532,8 @@ static int find_turning_point(const wkb_well *w, const energy_point *e, int righ
         if (warm_turning_point(w, e, w->last_tp[right], branch_lo, branch_hi, r_tp))
             return WKB_SUCCESS;
     }
+    if (scan_turning_point(w, e, right, j, r_tp))
+        return WKB_SUCCESS;
     if (kinetic(w, e, w->scan_r[j], &pv) <= 0) {
         /* bisection over the monotone branch between the bottom and scan point j */
         size_t in = w->i_bottom, out = j; /* kinetic > 0 at 'in' side (bottom), <= 0 at 'out' */
