@@ -37,10 +37,13 @@
 #define COMPACT_LOG_LENGTH 0.5 /* orbits with r2 < 1.65 r_b use a linear map on the outer side */
 #define THRESHOLD_TAIL_LOG_START 3.0 /* the tail piece starts at r_b e^3 */
 #define OUTER_SCALES 4.0 /* the last outer piece spans at most this many local lengths |V'/V''| at r2 */
-/* an exponential tail's outer side up to this many of those lengths is one piece of the 2n-point half rule
-   (n nodes) instead of a plain piece and that rule (2n): its levels moved by <= 1e-11 cm-1 against the 256-node
-   rule on the Morse, EMO and Poeschl-Teller test wells (J = 0 and 20..30), at 3 lengths as at 1 */
+/* the outer side of an orbit up to this many of those lengths (an exponential tail), or up to this many
+   times the end piece's log length (an inverse-power tail), is one piece of the 2n-point half rule (n
+   nodes) instead of a plain piece and that rule (2n nodes). The actions at every level of the test wells
+   (Morse, EMO, Lennard-Jones, MLR; J = 0 and 20) moved by <= 3e-15 relative, their levels against the
+   256-node rule by <= 1e-11 cm-1 (3 lengths or 3 times gave the same) */
 #define OUTER_LONG_SCALES 2.0
+#define POWER_LONG_FACTOR 2.0
 
 wkb_settings wkb_default_settings(void)
 {
@@ -889,7 +892,7 @@ static int orbit_integrals(wkb_well *w, double binding, wkb_orbit *orbit, double
             if (Y <= GSL_MIN(COMPACT_LOG_LENGTH, L_end)) {
                 if (Y > 0)
                     piece_outer_linear(w, &e, rb, r2, &s);
-            } else if (Y <= L_end) {
+            } else if (Y <= POWER_LONG_FACTOR * L_end) {
                 piece_outer_end(w, &e, y2, Y, &s);
             } else {
                 bad_span |= pieces_log(w, &e, yb, y2 - L_end, &s);
