@@ -868,7 +868,12 @@ static int orbit_integrals(wkb_well *w, double binding, wkb_orbit *orbit, double
                             "the tail -C_n/r^n with n=%g <= 2 binds infinitely many levels: no action at the "
                             "asymptote", n);
         const double q = n > 2 ? 0.5 * (n - 2) : 1.0;
-        bad_span |= pieces_log(w, &e, yb, yb + THRESHOLD_TAIL_LOG_START, &s);
+        /* (an exponential tail's threshold orbit: one log piece is converged, vD within 3e-14 of the 256-node
+           rule's on the Morse and EMO test wells; an inverse-power tail's needs two, one missed by 1e-11) */
+        if (n == 0)
+            piece_log(w, &e, yb, yb + THRESHOLD_TAIL_LOG_START, &s);
+        else
+            bad_span |= pieces_log(w, &e, yb, yb + THRESHOLD_TAIL_LOG_START, &s);
         piece_tail(w, &e, exp(yb + THRESHOLD_TAIL_LOG_START), q, &s);
     } else {
         /* the length over which the potential changes near r2, |V_J'/V_J''|: 1/a under an
