@@ -630,7 +630,8 @@ static void flush_nodes(wkb_well *w, const energy_point *e, sums *s)
             continue;
         const double r = s->buf_r[i], weight = s->buf_w[i], sk = sqrt(kin[i]);
         action += weight * sk;
-        const double f = weight / sk, ir = 1 / r;
+        /* 1/sk and 1/r from one division (the divider, with the square root, bounds a node's time) */
+        const double inv = 1 / (sk * r), f = weight * r * inv, ir = sk * inv;
         inv_k += f;
         inv_k_r2 += f * ir * ir;
         curvature += f * d2V[i];
