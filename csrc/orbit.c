@@ -16,17 +16,14 @@
  * every integrand is even in s, so only the positive half of a symmetric rule is evaluated.
  * Accuracy (tests/test_wkb.py): ~1e-15 relative on the action, <= 1e-12 on period and Bv, on wells the
  * 32-node rule resolves; the level path (settings.check_nodes) checks that per well at set-up and doubles
- * the nodes where it does not (choose_rule; tests/test_quadrature_accuracy.py).
+ * the nodes where it does not (quadrature_rules.c; tests/test_quadrature_accuracy.py).
  * Energies near the asymptote are handled as binding energies b = D - E and the kinetic
  * term as depth(r) - b, so nothing cancels there.
  */
 #include <math.h>
-#include <pthread.h>
 #include <stdlib.h>
 #include <string.h>
 
-#include <gsl/gsl_errno.h>
-#include <gsl/gsl_integration.h>
 #include <gsl/gsl_math.h>
 
 #include "wkb.h"
@@ -37,6 +34,13 @@
 #define COMPACT_LOG_LENGTH 0.5 /* orbits with r2 < 1.65 r_b use a linear map on the outer side */
 #define THRESHOLD_TAIL_LOG_START 3.0 /* the tail piece starts at r_b e^3 */
 #define OUTER_SCALES 4.0 /* the last outer piece spans at most this many local lengths |V'/V''| at r2 */
+/* the outer side of an orbit up to this many of those lengths (an exponential tail), or up to this many
+   times the end piece's log length (an inverse-power tail), is one piece of the 2n-point half rule (n
+   nodes) instead of a plain piece and that rule (2n nodes). The actions at every level of the test wells
+   (Morse, EMO, Lennard-Jones, MLR; J = 0 and 20) moved by <= 3e-15 relative, their levels against the
+   256-node rule by <= 1e-11 cm-1 (3 lengths or 3 times gave the same) */
+#define OUTER_LONG_SCALES 2.0
+#define POWER_LONG_FACTOR 2.0
 
 wkb_settings wkb_default_settings(void)
 {
@@ -56,146 +60,6 @@ wkb_settings wkb_default_settings(void)
     return s;
 }
 
-/* P_n(x) and P_n'(x) by the three-term recurrence; (1 - x)(1 + x) keeps P_n' accurate next to x = 1 */
-static void legendre_value(size_t n, double x, double *p, double *dp)
-{
-    double p0 = 1, p1 = x;
-    for (size_t k = 2; k <= n; k++) {
-        const double p2 = ((double)(2 * k - 1) * x * p1 - (double)(k - 1) * p0) / (double)k;
-        p0 = p1;
-        p1 = p2;
-    }
-    *p = p1;
-    *dp = n == 1 ? 1 : (double)n * (p0 - x * p1) / ((1 - x) * (1 + x));
-}
-
-/* GSL's rules for node counts it has no precomputed table for (all but 2..20, 32, 64, 96, 100, 128, 256,
-   512, 1024) carry weights only ~1e-10 accurate (their sum is off by 3e-10 at 192 or 320 nodes): the
-   levels of a 96-node rule (its 192-node half rule) were 1e-6 cm-1 off while 64 and 128 agreed to 1e-11.
-   Newton steps on P_n from GSL's nodes, by the three-term recurrence, give nodes and weights to rounding
-   (tests/test_quadrature_accuracy.py). The precomputed tables are used as they are. */
-static int legendre_rule_polish(gsl_integration_glfixed_table *t)
-{
-    const size_t n = t->n, m = (n + 1) / 2; /* t->x[0..m-1]: the nodes >= 0, t->w: their weights */
-    for (size_t i = 0; i < m; i++) {
-        double x = t->x[i], p, dp;
-        for (int it = 0; it < 20; it++) {
-            legendre_value(n, x, &p, &dp);
-            const double dx = p / dp;
-            x -= dx;
-            if (fabs(dx) <= 1e-17)
-                break;
-        }
-        legendre_value(n, x, &p, &dp);
-        const double wt = 2 / ((1 - x) * (1 + x) * dp * dp);
-        if (!isfinite(wt) || !(x >= 0 && x < 1))
-            return GSL_EFAILED;
-        t->x[i] = x;
-        t->w[i] = wt;
-    }
-    return GSL_SUCCESS;
-}
-
-/* In s with r - r_turn ~ s^2, every orbit integrand is an even function of s, so the n-point rule on
-   [-1, 1] needs only its n/2 positive nodes: twice the accuracy per evaluation of a rule on [0, 1]. */
-static int even_half_rule(size_t n, double *x, double *wt)
-{
-    gsl_integration_glfixed_table *table = gsl_integration_glfixed_table_alloc(n);
-    int status = table ? GSL_SUCCESS : GSL_ENOMEM;
-    if (table && !table->precomputed)
-        status = legendre_rule_polish(table);
-    for (size_t i = 0, k = 0; i < n && !status; i++) {
-        double xi, wi;
-        status = gsl_integration_glfixed_point(-1.0, 1.0, i, &xi, &wi, table);
-        if (!status && xi > 0 && k < n / 2) {
-            x[k] = xi;
-            wt[k++] = wi;
-        }
-    }
-    if (table)
-        gsl_integration_glfixed_table_free(table);
-    return status;
-}
-
-/* The rules of the default node count and of its doublings (wkb_well_set may need them), computed once
-   per process and shared read-only by every well (a well set-up is a few microseconds; making or copying
-   them cost a fraction of that per well). */
-#define DEFAULT_NODES 32
-#define DEFAULT_RULES_SIZE (5 * DEFAULT_NODES * ((1 << WKB_RULE_LEVELS) - 1))
-static struct {
-    double data[DEFAULT_RULES_SIZE];
-    int status; /* 0 made, nonzero: computing them failed (each well then computes its own) */
-} default_rules;
-static pthread_once_t default_rules_once = PTHREAD_ONCE_INIT;
-
-static int gauss_legendre_unit(size_t n, double *x, double *wt);
-
-/* one rule of n nodes laid out in a block of 5 n: the n-point rule on [0, 1], then the positive halves
-   of the n- and 2n-point rules on [-1, 1] */
-static int fill_rules(size_t n, double *block)
-{
-    return gauss_legendre_unit(n, block, block + n) || even_half_rule(n, block + 2 * n, block + 2 * n + n / 2) ||
-           even_half_rule(2 * n, block + 3 * n, block + 4 * n);
-}
-
-static void make_default_rules(void)
-{
-    double *block = default_rules.data;
-    for (int k = 0; k < WKB_RULE_LEVELS && !default_rules.status; k++) {
-        default_rules.status = fill_rules((size_t)DEFAULT_NODES << k, block);
-        block += 5 * (DEFAULT_NODES << k);
-    }
-}
-
-/* the n-point Gauss-Legendre rule on [0, 1] */
-static int gauss_legendre_unit(size_t n, double *x, double *wt)
-{
-    gsl_integration_glfixed_table *table = gsl_integration_glfixed_table_alloc(n);
-    int status = table ? GSL_SUCCESS : GSL_ENOMEM;
-    if (table && !table->precomputed)
-        status = legendre_rule_polish(table);
-    for (size_t i = 0; i < n && !status; i++)
-        status = gsl_integration_glfixed_point(0.0, 1.0, i, &x[i], &wt[i], table);
-    if (table)
-        gsl_integration_glfixed_table_free(table);
-    return status;
-}
-
-/* Makes the rule with base_nodes << level nodes (once per well; the default counts are shared). */
-static int make_rules(wkb_well *w, int level)
-{
-    if (w->rules[level].gl_x)
-        return 0;
-    const size_t n = w->base_nodes << level;
-    double *block = NULL;
-    if (w->base_nodes == DEFAULT_NODES && !pthread_once(&default_rules_once, make_default_rules) &&
-        !default_rules.status) {
-        block = default_rules.data + 5 * DEFAULT_NODES * ((1 << level) - 1);
-    } else {
-        if (!(block = w->rules[level].owned = malloc(5 * n * sizeof(double))) || fill_rules(n, block))
-            return 1;
-    }
-    w->rules[level].gl_x = block;
-    w->rules[level].gl_w = block + n;
-    w->rules[level].even_x = block + 2 * n;
-    w->rules[level].even_w = block + 2 * n + n / 2;
-    w->rules[level].even2_x = block + 3 * n;
-    w->rules[level].even2_w = block + 4 * n;
-    return 0;
-}
-
-/* the orbit integrals use the rule of this level from now on (made already) */
-static void use_rules(wkb_well *w, int level)
-{
-    w->set.nodes = w->base_nodes << level;
-    w->gl_x = w->rules[level].gl_x;
-    w->gl_w = w->rules[level].gl_w;
-    w->even_x = w->rules[level].even_x;
-    w->even_w = w->rules[level].even_w;
-    w->even2_x = w->rules[level].even2_x;
-    w->even2_w = w->rules[level].even2_w;
-}
-
 wkb_well *wkb_well_alloc(const wkb_settings *settings)
 {
     wkb_well *w = calloc(1, sizeof *w);
@@ -210,9 +74,9 @@ wkb_well *wkb_well_alloc(const wkb_settings *settings)
     w->base_nodes = w->set.nodes;
     w->scan_r = malloc(w->set.scan_points * sizeof(double));
     w->scan_V = malloc(w->set.scan_points * sizeof(double));
-    if (!w->scan_r || !w->scan_V || make_rules(w, 0))
+    if (!w->scan_r || !w->scan_V || wkb_rules_make(w, 0))
         goto fail;
-    use_rules(w, 0);
+    wkb_rules_use(w, 0);
     return w;
 fail:
     wkb_well_free(w);
@@ -313,13 +177,11 @@ static int solve_in_bracket(const wkb_well *w, const energy_point *e, int mode, 
     return WKB_SUCCESS; /* bracket has shrunk to rounding level in any case */
 }
 
-static void choose_rule(wkb_well *w);
-
 int wkb_well_set(wkb_well *w, const wkb_potential *pot, double mu, double rot, int maslov_in,
                  int maslov_out, wkb_error *err)
 {
     w->ready = 0;
-    use_rules(w, 0);
+    wkb_rules_use(w, 0);
     w->quad_error = 0;
     w->have_last_tp = 0;
     w->vD_status = -1;
@@ -421,7 +283,7 @@ int wkb_well_set(wkb_well *w, const wkb_potential *pot, double mu, double rot, i
     }
     w->ready = 1;
     if (w->set.check_nodes)
-        choose_rule(w);
+        wkb_rules_check(w);
     return WKB_SUCCESS;
 }
 
@@ -489,6 +351,37 @@ static int warm_turning_point(const wkb_well *w, const energy_point *e, double r
     return 0;
 }
 
+/* A cold start without a search: the stored scan (V_J at its points) brackets the turning point with no
+   evaluation, and Halley steps from the chord between the two scan points (a few % of r apart) converge
+   as a warm start does, in two or three evaluations instead of the ~15 of the evaluated bisection and
+   solve_in_bracket. 0 where the scan cannot tell (the energy above the branch's last scan point, the
+   minimum on the far side of a scan point) or Halley leaves the bracket: the caller then searches. */
+static int scan_turning_point(const wkb_well *w, const energy_point *e, int right, size_t j, double *r_tp)
+{
+    if (!(e->E < w->scan_V[j]))
+        return 0;
+    size_t in = w->i_bottom, out = j; /* E > V at 'in' (the bottom side), E <= V at 'out' */
+    while ((in > out ? in - out : out - in) > 1) {
+        const size_t mid = (in + out) / 2;
+        if (e->E > w->scan_V[mid])
+            in = mid;
+        else
+            out = mid;
+    }
+    double r_in = w->scan_r[in], V_in = w->scan_V[in];
+    if (in == w->i_bottom) {
+        r_in = w->r_bottom;
+        V_in = w->bottom;
+        if ((right && r_in > w->scan_r[out]) || (!right && r_in < w->scan_r[out]))
+            return 0;
+    }
+    const double g_in = e->E - V_in, g_out = e->E - w->scan_V[out], r_out = w->scan_r[out];
+    if (!(g_in > 0 && g_out <= 0))
+        return 0;
+    const double guess = r_in + (r_out - r_in) * g_in / (g_in - g_out);
+    return warm_turning_point(w, e, guess, GSL_MIN(r_in, r_out), GSL_MAX(r_in, r_out), r_tp);
+}
+
 static int find_turning_point(const wkb_well *w, const energy_point *e, int right, double *r_tp,
                               wkb_error *err)
 {
@@ -501,6 +394,8 @@ static int find_turning_point(const wkb_well *w, const energy_point *e, int righ
         if (warm_turning_point(w, e, w->last_tp[right], branch_lo, branch_hi, r_tp))
             return WKB_SUCCESS;
     }
+    if (scan_turning_point(w, e, right, j, r_tp))
+        return WKB_SUCCESS;
     if (kinetic(w, e, w->scan_r[j], &pv) <= 0) {
         /* bisection over the monotone branch between the bottom and scan point j */
         size_t in = w->i_bottom, out = j; /* kinetic > 0 at 'in' side (bottom), <= 0 at 'out' */
@@ -554,26 +449,47 @@ static int find_turning_point(const wkb_well *w, const energy_point *e, int righ
     return WKB_SUCCESS;
 }
 
-/* Sums over one quadrature piece. */
+/* Sums over one orbit. The nodes are buffered and taken NODE_BLOCK at a time: first every potential
+   evaluation of the block (an opaque call each), then the square roots and divisions, which then overlap
+   instead of waiting behind the calls (~20 % of a Morse orbit). The sums are taken in node order as before. */
+#define NODE_BLOCK 32
 typedef struct {
     double action, inv_k, inv_k_r2, curvature;
     double dVdp[WKB_MAX_PARAMS];
     int want_period, want_dVdp;
+    size_t n_buf;
+    double buf_r[NODE_BLOCK], buf_w[NODE_BLOCK];
 } sums;
 
-static inline void add_node(wkb_well *w, const energy_point *e, double r, double weight, sums *s)
+static void flush_nodes(wkb_well *w, const energy_point *e, sums *s)
 {
-    wkb_pot_value pv;
-    const double kin = kinetic(w, e, r, &pv);
-    if (!(kin > 0))
-        return; /* a node within rounding of a turning point: the integrands vanish or are integrable there */
-    const double sk = sqrt(kin);
-    s->action += weight * sk;
-    if (s->want_period) {
-        const double f = weight / sk, ir = 1 / r;
-        s->inv_k += f;
-        s->inv_k_r2 += f * ir * ir;
-        s->curvature += f * pv.d2V;
+    const size_t n = s->n_buf;
+    double kin[NODE_BLOCK], d2V[NODE_BLOCK];
+    for (size_t i = 0; i < n; i++) {
+        wkb_pot_value pv;
+        kin[i] = kinetic(w, e, s->buf_r[i], &pv);
+        d2V[i] = pv.d2V;
+    }
+    s->n_buf = 0;
+    double action = s->action;
+    if (!s->want_period) {
+        for (size_t i = 0; i < n; i++)
+            if (kin[i] > 0) /* (a node within rounding of a turning point: the integrands vanish or are integrable there) */
+                action += s->buf_w[i] * sqrt(kin[i]);
+        s->action = action;
+        return;
+    }
+    double inv_k = s->inv_k, inv_k_r2 = s->inv_k_r2, curvature = s->curvature;
+    for (size_t i = 0; i < n; i++) {
+        if (!(kin[i] > 0))
+            continue;
+        const double r = s->buf_r[i], weight = s->buf_w[i], sk = sqrt(kin[i]);
+        action += weight * sk;
+        /* 1/sk and 1/r from one division (the divider, with the square root, bounds a node's time) */
+        const double inv = 1 / (sk * r), f = weight * r * inv, ir = sk * inv;
+        inv_k += f;
+        inv_k_r2 += f * ir * ir;
+        curvature += f * d2V[i];
         if (s->want_dVdp) {
             const size_t np = w->pot.model->n_params;
             w->pot.model->param_derivs(&w->pot, r, w->dVdp);
@@ -581,6 +497,18 @@ static inline void add_node(wkb_well *w, const energy_point *e, double r, double
                 s->dVdp[k] += f * w->dVdp[k];
         }
     }
+    s->action = action;
+    s->inv_k = inv_k;
+    s->inv_k_r2 = inv_k_r2;
+    s->curvature = curvature;
+}
+
+static inline void add_node(wkb_well *w, const energy_point *e, double r, double weight, sums *s)
+{
+    s->buf_r[s->n_buf] = r;
+    s->buf_w[s->n_buf] = weight;
+    if (++s->n_buf == NODE_BLOCK)
+        flush_nodes(w, e, s);
 }
 
 /* [r1, rb] with r = r1 + (rb - r1) s^2 */
@@ -796,7 +724,12 @@ static int orbit_integrals(wkb_well *w, double binding, wkb_orbit *orbit, double
                             "the tail -C_n/r^n with n=%g <= 2 binds infinitely many levels: no action at the "
                             "asymptote", n);
         const double q = n > 2 ? 0.5 * (n - 2) : 1.0;
-        bad_span |= pieces_log(w, &e, yb, yb + THRESHOLD_TAIL_LOG_START, &s);
+        /* (an exponential tail's threshold orbit: one log piece is converged, vD within 3e-14 of the 256-node
+           rule's on the Morse and EMO test wells; an inverse-power tail's needs two, one missed by 1e-11) */
+        if (n == 0)
+            piece_log(w, &e, yb, yb + THRESHOLD_TAIL_LOG_START, &s);
+        else
+            bad_span |= pieces_log(w, &e, yb, yb + THRESHOLD_TAIL_LOG_START, &s);
         piece_tail(w, &e, exp(yb + THRESHOLD_TAIL_LOG_START), q, &s);
     } else {
         /* the length over which the potential changes near r2, |V_J'/V_J''|: 1/a under an
@@ -809,6 +742,8 @@ static int orbit_integrals(wkb_well *w, double binding, wkb_orbit *orbit, double
             /* an exponential tail is smooth on that scale in r itself: linear pieces save an exp per node */
             if (r2 - rb <= scale) {
                 piece_outer_linear(w, &e, rb, r2, &s);
+            } else if (r2 - rb <= OUTER_LONG_SCALES * scale) {
+                piece_outer_linear_long(w, &e, rb, r2, &s);
             } else {
                 bad_span |= pieces_linear(w, &e, rb, r2 - scale, 1.5 * scale, &s);
                 piece_outer_linear_long(w, &e, r2 - scale, r2, &s);
@@ -818,7 +753,7 @@ static int orbit_integrals(wkb_well *w, double binding, wkb_orbit *orbit, double
             if (Y <= GSL_MIN(COMPACT_LOG_LENGTH, L_end)) {
                 if (Y > 0)
                     piece_outer_linear(w, &e, rb, r2, &s);
-            } else if (Y <= L_end) {
+            } else if (Y <= POWER_LONG_FACTOR * L_end) {
                 piece_outer_end(w, &e, y2, Y, &s);
             } else {
                 bad_span |= pieces_log(w, &e, yb, y2 - L_end, &s);
@@ -827,6 +762,7 @@ static int orbit_integrals(wkb_well *w, double binding, wkb_orbit *orbit, double
         }
     }
 
+    flush_nodes(w, &e, &s);
     if (bad_span)
         return wkb_fail(err, WKB_ENUMERIC,
                         "the orbit at E=%.12g cm-1 (turning points %g, %g A) would need more than %d quadrature "
@@ -849,73 +785,4 @@ static int orbit_integrals(wkb_well *w, double binding, wkb_orbit *orbit, double
     if (!isfinite(orbit->action) || (!infinite && !action_only && !(orbit->half_period > 0)))
         return wkb_fail(err, WKB_ENUMERIC, "the phase integrals are not finite at E=%.12g cm-1", e.E);
     return WKB_SUCCESS;
-}
-
-/* The quadrature check of a well set-up (settings.check_nodes). The Gauss rule converges geometrically on
-   the smooth pieces, but at a rate set by the potential: 32 nodes give 1e-12 cm-1 on a Morse or LJ well and
-   5e-6 cm-1 on a deep MLR whose inner wall the inner piece resolves poorly (tests/test_quadrature_accuracy.py).
-   The action is compared with the rule of twice the nodes at a few energies; where the levels would move by
-   more than WKB_QUADRATURE_TOL the nodes are doubled (up to 8x) until the next doubling agrees; twice the
-   last difference and a floor are added to every level's error (quad_error). A point-wise
-   curve converges only algebraically (its cubic pieces): levels.py bounds its error by the 64-node rule. */
-/* The pieces' layout changes with the energy (the outer piece reaches its length limit, a piece is added),
-   and the 32-node rule loses a little in narrow bands next to those switches, which one check energy does not
-   see: up to 4e-14 of the depth on the test wells (Morse, LJ, J = 0 and 20). Every level's error carries
-   this floor with a margin. */
-#define QUADRATURE_FLOOR 1e-13
-#define CHECK_FRACTIONS 1
-static const double check_fraction[CHECK_FRACTIONS] = {0.8}; /* (E - bottom) / depth */
-
-static void choose_rule(wkb_well *w)
-{
-    if (w->pot.model == &wkb_model_pointwise || !(w->bottom < w->bound_top))
-        return;
-    const size_t n_orbits = w->n_orbits;
-    const double depth = w->bound_top - w->bottom;
-    /* the tolerance, above the levels' rounding (1e-14 of the depth, 16 units of it) */
-    const double tol = GSL_MAX(WKB_QUADRATURE_TOL, 16e-14 * depth);
-    double b[CHECK_FRACTIONS], coarse[CHECK_FRACTIONS], fine[CHECK_FRACTIONS] = {0}, slope[CHECK_FRACTIONS];
-    wkb_orbit o;
-    for (int k = 0; k < CHECK_FRACTIONS; k++) {
-        const double rise = check_fraction[k] * depth;
-        b[k] = w->top - (w->bottom + rise);
-        if (orbit_integrals(w, b[k], &o, NULL, 1, NULL))
-            goto done; /* the level search reports what fails there */
-        coarse[k] = o.action;
-        /* dI/dE, which turns an action error into a level's: I(E) is convex in a well whose period grows
-           with E, so dI/dE >= I/(E - bottom) and the level error is at most dI (E - bottom)/I */
-        slope[k] = o.action / rise;
-    }
-    int level = 0;
-    double worst = 0;
-    while (level + 1 < WKB_RULE_LEVELS) {
-        if (make_rules(w, level + 1))
-            break; /* out of memory: keep the rule in use */
-        use_rules(w, level + 1);
-        worst = 0;
-        for (int k = 0; k < CHECK_FRACTIONS; k++) {
-            if (orbit_integrals(w, b[k], &o, NULL, 1, NULL)) {
-                worst = INFINITY;
-                break;
-            }
-            fine[k] = o.action;
-            worst = GSL_MAX(worst, fabs(fine[k] - coarse[k]) / slope[k]);
-        }
-        if (!(worst > tol)) {
-            use_rules(w, level); /* the rule in use agrees with twice its nodes */
-            w->quad_error = 2 * worst + QUADRATURE_FLOOR * depth;
-            goto done;
-        }
-        if (!isfinite(worst))
-            break;
-        level++;
-        memcpy(coarse, fine, sizeof coarse);
-    }
-    /* the finest rule still differs from the one before it (or failed): keep the finest that worked,
-       its remaining error bounded by the last difference */
-    use_rules(w, level);
-    w->quad_error = (isfinite(worst) ? 2 * worst : 0) + QUADRATURE_FLOOR * depth;
-done:
-    w->n_orbits = n_orbits; /* the count is of the orbits of the level searches */
-    w->have_last_tp = 0;
 }

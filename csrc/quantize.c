@@ -190,6 +190,13 @@ static int cached(const wkb_well *w, size_t v)
 static double first_guess(const wkb_well *w, size_t v, double w_bottom)
 {
     const double h = M_PI;
+    if (v >= 4 && cached(w, v - 1) && cached(w, v - 2) && cached(w, v - 3) && cached(w, v - 4)) {
+        /* Hermite of degree 7 through the four levels below, one step on: O(h^8), which leaves the levels
+           next to an MLR threshold (where the quintic's needs a second orbit) within the tolerance after one */
+        const double *cw = w->cache_w + v - 4, *cs = w->cache_slope + v - 4; /* cw[3]: level v - 1 */
+        return (47 * cw[0] + 192 * cw[1] - 108 * cw[2] - 128 * cw[3]) / 3 +
+               h * (4 * cs[0] + 48 * cs[1] + 72 * cs[2] + 16 * cs[3]);
+    }
     if (v >= 3 && cached(w, v - 1) && cached(w, v - 2) && cached(w, v - 3)) {
         /* quintic Hermite through the three levels below, one step on: its error, O(h^6), leaves most
            levels of a smooth well (MLR, EMO) within the tolerance after one orbit, where the cubic's needs two */
@@ -365,6 +372,10 @@ static int solve_first_order(wkb_well *w, size_t v, wkb_level *level, double *av
         dE = fabs(bn - b);
         const double db_dw = binding_slope(wn, alpha);
         const double predicted = fabs(curvature / (2 * dFdw)) * (wn - wg) * (wn - wg) * db_dw;
+        /* dw/dI at the new iterate, carried from the orbit's by F'': the extrapolation of the next levels
+           weighs the slopes heavily, and the orbit's own is one Newton step off */
+        if (isfinite(curvature) && fabs(curvature * (wn - wg)) < 0.1 * fabs(dFdw))
+            slope = 1 / (dFdw + curvature * (wn - wg));
         wg = wn;
         if (dE <= tol) {
             converged = 1;
@@ -569,9 +580,20 @@ int wkb_all_levels(wkb_well *w, wkb_level *levels, size_t capacity, size_t *coun
     size_t done = 0; /* a few orbits instead of one or two per level (action_interpolant.c) */
     if (w->set.order == 1 && w->set.ends == WKB_ENDS_MASLOV && wkb_interpolant_levels(w, levels, n, &done))
         done = 0;
-    for (size_t v = done; v < n; v++)
+    /* first order with fixed phases in a well with one minimum: the first orbit of level v starts its
+       turning points from their cubic extrapolation over the four levels below (equally spaced in the
+       action), one or two Halley steps a side, instead of from the level below's (three or four) */
+    const int extrapolate_tp = w->set.order == 1 && w->set.ends == WKB_ENDS_MASLOV && w->n_ext == 1;
+    for (size_t v = done; v < n; v++) {
+        if (extrapolate_tp && v >= 4) {
+            const wkb_level *L = levels + v;
+            w->last_tp[0] = 4 * (L[-1].r_inner + L[-3].r_inner) - 6 * L[-2].r_inner - L[-4].r_inner;
+            w->last_tp[1] = 4 * (L[-1].r_outer + L[-3].r_outer) - 6 * L[-2].r_outer - L[-4].r_outer;
+            w->have_last_tp = w->last_tp[0] > 0 && w->last_tp[0] < w->r_bottom && w->last_tp[1] > w->r_bottom;
+        }
         if ((status = solve_level(w, v, &levels[v], NULL, err)))
             return status;
+    }
     for (size_t v = 0; v < n; v++)
         levels[v].error += w->quad_error; /* what the finest rule may miss (0 where a rule converged) */
     return WKB_SUCCESS;

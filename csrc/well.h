@@ -110,6 +110,12 @@ void wkb_matched_note_defect(wkb_well *w, size_t v, double binding, double defec
    Bv and curvature sums (NaN in orbit): a check of a level found otherwise */
 int wkb_orbit_action_at(wkb_well *w, double binding, wkb_orbit *orbit, wkb_error *err);
 
+/* quadrature_rules.c: makes the rule of base_nodes << level nodes (0 made, 1 out of memory), switches the
+   orbit integrals to it, and checks the rule of a well just set up (settings.check_nodes) */
+int wkb_rules_make(wkb_well *w, int level);
+void wkb_rules_use(wkb_well *w, int level);
+void wkb_rules_check(wkb_well *w);
+
 /* action_interpolant.c: levels 0..*done-1 of the n of a first-order well with fixed phases from an
    interpolant of the action (the caller solves levels *done..n-1 directly, seeded by these); 0 when done,
    nonzero when it declines (*done = 0: the caller then solves every level directly) */

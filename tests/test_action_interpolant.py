@@ -152,3 +152,66 @@ def test_every_level_meets_the_quantization_condition(name, path):
                     h = 1e-7 * r
                     slope = abs(pot(np.array([r + h]))[0] - pot(np.array([r - h]))[0]) / (2 * h)
                     assert abs(r - root) <= 1e-13 * r + 4e-16 * depth / slope, (name, col, r, root)
+
+
+# -- the sweep's speed-ups against the converged quadrature (helper DD, issue 10) --------------------------------
+# The reference: the direct per-level solver (a list of v) with an explicit 256-node rule (no refinement), whose
+# own scatter is measured beside by the 128-node rule. The all-levels path (the interpolant where it is taken,
+# the direct sweep with its degree-7 first guess, extrapolated turning points, the outer pieces merged) must stay
+# within 1e-8 cm-1 of it and within its error column.
+@pytest.mark.parametrize("name", [n for n in CASES if "point-wise" not in n])
+def test_all_levels_against_the_direct_sweep_at_256_nodes(name):
+    pot, mu = CASES[name]
+    model, params, curve = pot._core_args()
+    fast = wkbfit._core.wkb_levels(model, params, curve, mu, 0.0)
+    v = np.arange(len(fast["energy"]))
+    ref = wkbfit._core.wkb_levels(model, params, curve, mu, 0.0, v, nodes=256)
+    ref128 = wkbfit._core.wkb_levels(model, params, curve, mu, 0.0, v, nodes=128)
+    dev = np.abs(fast["energy"] - ref["energy"])
+    scatter = np.abs(ref128["energy"] - ref["energy"])
+    assert dev.max() <= 1e-8, (name, dev.max())
+    assert np.all(dev <= 2 * fast["error"] + 2 * scatter), name
+
+
+def test_deep_mlr_declines_to_the_direct_sweep():
+    # the deep MLR: the interpolant now declines after its first failed 16-interval piece (fewer levels than
+    # orbits); what it returns is the direct sweep's, every level at its own orbit: Bv agrees with an orbit at
+    # the level's energy as the direct levels' do (1e-5 relative near threshold, see above), and the
+    # quantization condition holds within 1e-8 cm-1 (the orbit's action at the 64-node rule this well takes)
+    pot, mu = CASES["MLR, deep"]
+    model, params, curve = pot._core_args()
+    fast, direct = both(pot, mu)
+    assert np.max(np.abs(fast.energy - direct.energy)) <= 1e-9 + 4e-14 * 12000.0
+    o = wkbfit._core.wkb_orbits(model, params, curve, mu, 0.0, fast.binding_energy)
+    assert np.max(np.abs(o["action"] - np.pi * (fast.v + 0.5)) / o["half_period"]) <= 1e-8
+    assert np.allclose(fast.Bv, o["Bv"], rtol=1e-5)
+
+
+@pytest.mark.parametrize("name", [n for n in CASES if "point-wise" not in n])
+@pytest.mark.parametrize("J", [0, 20])
+def test_cold_turning_points_from_the_scan(name, J):
+    # one orbit a call: its turning points start cold, from the chord between the stored scan points
+    # bracketing them (orbit.c scan_turning_point), then Halley steps. They must be the roots of
+    # V_J(r) = E that scipy.optimize.brentq finds on the NumPy potential (1e-13 relative plus the root's
+    # sensitivity to a rounding of V), from just above the bottom to just below the top of the well
+    pot, mu = CASES[name]
+    model, params, curve = pot._core_args()
+    rot = float(J * (J + 1))
+    t = wkbfit.levels(pot, mu, J=J, order=1, ends="maslov")
+    eps = wkbfit.HBAR2_OVER_2U / mu
+    bottom = t.energy[0] - 0.5 * t.dEdv[0]  # roughly the well's bottom (half a quantum below v = 0)
+    top = t.energy[0] + t.binding_energy[0]
+    bindings = [b for b in (top - bottom - 1e-3 * t.dEdv[0], t.binding_energy[0], 0.5 * (top - bottom),
+                            t.binding_energy[len(t) // 2], t.binding_energy[-1]) if b > 1e-6 * (top - bottom)]
+
+    def VJ(r):
+        return pot(np.array([r]))[0] + eps * rot / r ** 2
+    for b in bindings:
+        o = wkbfit._core.wkb_orbits(model, params, curve, mu, rot, np.array([b]))
+        E = top - b
+        for col in ("inner_turning_point", "outer_turning_point"):
+            r = o[col][0]
+            root = brentq(lambda x: VJ(x) - E, r * (1 - 1e-5), r * (1 + 1e-5), xtol=1e-16, rtol=8.9e-16)
+            h = 1e-7 * r
+            slope = abs(VJ(r + h) - VJ(r - h)) / (2 * h)
+            assert abs(r - root) <= 1e-13 * r + 4e-16 * (top - bottom) / slope, (name, J, b, col, r, root)

@@ -180,3 +180,22 @@ def test_fit_evaluations_use_the_refined_rule():
         v = np.arange(len(ref), dtype=np.intc)
         calc, _ = _core.fit_evaluate(model, p, curve, v, np.full(len(v), J * (J + 1.0)), np.full(len(v), MU_DEEP), 0, 0)
         assert np.max(np.abs(calc - ref)) < 1e-8, (J, np.max(np.abs(calc - ref)))
+
+
+# quad reports reaching rounding at epsrel 2e-14 on some subintervals: the asserted agreement is the check
+@pytest.mark.filterwarnings("ignore::scipy.integrate.IntegrationWarning")
+@pytest.mark.parametrize("index", [0, 1, 3, 4, 5])
+def test_merged_outer_pieces_against_scipy_quad(index):
+    # near the top of a well the outer side of an orbit up to 2 local lengths (exponential tail) or twice the
+    # end piece's log length (inverse-power tail) is one end piece of 32 nodes (orbit.c, OUTER_LONG_SCALES,
+    # POWER_LONG_FACTOR): the action there against scipy.integrate.quad (relative 1e-12), at binding energies
+    # from 0.2 % to 12 % of the depth, where the outer turning point lies 1.5 to 5 r_e out
+    name, pot, mu = models()[index]
+    model, params, curve = pot._core_args()
+    De = pot.params["De"]
+    b = De * np.array([0.002, 0.01, 0.03, 0.06, 0.12])
+    o = wkbfit._core.wkb_orbits(model, params, curve, mu, 0.0, b)
+    eps = wkbfit.HBAR2_OVER_2U / mu
+    for k in range(len(b)):
+        ref = _action(_depth(pot), eps, b[k], pot.params["re"])
+        assert abs(o["action"][k] - ref) <= 1e-12 * ref, (name, b[k], o["action"][k] - ref)

@@ -8,6 +8,7 @@ two threads against one (the core releases the GIL).
 
 Targets (issue 2): <= 5 us per level on one core; >= 1000x the SciPy baseline; >= 1.8x with
 two threads on two cores; (issue 10) <= 0.6 us per level in the core.
+Times of single calls are the calling thread's CPU time (time.thread_time), the SciPy baseline's too.
 Run: python3 tests/benchmarks/bench_wkb.py [--against PATH]
 --against PATH: another build of the extension (wkbfit/_core*.so, e.g. one built from an earlier
 commit) loaded into this process beside this one: its core times are printed beside this build's,
@@ -29,7 +30,18 @@ from scipy.integrate import IntegrationWarning
 sys.path.insert(0, os.path.join(os.path.dirname(__file__), "..", "..", "pkg"))
 import wkbfit  # noqa: E402
 from scipy_wkb import ScipyWKB  # noqa: E402  (tests/benchmarks/scipy_wkb.py)
-from timing import time_call  # noqa: E402  (tests/benchmarks/timing.py)
+
+
+def cpu_call(fn, min_time=0.5):
+    """Mean CPU time of this thread per call of fn, repeated for at least min_time CPU seconds: on a machine
+    shared with other work the wall time of a call varies with the load, the thread's own CPU time much less."""
+    n, t0 = 0, time.thread_time()
+    while True:
+        fn()
+        n += 1
+        dt = time.thread_time() - t0
+        if dt >= min_time:
+            return dt / n
 
 
 def other_models():
@@ -77,24 +89,24 @@ def main():
         n = len(table)
         model, params, curve = pot._core_args()
         vs = np.arange(n)
-        t_py = time_call(lambda: wkbfit.levels(pot, mu, order=1, ends="maslov"))
+        t_py = cpu_call(lambda: wkbfit.levels(pot, mu, order=1, ends="maslov"))
         # the core alone: all levels (the action interpolant where it applies), and the direct
         # per-level sweep that a list of v takes (the path before the interpolant)
-        t_core = min(time_call(lambda: wkbfit._core.wkb_levels(model, params, curve, mu, 0.0), 0.3)
+        t_core = min(cpu_call(lambda: wkbfit._core.wkb_levels(model, params, curve, mu, 0.0), 0.3)
                      for _ in range(3))
         if other is not None:
             # interleaved with this build's, five rounds, the best of each
             mine, theirs = [t_core], []
             for _ in range(5):
-                theirs.append(time_call(lambda: other.wkb_levels(model, params, curve, mu, 0.0), 0.3))
-                mine.append(time_call(lambda: wkbfit._core.wkb_levels(model, params, curve, mu, 0.0), 0.3))
+                theirs.append(cpu_call(lambda: other.wkb_levels(model, params, curve, mu, 0.0), 0.3))
+                mine.append(cpu_call(lambda: wkbfit._core.wkb_levels(model, params, curve, mu, 0.0), 0.3))
             t_core, t_other = min(mine), min(theirs)
             e_other = other.wkb_levels(model, params, curve, mu, 0.0)["energy"]
-        t_direct = min(time_call(lambda: wkbfit._core.wkb_levels(model, params, curve, mu, 0.0, vs), 0.3)
+        t_direct = min(cpu_call(lambda: wkbfit._core.wkb_levels(model, params, curve, mu, 0.0, vs), 0.3)
                        for _ in range(3))
-        t0 = time.perf_counter()
+        t0 = time.thread_time()
         ref = ScipyWKB(pot.model, list(pot.params.values()), mu).all_levels()
-        t_scipy = time.perf_counter() - t0
+        t_scipy = time.thread_time() - t0
         diff = np.max(np.abs(ref - table.energy[: len(ref)]))
         print("\n%s: %d levels (first order)" % (name, n))
         print("  core, all levels  : %9.2f us/level   (target <= 0.6 us/level: %s)"
@@ -118,9 +130,9 @@ def main():
         n = len(wkbfit._core.wkb_levels(model, params, curve, mu, 0.0)["energy"])
         mine, theirs = [], []
         for _ in range(3):
-            mine.append(time_call(lambda: wkbfit._core.wkb_levels(model, params, curve, mu, 0.0), 0.2))
+            mine.append(cpu_call(lambda: wkbfit._core.wkb_levels(model, params, curve, mu, 0.0), 0.2))
             if other is not None:
-                theirs.append(time_call(lambda: other.wkb_levels(model, params, curve, mu, 0.0), 0.2))
+                theirs.append(cpu_call(lambda: other.wkb_levels(model, params, curve, mu, 0.0), 0.2))
         line = "  %-32s %4d levels: %7.2f us/level" % (name, n, min(mine) / n * 1e6)
         if other is not None:
             line += "   other build %7.2f (this build %.2fx faster)" % (min(theirs) / n * 1e6, min(theirs) / min(mine))
@@ -177,7 +189,7 @@ def small_call(pot, mu):
     runs = {k: [] for k in calls}
     for _ in range(5):
         for k, fn in calls.items():
-            runs[k].append(time_call(fn, min_time=0.2))
+            runs[k].append(cpu_call(fn, min_time=0.2))
     best = {k: min(x) for k, x in runs.items()}
     ratios = [g / s for g, s in zip(runs["general (before)"], runs["lean (default)"])]
     print("\nsmall call levels(pot, mu, v=[0]) (matched rule; best of 5 interleaved runs):")
