@@ -241,9 +241,10 @@ typedef struct {
     double match_decay;    /* matched ends: the exact solution starts where integral kappa dr reaches this */
     double match_ode_tol;  /* matched ends: absolute tolerance of the phase ODE per step, radians */
     int match_rule;        /* matched ends: 0 chooses per level; WKB_RULE_MATCHED or WKB_RULE_ACROSS forces one */
-    int match_milne;       /* matched ends: 1 (default) the allowed stretch where WKB holds in phase-amplitude form and
-                              the tolerance per step from each level's need; 0 the earlier solve (Pruefer all the way,
-                              match_ode_tol throughout), kept for comparison */
+    int match_milne;       /* matched ends: 1 (default) Magnus steps through the turning region (magnus.c), the allowed
+                              stretch where WKB holds in phase-amplitude form, the tolerance per step from each
+                              level's need; 2 the same with rk8pd through the turning region; 0 the earlier solve
+                              (Pruefer all the way, match_ode_tol throughout); 2 and 0 are kept for comparison */
 } wkb_settings;
 enum wkb_ends { WKB_ENDS_MASLOV = 0, WKB_ENDS_MATCHED = 1 };
 wkb_settings wkb_default_settings(void);
