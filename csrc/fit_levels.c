@@ -8,8 +8,11 @@
  * workspace is set once per evaluation. Each first-order level starts its Newton iteration from
  * its own value at the evaluator's previous evaluation carried linearly to the new parameters,
  * E + sum_k dE/dp_k dp_k (the error is second order in the step, so that late Levenberg-Marquardt
- * iterations need one orbit per level); at the first evaluation, from the same v at the previous
- * J(J+1) of that reduced mass, E' + B_v' (x - x'); else from the neighbouring v (quantize.c).
+ * iterations need one orbit per level), corrected by the miss of that linear guess at the rows
+ * solved just before it in the same well (extrapolated in v) or at the same v of the previous J(J+1)
+ * (the miss is smooth: it lets early, large steps start as close); at the first evaluation, from the
+ * same v at the previous J(J+1) of that reduced mass, E' + B_v' (x - x'); else from the neighbouring
+ * v (quantize.c).
  * Everything is allocated with the evaluator; nothing is allocated per level or per evaluation.
  * Threads: the sorted rows are cut into contiguous parts, one per thread, each with its own well
  * workspace; a cut falls between reduced masses where that balances the parts, else between two
@@ -351,24 +354,79 @@ static int level_of(fit_part *part, int v, double seed_E, int strong, double *en
     return WKB_SUCCESS;
 }
 
-/* The first guess of sorted row s (NAN: none), see the file comment; *strong when it comes from the
-   previous evaluation and the level moved by less than SEED_STRONG_CHANGE cm-1 since (a larger move is
-   left to the neighbours' extrapolation where it exists). Measured in orbits per level and evaluation:
-   1e-3 to 1 cost the same on the 20 000-level Lennard-Jones fit (1.10-1.12; 1.15-1.18 unseeded), 1 the
-   fewest on the 500-level MLR scan fit (1.49-1.63; 2.1-2.3 unseeded, 1.45-1.64 always seeded). */
-#define SEED_STRONG_CHANGE 1.0
-static double seed_of(const wkb_row_evaluator *ev, const wkb_potential *pot, size_t s, int *strong)
+/* The linear change of sorted row s's level since the last evaluation, sum_k dE/dp_k (p_k - seed_p_k). */
+static double seed_change(const wkb_row_evaluator *ev, const wkb_potential *pot, size_t s)
 {
     const size_t np = pot->model->n_params;
+    double change = 0;
+    for (size_t k = 0; k < np; k++)
+        change += ev->seed_dE[s * np + k] * (pot->p[k] - ev->seed_p[k]);
+    return change;
+}
+
+/* How far the linear guess of sorted row s (solved already in this evaluation) was from its level. */
+static double seed_miss(const wkb_row_evaluator *ev, const wkb_potential *pot, size_t s)
+{
+    return ev->cur_E[s] - (ev->seed_E[s] + seed_change(ev, pot, s));
+}
+
+/* The polynomial through (x[i], y[i]), i < n (n = 1..3, distinct x), at x0. */
+static double lagrange_at(double x0, const double *x, const double *y, size_t n)
+{
+    double sum = 0;
+    for (size_t i = 0; i < n; i++) {
+        double term = y[i];
+        for (size_t j = 0; j < n; j++)
+            if (j != i)
+                term *= (x0 - x[j]) / (x[i] - x[j]);
+        sum += term;
+    }
+    return sum;
+}
+
+/* The first guess of sorted row s (NAN: none), see the file comment; *strong when it is to be taken
+   over the neighbours' extrapolation.
+   With a previous evaluation: its level moved linearly, seed_E + dE/dp (p - seed_p). Where rows solved
+   before it in this evaluation by this part (rows lo..s-1) tell how far that linear guess misses, the
+   miss is added, extrapolated linearly in v along the well (rows s-1, s-2), else taken from the same v
+   at the previous J: the miss varies slowly along a well and with J, and the guess so corrected is
+   strong. Measured on the first step of the 50-level fits of tests/benchmarks/bench_fit.py: the linear
+   guess alone misses levels v = 2..10 by 0.1-0.5 cm-1 (two orbits each), the corrected one by 5e-4 (one
+   orbit); orbits of the whole fits 290, 214, 308 -> 274, 211, 280.
+   Without such rows: the linear guess, strong when the level moved by less than SEED_STRONG_CHANGE
+   cm-1 (a larger move is left to the neighbours' extrapolation where it exists). Measured in orbits per
+   level and evaluation: 1e-3 to 1 cost the same on the 20 000-level Lennard-Jones fit (1.10-1.12;
+   1.15-1.18 unseeded), 1 the fewest on the 500-level MLR scan fit (1.49-1.63; 2.1-2.3 unseeded,
+   1.45-1.64 always seeded). */
+#define SEED_STRONG_CHANGE 1.0
+static double seed_of(const wkb_row_evaluator *ev, const wkb_potential *pot, size_t lo, size_t s, int *strong)
+{
     *strong = 0;
     if (ev->source)
         return NAN;
     if (ev->have_seed) {
-        double change = 0;
-        for (size_t k = 0; k < np; k++)
-            change += ev->seed_dE[s * np + k] * (pot->p[k] - ev->seed_p[k]);
+        const double change = seed_change(ev, pot, s), linear = ev->seed_E[s] + change;
+        double miss = NAN;
+        if (s >= lo + 1 && !starts_group(ev, s)) {
+            /* the misses of up to three rows before it in the well, through a polynomial in v */
+            double xv[3], m[3];
+            size_t k = 0;
+            for (; k < 3 && s >= lo + k + 1 && (k == 0 || !starts_group(ev, s - k)); k++) {
+                xv[k] = ev->data->v[ev->order[s - k - 1]];
+                m[k] = seed_miss(ev, pot, s - k - 1);
+                if (k && xv[k] == xv[k - 1])
+                    break; /* (the same v twice: no slope) */
+            }
+            miss = lagrange_at(ev->data->v[ev->order[s]], xv, m, k);
+        } else if (ev->prev_j[s] >= (long)lo) {
+            miss = seed_miss(ev, pot, (size_t)ev->prev_j[s]);
+        }
+        if (isfinite(miss)) {
+            *strong = 1;
+            return linear + miss;
+        }
         *strong = fabs(change) <= SEED_STRONG_CHANGE;
-        return ev->seed_E[s] + change;
+        return linear;
     }
     const long p = ev->prev_j[s];
     if (p >= 0 && isfinite(ev->cur_Bv[p]))
@@ -430,7 +488,7 @@ static void *evaluate_part(void *arg)
         }
         double E, Bv = NAN;
         int strong;
-        const double seed = seed_of(ev, pot, s, &strong);
+        const double seed = seed_of(ev, pot, part->lo, s, &strong);
         if ((status = level_of(part, d->v[i], seed, strong, &E, &Bv, want_dE ? dE : NULL, err)))
             break;
         if (!ev->source) {

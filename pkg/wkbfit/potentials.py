@@ -60,16 +60,21 @@ class Potential:
                 raise ValueError("%s parameter %s=%r is not a number" % (type(self).__name__, n, params[n])) from None
         self._params = np.array(values, dtype=float)
         self._params.setflags(write=False)
-        # the core checks the values and raises ValueError naming the bad one
-        _core.potential_values(self.model, self._params, np.empty(0), self._curve())
-        self._check_working_range()
+        # the core checks the values and raises ValueError naming the bad one; with re inside its working range
+        # the same call gives V over the range the solvers scan (one core call, not two, per potential)
+        re_value = float(self._params[names.index("re")]) if "re" in names else math.nan
+        in_range = self.RE_RANGE[0] <= re_value <= self.RE_RANGE[1]
+        r = re_value * _WORKING_RANGE_GRID if in_range else np.empty(0)
+        vals = _core.potential_values(self.model, self._params, r, self._curve())
+        self._check_working_range(vals if in_range else None)
 
     #: working range of the analytic models' re (angstrom) and De (cm-1): far beyond any molecule,
     #: but inside the range where the solvers' length and energy scales stay finite
     RE_RANGE = (1e-3, 1e4)
     DE_MAX = 1e9
 
-    def _check_working_range(self):
+    def _check_working_range(self, vals=None):
+        """vals: the core's values on p["re"] * _WORKING_RANGE_GRID when already computed."""
         p = dict(zip(self.param_names, self._params.tolist()))
         owner = type(self).__name__
         if "re" in p and not self.RE_RANGE[0] <= p["re"] <= self.RE_RANGE[1]:
@@ -81,7 +86,12 @@ class Potential:
         if "re" in p:
             # V must be finite over the range the solvers scan (a few percent of re to 60 re)
             r = p["re"] * _WORKING_RANGE_GRID
-            vals = _core.potential_values(self.model, self._params, r, self._curve())
+            if vals is None:
+                vals = _core.potential_values(self.model, self._params, r, self._curve())
+            # (a finite sum of squares proves every value finite: 1/3 of the elementwise test's cost, which
+            # still decides whenever the sum is not finite)
+            if math.isfinite(vals[0] @ vals[0] + vals[1] @ vals[1] + vals[3] @ vals[3]):
+                return
             bad = ~(np.isfinite(vals[0]) & np.isfinite(vals[1]) & np.isfinite(vals[3]))
             if np.any(bad & (r >= 0.5 * p["re"])):
                 k = int(np.flatnonzero(bad & (r >= 0.5 * p["re"]))[0])

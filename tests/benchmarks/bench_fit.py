@@ -34,6 +34,16 @@ interleaved with a copy of the tree before the Python part was cut: whole fit() 
 2.27-2.37 ms (before 1.14-1.23, 1.23-1.27, 2.51 ms); the Python part alone (core calls answered from a
 cache) 0.26-0.31, 0.31, 0.29-0.32 ms (before 0.45-0.47, 0.48-0.54, 0.51-0.59 ms); the C run alone
 1044-1107x, 1242-1317x, 1054-1141x; the check's matched-rule levels 0.26-0.28, 0.27-0.29, 0.64-0.66 ms.
+Issue 10 (helper HH), two runs each interleaved with a build of main at 2763b5c (same load): whole fit() 434-437x,
+424-435x, 550-568x (before 426-432x, 420-450x, 536-556x: the same within the noise of ~3 %); the C run of the
+4-parameter fit 0.99-1.00 ms (before 1.07-1.08 ms: first-order orbits 308 -> 280, the seeds corrected by the
+misses of the levels below, csrc/fit_levels.c; Morse 290 -> 274 and LJ 2 par. 214 -> 211 orbits, their C runs
+unchanged within noise); the default fits 6.46-6.63, 5.29-5.36, 7.76-8.10 ms (before 6.64-6.82, 5.26-5.29,
+7.83-7.97). Where the C run's time goes (perf, per evaluation and max_iterations = 0..4): GSL and csrc/fit.c's
+bookkeeping are below 3 %; the run is 1 + n_eval evaluations of the 50 levels (n_eval counts the solver's, not
+the start's), each ~1.1 orbits per level, and the first step's orbits were the only excess; v = 0 and 1 of
+each well take 2-3 orbits in every evaluation however close their start (the Newton test has no curvature
+from neighbours there; quantize.c). The 4-parameter Lennard-Jones levels spend a third of their time in pow().
 1000x is out of reach for the whole fit: the C Levenberg-Marquardt run alone (3-4 steps of 50 first-order
 levels with their Jacobian, ~5.5 evaluations' worth of time) is at about 1000-1300x, and the check's one
 core call of matched-rule levels (second-order WKB: five orbits per level for dK/dE) costs 0.6-0.7 of it.
