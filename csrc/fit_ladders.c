@@ -84,23 +84,6 @@ static int ladder_before(const wkb_fit_data *d, size_t a, size_t b)
     return d->rot[a] < d->rot[b];
 }
 
-static void sort_ladders(const wkb_fit_data *d, size_t *idx, size_t *scratch, size_t n)
-{
-    for (size_t width = 1; width < n; width *= 2) {
-        for (size_t lo = 0; lo < n; lo += 2 * width) {
-            const size_t mid = GSL_MIN(lo + width, n), hi = GSL_MIN(lo + 2 * width, n);
-            size_t i = lo, j = mid, k = lo;
-            while (i < mid && j < hi)
-                scratch[k++] = ladder_before(d, idx[j], idx[i]) ? idx[j++] : idx[i++];
-            while (i < mid)
-                scratch[k++] = idx[i++];
-            while (j < hi)
-                scratch[k++] = idx[j++];
-        }
-        memcpy(idx, scratch, n * sizeof *idx);
-    }
-}
-
 static int same_ladder(const wkb_fit_data *d, size_t a, size_t b)
 {
     return d->mu[a] == d->mu[b] && d->v[a] == d->v[b] &&
@@ -189,7 +172,7 @@ static int make_plan(wkb_fit_evaluator *ev)
         goto done;
     for (size_t i = 0; i < n; i++)
         idx[i] = i;
-    sort_ladders(d, idx, scratch, n);
+    wkb_rows_sort(d, idx, scratch, n, ladder_before);
     /* count the ladders that qualify (and their rows) first */
     size_t n_ladders = 0, n_interp = 0, n_mu = 0;
     for (size_t a = 0, b; a < n; a = b) {

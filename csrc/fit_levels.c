@@ -110,15 +110,17 @@ static int row_before(const wkb_fit_data *d, size_t a, size_t b)
     return d->v[a] < d->v[b];
 }
 
-/* Stable bottom-up merge sort of idx[n] (scratch[n] is work space). */
-static void sort_rows(const wkb_fit_data *d, size_t *idx, size_t *scratch, size_t n)
+/* Stable bottom-up merge sort of idx[n] by before(d, a, b) (scratch[n] is work space); the rows' and the
+   ladders' orders (fit_ladders.c) both use it. */
+void wkb_rows_sort(const wkb_fit_data *d, size_t *idx, size_t *scratch, size_t n,
+                   int (*before)(const wkb_fit_data *, size_t, size_t))
 {
     for (size_t width = 1; width < n; width *= 2) {
         for (size_t lo = 0; lo < n; lo += 2 * width) {
             const size_t mid = GSL_MIN(lo + width, n), hi = GSL_MIN(lo + 2 * width, n);
             size_t i = lo, j = mid, k = lo;
             while (i < mid && j < hi)
-                scratch[k++] = row_before(d, idx[j], idx[i]) ? idx[j++] : idx[i++];
+                scratch[k++] = before(d, idx[j], idx[i]) ? idx[j++] : idx[i++];
             while (i < mid)
                 scratch[k++] = idx[i++];
             while (j < hi)
@@ -268,7 +270,7 @@ wkb_row_evaluator *wkb_rows_alloc(const wkb_fit_data *data, const wkb_settings *
         goto nomem;
     for (size_t i = 0; i < data->n; i++)
         ev->order[i] = i;
-    sort_rows(data, ev->order, scratch, data->n);
+    wkb_rows_sort(data, ev->order, scratch, data->n, row_before);
     free(scratch);
     scratch = NULL;
     if (!source && set_prev_j(ev))

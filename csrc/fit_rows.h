@@ -16,5 +16,8 @@ int wkb_rows_evaluate(wkb_row_evaluator *ev, const wkb_potential *pot, double *c
 size_t wkb_rows_level_calculations(const wkb_row_evaluator *ev);
 size_t wkb_rows_orbits(const wkb_row_evaluator *ev);
 size_t wkb_rows_threads(const wkb_row_evaluator *ev);
+/* stable merge sort of idx[n] by before(d, a, b); scratch[n] is work space */
+void wkb_rows_sort(const wkb_fit_data *d, size_t *idx, size_t *scratch, size_t n,
+                   int (*before)(const wkb_fit_data *, size_t, size_t));
 
 #endif
