@@ -30,18 +30,12 @@ from scipy.integrate import IntegrationWarning
 sys.path.insert(0, os.path.join(os.path.dirname(__file__), "..", "..", "pkg"))
 import wkbfit  # noqa: E402
 from scipy_wkb import ScipyWKB  # noqa: E402  (tests/benchmarks/scipy_wkb.py)
+from timing import time_call  # noqa: E402  (tests/benchmarks/timing.py)
 
 
 def cpu_call(fn, min_time=0.5):
-    """Mean CPU time of this thread per call of fn, repeated for at least min_time CPU seconds: on a machine
-    shared with other work the wall time of a call varies with the load, the thread's own CPU time much less."""
-    n, t0 = 0, time.thread_time()
-    while True:
-        fn()
-        n += 1
-        dt = time.thread_time() - t0
-        if dt >= min_time:
-            return dt / n
+    """Mean CPU time of this thread per call of fn (see timing.time_call)."""
+    return time_call(fn, min_time, time.thread_time)
 
 
 def other_models():
