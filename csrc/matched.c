@@ -532,7 +532,7 @@ int wkb_matched_solve(wkb_well *w, size_t v, int across, int second_start, wkb_l
        (~1e-5): the first phase evaluation (and its probe) takes the outer end at a looser tolerance, which
        only has to place the next step well within that range (seen: 1e-7 - 2e-6 rad off at 1e-5); the last
        level's phase-amplitude stretch too, as its next step moves too far for its reuse (measured: 21 %
-       fewer potential evaluations for the two levels, 3723 -> 2936; 9 % at 1e-7; the levels move < 1e-9 cm-1) */
+       fewer potential evaluations for the two levels, 3723 -> 2936; the levels moved < 1e-9 cm-1) */
     int rough = across && w->rot == 0 && second_start && v + 2 >= w->count && w->set.match_milne == 1 &&
                 ROUGH_TOL > ode_tol;
     wkb_end_reuse(w, across || w->rot > 0 ? 2 : 1);
