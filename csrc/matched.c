@@ -555,7 +555,10 @@ int wkb_matched_solve(wkb_well *w, size_t v, int across, int second_start, wkb_l
             return status;
         }
         const double G = M_PI * (vq - (double)v);
-        if (G > 0)
+        if (rough) {
+            /* a loose phase brackets nothing (seen: a start already within its error, whose wrong sign
+               collapsed the bracket onto itself, 1.4e-6 cm-1 off) */
+        } else if (G > 0)
             lo = x;
         else
             hi = x;
@@ -601,10 +604,12 @@ int wkb_matched_solve(wkb_well *w, size_t v, int across, int second_start, wkb_l
            step^2 / previous step, which assumes only linear convergence (measured 4-5000x below it on C6
            and C6+C8 tails; twice it is kept as the bound) */
         const double predicted = secant && isfinite(db_prev) && db_prev > 0 ? 2 * db * db / db_prev : INFINITY;
-        if (rough) { /* no convergence on a loose phase: the next evaluations are at the level's tolerance */
+        if (rough) {
+            /* no convergence on a loose phase, nor a secant through it: the next evaluation, at the level's
+               tolerance, takes its first slope from a probe again */
             rough = 0;
             wkb_end_set_rough(w, 0, 0);
-            db_prev = NAN;
+            db_prev = x_prev = G_prev = NAN;
             continue;
         }
         if (db <= tol || predicted <= tol || hi - lo <= 1e-15 * hi) {
