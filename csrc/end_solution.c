@@ -69,11 +69,13 @@ typedef struct {
 typedef struct {
     int ok;
     double binding, b, r_m, W0, N0, y[6]; /* y: L, N, theta at r_m and their energy derivatives */
+    double tol; /* the tolerance it was integrated at */
 } kept_stretch;
 
 typedef struct {
     int ok;
     double binding, r_end, q04, y[2]; /* y: the Pruefer angle at r_end and its energy derivative */
+    double tol; /* the tolerance it was integrated at */
 } kept_pruefer;
 
 struct wkb_matched {
@@ -81,6 +83,8 @@ struct wkb_matched {
     gsl_odeiv2_driver *drv, *milne_drv;
     rhs_ctx ctx;
     double tol; /* the drivers' absolute tolerance per step now (radians) */
+    double rough; /* a looser tolerance for the outer end (0: none; wkb_end_set_rough) */
+    int rough_stretch; /* ... for its phase-amplitude stretch too */
     /* within one level solve or one threshold number (reuse set): each end's phase-amplitude stretch
        (milne6: with its energy derivatives) and, with reuse 2, its Pruefer solution (pruefer2) are kept and
        reused at the nearby energies of the iteration, y(E) = y(E_k) + y_E (E - E_k) (the matching point
@@ -251,8 +255,17 @@ void wkb_end_reuse(wkb_well *w, int on)
     if (!w->matched)
         return;
     w->matched->reuse = w->set.match_milne ? on : 0;
+    w->matched->rough = 0;
     w->matched->keep[0].ok = w->matched->keep[1].ok = 0;
     w->matched->keep_p[0].ok = w->matched->keep_p[1].ok = 0;
+}
+
+void wkb_end_set_rough(wkb_well *w, double tol, int stretch)
+{
+    if (!w->matched)
+        return;
+    w->matched->rough = w->set.match_milne == 1 ? tol : 0;
+    w->matched->rough_stretch = stretch;
 }
 
 /* Second-order local wavenumber k + dk (1/angstrom) and k, dk/dr at r, for kinetic term kin > 0. */
@@ -302,6 +315,10 @@ int wkb_end_solution(wkb_well *w, double binding, int outer, double r_turn, doub
     if (status)
         return status;
     const double sigma = outer ? 1.0 : -1.0, eps = w->eps;
+    /* this end's tolerance: the outer one may be looser for a first step (wkb_end_set_rough); a kept part
+       is reused only when it was integrated at most at this tolerance */
+    const double tol_end = outer && m->rough > m->tol ? m->rough : m->tol;
+    const double tol_stretch = m->rough_stretch ? tol_end : m->tol;
     wkb_pot_value pv;
     /* walk into the forbidden region until integral kappa dr reaches match_decay */
     double r = r_turn, acc = 0, h = WALK_FIRST_STEP;
@@ -368,7 +385,7 @@ int wkb_end_solution(wkb_well *w, double binding, int outer, double r_turn, doub
     kept_stretch *kp_ = &m->keep[outer];
     double ym[6] = {0}, W0 = q2, N0 = 0, r_m = b;
     int reused = 0;
-    if (m->reuse && kp_->ok && kp_->b == b) {
+    if (m->reuse && kp_->ok && kp_->b == b && kp_->tol <= tol_stretch) {
         const double dE = -(binding - kp_->binding);
         const double change = fabs(dE) * GSL_MAX(fabs(kp_->y[3]), GSL_MAX(fabs(kp_->y[4]), fabs(kp_->y[5])));
         wkb_pot_value pr;
@@ -400,7 +417,11 @@ int wkb_end_solution(wkb_well *w, double binding, int outer, double r_turn, doub
         double s = log(b);
         gsl_odeiv2_driver *drv = m->reuse ? m->milne6_drv : m->milne_drv;
         gsl_odeiv2_driver_reset_hstart(drv, 1e-2 * GSL_SIGN(log(r_m) - s));
+        if (tol_stretch != m->tol)
+            gsl_odeiv2_control_init(drv->c, tol_stretch, 0.0, 1.0, 0.0);
         int gs = gsl_odeiv2_driver_apply(drv, &s, log(r_m), ym);
+        if (tol_stretch != m->tol)
+            gsl_odeiv2_control_init(drv->c, m->tol, 0.0, 1.0, 0.0);
         if (gs != GSL_SUCCESS || !isfinite(ym[0]) || !isfinite(ym[1]) || !isfinite(ym[2])) {
             /* the stretch failed (seen on an inner wall that reaches the asymptote only at r -> 0, where
                its amplitude overflows): the Pruefer solution alone, as without the stretch */
@@ -413,6 +434,7 @@ int wkb_end_solution(wkb_well *w, double binding, int outer, double r_turn, doub
             kp_->r_m = r_m;
             kp_->W0 = W0;
             kp_->N0 = N0;
+            kp_->tol = tol_stretch;
             memcpy(kp_->y, ym, sizeof ym);
         }
     }
@@ -426,7 +448,7 @@ int wkb_end_solution(wkb_well *w, double binding, int outer, double r_turn, doub
        at the light bench_matched well's last level this spares a second inner solve) */
     const int threshold_ok = w->rot != 0 || !outer || (b_min > 0 && fabs(kq->y[1] * dE) * fabs(dE) / (4 * b_min) <=
                                              0.5 * REUSE_MAX_PRUEFER * REUSE_MAX_PRUEFER);
-    if (m->reuse == 2 && kq->ok && kq->r_end == r_end && fabs(kq->y[1] * dE) <= REUSE_MAX_PRUEFER && threshold_ok) {
+    if (m->reuse == 2 && kq->ok && kq->r_end == r_end && kq->tol <= tol_end && fabs(kq->y[1] * dE) <= REUSE_MAX_PRUEFER && threshold_ok) {
         /* the kept solution through the turning region, to first order in the energy change */
         m->ctx.q04 = kq->q04;
         y[0] = kq->y[0] + kq->y[1] * dE;
@@ -441,7 +463,7 @@ int wkb_end_solution(wkb_well *w, double binding, int outer, double r_turn, doub
         ms.deep_safety = DEEP_SAFETY;
         ms.tol_deep_max = DEEP_TOL_MAX;
         ms.want_E = m->reuse == 2;
-        int gs = wkb_magnus_run(w, binding, r_end, m->tol, m->ctx.q04, &ms);
+        int gs = wkb_magnus_run(w, binding, r_end, tol_end, m->ctx.q04, &ms);
         double phi = NAN, phi_E = NAN;
         if (gs == GSL_SUCCESS)
             gs = wkb_magnus_angle(w, binding, m->ctx.q04, sigma, &ms, &phi, &phi_E);
@@ -456,6 +478,7 @@ int wkb_end_solution(wkb_well *w, double binding, int outer, double r_turn, doub
             kq->binding = binding;
             kq->r_end = r_end;
             kq->q04 = m->ctx.q04;
+            kq->tol = tol_end;
             kq->y[0] = phi;
             kq->y[1] = phi_E;
         }
@@ -489,6 +512,7 @@ int wkb_end_solution(wkb_well *w, double binding, int outer, double r_turn, doub
             kq->binding = binding;
             kq->r_end = r_end;
             kq->q04 = m->ctx.q04;
+            kq->tol = m->tol;
             kq->y[0] = y2[0];
             kq->y[1] = y2[1];
         }

@@ -90,13 +90,17 @@ int wkb_well_crossing(const wkb_well *w, double binding, double lo, double hi, d
    turning point r_turn (outer = 1: r > r_turn, 0: r < r_turn); wkb_end_set_tol: the ODE tolerance per
    step (radians) for the next solutions; wkb_end_reuse: opens (1; 2 keeps the Pruefer parts too) or
    closes (0) a reuse scope, in which each end's solution is kept with its energy derivative and reused at
-   nearby energies; wkb_end_kept_match: 1 and the kept outer matching point, when there is one to reuse. */
+   nearby energies; wkb_end_kept_match: 1 and the kept outer matching point, when there is one to reuse;
+   wkb_end_set_rough: a looser tolerance (0: none) for the outer end's solution through the turning region
+   (stretch: and its phase-amplitude stretch) from now on, whose kept parts are then reused only at that
+   tolerance (a first step from a start known to be far off). */
 void wkb_matched_free(wkb_matched *m);
 int wkb_end_solution(wkb_well *w, double binding, int outer, double r_turn, double b, wkb_end_phase *out,
                      wkb_error *err);
 int wkb_end_set_tol(wkb_well *w, double tol, wkb_error *err);
 void wkb_end_reuse(wkb_well *w, int on);
 int wkb_end_kept_match(const wkb_well *w, double *b);
+void wkb_end_set_rough(wkb_well *w, double tol, int stretch);
 
 /* matched.c */
 /* matched level v (started from level->binding if level->status == WKB_SUCCESS, else from a guess;
