@@ -59,17 +59,6 @@ RULES = [
 ROUNDS = 5
 
 
-def cpu_time_call(fn, min_time=0.1):
-    """Mean CPU time (time.process_time) of a call, repeated for at least min_time CPU seconds."""
-    n, t0 = 0, time.process_time()
-    while True:
-        fn()
-        n += 1
-        dt = time.process_time() - t0
-        if dt >= min_time:
-            return dt / n
-
-
 def errors(table, ref):
     n = min(len(table), len(ref))
     e = np.abs(table.energy[:n] - ref.energy[:n])
@@ -125,7 +114,7 @@ def main():
             ct = {label: [] for label in calls}
             for _ in range(ROUNDS):
                 for label, call in calls.items():
-                    ct[label].append(cpu_time_call(call, min_time=0.1) / counts[label])
+                    ct[label].append(time_call(call, 0.1, time.process_time) / counts[label])
             core = {label: float(np.median(v)) for label, v in ct.items()}
             for label in calls:
                 extra = ""
