@@ -104,8 +104,8 @@ static void lj_eval(const wkb_potential *pot, double r, wkb_pot_value *out)
     const double ir = 1 / r, s = re * ir;
     double sn, sm;
     if (lj_integer_exponents(n, m)) {
-        sm = power(s, m);
-        sn = n == 2 * m ? sm * sm : power(s, n);
+        sm = power_unsigned(s, (unsigned)m);
+        sn = n == 2 * m ? sm * sm : power_unsigned(s, (unsigned)n);
     } else {
         const double ls = log(s);
         sm = exp(m * ls);
@@ -123,7 +123,8 @@ static void lj_param_derivs(const wkb_potential *pot, double r, double *dVdp)
     const double De = pot->p[0], re = pot->p[1], n = pot->p[2], m = pot->p[3];
     const double s = re / r, ls = log(s), g = n - m;
     const int integer = lj_integer_exponents(n, m);
-    const double sn = integer ? power(s, n) : exp(n * ls), sm = integer ? power(s, m) : exp(m * ls);
+    const double sn = integer ? power_unsigned(s, (unsigned)n) : exp(n * ls);
+    const double sm = integer ? power_unsigned(s, (unsigned)m) : exp(m * ls);
     const double f = m * sn - n * sm;
     dVdp[0] = 1 + f / g;
     dVdp[1] = De * n * m * (sn - sm) / (g * re);
