@@ -93,3 +93,27 @@ def test_call_shapes_and_bad_r():
         m(np.array([1.0, np.nan]))
     with pytest.raises(ValueError, match="not a number"):
         wkbfit.Morse(De="deep", re=1.0, a=1.0)
+
+
+def test_varied_exponents_to_a_few_ulp_over_the_whole_range():
+    # non-integer exponents take exp(e log s) in place of pow (csrc/potential.c): within a few ulp, |e log s|
+    # of them at most; checked against the formula at 30 digits (mpmath) from the inner wall to 30 re, where
+    # |n log s| reaches ~37: V and the depth to 1e-14 relative (of max(|V|, De) for V), dV/dp to 1e-13 of De
+    pot = wkbfit.LennardJones(De=350.0, re=3.7, n=10.5, m=6.2)
+    f = mp_formula(pot)
+    q0 = {k: mp.mpf(v) for k, v in pot.params.items()}
+    r = 3.7 * np.geomspace(0.7, 30.0, 31)
+    V = pot(r)
+    depth = pot.binding_depth(r)
+    J = pot.param_derivatives(r)
+    for i, ri in enumerate(r):
+        ref = f(mp.mpf(ri), q0)
+        assert V[i] == pytest.approx(float(ref), rel=1e-14, abs=1e-14 * max(abs(float(ref)), 350.0))
+        assert depth[i] == pytest.approx(float(q0["De"] - ref), rel=1e-14, abs=1e-300)
+        for k, name in enumerate(pot.param_names):
+            def g(p):
+                q = dict(q0)
+                q[name] = p
+                return f(mp.mpf(ri), q)
+            ref_k = float(mp.diff(g, q0[name]))
+            assert J[i, k] == pytest.approx(ref_k, rel=1e-12, abs=1e-13 * 350.0), (name, ri)
