@@ -409,25 +409,10 @@ static int assemble(const wkb_fit_evaluator *ev, const wkb_potential *pot, doubl
             }
         }
         double *row = jac ? jac + i * np : NULL;
-        switch (d->energy_zero) {
-        case WKB_ZERO_MINIMUM:
-            calc[i] = E;
-            if (row)
-                memcpy(row, dE, np * sizeof *row);
-            break;
-        case WKB_ZERO_ASYMPTOTE:
-            calc[i] = asym - E;
-            for (size_t k = 0; row && k < np; k++)
-                row[k] = dA[k] - dE[k];
-            break;
-        default: { /* WKB_ZERO_LOWEST */
-            const size_t r = (size_t)ev->row_ref[i];
-            calc[i] = E - ev->task_E[r];
-            for (size_t k = 0; row && k < np; k++)
-                row[k] = dE[k] - ev->task_dE[r * np + k];
-            break;
-        }
-        }
+        const int lowest = d->energy_zero == WKB_ZERO_LOWEST;
+        const size_t r = lowest ? (size_t)ev->row_ref[i] : 0; /* the task of the reference level */
+        calc[i] = wkb_rows_value(d->energy_zero, E, dE, asym, dA, lowest ? ev->task_E[r] : 0,
+                                 lowest ? ev->task_dE + r * np : NULL, np, row);
         if (d->offset)
             calc[i] += d->offset[i];
         int finite = isfinite(calc[i]);

@@ -130,6 +130,28 @@ void wkb_rows_sort(const wkb_fit_data *d, size_t *idx, size_t *scratch, size_t n
     }
 }
 
+/* A data row's value (and its derivatives in row, when not NULL) from its level E and dE/dp, by the energy
+   zero: E itself (the minimum), asym - E (below the asymptote, dA its derivatives) or E - ref_E (above the
+   reference level). The row evaluator and the ladder interpolation (fit_ladders.c) both use it. */
+double wkb_rows_value(int energy_zero, double E, const double *dE, double asym, const double *dA, double ref_E,
+                      const double *ref_dE, size_t np, double *row)
+{
+    switch (energy_zero) {
+    case WKB_ZERO_MINIMUM:
+        if (row)
+            memcpy(row, dE, np * sizeof *row);
+        return E;
+    case WKB_ZERO_ASYMPTOTE:
+        for (size_t k = 0; row && k < np; k++)
+            row[k] = dA[k] - dE[k];
+        return asym - E;
+    default: /* WKB_ZERO_LOWEST */
+        for (size_t k = 0; row && k < np; k++)
+            row[k] = dE[k] - ref_dE[k];
+        return E - ref_E;
+    }
+}
+
 int wkb_fit_check_data(const wkb_fit_data *d, wkb_error *err)
 {
     if (!d || d->n == 0)
@@ -500,25 +522,7 @@ static void *evaluate_part(void *arg)
                 memcpy(ev->cur_dE + s * np, dE, np * sizeof *dE);
         }
         double *row = jac ? jac + i * np : NULL;
-        switch (d->energy_zero) {
-        case WKB_ZERO_MINIMUM:
-            calc[i] = E;
-            if (row)
-                memcpy(row, dE, np * sizeof *row);
-            break;
-        case WKB_ZERO_ASYMPTOTE:
-            calc[i] = asym - E;
-            if (row)
-                for (size_t k = 0; k < np; k++)
-                    row[k] = dA[k] - dE[k];
-            break;
-        default: /* WKB_ZERO_LOWEST */
-            calc[i] = E - ref_E;
-            if (row)
-                for (size_t k = 0; k < np; k++)
-                    row[k] = dE[k] - ref_dE[k];
-            break;
-        }
+        calc[i] = wkb_rows_value(d->energy_zero, E, dE, asym, dA, ref_E, ref_dE, np, row);
         if (d->offset)
             calc[i] += d->offset[i]; /* fixed per-row correction (see wkb_fit_data) */
         if (!isfinite(calc[i])) {

@@ -20,4 +20,8 @@ size_t wkb_rows_threads(const wkb_row_evaluator *ev);
 void wkb_rows_sort(const wkb_fit_data *d, size_t *idx, size_t *scratch, size_t n,
                    int (*before)(const wkb_fit_data *, size_t, size_t));
 
+/* a data row's value and derivatives from its level by the energy zero (fit_levels.c) */
+double wkb_rows_value(int energy_zero, double E, const double *dE, double asym, const double *dA, double ref_E,
+                      const double *ref_dE, size_t np, double *row);
+
 #endif
