@@ -314,42 +314,6 @@ static int solve_level(wkb_well *w, size_t v, wkb_level *level, double *avg_dVdp
     return level->status = wkb_matched_solve(w, v, across, second_start, level, err);
 }
 
-/* The slot of w->low_curvature measured in this well's model and J(J+1) (else -1); near: also within 10 %
-   in eps and in every parameter. */
-static int low_curvature_slot(const wkb_well *w, int near)
-{
-    const size_t n_slots = sizeof w->low_curvature / sizeof w->low_curvature[0];
-    for (size_t i = 0; i < n_slots; i++) {
-        const wkb_low_curvature *c = &w->low_curvature[i];
-        if (c->model != w->pot.model || c->rot != w->rot)
-            continue;
-        int ok = 1;
-        if (near) {
-            ok = fabs(w->eps - c->eps) <= 0.1 * c->eps;
-            for (size_t k = 0; ok && k < w->pot.model->n_params; k++)
-                ok = fabs(w->pot.p[k] - c->p[k]) <= 0.1 * fabs(c->p[k]);
-        }
-        if (ok)
-            return (int)i;
-    }
-    return -1;
-}
-
-static void keep_low_curvature(wkb_well *w, double curvature)
-{
-    const size_t n_slots = sizeof w->low_curvature / sizeof w->low_curvature[0];
-    int i = low_curvature_slot(w, 0);
-    if (i < 0) {
-        i = (int)w->low_curvature_next;
-        w->low_curvature_next = (w->low_curvature_next + 1) % n_slots;
-    }
-    w->low_curvature[i].model = w->pot.model;
-    memcpy(w->low_curvature[i].p, w->pot.p, sizeof w->pot.p);
-    w->low_curvature[i].eps = w->eps;
-    w->low_curvature[i].rot = w->rot;
-    w->low_curvature[i].curvature = curvature;
-}
-
 static int solve_first_order(wkb_well *w, size_t v, wkb_level *level, double *avg_dVdp, wkb_error *err)
 {
     const double alpha = w_exponent(w);
@@ -378,17 +342,6 @@ static int solve_first_order(wkb_well *w, size_t v, wkb_level *level, double *av
     double curvature = NAN;
     if (v >= 2 && cached(w, v - 1) && cached(w, v - 2))
         curvature = (1 / w->cache_slope[v - 1] - 1 / w->cache_slope[v - 2]) / (w->cache_w[v - 1] - w->cache_w[v - 2]);
-    /* v = 0 without neighbours: F'' carried from the same J in a nearly equal well (v = 0 and 1 took two or
-       three orbits from any seed). In the test it counts twice, and at least 1 % of F'/w (F'' can pass
-       through zero: exactly zero for Morse at J = 0), where it changes by ~1 % between J = 0 and 20 */
-    int carried = 0, measured = 0; /* measured: from this well's own orbits */
-    if (v == 0 && !isfinite(curvature)) {
-        const int slot = low_curvature_slot(w, 1);
-        if (slot >= 0 && isfinite(w->low_curvature[slot].curvature)) {
-            curvature = w->low_curvature[slot].curvature;
-            carried = 1;
-        }
-    }
     wkb_orbit o = {0};
     double b = binding_of_w(wg, alpha), bn = b, dE = INFINITY, slope = NAN, error = INFINITY;
     double prev_w = NAN, prev_dF = NAN;
@@ -403,12 +356,9 @@ static int solve_first_order(wkb_well *w, size_t v, wkb_level *level, double *av
         slope = 1 / dFdw;
         if (it > 0 && fabs(wg - prev_w) > 1e-6 * wg) {
             curvature = (dFdw - prev_dF) / (wg - prev_w);
-            carried = 0;
-            measured = 1;
         } else if (it == 0 && v == 1 && !isfinite(curvature) && cached(w, 0) && wg != w->cache_w[0]) {
             /* the secant to level 0's slope, as the neighbours' F'' above for v >= 2 */
             curvature = (dFdw - 1 / w->cache_slope[0]) / (wg - w->cache_w[0]);
-            measured = 1;
         }
         prev_w = wg;
         prev_dF = dFdw;
@@ -425,8 +375,7 @@ static int solve_first_order(wkb_well *w, size_t v, wkb_level *level, double *av
         bn = binding_of_w(wn, alpha);
         dE = fabs(bn - b);
         const double db_dw = binding_slope(wn, alpha);
-        const double test_curvature = carried ? GSL_MAX(2 * fabs(curvature), 0.01 * fabs(dFdw) / wg) : curvature;
-        const double predicted = fabs(test_curvature / (2 * dFdw)) * (wn - wg) * (wn - wg) * db_dw;
+        const double predicted = fabs(curvature / (2 * dFdw)) * (wn - wg) * (wn - wg) * db_dw;
         /* dw/dI at the new iterate, carried from the orbit's by F'': the extrapolation of the next levels
            weighs the slopes heavily, and the orbit's own is one Newton step off */
         if (isfinite(curvature) && fabs(curvature * (wn - wg)) < 0.1 * fabs(dFdw))
@@ -470,8 +419,6 @@ static int solve_first_order(wkb_well *w, size_t v, wkb_level *level, double *av
     level->Bv = o.Bv;
     level->status = converged ? WKB_SUCCESS : WKB_ENOCONV;
     level->rule = WKB_RULE_FIRST;
-    if (converged && v <= 1 && measured && isfinite(curvature))
-        keep_low_curvature(w, curvature);
     if (converged && v < w->cache_size) {
         w->cache_w[v] = wg;
         w->cache_slope[v] = slope;

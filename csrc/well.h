@@ -11,12 +11,6 @@
 typedef struct wkb_matched wkb_matched; /* end_solution.c */
 #define WKB_DEFECT_NODES 3
 
-/* F''(w) at the bottom of a well and the well it was measured in (quantize.c) */
-typedef struct {
-    const wkb_model *model;
-    double p[WKB_MAX_PARAMS], eps, rot, curvature;
-} wkb_low_curvature;
-
 struct wkb_well {
     wkb_settings set;
     wkb_potential pot;
@@ -81,12 +75,6 @@ struct wkb_well {
        first request for v = 0 without parameter derivatives); status of each, -1 when not solved */
     wkb_level prep_first0, prep_second0;
     int prep_first0_status, prep_second0_status;
-    /* quantize.c: F''(w) at the bottom of a well (from v = 0's iterates or the secant of v = 0 and 1) with
-       the well it was measured in (model, parameters, eps, J(J+1)), kept across wkb_well_set: it lets the
-       Newton test of v = 0 (no neighbours below) stop after one orbit in a nearly equal well, e.g. the same
-       J at the next fit evaluation. A few slots: a fit's well cycles through its J values. */
-    wkb_low_curvature low_curvature[4];
-    size_t low_curvature_next;
 };
 
 /* orbit.c helpers for matched.c: V_J and its derivatives (depth = D - V_J); the kinetic term

@@ -1,10 +1,9 @@
-"""The Newton test of v = 0 in a fit (csrc/quantize.c): F''(w) at the bottom of a well, carried from the same J
-of the previous evaluation (parameters within 10 %), lets v = 0 stop after one orbit; v = 1 uses the secant to
-v = 0. Reference: the same rows evaluated alone (a fresh evaluator per row: no carried value, no neighbour, the
-unseeded start), which is the quadrature the levels must converge to. Criterion as in test_fit_seeding.py:
-1e-10 cm-1 (the fit evaluator's stated accuracy is 1e-8 cm-1 of the converged quadrature).
-Rows: v = 0..9 at one or two J values of one reduced mass, so that every well of the fit finds its carried value
-(the well keeps four), with up to four parameters varied (the first ones) from a start 0.5 % off in the first two.
+"""The first-order Newton test of the lowest levels in a fit (csrc/quantize.c): v = 1 takes F''(w) from the secant
+to v = 0's slope, as v >= 2 take it from their neighbours. Reference: the same rows evaluated alone (a fresh
+evaluator per row: no neighbour, the unseeded start), which is the quadrature the levels must converge to.
+Criterion as in test_fit_seeding.py: 1e-10 cm-1 (the fit evaluator's stated accuracy is 1e-8 cm-1 of the
+converged quadrature). Rows: v = 0..9 at one or two J values of one reduced mass, with up to four parameters
+varied (the first ones) from a start 0.5 % off in the first two.
 """
 import numpy as np
 import pytest

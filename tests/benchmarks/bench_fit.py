@@ -47,8 +47,8 @@ from neighbours there; quantize.c). The 4-parameter Lennard-Jones levels spend a
 Issue 10 (helper II), two runs each interleaved with a build of main at aef4891 (load ~1.5-2): the C run 0.31,
 0.30-0.31, 0.95-0.99 ms before -> 0.29-0.31, 0.31-0.32, 0.74 ms (the 4-parameter LJ: non-integer exponents take one
 log and two exp per point instead of two pow, the log shared with d/dn, d/dm; csrc/potential.c), first-order orbits
-per C run 274 -> 266, 211 -> 208, 279 -> 267 (v = 0 stops after one orbit with F'' of the well bottom carried from
-the same J of the previous evaluation, v = 1 with the secant to v = 0; csrc/quantize.c); whole fit() 0.78-0.82,
+per C run 274 -> 266, 211 -> 208, 279 -> 267 (then with F'' of v = 0 carried between evaluations too, since
+removed: it kept state across calls for no measurable time; v = 1 keeps the secant to v = 0); whole fit() 0.78-0.82,
 0.85-0.86, 1.90-2.02 ms -> 0.73-0.80, 0.88, 1.55-1.58 ms. The 4-parameter ratios fell (572-558x -> 511-528x) only
 because the baseline got faster: the exact-solver data moved by <= 3e-11 cm-1 (the ulp-level change of the
 potential) and least_squares stops after 10 evaluations instead of 14 (1.08-1.13 -> 0.81-0.82 s).
