@@ -24,8 +24,7 @@ import math
 import numpy as np
 
 from . import _core, _tall
-from .rotational_corrections import DEGREES, FIRST_REFRESH_DEGREES, RowGroups, exact_rows, interpolable
-from .method_error import _unique
+from .rotational_corrections import DEGREES, FIRST_REFRESH_DEGREES, RowGroups, _distinct, exact_rows, interpolable
 
 __all__ = ["run_corrected", "run_corrected_rows", "RowEvaluator", "run_with_unbound_rows", "LINEAR_STEP", "REMAINDER_SD",
            "ROWS_STEP", "MAX_REFRESHES"]
@@ -112,7 +111,7 @@ def exact_calc(model, params, curve, v, rot, mu, energy_zero, tolerance):
                                                                               keys[:, 1].tolist())))
     for m, j in groups:
         sel = np.nonzero((keys[:, 0] == m) & (keys[:, 1] == j))[0]
-        want = _unique(np.asarray(v)[sel])
+        want = _distinct(np.asarray(v)[sel])
         res = _core.exact_levels(model, params, curve, float(m), np.array([int(j)], dtype=np.intc),
                                  want.astype(np.intc), energy_tol=tolerance)
         col = res["binding_energy"] if energy_zero == 1 else res["energy"]
@@ -122,7 +121,7 @@ def exact_calc(model, params, curve, v, rot, mu, energy_zero, tolerance):
         if energy_zero == 2 and int(j) == 0 and res["v"][0] == 0:
             ref[float(m)] = (float(res["energy"][0]), float(res["error"][0]))
     if energy_zero == 2:
-        for m in _unique(keys[:, 0]):
+        for m in _distinct(keys[:, 0]):
             if m not in ref:
                 res = _core.exact_levels(model, params, curve, float(m), np.array([0], dtype=np.intc),
                                          np.array([0], dtype=np.intc), energy_tol=tolerance)

@@ -22,6 +22,7 @@ import math
 import numpy as np
 
 from . import _core
+from .rotational_corrections import _distinct
 
 __all__ = ["FLAG_FRACTION", "row_method_errors", "attach"]
 
@@ -54,7 +55,7 @@ def semiclassical_estimate(args, calc):
     for m in ([mu[0]] if single else np.unique(mu)):
         rows = slice(None) if single else np.nonzero(mu == m)[0]
         # "lowest" data are measured from v=0, J=0: that level joins the request
-        rots = _unique(np.concatenate([rot[rows], [0.0]]) if zero == 2 else rot[rows])
+        rots = _distinct(np.concatenate([rot[rows], [0.0]]) if zero == 2 else rot[rows])
         row_keys = np.searchsorted(rots, rot[rows]) * n_v + v[rows]
         table, zero_level = _matched_levels(model, params, curve, float(m), rots, v[rows], row_keys, n_v,
                                             zero, zero == 2)
@@ -62,14 +63,6 @@ def semiclassical_estimate(args, calc):
         if zero == 2:
             ref[rows] -= zero_level
     return np.abs(ref - np.asarray(calc, dtype=float))
-
-
-def _unique(values):
-    """np.unique of a 1-d array of numbers without NaN: for short ones the same sorted values and dtype by a
-    set (a third of np.unique's cost on the 50 rows of a small fit)."""
-    if len(values) > 500:
-        return np.unique(values)
-    return np.array(sorted(set(values.tolist())), dtype=values.dtype)
 
 
 def _matched_levels(model, params, curve, mu, rots, v, row_keys, n_v, zero, want_lowest):
@@ -83,7 +76,7 @@ def _matched_levels(model, params, curve, mu, rots, v, row_keys, n_v, zero, want
     def own(g):  # the v values of rot g's rows (and v=0 at rot 0 for "lowest" data)
         mine = v[row_keys // n_v == g]
         return np.unique(np.concatenate([mine, [0]]) if want_lowest and rots[g] == 0 else mine)
-    union = _unique(np.concatenate([v, [0]]) if want_lowest else v)
+    union = _distinct(np.concatenate([v, [0]]) if want_lowest else v)
     if len(union) * len(rots) <= 2 * len(v) + 4 * len(rots):
         calls = [(np.arange(len(rots)), union)]
     else:

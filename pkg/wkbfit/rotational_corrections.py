@@ -66,8 +66,9 @@ def _node_j(j_lo, j_hi, degree):
 
 
 def _distinct(x):
-    """np.unique(x) by sorting (numpy 2's default hash-based unique costs ~1.7 ms on 20 000 integers, a sort
-    0.15 ms)."""
+    """np.unique(x) of a 1-d array without NaN, by sorting (numpy 2's default hash-based unique costs ~1.7 ms on
+    20 000 integers, a sort 0.15 ms; on the 50 rows of a small fit 2.5 us against 3-4.5 us). Also used by
+    method_error.py and corrected.py."""
     x = np.sort(x)
     return x[np.concatenate([[True], x[1:] != x[:-1]])] if len(x) else x
 
