@@ -435,6 +435,16 @@ cleanup:
 
 /* The matched rule at one energy: both end phases and the continuous quantum number at binding
    energy b, for tests and diagnostics. r_match <= 0 uses the fraction. */
+/* milne: 0 the earlier end solve, 1 (default) Magnus steps, 2 rk8pd through the turning region */
+static int milne_ok(int milne)
+{
+    if (milne >= 0 && milne <= 2)
+        return 1;
+    PyErr_Format(PyExc_ValueError, "milne=%d is invalid: 1 (the default end solve), 2 (rk8pd through the turning "
+                 "region) or 0 (the earlier Pruefer solve)", milne);
+    return 0;
+}
+
 static PyObject *py_matched_phases(PyObject *self, PyObject *args, PyObject *kwds)
 {
     static char *kwlist[] = {"model", "params", "curve", "mu", "rot", "binding", "match_fraction", "r_match_inner",
@@ -448,7 +458,7 @@ static PyObject *py_matched_phases(PyObject *self, PyObject *args, PyObject *kwd
     wkb_end_phase ph[2];
     int status;
     if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOddd|dddi", kwlist, &model_name, &params_obj, &curve_obj, &mu,
-                                     &rot, &binding, &fraction, &rm_in, &rm_out, &milne))
+                                     &rot, &binding, &fraction, &rm_in, &rm_out, &milne) || !milne_ok(milne))
         return NULL;
     if (parse_potential(model_name, params_obj, curve_obj, &pot) < 0)
         return NULL;
@@ -541,7 +551,8 @@ static PyObject *py_wkb_levels(PyObject *self, PyObject *args, PyObject *kwds)
 
     if (!PyArg_ParseTupleAndKeywords(args, kwds, "sOOdO|Oiipiidiinip", kwlist, &model_name, &params_obj, &curve_obj,
                                      &mu, &rot_obj, &v_obj, &maslov_in, &maslov_out, &want_dVdp, &order, &ends,
-                                     &match_fraction, &nodes, &match_rule, &max_levels, &milne, &packed))
+                                     &match_fraction, &nodes, &match_rule, &max_levels, &milne, &packed) ||
+        !milne_ok(milne))
         return NULL;
     if (nodes != 0 && (nodes < 8 || nodes > 512 || nodes % 2)) {
         PyErr_Format(PyExc_ValueError, "nodes=%d is invalid: an even number of quadrature nodes in 8..512", nodes);

@@ -63,3 +63,13 @@ def test_magnus_phase_at_threshold_keeps_the_node_count():
     b = _core.matched_phases(model, params, curve, mu, 0.0, 8.01e-7, milne=2)
     assert abs(a["v"] - b["v"]) < 1e-7
     assert abs(a["psi_outer"] - b["psi_outer"]) < 1e-6
+
+
+def test_an_unknown_end_solve_is_refused_by_name():
+    # the private switch takes 0, 1 or 2; anything else is a clear error, not a silent choice of path
+    pot = wkbfit.LennardJones(De=4000.0, re=4.0)
+    model, params, curve = pot._core_args()
+    for call in (lambda: _core.wkb_levels(model, params, curve, 20.0, 0.0, order=2, ends=1, milne=5),
+                 lambda: _core.matched_phases(model, params, curve, 20.0, 0.0, 100.0, milne=-1)):
+        with pytest.raises(ValueError, match="milne=-?[0-9]+ is invalid"):
+            call()
